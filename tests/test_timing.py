@@ -62,6 +62,10 @@ def test_str_and_dict_round_trip() -> None:
     assert VideoTiming.from_dict(tt.to_dict()) == tt
     over = VideoTiming.from_dict({"preset": "tiny32x24", "h_active": 16})
     assert (over.h_active, over.v_active) == (16, 24)
+    assert over.name == "custom"
+    vga = VideoTiming.from_dict({"preset": "vga640x480p60", "v_back_porch": 30})
+    assert vga.pixel_clock_hz is None and vga.hsync_active_high is False
+    assert VideoTiming.from_dict({"preset": "vga640x480p60", "h_active": 640}) == t
 
 
 @pytest.mark.parametrize(

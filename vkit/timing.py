@@ -164,7 +164,8 @@ class VideoTiming:
     def from_dict(cls, data: Mapping[str, Any]) -> VideoTiming:
         """Build a timing from a dict of field values.
 
-        A ``"preset"`` key starts from that preset (see :data:`PRESETS`); the other keys override it.
+        A ``"preset"`` key starts from that preset (see :data:`PRESETS`); the other keys override it
+        (changing any size drops the preset's name and pixel clock unless they are given again).
         Without a preset every integer field must be given.
 
         Raises:
@@ -182,6 +183,10 @@ class VideoTiming:
             raise ConfigError(
                 f"video timing: unknown key(s) {', '.join(unknown)}; known keys are preset, {', '.join(sorted(known))}"
             )
+        if base and any(k in _INT_FIELDS and values[k] != base[k] for k in values):
+            # a changed geometry is no longer the named standard: its name and pixel clock do not carry over
+            base["name"] = "custom"
+            base.pop("pixel_clock_hz", None)
         base.update(values)
         missing = [k for k in _INT_FIELDS if k not in base]
         if missing:

@@ -608,8 +608,7 @@ class _Plan:
     spec: PipelineSpec
     widths: dict[str, Any]
     dtypes: dict[str, np.dtype]
-    luma_lut: tuple[np.ndarray, np.ndarray, np.ndarray] | None
-    luma_shift: int
+    weights: Any
     kernels: dict[str, tuple[tuple[int, int, int], ...]]
     pad_dtype: np.dtype
     table: np.ndarray | None
@@ -626,22 +625,7 @@ def _plan(spec: PipelineSpec) -> _Plan:
 
     widths = stage_range_map(spec)
     dtypes = {name: dtype_for_range(w.lo, w.hi) for name, w in widths.items()}
-    lut = None
-    luma_shift = 0
-    if spec.luma is not None:
-        weights = spec.luma.resolved()
-        luma_shift = weights.fraction_bits - (spec.luma.output_bits - 8)
-        half = (1 << (luma_shift - 1)) if (spec.luma.rounding == "half_up" and luma_shift > 0) else 0
-        peak = weights.total * 255 + half
-        lut_type = np.uint16 if peak < (1 << 16) else np.int64
-        levels = np.arange(256, dtype=np.int64)
-        r, g, b = weights.as_tuple()
-        # The rounding half is folded into the blue table, so luma = (R_t[R] + G_t[G] + B_t[B]) >> shift.
-        lut = (
-            (levels * r).astype(lut_type),
-            (levels * g).astype(lut_type),
-            (levels * b + half).astype(lut_type),
-        )
+    weights = spec.luma.resolved() if spec.luma is not None else None
     kernels = {name: tuple(tuple(int(v) for v in row) for row in k.tolist()) for name, k in spec.filter.kernels().items()}
     src = widths["luma"] if "luma" in widths else widths["input"]
     bound = max(abs(src.lo), abs(src.hi))
@@ -658,7 +642,7 @@ def _plan(spec: PipelineSpec) -> _Plan:
 
         m = spec.magnitude
         table = np.asarray(root_table(m.address_bits, m.data_bits, m.table_scale, m.rounding)).astype(dtypes["magnitude"])
-    plan = _Plan(spec, widths, dtypes, lut, luma_shift, kernels, pad_dtype, table)
+    plan = _Plan(spec, widths, dtypes, weights, kernels, pad_dtype, table)
     _PLANS[spec] = plan
     return plan
 
@@ -685,23 +669,13 @@ def _check_image(spec: PipelineSpec, image: Any) -> np.ndarray:
 
 
 def _luma_rows(plan: _Plan, img: np.ndarray) -> np.ndarray:
-    """Luma of a block of rows, int32 ``(rows, W)``."""
+    """Luma of a block of rows, ``(rows, W)`` int32 (a grey block stands for R = G = B)."""
+    from vkit.luma import luma
+
     spec = plan.spec
-    assert spec.luma is not None and plan.luma_lut is not None
-    lr, lg, lb = plan.luma_lut
-    if img.ndim == 2:
-        acc = lr.take(img)
-        acc += lg.take(img)
-        acc += lb.take(img)
-    else:
-        acc = lr.take(img[..., 0])
-        acc += lg.take(img[..., 1])
-        acc += lb.take(img[..., 2])
-    if plan.luma_shift > 0:
-        acc >>= acc.dtype.type(plan.luma_shift)
-    elif plan.luma_shift < 0:
-        acc = acc.astype(np.int64) << -plan.luma_shift
-    return acc
+    assert spec.luma is not None and plan.weights is not None
+    rgb = img if img.ndim == 3 else np.repeat(img[..., None], 3, axis=2)
+    return luma(rgb, plan.weights, spec.luma.output_bits, spec.luma.rounding)
 
 
 def _new_stage(plan: _Plan, name: str, array: np.ndarray, clamped: np.ndarray | None) -> Stage:
@@ -739,9 +713,10 @@ def run_model(spec: PipelineSpec, image: Any, *, keep_stages: bool = True, band_
     filt, mag, out_spec = spec.filter, spec.magnitude, spec.output
     names = [n for n in spec.stage_names() if n != "input"]
     kept = names if keep_stages else ["output"]
-    arrays = {n: np.empty((height, width), dtype=plan.dtypes[n]) for n in kept}
     clamp_names = [n for n in kept if plan.widths[n].can_clamp]
-    clamps = {n: np.empty((height, width), dtype=bool) for n in clamp_names}
+    arrays, clamps = _allocate(
+        (height, width), [(n, plan.dtypes[n]) for n in kept], [(n, np.dtype(bool)) for n in clamp_names]
+    )
     border, constant = spec.window.border, spec.window.constant
     order_func = {"median": median3x3, "min": minimum3x3, "max": maximum3x3}.get(filt.kind)
     top_value = out_spec.max_value
@@ -800,6 +775,25 @@ def run_model(spec: PipelineSpec, image: Any, *, keep_stages: bool = True, band_
     for name in kept:
         stages[name] = _new_stage(plan, name, arrays[name], clamps.get(name))
     return ModelResult(arrays["output"], interior_mask(height, width, border), stages)
+
+
+def _allocate(
+    shape: tuple[int, int], *groups: list[tuple[str, np.dtype]]
+) -> tuple[dict[str, np.ndarray], ...]:
+    """Arrays of ``shape`` carved from one allocation (one large block is much cheaper for the
+    allocator and the page-fault path than several frame-sized ones)."""
+    count = shape[0] * shape[1]
+    sizes = [[(name, dt, -(-count * dt.itemsize // 64) * 64) for name, dt in group] for group in groups]
+    block = np.empty(sum(size for group in sizes for _, _, size in group), dtype=np.uint8)
+    offset = 0
+    out: list[dict[str, np.ndarray]] = []
+    for group in sizes:
+        arrays = {}
+        for name, dt, size in group:
+            arrays[name] = block[offset : offset + count * dt.itemsize].view(dt).reshape(shape)
+            offset += size
+        out.append(arrays)
+    return tuple(out)
 
 
 def _magnitude_band(plan: _Plan, band: dict[str, np.ndarray]) -> np.ndarray:

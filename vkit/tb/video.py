@@ -1,0 +1,504 @@
+"""Video source and monitor: frames in and out over sync, data-enable and pixel-valid, clock by clock."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+from cocotb.triggers import Event, RisingEdge
+
+from vkit.capture import UNKNOWN, Capture, CaptureBuilder
+from vkit.errors import ConfigError
+from vkit.tb._common import MAX_EVENTS, bit_reader, resolve_component, wait_reset_released, word_reader
+from vkit.tb.signals import SignalMap, pixel_bits
+from vkit.timing import ClockSchedule, StallPattern, VideoTiming, schedule
+
+__all__ = ["VideoSource", "VideoMonitor", "frames_array", "sync_counts"]
+
+
+def frames_array(frames: Any, pixel_format: str | None = None) -> tuple[np.ndarray, str]:
+    """Stack ``frames`` into ``(N, H, W)`` (gray8) or ``(N, H, W, 3)`` (rgb888) uint8 and name the format.
+
+    Args:
+        frames: one frame or a sequence of frames, each uint8-valued ``(H, W)`` or ``(H, W, 3)``.
+        pixel_format: "gray8", "rgb888" or None to infer from the shape.
+
+    Raises:
+        ConfigError: empty input, mixed shapes, values outside 0..255 or a shape/format mismatch.
+    """
+    arr = frames if isinstance(frames, np.ndarray) else np.asarray(frames)
+    # A single frame is (H, W) or (H, W, 3); a 3-D array ending in 3 is one RGB frame unless gray8 was asked.
+    if arr.ndim == 2 or (arr.ndim == 3 and arr.shape[-1] == 3 and pixel_format != "gray8"):
+        arr = arr[None]
+    if arr.dtype == object or arr.size == 0:
+        raise ConfigError("frames: got no frames or frames of different shapes; give equal-size (H, W) or (H, W, 3) arrays")
+    if arr.ndim == 4 and arr.shape[-1] == 3:
+        fmt = "rgb888"
+    elif arr.ndim == 3:
+        fmt = "gray8"
+    else:
+        raise ConfigError(f"frames: shape {arr.shape} is not (N, H, W) or (N, H, W, 3); give uint8 gray or RGB frames")
+    if pixel_format is not None and pixel_format != fmt:
+        pixel_bits(pixel_format)
+        raise ConfigError(
+            f"frames: shape {arr.shape} is {fmt} but pixel_format is {pixel_format!r}; "
+            f"give {'(N, H, W, 3)' if pixel_format == 'rgb888' else '(N, H, W)'} frames or change pixel_format"
+        )
+    if arr.dtype != np.uint8:
+        if not np.issubdtype(arr.dtype, np.integer) or arr.min() < 0 or arr.max() > 255:
+            raise ConfigError(f"frames: dtype {arr.dtype} with values outside 0..255; give uint8 frames")
+        arr = arr.astype(np.uint8)
+    return arr, fmt
+
+
+def _pixel_words(frames: np.ndarray, fmt: str) -> np.ndarray:
+    """Data-bus words per pixel, ``(N, H, W)`` int64 (rgb888 packed as R<<16 | G<<8 | B)."""
+    if fmt == "rgb888":
+        from vkit.images import pack_rgb
+
+        return np.asarray(pack_rgb(frames), dtype=np.int64)
+    return frames.astype(np.int64)
+
+
+def _leading_edges(level: np.ndarray, active: bool) -> np.ndarray:
+    """Clock indices where ``level`` becomes ``active`` (the clock before index 0 counts as inactive)."""
+    on = level if active else ~level
+    prev = np.concatenate(([False], on[:-1]))
+    return np.flatnonzero(on & ~prev)
+
+
+def sync_counts(hsync_edges: np.ndarray, vsync_edges: np.ndarray) -> list[int]:
+    """Hsync leading edges per vsync period.
+
+    Entry ``k`` counts the hsync leading edges after vsync leading edge ``k - 1`` (the start of the run for
+    ``k = 0``) and before vsync leading edge ``k``; hsync pulses after the last vsync are not listed. The
+    monitor counts its output the same way, so input and output lists compare entry by entry.
+    """
+    bounds = np.searchsorted(hsync_edges, vsync_edges, side="left")
+    return [int(b) for b in np.diff(np.concatenate(([0], bounds)))]
+
+
+class VideoSource:
+    """Drives frames into a video-family DUT with a :class:`~vkit.timing.VideoTiming` and optional stalls.
+
+    Every per-clock value (syncs, data-enable, valid, data word) comes from a precomputed numpy
+    schedule; the clock loop only writes the few values that change.
+
+    Args:
+        dut: the cocotb top-level handle.
+        signals: role -> DUT port (``SignalMap`` or dict, family "video"); uses ``in_vsync``, ``in_hsync``,
+            ``in_de``, ``in_data`` and ``in_valid`` when mapped.
+        clock: the clock handle, or None for the map's ``clock`` role.
+        reset: the reset handle, or None for the map's ``reset`` role (if any); ``send`` waits until it is
+            inactive.
+        timing: the video timing (required).
+        stalls: optional :class:`~vkit.timing.StallPattern` (needs ``in_valid``).
+        pixel_format: "gray8" (8 bits) or "rgb888" (24 bits); None infers it from the first frames sent.
+        blanking: "random" drives seeded random words on ``in_data`` outside active video; "constant" drives
+            ``blanking_value``. Stall clocks always carry seeded random words (the design must ignore them).
+        blanking_value: the constant blanking word, >= 0.
+        seed: seed for the garbage words (numpy PCG64).
+        reset_active_high: reset polarity.
+        stats: a dict the source writes its run facts into (Capture meta keys: ``frames_sent``,
+            ``first_input_clock``, ``stall_pixels``, ``input_vsync_count``, ``input_hsync_per_frame``);
+            pass the monitor's :attr:`VideoMonitor.meta` so they land in its capture.
+
+    Clock numbering: clock 0 is the first rising edge after :meth:`send` starts; a value of schedule
+    entry ``i`` is sampled by the design on clock ``i``.
+    """
+
+    def __init__(
+        self,
+        dut: Any,
+        signals: SignalMap | Mapping[str, str],
+        clock: Any = None,
+        reset: Any = None,
+        *,
+        timing: VideoTiming,
+        stalls: StallPattern | None = None,
+        pixel_format: str | None = None,
+        blanking: str = "random",
+        blanking_value: int = 0,
+        seed: int = 0,
+        reset_active_high: bool = True,
+        stats: dict[str, Any] | None = None,
+    ) -> None:
+        if not isinstance(timing, VideoTiming):
+            raise ConfigError("VideoSource: timing must be a vkit.timing.VideoTiming; build one with preset() or tiny()")
+        if blanking not in ("random", "constant"):
+            raise ConfigError(f"blanking = {blanking!r}; use 'random' or 'constant'")
+        if pixel_format is not None:
+            pixel_bits(pixel_format)
+        bits = {"in_data": pixel_bits(pixel_format)} if pixel_format else None
+        self.signals, self._h, self._clock, self._reset = resolve_component(
+            dut, signals, "video", clock, reset, bits
+        )
+        if stalls is not None and stalls.probability > 0 and "in_valid" not in self._h:
+            raise ConfigError(
+                "stalls need a pixel-valid input but role 'in_valid' is not mapped; map in_valid or drop the stalls"
+            )
+        self.timing = timing
+        self.stalls = stalls
+        self.pixel_format = pixel_format
+        self.blanking = blanking
+        self.blanking_value = int(blanking_value)
+        self.seed = int(seed)
+        self.reset_active_high = reset_active_high
+        self.stats: dict[str, Any] = stats if stats is not None else {}
+        self.clocks = 0
+        """Rising edges seen by the last :meth:`send` so far."""
+        self.schedule: ClockSchedule | None = None
+        self._idle()
+
+    def _idle(self) -> None:
+        """Drive the blanking state: syncs inactive, data-enable and valid low, data at the blanking value."""
+        t = self.timing
+        self._h["in_vsync"].value = 0 if t.vsync_active_high else 1
+        self._h["in_hsync"].value = 0 if t.hsync_active_high else 1
+        self._h["in_de"].value = 0
+        if "in_valid" in self._h:
+            self._h["in_valid"].value = 0
+        self._h["in_data"].value = self.blanking_value if self.blanking == "constant" else 0
+
+    def prepare(self, frames: Any) -> tuple[ClockSchedule, np.ndarray]:
+        """Build the schedule and the data word of every clock for ``frames`` (no simulation needed).
+
+        Returns:
+            (schedule, words): ``words`` is an int64 array of length ``schedule.n_clocks``.
+        """
+        arr, fmt = frames_array(frames, self.pixel_format)
+        if self.pixel_format is None:
+            width = len(self._h["in_data"])
+            if width < pixel_bits(fmt):
+                raise ConfigError(
+                    f"role 'in_data' -> port {self.signals.roles['in_data']!r} is {width} bits wide but the pixel "
+                    f"format {fmt} needs {pixel_bits(fmt)} bits; widen the port or send gray8 frames"
+                )
+        t = self.timing
+        if arr.shape[1] != t.v_active or arr.shape[2] != t.h_active:
+            raise ConfigError(
+                f"frames are {arr.shape[2]}x{arr.shape[1]} but timing {t.name!r} is {t.h_active}x{t.v_active}; "
+                "give frames of the timing's active size or change the timing"
+            )
+        sched = schedule(t, int(arr.shape[0]), self.stalls)
+        bits = pixel_bits(fmt)
+        rng = np.random.default_rng(self.seed)
+        garbage = rng.integers(0, 1 << bits, size=sched.n_clocks, dtype=np.int64)
+        if self.blanking == "random":
+            words = garbage
+        else:
+            words = np.full(sched.n_clocks, self.blanking_value, np.int64)
+            stall = sched.de & ~sched.valid
+            words[stall] = garbage[stall]
+        pix = sched.x >= 0
+        packed = _pixel_words(arr, fmt)
+        words[pix] = packed[sched.frame[pix], sched.y[pix], sched.x[pix]]
+        return sched, words
+
+    async def send(self, frames: Any) -> None:
+        """Drive all ``frames`` with the timing; returns after the last scheduled clock.
+
+        Args:
+            frames: one frame or a sequence of frames, uint8 ``(H, W)`` or ``(H, W, 3)``, of the timing's
+                active size.
+        """
+        sched, words = self.prepare(frames)
+        self.schedule = sched
+        t = self.timing
+        vs_edges = _leading_edges(sched.vsync, t.vsync_active_high)
+        hs_edges = _leading_edges(sched.hsync, t.hsync_active_high)
+        self.stats["frames_sent"] = int(sched.frames)
+        self.stats["stall_pixels"] = sched.stall_pixels.tolist()
+        self.stats["input_vsync_count"] = int(vs_edges.size)
+        self.stats["input_hsync_per_frame"] = sync_counts(hs_edges, vs_edges)
+
+        await wait_reset_released(self._clock, self._reset, self.reset_active_high)
+        first_valid = int(np.argmax(sched.valid)) if sched.valid.any() else None
+        self.stats["first_input_clock"] = first_valid
+
+        h = self._h
+        ctrl = [h["in_vsync"], h["in_hsync"], h["in_de"]]
+        levels = [sched.vsync, sched.hsync, sched.de]
+        if "in_valid" in h:
+            ctrl.append(h["in_valid"])
+            levels.append(sched.valid)
+        lv = np.stack(levels).astype(np.int8)
+        prev = np.concatenate((np.full((lv.shape[0], 1), -1, np.int8), lv[:, :-1]), axis=1)
+        change_at = np.flatnonzero((lv != prev).any(axis=0)).tolist()
+        change_vals = [tuple(int(v) for v in col) for col in lv[:, change_at].T]
+        data = h["in_data"]
+        word_list = words.tolist()
+
+        edge = RisingEdge(self._clock)
+        n = sched.n_clocks
+        change_at.append(n)  # sentinel
+        k = 0
+        next_change = change_at[0]
+        last_word = -1
+        self.clocks = 0
+        for i in range(n):
+            if i == next_change:
+                for handle, value in zip(ctrl, change_vals[k]):
+                    handle.value = value
+                k += 1
+                next_change = change_at[k]
+            w = word_list[i]
+            if w != last_word:
+                data.value = w
+                last_word = w
+            await edge
+            self.clocks = i + 1
+        # Leave the bus idle (the schedule ends in vertical back porch, so only data-enable needs care).
+        h["in_de"].value = 0
+        if "in_valid" in h:
+            h["in_valid"].value = 0
+
+
+class VideoMonitor:
+    """Watches a video-family DUT's output every clock and rebuilds the frames it emits.
+
+    A line ends when an ``out_de`` run ends; a frame starts at each leading edge of ``out_vsync`` (when
+    ``out_vsync`` is not mapped, after ``expected_height`` lines). A pixel is a clock with ``out_de`` high
+    (and ``out_valid`` high when mapped). X/Z on ``out_data`` stores :data:`~vkit.capture.UNKNOWN` and is
+    counted; X/Z on a control output is listed in ``xz_control`` as ``[clock, role]`` and read as low.
+
+    Args:
+        dut: the cocotb top-level handle.
+        signals: role -> DUT port (``SignalMap`` or dict, family "video"); uses ``out_de``, ``out_data`` and
+            ``out_valid``, ``out_vsync``, ``out_hsync`` when mapped.
+        clock: the clock handle, or None for the map's ``clock`` role.
+        reset: the reset handle, or None for the map's ``reset`` role; :meth:`start` waits until it is
+            inactive.
+        expected_height: active lines per output frame, or None; needed when ``out_vsync`` is not mapped.
+        expected_width: pixels per output line (only recorded in the meta), or None.
+        vsync_active_high: polarity of ``out_vsync``.
+        hsync_active_high: polarity of ``out_hsync``.
+        reset_active_high: reset polarity.
+        meta: initial capture meta (copied); sources may write into :attr:`meta` through their ``stats``.
+
+    Clock numbering: clock 0 is the first rising edge after :meth:`start`; values are sampled on the edge.
+    """
+
+    def __init__(
+        self,
+        dut: Any,
+        signals: SignalMap | Mapping[str, str],
+        clock: Any = None,
+        reset: Any = None,
+        *,
+        expected_height: int | None = None,
+        expected_width: int | None = None,
+        vsync_active_high: bool = True,
+        hsync_active_high: bool = True,
+        reset_active_high: bool = True,
+        meta: dict[str, Any] | None = None,
+    ) -> None:
+        self.signals, self._h, self._clock, self._reset = resolve_component(dut, signals, "video", clock, reset)
+        if "out_vsync" not in self._h and not expected_height:
+            raise ConfigError(
+                "video monitor: role 'out_vsync' is not mapped and expected_height is not given; "
+                "map out_vsync or give expected_height so frames can be split"
+            )
+        self.expected_height = expected_height
+        self.expected_width = expected_width
+        self.vsync_active_high = vsync_active_high
+        self.hsync_active_high = hsync_active_high
+        self.reset_active_high = reset_active_high
+        self._builder = CaptureBuilder(meta)
+        self.meta: dict[str, Any] = self._builder.meta
+        self.meta.setdefault("family", "video")
+        self.meta.setdefault("notes", [])
+        self.meta.update(
+            xz_data_count=0,
+            xz_control=[],
+            de_in_blanking=[],
+            output_vsync_count=0,
+            output_hsync_per_frame=[],
+            first_output_clock=None,
+            clocks_run=0,
+            timed_out=False,
+        )
+        self.clocks = 0
+        """Rising edges watched so far."""
+        self.frames_complete = 0
+        """Output frames finished: ``expected_height`` lines seen, or closed by the next vsync."""
+        self._event_counts = {"xz_control": 0, "de_in_blanking": 0}
+        self._lines_in_frame = 0
+        self._line_pixels = 0
+        self._frame_counted = False
+        self._hs_count = 0
+        self._target: int | None = None
+        self._deadline: int | None = None
+        self._event = Event()
+        self._clock_deadline: int | None = None
+        self._clock_event = Event()
+        self._task: Any = None
+
+    # -- public ---------------------------------------------------------------------------------------
+
+    def start(self) -> None:
+        """Start watching (idempotent)."""
+        if self._task is None:
+            import cocotb
+
+            self._task = cocotb.start_soon(self._run())
+
+    def stop(self) -> None:
+        """Stop watching; the capture keeps what was seen."""
+        if self._task is not None and not self._task.done():
+            self._task.cancel()
+
+    def capture(self) -> Capture:
+        """A :class:`~vkit.capture.Capture` of everything seen so far (partial while running)."""
+        self._finish_meta()
+        return self._builder.build()
+
+    async def wait_clocks(self, n: int) -> None:
+        """Wait ``n`` (>= 1) clocks as counted by the running monitor (cheaper than a separate edge loop)."""
+        self.start()
+        self._clock_deadline = self.clocks + max(1, int(n))
+        self._clock_event.clear()
+        await self._clock_event.wait()
+        self._clock_deadline = None
+
+    async def wait_frames(self, n: int, timeout_clocks: int) -> bool:
+        """Wait until ``n`` output frames are complete or ``timeout_clocks`` clocks pass; never hangs.
+
+        Returns:
+            True when the frames arrived; False on timeout (then meta ``timed_out`` is True and
+            ``timeout_clocks`` is recorded).
+        """
+        self.start()
+        if self.frames_complete >= n:
+            return True
+        self._target = n
+        self._deadline = self.clocks + int(timeout_clocks)
+        self._event.clear()
+        await self._event.wait()
+        self._target = None
+        self._deadline = None
+        if self.frames_complete >= n:
+            return True
+        self.meta["timed_out"] = True
+        self.meta["timeout_clocks"] = int(timeout_clocks)
+        self.meta["notes"].append(
+            f"timed out after {timeout_clocks} clocks with {self.frames_complete} of {n} output frames complete"
+        )
+        return False
+
+    # -- internals ------------------------------------------------------------------------------------
+
+    def _finish_meta(self) -> None:
+        m = self.meta
+        m["clocks_run"] = self.clocks
+        for key, total in self._event_counts.items():
+            if total > MAX_EVENTS:
+                note = f"{key}: {total} events, only the first {MAX_EVENTS} are listed"
+                if note not in m["notes"]:
+                    m["notes"] = [s for s in m["notes"] if not s.startswith(f"{key}: ")] + [note]
+        if m.get("first_output_clock") is not None and m.get("first_input_clock") is not None:
+            m["latency_clocks"] = int(m["first_output_clock"]) - int(m["first_input_clock"])
+
+    def _event_at(self, key: str, clock: int, role: str | None = None) -> None:
+        self._event_counts[key] += 1
+        if self._event_counts[key] <= MAX_EVENTS:
+            self.meta[key].append([clock, role] if role is not None else clock)
+
+    def _check_done(self) -> None:
+        if self._target is not None and self.frames_complete >= self._target:
+            self._event.set()
+
+    def _end_line(self) -> None:
+        self._builder.new_line()
+        if self._line_pixels:
+            self._lines_in_frame += 1
+            self._line_pixels = 0
+            if self.expected_height and self._lines_in_frame == self.expected_height and not self._frame_counted:
+                self.frames_complete += 1
+                self._frame_counted = True
+                if "out_vsync" not in self._h:
+                    self._builder.new_frame()
+                    self._lines_in_frame = 0
+                    self._frame_counted = False
+                self._check_done()
+
+    def _on_vsync(self) -> None:
+        self.meta["output_vsync_count"] += 1
+        self.meta["output_hsync_per_frame"].append(self._hs_count)
+        self._hs_count = 0
+        if self._lines_in_frame or self._line_pixels:
+            if not self._frame_counted:
+                self.frames_complete += 1
+            self._builder.new_frame()
+            self._lines_in_frame = 0
+            self._line_pixels = 0
+            self._frame_counted = False
+            self._check_done()
+
+    async def _run(self) -> None:
+        await wait_reset_released(self._clock, self._reset, self.reset_active_high)
+        h = self._h
+        edge = RisingEdge(self._clock)
+        read_de = bit_reader(h["out_de"])
+        read_valid = bit_reader(h["out_valid"]) if "out_valid" in h else None
+        read_vs = bit_reader(h["out_vsync"]) if "out_vsync" in h else None
+        read_hs = bit_reader(h["out_hsync"]) if "out_hsync" in h else None
+        read_data = word_reader(h["out_data"])
+        add = self._builder.add
+        meta = self.meta
+        vs_on_level = 1 if self.vsync_active_high else 0
+        hs_on_level = 1 if self.hsync_active_high else 0
+        prev_de = 0
+        prev_vs_on = False
+        prev_hs_on = False
+        c = self.clocks
+        while True:
+            await edge
+            de = read_de()
+            if de < 0:
+                self._event_at("xz_control", c, "out_de")
+                de = 0
+            pix = de
+            if read_valid is not None and de:
+                v = read_valid()
+                if v < 0:
+                    self._event_at("xz_control", c, "out_valid")
+                    v = 0
+                pix = v
+            if prev_de and not de:
+                self._end_line()
+            if read_vs is not None:
+                vs = read_vs()
+                if vs < 0:
+                    self._event_at("xz_control", c, "out_vsync")
+                vs_on = vs == vs_on_level
+                if vs_on and not prev_vs_on:
+                    self._on_vsync()
+                if vs_on and de:
+                    self._event_at("de_in_blanking", c)
+                prev_vs_on = vs_on
+            if read_hs is not None:
+                hs = read_hs()
+                if hs < 0:
+                    self._event_at("xz_control", c, "out_hsync")
+                hs_on = hs == hs_on_level
+                if hs_on and not prev_hs_on:
+                    self._hs_count += 1
+                prev_hs_on = hs_on
+            if pix:
+                value = read_data()
+                if value == UNKNOWN:
+                    meta["xz_data_count"] += 1
+                if meta["first_output_clock"] is None:
+                    meta["first_output_clock"] = c
+                add(value, c)
+                self._line_pixels += 1
+            prev_de = de
+            c += 1
+            self.clocks = c
+            if c == self._deadline:
+                self._event.set()
+            if c == self._clock_deadline:
+                self._clock_event.set()
+

@@ -396,7 +396,18 @@ def infer_border(
         from vkit.pipeline import run_model as _run
 
         run_model = _run
-    results = {p: [run_model(spec.with_border(p), np.asarray(img)) for img in images] for p in policies}
+    results: dict[str, list[Any]] = {}
+    for p in policies:
+        runs = [run_model(spec.with_border(p), np.asarray(img)) for img in images]
+        # A policy that gives the same output as one already kept (constant 0 and zero) adds nothing.
+        if not any(
+            all(np.array_equal(a.output, b.output) for a, b in zip(runs, kept)) for kept in results.values()
+        ):
+            results[p] = runs
+    policies = list(results)
+    if len(policies) < 2:
+        off = Offset(width=int(np.asarray(results[policies[0]][0].output).shape[1]))
+        return BorderInference("unknown", 0.0, 0.0, off, {policies[0]: 0}, 0)
     first = results[policies[0]][0].output
     h, w = np.asarray(first).shape
     views = _as_views(actual, h, w)

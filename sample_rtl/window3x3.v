@@ -169,6 +169,15 @@ module window3x3 #(
     reg  [PB-1:0] lb1 [0:MAX_WIDTH-1];
     reg  [PB-1:0] lb2 [0:MAX_WIDTH-1];
     reg  [PB-1:0] lb1_q, lb2_q;
+    // Power-up contents zero (block-RAM init on FPGAs). The good design never lets a location it
+    // has not written reach the outputs; the zero fill keeps seeded-bug variants free of X.
+    integer init_i;
+    initial begin
+        for (init_i = 0; init_i < MAX_WIDTH; init_i = init_i + 1) begin
+            lb1[init_i] = {PB{1'b0}};
+            lb2[init_i] = {PB{1'b0}};
+        end
+    end
 
     reg           s1_px, s1_end, s1_take, s1_emit, s1_first_row, s1_last_row, s1_first_col;
     reg           s1_vs, s1_hs;
@@ -176,7 +185,10 @@ module window3x3 #(
     reg  [PB-1:0] s1_pix;
 `ifdef BUG_LINEBUF_OFF_BY_ONE
     reg  [PB-1:0] lb1_q_prev;
-    always @(posedge clk) if (ce && s1_take) lb1_q_prev <= lb1_q;
+    always @(posedge clk) begin
+        if (rst) lb1_q_prev <= {PB{1'b0}};
+        else if (ce && s1_take) lb1_q_prev <= lb1_q;
+    end
     wire [PB-1:0] lb2_wdata = lb1_q_prev;
 `else
     wire [PB-1:0] lb2_wdata = lb1_q;

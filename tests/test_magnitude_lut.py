@@ -75,6 +75,15 @@ def test_isqrt_vs_math_isqrt_near_squares() -> None:
     assert isqrt(n).tolist() == [math.isqrt(int(v)) for v in n]
 
 
+def test_isqrt_fast_path_just_below_squares() -> None:
+    # n = k*k - 1 is the hardest case for a float root; cover k up to 2**26 (n up to 2**52 - 1).
+    k = np.random.default_rng(0).integers(2**20, 2**26 + 1, 20_000, dtype=np.int64)
+    k[:2] = 2**26, 2**26 - 1
+    n = np.concatenate([k * k - 1, k * k])
+    # Reference: math.isqrt.
+    assert isqrt(n).tolist() == [math.isqrt(int(v)) for v in n]
+
+
 @settings(max_examples=60, deadline=None)
 @given(st.lists(st.tuples(st.integers(-(2**20), 2**20), st.integers(-(2**20), 2**20)), min_size=1, max_size=30))
 def test_property_magnitudes_vs_python(pairs: list[tuple[int, int]]) -> None:

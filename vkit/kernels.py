@@ -125,6 +125,14 @@ def _weighted_sum(terms: Sequence[tuple[int, np.ndarray]], dtype: np.dtype) -> n
                 else:
                     out -= view
                 continue
+            if magnitude == 2 and out is not None:
+                # Two in-place adds are cheaper than a full-size product temporary.
+                for _ in range(2):
+                    if sign > 0:
+                        out += view
+                    else:
+                        out -= view
+                continue
             acc = np.multiply(view, dtype.type(magnitude))
         else:
             if minus:

@@ -69,6 +69,10 @@ def isqrt(n: Any) -> np.ndarray:
         raise ConfigError(f"isqrt got a negative value {int(arr.min())}; the input must be >= 0")
     if arr.size and int(arr.max()) >= (1 << 62):
         raise ConfigError(f"isqrt input {int(arr.max())} is 2**62 or more; it must be below 2**62")
+    if not arr.size or int(arr.max()) < (1 << 52):
+        # sqrt is correctly rounded, and below 2**52 a non-square n sits at least 1/(2*sqrt(n)) under
+        # the next integer root, more than half a float64 ulp there: the floor is already exact.
+        return np.sqrt(arr, dtype=np.float64).astype(np.int64)
     wide = arr.astype(np.int64)
     root = np.sqrt(wide.astype(np.float64)).astype(np.int64)
     # The float root can be one off either way (rounding, and float64 cannot hold every n > 2**53).
@@ -79,7 +83,11 @@ def isqrt(n: Any) -> np.ndarray:
 
 def magnitude_exact(gx: Any, gy: Any) -> np.ndarray:
     """``floor(sqrt(gx^2 + gy^2))``, integer-exact (same as ``math.isqrt``), int32."""
-    root = isqrt(sum_of_squares(gx, gy))
+    total = sum_of_squares(gx, gy)
+    if total.dtype == np.int32:
+        # Below 2**31 the float64 root's floor is exact (see isqrt) and fits int32 directly.
+        return np.sqrt(total, dtype=np.float64).astype(np.int32)
+    root = isqrt(total)
     return root.astype(np.int32) if root.size == 0 or int(root.max()) < (1 << 31) else root
 
 

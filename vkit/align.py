@@ -294,8 +294,11 @@ def measure_offset(
     scored.sort(reverse=True)
     best = scored[0]
     llrs = np.array([s[0] for s in scored])
-    conf = float(1.0 / np.sum(np.exp(np.clip(llrs - best[0], -700, 0))))
+    weights = np.exp(np.clip(llrs - best[0], -700, 0))
     _, _, _, kind, dy, dx, mm, nn = best
+    # Grid and raster readings of the same (dy, dx) are one answer as far as the offset goes.
+    same = np.array([s[4] == dy and s[5] == dx for s in scored])
+    conf = float(weights[same].sum() / weights.sum())
     name = "none" if dy == 0 and dx == 0 else ("raster" if kind == 1 else "grid")
     return Offset(
         dx=dx,

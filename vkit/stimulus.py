@@ -1,0 +1,354 @@
+"""Per-clock stimulus words and expected-output words for the fast-path harness, written as $readmemh files.
+
+Everything here is numpy: a 640x480 frame at 800x525 timing (420,000 clocks) becomes a hex file in a
+fraction of a second. Word layouts are the ones :mod:`vkit.harness` documents. The data words match
+the per-clock video source (:mod:`vkit.tb.video`): the same seed gives the same garbage on the bus
+outside active video and on stall clocks.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from vkit.errors import ConfigError
+from vkit.harness import GAP_BITS, stream_gap_bits, stream_pixel_bits, video_word_bits
+from vkit.timing import ClockSchedule, StallPattern, VideoTiming, schedule, tiny
+
+__all__ = [
+    "READY_PATTERN_WORDS",
+    "STREAM_TAIL_CLOCKS",
+    "StimulusFiles",
+    "case_timing",
+    "drain_clocks",
+    "stimulus_words_needed",
+    "video_schedule_and_words",
+    "video_stimulus_words",
+    "stream_stimulus",
+    "ready_pattern",
+    "write_hex",
+    "write_stimulus",
+    "expected_words",
+    "write_expected",
+]
+
+READY_PATTERN_WORDS = 4096
+"""Clocks in the stream sink's ready pattern; the harness repeats it for longer runs."""
+
+STREAM_TAIL_CLOCKS = 16  # same as vkit.harness.STREAM_TAIL
+"""Clocks the stream harness keeps capturing after every expected output pixel arrived."""
+
+
+def _get(case: Any, key: str, default: Any = None) -> Any:
+    if isinstance(case, dict):
+        return case.get(key, default)
+    return getattr(case, key, default)
+
+
+def case_timing(case: Any) -> VideoTiming:
+    """The case's video timing (``tiny(width, height)`` when it gives none)."""
+    if hasattr(case, "video_timing"):
+        return case.video_timing()
+    t = _get(case, "timing")
+    if t is None:
+        return tiny(int(_get(case, "width")), int(_get(case, "height")))
+    return VideoTiming.from_dict(t)
+
+
+def _frames(case: Any) -> np.ndarray:
+    if hasattr(case, "load_frames"):
+        return case.load_frames()
+    return np.load(Path(_get(case, "frames_file")), allow_pickle=False)
+
+
+def _pixel_words(frames: np.ndarray, pixel_format: str) -> np.ndarray:
+    """Bus words per pixel, int64 ``(N, H, W)``; rgb888 packed R<<16 | G<<8 | B (vkit.images.pack_rgb)."""
+    if pixel_format == "rgb888":
+        from vkit.images import pack_rgb
+
+        return np.asarray(pack_rgb(frames), dtype=np.int64)
+    return frames.astype(np.int64)
+
+
+def _bits(case: Any) -> int:
+    from vkit.tb.signals import pixel_bits
+
+    return pixel_bits(str(_get(case, "pixel_format", "gray8")))
+
+
+def _pattern(case: Any, key: str, method: str) -> StallPattern | None:
+    if hasattr(case, method):
+        return getattr(case, method)()
+    value = _get(case, key)
+    return StallPattern(**value) if value else None
+
+
+def drain_clocks(case: Any) -> int:
+    """Clocks the harness keeps capturing after the last stimulus word (pipeline and line-buffer flush).
+
+    Video: two lines plus 64 clocks (the last output line is flushed at the leading edge of vsync,
+    which the schedule already contains). Stream: four lines plus 256 clocks, stretched by the
+    average back-pressure; the harness stops earlier once every expected pixel arrived.
+    """
+    if _get(case, "family", "video") == "video":
+        return 2 * case_timing(case).h_total + 64
+    width = int(_get(case, "width"))
+    factor = 1.0
+    bp = _pattern(case, "backpressure", "backpressure_pattern")
+    if bp is not None:
+        factor = 1.0 + bp.probability * (bp.max_length + 1) / 2
+    return int((4 * width + 256) * factor) + 256
+
+
+def stimulus_words_needed(case: Any) -> int:
+    """Player memory words the case needs (video: clocks of all frames; stream: transfers)."""
+    n = int(case.frame_count()) if hasattr(case, "frame_count") else int(_frames(case).shape[0])
+    if _get(case, "family", "video") == "video":
+        t = case_timing(case)
+        stalls = _pattern(case, "stalls", "stall_pattern")
+        if stalls is None or stalls.probability == 0:
+            return n * t.clocks_per_frame
+        return schedule(t, n, stalls).n_clocks
+    return n * int(_get(case, "width")) * int(_get(case, "height"))
+
+
+def video_schedule_and_words(case: Any) -> tuple[ClockSchedule, np.ndarray]:
+    """The per-clock schedule and data-bus word of every clock, as the per-clock source drives them.
+
+    Returns:
+        (schedule, data): ``data`` is int64 of length ``schedule.n_clocks``: the pixel on pixel
+        clocks; seeded random words (numpy PCG64, ``case.seed``) elsewhere when ``blanking`` is
+        "random", else ``blanking_value`` with random words on stall clocks.
+    """
+    frames = _frames(case)
+    fmt = str(_get(case, "pixel_format", "gray8"))
+    t = case_timing(case)
+    sched = schedule(t, int(frames.shape[0]), _pattern(case, "stalls", "stall_pattern"))
+    bits = _bits(case)
+    rng = np.random.default_rng(int(_get(case, "seed", 0)))
+    garbage = rng.integers(0, 1 << bits, size=sched.n_clocks, dtype=np.int64)
+    if _get(case, "blanking", "random") == "random":
+        words = garbage
+    else:
+        words = np.full(sched.n_clocks, int(_get(case, "blanking_value", 0)), np.int64)
+        stall = sched.de & ~sched.valid
+        words[stall] = garbage[stall]
+    pix = sched.x >= 0
+    packed = _pixel_words(frames, fmt)
+    words[pix] = packed[sched.frame[pix], sched.y[pix], sched.x[pix]]
+    return sched, words
+
+
+def video_stimulus_words(sched: ClockSchedule, data: np.ndarray, in_width: int) -> np.ndarray:
+    """Pack per-clock ``{frame_mark, hsync, vsync, de, valid, data}`` words (uint64, see :mod:`vkit.harness`)."""
+    if in_width > 58:
+        raise ConfigError(f"stimulus: input data width {in_width} bits is too wide for the player (max 58)")
+    mark = np.zeros(sched.n_clocks, bool)
+    mark[sched.frame_starts()] = True
+    w = data.astype(np.uint64) & np.uint64((1 << in_width) - 1)
+    for bit, arr in ((0, sched.valid), (1, sched.de), (2, sched.vsync), (3, sched.hsync), (4, mark)):
+        w |= arr.astype(np.uint64) << np.uint64(in_width + bit)
+    return w
+
+
+def ready_pattern(pattern: StallPattern | None, words: int = READY_PATTERN_WORDS) -> np.ndarray:
+    """The sink's per-clock ready levels (bool, ``words`` long): before each ready-high clock, with
+    ``pattern.probability``, 1..``max_length`` ready-low clocks (the same draw as :class:`StallPattern`)."""
+    if pattern is None or pattern.probability == 0:
+        return np.ones(words, bool)
+    lengths = pattern.draw(1, 1, words).ravel()
+    counts = lengths + 1
+    out = np.zeros(int(counts.sum()), bool)
+    out[np.cumsum(counts) - 1] = True
+    return out[:words]
+
+
+@dataclass
+class _Stream:
+    pixels: np.ndarray
+    gaps: np.ndarray
+    idle: np.ndarray
+    ready: np.ndarray
+    stall_pixels: list[list[int]]
+
+
+def stream_stimulus(case: Any) -> _Stream:
+    """Stream family: per-transfer pixel words, idle gaps and idle data, and the sink's ready pattern."""
+    frames = _frames(case)
+    fmt = str(_get(case, "pixel_format", "gray8"))
+    n, h, w = int(frames.shape[0]), int(frames.shape[1]), int(frames.shape[2])
+    data = _pixel_words(frames, fmt).reshape(-1)
+    gaps_p = _pattern(case, "stream_gaps", "gap_pattern")
+    gaps = gaps_p.draw(n, h, w).reshape(-1).astype(np.int64) if gaps_p else np.zeros(data.size, np.int64)
+    if gaps.max(initial=0) >= (1 << GAP_BITS):
+        raise ConfigError(f"stream_gaps: a gap of {int(gaps.max())} clocks exceeds {(1 << GAP_BITS) - 1}; lower max_length")
+    rng = np.random.default_rng(int(_get(case, "seed", 0)))
+    idle = rng.integers(0, 1 << _bits(case), size=data.size, dtype=np.int64)
+    if _get(case, "blanking", "random") != "random":
+        idle[:] = int(_get(case, "blanking_value", 0))
+    col = np.tile(np.arange(w), n * h)
+    row = np.tile(np.repeat(np.arange(h), w), n)
+    sof = (col == 0) & (row == 0)
+    eol = col == w - 1
+    bits = _bits(case)
+    pixels = (data.astype(np.uint64) | (eol.astype(np.uint64) << np.uint64(bits)) | (sof.astype(np.uint64) << np.uint64(bits + 1)))
+    gap_words = gaps.astype(np.uint64) | (idle.astype(np.uint64) << np.uint64(GAP_BITS))
+    ready = ready_pattern(_pattern(case, "backpressure", "backpressure_pattern"))
+    f_idx, y_idx, x_idx = np.unravel_index(np.flatnonzero(gaps), (n, h, w))
+    stalls = np.stack([f_idx, y_idx, x_idx], axis=1).astype(int).tolist()
+    return _Stream(pixels, gap_words, idle, ready, stalls)
+
+
+_HEX = np.frombuffer(b"0123456789abcdef", np.uint8)
+
+
+def write_hex(path: str | Path, words: np.ndarray, bits: int) -> Path:
+    """Write ``words`` (non-negative integers) one per line as zero-padded hex for ``$readmemh``.
+
+    Args:
+        path: output file.
+        words: 1-D integer array, each < 2**bits.
+        bits: word width in bits, 1..64; lines carry ceil(bits/4) digits.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    digits = max(1, (bits + 3) // 4)
+    w = np.asarray(words).astype(np.uint64).reshape(-1)
+    shifts = (np.arange(digits - 1, -1, -1, dtype=np.uint64) * np.uint64(4))[None, :]
+    nib = ((w[:, None] >> shifts) & np.uint64(15)).astype(np.intp)
+    chars = np.empty((w.size, digits + 1), np.uint8)
+    chars[:, :digits] = _HEX[nib]
+    chars[:, digits] = ord("\n")
+    path.write_bytes(chars.tobytes())
+    return path
+
+
+@dataclass
+class StimulusFiles:
+    """The files and numbers one harness run needs.
+
+    Attributes:
+        stim: video: per-clock words; stream: per-transfer pixel words.
+        gaps: stream gap words, or None.
+        ready: stream ready pattern, or None.
+        words: words in ``stim`` (memory entries played).
+        ready_words: entries in ``ready`` (1 for video).
+        drain: clocks captured after the stimulus.
+        timeout: harness timeout in clocks from clock 0 (0 = none).
+        expect_pixels: output pixels expected (frames x width x height).
+        input_meta: Capture meta the input side knows (frames_sent, first_input_clock,
+            stall_pixels, input_vsync_count, input_hsync_per_frame).
+        ready_levels: stream ready pattern (bool array), for the back-pressure pixels; None for video.
+    """
+
+    stim: Path
+    gaps: Path | None
+    ready: Path | None
+    words: int
+    ready_words: int
+    drain: int
+    timeout: int
+    expect_pixels: int
+    input_meta: dict[str, Any] = field(default_factory=dict)
+    ready_levels: np.ndarray | None = None
+
+    def plusargs(self, capture: str | Path) -> list[str]:
+        """Verilog plusargs for ``vkit_harness`` (capture file path included)."""
+        args = [f"+vkit_stim={self.stim}", f"+vkit_capture={capture}", f"+vkit_words={self.words}",
+                f"+vkit_drain={self.drain}", f"+vkit_timeout={self.timeout}", f"+vkit_expect={self.expect_pixels}"]
+        if self.gaps is not None:
+            args.append(f"+vkit_gaps={self.gaps}")
+        if self.ready is not None:
+            args += [f"+vkit_ready={self.ready}", f"+vkit_ready_words={self.ready_words}"]
+        return args
+
+    def generics(self, capture: str | Path) -> dict[str, Any]:
+        """VHDL generics for ``vkit_harness`` (GHDL ``-gNAME=VALUE``)."""
+        return {"STIM_FILE": str(self.stim), "CAPTURE_FILE": str(capture), "WORDS": self.words,
+                "DRAIN": self.drain, "TIMEOUT": self.timeout}
+
+
+def _leading_edges(level: np.ndarray, active: bool) -> np.ndarray:
+    on = level if active else ~level
+    prev = np.concatenate(([False], on[:-1]))
+    return np.flatnonzero(on & ~prev)
+
+
+def _sync_counts(hs_edges: np.ndarray, vs_edges: np.ndarray) -> list[int]:
+    bounds = np.searchsorted(hs_edges, vs_edges, side="left")
+    return [int(b) for b in np.diff(np.concatenate(([0], bounds)))]
+
+
+def write_stimulus(case: Any, out_dir: str | Path, in_width: int | None = None) -> StimulusFiles:
+    """Write the case's stimulus files into ``out_dir`` and return what the harness run needs.
+
+    Args:
+        case: a :class:`vkit.tb.case.SimCase`.
+        out_dir: folder for ``stim.hex`` (and ``gaps.hex``, ``ready.hex`` for the stream family).
+        in_width: input data bus bits (default: the pixel format's bits).
+    """
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    in_width = int(in_width or _bits(case))
+    width, height = int(_get(case, "width")), int(_get(case, "height"))
+    timeout_rel = case.effective_timeout_clocks() if hasattr(case, "effective_timeout_clocks") else _get(case, "timeout_clocks")
+    drain = drain_clocks(case)
+    if _get(case, "family", "video") == "video":
+        sched, data = video_schedule_and_words(case)
+        t = sched.timing
+        words = video_stimulus_words(sched, data, in_width)
+        stim = write_hex(out / "stim.hex", words, video_word_bits(in_width))
+        first = int(np.argmax(sched.valid)) if sched.valid.any() else None
+        vs_edges = _leading_edges(sched.vsync, t.vsync_active_high)
+        hs_edges = _leading_edges(sched.hsync, t.hsync_active_high)
+        meta = {
+            "frames_sent": int(sched.frames),
+            "first_input_clock": first,
+            "stall_pixels": sched.stall_pixels.tolist(),
+            "input_vsync_count": int(vs_edges.size),
+            "input_hsync_per_frame": _sync_counts(hs_edges, vs_edges),
+        }
+        timeout = int(timeout_rel) + (first or 0) if timeout_rel else 0
+        return StimulusFiles(stim, None, None, int(sched.n_clocks), 1, drain, timeout,
+                             int(sched.frames) * width * height, meta)
+    s = stream_stimulus(case)
+    stim = write_hex(out / "stim.hex", s.pixels, stream_pixel_bits(in_width))
+    gaps = write_hex(out / "gaps.hex", s.gaps, stream_gap_bits(in_width))
+    ready = write_hex(out / "ready.hex", s.ready.astype(np.uint64), 1)
+    first_gap = int(s.gaps[0] & np.uint64((1 << GAP_BITS) - 1)) if s.gaps.size else 0
+    frames_sent = s.pixels.size // (width * height)
+    meta = {"frames_sent": int(frames_sent), "first_input_clock": None, "stall_pixels": s.stall_pixels,
+            "first_gap_clocks": first_gap}
+    timeout = int(timeout_rel) if timeout_rel else 0
+    return StimulusFiles(stim, gaps, ready, int(s.pixels.size), int(s.ready.size), drain, timeout,
+                         int(s.pixels.size), meta, s.ready)
+
+
+def expected_words(expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> np.ndarray:
+    """Expected-output words ``{check, value[out_width-1:0]}`` per output pixel in output (raster) order.
+
+    Args:
+        expected: ``(F, H, W)`` or ``(H, W)`` non-negative integer model output.
+        mask: bool, ``(H, W)`` or ``(F, H, W)``; False where the pixel is not checked (border). None = all.
+        out_width: output data bus bits.
+    """
+    e = np.asarray(expected)
+    if e.ndim == 2:
+        e = e[None]
+    if e.ndim != 3:
+        raise ConfigError(f"expected output: shape {e.shape} is not (F, H, W) or (H, W); give model output frames")
+    if e.size and (e.min() < 0 or e.max() >= (1 << out_width)):
+        raise ConfigError(
+            f"expected output: values {int(e.min())}..{int(e.max())} do not fit the {out_width}-bit output bus; "
+            "give the right out_width"
+        )
+    m = np.ones(e.shape, bool) if mask is None else np.broadcast_to(np.asarray(mask, bool), e.shape)
+    return e.astype(np.uint64).reshape(-1) | (m.reshape(-1).astype(np.uint64) << np.uint64(out_width))
+
+
+def write_expected(path: str | Path, expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> Path:
+    """Write :func:`expected_words` as a ``$readmemh`` file (``out_width + 1`` bits per line)."""
+    return write_hex(path, expected_words(expected, mask, out_width), out_width + 1)

@@ -344,9 +344,13 @@ def _border_finding(frames: Sequence[FrameResult], border: BorderInference | Non
         sides["right"] += int(b[:, -1].sum())
     named = [s for s, n in sides.items() if n >= max(1, 0.05 * bin_)]
     side_txt = ", ".join(named[:-1]) + (" and " if len(named) > 1 else "") + named[-1]
+    unit = (
+        "row" if set(named) <= {"top", "bottom"} else "column" if set(named) <= {"left", "right"} else "rows/columns"
+    )
+    if len(named) > 1 and unit != "rows/columns":
+        unit += "s"
     msg = (
-        f"{_pct(recall)} of mismatches sit on the {side_txt} border "
-        f"({'row' if set(named) <= {'top', 'bottom'} else 'column' if set(named) <= {'left', 'right'} else 'rows/columns'}; "
+        f"{_pct(recall)} of mismatches sit on the {side_txt} border {unit} (the border ring is "
         f"{_pct(base)} of checked pixels): the design handles the frame edge differently from the model"
     )
     ev: dict[str, Any] = {"sides": sides, "in_border": bin_, "mismatches": btot, "border_share": base}
@@ -446,6 +450,7 @@ def _overflow_finding(frames: Sequence[FrameResult]) -> Finding | None:
             continue
         t_in = int(vs[i])
         t_out = int(vs[i + 1]) if i + 1 < n else None
+        cond = f"{name} >= {t_in}"
         bits_txt = ""
         ev: dict[str, Any] = {"stage": name, "region": "top", "threshold": t_in, "below": t_out,
                               "in_region": int(cum[i]), "mismatches": total_bad, "region_share": base,
@@ -453,16 +458,21 @@ def _overflow_finding(frames: Sequence[FrameResult]) -> Finding | None:
         if t_out is not None:
             b2 = max(0, int(t_out).bit_length())
             if t_out < (1 << b2) <= t_in:
-                bits_txt = f" (2^{b2}): {name} wraps at {b2} bits; widen it or saturate"
+                need = getattr(st0, "bits", None)
+                widen = f"widen it to {need} bits" if need else "widen it"
+                cond = f"{name} >= 2^{b2} ({1 << b2})"
+                bits_txt = f": {name} wraps at {b2} bits; {widen} or saturate it"
                 ev["wrap_bits"] = b2
         hi = getattr(st0, "hi", None)
         if not bits_txt:
             bits_txt = f": {name} overflows near the top of its range" + (f" (model range up to {hi})" if hi is not None else "")
         conf = recall * (1 - base) * min(1.0, precision + 0.2)
-        abs_word = "|" + name + "|" if (getattr(st0, "signed", False)) else name
+        if getattr(st0, "signed", False):
+            cond = "|" + name + "|" + cond[len(name):]
         f = Finding(
             "overflow",
-            f"{_pct(recall)} of mismatches sit where {abs_word} >= {t_in} ({_pct(base)} of pixels){bits_txt}",
+            f"{_pct(recall)} of mismatches sit where {cond} ({_pct(base)} of pixels, {_pct(precision)} of "
+            f"those wrong){bits_txt}",
             ev,
             conf,
         )
@@ -527,7 +537,7 @@ def _stall_finding(
             conf = 0.75 * explained
         shift_dir = "right" if how == "repeated" else "left"
         msg = (
-            f"frame {f} line {y}: pixel {how} at x={x0}, the rest of the line shifted {shift_dir} by 1 "
+            f"frame {f} line {y}: pixel {how} at x={x0}, the rest of the line shifted {shift_dir} by 1, "
             f"{where} ({_plural(len(slips), 'line')} like this, {near} near a stall): {fix}"
         )
         ev = {"slips": [[s[0], s[1], s[2], s[3], s[4]] for s in slips[:50]], "near_stall": near,
@@ -638,7 +648,11 @@ def diagnose(
     shift = _shift_findings(frames, offset, applied_offset)
     if shift is not None:
         findings.append(shift)
-    if value_failures and (shift is None or applied_offset is not None):
+    line_explained = any("dropped_line" in f.evidence or "repeated_line" in f.evidence for f in findings)
+    if line_explained:
+        # The lines after a dropped one move up, so the last line is 'missing' only as a consequence.
+        findings = [f for f in findings if f.kind != "missing"]
+    if value_failures and not line_explained and (shift is None or applied_offset is not None):
         pixel = [
             _border_finding(frames, border),
             _overflow_finding(frames),

@@ -219,11 +219,6 @@ def correlate3x3(img: np.ndarray, kernel: Any, border: str = "replicate", consta
     return correlate_padded(pad(arr, border, constant, dtype=work), k)
 
 
-def _order_padded(img: np.ndarray, border: str, constant: float) -> np.ndarray:
-    arr = np.asarray(img)
-    return pad(arr, border, constant)
-
-
 def _sort3(a: np.ndarray, b: np.ndarray, c: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     lo_ab = np.minimum(a, b)
     hi_ab = np.maximum(a, b)
@@ -249,7 +244,7 @@ def median3x3(img: np.ndarray, border: str = "replicate", constant: float = 0) -
         (which uses replicate borders). The column-sort method is the classic hardware median of nine
         (A. W. Paeth, "Median finding on a 3x3 grid", Graphics Gems, 1990 -- from memory).
     """
-    p = _order_padded(img, border, constant)
+    p = pad(img, border, constant)
     height, width = p.shape[0] - 2, p.shape[1] - 2
     lo, mid, hi = _sort3(p[0:height], p[1 : height + 1], p[2 : height + 2])
     lows = np.maximum(np.maximum(lo[:, 0:width], lo[:, 1 : width + 1]), lo[:, 2 : width + 2])
@@ -264,7 +259,7 @@ def minimum3x3(img: np.ndarray, border: str = "replicate", constant: float = 0) 
     References:
         Equivalent to ``scipy.ndimage.minimum_filter(size=3)`` with the matching mode.
     """
-    p = _order_padded(img, border, constant)
+    p = pad(img, border, constant)
     height, width = p.shape[0] - 2, p.shape[1] - 2
     col = np.minimum(np.minimum(p[0:height], p[1 : height + 1]), p[2 : height + 2])
     return np.minimum(np.minimum(col[:, 0:width], col[:, 1 : width + 1]), col[:, 2 : width + 2])
@@ -276,7 +271,7 @@ def maximum3x3(img: np.ndarray, border: str = "replicate", constant: float = 0) 
     References:
         Equivalent to ``scipy.ndimage.maximum_filter(size=3)`` with the matching mode.
     """
-    p = _order_padded(img, border, constant)
+    p = pad(img, border, constant)
     height, width = p.shape[0] - 2, p.shape[1] - 2
     col = np.maximum(np.maximum(p[0:height], p[1 : height + 1]), p[2 : height + 2])
     return np.maximum(np.maximum(col[:, 0:width], col[:, 1 : width + 1]), col[:, 2 : width + 2])

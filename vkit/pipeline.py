@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import difflib
-import math
 import sys
 from collections import OrderedDict
 from dataclasses import dataclass, field, fields, replace
@@ -643,6 +642,8 @@ def _plan(spec: PipelineSpec) -> _Plan:
         m = spec.magnitude
         table = np.asarray(root_table(m.address_bits, m.data_bits, m.table_scale, m.rounding)).astype(dtypes["magnitude"])
     plan = _Plan(spec, widths, dtypes, weights, kernels, pad_dtype, table)
+    if len(_PLANS) >= 64:  # specs are few in practice; keep the cache bounded anyway
+        _PLANS.clear()
     _PLANS[spec] = plan
     return plan
 
@@ -808,7 +809,7 @@ def _magnitude_band(plan: _Plan, band: dict[str, np.ndarray]) -> np.ndarray:
         ss += np.multiply(gy, gy, dtype=sq_type)
         band["sum_sq"] = ss
         if m.method == "exact":
-            return magmod.magnitude_exact(gx, gy).astype(plan.dtypes["magnitude"], copy=False)
+            return magmod.isqrt(ss).astype(plan.dtypes["magnitude"], copy=False)
         addr, clamped = magmod.table_address(ss, m.shift, m.address_bits)
         band["address_clamped"] = clamped
         band["address"] = addr

@@ -14,6 +14,7 @@ from scipy import ndimage
 from vkit.errors import ConfigError
 from vkit.pipeline import (
     PRESETS,
+    SPECS_DIR,
     FilterSpec,
     ModelResult,
     PipelineSpec,
@@ -264,6 +265,13 @@ def test_toml_round_trip(name: str, tmp_path) -> None:
     path.write_text(spec.to_toml(), encoding="utf-8")
     assert PipelineSpec.from_toml(path) == spec
     assert PipelineSpec.from_dict(spec.to_dict()) == spec
+
+
+def test_shipped_toml_files_are_the_presets() -> None:
+    files = sorted(SPECS_DIR.glob("*.toml"))
+    assert sorted(p.stem for p in files) == sorted(PRESETS)
+    for path in files:
+        assert PipelineSpec.from_toml(path) == preset(path.stem), path.name
 
 
 def test_hand_written_toml(tmp_path) -> None:

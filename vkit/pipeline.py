@@ -33,6 +33,7 @@ __all__ = [
     "Stage",
     "ModelResult",
     "PRESETS",
+    "SPECS_DIR",
     "preset",
     "run_model",
     "run_float",
@@ -544,6 +545,10 @@ PRESETS: dict[str, PipelineSpec] = {
     ),
 }
 """The built-in pipelines by name. Their formulas are the ones the sample RTL implements."""
+
+
+SPECS_DIR = Path(__file__).parent / "specs"
+"""Folder of the presets as TOML files (``<name>.toml``), starting points for your own specs."""
 
 
 def preset(name: str) -> PipelineSpec:

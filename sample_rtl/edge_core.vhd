@@ -366,7 +366,7 @@ begin
                 else
                     addr <= sum_sq(24 downto 12);
                 end if;
-                dout <= to_unsigned(ROOT_TABLE(to_integer(addr)), 8);
+                dout <= unsigned(ROOT_TABLE(to_integer(addr)));
                 d_vs <= d_vs(2 downto 0) & w_vs;
                 d_hs <= d_hs(2 downto 0) & w_hs;
                 d_de <= d_de(2 downto 0) & w_de;

@@ -73,6 +73,16 @@ def test_edge_luma_on_white_and_grey() -> None:
     assert np.all(luma[0] == 4080) and np.all(luma[1] == 16 * 128) and np.all(luma[2] == 0)
 
 
+def test_opencv_luma_weights_match_cvtcolor() -> None:
+    cv2 = pytest.importorskip("cv2")
+    spec = PipelineSpec.from_dict(
+        {"name": "cvgray", "luma": {"weights": "opencv", "output_bits": 8}, "filter": {"kind": "median"}}
+    )
+    img = _rgb(20)
+    # OpenCV cvtColor(COLOR_RGB2GRAY) on 8-bit input is the reference.
+    assert np.array_equal(run_model(spec, img).stages["luma"].array, cv2.cvtColor(img, cv2.COLOR_RGB2GRAY))
+
+
 def test_edge_gradients_match_scipy_and_opencv() -> None:
     cv2 = pytest.importorskip("cv2")
     result = run_model(preset("edge"), _rgb(2))

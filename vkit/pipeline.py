@@ -121,14 +121,15 @@ class LumaSpec:
 
     Attributes:
         weights: a preset name (``"bt601"``, ``"bt709"``, ``"opencv"``) or integer ``(r, g, b)`` weights.
-        fraction_bits: fraction bits of the weights, 0..24. For a preset name, None keeps the preset's
-            own; another value re-quantises the preset's real coefficients to that many bits.
+        fraction_bits: fraction bits of the weights, 0..24. For a preset name, None (the default) keeps
+            the preset's own (8 for bt601/bt709, 15 for opencv); another value re-quantises the
+            preset's real coefficients to that many bits. Required with integer weights.
         output_bits: bits of the luma value, 1..24 (12 gives 0..4080 for 8-bit RGB and BT.601).
         rounding: rounding of the final right shift, ``"truncate"`` or ``"half_up"``.
     """
 
     weights: str | tuple[int, int, int] = "bt601"
-    fraction_bits: int | None = 8
+    fraction_bits: int | None = None
     output_bits: int = 12
     rounding: str = "half_up"
 

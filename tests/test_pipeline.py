@@ -215,6 +215,16 @@ def test_output_scale_shift_invert_threshold() -> None:
     assert np.array_equal(run_model(binary, img).output, np.where(scaled >= 200, 255, 0))
 
 
+def test_wide_inverted_output_of_an_order_filter() -> None:
+    spec = PipelineSpec.from_dict(
+        {"name": "m10", "input": "gray8", "filter": {"kind": "median"}, "output": {"bits": 10, "scale": 4, "invert": True}}
+    )
+    img = _gray(21)
+    # scipy.ndimage.median_filter is the reference median.
+    expected = 1023 - 4 * ndimage.median_filter(img, size=3, mode="nearest").astype(np.int64)
+    assert np.array_equal(run_model(spec, img).output, expected)
+
+
 def test_gray8_with_luma_treats_grey_as_rgb() -> None:
     spec = PipelineSpec.from_dict({"name": "g", "input": "gray8", "luma": {"weights": "bt709"}, "filter": {"kind": "median"}})
     img = _gray(13)

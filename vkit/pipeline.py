@@ -757,8 +757,8 @@ def run_model(spec: PipelineSpec, image: Any, *, keep_stages: bool = True, band_
             value = band["magnitude"] = _magnitude_band(plan, band)
         else:
             value = band["filtered"]
-        # output mapping
-        v = value
+        # output mapping (order filters on gray8 hand back uint8: widen so max - v cannot wrap)
+        v = value if value.dtype.kind != "u" else value.astype(np.int32)
         if out_spec.scale != 1:
             v = np.multiply(v, out_spec.scale, dtype=np.int64)
         if out_spec.shift:

@@ -22,7 +22,8 @@
 // name is opened from the simulator's working directory, so pass an absolute path (README.md).
 //
 // Seeded bugs (`define): BUG_SOBEL_TAP_SIGN (gx adds 2*p[1][0] instead of subtracting it),
-// BUG_SUMSQ_NARROW (s kept in 28 bits, wraps), BUG_ADDR_WRAP (a = (s >> 12) mod 8192 instead of
+// BUG_SUMSQ_NARROW (s kept in 28 bits, wraps), BUG_GRADIENT_NARROW (gx, gy kept in 14 bits
+// and sign-extended, wrap beyond +-8191), BUG_ADDR_WRAP (a = (s >> 12) mod 8192 instead of
 // the clamp), BUG_LUMA_RB_SWAP (R and B weights swapped); plus the window3x3 bugs.
 
 `default_nettype none
@@ -113,6 +114,20 @@ module edge_core #(
 `endif
     wire [14:0] gy_pos = p20 + (p21 << 1) + p22;
     wire [14:0] gy_neg = p00 + (p01 << 1) + p02;
+`ifdef BUG_GRADIENT_NARROW
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [14:0] gx_diff = gx_pos - gx_neg;  // bit 14 dropped by the seeded bug
+    wire [14:0] gy_diff = gy_pos - gy_neg;
+    /* verilator lint_on UNUSEDSIGNAL */
+    // 14 bits kept and sign-extended: |g| > 8191 wraps (the sign bit was forgotten in the sizing)
+    wire signed [14:0] gx_next = $signed({gx_diff[13], gx_diff[13:0]});
+    wire signed [14:0] gy_next = $signed({gy_diff[13], gy_diff[13:0]});
+`else
+    wire [14:0] gx_diff = gx_pos - gx_neg;
+    wire [14:0] gy_diff = gy_pos - gy_neg;
+    wire signed [14:0] gx_next = $signed(gx_diff);
+    wire signed [14:0] gy_next = $signed(gy_diff);
+`endif
     reg  signed [14:0] gx, gy;
 
     // ------------------------------------------------------------------ square (1 clock)
@@ -160,8 +175,8 @@ module edge_core #(
             d_de <= 4'd0;
             d_valid <= 4'd0;
         end else begin
-            gx <= $signed(gx_pos - gx_neg);
-            gy <= $signed(gy_pos - gy_neg);
+            gx <= gx_next;
+            gy <= gy_next;
             sum_sq <= sum_sq_next;
             addr <= addr_next;
             out_data <= root_rom[addr];

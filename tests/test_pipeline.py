@@ -181,6 +181,32 @@ def test_border_policies_match_scipy_modes(border: str) -> None:
     assert result.valid_mask[1:-1, 1:-1].all()
 
 
+# Textbook 3x3 kernels, correlation orientation (common practice, no source; Scharr's 3-10-3 from memory).
+TEXTBOOK = {
+    "prewitt": (np.array([[-1, 0, 1]] * 3), np.array([[-1, 0, 1]] * 3).T),
+    "scharr": (np.array([[-3, 0, 3], [-10, 0, 10], [-3, 0, 3]]), np.array([[-3, 0, 3], [-10, 0, 10], [-3, 0, 3]]).T),
+    "laplacian": (np.array([[0, 1, 0], [1, -4, 1], [0, 1, 0]]),),
+    "gaussian": (np.outer([1, 2, 1], [1, 2, 1]),),
+}
+
+
+@pytest.mark.parametrize("kind", sorted(TEXTBOOK))
+@pytest.mark.parametrize("border", ["replicate", "zero", "mirror"])
+def test_linear_kinds_match_scipy(kind: str, border: str) -> None:
+    img = _gray(22)
+    spec = PipelineSpec.from_dict(
+        {"name": kind, "input": "gray8", "window": {"border": border}, "filter": {"kind": kind, "shift": 1, "rounding": "truncate"}}
+    )
+    result = run_model(spec, img)
+    kernels = TEXTBOOK[kind]
+    if len(kernels) == 2:
+        assert np.array_equal(result.stages["gx"].array, _scipy(img, kernels[0], border) >> 1)
+        assert np.array_equal(result.stages["gy"].array, _scipy(img, kernels[1], border) >> 1)
+    else:
+        expected = np.clip(_scipy(img, kernels[0], border) >> 1, 0, 255)
+        assert np.array_equal(result.output, expected)
+
+
 def test_custom_taps_shift_and_absolute_value() -> None:
     spec = PipelineSpec.from_dict(
         {

@@ -2,15 +2,15 @@
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from typing import Any
 
 import numpy as np
-from cocotb.triggers import Event, RisingEdge
+from cocotb.triggers import Event
 
 from vkit.capture import UNKNOWN, Capture, CaptureBuilder
 from vkit.errors import ConfigError
-from vkit.tb._common import MAX_EVENTS, bit_reader, resolve_component, wait_reset_released, word_reader
+from vkit.tb._common import MAX_EVENTS, bit_reader, resolve_component, ticker, wait_reset_released, word_reader
 from vkit.tb.signals import SignalMap, pixel_bits
 from vkit.timing import ClockSchedule, StallPattern, VideoTiming, schedule
 
@@ -230,29 +230,46 @@ class VideoSource:
         data = h["in_data"]
         word_list = words.tolist()
 
-        edge = RisingEdge(self._clock)
         n = sched.n_clocks
         change_at.append(n)  # sentinel
-        k = 0
-        next_change = change_at[0]
-        last_word = -1
-        self.clocks = 0
-        for i in range(n):
-            if i == next_change:
+        state = {"i": 0, "k": 0, "next": change_at[0], "last": -1}
+        done = Event()
+
+        def drive(i: int) -> None:
+            # Write schedule entry i (sampled by the design on clock i); only values that change.
+            if i == state["next"]:
+                k = state["k"]
                 for handle, value in zip(ctrl, change_vals[k]):
                     handle.value = value
-                k += 1
-                next_change = change_at[k]
+                state["k"] = k + 1
+                state["next"] = change_at[k + 1]
             w = word_list[i]
-            if w != last_word:
+            if w != state["last"]:
                 data.value = w
-                last_word = w
-            await edge
-            self.clocks = i + 1
-        # Leave the bus idle (the schedule ends in vertical back porch, so only data-enable needs care).
-        h["in_de"].value = 0
-        if "in_valid" in h:
-            h["in_valid"].value = 0
+                state["last"] = w
+
+        def step() -> None:
+            i = state["i"] + 1
+            state["i"] = i
+            self.clocks = i
+            if i < n:
+                drive(i)
+            else:
+                # Leave the bus idle (the schedule ends in vertical back porch; only data-enable needs care).
+                h["in_de"].value = 0
+                if "in_valid" in h:
+                    h["in_valid"].value = 0
+                tick.remove(step)
+                done.set()
+
+        self.clocks = 0
+        drive(0)
+        tick = ticker(self._clock)
+        tick.add(step)
+        try:
+            await done.wait()
+        finally:
+            tick.remove(step)
 
 
 class VideoMonitor:
@@ -334,6 +351,7 @@ class VideoMonitor:
         self._clock_deadline: int | None = None
         self._clock_event = Event()
         self._task: Any = None
+        self._step: Callable[[], None] | None = None
 
     # -- public ---------------------------------------------------------------------------------------
 
@@ -348,6 +366,8 @@ class VideoMonitor:
         """Stop watching; the capture keeps what was seen."""
         if self._task is not None and not self._task.done():
             self._task.cancel()
+        if self._step is not None:
+            ticker(self._clock).remove(self._step)
 
     def capture(self) -> Capture:
         """A :class:`~vkit.capture.Capture` of everything seen so far (partial while running)."""
@@ -438,8 +458,12 @@ class VideoMonitor:
 
     async def _run(self) -> None:
         await wait_reset_released(self._clock, self._reset, self.reset_active_high)
+        self._step = self._make_step()
+        ticker(self._clock).add(self._step)
+
+    def _make_step(self) -> Callable[[], None]:
+        """The per-edge sampling function (closures keep the hot path on local variables)."""
         h = self._h
-        edge = RisingEdge(self._clock)
         read_de = bit_reader(h["out_de"])
         read_valid = bit_reader(h["out_valid"]) if "out_valid" in h else None
         read_vs = bit_reader(h["out_vsync"]) if "out_vsync" in h else None
@@ -447,45 +471,44 @@ class VideoMonitor:
         read_data = word_reader(h["out_data"])
         add = self._builder.add
         meta = self.meta
+        event_at = self._event_at
         vs_on_level = 1 if self.vsync_active_high else 0
         hs_on_level = 1 if self.hsync_active_high else 0
-        prev_de = 0
-        prev_vs_on = False
-        prev_hs_on = False
-        c = self.clocks
-        while True:
-            await edge
+        prev = {"de": 0, "vs": False, "hs": False}
+
+        def step() -> None:
+            c = self.clocks
             de = read_de()
             if de < 0:
-                self._event_at("xz_control", c, "out_de")
+                event_at("xz_control", c, "out_de")
                 de = 0
             pix = de
             if read_valid is not None and de:
                 v = read_valid()
                 if v < 0:
-                    self._event_at("xz_control", c, "out_valid")
+                    event_at("xz_control", c, "out_valid")
                     v = 0
                 pix = v
-            if prev_de and not de:
+            if prev["de"] and not de:
                 self._end_line()
             if read_vs is not None:
                 vs = read_vs()
                 if vs < 0:
-                    self._event_at("xz_control", c, "out_vsync")
+                    event_at("xz_control", c, "out_vsync")
                 vs_on = vs == vs_on_level
-                if vs_on and not prev_vs_on:
+                if vs_on and not prev["vs"]:
                     self._on_vsync()
                 if vs_on and de:
-                    self._event_at("de_in_blanking", c)
-                prev_vs_on = vs_on
+                    event_at("de_in_blanking", c)
+                prev["vs"] = vs_on
             if read_hs is not None:
                 hs = read_hs()
                 if hs < 0:
-                    self._event_at("xz_control", c, "out_hsync")
+                    event_at("xz_control", c, "out_hsync")
                 hs_on = hs == hs_on_level
-                if hs_on and not prev_hs_on:
+                if hs_on and not prev["hs"]:
                     self._hs_count += 1
-                prev_hs_on = hs_on
+                prev["hs"] = hs_on
             if pix:
                 value = read_data()
                 if value == UNKNOWN:
@@ -494,7 +517,7 @@ class VideoMonitor:
                     meta["first_output_clock"] = c
                 add(value, c)
                 self._line_pixels += 1
-            prev_de = de
+            prev["de"] = de
             c += 1
             self.clocks = c
             if c == self._deadline:
@@ -502,3 +525,4 @@ class VideoMonitor:
             if c == self._clock_deadline:
                 self._clock_event.set()
 
+        return step

@@ -136,3 +136,16 @@ def test_conveyor_gray_uses_bt601_weights() -> None:
 def test_conveyor_any_size(size: tuple[int, int]) -> None:
     img = conveyor(*size, seed=2)
     assert img.shape == (*size, 3) and img.dtype == np.uint8
+
+
+def test_box_corners_drive_both_gradients_at_once():
+    # Source: scipy.ndimage.correlate (mode 'nearest') as the outside Sobel; at a box corner both gx and gy
+    # are large together, so gx^2 + gy^2 exceeds what any straight step reaches (16320^2 on 12-bit luma).
+    from scipy import ndimage
+
+    img = make_pattern("box", 24, 32).astype(np.int64) * 16  # 12-bit scaled luma
+    kx = np.array([[-1, 0, 1], [-2, 0, 2], [-1, 0, 1]])
+    gx = ndimage.correlate(img, kx, mode="nearest")
+    gy = ndimage.correlate(img, kx.T, mode="nearest")
+    assert (gx * gx + gy * gy).max() > 16320**2
+    assert make_pattern("box", 24, 32)[12, 16] == 255 and make_pattern("box", 24, 32)[0, 0] == 0

@@ -15,6 +15,7 @@ __all__ = [
     "impulse",
     "step",
     "checkerboard",
+    "box",
     "ramp_h",
     "ramp_v",
     "columns",
@@ -86,6 +87,21 @@ def checkerboard(height: int, width: int, cell: int = 4, low: int = 0, high: int
     lo, hi = _check_level("low", low), _check_level("high", high)
     parity = (np.arange(height)[:, None] // cell + np.arange(width)[None, :] // cell) % 2
     return np.where(parity == 1, hi, lo).astype(np.uint8)
+
+
+def box(height: int, width: int, low: int = 0, high: int = 255, margin: int | None = None) -> np.ndarray:
+    """A ``high`` rectangle on a ``low`` background, ``margin`` pixels in from every side (default a quarter).
+
+    At the box corners both gradients of a 3x3 difference kernel are large at once, so the sum of their
+    squares is near its largest value; straight step edges only drive one of them.
+    """
+    _check_size(height, width)
+    lo, hi = _check_level("low", low), _check_level("high", high)
+    my = height // 4 if margin is None else margin
+    mx = width // 4 if margin is None else margin
+    out = np.full((height, width), lo, np.uint8)
+    out[my : max(my, height - my), mx : max(mx, width - mx)] = hi
+    return out
 
 
 def _ramp(n: int) -> np.ndarray:
@@ -373,6 +389,7 @@ PATTERNS: dict[str, Callable[..., np.ndarray]] = {
     "step_up": _step_factory("up"),
     "step_down": _step_factory("down"),
     "checkerboard": checkerboard,
+    "box": box,
     "ramp_h": ramp_h,
     "ramp_v": ramp_v,
     "columns": columns,

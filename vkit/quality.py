@@ -247,6 +247,8 @@ def _labels(images: Any, count: int) -> list[str]:
             out.append(Path(images).stem)
         else:
             out.append(f"image{i}")
+        if out[-1] in out[:-1]:  # two files with one stem: keep the PNG names apart
+            out[-1] = f"{out[-1]}_{i}"
     return out
 
 

@@ -734,6 +734,7 @@ def run_model(spec: PipelineSpec, image: Any, *, keep_stages: bool = True, band_
         top = r0 - a0
         rows = r1 - r0
         band: dict[str, np.ndarray] = {}
+        views = {name: arrays[name][r0:r1] for name in kept}
         src = img[a0:a1]
         if spec.luma is not None:
             src = _luma_rows(plan, src)
@@ -754,7 +755,7 @@ def run_model(spec: PipelineSpec, image: Any, *, keep_stages: bool = True, band_
                 band[name] = acc
         if filt.is_gradient:
             assert mag is not None
-            value = band["magnitude"] = _magnitude_band(plan, band)
+            value = band["magnitude"] = _magnitude_band(plan, band, views)
         else:
             value = band["filtered"]
         # output mapping (order filters on gray8 hand back uint8: widen so max - v cannot wrap)
@@ -772,7 +773,8 @@ def run_model(spec: PipelineSpec, image: Any, *, keep_stages: bool = True, band_
             v = np.where(v >= out_spec.threshold, top_value, 0)
         band["output"] = v
         for name in kept:
-            arrays[name][r0:r1] = band[name]
+            if band[name] is not views[name]:
+                views[name][...] = band[name]
         for name in clamp_names:
             if name != "output":
                 clamps[name][r0:r1] = band[f"{name}_clamped"]
@@ -803,7 +805,9 @@ def _allocate(
     return tuple(out)
 
 
-def _magnitude_band(plan: _Plan, band: dict[str, np.ndarray]) -> np.ndarray:
+def _magnitude_band(plan: _Plan, band: dict[str, np.ndarray], views: dict[str, np.ndarray]) -> np.ndarray:
+    """Magnitude of one band from ``band["gx"]``, ``band["gy"]``; writes ``sum_sq`` (and ``magnitude``)
+    straight into the frame arrays in ``views`` when they are kept."""
     from vkit import magnitude as magmod
 
     m = plan.spec.magnitude
@@ -811,7 +815,8 @@ def _magnitude_band(plan: _Plan, band: dict[str, np.ndarray]) -> np.ndarray:
     gx, gy = band["gx"], band["gy"]
     if m.method in ("exact", "table"):
         sq_type = plan.dtypes["sum_sq"]
-        ss = np.multiply(gx, gx, dtype=sq_type)
+        ss = views.get("sum_sq")
+        ss = np.multiply(gx, gx, dtype=sq_type, out=ss)
         ss += np.multiply(gy, gy, dtype=sq_type)
         band["sum_sq"] = ss
         if m.method == "exact":
@@ -820,7 +825,8 @@ def _magnitude_band(plan: _Plan, band: dict[str, np.ndarray]) -> np.ndarray:
         band["address_clamped"] = clamped
         band["address"] = addr
         assert plan.table is not None
-        return plan.table.take(addr)
+        out = views.get("magnitude")
+        return plan.table.take(addr) if out is None else plan.table.take(addr, out=out)
     func = magmod.magnitude_abs_sum if m.method == "abs_sum" else magmod.magnitude_max_min_half
     return np.asarray(func(gx, gy)).astype(plan.dtypes["magnitude"], copy=False)
 

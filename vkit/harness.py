@@ -292,6 +292,11 @@ def verilog_harness(spec: HarnessSpec) -> str:
 // Plays stimulus from memory (one word per {'clock' if video else 'transfer'}) and writes one capture
 // line per output event; do not edit, regenerate instead.
 `timescale 1ns/1ps
+/* verilator lint_off WIDTHEXPAND */
+/* verilator lint_off WIDTHTRUNC */
+/* verilator lint_off UNUSEDSIGNAL */
+/* verilator lint_off UNUSEDPARAM */
+/* verilator lint_off BLKSEQ */
 module {TOPLEVEL} #(
     parameter IW = {iw},
     parameter OW = {ow},
@@ -360,7 +365,9 @@ module {TOPLEVEL} #(
     end
 """
     body = _verilog_video(spec) if video else _verilog_stream(spec)
-    return head + body + "endmodule\n"
+    lint_on = "".join(f"/* verilator lint_on {w} */\n" for w in ("WIDTHEXPAND", "WIDTHTRUNC", "UNUSEDSIGNAL",
+                                                                    "UNUSEDPARAM", "BLKSEQ"))
+    return head + body + "endmodule\n" + lint_on
 
 
 def _verilog_finish_block() -> str:

@@ -33,6 +33,8 @@ __all__ = [
     "write_stimulus",
     "expected_words",
     "write_expected",
+    "fast_run_dir",
+    "prepare_fast_run",
 ]
 
 READY_PATTERN_WORDS = 4096
@@ -352,3 +354,54 @@ def expected_words(expected: np.ndarray, mask: np.ndarray | None, out_width: int
 def write_expected(path: str | Path, expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> Path:
     """Write :func:`expected_words` as a ``$readmemh`` file (``out_width + 1`` bits per line)."""
     return write_hex(path, expected_words(expected, mask, out_width), out_width + 1)
+
+
+def fast_run_dir(case: Any) -> Path:
+    """The folder a fast-path run keeps its stimulus files in: beside the capture, ``<stem>_fast/``."""
+    cap = Path(str(_get(case, "capture_file")))
+    return cap.parent / (cap.stem + "_fast")
+
+
+def prepare_fast_run(case: Any, in_width: int | None = None) -> StimulusFiles:
+    """Write the fast-path stimulus files of ``case`` into :func:`fast_run_dir` (once) and describe them.
+
+    The runner calls this before starting the simulator, to get the plusargs (Verilog,
+    :meth:`StimulusFiles.plusargs`) or generics (VHDL, :meth:`StimulusFiles.generics`); the cocotb
+    test (:mod:`vkit.tb.fast`) calls it again and finds the files already written.
+    """
+    import json
+
+    out = fast_run_dir(case)
+    info = out / "stimulus.json"
+    if info.is_file():
+        data = json.loads(info.read_text())
+        if data.get("case") == _case_key(case) and all(Path(p).is_file() for p in data["paths"].values() if p):
+            ready = None
+            if data["paths"].get("ready"):
+                ready = np.frombuffer(Path(data["paths"]["ready"]).read_bytes(), np.uint8)[0::2] == ord("1")
+            paths = {k: Path(v) if v else None for k, v in data["paths"].items()}
+            return StimulusFiles(paths["stim"], paths["gaps"], paths["ready"], data["words"], data["ready_words"],
+                                 data["drain"], data["timeout"], data["expect_pixels"], data["input_meta"], ready)
+    stim = write_stimulus(case, out, in_width)
+    info.write_text(json.dumps({
+        "case": _case_key(case),
+        "paths": {"stim": str(stim.stim), "gaps": str(stim.gaps) if stim.gaps else None,
+                  "ready": str(stim.ready) if stim.ready else None},
+        "words": stim.words, "ready_words": stim.ready_words, "drain": stim.drain, "timeout": stim.timeout,
+        "expect_pixels": stim.expect_pixels, "input_meta": stim.input_meta,
+    }))
+    return stim
+
+
+def _case_key(case: Any) -> str:
+    """A fingerprint of everything in the case that shapes the stimulus (and of the frames file)."""
+    import hashlib
+    import json
+
+    data = case.to_dict() if hasattr(case, "to_dict") else dict(case)
+    frames = Path(str(data.get("frames_file")))
+    stat = frames.stat() if frames.is_file() else None
+    keep = {k: data.get(k) for k in ("family", "frames_file", "width", "height", "pixel_format", "timing", "stalls",
+                                     "stream_gaps", "backpressure", "blanking", "blanking_value", "seed", "timeout_clocks")}
+    keep["frames_stat"] = [stat.st_size, stat.st_mtime_ns] if stat else None
+    return hashlib.sha256(json.dumps(keep, sort_keys=True, default=str).encode()).hexdigest()

@@ -72,7 +72,8 @@ def run_fast(sim: str, case: SimCase, top: str, sources: list[Path], work: Path)
         test_kwargs["test_args"] = ["--std=08"]
     else:
         test_kwargs["plusargs"] = stim.plusargs(cap_txt)
-    runner.test(hdl_toplevel=TOPLEVEL, test_module="vkit.tb.fast", build_dir=build_dir, test_dir=work,
+    runner.test(hdl_toplevel=TOPLEVEL, test_module="vkit.tb.fast", build_dir=build_dir,
+                test_dir=build_dir if sim == "ghdl" else work,
                 extra_env={CASE_ENV: str(case_json)}, **test_kwargs)
     return Capture.load(case.capture_file)
 

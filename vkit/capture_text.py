@@ -9,6 +9,7 @@ event per line, ``CLOCK KIND ARG``, in the order the harness saw them (several p
     H -         output hsync leading edge (video)
     B -         output data-enable high while output vsync was active (video)
     X <role>    a control output (role name) held X or Z
+    K -         the next pixel waited at least one clock with valid high and ready low (stream)
     I -         first input transfer accepted (stream)
     T -         the harness's timeout was reached
     E -         end of the run; CLOCK is the number of clocks run
@@ -78,6 +79,7 @@ def parse_capture_text(
     timed_out = False
     clocks_run: int | None = None
     first_input: int | None = None
+    waited_next: list[int] = []
 
     n_pix = kinds.count("P")
     values = np.empty(n_pix, np.int64)
@@ -141,6 +143,8 @@ def parse_capture_text(
             counts["xz_control"] += 1
             if counts["xz_control"] <= MAX_EVENTS:
                 xz_control.append([int(clocks[i]), args[i]])
+        elif kind == "K":
+            waited_next.append(k)
         elif kind == "I":
             first_input = int(clocks[i])
         elif kind == "T":
@@ -155,6 +159,8 @@ def parse_capture_text(
         m["de_in_blanking"] = de_in_blanking
         m["output_vsync_count"] = vsync_count
         m["output_hsync_per_frame"] = hsync_per_frame
+    if family == "stream":
+        m["backpressure_pixels"] = [[int(frame_a[i]), int(line_a[i]), int(col_a[i])] for i in waited_next if i < k]
     if first_input is not None:
         m["first_input_clock"] = first_input
     m["first_output_clock"] = int(clock_a[0]) if k else None

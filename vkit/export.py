@@ -373,15 +373,6 @@ def capture_meta_for_case(case: Any, stim: StimulusFiles | None = None) -> dict[
     return meta
 
 
-def _backpressure_pixels(cap: Capture, ready: np.ndarray | None, width: int, height: int) -> list[list[int]]:
-    if ready is None or not len(cap) or ready.all():
-        return []
-    prev = cap.clock - 1
-    low = (prev >= 0) & ~ready[np.mod(prev, ready.size)]
-    sel = np.flatnonzero(low)
-    return [[int(cap.frame[i]), int(cap.line[i]), int(cap.column[i])] for i in sel]
-
-
 def read_capture(path: str | Path, case: Any, stim: StimulusFiles | None = None) -> Capture:
     """Read a harness capture text file (live fast-path run or exported testbench) as a Capture.
 
@@ -399,13 +390,6 @@ def read_capture(path: str | Path, case: Any, stim: StimulusFiles | None = None)
         split_on_height=case.family == "video" and not has_vsync,
         meta=meta,
     )
-    if case.family == "stream":
-        ready = stim.ready_levels if stim is not None else None
-        if ready is None:
-            from vkit.stimulus import ready_pattern
-
-            ready = ready_pattern(case.backpressure_pattern())
-        cap.meta["backpressure_pixels"] = _backpressure_pixels(cap, ready, int(case.width), int(case.height))
     if cap.meta.get("timed_out") and "timeout_clocks" not in cap.meta:
         cap.meta["timeout_clocks"] = int(cap.meta.get("clocks_run", 0))
     return cap

@@ -487,7 +487,7 @@ def _verilog_stream(spec: HarnessSpec) -> str:
     end
 {_verilog_finish_block()}
     // ---- capture
-    reg c_valid, c_ready;
+    reg c_valid, c_ready, waited;
     always @* begin
         c_valid = (d_out_valid === 1'b1);
         c_ready = d_out_ready;
@@ -497,6 +497,7 @@ def _verilog_stream(spec: HarnessSpec) -> str:
         frame_pulse <= 1'b0;
         if (rst) begin
             xi <= 32'd0; ri <= 32'd0; clocks <= 32'd0; tail <= 32'd0; npix <= 32'd0; started <= 1'b1;
+            waited <= 1'b0;
             gap_left <= (n_words > 0) ? gap_mem[0][{GAP_BITS - 1}:0] : {GAP_BITS}'d0;
         end else if (!done) begin
             clocks <= clocks + 32'd1;
@@ -512,7 +513,10 @@ def _verilog_stream(spec: HarnessSpec) -> str:
             if (!sending) tail <= tail + 32'd1;
             if ({_v_x('d_out_valid')}) $fwrite(fd, "%0d X out_valid\\n", clocks);
             if ({_v_x('d_in_ready')}) $fwrite(fd, "%0d X in_ready\\n", clocks);
+            if (c_valid && !c_ready) waited <= 1'b1;
             if (c_valid && c_ready) begin
+                waited <= 1'b0;
+                if (waited) $fwrite(fd, "%0d K -\\n", clocks);
                 if ({_v_x('d_out_sof')}) $fwrite(fd, "%0d X out_sof\\n", clocks);
                 if ({_v_x('d_out_eol')}) $fwrite(fd, "%0d X out_eol\\n", clocks);
                 if (d_out_sof === 1'b1) begin

@@ -26,6 +26,7 @@ STREAM_SIGNALS = {"clock": "clk", "reset": "rst", "in_valid": "s_valid", "in_rea
 
 
 def _frames(tmp: Path, n: int = 2, h: int = 24, w: int = 32, seed: int = 5) -> Path:
+    tmp.mkdir(parents=True, exist_ok=True)
     arr = np.random.default_rng(seed).integers(0, 256, (n, h, w), dtype=np.uint8)
     path = tmp / "frames.npy"
     np.save(path, arr)

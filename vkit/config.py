@@ -119,12 +119,20 @@ class Flow:
 
 @dataclass(frozen=True)
 class PatternEntry:
-    """One generated stimulus: a pattern name, its options and (optionally) its own seeds."""
+    """One generated stimulus: a pattern name, its options and, optionally, its own axes.
+
+    ``seeds``, ``timings``, ``stalls``, ``gaps`` and ``backpressure`` given here replace the
+    ``[stimulus]`` lists of the same name for this pattern only (None = use those lists).
+    """
 
     name: str
     options: tuple[tuple[str, Any], ...] = ()
     seeds: tuple[int, ...] | None = None
     label: str = ""
+    timings: tuple[tuple[str, Any], ...] | None = None
+    stalls: tuple[Flow, ...] | None = None
+    gaps: tuple[Flow, ...] | None = None
+    backpressure: tuple[Flow, ...] | None = None
 
     @property
     def id_label(self) -> str:
@@ -546,8 +554,11 @@ def _parse_stimulus(where: str, data: Mapping[str, Any], base: Path) -> Stimulus
                 _want(where, "patterns.seeds", seeds, list, "give a list of integers")
                 seeds = tuple(_int(where, "patterns.seeds", s, 0) for s in seeds)
             label = _want(where, "patterns.label", item.get("label", ""), str, "give a short name")
-            options = tuple(sorted((k, v) for k, v in item.items() if k not in ("name", "seeds", "label")))
-            entry = PatternEntry(name, options, seeds, label)
+            own = ("name", "seeds", "label", "timings", "stalls", "gaps", "backpressure")
+            options = tuple(sorted((k, v) for k, v in item.items() if k not in own))
+            flows = {k: tuple(_parse_flows(where, f"patterns.{k}", item[k])) for k in ("stalls", "gaps", "backpressure") if k in item}
+            timings = tuple(_parse_timings(where, item["timings"])) if "timings" in item else None
+            entry = PatternEntry(name, options, seeds, label, timings, **flows)
         else:
             raise ConfigError(f"{where}: patterns entry {item!r} is {_type_name(item)}; give a name or a table")
         if entry.name not in PATTERNS:
@@ -891,22 +902,26 @@ def expand_matrix(config: Config, simulators: list[str] | None = None) -> list[C
     st = config.stimulus
     cases: dict[str, Case] = {}
     skipped: list[str] = []
-    stimuli: list[tuple[str, str, str, tuple[tuple[str, Any], ...], tuple[int, ...], tuple[int, int] | None]] = []
+    stimuli: list[tuple[str, str, str, tuple[tuple[str, Any], ...], tuple[int, ...], tuple[int, int] | None, PatternEntry | None]] = []
     for img in st.images:
-        stimuli.append(("image", str(img), img.stem, (), tuple(st.seeds), _image_size(img)))
+        stimuli.append(("image", str(img), img.stem, (), tuple(st.seeds), _image_size(img), None))
     for pe in st.patterns:
-        stimuli.append(("pattern", pe.name, pe.id_label, pe.options, pe.seeds or tuple(st.seeds), None))
+        stimuli.append(("pattern", pe.name, pe.id_label, pe.options, pe.seeds or tuple(st.seeds), None, pe))
     for d in config.designs.values():
         sims = _design_simulators(d, requested)
         if not sims:
             skipped.append(d.name)
             continue
-        flows = ([(f, Flow(), Flow()) for f in st.stalls] if d.family == "video"
-                 else [(Flow(), g, b) for g in st.gaps for b in st.backpressure])
         for sim in sims:
-            for kind, sname, slabel, options, seeds, own_size in stimuli:
+            for kind, sname, slabel, options, seeds, own_size, pe in stimuli:
+                stalls = pe.stalls if pe is not None and pe.stalls is not None else st.stalls
+                gaps = pe.gaps if pe is not None and pe.gaps is not None else st.gaps
+                bps = pe.backpressure if pe is not None and pe.backpressure is not None else st.backpressure
+                flows = ([(f, Flow(), Flow()) for f in stalls] if d.family == "video"
+                         else [(Flow(), g, b) for g in gaps for b in bps])
+                timings = pe.timings if pe is not None and pe.timings is not None else st.timings
                 for seed in seeds:
-                    for tlabel, tdict in st.timings:
+                    for tlabel, tdict in timings:
                         width, height = own_size if own_size is not None else st.size
                         timing = tdict
                         if tdict is None:

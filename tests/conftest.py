@@ -1,0 +1,32 @@
+"""Shared fixtures: simulator availability with install hints, and one build cache per test session.
+
+``simulator_available(name)`` returns the :class:`vkit.simulators.SimulatorInfo` or skips the test
+with the install hint. ``build_cache_dir`` is a session-scoped folder under pytest's temporary
+directory (a few MB of Icarus/GHDL builds, one Verilator build is about 10 MB); tests that run real
+simulations share it so each design is built once per session.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from vkit.simulators import SimulatorInfo, find
+
+REPO = Path(__file__).resolve().parents[1]
+SAMPLE_RTL = REPO / "sample_rtl"
+
+
+def simulator_available(name: str) -> SimulatorInfo:
+    """The simulator's info, or skip the calling test with its install hint."""
+    info = find(name)
+    if not info.available:
+        pytest.skip(f"{name} not usable here: {info.reason}")
+    return info
+
+
+@pytest.fixture(scope="session")
+def build_cache_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """One build cache for the whole session (see the module docstring)."""
+    return tmp_path_factory.mktemp("vkit-builds")

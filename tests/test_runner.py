@@ -1,0 +1,168 @@
+"""Build cache and runner: keys, reuse, locking, and real regressions on the sample designs."""
+
+from __future__ import annotations
+
+import json
+import threading
+import time
+import xml.etree.ElementTree as ET
+from pathlib import Path
+
+import pytest
+from PIL import Image
+
+from conftest import SAMPLE_RTL, simulator_available
+from vkit.buildcache import STAMP_NAME, BuildCache, BuildRequest, build_key
+from vkit.cli import main
+from vkit.config import expand_matrix, load_config
+
+MANIFEST = SAMPLE_RTL / "designs.toml"
+
+
+def _request(src: Path, **over) -> BuildRequest:
+    args = dict(parameters={"W": 8}, defines={}, build_args=["-Wall"])
+    args.update(over)
+    version = args.pop("version", "Icarus 11")
+    return BuildRequest.make("icarus", version, "top", [src], "verilog", **args)
+
+
+def test_key_follows_everything_that_changes_a_build(tmp_path):
+    src = tmp_path / "top.v"
+    src.write_text("module top; endmodule\n")
+    base = build_key(_request(src))
+    assert build_key(_request(src)) == base
+    assert build_key(_request(src, parameters={"W": 9})) != base
+    assert build_key(_request(src, defines={"BUG_X": 1})) != base
+    assert build_key(_request(src, version="Icarus 12")) != base
+    assert build_key(_request(src, build_args=[])) != base
+    src.write_text("module top; wire a; endmodule\n")
+    assert build_key(_request(src)) != base  # contents, not names or times
+
+
+def test_parallel_requests_build_once(tmp_path):
+    src = tmp_path / "top.v"
+    src.write_text("module top; endmodule\n")
+    cache = BuildCache(tmp_path / "cache")
+    calls = []
+
+    def builder(bdir: Path) -> None:
+        calls.append(bdir)
+        time.sleep(0.3)
+        (bdir / "model").write_text("built\n")
+
+    outcomes = []
+    threads = [threading.Thread(target=lambda: outcomes.append(cache.ensure(_request(src), builder))) for _ in range(3)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert len(calls) == 1
+    assert sorted(o.reused for o in outcomes) == [False, True, True]
+    assert (outcomes[0].build_dir / STAMP_NAME).is_file()
+
+
+def test_failed_build_leaves_no_stamp(tmp_path):
+    src = tmp_path / "top.v"
+    src.write_text("module top; endmodule\n")
+    cache = BuildCache(tmp_path / "cache")
+
+    def broken(bdir: Path) -> None:
+        raise RuntimeError("compiler said no")
+
+    with pytest.raises(RuntimeError):
+        cache.ensure(_request(src), broken)
+    assert not cache.is_built(_request(src))
+
+
+def _config(tmp_path: Path, body: str, cache: Path) -> Path:
+    p = tmp_path / "vkit.toml"
+    p.write_text(f'[run]\nsimulators = ["icarus"]\ncache_dir = "{cache}"\nout_dir = "out"\n' + body)
+    return p
+
+
+@pytest.mark.sim
+def test_second_build_is_skipped(tmp_path):
+    simulator_available("icarus")
+    from vkit.runner import build_design
+
+    cfg = load_config(_config(tmp_path, f'[[import]]\nmanifest = "{MANIFEST}"\nuse = ["edge_core"]\n'
+                              '[stimulus]\npatterns = ["impulse"]\n', tmp_path / "cache"))
+    case = expand_matrix(cfg)[0]
+    cache = BuildCache(tmp_path / "cache")
+    t0 = time.monotonic()
+    first = build_design(case, cache)
+    cold = time.monotonic() - t0
+    t0 = time.monotonic()
+    second = build_design(case, cache)
+    warm = time.monotonic() - t0
+    assert not first.reused and second.reused and second.build_dir == first.build_dir
+    assert (first.build_dir / "sim.vvp").is_file()
+    assert warm < cold, f"cached lookup {warm:.3f} s vs build {cold:.3f} s"
+
+
+@pytest.mark.sim
+def test_run_tiny_regression_passes(tmp_path, build_cache_dir, capsys):
+    simulator_available("icarus")
+    body = (f'[[import]]\nmanifest = "{MANIFEST}"\nuse = ["edge_core", "stream_core"]\n'
+            '[stimulus]\npatterns = ["conveyor"]\ntimings = ["tiny32x24"]\nstalls = [0.1]\nbackpressure = [0.2]\n')
+    code = main(["run", str(_config(tmp_path, body, build_cache_dir)), "-j", "2"])
+    out = capsys.readouterr().out
+    assert code == 0, out
+    assert "[2/2]" in out
+    report = json.loads((tmp_path / "out" / "report.json").read_text())
+    assert report["totals"] == {"cases": 2, "passed": 2, "failed": 0, "errors": 0}
+    suite = ET.parse(tmp_path / "out" / "junit.xml").getroot()  # JUnit XML read back with xml.etree
+    assert suite.get("tests") == "2" and suite.get("failures") == "0"
+    for case in report["cases"]:
+        assert case["coverage"]["stages"], "range coverage is part of every case"
+
+
+@pytest.mark.sim
+def test_bug_variant_fails_with_picture_and_diagnosis(tmp_path, build_cache_dir, capsys):
+    simulator_available("icarus")
+    body = (f'[[import]]\nmanifest = "{MANIFEST}"\nuse = ["blur_core"]\nbugs = "only"\n'
+            '[stimulus]\npatterns = ["conveyor"]\ntimings = ["tiny32x24"]\n')
+    cfg = _config(tmp_path, body, build_cache_dir)
+    code = main(["run", str(cfg), "--only", "blur_truncate"])
+    out = capsys.readouterr().out
+    assert code == 1, out
+    report = json.loads((tmp_path / "out" / "report.json").read_text())
+    (case,) = report["cases"]
+    assert case["status"] == "fail"
+    # the manifest says this bug (truncating instead of rounding) should read as a rounding error
+    assert case["diagnosis"]["kind"] == "rounding"
+    diff = tmp_path / "out" / case["files"]["frames"]["0"]["diff"]
+    with Image.open(diff) as im:
+        assert im.size == (32, 24)
+
+
+@pytest.mark.sim
+def test_compile_error_is_one_tool_line_and_reported(tmp_path, build_cache_dir, capsys):
+    simulator_available("icarus")
+    (tmp_path / "bad.v").write_text("module bad(input clk);\n  wire x = ;\nendmodule\n")
+    body = ('[designs.bad]\ntop = "bad"\nsources = ["bad.v"]\nspec = "blur"\n'
+            'ports = { clock = "clk", reset = "rst", in_vsync = "a", in_hsync = "b", in_de = "c", in_data = "d",'
+            ' out_de = "e", out_data = "f" }\n[stimulus]\npatterns = ["impulse"]\n')
+    code = main(["run", str(_config(tmp_path, body, build_cache_dir))])
+    captured = capsys.readouterr()
+    assert code == 2
+    assert "Traceback" not in captured.out + captured.err
+    report = json.loads((tmp_path / "out" / "report.json").read_text())
+    msg = report["cases"][0]["diagnosis"]["message"]
+    assert "could not build bad" in msg and "bad.v:2" in msg
+
+
+@pytest.mark.sim
+def test_shards_merge_into_one_report(tmp_path, build_cache_dir, capsys):
+    simulator_available("icarus")
+    body = (f'[[import]]\nmanifest = "{MANIFEST}"\nuse = ["median_core"]\n'
+            '[stimulus]\npatterns = ["impulse", "checkerboard", "columns"]\ntimings = ["tiny32x24"]\n')
+    cfg = str(_config(tmp_path, body, build_cache_dir))
+    assert main(["run", cfg, "--shard", "1/2", "--out", str(tmp_path / "s1")]) == 0
+    assert main(["run", cfg, "--shard", "2/2", "--out", str(tmp_path / "s2")]) == 0
+    assert main(["merge", str(tmp_path / "all"), str(tmp_path / "s1"), str(tmp_path / "s2" / "report.json")]) == 0
+    capsys.readouterr()
+    merged = json.loads((tmp_path / "all" / "report.json").read_text())
+    ids = sorted(c["id"] for c in merged["cases"])
+    assert ids == sorted(c.id for c in expand_matrix(load_config(cfg)))
+    assert (tmp_path / "all" / "junit.xml").is_file()

@@ -12,8 +12,8 @@ import pytest
 from vkit.capture import UNKNOWN, Capture
 from vkit.capture_text import parse_capture_text
 from vkit.errors import ConfigError
-from vkit.harness import TOPLEVEL, harness_sources, scan_port_widths, verilog_harness
-from vkit.stimulus import fast_run_dir, prepare_fast_run, write_hex
+from vkit.harness import fast_build_plan, fast_test_args, scan_port_widths, verilog_harness
+from vkit.stimulus import write_hex
 from vkit.tb.case import CASE_ENV, SimCase
 
 HDL = Path(__file__).parent / "hdl_fast"
@@ -49,33 +49,23 @@ def _require(sim: str) -> None:
         pytest.skip(f"{sim} is not usable here ({info.reason}); install it: {info.install_hint}")
 
 
-def run_fast(sim: str, case: SimCase, top: str, sources: list[Path], work: Path) -> Capture:
-    """Build the harness around ``top`` and run ``case`` through vkit.tb.fast with cocotb's runner."""
+def run_fast(sim: str, case: SimCase, top: str, sources: list[Path], work: Path, *,
+             parameters: dict[str, Any] | None = None, defines: dict[str, Any] | None = None,
+             build_dir: Path | None = None) -> Capture:
+    """Build the harness around ``top`` (unless ``build_dir`` already holds it) and run ``case`` on it."""
     from cocotb_tools.runner import get_runner
 
     from vkit.simulators import activate, find
 
     activate(find(sim))
-    build = harness_sources(case, work / "harness", top, sources=sources)
-    stim = prepare_fast_run(case, build.spec.in_width)
-    case_json = case.to_json(work / "case.json")
-    cap_txt = fast_run_dir(case) / "capture.txt"
+    language = "vhdl" if sim == "ghdl" else "verilog"
+    plan = fast_build_plan(top, sources, language, parameters, defines, case.family, case.signals,
+                           out_dir=work / "harness", pixel_format=case.pixel_format)
     runner = get_runner(sim)
-    build_dir = work / f"build_{sim}"
-    kwargs: dict[str, Any] = {}
-    if sim == "ghdl":
-        kwargs["build_args"] = ["--std=08"]
-    runner.build(sources=[*sources, *build.files] if sim == "ghdl" else [*build.files, *sources],
-                 hdl_toplevel=TOPLEVEL, build_dir=build_dir, always=True, **kwargs)
-    test_kwargs: dict[str, Any] = {}
-    if sim == "ghdl":
-        test_kwargs["parameters"] = stim.generics(cap_txt)
-        test_kwargs["test_args"] = ["--std=08"]
-    else:
-        test_kwargs["plusargs"] = stim.plusargs(cap_txt)
-    runner.test(hdl_toplevel=TOPLEVEL, test_module="vkit.tb.fast", build_dir=build_dir,
-                test_dir=build_dir if sim == "ghdl" else work,
-                extra_env={CASE_ENV: str(case_json)}, **test_kwargs)
+    if build_dir is None:
+        build_dir = work / f"build_{sim}"
+        runner.build(build_dir=build_dir, **plan.build_kwargs(sim))
+    runner.test(build_dir=build_dir, **fast_test_args(case, sim))
     return Capture.load(case.capture_file)
 
 

@@ -55,12 +55,12 @@ def parse_capture_text(
     Raises:
         ConfigError: the text is not a vkit capture (no header line).
     """
-    lines = text.split("\n")
-    if not lines or not lines[0].startswith("# vkit capture"):
+    lines = [text.split("\n", 1)[0]]
+    if not lines[0].startswith("# vkit capture"):
         raise ConfigError("capture text: the first line is not '# vkit capture ...'; give a file written by the vkit harness")
     head = lines[0].split()
     family = family or (head[4] if len(head) > 4 else "video")
-    tokens = " ".join(lines[1:]).split()
+    tokens = text.split("\n", 1)[1].split() if "\n" in text else []
     if len(tokens) % 3:
         tokens = tokens[: len(tokens) - len(tokens) % 3]  # a run cut short mid-line
     clocks = tokens[0::3]
@@ -81,58 +81,24 @@ def parse_capture_text(
     first_input: int | None = None
     waited_next: list[int] = []
 
-    n_pix = kinds.count("P")
-    values = np.empty(n_pix, np.int64)
-    clock_a = np.empty(n_pix, np.int64)
-    frame_a = np.empty(n_pix, np.int64)
-    line_a = np.empty(n_pix, np.int64)
-    col_a = np.empty(n_pix, np.int64)
-    frame = line = col = 0
-    frame_has = line_has = False
-    lines_in_frame = 0
-    k = 0
-    xz_data = 0
-    for i, kind in enumerate(kinds):
-        if kind == "P":
-            a = args[i]
-            if a == "U":
-                v = UNKNOWN
-                xz_data += 1
-            else:
-                try:
-                    v = int(a, 16)
-                except ValueError:
-                    v = UNKNOWN
-                    xz_data += 1
-            values[k] = v
-            clock_a[k] = int(clocks[i])
-            frame_a[k] = frame
-            line_a[k] = line
-            col_a[k] = col
-            k += 1
-            col += 1
-            frame_has = line_has = True
-        elif kind == "L":
-            if line_has:
-                line += 1
-                lines_in_frame += 1
-                if split_on_height and height and lines_in_frame >= height:
-                    frame += 1
-                    line = 0
-                    lines_in_frame = 0
-                    frame_has = False
-            col = 0
-            line_has = False
-        elif kind == "F":
+    kind_a = np.array(kinds, dtype="U1") if kinds else np.zeros(0, "U1")
+    is_p = kind_a == "P"
+    pos_p = np.flatnonzero(is_p)
+    k = int(pos_p.size)
+    clock_all = np.array(clocks, dtype=np.int64) if clocks else np.zeros(0, np.int64)
+    clock_a = clock_all[pos_p]
+    values, xz_data = _hex_values(np.array(args, dtype="S")[pos_p] if k else [])
+    if split_on_height and height and (kind_a == "F").any():
+        frame_a, line_a, col_a = _positions_loop(kind_a, bool(split_on_height), height)
+    else:
+        frame_a, line_a, col_a = _positions(kind_a, is_p, pos_p, bool(split_on_height), height)
+    for i in np.flatnonzero(~is_p).tolist():
+        kind = kinds[i]
+        if kind == "F":
             if family == "video":
                 vsync_count += 1
                 hsync_per_frame.append(hs_count)
                 hs_count = 0
-            if frame_has:
-                frame += 1
-            line = col = 0
-            lines_in_frame = 0
-            frame_has = line_has = False
         elif kind == "H":
             hs_count += 1
         elif kind == "B":
@@ -144,14 +110,14 @@ def parse_capture_text(
             if counts["xz_control"] <= MAX_EVENTS:
                 xz_control.append([int(clocks[i]), args[i]])
         elif kind == "K":
-            waited_next.append(k)
+            waited_next.append(int(np.searchsorted(pos_p, i)))
         elif kind == "I":
             first_input = int(clocks[i])
         elif kind == "T":
             timed_out = True
         elif kind == "E":
             clocks_run = int(clocks[i])
-    cap = Capture(values[:k], clock_a[:k], frame_a[:k], line_a[:k], col_a[:k], out_meta)
+    cap = Capture(values, clock_a, frame_a, line_a, col_a, out_meta)
     m = cap.meta
     m["xz_data_count"] = xz_data
     m["xz_control"] = xz_control
@@ -176,6 +142,103 @@ def parse_capture_text(
         if total > MAX_EVENTS:
             m["notes"].append(f"{key}: {total} events, only the first {MAX_EVENTS} are listed")
     return cap
+
+
+_HEX_LUT = np.full(256, -1, np.int64)
+for _i, _c in enumerate(b"0123456789abcdef"):
+    _HEX_LUT[_c] = _i
+for _i, _c in enumerate(b"ABCDEF"):
+    _HEX_LUT[_c] = 10 + _i
+
+
+def _hex_values(texts: Any) -> tuple[np.ndarray, int]:
+    """Hex words to int64 (vectorised); anything not plain hex (U, x, z) becomes UNKNOWN. Returns (values, unknown count)."""
+    n = len(texts)
+    if n == 0:
+        return np.zeros(0, np.int64), 0
+    raw = np.asarray(texts, dtype="S")
+    width = raw.dtype.itemsize
+    if width > 15:  # more than 60 bits: Python ints, then the same rules
+        out = np.empty(n, np.int64)
+        bad = 0
+        for i, t in enumerate(texts):
+            try:
+                out[i] = int(t.decode(), 16)
+            except ValueError:
+                out[i] = UNKNOWN
+                bad += 1
+        return out, bad
+    padded = np.char.rjust(raw, width, b"0")
+    digits = _HEX_LUT[np.frombuffer(padded.tobytes(), np.uint8).reshape(n, width)]
+    bad = (digits < 0).any(axis=1)
+    weights = (np.int64(16) ** np.arange(width - 1, -1, -1, dtype=np.int64))[None, :]
+    values = (np.where(digits < 0, 0, digits) * weights).sum(axis=1)
+    values[bad] = UNKNOWN
+    return values.astype(np.int64), int(bad.sum())
+
+
+def _positions(kind: np.ndarray, is_p: np.ndarray, pos_p: np.ndarray, split: bool, height: int | None
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Frame, line and column of every pixel event, vectorised (see the module docstring for the rules)."""
+    n = kind.size
+    is_l = kind == "L"
+    is_f = kind == "F"
+    cum_p = np.cumsum(is_p)
+    idx = np.arange(n)
+    # An L or F closes a non-empty line when a pixel came since the last L or F.
+    delim = is_l | is_f
+    d_pos = np.flatnonzero(delim)
+    p_at_d = cum_p[d_pos]
+    prev_p_at_d = np.concatenate(([0], p_at_d[:-1]))
+    eff_l = np.zeros(n, bool)
+    eff_l[d_pos] = (p_at_d > prev_p_at_d) & is_l[d_pos]
+    # An F opens a new frame when a pixel came since the last F.
+    f_pos = np.flatnonzero(is_f)
+    p_at_f = cum_p[f_pos]
+    prev_p_at_f = np.concatenate(([0], p_at_f[:-1]))
+    eff_f = np.zeros(n, bool)
+    eff_f[f_pos] = p_at_f > prev_p_at_f
+    cum_eff_l = np.cumsum(eff_l)
+    last_d = np.maximum.accumulate(np.where(delim, idx, -1))
+    last_f = np.maximum.accumulate(np.where(is_f, idx, -1))
+    base_p = np.where(last_d >= 0, cum_p[np.maximum(last_d, 0)], 0)
+    col = cum_p - 1 - base_p
+    if split and height:
+        frame = cum_eff_l // height
+        line = cum_eff_l % height
+    else:
+        frame = np.cumsum(eff_f)
+        line = cum_eff_l - np.where(last_f >= 0, cum_eff_l[np.maximum(last_f, 0)], 0)
+    return (frame[pos_p].astype(np.int64), line[pos_p].astype(np.int64), col[pos_p].astype(np.int64))
+
+
+def _positions_loop(kind: np.ndarray, split: bool, height: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Frame, line and column of every pixel event, one event at a time (frames split on height and on F)."""
+    frame = line = col = lines_in_frame = 0
+    frame_has = line_has = False
+    out: list[tuple[int, int, int]] = []
+    for k in kind.tolist():
+        if k == "P":
+            out.append((frame, line, col))
+            col += 1
+            frame_has = line_has = True
+        elif k == "L":
+            if line_has:
+                line += 1
+                lines_in_frame += 1
+                if split and lines_in_frame >= height:
+                    frame += 1
+                    line = lines_in_frame = 0
+                    frame_has = False
+            col = 0
+            line_has = False
+        elif k == "F":
+            if frame_has:
+                frame += 1
+            line = col = lines_in_frame = 0
+            frame_has = line_has = False
+    arr = np.array(out, np.int64).reshape(-1, 3)
+    return arr[:, 0].copy(), arr[:, 1].copy(), arr[:, 2].copy()
 
 
 def read_capture_text(path: str | Path, **kwargs: Any) -> Capture:

@@ -1,25 +1,54 @@
-"""HDL text generators for the fast path: a harness that plays stimulus from memory and writes a capture file.
+"""HDL text generators for the fast path: a harness that streams stimulus from a file and writes a capture file.
 
-The harness ``vkit_harness`` wraps the design under test. A player memory, loaded with ``$readmemh``
-(VHDL: textio), holds one word per clock (video family) or one word per transfer plus a per-clock
-ready pattern (stream family). A capture block writes one text line per output event to a file, so
-Python never touches the simulation per clock: it starts the clock, waits for ``done`` and reads the
-file (see :mod:`vkit.capture_text` for the line format).
+The harness ``vkit_harness`` wraps the design under test; ``vkit_fast_top`` wraps the harness and
+makes its own clock and reset, so Python never runs per clock. The generated text depends only on the
+design (top name, parameter overrides, port widths, reset polarity) and the family, never on the
+stimulus: one build runs any image, timing, stall pattern, seed or frame count.
 
-Video stimulus word, per clock, MSB first: ``{frame_mark, hsync, vsync, de, valid, data[IW-1:0]}``;
-``frame_mark`` is 1 on the first clock of each frame and only drives the harness's ``frame_pulse``.
+Verilog player: one binary word per clock (video) or per transfer (stream) is read with ``$fread``
+from the stimulus file as the run goes (big-endian, ``ceil(bits/8)`` bytes per word, see
+:func:`video_word_bits` / :func:`stream_word_bits`); the run plays until the file ends. VHDL player
+(video only): a hex text file (one word per line) read into a memory whose depth is the ``DEPTH``
+generic, given at run time (GHDL elaborates at run time, so this is not a rebuild).
 
-Stream stimulus: ``pixels`` words ``{sof, eol, data[IW-1:0]}``, one per transfer; ``gaps`` words
-``{idle_data[IW-1:0], gap[15:0]}``, idle clocks before each transfer and the data driven while idle;
-``ready`` words, one bit per clock of the sink's ready, repeated when the run is longer.
+Video word, MSB first: ``{frame_mark, hsync, vsync, de, valid, data[IW-1:0]}``; ``frame_mark`` is 1
+on the first clock of each frame and only drives the harness's ``frame_pulse``.
+Stream word, MSB first: ``{idle_data[IW-1:0], gap[15:0], sof, eol, data[IW-1:0]}``: ``gap`` idle
+clocks (driving ``idle_data``) before the transfer. The sink's ready pattern is a ``$readmemh`` file
+of :data:`READY_WORDS` bits, repeated.
 
 Clock index 0 is the first rising edge with reset released; on edge ``k`` the design samples word
-``k`` and the capture samples the design's outputs as they stood before that edge.
+``k`` and the capture samples the design's outputs as they stood before that edge. The capture text
+format is described in :mod:`vkit.capture_text`.
+
+How the runner uses the fast path (build once, run every case on that build)::
+
+    from cocotb_tools.runner import get_runner
+    from vkit.harness import fast_build_plan, fast_test_args
+
+    plan = fast_build_plan("edge_core", sources, "verilog", {"ROOT_TABLE": '"/abs/edge_root_table.hex"'},
+                           {"BUG_ADDR_WRAP": 1}, "video", signals, in_width=None, out_width=8)
+    runner = get_runner(sim)
+    runner.build(build_dir=build_dir, **plan.build_kwargs(sim))     # cache it on plan.key
+    for case in cases:                                              # SimCase objects
+        runner.test(build_dir=build_dir, **fast_test_args(case, sim))
+        capture = Capture.load(case.capture_file)
+
+``fast_build_plan`` writes the harness file(s) (content-addressed folder unless ``out_dir`` is given)
+and returns a :class:`HarnessBuild`: ``files``, ``sources`` (compile order), ``toplevel``
+(``vkit_fast_top``), ``defines``, ``build_args`` per simulator, ``key`` (a hash of the harness text
+and the source files' contents, for a build cache) and ``build_kwargs(sim)`` for ``runner.build``.
+``fast_test_args(case, sim)`` writes the case's stimulus beside its capture file and returns the
+keyword arguments of ``runner.test``: ``hdl_toplevel``, ``test_module`` (``vkit.tb.fast``),
+``plusargs`` (Verilog) or ``parameters`` (VHDL generics), ``test_args``, ``extra_env``
+(``VKIT_CASE``) and ``test_dir``.
 """
 
 from __future__ import annotations
 
+import hashlib
 import re
+import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping, Sequence
@@ -28,26 +57,40 @@ from vkit.errors import ConfigError
 
 __all__ = [
     "TOPLEVEL",
+    "HARNESS",
     "GAP_BITS",
+    "READY_WORDS",
+    "SIMULATORS",
     "HarnessSpec",
     "HarnessBuild",
     "scan_port_widths",
     "video_word_bits",
-    "stream_pixel_bits",
-    "stream_gap_bits",
+    "stream_word_bits",
+    "word_bytes",
     "verilog_harness",
     "vhdl_harness",
+    "fast_build_plan",
+    "fast_test_args",
     "harness_sources",
 ]
 
-TOPLEVEL = "vkit_harness"
-"""Name of the generated harness module/entity (the simulation's toplevel on the fast path)."""
+HARNESS = "vkit_harness"
+"""Name of the generated harness module/entity (ports clk, rst, load; used by exported testbenches)."""
+
+TOPLEVEL = "vkit_fast_top"
+"""Name of the self-clocked wrapper around :data:`HARNESS`: the simulation toplevel on the fast path."""
 
 GAP_BITS = 16
-"""Bits of the idle-gap count in a stream gap word (longest gap: 65535 clocks)."""
+"""Bits of the idle-gap count in a stream word (longest gap: 65535 clocks)."""
+
+READY_WORDS = 4096
+"""Clocks in the stream sink's ready pattern; the harness repeats it for longer runs."""
 
 STREAM_TAIL = 16
 """Clocks the stream harness keeps capturing after the expected output pixel count arrived."""
+
+SIMULATORS = ("icarus", "verilator", "ghdl")
+"""Simulators :func:`fast_build_plan` gives build arguments for."""
 
 _VIDEO_IN = ("in_hsync", "in_vsync", "in_de", "in_valid", "in_data")
 _VIDEO_OUT = ("out_vsync", "out_hsync", "out_de", "out_valid", "out_data")
@@ -60,31 +103,29 @@ def video_word_bits(in_width: int) -> int:
     return in_width + 5
 
 
-def stream_pixel_bits(in_width: int) -> int:
-    """Bits of one stream pixel word: data plus sof and eol."""
-    return in_width + 2
+def stream_word_bits(in_width: int) -> int:
+    """Bits of one stream stimulus word: data, eol, sof, the gap count and the idle data."""
+    return 2 * in_width + GAP_BITS + 2
 
 
-def stream_gap_bits(in_width: int) -> int:
-    """Bits of one stream gap word: idle data plus the :data:`GAP_BITS` gap count."""
-    return in_width + GAP_BITS
+def word_bytes(bits: int) -> int:
+    """Bytes of one binary stimulus word of ``bits`` bits (``$fread`` reads whole bytes)."""
+    return max(1, (bits + 7) // 8)
 
 
 @dataclass
 class HarnessSpec:
-    """Everything the harness text depends on (not the stimulus itself).
+    """Everything the harness text depends on (never the stimulus).
 
     Attributes:
         family: "video" or "stream".
         dut_top: the design's top module/entity name.
         roles: role -> the design's port name (clock and reset included).
-        in_width: input data bus bits, >= 1.
+        in_width: input data bus bits, 1..58.
         out_width: output data bus bits, >= 1.
         reset_active_high: polarity of the design's reset port.
-        out_hsync_active_high / out_vsync_active_high: polarity the capture uses for output syncs.
-        in_hsync_active_high / in_vsync_active_high: polarity of the input syncs (idle levels).
-        depth: player memory words (video: clocks; stream: transfers), >= the words played.
-        ready_depth: stream sink ready-pattern words.
+        parameters: design parameter/generic overrides, name -> value (int, or a string: a
+            Verilog string literal with its own quotes, or a bare string that gets quoted).
     """
 
     family: str
@@ -93,42 +134,73 @@ class HarnessSpec:
     in_width: int
     out_width: int
     reset_active_high: bool = True
-    out_hsync_active_high: bool = True
-    out_vsync_active_high: bool = True
-    in_hsync_active_high: bool = True
-    in_vsync_active_high: bool = True
-    depth: int = 1024
-    ready_depth: int = 1024
+    parameters: dict[str, Any] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         if self.family not in ("video", "stream"):
             raise ConfigError(f"harness: family {self.family!r} is not known; use 'video' or 'stream'")
-        for key in ("in_width", "out_width", "depth", "ready_depth"):
+        for key in ("in_width", "out_width"):
             value = getattr(self, key)
             if isinstance(value, bool) or not isinstance(value, int) or value < 1:
                 raise ConfigError(f"harness: {key} = {value!r}, expected an integer >= 1")
+        if self.in_width > 58:
+            raise ConfigError(f"harness: input data width {self.in_width} bits is too wide for the player (max 58)")
         if not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_$]*", self.dut_top or ""):
             raise ConfigError(f"harness: design top {self.dut_top!r} is not an HDL identifier; give the module name")
         if "clock" not in self.roles:
             raise ConfigError("harness: the signal map has no 'clock' role; map it to the design's clock port")
+        for name in self.parameters:
+            if not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_$]*", str(name)):
+                raise ConfigError(f"harness: parameter name {name!r} is not an HDL identifier; give the design's parameter name")
 
 
 @dataclass
 class HarnessBuild:
-    """What :func:`harness_sources` wrote, for the runner.
+    """What :func:`fast_build_plan` wrote and everything the build needs.
 
     Attributes:
-        files: generated HDL files, to compile before the user's sources.
-        toplevel: the simulation toplevel (:data:`TOPLEVEL`).
+        files: generated HDL files.
+        toplevel: the simulation toplevel (:data:`TOPLEVEL`, self-clocked).
         language: "verilog" or "vhdl".
         spec: the harness spec the text was made from.
+        sources: every file to compile, in order (harness and design).
+        defines: Verilog defines for the design (``NAME -> value``; the bug variants' switches).
+        build_args: simulator -> extra build arguments.
+        test_args: simulator -> extra run arguments.
+        key: hex digest of the harness text, defines, build arguments and source contents: equal keys
+            mean an equal build.
+        notes: remarks for the log.
     """
 
     files: list[Path]
     toplevel: str
     language: str
     spec: HarnessSpec
+    sources: list[Path] = field(default_factory=list)
+    defines: dict[str, Any] = field(default_factory=dict)
+    build_args: dict[str, list[str]] = field(default_factory=dict)
+    test_args: dict[str, list[str]] = field(default_factory=dict)
+    key: str = ""
     notes: list[str] = field(default_factory=list)
+
+    def build_kwargs(self, simulator: str) -> dict[str, Any]:
+        """Keyword arguments for ``cocotb_tools.runner`` ``build()`` (add ``build_dir``).
+
+        Raises:
+            ConfigError: the simulator cannot build this language.
+        """
+        if simulator not in self.build_args:
+            raise ConfigError(
+                f"fast path: simulator {simulator!r} cannot build the {self.language} harness; "
+                f"use one of {', '.join(sorted(self.build_args))}"
+            )
+        kw: dict[str, Any] = {"sources": [str(p) for p in self.sources], "hdl_toplevel": self.toplevel,
+                              "build_args": list(self.build_args[simulator]), "always": True}
+        if self.defines:
+            kw["defines"] = dict(self.defines)
+        if simulator == "icarus":
+            kw["timescale"] = ("1ns", "1ps")
+        return kw
 
 
 # ----------------------------------------------------------------------------------------------
@@ -157,6 +229,18 @@ def _eval_int(expr: str, params: Mapping[str, int]) -> int | None:
         return None
 
 
+def _int_overrides(overrides: Mapping[str, Any] | None) -> dict[str, int]:
+    out: dict[str, int] = {}
+    for name, value in (overrides or {}).items():
+        if isinstance(value, bool):
+            out[name] = int(value)
+        elif isinstance(value, int):
+            out[name] = value
+        elif isinstance(value, str) and re.fullmatch(r"\s*\d+\s*", value):
+            out[name] = int(value)
+    return out
+
+
 def _strip_comments(text: str, vhdl: bool) -> str:
     if vhdl:
         return re.sub(r"--[^\n]*", "", text)
@@ -164,11 +248,14 @@ def _strip_comments(text: str, vhdl: bool) -> str:
     return re.sub(r"//[^\n]*", "", text)
 
 
-def scan_port_widths(sources: Sequence[str | Path], top: str) -> dict[str, int]:
+def scan_port_widths(
+    sources: Sequence[str | Path], top: str, overrides: Mapping[str, Any] | None = None
+) -> dict[str, int]:
     """Read the port widths of module/entity ``top`` from HDL source text.
 
     Handles literal ranges and ranges written with the module's parameter/generic defaults
-    (``[WIDTH-1:0]``, ``(W - 1 downto 0)``). Ports whose width cannot be worked out are left out.
+    (``[WIDTH-1:0]``, ``(W - 1 downto 0)``); integer ``overrides`` replace the defaults. Ports whose
+    width cannot be worked out are left out.
 
     Returns:
         port name -> width in bits (1 for scalars).
@@ -185,6 +272,7 @@ def scan_port_widths(sources: Sequence[str | Path], top: str) -> dict[str, int]:
                 continue
             body = m.group(1)
             params = {k: v for k, e in _VHDL_GENERIC.findall(body) if (v := _eval_int(e, {})) is not None}
+            params.update(_int_overrides(overrides))
             ports: dict[str, int] = {}
             port_part = body[re.search(r"\bport\b", body, re.I).start():] if re.search(r"\bport\b", body, re.I) else ""
             for names, _d, _t, rng, left, _dir, right in _VHDL_PORT.findall(port_part):
@@ -207,6 +295,7 @@ def scan_port_widths(sources: Sequence[str | Path], top: str) -> dict[str, int]:
             value = _eval_int(expr, params)
             if value is not None:
                 params[name] = value
+        params.update(_int_overrides(overrides))
         ports = {}
         direction: str | None = None
         width = 1
@@ -246,69 +335,101 @@ def _v_x(expr: str) -> str:
     return f"(({expr}) !== 1'b0 && ({expr}) !== 1'b1)"
 
 
-def verilog_harness(spec: HarnessSpec) -> str:
-    """Return the Verilog-2001 text of ``vkit_harness`` for ``spec``.
+def _v_value(value: Any) -> str:
+    """A parameter value as Verilog text: numbers as they are, strings as string literals."""
+    if isinstance(value, bool):
+        return "1" if value else "0"
+    if isinstance(value, (int, float)):
+        return repr(value)
+    text = str(value)
+    if len(text) >= 2 and text[0] == text[-1] == '"':
+        return text
+    if re.fullmatch(r"\s*-?\d+\s*|\s*\d*'[sS]?[bBoOdDhH][0-9a-fA-F_xXzZ?]+\s*", text):
+        return text.strip()
+    return '"' + text.replace("\\", "\\\\").replace('"', '\\"') + '"'
 
-    Ports: ``load`` (rising edge: read the plusargs and the stimulus files, open the capture
-    file; raise it before releasing reset), ``clk``, ``rst`` (active high, drives the design's reset with its own polarity), and
-    outputs ``done``, ``timed_out``, ``frame_pulse``, ``pix_stb``/``pix_data``/``pix_xz`` (one clock
-    per captured output pixel, for a checker) and ``clocks`` (clocks since reset).
-    Parameters (overridable by plusargs ``+vkit_stim=``, ``+vkit_gaps=``, ``+vkit_ready=``,
-    ``+vkit_capture=``, ``+vkit_words=``, ``+vkit_ready_words=``, ``+vkit_drain=``,
-    ``+vkit_timeout=``): file names, the words to play, the drain clocks and the timeout clocks.
+
+def _vhdl_value(value: Any) -> str:
+    """A generic value as VHDL text: numbers as they are, strings as string literals."""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (int, float)):
+        return repr(value)
+    text = str(value)
+    if len(text) >= 2 and text[0] == text[-1] == '"':
+        return text
+    if re.fullmatch(r"\s*-?\d+\s*", text):
+        return text.strip()
+    return '"' + text.replace('"', '""') + '"'
+
+
+_LINT = ("WIDTHEXPAND", "WIDTHTRUNC", "UNUSEDSIGNAL", "UNUSEDPARAM", "BLKSEQ", "UNDRIVEN", "MULTIDRIVEN")
+
+
+def verilog_harness(spec: HarnessSpec) -> str:
+    """Return the Verilog-2001 text of ``vkit_harness`` and ``vkit_fast_top`` for ``spec``.
+
+    ``vkit_harness`` ports: ``load`` (rising edge: read the plusargs, open the stimulus and capture
+    files, read the first word; raise it before releasing reset), ``clk``, ``rst`` (active high,
+    drives the design's reset with its own polarity), and outputs ``done``, ``timed_out``,
+    ``frame_pulse``, ``pix_stb``/``pix_data``/``pix_xz`` (one clock per captured output pixel, for a
+    checker) and ``clocks`` (clocks since reset). Parameters, each overridable by a plusarg:
+    ``STIM_FILE`` (``+vkit_stim=``), ``READY_FILE`` (``+vkit_ready=``), ``CAPTURE_FILE``
+    (``+vkit_capture=``), ``RWORDS`` (``+vkit_ready_words=``, 1..:data:`READY_WORDS`), ``DRAIN``
+    (``+vkit_drain=``, clocks captured after the stimulus ends), ``TIMEOUT`` (``+vkit_timeout=``,
+    clocks, 0 = none), ``EXPECT`` (``+vkit_expect=``, stream: output pixels expected), ``HS_HIGH`` /
+    ``VS_HIGH`` (``+vkit_hs_high=``, ``+vkit_vs_high=``: sync polarity, 1 = active high).
+
+    ``vkit_fast_top`` has no inputs: it toggles ``clk`` every ``+vkit_half_ns=`` ns (default 5),
+    raises ``load`` a quarter period in, holds reset for ``+vkit_reset_cycles=`` rising edges
+    (default 4) and shows ``done``, ``timed_out``, ``frame_pulse`` and ``clocks``.
     """
     r = spec.roles
     iw, ow = spec.in_width, spec.out_width
+    video = spec.family == "video"
+    nbits = video_word_bits(iw) if video else stream_word_bits(iw)
+    nb = word_bytes(nbits)
     conns: list[str] = [f".{r['clock']}(clk)"]
     if "reset" in r:
         conns.append(f".{r['reset']}(dut_rst)")
-    video = spec.family == "video"
-    for role in (_VIDEO_IN + _VIDEO_OUT) if video else (_STREAM_IN + _STREAM_OUT):
+    roles_all = (_VIDEO_IN + _VIDEO_OUT) if video else (_STREAM_IN + _STREAM_OUT)
+    for role in roles_all:
         if role in r:
             conns.append(f".{r[role]}(d_{role})")
     decl: list[str] = []
     width = {"in_data": iw, "out_data": ow}
-    for role in (_VIDEO_IN + _VIDEO_OUT) if video else (_STREAM_IN + _STREAM_OUT):
+    for role in roles_all:
         w = width.get(role, 1)
         rng = f"[{w - 1}:0] " if w > 1 or role.endswith("data") else ""
         is_in = role in (_VIDEO_IN if video else _STREAM_IN)
         decl.append(f"    {'reg ' if is_in else 'wire'} {rng}d_{role};")
-    # Optional output roles that are not mapped read as constants.
     tie: list[str] = []
-    defaults = {"out_valid": "1'b1", "out_vsync": _vbool(not spec.out_vsync_active_high),
-                "out_hsync": _vbool(not spec.out_hsync_active_high)}
-    for role, value in defaults.items():
-        if video and role not in r:
-            tie.append(f"    assign d_{role} = {value};")
     if video:
-        load = "        if (n_words > 0) $readmemh(stim_path, mem, 0, n_words - 1);"
-    else:
-        load = ("        if (n_words > 0) begin\n"
-                "            $readmemh(stim_path, pix_mem, 0, n_words - 1);\n"
-                "            $readmemh(gaps_path, gap_mem, 0, n_words - 1);\n"
-                "        end\n"
-                "        $readmemh(ready_path, rdy_mem, 0, n_ready - 1);")
+        for role, value in (("out_valid", "1'b1"), ("out_vsync", "~vs_on"), ("out_hsync", "~hs_on")):
+            if role not in r:
+                tie.append(f"    assign d_{role} = {value};")
+    params = ""
+    if spec.parameters:
+        items = [f".{k}({_v_value(v)})" for k, v in spec.parameters.items()]
+        params = " #(\n        " + ",\n        ".join(items) + "\n    )"
+    lint_off = "".join(f"/* verilator lint_off {w} */\n" for w in _LINT)
+    lint_on = "".join(f"/* verilator lint_on {w} */\n" for w in _LINT)
     head = f"""// Generated by vkit.harness: fast-path harness around {spec.dut_top} ({spec.family} family).
-// Plays stimulus from memory (one word per {'clock' if video else 'transfer'}) and writes one capture
-// line per output event; do not edit, regenerate instead.
+// Streams one stimulus word per {'clock' if video else 'transfer'} from a binary file ($fread, {nb} bytes,
+// big-endian) and writes one capture line per output event; do not edit, regenerate instead.
 `timescale 1ns/1ps
-/* verilator lint_off WIDTHEXPAND */
-/* verilator lint_off WIDTHTRUNC */
-/* verilator lint_off UNUSEDSIGNAL */
-/* verilator lint_off UNUSEDPARAM */
-/* verilator lint_off BLKSEQ */
-module {TOPLEVEL} #(
+{lint_off}module {HARNESS} #(
     parameter IW = {iw},
     parameter OW = {ow},
-    parameter DEPTH = {spec.depth},
-    parameter RDEPTH = {spec.ready_depth},
-    parameter WORDS = {spec.depth},
+    parameter NB = {nb},
+    parameter RDEPTH = {READY_WORDS},
     parameter RWORDS = 1,
     parameter DRAIN = 0,
     parameter TIMEOUT = 0,
     parameter EXPECT = 0,
-    parameter STIM_FILE = "stim.hex",
-    parameter GAPS_FILE = "gaps.hex",
+    parameter HS_HIGH = 1,
+    parameter VS_HIGH = 1,
+    parameter STIM_FILE = "stim.bin",
     parameter READY_FILE = "ready.hex",
     parameter CAPTURE_FILE = "capture.txt"
 ) (
@@ -323,51 +444,102 @@ module {TOPLEVEL} #(
     output reg           pix_xz,
     output reg  [31:0]   clocks
 );
-    reg [8*1024-1:0] stim_path, gaps_path, ready_path, cap_path;
-    integer n_words, n_ready, drain, timeout, n_expect, fd;
+    reg [8*1024-1:0] stim_path, ready_path, cap_path;
+    integer n_ready, drain, timeout, n_expect, fd, sfd, got, hs_high, vs_high;
+    reg [8*NB-1:0] first_word, nxt;
+    reg first_ok;
+    wire hs_on = (hs_high != 0);
+    wire vs_on = (vs_high != 0);
     wire dut_rst = {'rst' if spec.reset_active_high else '~rst'};
 {chr(10).join(decl)}
 {chr(10).join(tie)}
 
-    {spec.dut_top} dut (
+    {spec.dut_top}{params} dut (
         {(',' + chr(10) + '        ').join(conns)}
     );
 
     initial begin
         done = 1'b0; timed_out = 1'b0; frame_pulse = 1'b0; pix_stb = 1'b0; pix_xz = 1'b0;
-        pix_data = {{OW{{1'b0}}}}; clocks = 32'd0; fd = 0;
-        n_words = WORDS; n_ready = RWORDS; drain = DRAIN; timeout = TIMEOUT; n_expect = EXPECT;
+        pix_data = {{OW{{1'b0}}}}; clocks = 32'd0; fd = 0; sfd = 0; first_ok = 1'b0;
+        first_word = {{(8*NB){{1'b0}}}}; nxt = {{(8*NB){{1'b0}}}};
+        n_ready = RWORDS; drain = DRAIN; timeout = TIMEOUT; n_expect = EXPECT;
+        hs_high = HS_HIGH; vs_high = VS_HIGH;
     end
 
-    // Files are read when `load` rises, so a cocotb test can write them first.
+    // Files are opened when `load` rises, so a test can write them first.
     always @(posedge load) begin
-        stim_path = STIM_FILE; gaps_path = GAPS_FILE; ready_path = READY_FILE; cap_path = CAPTURE_FILE;
+        stim_path = STIM_FILE; ready_path = READY_FILE; cap_path = CAPTURE_FILE;
         if ($value$plusargs("vkit_stim=%s", stim_path)) begin end
-        if ($value$plusargs("vkit_gaps=%s", gaps_path)) begin end
         if ($value$plusargs("vkit_ready=%s", ready_path)) begin end
         if ($value$plusargs("vkit_capture=%s", cap_path)) begin end
-        if ($value$plusargs("vkit_words=%d", n_words)) begin end
         if ($value$plusargs("vkit_ready_words=%d", n_ready)) begin end
         if ($value$plusargs("vkit_drain=%d", drain)) begin end
         if ($value$plusargs("vkit_timeout=%d", timeout)) begin end
         if ($value$plusargs("vkit_expect=%d", n_expect)) begin end
-        if (n_words > DEPTH) begin
-            $display("vkit: error: %0d stimulus words but the harness memory holds %0d; regenerate the harness", n_words, DEPTH);
-            $finish;
-        end
+        if ($value$plusargs("vkit_hs_high=%d", hs_high)) begin end
+        if ($value$plusargs("vkit_vs_high=%d", vs_high)) begin end
         fd = $fopen(cap_path, "w");
         if (fd == 0) begin
             $display("vkit: error: cannot open the capture file for writing");
             $finish;
         end
         $fwrite(fd, "# vkit capture 1 {spec.family}\\n");
-{load}
-    end
+        sfd = $fopen(stim_path, "rb");
+        if (sfd == 0) begin
+            $display("vkit: error: cannot open the stimulus file; give +vkit_stim=<path of stim.bin>");
+            $fwrite(fd, "0 E -\\n");
+            $fclose(fd);
+            $finish;
+        end
+        got = $fread(first_word, sfd);
+        first_ok = (got == NB);
+{'' if video else _verilog_ready_load()}    end
 """
     body = _verilog_video(spec) if video else _verilog_stream(spec)
-    lint_on = "".join(f"/* verilator lint_on {w} */\n" for w in ("WIDTHEXPAND", "WIDTHTRUNC", "UNUSEDSIGNAL",
-                                                                    "UNUSEDPARAM", "BLKSEQ"))
-    return head + body + "endmodule\n" + lint_on
+    return head + body + "endmodule\n\n" + _verilog_top(spec) + lint_on
+
+
+def _verilog_ready_load() -> str:
+    return """        if (n_ready < 1 || n_ready > RDEPTH) begin
+            $display("vkit: error: %0d ready-pattern words, the harness holds 1..%0d; write a shorter pattern", n_ready, RDEPTH);
+            $finish;
+        end
+        $readmemh(ready_path, rdy_mem, 0, n_ready - 1);
+"""
+
+
+def _verilog_top(spec: HarnessSpec) -> str:
+    return f"""// Self-clocked wrapper: clock, load and reset made in HDL, so no Python runs per clock.
+module {TOPLEVEL} (
+    output wire        done,
+    output wire        timed_out,
+    output wire        frame_pulse,
+    output wire [31:0] clocks
+);
+    reg clk, rst, load;
+    real half_ns;
+    integer reset_cycles;
+    wire pix_stb, pix_xz;
+    wire [{spec.out_width - 1}:0] pix_data;
+
+    {HARNESS} h (
+        .clk(clk), .rst(rst), .load(load), .done(done), .timed_out(timed_out), .frame_pulse(frame_pulse),
+        .pix_stb(pix_stb), .pix_data(pix_data), .pix_xz(pix_xz), .clocks(clocks)
+    );
+
+    initial begin
+        clk = 1'b0; rst = 1'b1; load = 1'b0;
+        half_ns = 5.0; reset_cycles = 4;
+        if ($value$plusargs("vkit_half_ns=%f", half_ns)) begin end
+        if ($value$plusargs("vkit_reset_cycles=%d", reset_cycles)) begin end
+        #(half_ns / 2.0) load = 1'b1;
+        repeat (reset_cycles) @(posedge clk);
+        rst <= 1'b0;
+    end
+
+    always #(half_ns) clk = ~clk;
+endmodule
+"""
 
 
 def _verilog_finish_block() -> str:
@@ -388,23 +560,16 @@ def _verilog_finish_block() -> str:
 
 def _verilog_video(spec: HarnessSpec) -> str:
     iw = spec.in_width
-    sw = video_word_bits(iw)
-    idle_hs = _vbool(not spec.in_hsync_active_high)
-    idle_vs = _vbool(not spec.in_vsync_active_high)
-    vs_act = "d_out_vsync" if spec.out_vsync_active_high else "~d_out_vsync"
-    hs_act = "d_out_hsync" if spec.out_hsync_active_high else "~d_out_hsync"
     return f"""
     // ---- player: one word per clock {{frame_mark, hsync, vsync, de, valid, data}}
-    reg [{sw - 1}:0] mem [0:DEPTH-1];
-    reg [31:0] addr;
-    reg        playing;
-    wire [{sw - 1}:0] word = mem[addr];
+    reg [8*NB-1:0] word;
+    reg playing;
     always @* begin
-        if (playing) begin
+        if (playing === 1'b1) begin
             d_in_hsync = word[{iw + 3}]; d_in_vsync = word[{iw + 2}];
             d_in_de = word[{iw + 1}]; d_in_valid = word[{iw}]; d_in_data = word[{iw - 1}:0];
         end else begin
-            d_in_hsync = {idle_hs}; d_in_vsync = {idle_vs}; d_in_de = 1'b0; d_in_valid = 1'b0;
+            d_in_hsync = ~hs_on; d_in_vsync = ~vs_on; d_in_de = 1'b0; d_in_valid = 1'b0;
             d_in_data = {{IW{{1'b0}}}};
         end
     end
@@ -416,21 +581,22 @@ def _verilog_video(spec: HarnessSpec) -> str:
     always @* begin
         c_de = (d_out_de === 1'b1);
         c_valid = (d_out_valid === 1'b1);
-        c_vs = (({vs_act}) === 1'b1);
-        c_hs = (({hs_act}) === 1'b1);
+        c_vs = (d_out_vsync === vs_on);
+        c_hs = (d_out_hsync === hs_on);
     end
     always @(posedge clk) begin
         pix_stb <= 1'b0;
         frame_pulse <= 1'b0;
         if (rst) begin
-            addr <= 32'd0; playing <= (n_words > 0); clocks <= 32'd0; tail <= 32'd0;
+            word <= first_word; playing <= first_ok; clocks <= 32'd0; tail <= 32'd0;
             prev_de <= 1'b0; prev_vs <= 1'b0; prev_hs <= 1'b0;
         end else if (!done) begin
             clocks <= clocks + 32'd1;
             if (playing) begin
                 frame_pulse <= word[{iw + 4}];
-                if (addr + 32'd1 >= n_words) playing <= 1'b0;
-                addr <= addr + 32'd1;
+                got = $fread(nxt, sfd);
+                if (got == NB) word <= nxt;
+                else playing <= 1'b0;
             end else begin
                 tail <= tail + 32'd1;
             end
@@ -464,25 +630,22 @@ def _verilog_video(spec: HarnessSpec) -> str:
 
 def _verilog_stream(spec: HarnessSpec) -> str:
     iw = spec.in_width
-    pw = stream_pixel_bits(iw)
-    gw = stream_gap_bits(iw)
+    g0, g1 = iw + 2, iw + 1 + GAP_BITS
+    i0, i1 = iw + 2 + GAP_BITS, 2 * iw + 1 + GAP_BITS
     return f"""
-    // ---- source: transfers {{sof, eol, data}} with idle gaps {{idle_data, gap}}; sink ready pattern
-    reg [{pw - 1}:0] pix_mem [0:DEPTH-1];
-    reg [{gw - 1}:0] gap_mem [0:DEPTH-1];
+    // ---- source: transfers {{idle_data, gap, sof, eol, data}}, gap idle clocks before each; sink ready pattern
     reg              rdy_mem [0:RDEPTH-1];
-    reg [31:0] xi, ri, tail, npix;
+    reg [8*NB-1:0] cur;
+    reg [31:0] ri, tail, npix;
     reg [{GAP_BITS - 1}:0] gap_left;
-    reg        started;
-    wire sending = started && !done && (xi < n_words);
+    reg        started, have, any_xfer;
+    wire sending = started && !done && have;
     wire offer = sending && (gap_left == {GAP_BITS}'d0);
-    wire [{pw - 1}:0] pword = pix_mem[xi];
-    wire [{gw - 1}:0] gword = gap_mem[xi];
     always @* begin
         d_in_valid = offer;
-        d_in_sof = offer & pword[{iw + 1}];
-        d_in_eol = offer & pword[{iw}];
-        d_in_data = offer ? pword[{iw - 1}:0] : (sending ? gword[{gw - 1}:{GAP_BITS}] : {{IW{{1'b0}}}});
+        d_in_sof = offer & cur[{iw + 1}];
+        d_in_eol = offer & cur[{iw}];
+        d_in_data = offer ? cur[{iw - 1}:0] : (sending ? cur[{i1}:{i0}] : {{IW{{1'b0}}}});
         d_out_ready = started && !done && rdy_mem[ri];
     end
 {_verilog_finish_block()}
@@ -496,17 +659,25 @@ def _verilog_stream(spec: HarnessSpec) -> str:
         pix_stb <= 1'b0;
         frame_pulse <= 1'b0;
         if (rst) begin
-            xi <= 32'd0; ri <= 32'd0; clocks <= 32'd0; tail <= 32'd0; npix <= 32'd0; started <= 1'b1;
-            waited <= 1'b0;
-            gap_left <= (n_words > 0) ? gap_mem[0][{GAP_BITS - 1}:0] : {GAP_BITS}'d0;
+            ri <= 32'd0; clocks <= 32'd0; tail <= 32'd0; npix <= 32'd0; started <= 1'b1;
+            waited <= 1'b0; any_xfer <= 1'b0;
+            cur <= first_word; have <= first_ok;
+            gap_left <= first_ok ? first_word[{g1}:{g0}] : {GAP_BITS}'d0;
         end else if (!done) begin
             clocks <= clocks + 32'd1;
             ri <= (ri + 32'd1 >= n_ready) ? 32'd0 : ri + 32'd1;
             if (offer && (d_in_ready === 1'b1)) begin
-                if (pword[{iw + 1}]) frame_pulse <= 1'b1;
-                if (xi == 32'd0) $fwrite(fd, "%0d I -\\n", clocks);
-                xi <= xi + 32'd1;
-                gap_left <= (xi + 32'd1 < n_words) ? gap_mem[xi + 32'd1][{GAP_BITS - 1}:0] : {GAP_BITS}'d0;
+                if (cur[{iw + 1}]) frame_pulse <= 1'b1;
+                if (!any_xfer) $fwrite(fd, "%0d I -\\n", clocks);
+                any_xfer <= 1'b1;
+                got = $fread(nxt, sfd);
+                if (got == NB) begin
+                    cur <= nxt;
+                    gap_left <= nxt[{g1}:{g0}];
+                end else begin
+                    have <= 1'b0;
+                    gap_left <= {GAP_BITS}'d0;
+                end
             end else if (sending && gap_left != {GAP_BITS}'d0) begin
                 gap_left <= gap_left - {GAP_BITS}'d1;
             end
@@ -547,11 +718,14 @@ def _verilog_stream(spec: HarnessSpec) -> str:
 
 
 def vhdl_harness(spec: HarnessSpec) -> str:
-    """Return the VHDL-2008 text of entity ``vkit_harness`` for ``spec`` (video family only).
+    """Return the VHDL-2008 text of entities ``vkit_harness`` and ``vkit_fast_top`` for ``spec`` (video only).
 
-    Same ports as the Verilog harness; file names, word counts, drain and timeout are generics
-    (``STIM_FILE``, ``CAPTURE_FILE``, ``WORDS``, ``DRAIN``, ``TIMEOUT``), set with GHDL's ``-g``.
-    Same stimulus and capture file formats as :func:`verilog_harness`.
+    Same ports as the Verilog harness. The stimulus is a hex text file (one word per line, the
+    video word of :func:`verilog_harness`) read into a memory of ``DEPTH`` words; file names, word
+    counts, depth, drain, timeout and sync polarity are generics (``STIM_FILE``, ``CAPTURE_FILE``,
+    ``WORDS``, ``DEPTH``, ``DRAIN``, ``TIMEOUT``, ``HS_HIGH``, ``VS_HIGH``) that GHDL takes at run
+    time (``-gNAME=VALUE``), so a new stimulus needs no new build. ``vkit_fast_top`` adds
+    ``HALF_PS`` (half clock period, ps) and ``RESET_CYCLES`` and makes clock, load and reset itself.
     """
     if spec.family != "video":
         raise ConfigError("VHDL harness: only the video family is generated for VHDL; use a Verilog harness for stream")
@@ -577,11 +751,15 @@ def vhdl_harness(spec: HarnessSpec) -> str:
     if "out_valid" not in r:
         ties.append("    d_out_valid <= '1';")
     if "out_vsync" not in r:
-        ties.append(f"    d_out_vsync <= '{0 if spec.out_vsync_active_high else 1}';")
+        ties.append("    d_out_vsync <= not vs_on;")
     if "out_hsync" not in r:
-        ties.append(f"    d_out_hsync <= '{0 if spec.out_hsync_active_high else 1}';")
-    vs_on = "'1'" if spec.out_vsync_active_high else "'0'"
-    hs_on = "'1'" if spec.out_hsync_active_high else "'0'"
+        ties.append("    d_out_hsync <= not hs_on;")
+    vs_on = "vs_on"
+    hs_on = "hs_on"
+    gmap = ""
+    if spec.parameters:
+        gmap = ("\n        generic map (\n            "
+                + ",\n            ".join(f"{k} => {_vhdl_value(v)}" for k, v in spec.parameters.items()) + "\n        )")
     return f"""-- Generated by vkit.harness: fast-path harness around {spec.dut_top} (video family, VHDL-2008).
 -- Plays one stimulus word per clock from memory and writes one capture line per output event.
 library ieee;
@@ -589,12 +767,14 @@ use ieee.std_logic_1164.all;
 use ieee.numeric_std.all;
 use std.textio.all;
 
-entity {TOPLEVEL} is
+entity {HARNESS} is
     generic (
-        DEPTH        : positive := {spec.depth};
-        WORDS        : natural := {spec.depth};
+        DEPTH        : positive := 1;
+        WORDS        : natural := 0;
         DRAIN        : natural := 0;
         TIMEOUT      : natural := 0;
+        HS_HIGH      : natural := 1;
+        VS_HIGH      : natural := 1;
         STIM_FILE    : string := "stim.hex";
         CAPTURE_FILE : string := "capture.txt"
     );
@@ -612,7 +792,7 @@ entity {TOPLEVEL} is
     );
 end entity;
 
-architecture harness of {TOPLEVEL} is
+architecture harness of {HARNESS} is
     type mem_t is array (0 to DEPTH - 1) of std_logic_vector({sw - 1} downto 0);
 
     impure function load_mem(path : string; n : natural) return mem_t is
@@ -643,13 +823,22 @@ architecture harness of {TOPLEVEL} is
     signal playing : boolean := false;
     signal fin     : std_logic := '0';
     signal word    : std_logic_vector({sw - 1} downto 0);
+    function on_level(n : natural) return std_logic is
+    begin
+        if n /= 0 then
+            return '1';
+        end if;
+        return '0';
+    end function;
+    constant hs_on : std_logic := on_level(HS_HIGH);
+    constant vs_on : std_logic := on_level(VS_HIGH);
 {chr(10).join(sigs)}
 begin
     dut_rst <= {'rst' if spec.reset_active_high else 'not rst'};
 {chr(10).join(ties)}
     word <= MEM(addr) when addr < DEPTH else (others => '0');
-    d_in_hsync <= word({iw + 3}) when playing else '{0 if spec.in_hsync_active_high else 1}';
-    d_in_vsync <= word({iw + 2}) when playing else '{0 if spec.in_vsync_active_high else 1}';
+    d_in_hsync <= word({iw + 3}) when playing else not hs_on;
+    d_in_vsync <= word({iw + 2}) when playing else not vs_on;
     d_in_de    <= word({iw + 1}) when playing else '0';
     d_in_valid <= word({iw}) when playing else '0';
     d_in_data  <= word({iw - 1} downto 0) when playing else (others => '0');
@@ -659,11 +848,13 @@ begin
     loader : process (load)
     begin
         if rising_edge(load) then
+            assert WORDS <= DEPTH report "vkit: error: WORDS = " & integer'image(WORDS) & " stimulus words but DEPTH = "
+                & integer'image(DEPTH) & "; give DEPTH >= WORDS" severity failure;
             MEM <= load_mem(STIM_FILE, WORDS);
         end if;
     end process;
 
-    dut : entity work.{spec.dut_top}
+    dut : entity work.{spec.dut_top}{gmap}
         port map (
             {(',' + chr(10) + '            ').join(conns)}
         );
@@ -756,6 +947,63 @@ begin
         end if;
     end process;
 end architecture;
+
+-- Self-clocked wrapper: clock, load and reset made in HDL, so no Python runs per clock.
+library ieee;
+use ieee.std_logic_1164.all;
+
+entity {TOPLEVEL} is
+    generic (
+        DEPTH        : positive := 1;
+        WORDS        : natural := 0;
+        DRAIN        : natural := 0;
+        TIMEOUT      : natural := 0;
+        HS_HIGH      : natural := 1;
+        VS_HIGH      : natural := 1;
+        STIM_FILE    : string := "stim.hex";
+        CAPTURE_FILE : string := "capture.txt";
+        HALF_PS      : positive := 5000;
+        RESET_CYCLES : positive := 4
+    );
+    port (
+        done        : out std_logic;
+        timed_out   : out std_logic;
+        frame_pulse : out std_logic;
+        clocks      : out natural
+    );
+end entity;
+
+architecture top of {TOPLEVEL} is
+    constant HALF : time := HALF_PS * 1 ps;
+    signal clk, load : std_logic := '0';
+    signal rst : std_logic := '1';
+    signal pix_stb, pix_xz : std_logic;
+    signal pix_data : {slv(ow)};
+begin
+    clk <= not clk after HALF;
+
+    h : entity work.{HARNESS}
+        generic map (
+            DEPTH => DEPTH, WORDS => WORDS, DRAIN => DRAIN, TIMEOUT => TIMEOUT, HS_HIGH => HS_HIGH,
+            VS_HIGH => VS_HIGH, STIM_FILE => STIM_FILE, CAPTURE_FILE => CAPTURE_FILE
+        )
+        port map (
+            clk => clk, rst => rst, load => load, done => done, timed_out => timed_out,
+            frame_pulse => frame_pulse, pix_stb => pix_stb, pix_data => pix_data, pix_xz => pix_xz,
+            clocks => clocks
+        );
+
+    reset : process
+    begin
+        wait for HALF / 2;
+        load <= '1';
+        for i in 1 to RESET_CYCLES loop
+            wait until rising_edge(clk);
+        end loop;
+        rst <= '0';
+        wait;
+    end process;
+end architecture;
 """
 
 
@@ -769,36 +1017,81 @@ def _case_get(case: Any, key: str, default: Any = None) -> Any:
     return getattr(case, key, default)
 
 
-def spec_from_case(
-    case: Any,
+def _language_of(sources: Sequence[str | Path], language: str | None) -> str:
+    if language is None:
+        suffixes = {Path(s).suffix.lower() for s in sources}
+        language = "vhdl" if suffixes and suffixes <= {".vhd", ".vhdl"} else "verilog"
+    if language not in ("verilog", "vhdl"):
+        raise ConfigError(f"harness: language {language!r} is not known; use 'verilog' or 'vhdl'")
+    return language
+
+
+def _verilator_args() -> list[str]:
+    # --timing runs the harness's own clock; g++ 12 needs C++20 for Verilator's coroutines.
+    return ["--timing", "-CFLAGS", "-std=gnu++20", "-O3", "-Wno-fatal", "-Wno-lint", "-Wno-style"]
+
+
+def fast_build_plan(
     dut_top: str,
-    *,
-    sources: Sequence[str | Path] = (),
+    sources: Sequence[str | Path],
+    language: str | None,
+    parameters: Mapping[str, Any] | None,
+    defines: Mapping[str, Any] | None,
+    family: str,
+    signals: Mapping[str, str],
     in_width: int | None = None,
     out_width: int | None = None,
-    depth: int | None = None,
-    ready_depth: int | None = None,
-) -> HarnessSpec:
-    """Build a :class:`HarnessSpec` from a SimCase (or a dict with the same keys).
+    *,
+    out_dir: str | Path | None = None,
+    reset_active_high: bool = True,
+    pixel_format: str | None = None,
+) -> HarnessBuild:
+    """Write the fast-path harness for a design and describe the one build every case runs on.
 
-    Widths come from the arguments, else from the source text (:func:`scan_port_widths`), else the
-    input width from the pixel format.
+    The result depends only on the arguments (never on a stimulus), so the runner builds once per
+    design variant and simulator, keyed on ``HarnessBuild.key``.
+
+    Args:
+        dut_top: the design's top module/entity.
+        sources: the design's HDL files in compile order (absolute paths are safest).
+        language: "verilog" or "vhdl"; None = from the sources' suffixes.
+        parameters: design parameter/generic overrides (``{"ROOT_TABLE": '"/abs/t.hex"', "HEIGHT": 24}``),
+            applied in the harness's instance of the design.
+        defines: Verilog defines for the build (``{"BUG_ADDR_WRAP": 1}``), or None.
+        family: "video" or "stream".
+        signals: role -> the design's port name (clock, reset, in_*, out_*).
+        in_width / out_width: data bus bits; None = read from the sources (with ``parameters``),
+            else the input from ``pixel_format``.
+        out_dir: folder for the harness file(s); None = a folder named after the content hash
+            under the system temp folder.
+        reset_active_high: polarity of the design's reset.
+        pixel_format: "gray8" or "rgb888", only used when ``in_width`` cannot be read.
+
+    Returns:
+        A :class:`HarnessBuild`.
 
     Raises:
-        ConfigError: a width cannot be worked out (give ``in_width``/``out_width``).
+        ConfigError: a width cannot be worked out, or a bad family/language/name.
     """
-    from vkit.stimulus import case_timing, stimulus_words_needed
-
-    family = str(_case_get(case, "family", "video"))
-    signals = _case_get(case, "signals", {})
+    language = _language_of(sources, language)
+    params = dict(parameters or {})
     roles = dict(getattr(signals, "roles", signals) or {})
-    scanned = scan_port_widths(sources, dut_top) if sources else {}
+    srcs = [Path(s) for s in sources]
+    for src in srcs:
+        if not src.is_file():
+            raise ConfigError(f"fast path: design source {str(src)!r} does not exist; give the design's HDL files")
+    scanned = scan_port_widths(srcs, dut_top, params)
     if in_width is None:
         in_width = scanned.get(roles.get("in_data", ""))
-    if in_width is None:
+    if in_width is None and pixel_format:
         from vkit.tb.signals import pixel_bits
 
-        in_width = pixel_bits(str(_case_get(case, "pixel_format", "gray8")))
+        in_width = pixel_bits(pixel_format)
+    if in_width is None:
+        raise ConfigError(
+            f"harness: cannot work out the width of input port {roles.get('in_data')!r} of {dut_top!r} from the "
+            "sources; give in_width (bits of the input data bus)"
+        )
     if out_width is None:
         out_width = scanned.get(roles.get("out_data", ""))
     if out_width is None:
@@ -806,31 +1099,89 @@ def spec_from_case(
             f"harness: cannot work out the width of output port {roles.get('out_data')!r} of {dut_top!r} from "
             "the sources; give out_width (bits of the output data bus)"
         )
-    timing = case_timing(case) if family == "video" else None
-    if depth is None:
-        depth = stimulus_words_needed(case)
-    pol_h = bool(getattr(timing, "hsync_active_high", True))
-    pol_v = bool(getattr(timing, "vsync_active_high", True))
-    return HarnessSpec(
-        family=family,
-        dut_top=dut_top,
-        roles=roles,
-        in_width=int(in_width),
-        out_width=int(out_width),
-        reset_active_high=bool(_case_get(case, "reset_active_high", True)),
-        out_hsync_active_high=pol_h,
-        out_vsync_active_high=pol_v,
-        in_hsync_active_high=pol_h,
-        in_vsync_active_high=pol_v,
-        depth=max(1, int(depth)),
-        ready_depth=max(1, int(ready_depth or _ready_depth(case))),
-    )
+    spec = HarnessSpec(family=family, dut_top=dut_top, roles=roles, in_width=int(in_width), out_width=int(out_width),
+                       reset_active_high=bool(reset_active_high), parameters=params)
+    text = vhdl_harness(spec) if language == "vhdl" else verilog_harness(spec)
+    defs = dict(defines or {})
+    if language == "vhdl":
+        if defs:
+            raise ConfigError(f"fast path: defines {sorted(defs)} apply to Verilog; VHDL designs take generics (parameters)")
+        build_args = {"ghdl": ["--std=08"]}
+        test_args = {"ghdl": ["--std=08"]}
+    else:
+        build_args = {"icarus": [], "verilator": _verilator_args()}
+        test_args = {"icarus": [], "verilator": []}
+    h = hashlib.sha256(text.encode())
+    h.update(repr(sorted((k, str(v)) for k, v in defs.items())).encode())
+    h.update(repr(sorted(build_args.items())).encode())
+    for src in srcs:
+        h.update(str(src.resolve()).encode() + b"\0" + src.read_bytes())
+    key = h.hexdigest()
+    out = Path(out_dir) if out_dir is not None else Path(tempfile.gettempdir()) / "vkit_harness" / key[:16]
+    out.mkdir(parents=True, exist_ok=True)
+    path = out / (f"{HARNESS}.vhd" if language == "vhdl" else f"{HARNESS}.v")
+    if not path.is_file() or path.read_text() != text:
+        tmp = path.with_suffix(path.suffix + f".{id(text)}.tmp")
+        tmp.write_text(text)
+        tmp.replace(path)
+    files = [path]
+    ordered = [*srcs, path] if language == "vhdl" else [path, *srcs]
+    return HarnessBuild(files=files, toplevel=TOPLEVEL, language=language, spec=spec, sources=ordered,
+                        defines=defs, build_args=build_args, test_args=test_args, key=key)
 
 
-def _ready_depth(case: Any) -> int:
-    from vkit.stimulus import READY_PATTERN_WORDS
+def fast_test_args(case: Any, simulator: str, *, in_width: int | None = None) -> dict[str, Any]:
+    """Write ``case``'s stimulus (once) beside its capture file and return ``runner.test`` keyword arguments.
 
-    return READY_PATTERN_WORDS
+    Args:
+        case: a :class:`vkit.tb.case.SimCase`; its ``capture_file`` decides where files go.
+        simulator: "icarus", "verilator" (Verilog harness) or "ghdl" (VHDL harness).
+        in_width: input data bus bits when it differs from the pixel format's bits.
+
+    Returns:
+        ``dict(hdl_toplevel, test_module, plusargs, parameters, test_args, extra_env, test_dir)``;
+        pass it to ``runner.test(build_dir=..., **args)``. ``test_dir`` is the case's run folder
+        (None for GHDL, which must run in the build folder; every path passed is absolute).
+    """
+    from vkit.stimulus import fast_run_dir, prepare_fast_run
+    from vkit.tb.case import CASE_ENV
+
+    if simulator not in SIMULATORS:
+        raise ConfigError(f"fast path: simulator {simulator!r} is not supported; use one of {', '.join(SIMULATORS)}")
+    language = "vhdl" if simulator == "ghdl" else "verilog"
+    stim = prepare_fast_run(case, in_width, language=language)
+    run_dir = fast_run_dir(case)
+    capture_txt = run_dir / "capture.txt"
+    case_json = _case_json(case, run_dir / "case.json")
+    period = float(_case_get(case, "clock_period_ns", 10.0))
+    reset_cycles = int(_case_get(case, "reset_cycles", 4))
+    plusargs: list[str] = []
+    parameters: dict[str, Any] = {}
+    if language == "vhdl":
+        parameters = stim.generics(capture_txt)
+        parameters.update(HALF_PS=max(1, int(round(period * 500))), RESET_CYCLES=reset_cycles)
+    else:
+        plusargs = stim.plusargs(capture_txt) + [f"+vkit_half_ns={period / 2:.6f}", f"+vkit_reset_cycles={reset_cycles}"]
+    return {
+        "hdl_toplevel": TOPLEVEL,
+        "test_module": "vkit.tb.fast",
+        "plusargs": plusargs,
+        "parameters": parameters,
+        "test_args": ["--std=08"] if simulator == "ghdl" else [],
+        "extra_env": {CASE_ENV: str(case_json)},
+        # GHDL (mcode) finds its work library only in the build folder, so it runs there (test_dir None).
+        "test_dir": None if simulator == "ghdl" else str(run_dir),
+    }
+
+
+def _case_json(case: Any, path: Path) -> Path:
+    if hasattr(case, "to_json"):
+        return case.to_json(path)
+    import json
+
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(json.dumps(dict(case), indent=2, sort_keys=True) + "\n")
+    return path
 
 
 def harness_sources(
@@ -842,36 +1193,25 @@ def harness_sources(
     language: str | None = None,
     in_width: int | None = None,
     out_width: int | None = None,
+    parameters: Mapping[str, Any] | None = None,
+    defines: Mapping[str, Any] | None = None,
 ) -> HarnessBuild:
-    """Write the harness HDL for ``case`` into ``out_dir`` and say how to build it.
-
-    The runner compiles ``build.files`` before the user's sources and uses ``build.toplevel``
-    (``vkit_harness``) as the simulation toplevel. The memory depth is the case's stimulus size, so
-    the build depends on the case's timing, frame count and stalls as well as the signal map.
+    """:func:`fast_build_plan` with the family, signals, reset polarity and pixel format taken from ``case``.
 
     Args:
-        case: a :class:`vkit.tb.case.SimCase` (or a dict with its keys).
+        case: a :class:`vkit.tb.case.SimCase` (or a dict with its keys); only its design-side fields
+            are used, so every case of the same design gives the same build.
         out_dir: folder for the generated file(s).
         dut_top: the design's top module/entity name.
-        sources: the design's HDL files (used to read port widths).
+        sources: the design's HDL files.
         language: "verilog" or "vhdl"; default from the sources' suffixes.
         in_width / out_width: data bus bits, when the sources cannot tell.
-
-    Returns:
-        A :class:`HarnessBuild`.
+        parameters: design parameter/generic overrides (see :func:`fast_build_plan`).
+        defines: Verilog defines for the build.
     """
-    if language is None:
-        suffixes = {Path(s).suffix.lower() for s in sources}
-        language = "vhdl" if suffixes and suffixes <= {".vhd", ".vhdl"} else "verilog"
-    if language not in ("verilog", "vhdl"):
-        raise ConfigError(f"harness: language {language!r} is not known; use 'verilog' or 'vhdl'")
-    spec = spec_from_case(case, dut_top, sources=sources, in_width=in_width, out_width=out_width)
-    out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
-    if language == "vhdl":
-        path = out / f"{TOPLEVEL}.vhd"
-        path.write_text(vhdl_harness(spec))
-    else:
-        path = out / f"{TOPLEVEL}.v"
-        path.write_text(verilog_harness(spec))
-    return HarnessBuild(files=[path], toplevel=TOPLEVEL, language=language, spec=spec)
+    signals = _case_get(case, "signals", {})
+    return fast_build_plan(
+        dut_top, sources, language, parameters, defines, str(_case_get(case, "family", "video")), signals,
+        in_width, out_width, out_dir=out_dir, reset_active_high=bool(_case_get(case, "reset_active_high", True)),
+        pixel_format=str(_case_get(case, "pixel_format", "gray8")),
+    )

@@ -1,7 +1,8 @@
-"""Per-clock stimulus words and expected-output words for the fast-path harness, written as $readmemh files.
+"""Per-clock stimulus words and expected-output words for the fast-path harness, written as binary or hex files.
 
-Everything here is numpy: a 640x480 frame at 800x525 timing (420,000 clocks) becomes a hex file in a
-fraction of a second. Word layouts are the ones :mod:`vkit.harness` documents. The data words match
+Everything here is numpy: a 640x480 frame at 800x525 timing (420,000 clocks) becomes a stimulus
+file in a fraction of a second. The Verilog harness streams a binary file (``$fread``, big-endian
+words); the VHDL harness reads hex text (one word per line). Word layouts are the ones :mod:`vkit.harness` documents. The data words match
 the per-clock video source (:mod:`vkit.tb.video`): the same seed gives the same garbage on the bus
 outside active video and on stall clocks.
 """
@@ -15,7 +16,7 @@ from typing import Any
 import numpy as np
 
 from vkit.errors import ConfigError
-from vkit.harness import GAP_BITS, stream_gap_bits, stream_pixel_bits, video_word_bits
+from vkit.harness import GAP_BITS, READY_WORDS, stream_word_bits, video_word_bits, word_bytes
 from vkit.timing import ClockSchedule, StallPattern, VideoTiming, schedule, tiny
 
 __all__ = [
@@ -30,14 +31,16 @@ __all__ = [
     "stream_stimulus",
     "ready_pattern",
     "write_hex",
+    "write_words",
     "write_stimulus",
     "expected_words",
     "write_expected",
     "fast_run_dir",
     "prepare_fast_run",
+    "read_fast_run",
 ]
 
-READY_PATTERN_WORDS = 4096
+READY_PATTERN_WORDS = READY_WORDS
 """Clocks in the stream sink's ready pattern; the harness repeats it for longer runs."""
 
 STREAM_TAIL_CLOCKS = 16  # same as vkit.harness.STREAM_TAIL
@@ -170,8 +173,8 @@ def ready_pattern(pattern: StallPattern | None, words: int = READY_PATTERN_WORDS
 
 @dataclass
 class _Stream:
-    pixels: np.ndarray
-    gaps: np.ndarray
+    pixels: np.ndarray  # {sof, eol, data}
+    gaps: np.ndarray  # {idle, gap}
     idle: np.ndarray
     ready: np.ndarray
     stall_pixels: list[list[int]]
@@ -228,15 +231,46 @@ def write_hex(path: str | Path, words: np.ndarray, bits: int) -> Path:
     return path
 
 
+def write_words(path: str | Path, fields: list[tuple[np.ndarray, int]], nbytes: int | None = None) -> Path:
+    """Write words packed from bit fields as big-endian binary records, one per word, for ``$fread``.
+
+    Args:
+        path: output file.
+        fields: ``(values, bits)`` from the least significant field up; values are non-negative
+            integers (< 2**bits, bits <= 64), all arrays the same length.
+        nbytes: bytes per record (default: the total bits rounded up to bytes).
+
+    Returns:
+        ``path``. Record ``i`` holds ``sum(values_k[i] << offset_k)`` in ``nbytes`` bytes, MSB first.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    total = sum(b for _, b in fields)
+    nbytes = int(nbytes or word_bytes(total))
+    n = int(np.asarray(fields[0][0]).size) if fields else 0
+    out = np.zeros((n, nbytes), np.uint8)
+    offset = 0
+    for values, bits in fields:
+        v = np.asarray(values).astype(np.uint64).reshape(-1) & np.uint64((1 << bits) - 1)
+        for byte in range(nbytes):
+            lo = 8 * byte
+            if lo >= offset + bits or lo + 8 <= offset:
+                continue
+            part = v >> np.uint64(lo - offset) if lo >= offset else v << np.uint64(offset - lo)
+            out[:, nbytes - 1 - byte] |= (part & np.uint64(0xFF)).astype(np.uint8)
+        offset += bits
+    path.write_bytes(out.tobytes())
+    return path
+
+
 @dataclass
 class StimulusFiles:
     """The files and numbers one harness run needs.
 
     Attributes:
-        stim: video: per-clock words; stream: per-transfer pixel words.
-        gaps: stream gap words, or None.
-        ready: stream ready pattern, or None.
-        words: words in ``stim`` (memory entries played).
+        stim: video: per-clock words; stream: per-transfer words (binary for Verilog, hex for VHDL).
+        ready: stream ready pattern (hex, one bit per line), or None.
+        words: words in ``stim``.
         ready_words: entries in ``ready`` (1 for video).
         drain: clocks captured after the stimulus.
         timeout: harness timeout in clocks from clock 0 (0 = none).
@@ -244,10 +278,11 @@ class StimulusFiles:
         input_meta: Capture meta the input side knows (frames_sent, first_input_clock,
             stall_pixels, input_vsync_count, input_hsync_per_frame).
         ready_levels: stream ready pattern (bool array), for the back-pressure pixels; None for video.
+        language: "verilog" (binary stimulus) or "vhdl" (hex stimulus).
+        hsync_active_high / vsync_active_high: sync polarity of the timing (video).
     """
 
     stim: Path
-    gaps: Path | None
     ready: Path | None
     words: int
     ready_words: int
@@ -256,21 +291,24 @@ class StimulusFiles:
     expect_pixels: int
     input_meta: dict[str, Any] = field(default_factory=dict)
     ready_levels: np.ndarray | None = None
+    language: str = "verilog"
+    hsync_active_high: bool = True
+    vsync_active_high: bool = True
 
     def plusargs(self, capture: str | Path) -> list[str]:
         """Verilog plusargs for ``vkit_harness`` (capture file path included)."""
-        args = [f"+vkit_stim={self.stim}", f"+vkit_capture={capture}", f"+vkit_words={self.words}",
-                f"+vkit_drain={self.drain}", f"+vkit_timeout={self.timeout}", f"+vkit_expect={self.expect_pixels}"]
-        if self.gaps is not None:
-            args.append(f"+vkit_gaps={self.gaps}")
+        args = [f"+vkit_stim={self.stim}", f"+vkit_capture={capture}", f"+vkit_drain={self.drain}",
+                f"+vkit_timeout={self.timeout}", f"+vkit_expect={self.expect_pixels}",
+                f"+vkit_hs_high={int(self.hsync_active_high)}", f"+vkit_vs_high={int(self.vsync_active_high)}"]
         if self.ready is not None:
             args += [f"+vkit_ready={self.ready}", f"+vkit_ready_words={self.ready_words}"]
         return args
 
     def generics(self, capture: str | Path) -> dict[str, Any]:
-        """VHDL generics for ``vkit_harness`` (GHDL ``-gNAME=VALUE``)."""
+        """VHDL generics for ``vkit_harness`` / ``vkit_fast_top`` (GHDL ``-gNAME=VALUE``, given at run time)."""
         return {"STIM_FILE": str(self.stim), "CAPTURE_FILE": str(capture), "WORDS": self.words,
-                "DRAIN": self.drain, "TIMEOUT": self.timeout}
+                "DEPTH": max(1, self.words), "DRAIN": self.drain, "TIMEOUT": self.timeout,
+                "HS_HIGH": int(self.hsync_active_high), "VS_HIGH": int(self.vsync_active_high)}
 
 
 def _leading_edges(level: np.ndarray, active: bool) -> np.ndarray:
@@ -284,14 +322,18 @@ def _sync_counts(hs_edges: np.ndarray, vs_edges: np.ndarray) -> list[int]:
     return [int(b) for b in np.diff(np.concatenate(([0], bounds)))]
 
 
-def write_stimulus(case: Any, out_dir: str | Path, in_width: int | None = None) -> StimulusFiles:
+def write_stimulus(case: Any, out_dir: str | Path, in_width: int | None = None, language: str = "verilog") -> StimulusFiles:
     """Write the case's stimulus files into ``out_dir`` and return what the harness run needs.
 
     Args:
         case: a :class:`vkit.tb.case.SimCase`.
-        out_dir: folder for ``stim.hex`` (and ``gaps.hex``, ``ready.hex`` for the stream family).
+        out_dir: folder for ``stim.bin`` (Verilog) or ``stim.hex`` (VHDL), and ``ready.hex`` for the
+            stream family.
         in_width: input data bus bits (default: the pixel format's bits).
+        language: "verilog" or "vhdl" (video only): which harness reads the files.
     """
+    if language not in ("verilog", "vhdl"):
+        raise ConfigError(f"stimulus: language {language!r} is not known; use 'verilog' or 'vhdl'")
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     in_width = int(in_width or _bits(case))
@@ -301,8 +343,14 @@ def write_stimulus(case: Any, out_dir: str | Path, in_width: int | None = None) 
     if _get(case, "family", "video") == "video":
         sched, data = video_schedule_and_words(case)
         t = sched.timing
-        words = video_stimulus_words(sched, data, in_width)
-        stim = write_hex(out / "stim.hex", words, video_word_bits(in_width))
+        if language == "vhdl":
+            words = video_stimulus_words(sched, data, in_width)
+            stim = write_hex(out / "stim.hex", words, video_word_bits(in_width))
+        else:
+            mark = np.zeros(sched.n_clocks, bool)
+            mark[sched.frame_starts()] = True
+            stim = write_words(out / "stim.bin", [(data, in_width), (sched.valid, 1), (sched.de, 1), (sched.vsync, 1),
+                                                  (sched.hsync, 1), (mark, 1)])
         first = int(np.argmax(sched.valid)) if sched.valid.any() else None
         vs_edges = _leading_edges(sched.vsync, t.vsync_active_high)
         hs_edges = _leading_edges(sched.hsync, t.hsync_active_high)
@@ -314,19 +362,26 @@ def write_stimulus(case: Any, out_dir: str | Path, in_width: int | None = None) 
             "input_hsync_per_frame": _sync_counts(hs_edges, vs_edges),
         }
         timeout = int(timeout_rel) + (first or 0) if timeout_rel else 0
-        return StimulusFiles(stim, None, None, int(sched.n_clocks), 1, drain, timeout,
-                             int(sched.frames) * width * height, meta)
+        return StimulusFiles(stim, None, int(sched.n_clocks), 1, drain, timeout,
+                             int(sched.frames) * width * height, meta, None, language,
+                             bool(t.hsync_active_high), bool(t.vsync_active_high))
+    if language != "verilog":
+        raise ConfigError("stimulus: the stream family has a Verilog harness only; use a Verilog simulator")
+    bits = _bits(case)
+    if in_width != bits:
+        raise ConfigError(f"stimulus: stream input bus is {in_width} bits but the pixel format has {bits}; "
+                          "give a design whose input width matches the pixel format")
     s = stream_stimulus(case)
-    stim = write_hex(out / "stim.hex", s.pixels, stream_pixel_bits(in_width))
-    gaps = write_hex(out / "gaps.hex", s.gaps, stream_gap_bits(in_width))
+    stim = write_words(out / "stim.bin", [(s.pixels, bits + 2), (s.gaps, GAP_BITS + bits)],
+                       word_bytes(stream_word_bits(in_width)))
     ready = write_hex(out / "ready.hex", s.ready.astype(np.uint64), 1)
     first_gap = int(s.gaps[0] & np.uint64((1 << GAP_BITS) - 1)) if s.gaps.size else 0
     frames_sent = s.pixels.size // (width * height)
     meta = {"frames_sent": int(frames_sent), "first_input_clock": None, "stall_pixels": s.stall_pixels,
             "first_gap_clocks": first_gap}
     timeout = int(timeout_rel) if timeout_rel else 0
-    return StimulusFiles(stim, gaps, ready, int(s.pixels.size), int(s.ready.size), drain, timeout,
-                         int(s.pixels.size), meta, s.ready)
+    return StimulusFiles(stim, ready, int(s.pixels.size), int(s.ready.size), drain, timeout,
+                         int(s.pixels.size), meta, s.ready, language)
 
 
 def expected_words(expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> np.ndarray:
@@ -362,38 +417,53 @@ def fast_run_dir(case: Any) -> Path:
     return cap.parent / (cap.stem + "_fast")
 
 
-def prepare_fast_run(case: Any, in_width: int | None = None) -> StimulusFiles:
+def prepare_fast_run(case: Any, in_width: int | None = None, language: str = "verilog") -> StimulusFiles:
     """Write the fast-path stimulus files of ``case`` into :func:`fast_run_dir` (once) and describe them.
 
-    The runner calls this before starting the simulator, to get the plusargs (Verilog,
-    :meth:`StimulusFiles.plusargs`) or generics (VHDL, :meth:`StimulusFiles.generics`); the cocotb
-    test (:mod:`vkit.tb.fast`) calls it again and finds the files already written.
+    The runner calls this (through :func:`vkit.harness.fast_test_args`) before starting the
+    simulator, to get the plusargs (Verilog, :meth:`StimulusFiles.plusargs`) or generics (VHDL,
+    :meth:`StimulusFiles.generics`); the cocotb test (:mod:`vkit.tb.fast`) reads the description back
+    with :func:`read_fast_run`. Files are rewritten only when a fingerprint of the case, the width
+    and the language changed.
     """
     import json
 
     out = fast_run_dir(case)
-    info = out / "stimulus.json"
-    if info.is_file():
-        data = json.loads(info.read_text())
-        if data.get("case") == _case_key(case) and all(Path(p).is_file() for p in data["paths"].values() if p):
-            ready = None
-            if data["paths"].get("ready"):
-                ready = np.frombuffer(Path(data["paths"]["ready"]).read_bytes(), np.uint8)[0::2] == ord("1")
-            paths = {k: Path(v) if v else None for k, v in data["paths"].items()}
-            return StimulusFiles(paths["stim"], paths["gaps"], paths["ready"], data["words"], data["ready_words"],
-                                 data["drain"], data["timeout"], data["expect_pixels"], data["input_meta"], ready)
-    stim = write_stimulus(case, out, in_width)
-    info.write_text(json.dumps({
-        "case": _case_key(case),
-        "paths": {"stim": str(stim.stim), "gaps": str(stim.gaps) if stim.gaps else None,
-                  "ready": str(stim.ready) if stim.ready else None},
+    key = _case_key(case, in_width, language)
+    found = read_fast_run(case, key)
+    if found is not None:
+        return found
+    stim = write_stimulus(case, out, in_width, language)
+    (out / "stimulus.json").write_text(json.dumps({
+        "case": key,
+        "paths": {"stim": str(stim.stim), "ready": str(stim.ready) if stim.ready else None},
         "words": stim.words, "ready_words": stim.ready_words, "drain": stim.drain, "timeout": stim.timeout,
-        "expect_pixels": stim.expect_pixels, "input_meta": stim.input_meta,
+        "expect_pixels": stim.expect_pixels, "input_meta": stim.input_meta, "language": stim.language,
+        "hs_high": stim.hsync_active_high, "vs_high": stim.vsync_active_high,
     }))
     return stim
 
 
-def _case_key(case: Any) -> str:
+def read_fast_run(case: Any, key: str | None = None) -> StimulusFiles | None:
+    """The stimulus :func:`prepare_fast_run` wrote for ``case`` (any width/language when ``key`` is None), or None."""
+    import json
+
+    info = fast_run_dir(case) / "stimulus.json"
+    if not info.is_file():
+        return None
+    data = json.loads(info.read_text())
+    if (key is not None and data.get("case") != key) or not all(Path(p).is_file() for p in data["paths"].values() if p):
+        return None
+    ready = None
+    if data["paths"].get("ready"):
+        ready = np.frombuffer(Path(data["paths"]["ready"]).read_bytes(), np.uint8)[0::2] == ord("1")
+    paths = {k: Path(v) if v else None for k, v in data["paths"].items()}
+    return StimulusFiles(paths["stim"], paths["ready"], data["words"], data["ready_words"], data["drain"],
+                         data["timeout"], data["expect_pixels"], data["input_meta"], ready, data["language"],
+                         data["hs_high"], data["vs_high"])
+
+
+def _case_key(case: Any, in_width: int | None = None, language: str = "verilog") -> str:
     """A fingerprint of everything in the case that shapes the stimulus (and of the frames file)."""
     import hashlib
     import json
@@ -404,4 +474,6 @@ def _case_key(case: Any) -> str:
     keep = {k: data.get(k) for k in ("family", "frames_file", "width", "height", "pixel_format", "timing", "stalls",
                                      "stream_gaps", "backpressure", "blanking", "blanking_value", "seed", "timeout_clocks")}
     keep["frames_stat"] = [stat.st_size, stat.st_mtime_ns] if stat else None
+    keep["in_width"] = in_width
+    keep["language"] = language
     return hashlib.sha256(json.dumps(keep, sort_keys=True, default=str).encode()).hexdigest()

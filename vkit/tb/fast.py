@@ -1,11 +1,12 @@
-"""The cocotb test of the fast path: the harness plays and captures in HDL; Python wakes once per frame.
+"""The cocotb test of the fast path: the harness makes its clock, plays and captures in HDL; Python waits for done.
 
-Run with ``test_module="vkit.tb.fast"`` and toplevel ``vkit_harness`` (see
-:func:`vkit.harness.harness_sources`), the case JSON named by the ``VKIT_CASE`` environment variable
-and the harness's plusargs (Verilog) or generics (VHDL) from
-:func:`vkit.stimulus.prepare_fast_run`. The clock runs in the simulator (cocotb's GPI clock), so no
-Python runs per clock. The capture ``.npz`` is always written, partial on timeout; a failure
-leaves its one-line reason in the ``.error.txt`` file beside it.
+Run with ``test_module="vkit.tb.fast"`` and toplevel ``vkit_fast_top`` (see
+:func:`vkit.harness.fast_build_plan`), with the keyword arguments of
+:func:`vkit.harness.fast_test_args` (the case JSON named by ``VKIT_CASE``, and the harness's
+plusargs or generics). The clock is generated inside the simulator by the harness, so no Python
+runs per clock: the test waits once for ``done`` (bounded by a timer) and reads the capture text.
+The capture ``.npz`` is always written, partial on timeout; a failure leaves its one-line reason in
+the ``.error.txt`` file beside it.
 """
 
 from __future__ import annotations
@@ -16,13 +17,12 @@ from pathlib import Path
 from typing import Any
 
 import cocotb
-from cocotb.clock import Clock
-from cocotb.triggers import ClockCycles, First, RisingEdge, Timer
+from cocotb.triggers import First, RisingEdge, Timer
 
 from vkit.capture import Capture
 from vkit.errors import ConfigError, VkitError
 from vkit.export import read_capture
-from vkit.stimulus import StimulusFiles, fast_run_dir, prepare_fast_run
+from vkit.stimulus import StimulusFiles, fast_run_dir, prepare_fast_run, read_fast_run
 from vkit.tb.case import CASE_ENV, SimCase, error_file_for
 
 __all__ = ["run_fast_case", "CAPTURE_TEXT_NAME"]
@@ -33,47 +33,27 @@ CAPTURE_TEXT_NAME = "capture.txt"
 _SLACK_CLOCKS = 1000
 
 
-def _in_width(dut: Any) -> int | None:
-    try:
-        return len(dut.d_in_data)
-    except (AttributeError, TypeError):
-        return None
-
-
-def _bound_clocks(stim: StimulusFiles) -> int:
+def _bound_clocks(stim: StimulusFiles, reset_cycles: int) -> int:
     """Clocks after which Python stops waiting even if the harness never raised ``done``."""
     if stim.timeout:
-        return stim.timeout + _SLACK_CLOCKS
-    return 4 * (stim.words + stim.drain) + _SLACK_CLOCKS
+        return stim.timeout + reset_cycles + _SLACK_CLOCKS
+    return 4 * (stim.words + stim.drain) + reset_cycles + _SLACK_CLOCKS
 
 
 async def run_fast_case(dut: Any, case: SimCase) -> Capture:
-    """Run ``case`` on the harness ``dut``; return the capture (also saved to ``case.capture_file``)."""
-    stim = prepare_fast_run(case, _in_width(dut))
+    """Wait for the self-clocked harness ``dut`` to finish ``case``; return the capture (also saved)."""
+    stim = read_fast_run(case)
+    if stim is None:
+        # Started by hand, without vkit.harness.fast_test_args: the plusargs must still name these files.
+        stim = prepare_fast_run(case)
     cap_text = fast_run_dir(case) / CAPTURE_TEXT_NAME
     period = float(case.clock_period_ns)
-    dut.rst.value = 1
-    dut.load.value = 0
-    Clock(dut.clk, period, unit="ns", impl="gpi").start(start_high=False)
-    await Timer(period / 4, unit="ns")
-    dut.load.value = 1
-    await ClockCycles(dut.clk, int(case.reset_cycles))
-    dut.rst.value = 0
-
-    done = RisingEdge(dut.done)
-    frame = RisingEdge(dut.frame_pulse)
-    bound = _bound_clocks(stim)
-    deadline = Timer(bound * period, unit="ns")
-    frames_seen = 0
+    bound = _bound_clocks(stim, int(case.reset_cycles))
     python_timeout = False
-    while not int(dut.done.value):
-        hit = await First(done, frame, deadline)
-        if hit is deadline:
-            python_timeout = True
-            break
-        if hit is frame:
-            frames_seen += 1
-            dut._log.debug("vkit fast path: input frame %d started", frames_seen)
+    if str(dut.done.value) != "1":
+        deadline = Timer(bound * period, unit="ns")
+        hit = await First(RisingEdge(dut.done), deadline)
+        python_timeout = hit is deadline
     cap = read_capture(cap_text, case, stim)
     if python_timeout:
         cap.meta["timed_out"] = True

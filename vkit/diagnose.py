@@ -13,9 +13,10 @@ from vkit.capture import UNKNOWN
 
 if TYPE_CHECKING:  # pragma: no cover
     from vkit.align import BorderInference, Offset
+    from vkit.capture import Capture
     from vkit.scoreboard import FrameResult
 
-__all__ = ["KINDS", "Finding", "TimingIssue", "diagnose"]
+__all__ = ["KINDS", "Finding", "TimingIssue", "SlipEvent", "diagnose", "slip_events"]
 
 KINDS: tuple[str, ...] = (
     "shift",
@@ -32,6 +33,13 @@ KINDS: tuple[str, ...] = (
 
 _SIGNIFICANT_LOG_P = math.log(1e-4)
 """A region pattern must be this unlikely (log probability) under 'mismatches fall anywhere'."""
+_COINCIDENT_LOG_P = math.log(1e-2)
+"""Pixel slips (a rare pattern already) are tied to stalls when their coincidence is this unlikely by chance."""
+_ALIGN_MAX_PIXELS = 8192
+"""Expected pixels (raster order, from the first frame) the slip aligner looks at; bounds its cost."""
+_SLIP_COLUMNS = (-2, 0)
+"""A slip at output column x is tied to an input stall at column xs when x - xs lies in this range
+(output centre x - 1 leaves when input pixel x is taken; equal neighbour values move the slip by one)."""
 
 
 @dataclass
@@ -239,6 +247,72 @@ def _missing_finding(frames: Sequence[FrameResult], failures: int, meta: dict[st
     return Finding("missing", msg, ev, 0.96 * share)
 
 
+def _de_offset_finding(frames: Sequence[FrameResult]) -> Finding | None:
+    """Data-enable one clock early or late: most lines one pixel short (or long) at the same end."""
+    votes = {"lead": 0, "lag": 0}
+    lines = 0
+    short = long_ = 0
+    for fr in frames:
+        h, w = fr.expected.shape
+        if w < 4:
+            continue
+        known = fr.present & ~fr.unknown
+        for y, n in enumerate(fr.line_lengths[:h]):
+            lines += 1
+            if n not in (w - 1, w + 1):
+                continue
+            a, e, k = fr.actual[y], fr.expected[y], known[y]
+
+            def same(asl: slice, esl: slice) -> bool:
+                kk = k[asl]
+                return bool(kk.sum() >= 3 and np.mean(a[asl][kk] == e[esl][kk]) >= 0.9)
+
+            informative = bool(np.any(e[1:][k[: w - 1]] != e[:-1][k[: w - 1]]))
+            if not informative:
+                lines -= 1  # a flat line cannot tell a one-pixel slip
+                continue
+            if n == w - 1:
+                short += 1
+                # The pixel outside data-enable is lost: the first one (late) or the last one (early).
+                if same(slice(0, w - 1), slice(1, w)) and not same(slice(0, w - 1), slice(0, w - 1)):
+                    votes["lag"] += 1
+                elif same(slice(0, w - 1), slice(0, w - 1)) and not same(slice(0, w - 1), slice(1, w)):
+                    votes["lead"] += 1
+            else:
+                long_ += 1
+                # One garbage pixel inside data-enable: before the data (early) or after it (late).
+                if same(slice(1, w), slice(0, w - 1)) and not same(slice(0, w), slice(0, w)):
+                    votes["lead"] += 1
+                elif same(slice(0, w), slice(0, w)):
+                    votes["lag"] += 1
+    if lines < 2:
+        return None
+    side = max(votes, key=lambda s_: votes[s_])
+    n_side = votes[side]
+    if n_side < 0.8 * lines:
+        return None
+    w = frames[0].expected.shape[1]
+    if short >= long_:
+        n_px, what = w - 1, (
+            "the first pixel of each line falls outside data-enable" if side == "lag"
+            else "the last pixel of each line falls outside data-enable"
+        )
+    else:
+        n_px, what = w + 1, (
+            "one pixel before the data is inside data-enable" if side == "lead"
+            else "one pixel after the data is inside data-enable"
+        )
+    verb = "leads" if side == "lead" else "lags"
+    msg = (
+        f"data-enable {verb} the pixel data by 1 clock: {n_side} of {_plural(lines, 'line')} carry {n_px} "
+        f"pixels, each the expected line shifted by one with one pixel lost or added at the "
+        f"{'end' if (side == 'lead') == (short >= long_) else 'start'} ({what}); delay the data-enable "
+        f"{'by one more' if side == 'lead' else 'by one less'} clock so it matches the data path"
+    )
+    ev = {"direction": side, "lines": lines, "lines_matching": n_side, "short_lines": short, "long_lines": long_}
+    return Finding("timing", msg, ev, 0.99 * n_side / lines)
+
+
 # --------------------------------------------------------------------------- shift
 
 
@@ -285,9 +359,12 @@ def _shift_message(off: Offset) -> str:
     one = {1: "one", 2: "two", 3: "three"}
     if off.dy == 0:
         n = abs(off.dx)
+        hint = ""
+        if n == 1:
+            hint = f" (or data-enable {'leads' if off.dx > 0 else 'lags'} the pixel data by 1 clock)"
         return (
             f"output is the expected image shifted {off.describe()}: latency or column offset off by "
-            f"{one.get(n, str(n))}"
+            f"{one.get(n, str(n))}{hint}"
         )
     if off.dx == 0:
         n = abs(off.dy)
@@ -481,6 +558,298 @@ def _overflow_finding(frames: Sequence[FrameResult]) -> Finding | None:
     return best
 
 
+@dataclass
+class SlipEvent:
+    """A run of pixels too many or too few in the output stream, against the expected raster order.
+
+    Attributes:
+        kind: ``"repeated"`` (extra pixels equal to the one before), ``"extra"`` (other extra pixels)
+            or ``"dropped"`` (expected pixels that never came).
+        frame, y, x: expected position where the slip starts (pixels, lines).
+        count: pixels in the run (>= 1).
+        index: arrival index in the capture of the first pixel after the slip starts.
+        x_lo, x_hi: columns of line ``y`` where the same slip gives the same stream (equal neighbours).
+    """
+
+    kind: str
+    frame: int
+    y: int
+    x: int
+    count: int
+    index: int
+    x_lo: int
+    x_hi: int
+
+    def to_list(self) -> list[Any]:
+        """JSON-ready form ``[kind, frame, y, x, count]``."""
+        return [self.kind, self.frame, self.y, self.x, self.count]
+
+
+def _edit_ops(e: np.ndarray, a: np.ndarray) -> list[tuple[str, int, int]]:
+    """Edit script turning expected ``e`` into actual ``a`` (unit costs, free end gaps).
+
+    Returns ``(op, i, j)`` in stream order: ``"m"`` a[i] stands for e[j]; ``"i"`` a[i] is extra before
+    e[j]; ``"d"`` e[j] is missing before a[i].
+    """
+    n, m = e.size, a.size
+    d = np.zeros((m + 1, n + 1), np.int32)
+    d[0] = np.arange(n + 1)
+    ramp = np.arange(n + 1, dtype=np.int32)
+    for i in range(1, m + 1):
+        row = np.empty(n + 1, np.int32)
+        row[0] = i
+        row[1:] = np.minimum(d[i - 1, :-1] + (e != a[i - 1]), d[i - 1, 1:] + 1)
+        d[i] = np.minimum.accumulate(row - ramp) + ramp
+    # Free end gaps: the capture may stop early or run past the expected span.
+    i_end, j_end = m, int(np.argmin(d[m]))
+    col = int(np.argmin(d[:, n]))
+    if d[col, n] < d[m, j_end]:
+        i_end, j_end = col, n
+    ops: list[tuple[str, int, int]] = []
+    i, j = i_end, j_end
+    while i > 0 and j > 0:
+        if d[i, j] == d[i - 1, j - 1] + (e[j - 1] != a[i - 1]):
+            ops.append(("m", i - 1, j - 1))
+            i, j = i - 1, j - 1
+        elif d[i, j] == d[i - 1, j] + 1:
+            ops.append(("i", i - 1, j))
+            i -= 1
+        else:
+            ops.append(("d", i, j - 1))
+            j -= 1
+    ops.extend(("d", 0, jj) for jj in range(j - 1, -1, -1))
+    ops.extend(("i", ii, 0) for ii in range(i - 1, -1, -1))
+    ops.reverse()
+    return ops
+
+
+def slip_events(frames: Sequence[FrameResult], capture: Capture) -> tuple[list[SlipEvent], int]:
+    """Pixels repeated or dropped in the output stream, found by aligning it with the expected raster.
+
+    The captured pixels are taken in arrival order, whatever frame/line marks the design gave them, so
+    a slip is found even when it broke the line or frame structure. At most the first
+    ``_ALIGN_MAX_PIXELS`` expected pixels are aligned (frames of the first shape only).
+
+    Returns:
+        ``(events, substitutions)``: the slips in stream order and the pixels that stayed aligned but
+        differ in value.
+    """
+    if not frames or capture is None or len(capture) == 0:
+        return [], 0
+    h, w = frames[0].expected.shape
+    same = [fr for fr in frames if fr.expected.shape == (h, w)]
+    e = np.concatenate([fr.expected.ravel() for fr in same])[:_ALIGN_MAX_PIXELS]
+    a = np.asarray(capture.values, np.int64)
+    a = a[: e.size + max(64, e.size // 2)]
+    if e.size == 0 or a.size == 0:
+        return [], 0
+    ops = _edit_ops(e, a)
+    events: list[SlipEvent] = []
+    subs = 0
+    prev: tuple[str, int, int] | None = None
+    for op, i, j in ops:
+        if op == "m":
+            subs += int(e[j] != a[i])
+            prev = None
+            continue
+        if prev is not None and prev[0] == op and events:
+            events[-1].count += 1
+            prev = (op, i, j)
+            continue
+        jj = min(j, e.size - 1)
+        if op == "i":
+            v = a[i]
+            kind = "repeated" if (i > 0 and a[i - 1] == v) or (j > 0 and e[j - 1] == v) else "extra"
+        else:
+            v = e[jj]
+            kind = "dropped"
+        lo = hi = jj
+        while lo > 0 and e[lo - 1] == v:
+            lo -= 1
+        while hi + 1 < e.size and e[hi + 1] == v:
+            hi += 1
+        f, rest = divmod(jj, h * w)
+        y, x = divmod(rest, w)
+        base = f * h * w + y * w
+        events.append(SlipEvent(kind, f, y, x, 1, int(i), max(0, lo - base), min(w - 1, hi - base)))
+        prev = (op, i, j)
+    return events, subs
+
+
+def _stall_targets(
+    frames: Sequence[FrameResult], stall: Sequence[Sequence[int]]
+) -> dict[int, np.ndarray]:
+    """Per frame, the output positions where a slip caused by an input stall would start."""
+    out: dict[int, np.ndarray] = {}
+    if not frames:
+        return out
+    h, w = frames[0].expected.shape
+    for f, ys, xs in stall:
+        y = ys - 1  # output line y is emitted while input line y + 1 arrives
+        if not 0 <= y < h:
+            continue
+        m = out.setdefault(int(f), np.zeros((h, w), bool))
+        m[y, max(0, xs + _SLIP_COLUMNS[0]) : max(0, min(w, xs + _SLIP_COLUMNS[1] + 1))] = True
+    return out
+
+
+def _backpressure_targets(capture: Capture, back: Sequence[Sequence[int]]) -> np.ndarray:
+    """Arrival indices of the output pixels that came right after back-pressure."""
+    if capture is None or len(capture) == 0 or not back:
+        return np.zeros(0, np.int64)
+    key = (np.asarray(capture.frame, np.int64) * 1_000_003 + np.asarray(capture.line, np.int64)) * 100_003 + np.asarray(
+        capture.column, np.int64
+    )
+    order = np.argsort(key, kind="stable")
+    want = np.array([(int(f) * 1_000_003 + int(y)) * 100_003 + int(x) for f, y, x in back], np.int64)
+    pos = np.searchsorted(key[order], want)
+    pos = np.clip(pos, 0, key.size - 1)
+    hit = key[order][pos] == want
+    return np.sort(order[pos[hit]])
+
+
+def _line_stall_finding(frames: Sequence[FrameResult], stall: Sequence[Sequence[int]]) -> Finding | None:
+    """Line lengths that follow the input stalls: output line y loses (or gains) pixels exactly when
+    input line y + 1, which arrives while it is emitted, stalls.
+
+    The stall counts are matched against the length errors at the true line offset (+1) and at other
+    offsets; the true one must explain at least 80% of the wrong lines and clearly beat every other.
+    """
+    if not stall or not frames:
+        return None
+    h, w = frames[0].expected.shape
+    counts: dict[tuple[int, int], int] = {}
+    first_x: dict[tuple[int, int], int] = {}
+    for f, ys, xs in stall:
+        key = (int(f), int(ys))
+        counts[key] = counts.get(key, 0) + 1
+        first_x[key] = min(first_x.get(key, w), int(xs))
+    rows = []  # (frame, y, length error)
+    for fr in frames:
+        if fr.expected.shape != (h, w):
+            continue
+        for y, n in enumerate(fr.line_lengths[:h]):
+            rows.append((fr.index, y, n - w))
+    bad = [r for r in rows if r[2] != 0]
+    if len(bad) < 3:
+        return None
+
+    def explained(k: int) -> tuple[int, str]:
+        drop = sum(1 for f, y, d in bad if d < 0 and -d == counts.get((f, y + k), 0))
+        rep = sum(1 for f, y, d in bad if d > 0 and counts.get((f, y + k), 0) > 0 and d >= counts[(f, y + k)])
+        return (drop, "dropped") if drop >= rep else (rep, "repeated")
+
+    hit, how = explained(1)
+    others = [explained(k)[0] for k in range(-3, 6) if k != 1]
+    if hit < 0.8 * len(bad) or hit <= 1.5 * max(others + [0]) + 1:
+        return None
+    lines = [(f, y) for f, y, d in bad if counts.get((f, y + 1), 0)]
+    f0, y0 = lines[0]
+    xs = first_x[(f0, y0 + 1)]
+    n0 = next(d for f, y, d in bad if (f, y) == (f0, y0))
+    line_txt = ", ".join(str(y) for _, y in lines[:6]) + (f" (+{len(lines) - 6} more)" if len(lines) > 6 else "")
+    direction = "left" if how == "dropped" else "right"
+    per = "exactly one pixel per input stall" if how == "dropped" else "one pixel per stall clock"
+    msg = (
+        f"frame {f0} line {y0}: pixel {how} at x={max(0, xs - 1)}, the rest of the line shifted {direction}: "
+        f"pixel {how} after an input stall at ({xs}, {y0 + 1}); {hit} of {_plural(len(bad), 'line')} of the "
+        f"wrong length ({line_txt}) are {'short' if how == 'dropped' else 'long'} by {per} on the input "
+        f"line arriving meanwhile (best other line offset: {max(others + [0])}): hold every pipeline stage "
+        "while in_valid is low (take a pixel and emit one only on valid)"
+    )
+    ev = {"how": how, "lines_wrong": len(bad), "lines_explained": hit, "other_offsets_best": max(others + [0]),
+          "lines": [[f, y, d] for f, y, d in bad[:50]]}
+    return Finding("stall", msg, ev, 0.99 * hit / len(bad))
+
+
+def _slip_stall_finding(
+    frames: Sequence[FrameResult],
+    capture: Capture | None,
+    stall: Sequence[Sequence[int]],
+    back: Sequence[Sequence[int]],
+) -> Finding | None:
+    """Slips (pixels repeated or dropped) that start where the input stalled or the output was held."""
+    if capture is None or (not stall and not back):
+        return None
+    events, subs = slip_events(frames, capture)
+    if not events:
+        return None
+    h, w = frames[0].expected.shape
+    targets = _stall_targets(frames, stall)
+    bp_idx = _backpressure_targets(capture, back)
+    n_arrived = max(1, min(len(capture), _ALIGN_MAX_PIXELS + _ALIGN_MAX_PIXELS // 2))
+    matched: list[tuple[SlipEvent, str, tuple[int, int]]] = []
+    p_sum = 0.0
+    for ev in events:
+        span = ev.x_hi - ev.x_lo + 1
+        hit: tuple[str, tuple[int, int]] | None = None
+        p_ev = 0.0
+        tm = targets.get(ev.frame)
+        if tm is not None:
+            # Chance that a slip of this span, placed anywhere, touches a target.
+            t = tm.astype(np.int64)
+            c = np.concatenate([np.zeros((h, 1), np.int64), np.cumsum(t, 1)], 1)
+            starts = np.arange(w)
+            ends = np.minimum(w, starts + span)
+            p_ev += float(np.mean((c[:, ends] - c[:, starts]) > 0))
+            if tm[ev.y, ev.x_lo : ev.x_hi + 1].any():
+                # Name the stall: the input pixel whose slip column is nearest the event.
+                cands = [
+                    (abs((xs - 1) - ev.x), xs, ys)
+                    for f, ys, xs in stall
+                    if int(f) == ev.frame and ys - 1 == ev.y
+                ]
+                if cands:
+                    _, xs, ys = min(cands)
+                    hit = ("input stall", (int(xs), int(ys)))
+        if bp_idx.size:
+            near = np.flatnonzero(np.abs(bp_idx - ev.index) <= 1)
+            p_ev += min(1.0, 3.0 * bp_idx.size / n_arrived)
+            if hit is None and near.size:
+                k = int(bp_idx[near[0]])
+                hit = ("back-pressure", (int(capture.column[k]), int(capture.line[k])))
+        p_sum += min(1.0, p_ev)
+        if hit is not None:
+            matched.append((ev, hit[0], hit[1]))
+    n = len(events)
+    k = len(matched)
+    p = p_sum / n
+    log_p = _log_tail(k, n, p)
+    ev_json = [e.to_list() for e in events[:50]]
+    if k == 0 or log_p > _COINCIDENT_LOG_P or k / n < 0.5:
+        return None
+    # Name the clearest slip: the first one whose place is not blurred by equal neighbour values.
+    ev0, what, (sx, sy) = min(matched, key=lambda m_: (m_[0].x_hi - m_[0].x_lo > 2, m_[0].frame, m_[0].y, m_[0].x))
+    # After a stall at input column xs the repeat takes output column xs; a drop loses centre xs - 1.
+    x_want = sx if ev0.kind != "dropped" else sx - 1
+    x_at = min(max(x_want, ev0.x_lo), ev0.x_hi) if what == "input stall" else ev0.x
+    lines = sorted({(e.frame, e.y) for e, _, _ in matched})
+    line_txt = ", ".join(str(y) for _, y in lines[:6]) + (f" (+{len(lines) - 6} more)" if len(lines) > 6 else "")
+    how = "dropped" if ev0.kind == "dropped" else "repeated"
+    direction = "left" if how == "dropped" else "right"
+    if what == "input stall":
+        fix = "hold every pipeline stage while in_valid is low (take a pixel and emit one only on valid)"
+        where = f"after an input stall at ({sx}, {sy})"
+    else:
+        fix = "advance the pipe only when out_ready is high on this clock (not a registered copy of it)"
+        where = f"after back-pressure at output ({sx}, {sy})"
+    msg = (
+        f"frame {ev0.frame} line {ev0.y}: pixel {how} at x={x_at}, the rest of the line shifted {direction} "
+        f"by {ev0.count if ev0.count <= 3 else 'several'}: pixel {how} {where}; {k} of {_plural(n, 'slip')} on {_plural(len(lines), 'line')} "
+        f"({line_txt}) start right after a stall: {fix}"
+    )
+    evidence = {
+        "slips": ev_json,
+        "matched": [[e.kind, e.frame, e.y, e.x, t, list(pos)] for e, t, pos in matched[:50]],
+        "chance_share": round(p, 4),
+        "log10_chance": round(log_p / math.log(10), 2),
+        "substitutions": subs,
+        "lines": [list(x) for x in lines[:50]],
+    }
+    conf = 0.99 * (k / n)
+    return Finding("stall", msg, evidence, conf)
+
+
 def _stall_region(fr: FrameResult, stall: Sequence[Sequence[int]], back: Sequence[Sequence[int]]) -> np.ndarray:
     h, w = fr.expected.shape
     m = np.zeros((h, w), bool)
@@ -615,6 +984,7 @@ def diagnose(
     backpressure_pixels: Sequence[Sequence[int]] = (),
     border: BorderInference | None = None,
     tolerance_lsb: int = 0,
+    capture: Capture | None = None,
 ) -> list[Finding]:
     """Name the failure patterns of a scored run, most confident first.
 
@@ -632,6 +1002,8 @@ def diagnose(
         backpressure_pixels: ``[frame, y, x]`` output pixels right after back-pressure.
         border: border-policy inference, if the scoreboard could run it.
         tolerance_lsb: the tolerance used, LSB.
+        capture: the raw capture; lets the diagnosis align the output stream in arrival order and tie
+            repeated or dropped pixels to stalls and back-pressure even when line/frame marks broke.
 
     Returns:
         Findings sorted by confidence (highest first); empty when nothing failed.
@@ -648,6 +1020,19 @@ def diagnose(
     shift = _shift_findings(frames, offset, applied_offset)
     if shift is not None:
         findings.append(shift)
+    # A cause found in the stream makes the line/frame/shift symptoms secondary.
+    cause = _de_offset_finding(frames)
+    if cause is None:
+        cause = _slip_stall_finding(frames, capture, stall, back)
+    if cause is None:
+        cause = _line_stall_finding(frames, stall)
+    if cause is not None:
+        for f in findings:
+            if f.kind in ("timing", "missing", "shift") and f.evidence.get("category") not in (
+                "xz_control", "de_in_blanking", "vsync", "hsync"
+            ):
+                f.confidence *= 0.85
+        findings.append(cause)
     line_explained = any("dropped_line" in f.evidence or "repeated_line" in f.evidence for f in findings)
     if line_explained:
         # The lines after a dropped one move up, so the last line is 'missing' only as a consequence.
@@ -656,7 +1041,7 @@ def diagnose(
         pixel = [
             _border_finding(frames, border),
             _overflow_finding(frames),
-            _stall_finding(frames, stall, back),
+            _stall_finding(frames, stall, back) if cause is None or cause.kind != "stall" else None,
             _rounding_finding(frames, tolerance_lsb),
         ]
         pixel = [f for f in pixel if f is not None]

@@ -496,6 +496,7 @@ def score(
         backpressure_pixels=meta.get("backpressure_pixels") or [],
         border=border,
         tolerance_lsb=tolerance_lsb,
+        capture=capture,
     )
 
     listed: list[dict[str, Any]] = []

@@ -10,7 +10,7 @@ from typing import Sequence
 
 from vkit.errors import EXIT_CONFIG, EXIT_PASS, ConfigError, VkitError
 
-__all__ = ["main", "build_parser"]
+__all__ = ["main", "build_parser", "problem_line"]
 
 
 def _size(text: str) -> tuple[int, int]:
@@ -40,15 +40,45 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
     config = load_config(args.config)
     result = run(config, jobs=args.jobs, shard=args.shard, only=args.only, out_dir=args.out,
-                 simulators=args.sim or None)
+                 simulators=args.sim or None, waves=args.waves)
     _print_run_end(result)
     return result.exit_code
+
+
+def problem_line(case) -> str:  # noqa: ANN001 - vkit.runner.CaseResult
+    """The one line that says what went wrong with a case that did not pass.
+
+    ``FAIL <id>: <kind>: <message>; <arrived> of <expected> pixels arrived`` for a design failure
+    (plus the first timing error when the diagnosis names something else), ``ERROR <id>: <message>``
+    when the case could not be judged.
+    """
+    v = case.entry.get("verdict", {})
+    if case.status == "error":
+        message = v.get("diagnosis", {}).get("message") or case.diagnosis or "unknown error"
+        return f"ERROR {case.id}: {' '.join(str(message).split())}"
+    text = f"FAIL {case.id}: {case.diagnosis or case.status}"
+    arrived, expected = v.get("pixels_arrived"), v.get("pixels_expected")
+    if arrived is not None and expected is not None:
+        text += f"; {arrived} of {expected} pixels arrived"
+    timing = v.get("timing_errors") or []
+    if timing and timing[0] not in text:
+        text += f"; first timing error: {timing[0]}"
+    return " ".join(text.split())
 
 
 def _print_run_end(result) -> None:  # noqa: ANN001 - vkit.runner.RunResult
     summary = Path(result.report_files["summary"]).read_text()
     print()
     print(summary, end="")
+    bad = [c for c in result.cases if c.status != "pass"]
+    for c in bad:
+        print(problem_line(c))
+        if c.waves:
+            print(f"  waves: {result.out_dir / c.waves}")
+        if c.rerun:
+            print(f"  rerun: {c.rerun}")
+    if bad:
+        print()
     bugs = [c for c in result.cases if c.expect == "fail"]
     if bugs:
         caught = sum(1 for c in bugs if c.status != "pass")
@@ -170,7 +200,13 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--shard", default=None, help="K/N: run only shard K of N (case i goes to shard i %% N + 1)")
     r.add_argument("--out", default=None, help="report folder (default: [run] out_dir)")
     r.add_argument("--sim", nargs="+", default=None, help="simulators (replaces [run] simulators)")
-    r.add_argument("--only", action="append", default=None, help="keep case ids matching this glob or text")
+    r.add_argument("--only", action="append", default=None,
+                   help="keep case ids matching this glob or text (a whole case id selects exactly that case)")
+    wv = r.add_mutually_exclusive_group()
+    wv.add_argument("--waves", dest="waves", action="store_const", const="all", default=None,
+                    help="dump waves (Icarus, FST) around the first mismatch of every case")
+    wv.add_argument("--no-waves", dest="waves", action="store_const", const="off",
+                    help="no wave dumps, not even for failing cases (default: [run] waves, 'failing')")
     r.set_defaults(func=_cmd_run)
 
     d = sub.add_parser("demo", help="run the bundled sample regression (sim/demo.toml)")

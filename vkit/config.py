@@ -57,7 +57,9 @@ __all__ = [
     "read_toml",
 ]
 
-_RUN_KEYS = ("out_dir", "simulators", "jobs", "seed", "timeout_s", "max_listed", "cache_dir", "coverage_floor")
+_RUN_KEYS = ("out_dir", "simulators", "jobs", "seed", "timeout_s", "max_listed", "cache_dir", "coverage_floor",
+             "waves")
+_WAVE_MODES = ("failing", "all", "off")
 _STIMULUS_KEYS = (
     "images", "patterns", "size", "frames", "timings", "stalls", "backpressure", "gaps", "blanking",
     "blanking_value", "seeds",
@@ -154,6 +156,8 @@ class RunSettings:
         cache_dir: build cache folder, or None for ``$VKIT_CACHE_DIR`` / ``~/.cache/vkit/builds``.
         coverage_floor: a stage whose seen range is below this share of its theoretical range gets a
             coverage warning in the case result, 0.0..1.0.
+        waves: ``"failing"`` (rerun failing cases with a wave dump around the first mismatch),
+            ``"all"`` or ``"off"``.
     """
 
     out_dir: Path
@@ -164,6 +168,7 @@ class RunSettings:
     max_listed: int = 20
     cache_dir: Path | None = None
     coverage_floor: float = 0.5
+    waves: str = "failing"
 
 
 @dataclass
@@ -485,6 +490,11 @@ def _parse_run(where: str, data: Mapping[str, Any], base: Path) -> RunSettings:
         if not 0 <= v <= 1:
             raise ConfigError(f"{where}: coverage_floor = {v}; give a share 0.0..1.0")
         out.coverage_floor = float(v)
+    if "waves" in data:
+        v = _want(where, "waves", data["waves"], str, f"give one of {', '.join(_WAVE_MODES)}")
+        if v not in _WAVE_MODES:
+            raise ConfigError(f"{where}: waves = {v!r}; {_suggest(v, _WAVE_MODES)}")
+        out.waves = v
     return out
 
 
@@ -494,7 +504,9 @@ def _simulator_list(where: str, value: Any) -> list[str]:
     names = _str_list(where, "simulators", value)
     for n in names:
         if n not in SIMULATORS:
-            raise ConfigError(f"{where}: unknown simulator {n!r}; use one of {', '.join(SIMULATORS)}")
+            close = difflib.get_close_matches(n, list(SIMULATORS), n=1, cutoff=0.5)
+            hint = f"did you mean {close[0]!r}? " if close else ""
+            raise ConfigError(f"{where}: unknown simulator {n!r}; {hint}vkit drives {', '.join(SIMULATORS)}")
     if not names:
         raise ConfigError(f"{where}: simulators is empty; name at least one of {', '.join(SIMULATORS)}")
     return names
@@ -898,7 +910,7 @@ def expand_matrix(config: Config, simulators: list[str] | None = None) -> list[C
     Raises:
         ConfigError: the matrix is empty, or an image is smaller than a timing's active area.
     """
-    requested = simulators or config.run.simulators
+    requested = _simulator_list("--sim", simulators) if simulators else config.run.simulators
     st = config.stimulus
     cases: dict[str, Case] = {}
     skipped: list[str] = []
@@ -971,6 +983,9 @@ def select_cases(cases: list[Case], only: str | list[str] | None) -> list[Case]:
     def hit(cid: str) -> bool:
         return any(fnmatch.fnmatchcase(cid, p) if glob.has_magic(p) else p in cid for p in pats)
 
+    exact = [c for c in cases if c.id in pats]
+    if len(exact) == len(pats):  # every pattern is a whole case id: exactly those cases (a rerun command)
+        return exact
     chosen = [c for c in cases if hit(c.id)]
     if not chosen:
         raise ConfigError(f"--only {' '.join(pats)} matches none of the {len(cases)} cases; e.g. {cases[0].id!r}")

@@ -75,9 +75,11 @@ class SimulatorInfo:
 
 def _check_name(name: str) -> str:
     if name not in SIMULATORS:
-        raise ConfigError(
-            f"unknown simulator {name!r}: use one of {', '.join(SIMULATORS)}"
-        )
+        import difflib
+
+        close = difflib.get_close_matches(str(name), list(SIMULATORS), n=1, cutoff=0.5)
+        hint = f"did you mean {close[0]!r}? " if close else ""
+        raise ConfigError(f"unknown simulator {name!r}; {hint}vkit drives {', '.join(SIMULATORS)}")
     return name
 
 

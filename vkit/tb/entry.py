@@ -36,6 +36,7 @@ from typing import Any
 import cocotb
 from cocotb.clock import Clock
 from cocotb.triggers import ClockCycles, First, ReadWrite
+from cocotb.utils import get_sim_time
 
 from vkit.capture import Capture
 from vkit.errors import ConfigError
@@ -139,6 +140,8 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
             await ClockCycles(clock, case.reset_cycles)
         # Let the release reach the design before the components read it, so they all count from here.
         await ReadWrite()
+        # capture clock k is the (k+1)-th rising edge after this time (the runner's wave window needs it)
+        monitor.meta["start_time_ps"] = int(get_sim_time("ps"))
         monitor.start()
         if sink is not None:
             sink.start()

@@ -21,6 +21,7 @@ __all__ = [
     "guess_roles",
     "guess_spec",
     "scaffold",
+    "parse_assignments",
     "CONFIG_NAME",
     "MAKEFILE_NAME",
 ]
@@ -678,3 +679,25 @@ def scaffold(
         simulators=sims,
         notes=notes,
     )
+
+
+def parse_assignments(items: Sequence[str] | None, what: str = "parameter") -> dict[str, int | str]:
+    """``["W=10", "MODE=fast", "DEBUG"]`` -> ``{"W": 10, "MODE": "fast", "DEBUG": 1}`` (command-line -P / -D).
+
+    Raises:
+        ConfigError: an item without a name, or a name that is not an HDL identifier.
+    """
+    out: dict[str, int | str] = {}
+    for item in items or []:
+        name, sep, value = str(item).partition("=")
+        name = name.strip()
+        if not re.fullmatch(r"[A-Za-z_]\w*", name):
+            raise ConfigError(f"{what} {item!r}: give NAME=VALUE with NAME an HDL identifier, e.g. WIDTH=8")
+        text = value.strip()
+        if not sep:
+            out[name] = 1
+        elif re.fullmatch(r"[+-]?\d+", text):
+            out[name] = int(text)
+        else:
+            out[name] = text
+    return out

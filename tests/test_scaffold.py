@@ -384,3 +384,21 @@ def test_pytest_plugin_collects_and_runs_the_cases(tmp_path: Path) -> None:
     assert "1 failed" in bad.stdout
     assert "cam_filter_top/icarus/conveyor-s1/tiny32x24/nostall: fail:" in bad.stdout
     assert "report: " in bad.stdout and "verdict.json" in bad.stdout
+
+
+_GHDL = find("ghdl")
+
+
+@pytest.mark.sim
+@needs_make
+@pytest.mark.skipif(not _GHDL.available, reason=f"ghdl: {_GHDL.reason}")
+def test_make_flow_on_ghdl_for_a_vhdl_entity(tmp_path: Path) -> None:
+    repo = tmp_path / "vhdlrepo"
+    (repo / "hdl").mkdir(parents=True)
+    for name in ("edge_root_table_pkg.vhd", "edge_core.vhd"):
+        shutil.copy(SAMPLE / name, repo / "hdl" / name)
+    res = scaffold("edge_core", [repo / "hdl" / "edge_root_table_pkg.vhd", repo / "hdl" / "edge_core.vhd"], repo)
+    assert res.simulators == ["ghdl"]
+    proc, root = _make(repo, "ghdl", "conveyor-s1/tiny32x24/nostall")
+    assert proc.returncode == 0, proc.stdout[-3000:] + proc.stderr[-2000:]
+    assert root is not None and _testcases(root) == {"vkit/conveyor-s1/tiny32x24/nostall": "pass"}

@@ -458,10 +458,29 @@ def _stage_array(fr: FrameResult, name: str) -> Any:
     return st
 
 
+def _wrapped_share(frames: Sequence[FrameResult]) -> float:
+    """Share of wrong pixels whose value looks wrapped or saturated: below the expected value (a wrapped
+    or saturated large value comes out small) or off by a quarter of the output range or more."""
+    errs = [fr.error[fr.value_bad] for fr in frames if fr.value_bad.any()]
+    if not errs:
+        return 0.0
+    e = np.concatenate(errs)
+    out = _stage_array(frames[0], "output")
+    lo, hi = (getattr(out, "lo", 0), getattr(out, "hi", 255)) if out is not None else (0, 255)
+    far = max(2, (int(hi) - int(lo) + 1) // 4)
+    return float(np.mean((e < 0) | (np.abs(e) >= far)))
+
+
 def _overflow_finding(frames: Sequence[FrameResult]) -> Finding | None:
     failing = [fr for fr in frames if fr.value_bad.any()]
     if not failing:
         return None
+    # The values must look wrapped or saturated: small where large was expected (or far off) for a
+    # register that wraps; for the clamp region, the model's value at a bound the design missed.
+    wrapped = _wrapped_share(failing)
+    out_st = _stage_array(failing[0], "output")
+    bounds = (getattr(out_st, "lo", 0), getattr(out_st, "hi", 255)) if out_st is not None else (0, 255)
+    at_bound = float(np.mean(np.concatenate([np.isin(fr.expected[fr.value_bad], bounds) for fr in failing])))
     best: Finding | None = None
     for name in _stage_items(failing):
         vals, bads, clamps = [], [], []
@@ -494,7 +513,8 @@ def _overflow_finding(frames: Sequence[FrameResult]) -> Finding | None:
             c = np.concatenate(clamps)
             cin, bin_ = int(c.sum()), int((c & b).sum())
             recall, base = bin_ / total_bad, cin / n
-            if cin and recall >= 0.8 and base <= 0.5 and _log_tail(bin_, total_bad, base) <= _SIGNIFICANT_LOG_P:
+            if (cin and recall >= 0.8 and base <= 0.5 and max(wrapped, at_bound) >= 0.8
+                    and _log_tail(bin_, total_bad, base) <= _SIGNIFICANT_LOG_P):
                 conf = recall * (1 - base)
                 f = Finding(
                     "overflow",
@@ -527,6 +547,15 @@ def _overflow_finding(frames: Sequence[FrameResult]) -> Finding | None:
             continue
         t_in = int(vs[i])
         t_out = int(vs[i + 1]) if i + 1 < n else None
+        if wrapped < 0.8 or precision < 0.9 or np.unique(vs).size < 3:
+            # A wrap is deterministic: nearly every pixel past the bound is wrong. A region where only
+            # some are (the bright part of a two-level picture) is where the signal is, not a bound.
+            continue
+        hi_range = getattr(st0, "hi", None)
+        wrap_b = int(t_out).bit_length() if t_out is not None else 0
+        at_wrap = t_out is not None and wrap_b >= 4 and t_out < (1 << wrap_b) <= t_in
+        if not at_wrap and hi_range is not None and int(hi_range) > 0 and t_in < 0.25 * int(hi_range):
+            continue  # neither a register bound (2^b, b >= 4) nor the high range of the stage
         cond = f"{name} >= {t_in}"
         bits_txt = ""
         ev: dict[str, Any] = {"stage": name, "region": "top", "threshold": t_in, "below": t_out,
@@ -534,7 +563,7 @@ def _overflow_finding(frames: Sequence[FrameResult]) -> Finding | None:
                               "precision": precision}
         if t_out is not None:
             b2 = max(0, int(t_out).bit_length())
-            if t_out < (1 << b2) <= t_in:
+            if b2 >= 4 and t_out < (1 << b2) <= t_in:
                 need = getattr(st0, "bits", None)
                 widen = f"widen it to {need} bits" if need else "widen it"
                 cond = f"{name} >= 2^{b2} ({1 << b2})"
@@ -666,8 +695,13 @@ def slip_events(frames: Sequence[FrameResult], capture: Capture) -> tuple[list[S
         lo = hi = jj
         while lo > 0 and e[lo - 1] == v:
             lo -= 1
-        while hi + 1 < e.size and e[hi + 1] == v:
-            hi += 1
+        if op == "i":
+            # Inserting v before e[j] or just after any equal neighbour gives the same stream.
+            while hi < e.size - 1 and e[hi] == v:
+                hi += 1
+        else:
+            while hi + 1 < e.size and e[hi + 1] == v:
+                hi += 1
         f, rest = divmod(jj, h * w)
         y, x = divmod(rest, w)
         base = f * h * w + y * w
@@ -871,9 +905,11 @@ def _row_slips(fr: FrameResult) -> list[tuple[int, int, str]]:
         y = int(y)
         x0 = int(np.flatnonzero(fr.value_bad[y])[0])
         a, e, k = fr.actual[y], fr.expected[y], known[y]
+        if int(fr.value_bad[y, x0:].sum()) < 3:
+            continue  # a slip moves the rest of the line: more than one or two pixels go wrong
         for how, asl, esl in (("repeated", slice(x0 + 1, None), slice(x0, -1)), ("dropped", slice(x0, -1), slice(x0 + 1, None))):
-            kk = k[asl] & fr.valid[y][esl]
-            if kk.sum() >= 2 and np.mean(a[asl][kk] == e[esl][kk]) >= 0.9:
+            kk = k[asl] & fr.valid[y][esl] & (a[asl] != e[asl])  # only pixels the slip changed tell
+            if kk.sum() >= 3 and np.mean(a[asl][kk] == e[esl][kk]) >= 0.9:
                 out.append((y, x0, how))
                 break
     return out

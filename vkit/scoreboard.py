@@ -103,6 +103,9 @@ class Verdict:
         tolerance_lsb: the tolerance used.
         align: ``"exact"`` or ``"auto"``.
         per_frame: per-frame counts.
+        implemented: on a failing run, what the design really does: ``latency_clocks`` (measured) and,
+            when ``spec`` and ``images`` were given, ``border`` (the inferred policy with its share and
+            confidence, :meth:`~vkit.align.BorderInference.to_dict`).
         frames: per-frame arrays for the report (not part of :meth:`to_dict`).
     """
 
@@ -130,6 +133,7 @@ class Verdict:
     tolerance_lsb: int = 0
     align: str = "exact"
     per_frame: list[dict[str, int]] = field(default_factory=list)
+    implemented: dict[str, Any] = field(default_factory=dict)
     frames: list[FrameResult] = field(default_factory=list, repr=False)
 
     @property
@@ -165,6 +169,7 @@ class Verdict:
             "tolerance_lsb": self.tolerance_lsb,
             "align": self.align,
             "per_frame": [dict(p) for p in self.per_frame],
+            "implemented": dict(self.implemented),
         }
 
 
@@ -481,10 +486,14 @@ def score(
         )
 
     border: BorderInference | None = None
-    if spec is not None and images is not None and any(
-        fr.value_bad.any() for fr in frames
-    ) and hasattr(spec, "with_border"):
+    failing = bool(issues) or any(fr.mismatch.any() for fr in frames)
+    if spec is not None and images is not None and failing and hasattr(spec, "with_border"):
         border = infer_border(spec, images, capture, run_model=run_model)
+    implemented: dict[str, Any] = {}
+    if failing:
+        implemented["latency_clocks"] = measured_latency
+        if border is not None:
+            implemented["border"] = border.to_dict()
 
     findings = diagnose(
         frames,
@@ -546,6 +555,7 @@ def score(
         timing_errors=[i.message for i in issues],
         findings=findings if not passed else [],
         per_frame=[fr.summary() for fr in frames],
+        implemented=implemented if not passed else {},
         frames=frames,
         **base,
     )

@@ -19,6 +19,7 @@ __all__ = [
     "shift_back",
     "latency_clocks",
     "infer_border",
+    "border_coverage",
 ]
 
 BORDER_POLICIES: tuple[str, ...] = ("replicate", "zero", "constant", "mirror")
@@ -446,3 +447,31 @@ def infer_border(
     won = float(np.mean(wb[differ])) if differ.any() else 0.5
     conf = share * won
     return BorderInference(best if share >= 0.5 else "unknown", share, conf, offset, scores, compared)
+
+
+def border_coverage(
+    spec: Any,
+    images: Sequence[np.ndarray],
+    *,
+    policies: Sequence[str] = BORDER_POLICIES,
+    run_model: Callable[[Any, np.ndarray], Any] | None = None,
+) -> float:
+    """Share of border-ring output pixels where the border policies give different values, 0..1.
+
+    0 means the stimulus cannot tell one border policy from another (e.g. a flat dark edge where
+    'zero' and 'replicate' agree): a pass says nothing about the border logic.
+    """
+    if not images:
+        raise ConfigError("border_coverage: no input images given; pass the images the design is fed")
+    if run_model is None:
+        from vkit.pipeline import run_model as _run
+
+        run_model = _run
+    differ = total = 0
+    for img in images:
+        outs = np.stack([np.asarray(run_model(spec.with_border(p), np.asarray(img)).output) for p in policies])
+        ring = np.zeros(outs.shape[1:], bool)
+        ring[0, :] = ring[-1, :] = ring[:, 0] = ring[:, -1] = True
+        differ += int(np.count_nonzero(~np.all(outs == outs[0], axis=0) & ring))
+        total += int(ring.sum())
+    return differ / max(1, total)

@@ -62,7 +62,7 @@ _RUN_KEYS = ("out_dir", "simulators", "jobs", "seed", "timeout_s", "max_listed",
 _WAVE_MODES = ("failing", "all", "off")
 _STIMULUS_KEYS = (
     "images", "patterns", "size", "frames", "timings", "stalls", "backpressure", "gaps", "blanking",
-    "blanking_value", "seeds",
+    "blanking_value", "seeds", "convert",
 )
 _DESIGN_KEYS = (
     "top", "sources", "language", "family", "pixel_format", "parameters", "file_parameters",
@@ -187,6 +187,8 @@ class StimulusConfig:
         blanking: ``"random"`` or ``"constant"`` data outside active video.
         blanking_value: data word in blanking when ``blanking`` is ``"constant"``.
         seeds: seeds every stimulus without its own seeds runs with.
+        convert: allow the lossy image conversions of :func:`vkit.images.load_image` (16-bit to 8-bit,
+            alpha dropped, colour to luma, gray to RGB); False (default) makes each an error.
     """
 
     images: list[Path] = field(default_factory=list)
@@ -200,6 +202,7 @@ class StimulusConfig:
     blanking: str = "random"
     blanking_value: int = 0
     seeds: list[int] = field(default_factory=lambda: [1])
+    convert: bool = False
 
 
 @dataclass
@@ -323,6 +326,7 @@ class Case:
         stalls, gaps, backpressure: the flow settings (inactive ones have probability 0).
         blanking, blanking_value: blanking data.
         index: position in the sorted full matrix (0-based), the basis of sharding.
+        convert: image conversions allowed (``[stimulus] convert``).
     """
 
     id: str
@@ -344,6 +348,7 @@ class Case:
     blanking: str = "random"
     blanking_value: int = 0
     index: int = 0
+    convert: bool = False
 
     @property
     def steady(self) -> bool:
@@ -599,6 +604,8 @@ def _parse_stimulus(where: str, data: Mapping[str, Any], base: Path) -> Stimulus
         st.blanking = v
     if "blanking_value" in data:
         st.blanking_value = _int(where, "blanking_value", data["blanking_value"], 0)
+    if "convert" in data:
+        st.convert = _want(where, "convert", data["convert"], bool, "give true or false")
     if "seeds" in data:
         seeds = data["seeds"] if isinstance(data["seeds"], list) else [data["seeds"]]
         st.seeds = [_int(where, "seeds", s, 0) for s in seeds]
@@ -882,13 +889,11 @@ def load_config(path: str | Path) -> Config:
 
 
 def _image_size(path: Path) -> tuple[int, int]:
-    from PIL import Image
+    """``(width, height)`` through vkit.images (decompression-bomb guard, one-line errors)."""
+    from vkit.images import load_image
 
-    try:
-        with Image.open(path) as im:
-            return im.size
-    except OSError as exc:
-        raise ConfigError(f"image {path}: cannot be read ({exc}); give a PNG, PPM or PGM file") from None
+    arr = load_image(path, mode="auto", convert=True)
+    return int(arr.shape[1]), int(arr.shape[0])
 
 
 def _design_simulators(d: DesignConfig, requested: list[str]) -> list[str]:
@@ -960,7 +965,7 @@ def expand_matrix(config: Config, simulators: list[str] | None = None) -> list[C
                                 stimulus_label=slabel, pattern_options=options, seed=seed + config.run.seed,
                                 frames=st.frames, width=width, height=height, timing=timing, timing_label=tlabel,
                                 stalls=stall, gaps=gap, backpressure=bp, blanking=st.blanking,
-                                blanking_value=st.blanking_value,
+                                blanking_value=st.blanking_value, convert=st.convert,
                             )
     if not cases:
         names = ", ".join(skipped) or "none"

@@ -151,7 +151,7 @@ def make_frames(case: Case) -> np.ndarray:
     """The case's input frames, uint8 ``(N, H, W)`` (gray8) or ``(N, H, W, 3)`` (rgb888).
 
     Frame ``k`` of a pattern uses seed ``case.seed + k`` (seeded patterns differ per frame). An image
-    is read in the design's pixel format (explicit conversions allowed) and centre-cropped to the
+    is read in the design's pixel format (conversions only with ``[stimulus] convert = true``) and centre-cropped to the
     case's size; every frame of an image case is that image.
     """
     from vkit.images import load_image
@@ -164,8 +164,13 @@ def make_frames(case: Case) -> np.ndarray:
             img = make_pattern(case.stimulus_name, case.height, case.width, seed=case.seed + k, rgb=rgb,
                                **dict(case.pattern_options))
         else:
-            img = _crop(load_image(case.stimulus_name, mode=case.design.pixel_format, convert=True),
-                        case.width, case.height)
+            try:
+                loaded = load_image(case.stimulus_name, mode=case.design.pixel_format, convert=case.convert)
+            except ConfigError as exc:
+                if "convert" not in str(exc):
+                    raise
+                raise ConfigError(f"{exc} (in a vkit config: convert = true under [stimulus])") from None
+            img = _crop(loaded, case.width, case.height)
         frames.append(np.ascontiguousarray(img, dtype=np.uint8))
     return np.stack(frames)
 

@@ -363,7 +363,8 @@ def _vhdl_value(value: Any) -> str:
     return '"' + text.replace('"', '""') + '"'
 
 
-_LINT = ("WIDTHEXPAND", "WIDTHTRUNC", "UNUSEDSIGNAL", "UNUSEDPARAM", "BLKSEQ", "UNDRIVEN", "MULTIDRIVEN")
+_LINT = ("WIDTHEXPAND", "WIDTHTRUNC", "UNUSEDSIGNAL", "UNUSEDPARAM", "BLKSEQ", "UNDRIVEN", "MULTIDRIVEN", "INITIALDLY",
+         "ZERODLY")
 
 
 def verilog_harness(spec: HarnessSpec) -> str:

@@ -1,5 +1,6 @@
 """Shared fixtures: simulator availability with install hints, and one build cache per test session.
 
+Tests marked ``slow`` are deselected unless ``-m`` is given (``pytest -m slow`` runs the long suite).
 ``simulator_available(name)`` returns the :class:`vkit.simulators.SimulatorInfo` or skips the test
 with the install hint. ``build_cache_dir`` is a session-scoped folder under pytest's temporary
 directory (a few MB of Icarus/GHDL builds, one Verilator build is about 10 MB); tests that run real
@@ -24,6 +25,16 @@ def simulator_available(name: str) -> SimulatorInfo:
     if not info.available:
         pytest.skip(f"{name} not usable here: {info.reason}")
     return info
+
+
+def pytest_collection_modifyitems(config: pytest.Config, items: list[pytest.Item]) -> None:
+    """Leave ``slow`` tests out unless a marker expression is given (``pytest -m slow`` runs them)."""
+    if config.getoption("markexpr", ""):
+        return
+    slow = [item for item in items if item.get_closest_marker("slow") is not None]
+    if slow:
+        config.hook.pytest_deselected(items=slow)
+        items[:] = [item for item in items if item.get_closest_marker("slow") is None]
 
 
 @pytest.fixture(scope="session")

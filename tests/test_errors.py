@@ -461,3 +461,20 @@ def test_waves_on_request_for_a_passing_case(tmp_path, build_cache_dir, capsys):
     (case,) = _report(tmp_path)["cases"]
     start, end, nvars = _fst_times(tmp_path / "out" / case["files"]["waves"])
     assert end > start and nvars >= 12
+
+
+# ------------------------------------------------------------------------------------------ vkit init
+
+
+def test_init_writes_a_starter_kit_and_refuses_to_overwrite(tmp_path, capsys):
+    sources = [str(SAMPLE_RTL / "window3x3.v"), str(SAMPLE_RTL / "blur_core.v")]
+    assert main(["init", "blur_core", *sources, "--out", str(tmp_path / "kit"), "--sim", "icarus"]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith("vkit init: blur_core (verilog, family video, spec blur)")
+    from vkit.config import load_config
+
+    cfg = load_config(tmp_path / "kit" / "vkit.toml")
+    assert cfg.designs["blur_core"].ports["out_de"] == "out_de"
+    assert main(["init", "blur_core", *sources, "--out", str(tmp_path / "kit")]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.startswith("vkit: error: vkit init: ") and err.endswith("nothing was written; pass --force to overwrite")

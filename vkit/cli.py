@@ -189,6 +189,18 @@ def _cmd_pattern(args: argparse.Namespace) -> int:
     return EXIT_PASS
 
 
+def _cmd_init(args: argparse.Namespace) -> int:
+    from vkit.scaffold import parse_assignments, scaffold
+
+    result = scaffold(
+        args.top, list(args.sources), args.out, args.family, spec=args.spec, pixel_format=args.pixel_format,
+        simulators=args.sim, parameters=parse_assignments(args.param, "parameter"),
+        defines=parse_assignments(args.define, "define"), design_name=args.name, force=args.force,
+    )
+    print(result.summary())
+    return EXIT_PASS
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser of the ``vkit`` command."""
     p = argparse.ArgumentParser(prog="vkit", description="Verification kit for streaming 3x3 video-filter RTL.")
@@ -241,6 +253,22 @@ def build_parser() -> argparse.ArgumentParser:
     lu.add_argument("--format", choices=["readmemh", "readmemb", "vhdl"], default="readmemh")
     lu.add_argument("-o", "--output", required=True, help="output file")
     lu.set_defaults(func=_cmd_lut)
+
+    ini = sub.add_parser("init", help="write a starter vkit.toml, cocotb test and Makefile for an existing design")
+    ini.add_argument("top", help="top-level module or entity")
+    ini.add_argument("sources", nargs="+", help="HDL files of the design, in compile order")
+    ini.add_argument("--out", default=".", help="folder to write into (default: the current folder)")
+    ini.add_argument("--family", choices=["video", "stream"], default=None, help="interface family (default: guessed)")
+    ini.add_argument("--spec", default=None, help="pipeline preset (default: guessed from the names)")
+    ini.add_argument("--pixel-format", default=None, help="gray8 or rgb888 (default: from the data width)")
+    ini.add_argument("--sim", nargs="+", default=None, help="simulators for the config")
+    ini.add_argument("-P", "--param", action="append", default=None, metavar="NAME=VALUE",
+                     help="parameter / generic value (repeatable)")
+    ini.add_argument("-D", "--define", action="append", default=None, metavar="NAME[=VALUE]",
+                     help="Verilog define (repeatable)")
+    ini.add_argument("--name", default=None, help="the design's name in the config (default: the top)")
+    ini.add_argument("--force", action="store_true", help="overwrite existing files")
+    ini.set_defaults(func=_cmd_init)
 
     pa = sub.add_parser("pattern", help="write a verification pattern as PNG")
     pa.add_argument("name", help="pattern name (see vkit.patterns.PATTERNS)")

@@ -206,7 +206,8 @@ def test_fast_path_matches_the_per_clock_path(sim: str, tmp_path: Path) -> None:
         assert fast.meta[key] == slow.meta[key], key
 
 
-def _run_per_clock(sim: str, case: SimCase, top: str, sources: list[Path], work: Path) -> Capture:
+def _run_per_clock(sim: str, case: SimCase, top: str, sources: list[Path], work: Path, *,
+                   parameters: dict[str, Any] | None = None, defines: dict[str, Any] | None = None) -> Capture:
     from cocotb_tools.runner import get_runner
 
     from vkit.simulators import activate, find
@@ -215,9 +216,10 @@ def _run_per_clock(sim: str, case: SimCase, top: str, sources: list[Path], work:
     case_json = case.to_json(work / "case.json")
     runner = get_runner(sim)
     runner.build(sources=sources, hdl_toplevel=top, build_dir=work / f"build_{sim}", always=True,
-                 timescale=("1ns", "1ps") if sim == "icarus" else None)
+                 timescale=("1ns", "1ps") if sim == "icarus" else None, parameters=parameters or {},
+                 defines=defines or {})
     runner.test(hdl_toplevel=top, test_module="vkit.tb.entry", build_dir=work / f"build_{sim}", test_dir=work,
-                extra_env={CASE_ENV: str(case_json)})
+                extra_env={CASE_ENV: str(case_json)}, parameters=parameters or {})
     return Capture.load(case.capture_file)
 
 
@@ -229,3 +231,163 @@ def test_harness_text_names_the_real_ports() -> None:
     assert ".pix_in(d_in_data)" in text and ".pix_out(d_out_data)" in text and "my_core dut" in text
     with pytest.raises(ConfigError):
         HarnessSpec("video", "my core", roles, 24, 8)
+
+
+# ---------------------------------------------------------------------------------------------- one build, sample RTL
+
+RTL = Path(__file__).resolve().parent.parent / "sample_rtl"
+
+
+def _sample_design(name: str) -> dict[str, Any]:
+    import tomllib
+
+    return tomllib.loads((RTL / "designs.toml").read_text())["designs"][name]
+
+
+def _design_parameters(d: dict[str, Any], height: int) -> dict[str, Any]:
+    """The manifest's parameters as a run needs them: file parameters as quoted absolute paths, frame parameters set."""
+    params: dict[str, Any] = dict(d.get("parameters", {}))
+    for name, file in d.get("file_parameters", {}).items():
+        params[name] = f'"{RTL / file}"'
+    for what, name in d.get("frame_parameters", {}).items():
+        assert what == "height", what
+        params[name] = height
+    return params
+
+
+@pytest.mark.sim
+def test_one_build_runs_different_timing_stalls_seeds_and_frame_counts(tmp_path: Path) -> None:
+    _require("icarus")
+    from cocotb_tools.runner import get_runner
+
+    src = [HDL / "fast_video_pass.v"]
+    a = _video_case(tmp_path / "a", seed=1)
+    b = SimCase("video", dict(VIDEO_SIGNALS), str(_frames(tmp_path / "b", n=3, seed=8)), str(tmp_path / "b" / "cap.npz"),
+                32, 24, timing={"h_active": 32, "h_front_porch": 5, "h_sync": 3, "h_back_porch": 7, "v_active": 24,
+                                "v_front_porch": 2, "v_sync": 2, "v_back_porch": 1,
+                                "hsync_active_high": False, "vsync_active_high": False},
+                stalls={"probability": 0.3, "max_length": 4, "seed": 6}, seed=9)
+    plan_a = fast_build_plan("fast_video_pass", src, None, None, None, "video", a.signals, out_dir=tmp_path / "h")
+    plan_b = fast_build_plan("fast_video_pass", src, None, None, None, "video", b.signals, out_dir=tmp_path / "h")
+    assert plan_a.key == plan_b.key  # the build knows nothing of either stimulus
+    runner = get_runner("icarus")
+    build_dir = tmp_path / "build"
+    runner.build(build_dir=build_dir, **plan_a.build_kwargs("icarus"))
+    stamp = (build_dir / "sim.vvp").stat().st_mtime_ns
+    caps = [run_fast("icarus", c, "fast_video_pass", src, tmp_path / n, build_dir=build_dir) for c, n in ((a, "a"), (b, "b"))]
+    assert (build_dir / "sim.vvp").stat().st_mtime_ns == stamp
+    for cap, case in zip(caps, (a, b)):
+        # A pass-through design returns its input (fast_video_pass.v: out_data = in_data, 1 clock).
+        _assert_same_frames(cap, case.load_frames())
+        assert cap.meta["latency_clocks"] == 1 and cap.meta["timed_out"] is False
+    assert caps[0].meta["output_hsync_per_frame"] == caps[0].meta["input_hsync_per_frame"]
+    # Active-low syncs given at run time: the pass-through resets its outputs to 0 (= active), so it
+    # shows one extra sync edge out of reset; every input frame's hsyncs come out after it.
+    assert caps[1].meta["output_hsync_per_frame"][-2:] == caps[1].meta["input_hsync_per_frame"][-2:]
+    assert len(caps[1].meta["stall_pixels"]) > 0
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("sim", ["icarus", "verilator"])
+@pytest.mark.parametrize("design", ["edge_core", "blur_core"])
+def test_sample_cores_fast_path_equals_per_clock_path(design: str, sim: str, tmp_path: Path) -> None:
+    pytest.importorskip("vkit.tb.entry")
+    _require(sim)
+    from vkit.pipeline import preset, run_model
+
+    d = _sample_design(design)
+    sources = [RTL / f for f in d["sources"]]
+    params = _design_parameters(d, 24)
+    rng = np.random.default_rng(21)
+    shape = (2, 24, 32, 3) if d["pixel_format"] == "rgb888" else (2, 24, 32)
+    stalls = {"probability": 0.15, "max_length": 3, "seed": 4}
+    caps = []
+    for path in ("fast", "slow"):
+        work = tmp_path / path
+        work.mkdir()
+        np.save(work / "frames.npy", rng.integers(0, 256, shape, dtype=np.uint8) if path == "fast" else
+                np.load(tmp_path / "fast" / "frames.npy"))
+        case = SimCase("video", dict(d["ports"]), str(work / "frames.npy"), str(work / "out" / "cap.npz"), 32, 24,
+                       pixel_format=d["pixel_format"], stalls=stalls, seed=3)
+        if path == "fast":
+            caps.append(run_fast(sim, case, d["top"], sources, work, parameters=params))
+        else:
+            caps.append(_run_per_clock(sim, case, d["top"], sources, work, parameters=params))
+    fast, slow = caps
+    for key in ("values", "frame", "line", "column", "clock"):
+        np.testing.assert_array_equal(getattr(fast, key), getattr(slow, key), err_msg=key)
+    for key in ("latency_clocks", "output_vsync_count", "output_hsync_per_frame", "first_input_clock",
+                "xz_data_count", "de_in_blanking"):
+        assert fast.meta[key] == slow.meta[key], key
+    # Both equal the bit-exact model on every checked pixel (the model is tested against SciPy/OpenCV).
+    frames = np.load(tmp_path / "fast" / "frames.npy")
+    spec = preset(d["spec"])
+    for view, frame in zip(fast.frames(24, 32), frames):
+        want = run_model(spec, frame, keep_stages=False)
+        np.testing.assert_array_equal(view.pixels[want.valid_mask], want.output[want.valid_mask])
+    # latency_clocks in designs.toml is measured without stalls on tiny32x24; the first line has no stall
+    # before its first output pixel only by chance, so check the declared figure on the pipeline instead.
+    assert fast.meta["latency_clocks"] >= d["latency_clocks"]
+
+
+def _variants() -> list[tuple[str, str | None]]:
+    import tomllib
+
+    out: list[tuple[str, str | None]] = []
+    for name, d in tomllib.loads((RTL / "designs.toml").read_text())["designs"].items():
+        if d.get("language") != "verilog" or "icarus" not in d.get("simulators", []):
+            continue
+        out.append((name, None))
+        out += [(name, bug) for bug in d.get("bugs", {})]
+    return out
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("design,bug", _variants(), ids=[f"{d}-{b or 'good'}" for d, b in _variants()])
+def test_fast_and_per_clock_paths_give_the_same_verdict(design: str, bug: str | None, tmp_path: Path) -> None:
+    pytest.importorskip("vkit.tb.entry")
+    _require("icarus")
+    from vkit.patterns import box, to_rgb
+    from vkit.pipeline import preset, run_model
+    from vkit.scoreboard import score
+
+    d = _sample_design(design)
+    sources = [RTL / f for f in d["sources"]]
+    params = _design_parameters(d, 24)
+    b = d.get("bugs", {}).get(bug, {}) if bug else {}
+    defines = {b["define"]: 1} if bug else {}
+    needs = str(b.get("needs", "")).lower()
+    if "box" in needs:
+        gray = np.stack([box(24, 32, low=10, high=250), box(24, 32, low=0, high=255, margin=5)])
+    else:
+        gray = np.random.default_rng(17).integers(0, 256, (2, 24, 32), dtype=np.uint8)
+    frames = np.stack([to_rgb(g) for g in gray]) if d["pixel_format"] == "rgb888" else gray
+    if d["pixel_format"] == "rgb888" and "box" not in needs:
+        frames = np.random.default_rng(18).integers(0, 256, (2, 24, 32, 3), dtype=np.uint8)
+    extra: dict[str, Any] = {}
+    if d["family"] == "video" and "stall" in needs:
+        extra["stalls"] = {"probability": 0.15, "max_length": 3, "seed": 2}
+    if d["family"] == "stream" and "back-pressure" in needs:
+        extra["backpressure"] = {"probability": 0.3, "max_length": 3, "seed": 2}
+        extra["stream_gaps"] = {"probability": 0.2, "max_length": 2, "seed": 3}
+    spec = preset(d["spec"])
+    expected = [run_model(spec, f) for f in frames]
+    verdicts = []
+    for path in ("fast", "slow"):
+        work = tmp_path / path
+        work.mkdir()
+        np.save(work / "frames.npy", frames)
+        case = SimCase(d["family"], dict(d["ports"]), str(work / "frames.npy"), str(work / "out" / "cap.npz"), 32, 24,
+                       pixel_format=d["pixel_format"], seed=5, **extra)
+        run = run_fast if path == "fast" else _run_per_clock
+        cap = run("icarus", case, d["top"], sources, work, parameters=params, defines=defines)
+        verdicts.append(score(expected, cap))
+    fast, slow = verdicts
+    assert fast.status == slow.status
+    kinds = [v.diagnosis.kind if v.diagnosis else None for v in verdicts]
+    assert kinds[0] == kinds[1], (kinds, fast.to_dict().get("findings"), slow.to_dict().get("findings"))
+    if d["family"] == "video":  # stream back-pressure is not yet clock-aligned between the paths (same draw, offset start)
+        assert (fast.mismatches, fast.missing_pixels, fast.extra_pixels) == (slow.mismatches, slow.missing_pixels,
+                                                                            slow.extra_pixels)
+    if bug is None:
+        assert fast.passed, fast.to_dict()

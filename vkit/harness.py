@@ -83,7 +83,7 @@ TOPLEVEL = "vkit_fast_top"
 GAP_BITS = 16
 """Bits of the idle-gap count in a stream word (longest gap: 65535 clocks)."""
 
-READY_WORDS = 4096
+READY_WORDS = 65536
 """Clocks in the stream sink's ready pattern; the harness repeats it for longer runs."""
 
 STREAM_TAIL = 16
@@ -1140,7 +1140,8 @@ def fast_test_args(case: Any, simulator: str, *, in_width: int | None = None) ->
         in_width: input data bus bits when it differs from the pixel format's bits.
 
     Returns:
-        ``dict(hdl_toplevel, test_module, plusargs, parameters, test_args, extra_env, test_dir)``;
+        ``dict(hdl_toplevel, hdl_toplevel_lang, test_module, plusargs, parameters, test_args, extra_env,
+        test_dir)``;
         pass it to ``runner.test(build_dir=..., **args)``. ``test_dir`` is the case's run folder
         (None for GHDL, which must run in the build folder; every path passed is absolute).
     """
@@ -1165,6 +1166,8 @@ def fast_test_args(case: Any, simulator: str, *, in_width: int | None = None) ->
         plusargs = stim.plusargs(capture_txt) + [f"+vkit_half_ns={period / 2:.6f}", f"+vkit_reset_cycles={reset_cycles}"]
     return {
         "hdl_toplevel": TOPLEVEL,
+        # A runner object that did not run the build itself needs the language (cocotb_tools.runner).
+        "hdl_toplevel_lang": language,
         "test_module": "vkit.tb.fast",
         "plusargs": plusargs,
         "parameters": parameters,

@@ -160,14 +160,35 @@ def video_stimulus_words(sched: ClockSchedule, data: np.ndarray, in_width: int) 
 
 
 def ready_pattern(pattern: StallPattern | None, words: int = READY_PATTERN_WORDS) -> np.ndarray:
-    """The sink's per-clock ready levels (bool, ``words`` long): before each ready-high clock, with
-    ``pattern.probability``, 1..``max_length`` ready-low clocks (the same draw as :class:`StallPattern`)."""
+    """The sink's per-clock ready levels (bool, ``words`` long), the same draw as the per-clock sink.
+
+    Before each clock with ready high, a ready-low run of 1..``max_length`` clocks starts with
+    ``pattern.probability``; the draws come from numpy PCG64 seeded with ``pattern.seed`` in chunks of
+    4096 clocks, exactly as :class:`vkit.tb.stream.StreamSink` makes them, so both paths see the same
+    back-pressure for the first ``words`` clocks (the harness then repeats the pattern).
+    """
     if pattern is None or pattern.probability == 0:
         return np.ones(words, bool)
-    lengths = pattern.draw(1, 1, words).ravel()
-    counts = lengths + 1
-    out = np.zeros(int(counts.sum()), bool)
-    out[np.cumsum(counts) - 1] = True
+    rng = np.random.default_rng(pattern.seed)
+    chunk = 4096
+    out = np.ones(((words + chunk - 1) // chunk) * chunk, bool)
+    carry = 0
+    for base in range(0, out.size, chunk):
+        starts = rng.random(chunk) < pattern.probability
+        lengths = rng.integers(1, pattern.max_length + 1, size=chunk)
+        seg = out[base:base + chunk]
+        i = 0
+        if carry:
+            seg[:carry] = False
+            i = carry
+        carry = 0
+        for j in np.flatnonzero(starts[i:]) + i:
+            if j < i:
+                continue
+            end = int(j) + int(lengths[j])
+            seg[j:min(end, chunk)] = False
+            carry = max(0, end - chunk)
+            i = end
     return out[:words]
 
 

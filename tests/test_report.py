@@ -86,6 +86,18 @@ def test_passing_case_writes_no_pictures(tmp_path) -> None:
     assert paths["frames"] == {} and (tmp_path / paths["verdict"]).exists()
 
 
+def test_passing_case_pictures_on_request(tmp_path) -> None:
+    # pictures="all" (the demo's setting) shows every checked frame; a pass has an all-black diff
+    spec = preset("median")
+    r = run_model(spec, np.full((4, 5), 9, np.uint8))
+    v = score([r], pack([r.output]))
+    paths = write_case_report("ok", v, [r], pack([r.output]), tmp_path, pictures="all")
+    files = paths["frames"]["0"]
+    assert set(files) == {"expected", "actual", "diff", "composite"}
+    diff = np.asarray(Image.open(tmp_path / files["diff"]).convert("RGB"))
+    assert diff.max() == 0
+
+
 @pytest.mark.parametrize("case_id", ["../../etc/passwd", "/abs/path", "..", "a\\b:c*?", "", "x" * 300])
 def test_case_ids_never_escape_out_dir(case_id, failing, tmp_path) -> None:
     r, cap, v = failing

@@ -58,8 +58,9 @@ __all__ = [
 ]
 
 _RUN_KEYS = ("out_dir", "simulators", "jobs", "seed", "timeout_s", "max_listed", "cache_dir", "coverage_floor",
-             "waves")
+             "waves", "pictures")
 _WAVE_MODES = ("failing", "all", "off")
+_PICTURE_MODES = ("failing", "all")
 _STIMULUS_KEYS = (
     "images", "patterns", "size", "frames", "timings", "stalls", "backpressure", "gaps", "blanking",
     "blanking_value", "seeds", "convert",
@@ -158,6 +159,7 @@ class RunSettings:
             coverage warning in the case result, 0.0..1.0.
         waves: ``"failing"`` (rerun failing cases with a wave dump around the first mismatch),
             ``"all"`` or ``"off"``.
+        pictures: ``"failing"`` (PNGs for failing frames only) or ``"all"`` (every frame, passing too).
     """
 
     out_dir: Path
@@ -169,6 +171,7 @@ class RunSettings:
     cache_dir: Path | None = None
     coverage_floor: float = 0.5
     waves: str = "failing"
+    pictures: str = "failing"
 
 
 @dataclass
@@ -500,6 +503,11 @@ def _parse_run(where: str, data: Mapping[str, Any], base: Path) -> RunSettings:
         if v not in _WAVE_MODES:
             raise ConfigError(f"{where}: waves = {v!r}; {_suggest(v, _WAVE_MODES)}")
         out.waves = v
+    if "pictures" in data:
+        v = _want(where, "pictures", data["pictures"], str, f"give one of {', '.join(_PICTURE_MODES)}")
+        if v not in _PICTURE_MODES:
+            raise ConfigError(f"{where}: pictures = {v!r}; {_suggest(v, _PICTURE_MODES)}")
+        out.pictures = v
     return out
 
 

@@ -145,10 +145,11 @@ def write_case_report(
     capture: Capture,
     out_dir: str | Path,
     meta: Mapping[str, Any] | None = None,
+    pictures: str = "failing",
 ) -> dict[str, Any]:
     """Write the pictures and the verdict of one case under ``out_dir/<safe case id>/``.
 
-    For each failing frame: ``frameNNN_expected.png``, ``frameNNN_actual.png``, ``frameNNN_diff.png``
+    For each failing frame (every frame with ``pictures="all"``): ``frameNNN_expected.png``, ``frameNNN_actual.png``, ``frameNNN_diff.png``
     (absolute error, black = equal, red to white up to the largest error, cyan = missing, magenta =
     X/Z, dark blue = unchecked) and ``frameNNN_composite.png`` (expected | actual | diff, labelled,
     enlarged so a panel is at least 256 pixels wide). Also ``verdict.json`` (verdict plus ``meta``).
@@ -160,6 +161,7 @@ def write_case_report(
         capture: the capture the verdict was scored from.
         out_dir: the run's report folder.
         meta: extra facts stored in ``verdict.json`` (seeds, simulator, ...).
+        pictures: ``"failing"`` or ``"all"``.
 
     Returns:
         ``{"verdict": path, "frames": {"<index>": {"expected", "actual", "diff", "composite"}}}`` with
@@ -170,10 +172,11 @@ def write_case_report(
     case_dir = _inside(out, out / safe_name(case_id))
     case_dir.mkdir(parents=True, exist_ok=True)
     paths: dict[str, Any] = {"frames": {}}
-    if not getattr(verdict, "passed", False) and getattr(verdict, "status", "") in ("fail", "no_output"):
+    failing = not getattr(verdict, "passed", False) and getattr(verdict, "status", "") in ("fail", "no_output")
+    if failing or (pictures == "all" and getattr(verdict, "status", "") != "error"):
         frames = _rebuild_frames(verdict, expected, capture)
         for fr in frames:
-            if not fr.failed:
+            if not fr.failed and pictures != "all":
                 continue
             top = _display_top(fr)
             e_img, a_img, d_img, emax = _frame_images(fr, top)

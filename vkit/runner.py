@@ -443,7 +443,20 @@ def _coverage(case: Case, spec: Any, frames: np.ndarray, floor: float) -> tuple[
                 f"({c.seen_min}..{c.seen_max} of {c.lo}..{c.hi}): a pass proves less than it seems"
             )
     clamps = {k: round(float(v), 6) for k, v in report.overall.clamp_shares.items()}
-    return {"stages": stages, "clamp_shares": clamps, "floor": floor}, warnings
+    if spec.window.border != "unchecked":
+        from vkit.align import border_coverage
+
+        border_share = border_coverage(spec, list(frames))
+        if border_share == 0.0:
+            warnings.append("the stimulus cannot tell border policies apart (they agree on every border pixel): "
+                            "a pass says nothing about the border logic")
+    else:
+        border_share = None
+    if spec.input == "rgb888" and all(
+        np.array_equal(f[..., 0], f[..., 1]) and np.array_equal(f[..., 1], f[..., 2]) for f in frames
+    ):
+        warnings.append("gray input on an RGB design (R = G = B everywhere): the colour weights are untested")
+    return {"stages": stages, "clamp_shares": clamps, "border_share": border_share, "floor": floor}, warnings
 
 
 def _sim_dir(out_dir: Path, case: Case) -> Path:
@@ -585,7 +598,8 @@ def _wave_rerun(case: Case, out: Path, cache_dir: str | Path | None, frames: np.
 
 def run_one_case(case: Case, out_dir: str | Path, cache_dir: str | Path | None = None, *,
                  timeout_s: float = 600.0, max_listed: int = 20, coverage_floor: float = 0.5,
-                 waves: str = "failing", config_path: str | Path | None = None) -> CaseResult:
+                 waves: str = "failing", config_path: str | Path | None = None,
+                 pictures: str = "failing") -> CaseResult:
     """Run one case end to end and write its report; never raises for a case-level problem.
 
     Args:
@@ -593,6 +607,7 @@ def run_one_case(case: Case, out_dir: str | Path, cache_dir: str | Path | None =
             mismatch (Icarus), ``"all"`` does so for every case, ``"off"`` never.
         config_path: the config the case came from; when given, the report carries the command
             that reruns exactly this case.
+        pictures: ``"failing"`` writes PNGs for failing frames only, ``"all"`` for every frame.
 
     Returns:
         A :class:`CaseResult`; errors (bad stimulus, build failure, simulator crash) come back as
@@ -660,7 +675,7 @@ def run_one_case(case: Case, out_dir: str | Path, cache_dir: str | Path | None =
         meta["rerun"] = rerun
         if wave_info is not None:
             meta["waves"] = wave_info
-        files = write_case_report(case.id, verdict, expected, capture, out, meta=meta)
+        files = write_case_report(case.id, verdict, expected, capture, out, meta=meta, pictures=pictures)
         files.update(_kept_files(out, sim_dir))
         if wave_info is not None:
             files["waves"] = wave_info["file"]
@@ -696,9 +711,10 @@ def _build_worker(case: Case, cache_dir: str | None) -> tuple[str, dict[str, Any
 
 
 def _case_worker(case: Case, out_dir: str, cache_dir: str | None, timeout_s: float, max_listed: int,
-                 floor: float, waves: str = "failing", config_path: str | None = None) -> CaseResult:
+                 floor: float, waves: str = "failing", config_path: str | None = None,
+                 pictures: str = "failing") -> CaseResult:
     return run_one_case(case, out_dir, cache_dir, timeout_s=timeout_s, max_listed=max_listed, coverage_floor=floor,
-                        waves=waves, config_path=config_path)
+                        waves=waves, config_path=config_path, pictures=pictures)
 
 
 def _progress_line(i: int, n: int, res: CaseResult) -> str:
@@ -726,7 +742,7 @@ def _check_writable(out: Path) -> None:
 def run_cases(cases: list[Case], out_dir: str | Path, *, jobs: int = 1, cache_dir: str | Path | None = None,
               timeout_s: float = 600.0, max_listed: int = 20, coverage_floor: float = 0.5,
               progress: bool = True, stream: TextIO | None = None, waves: str = "failing",
-              config_path: str | Path | None = None) -> RunResult:
+              config_path: str | Path | None = None, pictures: str = "failing") -> RunResult:
     """Build, run, score and report a list of cases into ``out_dir`` (see :func:`run`).
 
     Raises:
@@ -786,14 +802,15 @@ def run_cases(cases: list[Case], out_dir: str | Path, *, jobs: int = 1, cache_di
                 pending.append(c)
         if pool is None:
             for c in pending:
-                res = _case_worker(c, str(out), cache, timeout_s, max_listed, coverage_floor, waves, cfg_path)
+                res = _case_worker(c, str(out), cache, timeout_s, max_listed, coverage_floor, waves, cfg_path,
+                                   pictures)
                 results[c.id] = res
                 counter += 1
                 if progress:
                     print(_progress_line(counter, n, res), file=stream, flush=True)
         else:
             futs2 = {pool.submit(_case_worker, c, str(out), cache, timeout_s, max_listed, coverage_floor, waves,
-                                 cfg_path): c
+                                 cfg_path, pictures): c
                      for c in pending}
             for f in concurrent.futures.as_completed(futs2):
                 c = futs2[f]
@@ -847,7 +864,7 @@ def run(config: Config, jobs: int | None = None, shard: tuple[int, int] | str | 
     return run_cases(
         cases, out, jobs=jobs or config.run.jobs, cache_dir=config.run.cache_dir, timeout_s=config.run.timeout_s,
         max_listed=config.run.max_listed, coverage_floor=config.run.coverage_floor, progress=progress, stream=stream,
-        waves=waves or config.run.waves, config_path=config.path,
+        waves=waves or config.run.waves, config_path=config.path, pictures=config.run.pictures,
     )
 
 

@@ -166,3 +166,26 @@ def test_shards_merge_into_one_report(tmp_path, build_cache_dir, capsys):
     ids = sorted(c["id"] for c in merged["cases"])
     assert ids == sorted(c.id for c in expand_matrix(load_config(cfg)))
     assert (tmp_path / "all" / "junit.xml").is_file()
+
+
+@pytest.mark.sim
+def test_fast_path_gives_the_clock_path_verdicts(tmp_path, build_cache_dir, capsys):
+    # The generated HDL harness (path "fast") must judge every case as the per-clock cocotb path does.
+    simulator_available("icarus")
+    body = (f'[[import]]\nmanifest = "{MANIFEST}"\nuse = ["edge_core", "stream_core"]\n'
+            f'[[import]]\nmanifest = "{MANIFEST}"\nuse = ["blur_core"]\nbugs = "only"\n'
+            '[stimulus]\npatterns = ["conveyor"]\ntimings = ["tiny32x24"]\nstalls = [0.1]\nbackpressure = [0.2]\n')
+    cfg = _config(tmp_path, body, build_cache_dir)
+    verdicts = {}
+    for path in ("clock", "fast"):
+        code = main(["run", str(cfg), "-j", "2", "--path", path, "--no-waves", "--out", str(tmp_path / path),
+                     "--only", "edge_core/*", "--only", "stream_core/*", "--only", "*blur_truncate*"])
+        out = capsys.readouterr().out
+        assert code == 1, out  # the seeded bug fails on both paths
+        report = json.loads((tmp_path / path / "report.json").read_text())
+        verdicts[path] = {c["id"]: (c["status"], (c["diagnosis"] or {}).get("kind")) for c in report["cases"]}
+        for c in report["cases"]:
+            meta = json.loads((tmp_path / path / c["files"]["verdict"]).read_text())["meta"]
+            assert meta["path"] == path
+    assert verdicts["fast"] == verdicts["clock"]
+    assert {s for s, _ in verdicts["fast"].values()} == {"pass", "fail"}

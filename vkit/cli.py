@@ -40,7 +40,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
     config = load_config(args.config)
     result = run(config, jobs=args.jobs, shard=args.shard, only=args.only, out_dir=args.out,
-                 simulators=args.sim or None, waves=args.waves)
+                 simulators=args.sim or None, waves=args.waves, path=args.path)
     _print_run_end(result)
     return result.exit_code
 
@@ -102,7 +102,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     demo = Path(str(files("vkit.sim") / "demo.toml"))
     config = load_config(demo)
     out = Path(args.out) if args.out else Path.cwd() / "vkit-demo"
-    result = run(config, jobs=args.jobs, out_dir=out, simulators=[args.sim] if args.sim else None)
+    result = run(config, jobs=args.jobs, out_dir=out, simulators=[args.sim] if args.sim else None, path=args.path)
     _print_run_end(result)
     pngs = sorted(result.out_dir.rglob("*_composite.png"))
     if pngs:
@@ -219,12 +219,17 @@ def build_parser() -> argparse.ArgumentParser:
                     help="dump waves (Icarus, FST) around the first mismatch of every case")
     wv.add_argument("--no-waves", dest="waves", action="store_const", const="off",
                     help="no wave dumps, not even for failing cases (default: [run] waves, 'failing')")
+    r.add_argument("--path", choices=("clock", "fast"), default=None,
+                   help="clock: cocotb drives every clock; fast: a generated HDL harness plays and captures "
+                        "whole runs (default: [run] path, 'clock')")
     r.set_defaults(func=_cmd_run)
 
     d = sub.add_parser("demo", help="run the bundled sample regression (sim/demo.toml)")
     d.add_argument("--out", default=None, help="report folder (default: ./vkit-demo)")
     d.add_argument("--sim", default=None, help="simulator (default: the demo's, verilator)")
     d.add_argument("-j", "--jobs", type=int, default=None, help="parallel worker processes")
+    d.add_argument("--path", choices=("clock", "fast"), default=None,
+                   help="clock (the demo's default) or fast (generated HDL harness)")
     d.set_defaults(func=_cmd_demo)
 
     m = sub.add_parser("merge", help="merge shard report.json files")

@@ -58,9 +58,10 @@ __all__ = [
 ]
 
 _RUN_KEYS = ("out_dir", "simulators", "jobs", "seed", "timeout_s", "max_listed", "cache_dir", "coverage_floor",
-             "waves", "pictures")
+             "waves", "pictures", "path")
 _WAVE_MODES = ("failing", "all", "off")
 _PICTURE_MODES = ("failing", "all")
+_PATHS = ("clock", "fast")
 _STIMULUS_KEYS = (
     "images", "patterns", "size", "frames", "timings", "stalls", "backpressure", "gaps", "blanking",
     "blanking_value", "seeds", "convert",
@@ -160,6 +161,8 @@ class RunSettings:
         waves: ``"failing"`` (rerun failing cases with a wave dump around the first mismatch),
             ``"all"`` or ``"off"``.
         pictures: ``"failing"`` (PNGs for failing frames only) or ``"all"`` (every frame, passing too).
+        path: ``"clock"`` (cocotb drives every clock) or ``"fast"`` (a generated HDL harness plays and
+            captures whole runs; same verdicts, far fewer Python wake-ups).
     """
 
     out_dir: Path
@@ -172,6 +175,7 @@ class RunSettings:
     coverage_floor: float = 0.5
     waves: str = "failing"
     pictures: str = "failing"
+    path: str = "clock"
 
 
 @dataclass
@@ -508,6 +512,11 @@ def _parse_run(where: str, data: Mapping[str, Any], base: Path) -> RunSettings:
         if v not in _PICTURE_MODES:
             raise ConfigError(f"{where}: pictures = {v!r}; {_suggest(v, _PICTURE_MODES)}")
         out.pictures = v
+    if "path" in data:
+        v = _want(where, "path", data["path"], str, f"give one of {', '.join(_PATHS)}")
+        if v not in _PATHS:
+            raise ConfigError(f"{where}: path = {v!r}; {_suggest(v, _PATHS)}")
+        out.path = v
     return out
 
 

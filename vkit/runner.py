@@ -46,17 +46,23 @@ __all__ = [
     "make_frames",
     "build_request",
     "build_design",
+    "build_fast_design",
+    "make_sim_case",
     "run_one_case",
     "exit_code_for",
     "check_ports",
     "wave_window",
     "rerun_command",
     "WAVE_MODES",
+    "PATHS",
 ]
 
 _TIMESCALE = ("1ns", "1ps")
 _TEST_MODULE = "vkit.tb.entry"
 _WAVE_MODULE = "vkit_wave_window"
+PATHS: tuple[str, ...] = ("clock", "fast")
+"""How a case drives the design: ``clock`` = cocotb source and monitor every clock (interactive
+debugging, any user test), ``fast`` = the generated HDL harness plays and captures whole runs."""
 WAVE_MODES: tuple[str, ...] = ("failing", "all", "off")
 """``[run] waves`` values: rerun failing cases with a wave dump (default), every case, or none."""
 _WAVE_LINES = 2
@@ -259,6 +265,52 @@ def build_design(case: Case, cache: BuildCache) -> BuildOutcome:
         except (RuntimeError, ValueError, SystemExit, OSError) as exc:
             line = _first_error_line(log) if log.exists() else " ".join(str(exc).split())
             raise ToolError(f"{case.simulator} could not build {d.name} (top {d.top}): {line} (full log: {log})") from None
+
+    return cache.ensure(request, builder)
+
+
+def build_fast_design(case: Case, cache: BuildCache) -> BuildOutcome:
+    """Build (or reuse) the fast-path harness (:mod:`vkit.harness`) around ``case``'s design.
+
+    The harness depends on the design, its parameters and the family only, so one build serves every
+    image, timing, stall pattern and seed.
+
+    Raises:
+        ToolError: the simulator is missing or rejected the sources (first error line and log path).
+        ConfigError: the harness cannot be made for this design (e.g. a port width cannot be read).
+    """
+    from cocotb_tools.runner import get_runner
+
+    from vkit.harness import fast_build_plan
+
+    info = require(case.simulator)
+    activate(info)
+    d = case.design
+    plan = fast_build_plan(
+        d.top, d.sources, d.language, d.build_parameters(case.width, case.height), d.defines, d.family,
+        d.ports, reset_active_high=d.reset_active_high, pixel_format=d.pixel_format,
+    )  # harness files land in a folder named after their content, so parallel workers never clash
+    request = BuildRequest.make(
+        case.simulator, info.version, plan.toplevel, plan.sources, d.language, defines=plan.defines,
+        build_args=[*plan.build_kwargs(case.simulator)["build_args"], *d.build_args],
+        data_files=list(d.file_parameters.values()), include_dirs=d.include_dirs,
+    )
+
+    def builder(bdir: Path) -> None:
+        log = bdir / "build.log"
+        kwargs = plan.build_kwargs(case.simulator)
+        kwargs["build_args"] = [*kwargs["build_args"], *d.build_args]
+        try:
+            with _quiet_pytest_env():
+                get_runner(case.simulator).build(
+                    build_dir=str(bdir), log_file=str(log), includes=[str(p) for p in d.include_dirs], **kwargs
+                )
+        except (RuntimeError, ValueError, SystemExit, OSError) as exc:
+            line = _first_error_line(log) if log.exists() else " ".join(str(exc).split())
+            raise ToolError(
+                f"{case.simulator} could not build the fast-path harness of {d.name} (top {d.top}): {line} "
+                f"(full log: {log})"
+            ) from None
 
     return cache.ensure(request, builder)
 
@@ -493,24 +545,18 @@ def _case_meta(case: Case, seconds: float) -> dict[str, Any]:
     return meta
 
 
-def _simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float,
-              wave: tuple[Path, int, int] | None = None) -> Path:
-    """Write the SimCase, run the cocotb entry, return the capture path (which may be missing).
-
-    ``wave`` is ``(file, from_ps, to_ps)`` for a run on a :func:`build_wave_design` build.
-    """
-    from cocotb_tools.runner import get_runner
-
-    from vkit.tb.case import CASE_ENV, SimCase
+def make_sim_case(case: Case, sim_dir: Path, frames: np.ndarray) -> Any:
+    """The :class:`vkit.tb.case.SimCase` of ``case``: frames saved to ``sim_dir/frames.npy``, capture to
+    ``sim_dir/capture.npz``; the same seeds and flow patterns whichever path or test drives it."""
+    from vkit.tb.case import SimCase
 
     d = case.design
     sim_dir.mkdir(parents=True, exist_ok=True)
     frames_file = sim_dir / "frames.npy"
     np.save(frames_file, frames)
-    capture_file = sim_dir / "capture.npz"
-    capture_file.unlink(missing_ok=True)
-    simcase = SimCase(
-        family=d.family, signals=dict(d.ports), frames_file=str(frames_file), capture_file=str(capture_file),
+    return SimCase(
+        family=d.family, signals=dict(d.ports), frames_file=str(frames_file),
+        capture_file=str(sim_dir / "capture.npz"),
         width=case.width, height=case.height, pixel_format=d.pixel_format, timing=case.timing,
         stalls=case.stalls.as_pattern(case.seed) if d.family == "video" else None,
         stream_gaps=case.gaps.as_pattern(case.seed) if d.family == "stream" else None,
@@ -519,6 +565,23 @@ def _simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, ti
         clock_period_ns=d.clock_period_ns, reset_active_high=d.reset_active_high, reset_cycles=d.reset_cycles,
         timeout_clocks=d.timeout_clocks, simulator=case.simulator, label=case.id,
     )
+
+
+def _simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float,
+              wave: tuple[Path, int, int] | None = None, path: str = "clock") -> Path:
+    """Write the SimCase, run the cocotb test of ``path``, return the capture path (which may be missing).
+
+    ``wave`` is ``(file, from_ps, to_ps)`` for a run on a :func:`build_wave_design` build (always the
+    per-clock path).
+    """
+    from cocotb_tools.runner import get_runner
+
+    from vkit.tb.case import CASE_ENV
+
+    d = case.design
+    simcase = make_sim_case(case, sim_dir, frames)
+    capture_file = Path(simcase.capture_file)
+    capture_file.unlink(missing_ok=True)
     case_json = simcase.to_json(sim_dir / "case.json")
     runner = get_runner(case.simulator)
     kwargs: dict[str, Any] = dict(
@@ -527,7 +590,13 @@ def _simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, ti
         extra_env={CASE_ENV: str(case_json)}, log_file=str(sim_dir / "sim.log"),
         results_xml=str(sim_dir / "results.xml"),
     )
-    if case.simulator == "ghdl":
+    if path == "fast" and wave is None:
+        from vkit.harness import fast_test_args
+
+        fast = fast_test_args(simcase, case.simulator)
+        fast["test_dir"] = fast["test_dir"] or str(build_dir)
+        kwargs.update(fast)
+    elif case.simulator == "ghdl":
         kwargs["parameters"] = d.build_parameters(case.width, case.height)
         kwargs["test_args"] = ["--std=08", f"--workdir={build_dir}"]
         kwargs["timescale"] = _TIMESCALE
@@ -599,7 +668,7 @@ def _wave_rerun(case: Case, out: Path, cache_dir: str | Path | None, frames: np.
 def run_one_case(case: Case, out_dir: str | Path, cache_dir: str | Path | None = None, *,
                  timeout_s: float = 600.0, max_listed: int = 20, coverage_floor: float = 0.5,
                  waves: str = "failing", config_path: str | Path | None = None,
-                 pictures: str = "failing") -> CaseResult:
+                 pictures: str = "failing", path: str = "clock") -> CaseResult:
     """Run one case end to end and write its report; never raises for a case-level problem.
 
     Args:
@@ -608,6 +677,7 @@ def run_one_case(case: Case, out_dir: str | Path, cache_dir: str | Path | None =
         config_path: the config the case came from; when given, the report carries the command
             that reruns exactly this case.
         pictures: ``"failing"`` writes PNGs for failing frames only, ``"all"`` for every frame.
+        path: ``"clock"`` (cocotb every clock) or ``"fast"`` (generated HDL harness), see :data:`PATHS`.
 
     Returns:
         A :class:`CaseResult`; errors (bad stimulus, build failure, simulator crash) come back as
@@ -645,8 +715,11 @@ def run_one_case(case: Case, out_dir: str | Path, cache_dir: str | Path | None =
         frames = make_frames(case)
         expected = [run_model(spec, f) for f in frames]
         tool_error = True
-        outcome = build_design(case, BuildCache(cache_dir))
-        capture_file = _simulate(case, outcome.build_dir, sim_dir, frames, timeout_s)
+        if path not in PATHS:
+            raise ConfigError(f"path = {path!r}; use one of {', '.join(PATHS)}")
+        builder = build_fast_design if path == "fast" else build_design
+        outcome = builder(case, BuildCache(cache_dir))
+        capture_file = _simulate(case, outcome.build_dir, sim_dir, frames, timeout_s, path=path)
         tool_error = False
         if capture_file.exists():
             capture = Capture.load(capture_file)
@@ -671,6 +744,7 @@ def run_one_case(case: Case, out_dir: str | Path, cache_dir: str | Path | None =
         meta = _case_meta(case, seconds)
         meta["build_dir"] = str(outcome.build_dir)
         meta["build_reused"] = outcome.reused
+        meta["path"] = path
         meta["warnings"] = warnings
         meta["rerun"] = rerun
         if wave_info is not None:
@@ -712,9 +786,9 @@ def _build_worker(case: Case, cache_dir: str | None) -> tuple[str, dict[str, Any
 
 def _case_worker(case: Case, out_dir: str, cache_dir: str | None, timeout_s: float, max_listed: int,
                  floor: float, waves: str = "failing", config_path: str | None = None,
-                 pictures: str = "failing") -> CaseResult:
+                 pictures: str = "failing", path: str = "clock") -> CaseResult:
     return run_one_case(case, out_dir, cache_dir, timeout_s=timeout_s, max_listed=max_listed, coverage_floor=floor,
-                        waves=waves, config_path=config_path, pictures=pictures)
+                        waves=waves, config_path=config_path, pictures=pictures, path=path)
 
 
 def _progress_line(i: int, n: int, res: CaseResult) -> str:
@@ -742,7 +816,7 @@ def _check_writable(out: Path) -> None:
 def run_cases(cases: list[Case], out_dir: str | Path, *, jobs: int = 1, cache_dir: str | Path | None = None,
               timeout_s: float = 600.0, max_listed: int = 20, coverage_floor: float = 0.5,
               progress: bool = True, stream: TextIO | None = None, waves: str = "failing",
-              config_path: str | Path | None = None, pictures: str = "failing") -> RunResult:
+              config_path: str | Path | None = None, pictures: str = "failing", path: str = "clock") -> RunResult:
     """Build, run, score and report a list of cases into ``out_dir`` (see :func:`run`).
 
     Raises:
@@ -803,14 +877,14 @@ def run_cases(cases: list[Case], out_dir: str | Path, *, jobs: int = 1, cache_di
         if pool is None:
             for c in pending:
                 res = _case_worker(c, str(out), cache, timeout_s, max_listed, coverage_floor, waves, cfg_path,
-                                   pictures)
+                                   pictures, path)
                 results[c.id] = res
                 counter += 1
                 if progress:
                     print(_progress_line(counter, n, res), file=stream, flush=True)
         else:
             futs2 = {pool.submit(_case_worker, c, str(out), cache, timeout_s, max_listed, coverage_floor, waves,
-                                 cfg_path, pictures): c
+                                 cfg_path, pictures, path): c
                      for c in pending}
             for f in concurrent.futures.as_completed(futs2):
                 c = futs2[f]
@@ -835,7 +909,8 @@ def run_cases(cases: list[Case], out_dir: str | Path, *, jobs: int = 1, cache_di
 
 def run(config: Config, jobs: int | None = None, shard: tuple[int, int] | str | None = None,
         only: str | list[str] | None = None, progress: bool = True, *, out_dir: str | Path | None = None,
-        simulators: list[str] | None = None, stream: TextIO | None = None, waves: str | None = None) -> RunResult:
+        simulators: list[str] | None = None, stream: TextIO | None = None, waves: str | None = None,
+        path: str | None = None) -> RunResult:
     """Run a config's regression.
 
     Args:
@@ -848,6 +923,7 @@ def run(config: Config, jobs: int | None = None, shard: tuple[int, int] | str | 
         simulators: replaces ``[run] simulators``.
         stream: where progress goes (default stdout).
         waves: ``"failing"``, ``"all"`` or ``"off"`` (default ``[run] waves``); see :func:`run_one_case`.
+        path: ``"clock"`` or ``"fast"`` (default ``[run] path``); see :data:`PATHS`.
 
     Returns:
         A :class:`RunResult`; ``exit_code`` is 0 all pass, 1 a design failed, 2 a case errored.
@@ -865,6 +941,7 @@ def run(config: Config, jobs: int | None = None, shard: tuple[int, int] | str | 
         cases, out, jobs=jobs or config.run.jobs, cache_dir=config.run.cache_dir, timeout_s=config.run.timeout_s,
         max_listed=config.run.max_listed, coverage_floor=config.run.coverage_floor, progress=progress, stream=stream,
         waves=waves or config.run.waves, config_path=config.path, pictures=config.run.pictures,
+        path=path or config.run.path,
     )
 
 

@@ -8,7 +8,7 @@ import sys
 from pathlib import Path
 from typing import Sequence
 
-from vkit.errors import EXIT_CONFIG, EXIT_PASS, ConfigError, VkitError
+from vkit.errors import EXIT_CONFIG, EXIT_DUT, EXIT_PASS, ConfigError, VkitError
 
 __all__ = ["main", "build_parser", "problem_line"]
 
@@ -110,6 +110,35 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     else:
         print(f"pictures: none (PNGs are written for failing frames only) under {result.out_dir}")
     return result.exit_code
+
+
+def _cmd_export(args: argparse.Namespace) -> int:
+    from vkit.config import expand_matrix, load_config, select_cases
+    from vkit.vectors import export_vectors
+
+    config = load_config(args.config)
+    cases = select_cases(expand_matrix(config, args.sim or None), args.case)
+    if len(cases) != 1:
+        listed = ", ".join(c.id for c in cases[:5]) + (" ..." if len(cases) > 5 else "")
+        raise ConfigError(f"export: {args.case!r} selects {len(cases)} cases ({listed or 'none'}); "
+                          "give one whole case id (see summary.txt of a run)")
+    done = export_vectors(cases[0], args.out)
+    print(f"exported {cases[0].id} to {done.out_dir}")
+    for sim, cmds in done.commands.items():
+        print(f"  {sim}: " + " && ".join(" ".join(c) for c in cmds))
+    print(f"then: vkit replay {done.out_dir}")
+    return EXIT_PASS
+
+
+def _cmd_replay(args: argparse.Namespace) -> int:
+    from vkit.vectors import replay
+
+    verdict, files = replay(args.export_dir, args.capture, args.out)
+    print(Path(files["summary"]).read_text(), end="")
+    if verdict.diagnosis is not None:
+        print(f"{verdict.diagnosis.kind}: {verdict.diagnosis.message}")
+    print(f"report:  {files['json']}")
+    return EXIT_PASS if verdict.passed else (EXIT_CONFIG if verdict.status == "error" else EXIT_DUT)
 
 
 def _cmd_merge(args: argparse.Namespace) -> int:
@@ -231,6 +260,19 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--path", choices=("clock", "fast"), default=None,
                    help="clock (the demo's default) or fast (generated HDL harness)")
     d.set_defaults(func=_cmd_demo)
+
+    ex = sub.add_parser("export", help="write one case as vectors and a self-checking plain-HDL testbench")
+    ex.add_argument("config", help="config TOML")
+    ex.add_argument("case", help="the whole id of one case (as summary.txt lists it)")
+    ex.add_argument("--sim", nargs="+", default=None, help="simulators (replaces [run] simulators)")
+    ex.add_argument("--out", default="vkit-export", help="export folder (default: ./vkit-export)")
+    ex.set_defaults(func=_cmd_export)
+
+    rp = sub.add_parser("replay", help="judge the capture an exported testbench wrote, as a live run would")
+    rp.add_argument("export_dir", help="folder written by `vkit export`")
+    rp.add_argument("--capture", default=None, help="capture file (default: capture.bin/.txt in the folder)")
+    rp.add_argument("--out", default=None, help="report folder (default: EXPORT_DIR/report)")
+    rp.set_defaults(func=_cmd_replay)
 
     m = sub.add_parser("merge", help="merge shard report.json files")
     m.add_argument("out", help="folder for the merged report.json, junit.xml and summary.txt")

@@ -53,7 +53,7 @@ def test_exported_verilog_testbench_passes_and_reads_back(sim: str, tmp_path: Pa
     log = _run(sim, res.commands[sim], res.out_dir)
     # A pass-through design returns its input: every pixel checked, none wrong.
     assert _counts(log) == (0, frames.size) and "vkit: PASS" in log
-    cap = read_capture(res.out_dir / "capture.txt", case)
+    cap = read_capture(res.capture, case)
     views = cap.frames(24, 32)
     assert len(views) == 2
     for view, want in zip(views, frames):
@@ -91,5 +91,5 @@ def test_exported_vhdl_testbench_on_ghdl(tmp_path: Path) -> None:
     res = export_case(case, tmp_path / "exp2", "fast_video_pass_vhd", src, wrong)
     log = _run("ghdl", res.commands["ghdl"], res.out_dir)
     assert _counts(log) == (1, frames.size) and "vkit: FAIL" in log
-    cap = read_capture(res.out_dir / "capture.txt", case)
+    cap = read_capture(res.capture, case)
     np.testing.assert_array_equal(cap.frames(24, 32)[1].pixels, frames[1])

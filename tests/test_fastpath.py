@@ -104,6 +104,53 @@ def test_capture_text_without_end_line_is_a_partial_timed_out_run() -> None:
         parse_capture_text("not a capture\n")
 
 
+def _binary_records(events: list[tuple[int, str, int, int]], family: int, width: int) -> bytes:
+    """Binary capture bytes built with Python's struct module (little-endian 32-bit words, as Verilog %u writes)."""
+    import struct
+
+    from vkit.harness import CAPTURE_MAGIC, capture_data_words
+
+    nw = capture_data_words(width)
+    out = struct.pack("<4I", CAPTURE_MAGIC, 1, family, width)
+    for clock, kind, code, value in events:
+        out += struct.pack("<2I", clock, ord(kind) | code << 8)
+        out += b"".join(struct.pack("<I", (value >> (32 * j)) & 0xFFFFFFFF) for j in range(nw))
+    return out
+
+
+def test_binary_capture_gives_the_same_capture_as_text() -> None:
+    from vkit.capture_text import parse_capture_binary
+    from vkit.harness import CAPTURE_ROLES
+
+    text = "\n".join([
+        "# vkit capture 1 video",
+        "3 P 0a", "4 P U", "5 L -", "6 X out_de", "7 P 0b", "8 L -",
+        "9 H -", "10 F -", "10 B -", "11 P ff", "12 L -", "20 E -", "",
+    ])
+    events = [(3, "P", 0, 10), (4, "P", 1, 0), (5, "L", 0, 0), (6, "X", CAPTURE_ROLES.index("out_de"), 0),
+              (7, "P", 0, 11), (8, "L", 0, 0), (9, "H", 0, 0), (10, "F", 0, 0), (10, "B", 0, 0), (11, "P", 0, 255),
+              (12, "L", 0, 0), (20, "E", 0, 0)]
+    a = parse_capture_text(text, meta={"first_input_clock": 1})
+    b = parse_capture_binary(_binary_records(events, 0, 8), meta={"first_input_clock": 1})
+    _assert_same_capture(a, b)
+    # A 40-bit bus spans two data words; a cut-off last record is dropped, as a cut-off text line is.
+    wide = _binary_records([(1, "F", 0, 0), (2, "P", 0, 0xAB_CDEF_0123), (3, "P", 0, 5)], 1, 40)
+    c = parse_capture_binary(wide[:-3])
+    d = parse_capture_text("# vkit capture 1 stream\n1 F -\n2 P abcdef0123\n3 P")  # the text run cut mid-line
+    _assert_same_capture(c, d)
+    assert c.values.tolist() == [0xAB_CDEF_0123] and c.meta["timed_out"] is True
+    with pytest.raises(ConfigError):
+        parse_capture_binary(b"# vkit capture 1 video\n")
+
+
+def _assert_same_capture(a: Capture, b: Capture) -> None:
+    for key in ("values", "clock", "frame", "line", "column"):
+        x, y = getattr(a, key), getattr(b, key)
+        assert x.dtype == y.dtype == np.int64, key
+        np.testing.assert_array_equal(x, y, err_msg=key)
+    assert a.meta == b.meta
+
+
 def test_hex_file_matches_python_formatting(tmp_path: Path) -> None:
     words = np.array([0, 1, 0x1ABCDEF, (1 << 29) - 1], np.uint64)
     path = write_hex(tmp_path / "w.hex", words, 29)
@@ -166,6 +213,39 @@ def test_fast_stream_passthrough_with_gaps_and_backpressure(sim: str, tmp_path: 
     # Every listed back-pressure pixel arrived right after a clock with ready low: a stall seen as a gap.
     clocks = np.sort(cap.clock)
     assert np.all(np.diff(clocks) >= 1)
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("family", ["video", "stream"])
+def test_binary_and_text_captures_of_one_run_are_identical(family: str, tmp_path: Path) -> None:
+    _require("icarus")
+    from cocotb_tools.runner import get_runner
+
+    from vkit.export import read_capture
+    from vkit.stimulus import fast_run_dir
+
+    if family == "video":
+        case = _video_case(tmp_path, stalls={"probability": 0.2, "max_length": 3, "seed": 7})
+        top, src = "fast_video_pass", [HDL / "fast_video_pass.v"]
+    else:
+        case = _stream_case(tmp_path, stream_gaps={"probability": 0.3, "max_length": 4, "seed": 1},
+                            backpressure={"probability": 0.3, "max_length": 5, "seed": 2})
+        top, src = "fast_stream_pass", [HDL / "fast_stream_pass.v"]
+    plan = fast_build_plan(top, src, None, None, None, family, case.signals, out_dir=tmp_path / "h")
+    runner = get_runner("icarus")
+    runner.build(build_dir=tmp_path / "b", **plan.build_kwargs("icarus"))
+    caps = []
+    for binary in (1, 0):
+        args = fast_test_args(case, "icarus")
+        name = "capture.bin" if binary else "capture.txt"
+        args["plusargs"] = [a for a in args["plusargs"] if not a.startswith("+vkit_capture=")]
+        args["plusargs"] += [f"+vkit_capture={fast_run_dir(case) / name}", f"+vkit_capture_bin={binary}"]
+        runner.test(build_dir=tmp_path / "b", **args)
+        path = fast_run_dir(case) / name
+        assert path.read_bytes()[:4] == (b"VKCB" if binary else b"# vk")
+        caps.append(read_capture(path, case))
+    _assert_same_capture(*caps)
+    assert len(caps[0]) == 2 * 24 * 32
 
 
 @pytest.mark.sim

@@ -1,7 +1,8 @@
-"""Parse the fast-path harness's capture text file into a :class:`vkit.capture.Capture`.
+"""Parse the fast-path harness's capture file (binary records or text lines) into a :class:`vkit.capture.Capture`.
 
-File format (written by :mod:`vkit.harness`): a first line ``# vkit capture 1 FAMILY``, then one
-event per line, ``CLOCK KIND ARG``, in the order the harness saw them (several per clock possible):
+Text format (the VHDL harness; the Verilog harness with ``+vkit_capture_bin=0``): a first line
+``# vkit capture 1 FAMILY``, then one event per line, ``CLOCK KIND ARG``, in the order the harness
+saw them (several per clock possible):
 
     P <hex>|U   an output pixel (U: the data bus held X or Z)
     L -         end of an output line (video: data-enable run ended; stream: after an end-of-line pixel)
@@ -13,6 +14,14 @@ event per line, ``CLOCK KIND ARG``, in the order the harness saw them (several p
     I -         first input transfer accepted (stream)
     T -         the harness's timeout was reached
     E -         end of the run; CLOCK is the number of clocks run
+
+Binary format (the Verilog harness's default; little-endian 32-bit words, as Verilog ``%u`` writes
+them): a header of four words, :data:`vkit.harness.CAPTURE_MAGIC`, the version (1), the family
+(0 video, 1 stream) and the output data width in bits; then one record per event of
+:func:`vkit.harness.capture_record_bytes` bytes: the clock, ``kind | code << 8`` (kind the ASCII
+letter above; code 1 on a ``P`` record means X/Z data, on an ``X`` record it indexes
+:data:`vkit.harness.CAPTURE_ROLES`), and ``ceil(width / 32)`` data words, least significant first.
+Both formats give the same Capture for the same run.
 
 Frame and line numbering follow the per-clock monitors exactly: a frame or line delimiter that
 closes an empty frame or line does not advance the count; without an output vsync, a video frame
@@ -28,8 +37,10 @@ import numpy as np
 
 from vkit.capture import UNKNOWN, Capture
 from vkit.errors import ConfigError, DutError
+from vkit.harness import CAPTURE_MAGIC, CAPTURE_ROLES, CAPTURE_VERSION, capture_data_words
 
-__all__ = ["MAX_EVENTS", "parse_capture_text", "read_capture_text"]
+__all__ = ["MAX_EVENTS", "parse_capture_text", "parse_capture_binary", "read_capture_text", "read_capture_file",
+           "is_binary_capture"]
 
 MAX_EVENTS = 1000
 """At most this many entries are kept in an event list (xz_control, de_in_blanking); the rest are counted."""
@@ -66,7 +77,72 @@ def parse_capture_text(
     clocks = tokens[0::3]
     kinds = tokens[1::3]
     args = tokens[2::3]
+    kind_a = np.array(kinds, dtype="U1") if kinds else np.zeros(0, "U1")
+    pos_p = np.flatnonzero(kind_a == "P")
+    clock_all = np.array(clocks, dtype=np.int64) if clocks else np.zeros(0, np.int64)
+    values, xz_data = _hex_values(np.array(args, dtype="S")[pos_p] if pos_p.size else [])
+    return _build(family, clock_all, kind_a, lambda i: args[i], values, xz_data, height, split_on_height, meta)
 
+
+def parse_capture_binary(
+    data: bytes | np.ndarray,
+    *,
+    family: str | None = None,
+    height: int | None = None,
+    split_on_height: bool = False,
+    meta: dict[str, Any] | None = None,
+) -> Capture:
+    """Turn binary capture records into a :class:`Capture` (same arguments and result as :func:`parse_capture_text`).
+
+    Args:
+        data: the file's bytes (``bytes`` or a uint8 array, e.g. from ``np.fromfile``).
+
+    Raises:
+        ConfigError: the data does not start with the binary capture header.
+    """
+    raw = np.frombuffer(data, np.uint8) if isinstance(data, (bytes, bytearray, memoryview)) else np.asarray(data, np.uint8)
+    if raw.size < 16 or not is_binary_capture(raw[:4].tobytes()):
+        raise ConfigError("capture file: no binary capture header (VKCB); give a file written by the vkit harness")
+    magic, version, fam_code, width = (int(v) for v in raw[:16].view("<u4"))
+    del magic
+    if version != CAPTURE_VERSION:
+        raise ConfigError(f"capture file: binary format version {version}, this vkit reads {CAPTURE_VERSION}; "
+                          "rebuild the harness with this vkit")
+    family = family or ("stream" if fam_code == 1 else "video")
+    nw = capture_data_words(width)
+    rec = 8 + 4 * nw
+    body = raw[16:]
+    body = body[: body.size - body.size % rec]  # a run cut short mid-record
+    words = body.view("<u4").reshape(-1, 2 + nw)
+    clock_all = words[:, 0].astype(np.int64)
+    kc = words[:, 1]
+    kind_a = (kc & 0xFF).astype(np.uint8).view("S1").astype("U1")
+    code = ((kc >> 8) & 0xFF).astype(np.int64)
+    pos_p = np.flatnonzero(kind_a == "P")
+    xz = code[pos_p] == 1
+    if nw <= 2:
+        d = words[pos_p, 2:].astype(np.uint64)
+        v = d[:, 0] | (d[:, 1] << np.uint64(32)) if nw == 2 else d[:, 0]
+        values = v.astype(np.int64)
+    else:  # wider than 64 bits: Python ints, as the text parser does
+        values = np.array([sum(int(w) << (32 * j) for j, w in enumerate(row)) for row in words[pos_p, 2:]], np.int64)
+    values[xz] = UNKNOWN
+
+    def arg(i: int) -> str:
+        c = int(code[i])
+        return CAPTURE_ROLES[c] if 0 < c < len(CAPTURE_ROLES) else "-"
+
+    return _build(family, clock_all, kind_a, arg, values, int(xz.sum()), height, split_on_height, meta)
+
+
+def is_binary_capture(head: bytes) -> bool:
+    """True when ``head`` (the first 4+ bytes of a file) is a binary capture header."""
+    return len(head) >= 4 and int.from_bytes(head[:4], "little") == CAPTURE_MAGIC
+
+
+def _build(family: str, clock_all: np.ndarray, kind_a: np.ndarray, arg_of: Any, values: np.ndarray, xz_data: int,
+           height: int | None, split_on_height: bool, meta: dict[str, Any] | None) -> Capture:
+    """The Capture from decoded events (clock and kind per event, values per pixel event); shared by both formats."""
     out_meta: dict[str, Any] = dict(meta or {})
     out_meta.setdefault("family", family)
     out_meta.setdefault("notes", [])
@@ -81,19 +157,16 @@ def parse_capture_text(
     first_input: int | None = None
     waited_next: list[int] = []
 
-    kind_a = np.array(kinds, dtype="U1") if kinds else np.zeros(0, "U1")
     is_p = kind_a == "P"
     pos_p = np.flatnonzero(is_p)
     k = int(pos_p.size)
-    clock_all = np.array(clocks, dtype=np.int64) if clocks else np.zeros(0, np.int64)
     clock_a = clock_all[pos_p]
-    values, xz_data = _hex_values(np.array(args, dtype="S")[pos_p] if k else [])
     if split_on_height and height and (kind_a == "F").any():
         frame_a, line_a, col_a = _positions_loop(kind_a, bool(split_on_height), height)
     else:
         frame_a, line_a, col_a = _positions(kind_a, is_p, pos_p, bool(split_on_height), height)
     for i in np.flatnonzero(~is_p).tolist():
-        kind = kinds[i]
+        kind = str(kind_a[i])
         if kind == "F":
             if family == "video":
                 vsync_count += 1
@@ -104,19 +177,19 @@ def parse_capture_text(
         elif kind == "B":
             counts["de_in_blanking"] += 1
             if counts["de_in_blanking"] <= MAX_EVENTS:
-                de_in_blanking.append(int(clocks[i]))
+                de_in_blanking.append(int(clock_all[i]))
         elif kind == "X":
             counts["xz_control"] += 1
             if counts["xz_control"] <= MAX_EVENTS:
-                xz_control.append([int(clocks[i]), args[i]])
+                xz_control.append([int(clock_all[i]), arg_of(i)])
         elif kind == "K":
             waited_next.append(int(np.searchsorted(pos_p, i)))
         elif kind == "I":
-            first_input = int(clocks[i])
+            first_input = int(clock_all[i])
         elif kind == "T":
             timed_out = True
         elif kind == "E":
-            clocks_run = int(clocks[i])
+            clocks_run = int(clock_all[i])
     cap = Capture(values, clock_a, frame_a, line_a, col_a, out_meta)
     m = cap.meta
     m["xz_data_count"] = xz_data
@@ -134,7 +207,7 @@ def parse_capture_text(
         m["latency_clocks"] = int(m["first_output_clock"]) - int(m["first_input_clock"])
     if clocks_run is None:
         m["notes"].append("capture text has no end line: the simulation stopped before the harness finished")
-        clocks_run = int(clocks[-1]) + 1 if clocks else 0
+        clocks_run = int(clock_all[-1]) + 1 if clock_all.size else 0
         timed_out = True
     m["clocks_run"] = clocks_run
     m["timed_out"] = bool(timed_out)
@@ -250,4 +323,20 @@ def read_capture_text(path: str | Path, **kwargs: Any) -> Capture:
     p = Path(path)
     if not p.is_file():
         raise DutError(f"capture text {str(p)!r} does not exist: the simulation did not start the harness; see the simulator log")
+    return parse_capture_text(p.read_text(errors="replace"), **kwargs)
+
+
+def read_capture_file(path: str | Path, **kwargs: Any) -> Capture:
+    """Read a harness capture file in either format (binary records or text lines; told apart by the header).
+
+    Raises:
+        DutError: the file does not exist (the simulation never opened it).
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise DutError(f"capture file {str(p)!r} does not exist: the simulation did not start the harness; see the simulator log")
+    with open(p, "rb") as fh:
+        head = fh.read(4)
+    if is_binary_capture(head):
+        return parse_capture_binary(np.fromfile(p, np.uint8), **kwargs)
     return parse_capture_text(p.read_text(errors="replace"), **kwargs)

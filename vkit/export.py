@@ -3,7 +3,8 @@
 ``export_case`` writes the harness, the stimulus and expected-output ``$readmemh`` files, a
 testbench that clocks the harness, compares every output pixel with the expected memory and prints
 ``vkit: N mismatches in M pixels`` and ``vkit: PASS`` or ``vkit: FAIL``, and a README with the exact
-simulator commands. The run also leaves ``capture.txt``; :func:`read_capture` turns it into a
+simulator commands. The run also leaves ``capture.bin`` (Verilog, binary records) or ``capture.txt``
+(VHDL, text lines); :func:`read_capture` turns either into a
 :class:`~vkit.capture.Capture` so the scoreboard and report judge it as they judge a live run.
 """
 
@@ -17,9 +18,9 @@ from typing import Any, Sequence
 import numpy as np
 
 from vkit.capture import Capture
-from vkit.capture_text import read_capture_text
+from vkit.capture_text import read_capture_file
 from vkit.errors import ConfigError
-from vkit.harness import HARNESS, harness_sources
+from vkit.harness import HARNESS, capture_file_name, harness_sources
 from vkit.stimulus import StimulusFiles, write_expected, write_stimulus
 
 __all__ = ["ExportResult", "export_case", "read_capture", "score_capture_file", "capture_meta_for_case"]
@@ -37,6 +38,7 @@ class ExportResult:
         testbench: the testbench file (``tb_vkit.v`` or ``tb_vkit.vhd``).
         language: "verilog" or "vhdl".
         commands: simulator name -> list of argument lists, run in ``out_dir`` in order.
+        capture: the capture file a run leaves in ``out_dir`` (``capture.bin`` or ``capture.txt``).
     """
 
     out_dir: Path
@@ -44,6 +46,7 @@ class ExportResult:
     testbench: Path
     language: str
     commands: dict[str, list[list[str]]]
+    capture: Path | None = None
 
 
 def _expected_arrays(expected: Any) -> tuple[np.ndarray, np.ndarray | None]:
@@ -91,7 +94,7 @@ module tb_vkit;
         .HS_HIGH({int(stim.hsync_active_high)}),
         .VS_HIGH({int(stim.vsync_active_high)}),
         .STIM_FILE("{stim.stim.name}"),{ready}
-        .CAPTURE_FILE("capture.txt")
+        .CAPTURE_FILE("capture.bin")
     ) h (
         .clk(clk), .rst(rst), .load(load), .done(done), .timed_out(timed_out), .frame_pulse(frame_pulse),
         .pix_stb(pix_stb), .pix_data(pix_data), .pix_xz(pix_xz), .clocks(clocks)
@@ -350,7 +353,8 @@ def export_case(
         f" {stim.input_meta.get('frames_sent', '?')} frame(s), {stim.words} stimulus words).",
         "",
         "Run in this folder with one of the simulators below; the last lines printed are",
-        "'vkit: N mismatches in M pixels' and 'vkit: PASS' or 'vkit: FAIL'. The run writes capture.txt,",
+        "'vkit: N mismatches in M pixels' and 'vkit: PASS' or 'vkit: FAIL'. The run writes "
+        f"{'capture.txt' if build.language == 'vhdl' else 'capture.bin'},",
         "which vkit reads back (vkit.export.read_capture / score_capture_file) to build the full report.",
         "",
     ]
@@ -364,7 +368,7 @@ def export_case(
     readme.write_text("\n".join(lines) + "\n")
     files = [*build.files, stim.stim, exp_path, tb, readme]
     files += [p for p in (stim.ready,) if p is not None]
-    return ExportResult(out, files, tb, build.language, commands)
+    return ExportResult(out, files, tb, build.language, commands, out / capture_file_name(build.language))
 
 
 def capture_meta_for_case(case: Any, stim: StimulusFiles | None = None) -> dict[str, Any]:
@@ -383,16 +387,16 @@ def capture_meta_for_case(case: Any, stim: StimulusFiles | None = None) -> dict[
 
 
 def read_capture(path: str | Path, case: Any, stim: StimulusFiles | None = None) -> Capture:
-    """Read a harness capture text file (live fast-path run or exported testbench) as a Capture.
+    """Read a harness capture file (live fast-path run or exported testbench; binary or text) as a Capture.
 
     Args:
-        path: the ``capture.txt`` the harness wrote.
+        path: the ``capture.bin`` / ``capture.txt`` the harness wrote.
         case: the :class:`vkit.tb.case.SimCase` the run was made from (gives the input-side meta).
         stim: the stimulus the run used, if at hand (saves rebuilding it).
     """
     meta = capture_meta_for_case(case, stim)
     has_vsync = "out_vsync" in dict(case.signals)
-    cap = read_capture_text(
+    cap = read_capture_file(
         path,
         family=case.family,
         height=int(case.height),
@@ -408,7 +412,7 @@ def score_capture_file(path: str | Path, case: Any, expected: Sequence[Any], **s
     """Read ``path`` with :func:`read_capture` and score it with :func:`vkit.scoreboard.score`.
 
     Args:
-        path: the capture text file.
+        path: the capture file.
         case: the case the run was made from.
         expected: one model result per frame (as :func:`vkit.scoreboard.score` takes).
         **score_kwargs: passed on to :func:`vkit.scoreboard.score`.

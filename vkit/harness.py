@@ -72,6 +72,14 @@ __all__ = [
     "fast_build_plan",
     "fast_test_args",
     "harness_sources",
+    "CAPTURE_MAGIC",
+    "CAPTURE_VERSION",
+    "CAPTURE_ROLES",
+    "CAPTURE_BIN_NAME",
+    "CAPTURE_TEXT_NAME",
+    "capture_data_words",
+    "capture_record_bytes",
+    "capture_file_name",
 ]
 
 HARNESS = "vkit_harness"
@@ -85,6 +93,21 @@ GAP_BITS = 16
 
 READY_WORDS = 65536
 """Clocks in the stream sink's ready pattern; the harness repeats it for longer runs."""
+
+CAPTURE_MAGIC = 0x42434B56
+"""First 32-bit word of a binary capture file (bytes "VKCB" in file order)."""
+
+CAPTURE_VERSION = 1
+"""Binary capture format version (second header word)."""
+
+CAPTURE_ROLES = ("", "out_de", "out_valid", "out_vsync", "out_hsync", "in_ready", "out_sof", "out_eol")
+"""Role names of the X events in a binary capture, by code (record byte 5)."""
+
+CAPTURE_BIN_NAME = "capture.bin"
+"""File name of the Verilog harness's capture inside a run folder (binary records)."""
+
+CAPTURE_TEXT_NAME = "capture.txt"
+"""File name of the VHDL harness's capture inside a run folder (text lines)."""
 
 STREAM_TAIL = 16
 """Clocks the stream harness keeps capturing after the expected output pixel count arrived."""
@@ -106,6 +129,21 @@ def video_word_bits(in_width: int) -> int:
 def stream_word_bits(in_width: int) -> int:
     """Bits of one stream stimulus word: data, eol, sof, the gap count and the idle data."""
     return 2 * in_width + GAP_BITS + 2
+
+
+def capture_data_words(out_width: int) -> int:
+    """32-bit words of output data in one binary capture record: ``ceil(out_width / 32)``."""
+    return max(1, (int(out_width) + 31) // 32)
+
+
+def capture_record_bytes(out_width: int) -> int:
+    """Bytes of one binary capture record: clock word, kind/code word, then the data words."""
+    return 8 + 4 * capture_data_words(out_width)
+
+
+def capture_file_name(language: str) -> str:
+    """The capture file a harness of ``language`` writes: binary for Verilog, text for VHDL."""
+    return CAPTURE_TEXT_NAME if language == "vhdl" else CAPTURE_BIN_NAME
 
 
 def word_bytes(bits: int) -> int:
@@ -367,6 +405,26 @@ _LINT = ("WIDTHEXPAND", "WIDTHTRUNC", "UNUSEDSIGNAL", "UNUSEDPARAM", "BLKSEQ", "
          "ZERODLY")
 
 
+def _ev(kind: str, dw: int, arg: str = "-", *, code: int = 0, value: str | None = None, ow: int = 0,
+        clock: str = "clocks") -> str:
+    """One capture event as Verilog: a binary record when ``cap_bin`` is set, else a text line.
+
+    Binary record (little-endian 32-bit words, as ``%u`` writes them): ``clock``, ``kind | code << 8``
+    (kind an ASCII letter, code the X role index or 1 for a pixel with X/Z data), then ``dw`` data words.
+    """
+    if kind == "X":
+        code = CAPTURE_ROLES.index(arg)
+    word = ord(kind) | (code << 8)
+    if value is None:
+        data = f"{32 * dw}'d0"
+        text = f'$fwrite(fd, "%0d {kind} {arg}\\n", {clock});'
+    else:
+        pad = 32 * dw - ow
+        data = f"{{{pad}'d0, {value}}}" if pad else value
+        text = f'$fwrite(fd, "%0d {kind} {arg}\\n", {clock}, {value});'
+    return f'begin if (cap_bin) $fwrite(fd, "%u%u%u", {clock}, 32\'d{word}, {data}); else {text} end'
+
+
 def verilog_harness(spec: HarnessSpec) -> str:
     """Return the Verilog-2001 text of ``vkit_harness`` and ``vkit_fast_top`` for ``spec``.
 
@@ -379,7 +437,8 @@ def verilog_harness(spec: HarnessSpec) -> str:
     (``+vkit_capture=``), ``RWORDS`` (``+vkit_ready_words=``, 1..:data:`READY_WORDS`), ``DRAIN``
     (``+vkit_drain=``, clocks captured after the stimulus ends), ``TIMEOUT`` (``+vkit_timeout=``,
     clocks, 0 = none), ``EXPECT`` (``+vkit_expect=``, stream: output pixels expected), ``HS_HIGH`` /
-    ``VS_HIGH`` (``+vkit_hs_high=``, ``+vkit_vs_high=``: sync polarity, 1 = active high).
+    ``VS_HIGH`` (``+vkit_hs_high=``, ``+vkit_vs_high=``: sync polarity, 1 = active high),
+    ``CAPTURE_BIN`` (``+vkit_capture_bin=``: 1 = binary capture records, the default; 0 = text lines).
 
     ``vkit_fast_top`` has no inputs: it toggles ``clk`` every ``+vkit_half_ns=`` ns (default 5),
     raises ``load`` a quarter period in, holds reset for ``+vkit_reset_cycles=`` rising edges
@@ -390,6 +449,7 @@ def verilog_harness(spec: HarnessSpec) -> str:
     video = spec.family == "video"
     nbits = video_word_bits(iw) if video else stream_word_bits(iw)
     nb = word_bytes(nbits)
+    dw = capture_data_words(ow)
     conns: list[str] = [f".{r['clock']}(clk)"]
     if "reset" in r:
         conns.append(f".{r['reset']}(dut_rst)")
@@ -432,7 +492,8 @@ def verilog_harness(spec: HarnessSpec) -> str:
     parameter VS_HIGH = 1,
     parameter STIM_FILE = "stim.bin",
     parameter READY_FILE = "ready.hex",
-    parameter CAPTURE_FILE = "capture.txt"
+    parameter CAPTURE_FILE = "capture.bin",
+    parameter CAPTURE_BIN = 1
 ) (
     input  wire          clk,
     input  wire          rst,
@@ -446,7 +507,7 @@ def verilog_harness(spec: HarnessSpec) -> str:
     output reg  [31:0]   clocks
 );
     reg [8*1024-1:0] stim_path, ready_path, cap_path;
-    integer n_ready, drain, timeout, n_expect, fd, sfd, got, hs_high, vs_high;
+    integer n_ready, drain, timeout, n_expect, fd, sfd, got, hs_high, vs_high, cap_bin;
     reg [8*NB-1:0] first_word, nxt;
     reg first_ok;
     wire hs_on = (hs_high != 0);
@@ -464,7 +525,7 @@ def verilog_harness(spec: HarnessSpec) -> str:
         pix_data = {{OW{{1'b0}}}}; clocks = 32'd0; fd = 0; sfd = 0; first_ok = 1'b0;
         first_word = {{(8*NB){{1'b0}}}}; nxt = {{(8*NB){{1'b0}}}};
         n_ready = RWORDS; drain = DRAIN; timeout = TIMEOUT; n_expect = EXPECT;
-        hs_high = HS_HIGH; vs_high = VS_HIGH;
+        hs_high = HS_HIGH; vs_high = VS_HIGH; cap_bin = CAPTURE_BIN;
     end
 
     // Files are opened when `load` rises, so a test can write them first.
@@ -479,16 +540,18 @@ def verilog_harness(spec: HarnessSpec) -> str:
         if ($value$plusargs("vkit_expect=%d", n_expect)) begin end
         if ($value$plusargs("vkit_hs_high=%d", hs_high)) begin end
         if ($value$plusargs("vkit_vs_high=%d", vs_high)) begin end
+        if ($value$plusargs("vkit_capture_bin=%d", cap_bin)) begin end
         fd = $fopen(cap_path, "w");
         if (fd == 0) begin
             $display("vkit: error: cannot open the capture file for writing");
             $finish;
         end
-        $fwrite(fd, "# vkit capture 1 {spec.family}\\n");
+        if (cap_bin) $fwrite(fd, "%u%u%u%u", 32'h{CAPTURE_MAGIC:08x}, 32'd{CAPTURE_VERSION}, 32'd{int(not video)}, 32'd{ow});
+        else $fwrite(fd, "# vkit capture 1 {spec.family}\\n");
         sfd = $fopen(stim_path, "rb");
         if (sfd == 0) begin
             $display("vkit: error: cannot open the stimulus file; give +vkit_stim=<path of stim.bin>");
-            $fwrite(fd, "0 E -\\n");
+            {_ev("E", dw, clock="32'd0")}
             $fclose(fd);
             $finish;
         end
@@ -543,14 +606,14 @@ endmodule
 """
 
 
-def _verilog_finish_block() -> str:
-    return """
+def _verilog_finish_block(dw: int) -> str:
+    return f"""
     // End of run: stimulus played out and drained, or the timeout reached.
     task finish_run;
         input is_timeout;
         begin
-            if (is_timeout) $fwrite(fd, "%0d T -\\n", clocks);
-            $fwrite(fd, "%0d E -\\n", clocks + 32'd1);
+            if (is_timeout) {_ev("T", dw)}
+            {_ev("E", dw, clock="clocks + 32'd1")}
             $fflush(fd);
             done <= 1'b1;
             timed_out <= is_timeout;
@@ -561,6 +624,7 @@ def _verilog_finish_block() -> str:
 
 def _verilog_video(spec: HarnessSpec) -> str:
     iw = spec.in_width
+    dw = capture_data_words(spec.out_width)
     return f"""
     // ---- player: one word per clock {{frame_mark, hsync, vsync, de, valid, data}}
     reg [8*NB-1:0] word;
@@ -574,7 +638,7 @@ def _verilog_video(spec: HarnessSpec) -> str:
             d_in_data = {{IW{{1'b0}}}};
         end
     end
-{_verilog_finish_block()}
+{_verilog_finish_block(dw)}
     // ---- capture
     reg prev_de, prev_vs, prev_hs;
     reg c_de, c_valid, c_vs, c_hs;
@@ -601,23 +665,23 @@ def _verilog_video(spec: HarnessSpec) -> str:
             end else begin
                 tail <= tail + 32'd1;
             end
-            if ({_v_x('d_out_de')}) $fwrite(fd, "%0d X out_de\\n", clocks);
-            if (c_de && {_v_x('d_out_valid')}) $fwrite(fd, "%0d X out_valid\\n", clocks);
-            if ({_v_x('d_out_vsync')}) $fwrite(fd, "%0d X out_vsync\\n", clocks);
-            if ({_v_x('d_out_hsync')}) $fwrite(fd, "%0d X out_hsync\\n", clocks);
-            if (prev_de && !c_de) $fwrite(fd, "%0d L -\\n", clocks);
-            if (c_vs && !prev_vs) $fwrite(fd, "%0d F -\\n", clocks);
-            if (c_hs && !prev_hs) $fwrite(fd, "%0d H -\\n", clocks);
-            if (c_de && c_vs) $fwrite(fd, "%0d B -\\n", clocks);
+            if ({_v_x('d_out_de')}) {_ev("X", dw, "out_de")}
+            if (c_de && {_v_x('d_out_valid')}) {_ev("X", dw, "out_valid")}
+            if ({_v_x('d_out_vsync')}) {_ev("X", dw, "out_vsync")}
+            if ({_v_x('d_out_hsync')}) {_ev("X", dw, "out_hsync")}
+            if (prev_de && !c_de) {_ev("L", dw)}
+            if (c_vs && !prev_vs) {_ev("F", dw)}
+            if (c_hs && !prev_hs) {_ev("H", dw)}
+            if (c_de && c_vs) {_ev("B", dw)}
             if (c_de && c_valid) begin
                 pix_stb <= 1'b1;
                 pix_data <= d_out_data;
                 if (^d_out_data === 1'bx) begin
                     pix_xz <= 1'b1;
-                    $fwrite(fd, "%0d P U\\n", clocks);
+                    {_ev("P", dw, "U", code=1)}
                 end else begin
                     pix_xz <= 1'b0;
-                    $fwrite(fd, "%0d P %h\\n", clocks, d_out_data);
+                    {_ev("P", dw, "%h", value="d_out_data", ow=spec.out_width)}
                 end
             end
             if (word[{iw + 4}] && playing) $fflush(fd);
@@ -631,6 +695,7 @@ def _verilog_video(spec: HarnessSpec) -> str:
 
 def _verilog_stream(spec: HarnessSpec) -> str:
     iw = spec.in_width
+    dw = capture_data_words(spec.out_width)
     g0, g1 = iw + 2, iw + 1 + GAP_BITS
     i0, i1 = iw + 2 + GAP_BITS, 2 * iw + 1 + GAP_BITS
     return f"""
@@ -649,7 +714,7 @@ def _verilog_stream(spec: HarnessSpec) -> str:
         d_in_data = offer ? cur[{iw - 1}:0] : (sending ? cur[{i1}:{i0}] : {{IW{{1'b0}}}});
         d_out_ready = started && !done && rdy_mem[ri];
     end
-{_verilog_finish_block()}
+{_verilog_finish_block(dw)}
     // ---- capture
     reg c_valid, c_ready, waited;
     always @* begin
@@ -669,7 +734,7 @@ def _verilog_stream(spec: HarnessSpec) -> str:
             ri <= (ri + 32'd1 >= n_ready) ? 32'd0 : ri + 32'd1;
             if (offer && (d_in_ready === 1'b1)) begin
                 if (cur[{iw + 1}]) frame_pulse <= 1'b1;
-                if (!any_xfer) $fwrite(fd, "%0d I -\\n", clocks);
+                if (!any_xfer) {_ev("I", dw)}
                 any_xfer <= 1'b1;
                 got = $fread(nxt, sfd);
                 if (got == NB) begin
@@ -683,16 +748,16 @@ def _verilog_stream(spec: HarnessSpec) -> str:
                 gap_left <= gap_left - {GAP_BITS}'d1;
             end
             if (!sending) tail <= tail + 32'd1;
-            if ({_v_x('d_out_valid')}) $fwrite(fd, "%0d X out_valid\\n", clocks);
-            if ({_v_x('d_in_ready')}) $fwrite(fd, "%0d X in_ready\\n", clocks);
+            if ({_v_x('d_out_valid')}) {_ev("X", dw, "out_valid")}
+            if ({_v_x('d_in_ready')}) {_ev("X", dw, "in_ready")}
             if (c_valid && !c_ready) waited <= 1'b1;
             if (c_valid && c_ready) begin
                 waited <= 1'b0;
-                if (waited) $fwrite(fd, "%0d K -\\n", clocks);
-                if ({_v_x('d_out_sof')}) $fwrite(fd, "%0d X out_sof\\n", clocks);
-                if ({_v_x('d_out_eol')}) $fwrite(fd, "%0d X out_eol\\n", clocks);
+                if (waited) {_ev("K", dw)}
+                if ({_v_x('d_out_sof')}) {_ev("X", dw, "out_sof")}
+                if ({_v_x('d_out_eol')}) {_ev("X", dw, "out_eol")}
                 if (d_out_sof === 1'b1) begin
-                    $fwrite(fd, "%0d F -\\n", clocks);
+                    {_ev("F", dw)}
                     $fflush(fd);
                 end
                 pix_stb <= 1'b1;
@@ -700,12 +765,12 @@ def _verilog_stream(spec: HarnessSpec) -> str:
                 npix <= npix + 32'd1;
                 if (^d_out_data === 1'bx) begin
                     pix_xz <= 1'b1;
-                    $fwrite(fd, "%0d P U\\n", clocks);
+                    {_ev("P", dw, "U", code=1)}
                 end else begin
                     pix_xz <= 1'b0;
-                    $fwrite(fd, "%0d P %h\\n", clocks, d_out_data);
+                    {_ev("P", dw, "%h", value="d_out_data", ow=spec.out_width)}
                 end
-                if (d_out_eol === 1'b1) $fwrite(fd, "%0d L -\\n", clocks);
+                if (d_out_eol === 1'b1) {_ev("L", dw)}
             end
             if (timeout > 0 && clocks + 32'd1 >= timeout) finish_run(1'b1);
             else if (!sending && (tail + 32'd1 >= drain || (n_expect > 0 && npix >= n_expect && tail >= {STREAM_TAIL}))) finish_run(1'b0);
@@ -1153,7 +1218,7 @@ def fast_test_args(case: Any, simulator: str, *, in_width: int | None = None) ->
     language = "vhdl" if simulator == "ghdl" else "verilog"
     stim = prepare_fast_run(case, in_width, language=language)
     run_dir = fast_run_dir(case)
-    capture_txt = run_dir / "capture.txt"
+    capture_txt = run_dir / capture_file_name(language)
     case_json = _case_json(case, run_dir / "case.json")
     period = float(_case_get(case, "clock_period_ns", 10.0))
     reset_cycles = int(_case_get(case, "reset_cycles", 4))

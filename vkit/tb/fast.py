@@ -4,7 +4,8 @@ Run with ``test_module="vkit.tb.fast"`` and toplevel ``vkit_fast_top`` (see
 :func:`vkit.harness.fast_build_plan`), with the keyword arguments of
 :func:`vkit.harness.fast_test_args` (the case JSON named by ``VKIT_CASE``, and the harness's
 plusargs or generics). The clock is generated inside the simulator by the harness, so no Python
-runs per clock: the test waits once for ``done`` (bounded by a timer) and reads the capture text.
+runs per clock: the test waits once for ``done`` (bounded by a timer) and reads the capture file
+(binary records from the Verilog harness, text from the VHDL one).
 The capture ``.npz`` is always written, partial on timeout; a failure leaves its one-line reason in
 the ``.error.txt`` file beside it.
 """
@@ -23,13 +24,11 @@ from cocotb.triggers import First, RisingEdge, Timer
 from vkit.capture import Capture
 from vkit.errors import ConfigError, VkitError
 from vkit.export import read_capture
+from vkit.harness import CAPTURE_TEXT_NAME, capture_file_name
 from vkit.stimulus import StimulusFiles, fast_run_dir, prepare_fast_run, read_fast_run
 from vkit.tb.case import CASE_ENV, SimCase, error_file_for
 
 __all__ = ["run_fast_case", "CAPTURE_TEXT_NAME"]
-
-CAPTURE_TEXT_NAME = "capture.txt"
-"""Name of the harness's capture text file inside :func:`vkit.stimulus.fast_run_dir`."""
 
 _SLACK_CLOCKS = 1000
 
@@ -47,7 +46,7 @@ async def run_fast_case(dut: Any, case: SimCase) -> Capture:
     if stim is None:
         # Started by hand, without vkit.harness.fast_test_args: the plusargs must still name these files.
         stim = prepare_fast_run(case)
-    cap_text = fast_run_dir(case) / CAPTURE_TEXT_NAME
+    cap_text = fast_run_dir(case) / capture_file_name(stim.language)
     period = float(case.clock_period_ns)
     bound = _bound_clocks(stim, int(case.reset_cycles))
     python_timeout = False

@@ -80,6 +80,12 @@ __all__ = [
     "capture_data_words",
     "capture_record_bytes",
     "capture_file_name",
+    "NATIVE_SIMULATORS",
+    "NativeBuild",
+    "native_build_plan",
+    "native_build",
+    "native_run_args",
+    "run_native",
 ]
 
 HARNESS = "vkit_harness"
@@ -442,7 +448,8 @@ def verilog_harness(spec: HarnessSpec) -> str:
 
     ``vkit_fast_top`` has no inputs: it toggles ``clk`` every ``+vkit_half_ns=`` ns (default 5),
     raises ``load`` a quarter period in, holds reset for ``+vkit_reset_cycles=`` rising edges
-    (default 4) and shows ``done``, ``timed_out``, ``frame_pulse`` and ``clocks``.
+    (default 4) and shows ``done``, ``timed_out``, ``frame_pulse`` and ``clocks``; with
+    ``+vkit_native=1`` it calls ``$finish`` when ``done`` rises (a run without cocotb).
     """
     r = spec.roles
     iw, ow = spec.in_width, spec.out_width
@@ -582,7 +589,7 @@ module {TOPLEVEL} (
 );
     reg clk, rst, load;
     real half_ns;
-    integer reset_cycles;
+    integer reset_cycles, native;
     wire pix_stb, pix_xz;
     wire [{spec.out_width - 1}:0] pix_data;
 
@@ -593,8 +600,9 @@ module {TOPLEVEL} (
 
     initial begin
         clk = 1'b0; rst = 1'b1; load = 1'b0;
-        half_ns = 5.0; reset_cycles = 4;
+        half_ns = 5.0; reset_cycles = 4; native = 0;
         if ($value$plusargs("vkit_half_ns=%f", half_ns)) begin end
+        if ($value$plusargs("vkit_native=%d", native)) begin end
         if ($value$plusargs("vkit_reset_cycles=%d", reset_cycles)) begin end
         #(half_ns / 2.0) load = 1'b1;
         repeat (reset_cycles) @(posedge clk);
@@ -602,6 +610,9 @@ module {TOPLEVEL} (
     end
 
     always #(half_ns) clk = ~clk;
+
+    // Run as a plain executable (+vkit_native=1): end the simulation when the harness is done.
+    always @(posedge done) if (native != 0) $finish;
 endmodule
 """
 
@@ -1284,3 +1295,165 @@ def harness_sources(
         in_width, out_width, out_dir=out_dir, reset_active_high=bool(_case_get(case, "reset_active_high", True)),
         pixel_format=str(_case_get(case, "pixel_format", "gray8")),
     )
+
+
+# ----------------------------------------------------------------------------------------------
+# Native runs: vkit_fast_top as a plain executable, no cocotb in the loop
+
+NATIVE_SIMULATORS = ("icarus", "verilator")
+"""Simulators :func:`native_build_plan` builds a plain executable with (Verilog harness)."""
+
+_NATIVE_INFO = "vkit_native.json"
+
+
+@dataclass
+class NativeBuild:
+    """The commands that build ``vkit_fast_top`` as a plain executable, and the command that runs it.
+
+    Attributes:
+        simulator: "icarus" or "verilator".
+        build_dir: the folder the build writes into.
+        commands: argument lists run in ``build_dir`` in order (each one a subprocess).
+        run: the argument list that runs one case (add the plusargs of :func:`native_run_args`).
+        key: the harness build's key plus the simulator: equal keys mean an equal executable.
+    """
+
+    simulator: str
+    build_dir: Path
+    commands: list[list[str]]
+    run: list[str]
+    key: str
+
+
+def native_build_plan(plan: HarnessBuild, simulator: str, build_dir: str | Path) -> NativeBuild:
+    """The build of ``plan``'s harness and design as a plain executable (``iverilog``/``vvp`` or ``verilator --binary``).
+
+    Args:
+        plan: from :func:`fast_build_plan` (Verilog harness).
+        simulator: "icarus" or "verilator".
+        build_dir: folder for the build products (absolute paths are used throughout).
+
+    Raises:
+        ConfigError: a VHDL harness or a simulator without a native build here.
+    """
+    if plan.language != "verilog" or simulator not in NATIVE_SIMULATORS:
+        raise ConfigError(
+            f"native path: {simulator!r} with a {plan.language} harness has no native build; use icarus or verilator "
+            "with a Verilog design, or path = \"fast\""
+        )
+    out = Path(build_dir).resolve()
+    srcs = [str(Path(p).resolve()) for p in plan.sources]
+    defs = [f"-D{k}" if v is None or v == "" else f"-D{k}={v}" for k, v in plan.defines.items()]
+    if simulator == "icarus":
+        vvp = out / f"{TOPLEVEL}.vvp"
+        commands = [["iverilog", "-g2012", *defs, "-s", TOPLEVEL, "-o", str(vvp), *srcs]]
+        run = ["vvp", "-n", str(vvp)]
+    else:
+        mdir = out / "obj_native"
+        commands = [["verilator", "--binary", *_verilator_args(), "-j", "2", *defs, "--top-module", TOPLEVEL,
+                     "--Mdir", str(mdir), "-o", f"V{TOPLEVEL}", *srcs]]
+        run = [str(mdir / f"V{TOPLEVEL}")]
+    key = hashlib.sha256(f"{plan.key}\0{simulator}\0native".encode()).hexdigest()
+    return NativeBuild(simulator, out, commands, run, key)
+
+
+def native_build(plan: HarnessBuild, simulator: str, build_dir: str | Path, *, always: bool = False) -> NativeBuild:
+    """Run :func:`native_build_plan`'s commands unless ``build_dir`` already holds the same build; record it there.
+
+    Raises:
+        ToolError: the simulator is not installed, or a build command failed (its last output lines are given).
+    """
+    import json
+    import subprocess
+
+    from vkit.errors import ToolError
+    from vkit.simulators import require, subprocess_env
+
+    nb = native_build_plan(plan, simulator, build_dir)
+    info_file = nb.build_dir / _NATIVE_INFO
+    if not always and info_file.is_file() and Path(nb.run[-1]).is_file():
+        if json.loads(info_file.read_text()).get("key") == nb.key:
+            return nb
+    env = subprocess_env(require(simulator))
+    nb.build_dir.mkdir(parents=True, exist_ok=True)
+    for cmd in nb.commands:
+        res = subprocess.run(cmd, cwd=nb.build_dir, env=env, capture_output=True, text=True)
+        if res.returncode != 0:
+            tail = " | ".join((res.stdout + res.stderr).strip().splitlines()[-3:])
+            raise ToolError(f"native build: {cmd[0]} exited with {res.returncode}: {tail}; fix the design or its sources")
+    info_file.write_text(json.dumps({"key": nb.key, "simulator": simulator, "run": nb.run}) + "\n")
+    return nb
+
+
+def native_run_args(case: Any, *, in_width: int | None = None) -> tuple[list[str], Path]:
+    """Write ``case``'s stimulus (once) and return (plusargs for a native run, the capture file it will write)."""
+    from vkit.stimulus import fast_run_dir, prepare_fast_run
+
+    stim = prepare_fast_run(case, in_width, language="verilog")
+    capture = fast_run_dir(case) / CAPTURE_BIN_NAME
+    period = float(_case_get(case, "clock_period_ns", 10.0))
+    reset_cycles = int(_case_get(case, "reset_cycles", 4))
+    plusargs = stim.plusargs(capture) + [f"+vkit_half_ns={period / 2:.6f}", f"+vkit_reset_cycles={reset_cycles}",
+                                         "+vkit_native=1"]
+    return plusargs, capture
+
+
+def run_native(case: Any, simulator: str, build_dir: str | Path, *, in_width: int | None = None,
+               timeout_s: float | None = None) -> Any:
+    """Run ``case`` on the native executable in ``build_dir`` (made by :func:`native_build`); return its Capture.
+
+    Python writes the stimulus, runs the executable once with the harness's plusargs (no cocotb),
+    reads the binary capture and saves it to ``case.capture_file`` (also on a timeout, partial).
+
+    Args:
+        case: a :class:`vkit.tb.case.SimCase`.
+        simulator: the simulator the build was made with ("icarus" or "verilator").
+        build_dir: the folder given to :func:`native_build`.
+        in_width: input data bus bits when it differs from the pixel format's bits.
+        timeout_s: wall-clock limit of the run in seconds (None: none; the harness's own timeout still holds).
+
+    Returns:
+        A :class:`vkit.capture.Capture` with ``meta["path"] = "native"``.
+
+    Raises:
+        ConfigError: ``build_dir`` holds no native build for ``simulator``.
+        ToolError: the executable failed or ran past ``timeout_s``.
+    """
+    import json
+    import subprocess
+    import time
+
+    from vkit.errors import ToolError
+    from vkit.export import read_capture
+    from vkit.simulators import find, subprocess_env
+    from vkit.stimulus import fast_run_dir, read_fast_run
+
+    info_file = Path(build_dir) / _NATIVE_INFO
+    info = json.loads(info_file.read_text()) if info_file.is_file() else {}
+    if info.get("simulator") != simulator:
+        raise ConfigError(f"native path: {str(build_dir)!r} holds no native {simulator} build; call "
+                          "vkit.harness.native_build first")
+    plusargs, capture = native_run_args(case, in_width=in_width)
+    run_dir = fast_run_dir(case)
+    capture.unlink(missing_ok=True)
+    t0 = time.perf_counter()
+    try:
+        res = subprocess.run([*info["run"], *plusargs], cwd=run_dir, env=subprocess_env(find(simulator)),
+                             capture_output=True, text=True, timeout=timeout_s)
+    except subprocess.TimeoutExpired:
+        res = None
+    secs = time.perf_counter() - t0
+    (run_dir / "native.log").write_text("" if res is None else res.stdout + res.stderr)
+    if res is not None and res.returncode != 0:
+        tail = " | ".join((res.stdout + res.stderr).strip().splitlines()[-3:])
+        raise ToolError(f"native run: {info['run'][0]} exited with {res.returncode}: {tail}; see {run_dir / 'native.log'}")
+    if not capture.is_file():
+        raise ToolError(f"native run: no capture file after {secs:.1f} s; see {run_dir / 'native.log'}")
+    cap = read_capture(capture, case, read_fast_run(case))
+    if res is None:
+        cap.meta["timed_out"] = True
+        cap.meta.setdefault("notes", []).append(f"the native run passed its {timeout_s} s wall-clock limit; the capture is partial")
+    cap.meta["simulator"] = simulator
+    cap.meta["path"] = "native"
+    cap.save(_case_get(case, "capture_file"), compress=False)
+    return cap

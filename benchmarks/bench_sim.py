@@ -7,32 +7,38 @@ as in a real regression), per simulator (Icarus, Verilator):
   (a) the per-clock cocotb path (vkit.tb.entry), Python on every clock;
   (b) the fast path (vkit.tb.fast on vkit_fast_top): the harness makes its clock, plays and captures
       in HDL, Python waits once for done;
+  (b') the native fast path (vkit.harness.run_native): the same vkit_fast_top built as a plain
+      executable (vvp / verilator --binary) and run as a subprocess, no cocotb at all;
   (c) the exported self-checking testbench (vkit.export), no Python at all.
 
 Builds are not timed (one build per path serves every run); each run is timed from the start of
-the simulator process to its exit (wall clock), so (a) and (b) include cocotb's start-up and (b)
-includes writing the stimulus (a new seed per run, so it is really written) and reading the
-capture back. Each figure is the median of ``--repeats`` runs (default 3). (a) may run fewer clocks
+the simulator process to its exit (wall clock), so (a) and (b) include cocotb's start-up, and (b)
+and (b') include writing the stimulus (a new seed per run, so it is really written), reading the
+binary capture back and saving it. Each figure is the median of ``--repeats`` runs (default 3). (a) may run fewer clocks
 (``--per-clock-fraction``, default 0.1): the case's timeout then stops it early and clocks/s are
 computed from the clocks it ran, stated in the output.
 
     python benchmarks/bench_sim.py [--sims icarus verilator] [--frames 3] [--repeats 3] [--per-clock-fraction 0.1]
+
+The machine load (``os.getloadavg``) is printed before and after, since all figures are wall clock.
 """
 
 from __future__ import annotations
 
 import argparse
+import os
 import subprocess
 import sys
 import tempfile
 import time
 from pathlib import Path
+from typing import Callable
 
 import numpy as np
 
 from vkit.capture import Capture
 from vkit.export import export_case
-from vkit.harness import fast_build_plan, fast_test_args
+from vkit.harness import fast_build_plan, fast_test_args, native_build, run_native
 from vkit.pipeline import preset as spec_preset
 from vkit.pipeline import run_model
 from vkit.simulators import activate, find, subprocess_env
@@ -68,57 +74,81 @@ def _median_rate(runs: list[tuple[float, int]]) -> tuple[float, int, float]:
     return secs, clocks, mid
 
 
-def _per_clock(sim: str, work: Path, frames: Path, n_frames: int, fraction: float, repeats: int) -> list[tuple[float, int]]:
+Run = Callable[[int], tuple[float, int]]
+"""One timed run for a seed: (wall-clock seconds, clocks run)."""
+
+
+def _per_clock(sim: str, work: Path, frames: Path, n_frames: int, fraction: float) -> Run:
     from cocotb_tools.runner import get_runner
 
     timeout = None if fraction >= 1.0 else max(1000, int(fraction * 420_000 * n_frames))
     runner = get_runner(sim)
     runner.build(sources=SOURCES, hdl_toplevel="edge_core", build_dir=work / "build", parameters=PARAMS,
                  timescale=("1ns", "1ps") if sim == "icarus" else None, always=True)
-    runs = []
-    for seed in range(repeats):
+
+    def run(seed: int) -> tuple[float, int]:
         case = _case(work, frames, n_frames, seed, timeout)
         case_json = case.to_json(work / f"case{seed}.json")
         secs = _timed(lambda: runner.test(hdl_toplevel="edge_core", test_module="vkit.tb.entry",
                                           build_dir=work / "build", test_dir=work,
                                           extra_env={CASE_ENV: str(case_json)}, parameters=PARAMS))
-        runs.append((secs, int(Capture.load(case.capture_file).meta.get("clocks_run") or 0)))
-    return runs
+        return secs, int(Capture.load(case.capture_file).meta.get("clocks_run") or 0)
+
+    return run
 
 
-def _fast(sim: str, work: Path, frames: Path, n_frames: int, repeats: int) -> list[tuple[float, int]]:
+def _fast(sim: str, work: Path, frames: Path, n_frames: int, stim_secs: list[float]) -> Run:
+    """The cocotb-hosted fast path; appends the seconds spent writing each stimulus to ``stim_secs``."""
     from cocotb_tools.runner import get_runner
 
     plan = fast_build_plan("edge_core", SOURCES, "verilog", PARAMS, None, "video", SIGNALS, out_dir=work / "harness")
     runner = get_runner(sim)
     runner.build(build_dir=work / "build", **plan.build_kwargs(sim))
-    runs = []
-    for seed in range(repeats):
+
+    def run(seed: int) -> tuple[float, int]:
         case = _case(work, frames, n_frames, seed)
-        secs = _timed(lambda: runner.test(build_dir=work / "build", **fast_test_args(case, sim)))
-        runs.append((secs, int(Capture.load(case.capture_file).meta["clocks_run"])))
-    return runs
+        t0 = time.perf_counter()
+        kw = fast_test_args(case, sim)
+        stim_secs.append(time.perf_counter() - t0)
+        runner.test(build_dir=work / "build", **kw)
+        return time.perf_counter() - t0, int(Capture.load(case.capture_file).meta["clocks_run"])
+
+    return run
 
 
-def _exported(sim: str, work: Path, frames: Path, n_frames: int, repeats: int) -> tuple[list[tuple[float, int]], str]:
+def _native(sim: str, work: Path, frames: Path, n_frames: int) -> Run:
+    plan = fast_build_plan("edge_core", SOURCES, "verilog", PARAMS, None, "video", SIGNALS, out_dir=work / "harness")
+    native_build(plan, sim, work / "build", always=True)
+
+    def run(seed: int) -> tuple[float, int]:
+        case = _case(work, frames, n_frames, seed)
+        secs = _timed(lambda: run_native(case, sim, work / "build"))
+        return secs, int(Capture.load(case.capture_file).meta["clocks_run"])
+
+    return run
+
+
+def _exported(sim: str, work: Path, frames: Path, n_frames: int, verdict: list[str]) -> Run:
+    """The exported testbench; appends each run's mismatch line to ``verdict``."""
     case = _case(work, frames, n_frames)
     spec = spec_preset("edge")
     expected = [run_model(spec, f, keep_stages=False) for f in np.load(frames)]
     res = export_case(case, work / "exp", "edge_core", SOURCES, expected, out_width=8, parameters=PARAMS)
     env = subprocess_env(find(sim))
-    *builds, run = res.commands[sim]
+    *builds, command = res.commands[sim]
     for cmd in builds:
         subprocess.run(cmd, cwd=res.out_dir, env=env, check=True, capture_output=True)
-    runs = []
-    verdict = "?"
-    for _ in range(repeats):
+
+    def run(seed: int) -> tuple[float, int]:
+        del seed  # the exported stimulus is fixed; the simulator reads it afresh each run
         t0 = time.perf_counter()
-        out = subprocess.run(run, cwd=res.out_dir, env=env, check=True, capture_output=True, text=True).stdout
+        out = subprocess.run(command, cwd=res.out_dir, env=env, check=True, capture_output=True, text=True).stdout
         secs = time.perf_counter() - t0
         clocks = int(next(line.split()[-2] for line in out.splitlines() if line.startswith("vkit:") and "clocks" in line))
-        verdict = next((line for line in out.splitlines() if "mismatches" in line), "?")
-        runs.append((secs, clocks))
-    return runs, verdict
+        verdict.append(next((line for line in out.splitlines() if "mismatches" in line), "?"))
+        return secs, clocks
+
+    return run
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -138,6 +168,8 @@ def main(argv: list[str] | None = None) -> int:
         frames = root / "frames.npy"
         np.save(frames, stack)
         n = args.frames
+        summary = [f"load average before: {' '.join(f'{x:.2f}' for x in os.getloadavg())} ({os.cpu_count()} cores)"]
+        print(summary[0])
         print(f"edge_core, 640x480 active, 800x525 timing, {n} frame(s) per run ({n * 420_000:,} clocks + drain), "
               f"median of {args.repeats} runs; (a) runs {args.per_clock_fraction:g} of the clocks")
         for sim in args.sims:
@@ -146,15 +178,36 @@ def main(argv: list[str] | None = None) -> int:
                 print(f"{sim}: skipped ({info.reason}; install: {info.install_hint})")
                 continue
             activate(info)
-            a_s, a_c, a = _median_rate(_per_clock(sim, root / f"{sim}_a", frames, n, args.per_clock_fraction, args.repeats))
-            b_s, b_c, b = _median_rate(_fast(sim, root / f"{sim}_b", frames, n, args.repeats))
-            c_runs, verdict = _exported(sim, root / f"{sim}_c", frames, n, args.repeats)
-            c_s, c_c, c = _median_rate(c_runs)
-            print(f"{sim}:")
-            print(f"  (a) per-clock cocotb : {a_c:>9} clocks in {a_s:7.2f} s = {a:>10.0f} clocks/s")
-            print(f"  (b) fast path        : {b_c:>9} clocks in {b_s:7.2f} s = {b:>10.0f} clocks/s")
-            print(f"  (c) exported HDL tb  : {c_c:>9} clocks in {c_s:7.2f} s = {c:>10.0f} clocks/s   [{verdict}]")
-            print(f"  b/a = {b / a:.1f}x   b/c = {b / c:.2f} (target >= 0.5)", flush=True)
+            stim_secs: list[float] = []
+            verdicts: list[str] = []
+            paths = {
+                "a": _per_clock(sim, root / f"{sim}_a", frames, n, args.per_clock_fraction),
+                "b": _fast(sim, root / f"{sim}_b", frames, n, stim_secs),
+                "n": _native(sim, root / f"{sim}_n", frames, n),
+                "c": _exported(sim, root / f"{sim}_c", frames, n, verdicts),
+            }
+            # Interleaved (a, b, b', c, a, b, ...) so a change of machine load hits every path alike.
+            runs: dict[str, list[tuple[float, int]]] = {k: [] for k in paths}
+            for seed in range(args.repeats):
+                for key, run in paths.items():
+                    runs[key].append(run(seed))
+            a_s, a_c, a = _median_rate(runs["a"])
+            b_s, b_c, b = _median_rate(runs["b"])
+            n_s, n_c, nat = _median_rate(runs["n"])
+            c_s, c_c, c = _median_rate(runs["c"])
+            b_stim = sorted(stim_secs)[len(stim_secs) // 2]
+            verdict = verdicts[-1]
+            summary.append(f"{sim}:")
+            summary.append(f"  (a) per-clock cocotb : {a_c:>9} clocks in {a_s:7.2f} s = {a:>10.0f} clocks/s")
+            summary.append(f"  (b) fast path        : {b_c:>9} clocks in {b_s:7.2f} s = {b:>10.0f} clocks/s"
+                           f"   [{b_stim:.2f} s of it writing the stimulus]")
+            summary.append(f"  (b') native fast path: {n_c:>9} clocks in {n_s:7.2f} s = {nat:>10.0f} clocks/s")
+            summary.append(f"  (c) exported HDL tb  : {c_c:>9} clocks in {c_s:7.2f} s = {c:>10.0f} clocks/s   [{verdict}]")
+            summary.append(f"  b/a = {b / a:.1f}x   b/c = {b / c:.2f} (target >= 0.5)   b'/c = {nat / c:.2f}   "
+                           f"b'/a = {nat / a:.1f}x")
+            print("\n".join(summary[-6:]), flush=True)
+        summary.append(f"load average after: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
+        print("\n".join(summary))
     return 0
 
 

@@ -77,8 +77,8 @@ def parse_capture_text(
     clocks = tokens[0::3]
     kinds = tokens[1::3]
     args = tokens[2::3]
-    kind_a = np.array(kinds, dtype="U1") if kinds else np.zeros(0, "U1")
-    pos_p = np.flatnonzero(kind_a == "P")
+    kind_a = np.array(kinds, dtype="S1").view(np.uint8) if kinds else np.zeros(0, np.uint8)
+    pos_p = np.flatnonzero(kind_a == ord("P"))
     clock_all = np.array(clocks, dtype=np.int64) if clocks else np.zeros(0, np.int64)
     values, xz_data = _hex_values(np.array(args, dtype="S")[pos_p] if pos_p.size else [])
     return _build(family, clock_all, kind_a, lambda i: args[i], values, xz_data, height, split_on_height, meta)
@@ -116,9 +116,9 @@ def parse_capture_binary(
     words = body.view("<u4").reshape(-1, 2 + nw)
     clock_all = words[:, 0].astype(np.int64)
     kc = words[:, 1]
-    kind_a = (kc & 0xFF).astype(np.uint8).view("S1").astype("U1")
+    kind_a = (kc & 0xFF).astype(np.uint8)
     code = ((kc >> 8) & 0xFF).astype(np.int64)
-    pos_p = np.flatnonzero(kind_a == "P")
+    pos_p = np.flatnonzero(kind_a == ord("P"))
     xz = code[pos_p] == 1
     if nw <= 2:
         d = words[pos_p, 2:].astype(np.uint64)
@@ -142,7 +142,7 @@ def is_binary_capture(head: bytes) -> bool:
 
 def _build(family: str, clock_all: np.ndarray, kind_a: np.ndarray, arg_of: Any, values: np.ndarray, xz_data: int,
            height: int | None, split_on_height: bool, meta: dict[str, Any] | None) -> Capture:
-    """The Capture from decoded events (clock and kind per event, values per pixel event); shared by both formats."""
+    """The Capture from decoded events (clock and ASCII kind code per event, values per pixel event); both formats."""
     out_meta: dict[str, Any] = dict(meta or {})
     out_meta.setdefault("family", family)
     out_meta.setdefault("notes", [])
@@ -157,16 +157,16 @@ def _build(family: str, clock_all: np.ndarray, kind_a: np.ndarray, arg_of: Any, 
     first_input: int | None = None
     waited_next: list[int] = []
 
-    is_p = kind_a == "P"
+    is_p = kind_a == ord("P")
     pos_p = np.flatnonzero(is_p)
     k = int(pos_p.size)
     clock_a = clock_all[pos_p]
-    if split_on_height and height and (kind_a == "F").any():
+    if split_on_height and height and (kind_a == ord("F")).any():
         frame_a, line_a, col_a = _positions_loop(kind_a, bool(split_on_height), height)
     else:
         frame_a, line_a, col_a = _positions(kind_a, is_p, pos_p, bool(split_on_height), height)
     for i in np.flatnonzero(~is_p).tolist():
-        kind = str(kind_a[i])
+        kind = chr(kind_a[i])
         if kind == "F":
             if family == "video":
                 vsync_count += 1
@@ -254,8 +254,8 @@ def _positions(kind: np.ndarray, is_p: np.ndarray, pos_p: np.ndarray, split: boo
                ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Frame, line and column of every pixel event, vectorised (see the module docstring for the rules)."""
     n = kind.size
-    is_l = kind == "L"
-    is_f = kind == "F"
+    is_l = kind == ord("L")
+    is_f = kind == ord("F")
     cum_p = np.cumsum(is_p)
     idx = np.arange(n)
     # An L or F closes a non-empty line when a pixel came since the last L or F.
@@ -291,11 +291,11 @@ def _positions_loop(kind: np.ndarray, split: bool, height: int) -> tuple[np.ndar
     frame_has = line_has = False
     out: list[tuple[int, int, int]] = []
     for k in kind.tolist():
-        if k == "P":
+        if k == 80:  # P
             out.append((frame, line, col))
             col += 1
             frame_has = line_has = True
-        elif k == "L":
+        elif k == 76:  # L
             if line_has:
                 line += 1
                 lines_in_frame += 1
@@ -305,7 +305,7 @@ def _positions_loop(kind: np.ndarray, split: bool, height: int) -> tuple[np.ndar
                     frame_has = False
             col = 0
             line_has = False
-        elif k == "F":
+        elif k == 70:  # F
             if frame_has:
                 frame += 1
             line = col = lines_in_frame = 0

@@ -18,8 +18,10 @@ clocks (driving ``idle_data``) before the transfer. The sink's ready pattern is 
 of :data:`READY_WORDS` bits, repeated.
 
 Clock index 0 is the first rising edge with reset released; on edge ``k`` the design samples word
-``k`` and the capture samples the design's outputs as they stood before that edge. The capture text
-format is described in :mod:`vkit.capture_text`.
+``k`` and the capture samples the design's outputs as they stood before that edge. The Verilog
+harness writes its capture as fixed-size binary records (``capture.bin``; text lines with
+``+vkit_capture_bin=0``), the VHDL harness as text (``capture.txt``); both formats are described in
+:mod:`vkit.capture_text` and give the same Capture.
 
 How the runner uses the fast path (build once, run every case on that build)::
 
@@ -42,6 +44,19 @@ and the source files' contents, for a build cache) and ``build_kwargs(sim)`` for
 keyword arguments of ``runner.test``: ``hdl_toplevel``, ``test_module`` (``vkit.tb.fast``),
 ``plusargs`` (Verilog) or ``parameters`` (VHDL generics), ``test_args``, ``extra_env``
 (``VKIT_CASE``) and ``test_dir``.
+
+The native path runs the same ``vkit_fast_top`` as a plain executable, with no cocotb in the loop
+(Verilog harness; Icarus or Verilator)::
+
+    from vkit.harness import fast_build_plan, native_build, run_native
+
+    plan = fast_build_plan(...)                                     # as above
+    native_build(plan, sim, build_dir)                              # skipped when build_dir holds plan's build
+    for case in cases:
+        capture = run_native(case, sim, build_dir)                  # also saved to case.capture_file
+
+``native_build_plan(plan, sim, build_dir)`` gives the commands without running them (``NativeBuild``:
+``commands``, ``run``, ``key``); ``native_run_args(case)`` the plusargs and capture path of one run.
 """
 
 from __future__ import annotations

@@ -93,7 +93,7 @@ def test_passing_case_pictures_on_request(tmp_path) -> None:
     v = score([r], pack([r.output]))
     paths = write_case_report("ok", v, [r], pack([r.output]), tmp_path, pictures="all")
     files = paths["frames"]["0"]
-    assert set(files) == {"expected", "actual", "diff", "composite"}
+    assert set(files) == {"input", "expected", "actual", "diff", "composite"}
     diff = np.asarray(Image.open(tmp_path / files["diff"]).convert("RGB"))
     assert diff.max() == 0
 

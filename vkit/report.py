@@ -106,6 +106,16 @@ def _frame_images(fr: Any, top: int) -> tuple[np.ndarray, np.ndarray, np.ndarray
     return expected, actual, diff, emax
 
 
+def _input_image(fr: Any) -> np.ndarray | None:
+    """The frame the design was fed, as 8-bit RGB, when the model kept its input stage."""
+    st = (getattr(fr.model, "stages", {}) or {}).get("input")
+    arr = getattr(st, "array", None)
+    if arr is None or arr.shape[:2] != fr.expected.shape or arr.dtype != np.uint8 and arr.max(initial=0) > 255:
+        return None
+    arr = np.asarray(arr).astype(np.uint8)
+    return np.ascontiguousarray(np.repeat(arr[..., None], 3, axis=2) if arr.ndim == 2 else arr)
+
+
 def _scale_for(width: int) -> int:
     return max(1, min(_MAX_SCALE, math.ceil(_MIN_PANEL_WIDTH / max(1, width))))
 
@@ -151,8 +161,9 @@ def write_case_report(
 
     For each failing frame (every frame with ``pictures="all"``): ``frameNNN_expected.png``, ``frameNNN_actual.png``, ``frameNNN_diff.png``
     (absolute error, black = equal, red to white up to the largest error, cyan = missing, magenta =
-    X/Z, dark blue = unchecked) and ``frameNNN_composite.png`` (expected | actual | diff, labelled,
-    enlarged so a panel is at least 256 pixels wide). Also ``verdict.json`` (verdict plus ``meta``).
+    X/Z, dark blue = unchecked), ``frameNNN_input.png`` (the frame the design was fed, when the model
+    kept it) and ``frameNNN_composite.png`` (input | expected | actual | diff, labelled, enlarged so a
+    panel is at least 256 pixels wide). Also ``verdict.json`` (verdict plus ``meta``).
 
     Args:
         case_id: the case's id (any text; sanitised for file names).
@@ -190,9 +201,14 @@ def write_case_report(
                 f"frame {fr.index}: {int(fr.mismatch.sum())} failing px, max |err| {emax}; "
                 "cyan=missing magenta=X/Z"
             )
-            comp = _composite(
-                [("expected", e_img), ("actual", a_img), (f"|diff| max {emax}", d_img)], footer
-            )
+            panels = [("expected", e_img), ("actual", a_img), (f"|diff| max {emax}", d_img)]
+            stimulus = _input_image(fr)
+            if stimulus is not None:  # what the design was fed, first, so a defect can be traced to it
+                p = case_dir / f"{stem}_input.png"
+                Image.fromarray(stimulus, "RGB").save(p)
+                files["input"] = _rel(out, p)
+                panels.insert(0, ("input", stimulus))
+            comp = _composite(panels, footer)
             p = case_dir / f"{stem}_composite.png"
             comp.save(p)
             files["composite"] = _rel(out, p)

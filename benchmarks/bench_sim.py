@@ -203,8 +203,8 @@ def main(argv: list[str] | None = None) -> int:
                            f"   [{b_stim:.2f} s of it writing the stimulus]")
             summary.append(f"  (b') native fast path: {n_c:>9} clocks in {n_s:7.2f} s = {nat:>10.0f} clocks/s")
             summary.append(f"  (c) exported HDL tb  : {c_c:>9} clocks in {c_s:7.2f} s = {c:>10.0f} clocks/s   [{verdict}]")
-            summary.append(f"  b/a = {b / a:.1f}x   b/c = {b / c:.2f} (target >= 0.5)   b'/c = {nat / c:.2f}   "
-                           f"b'/a = {nat / a:.1f}x")
+            b_a = f"{b / a:.1f}x" if a else "n/a (the per-clock runs failed)"
+            summary.append(f"  b/a = {b_a}   b/c = {b / c:.2f} (target >= 0.5)   b'/c = {nat / c:.2f}")
             print("\n".join(summary[-6:]), flush=True)
         summary.append(f"load average after: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
         print("\n".join(summary))

@@ -504,3 +504,19 @@ def test_native_run_gives_the_same_capture_as_the_cocotb_fast_path(sim: str, tmp
         cap.meta.pop("simulator", None)
     _assert_same_capture(fast, native)
     assert len(native) == 2 * 24 * 32 and native.meta["timed_out"] is False
+
+
+def test_native_build_plan_commands_and_refusals(tmp_path: Path) -> None:
+    from vkit.harness import native_build_plan, run_native
+
+    plan = fast_build_plan("fast_video_pass", [HDL / "fast_video_pass.v"], None, None, {"BUG_X": 1}, "video",
+                           VIDEO_SIGNALS, out_dir=tmp_path / "h")
+    icarus = native_build_plan(plan, "icarus", tmp_path / "b")
+    assert icarus.commands[0][:2] == ["iverilog", "-g2012"] and "-DBUG_X=1" in icarus.commands[0]
+    assert icarus.run[:2] == ["vvp", "-n"] and icarus.key != native_build_plan(plan, "verilator", tmp_path / "b").key
+    vhdl = fast_build_plan("fast_video_pass_vhd", [HDL / "fast_video_pass.vhd"], None, None, None, "video",
+                           VIDEO_SIGNALS, out_dir=tmp_path / "hv")
+    with pytest.raises(ConfigError, match="no native build"):
+        native_build_plan(vhdl, "ghdl", tmp_path / "bv")
+    with pytest.raises(ConfigError, match="native_build first"):
+        run_native(_video_case(tmp_path), "icarus", tmp_path / "empty")

@@ -1461,7 +1461,13 @@ def run_native(case: Any, simulator: str, build_dir: str | Path, *, in_width: in
     (run_dir / "native.log").write_text("" if res is None else res.stdout + res.stderr)
     if res is not None and res.returncode != 0:
         tail = " | ".join((res.stdout + res.stderr).strip().splitlines()[-3:])
-        raise ToolError(f"native run: {info['run'][0]} exited with {res.returncode}: {tail}; see {run_dir / 'native.log'}")
+        message = f"native run: {info['run'][0]} exited with {res.returncode}: {tail}; see {run_dir / 'native.log'}"
+        if capture.is_file():  # keep what was captured before the failure
+            partial = read_capture(capture, case, read_fast_run(case))
+            partial.meta.update(simulator=simulator, path="native", timed_out=True)
+            partial.meta.setdefault("notes", []).append(message)
+            partial.save(_case_get(case, "capture_file"), compress=False)
+        raise ToolError(message)
     if not capture.is_file():
         raise ToolError(f"native run: no capture file after {secs:.1f} s; see {run_dir / 'native.log'}")
     cap = read_capture(capture, case, read_fast_run(case))

@@ -9,7 +9,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from vkit.capture import Capture
+from vkit.capture import UNKNOWN, Capture
 from vkit.errors import ConfigError
 from vkit.tb.case import SimCase, error_file_for
 from vkit.tb.signals import SignalMap
@@ -102,6 +102,44 @@ def _frames(n: int, h: int, w: int, rgb: bool, seed: int) -> np.ndarray:
     return rng.integers(0, 256, size=shape, dtype=np.uint8)
 
 
+def _sim_case(tmp: Path, family: str, frames: np.ndarray, **options) -> SimCase:
+    """Save ``frames`` under ``tmp`` and describe a run of them: the family's full signal map, the frames'
+    size and pixel format, ``capture.npz`` beside them; ``options`` override or add SimCase fields."""
+    np.save(tmp / "frames.npy", frames)
+    fields = {
+        "family": family,
+        "signals": VIDEO_SIGNALS if family == "video" else STREAM_SIGNALS,
+        "frames_file": str(tmp / "frames.npy"),
+        "capture_file": str(tmp / "capture.npz"),
+        "width": int(frames.shape[2]),
+        "height": int(frames.shape[1]),
+        "pixel_format": "rgb888" if frames.ndim == 4 else "gray8",
+    }
+    return SimCase(**{**fields, **options})
+
+
+@pytest.fixture
+def simulate(tmp_path: Path, monkeypatch: pytest.MonkeyPatch):
+    """``simulate(sim, top, case, parameters=None)``: build ``tests/hdl/<top>.v`` on ``sim`` (skipped with the
+    install hint when missing), run the case through vkit.tb.entry and return the saved capture."""
+
+    def run(sim: str, top: str, case: SimCase, parameters: dict[str, int] | None = None) -> Capture:
+        _use_simulator(sim, monkeypatch)
+        runner = _build(sim, top, tmp_path / "build", parameters)
+        return _run(runner, top, case, tmp_path)
+
+    return run
+
+
+def _config_error_line(simulate, top: str, case: SimCase, parameters: dict[str, int] | None = None) -> str:
+    """Run a case that must stop on a ConfigError; return its one-line reason from the ``.error.txt`` file."""
+    with pytest.raises(SystemExit):
+        simulate("icarus", top, case, parameters)
+    line = error_file_for(case.capture_file).read_text().strip()
+    assert "\n" not in line
+    return line
+
+
 def _expected_words(frames: np.ndarray) -> np.ndarray:
     from vkit.images import pack_rgb
 
@@ -133,17 +171,9 @@ def test_signal_map_rejects_missing_and_unknown_roles() -> None:
 
 
 def test_sim_case_json_round_trip(tmp_path: Path) -> None:
-    np.save(tmp_path / "f.npy", _frames(2, 24, 32, True, 1))
-    case = SimCase(
-        family="video",
-        signals=VIDEO_SIGNALS,
-        frames_file=str(tmp_path / "f.npy"),
-        capture_file=str(tmp_path / "c.npz"),
-        width=32,
-        height=24,
-        pixel_format="rgb888",
-        timing=tiny(32, 24).to_dict(),
-        stalls={"probability": 0.2, "max_length": 3, "seed": 5},
+    case = _sim_case(
+        tmp_path, "video", _frames(2, 24, 32, True, 1),
+        timing=tiny(32, 24).to_dict(), stalls={"probability": 0.2, "max_length": 3, "seed": 5},
     )
     back = SimCase.from_json(case.to_json(tmp_path / "case.json"))
     assert back.to_dict() == case.to_dict()
@@ -170,23 +200,10 @@ SIMS = ["icarus", "verilator"]
 
 @pytest.mark.sim
 @pytest.mark.parametrize("sim", SIMS)
-def test_video_passthrough_with_stalls(sim: str, tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    _use_simulator(sim, monkeypatch)
+def test_video_passthrough_with_stalls(sim: str, tmp_path: Path, simulate) -> None:
     frames = _frames(2, 24, 32, True, seed=11)
-    np.save(tmp_path / "frames.npy", frames)
-    case = SimCase(
-        family="video",
-        signals=VIDEO_SIGNALS,
-        frames_file=str(tmp_path / "frames.npy"),
-        capture_file=str(tmp_path / "capture.npz"),
-        width=32,
-        height=24,
-        pixel_format="rgb888",
-        stalls={"probability": 0.15, "max_length": 3, "seed": 3},
-        simulator=sim,
-    )
-    runner = _build(sim, "video_passthrough", tmp_path / "build")
-    cap = _run(runner, "video_passthrough", case, tmp_path)
+    case = _sim_case(tmp_path, "video", frames, stalls={"probability": 0.15, "max_length": 3, "seed": 3}, simulator=sim)
+    cap = simulate(sim, "video_passthrough", case)
     _assert_frames_equal(cap, frames)
     m = cap.meta
     assert not m["timed_out"]
@@ -200,44 +217,22 @@ def test_video_passthrough_with_stalls(sim: str, tmp_path: Path, monkeypatch: py
 
 
 @pytest.mark.sim
-def test_video_monitor_splits_frames_by_height_without_vsync(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    _use_simulator("icarus", monkeypatch)
+def test_video_monitor_splits_frames_by_height_without_vsync(tmp_path: Path, simulate) -> None:
     frames = _frames(2, 24, 32, False, seed=12)
-    np.save(tmp_path / "frames.npy", frames)
     signals = {k: v for k, v in VIDEO_SIGNALS.items() if k not in ("out_vsync", "out_hsync", "out_valid")}
-    case = SimCase(
-        family="video",
-        signals=signals,
-        frames_file=str(tmp_path / "frames.npy"),
-        capture_file=str(tmp_path / "capture.npz"),
-        width=32,
-        height=24,
-        pixel_format="gray8",
-        blanking="constant",
-        blanking_value=0x5A,
-    )
-    runner = _build("icarus", "video_passthrough", tmp_path / "build", {"WIDTH": 8})
-    cap = _run(runner, "video_passthrough", case, tmp_path)
+    case = _sim_case(tmp_path, "video", frames, signals=signals, blanking="constant", blanking_value=0x5A)
+    cap = simulate("icarus", "video_passthrough", case, {"WIDTH": 8})
     _assert_frames_equal(cap, frames)
 
 
 @pytest.mark.sim
-def test_video_timeout_keeps_partial_capture(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    _use_simulator("icarus", monkeypatch)
-    np.save(tmp_path / "frames.npy", _frames(1, 24, 32, True, seed=13))
+def test_video_timeout_keeps_partial_capture(tmp_path: Path, simulate) -> None:
     # out_de watches the reset, which stays low: no pixel ever comes out.
-    case = SimCase(
-        family="video",
-        signals={**VIDEO_SIGNALS, "out_de": "rst"},
-        frames_file=str(tmp_path / "frames.npy"),
-        capture_file=str(tmp_path / "capture.npz"),
-        width=32,
-        height=24,
-        pixel_format="rgb888",
-        timeout_clocks=1500,
+    case = _sim_case(
+        tmp_path, "video", _frames(1, 24, 32, True, seed=13),
+        signals={**VIDEO_SIGNALS, "out_de": "rst"}, timeout_clocks=1500,
     )
-    runner = _build("icarus", "video_passthrough", tmp_path / "build")
-    cap = _run(runner, "video_passthrough", case, tmp_path)
+    cap = simulate("icarus", "video_passthrough", case)
     assert cap.meta["timed_out"] is True
     assert cap.meta["timeout_clocks"] == 1500
     assert cap.meta["clocks_run"] >= 1500
@@ -245,27 +240,41 @@ def test_video_timeout_keeps_partial_capture(tmp_path: Path, monkeypatch: pytest
 
 
 @pytest.mark.sim
+def test_video_monitor_records_xz_on_data_and_control(tmp_path: Path, simulate) -> None:
+    # Icarus only: Verilator is two-state and would turn the design's 'x' into 0 or 1.
+    frames = _frames(2, 24, 32, False, seed=41)
+    n, h, w = frames.shape
+    case = _sim_case(tmp_path, "video", frames)
+    cap = simulate("icarus", "video_xz", case, {"WIDTH": 8, "XZ_EVERY": 50, "XZ_FIRST": 7})
+    m = cap.meta
+    assert not m["timed_out"]
+    views = cap.frames(h, w)
+    assert len(views) == n
+    # The design puts all-'x' on out_data for output pixel k (counted over the run) when k % 50 == 7.
+    unknown = np.arange(n * h * w) % 50 == 7
+    expected = frames.astype(np.int64).ravel()
+    expected[unknown] = UNKNOWN
+    got = np.concatenate([view.pixels.ravel() for view in views])
+    np.testing.assert_array_equal(got, expected)
+    assert all(view.present.all() and view.line_lengths == [w] * h for view in views)
+    assert m["xz_data_count"] == int(unknown.sum()) > 0
+    # out_de is 'x' for one clock, the one after the first line's last pixel: listed with its clock and
+    # role, and read as low, so that line still ends there.
+    assert m["xz_control"] == [[int(views[0].clocks[0, w - 1]) + 1, "out_de"]]
+    assert m["de_in_blanking"] == []
+
+
+@pytest.mark.sim
 @pytest.mark.parametrize("sim", SIMS)
-def test_stream_passthrough_with_gaps_and_backpressure(
-    sim: str, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
-) -> None:
-    _use_simulator(sim, monkeypatch)
+def test_stream_passthrough_with_gaps_and_backpressure(sim: str, tmp_path: Path, simulate) -> None:
     frames = _frames(2, 24, 32, False, seed=21)
-    np.save(tmp_path / "frames.npy", frames)
-    case = SimCase(
-        family="stream",
-        signals=STREAM_SIGNALS,
-        frames_file=str(tmp_path / "frames.npy"),
-        capture_file=str(tmp_path / "capture.npz"),
-        width=32,
-        height=24,
-        pixel_format="gray8",
+    case = _sim_case(
+        tmp_path, "stream", frames,
         stream_gaps={"probability": 0.2, "max_length": 4, "seed": 8},
         backpressure={"probability": 0.2, "max_length": 5, "seed": 9},
         simulator=sim,
     )
-    runner = _build(sim, "stream_passthrough", tmp_path / "build")
-    cap = _run(runner, "stream_passthrough", case, tmp_path)
+    cap = simulate(sim, "stream_passthrough", case)
     _assert_frames_equal(cap, frames)
     m = cap.meta
     assert not m["timed_out"]
@@ -276,23 +285,11 @@ def test_stream_passthrough_with_gaps_and_backpressure(
 
 
 @pytest.mark.sim
-def test_misnamed_port_reports_one_line_with_ports(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    _use_simulator("icarus", monkeypatch)
-    np.save(tmp_path / "frames.npy", _frames(1, 24, 32, True, seed=31))
-    case = SimCase(
-        family="video",
-        signals={**VIDEO_SIGNALS, "in_data": "in_dta"},
-        frames_file=str(tmp_path / "frames.npy"),
-        capture_file=str(tmp_path / "capture.npz"),
-        width=32,
-        height=24,
-        pixel_format="rgb888",
+def test_misnamed_port_reports_one_line_with_ports(tmp_path: Path, simulate) -> None:
+    case = _sim_case(
+        tmp_path, "video", _frames(1, 24, 32, True, seed=31), signals={**VIDEO_SIGNALS, "in_data": "in_dta"}
     )
-    runner = _build("icarus", "video_passthrough", tmp_path / "build")
-    with pytest.raises(SystemExit):
-        _run(runner, "video_passthrough", case, tmp_path)
-    line = error_file_for(case.capture_file).read_text().strip()
-    assert "\n" not in line
+    line = _config_error_line(simulate, "video_passthrough", case)
     assert line.startswith("ConfigError: role 'in_data' -> port 'in_dta' not found")
     assert "closest DUT port: 'in_data'" in line
     assert "out_hsync" in line and "in_valid" in line  # the DUT's ports are listed
@@ -300,20 +297,7 @@ def test_misnamed_port_reports_one_line_with_ports(tmp_path: Path, monkeypatch: 
 
 
 @pytest.mark.sim
-def test_narrow_data_port_names_widths(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    _use_simulator("icarus", monkeypatch)
-    np.save(tmp_path / "frames.npy", _frames(1, 24, 32, True, seed=32))
-    case = SimCase(
-        family="video",
-        signals=VIDEO_SIGNALS,
-        frames_file=str(tmp_path / "frames.npy"),
-        capture_file=str(tmp_path / "capture.npz"),
-        width=32,
-        height=24,
-        pixel_format="rgb888",
-    )
-    runner = _build("icarus", "video_passthrough", tmp_path / "build", {"WIDTH": 8})
-    with pytest.raises(SystemExit):
-        _run(runner, "video_passthrough", case, tmp_path)
-    line = error_file_for(case.capture_file).read_text().strip()
+def test_narrow_data_port_names_widths(tmp_path: Path, simulate) -> None:
+    case = _sim_case(tmp_path, "video", _frames(1, 24, 32, True, seed=32))
+    line = _config_error_line(simulate, "video_passthrough", case, {"WIDTH": 8})
     assert "'in_data'" in line and "8 bits wide" in line and "needs 24 bits" in line

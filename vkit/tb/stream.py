@@ -2,15 +2,14 @@
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from typing import Any
 
 import numpy as np
-from cocotb.triggers import Event, RisingEdge
+from cocotb.triggers import RisingEdge
 
-from vkit.capture import UNKNOWN, Capture, CaptureBuilder
-from vkit.errors import ConfigError
-from vkit.tb._common import MAX_EVENTS, bit_reader, resolve_component, wait_reset_released, word_reader
+from vkit.capture import UNKNOWN
+from vkit.tb._common import _Component, _FrameMonitor, _in_data_bits, _Source, bit_reader, word_reader
 from vkit.tb.signals import SignalMap, pixel_bits
 from vkit.tb.video import _pixel_words, frames_array
 from vkit.timing import StallPattern
@@ -18,7 +17,7 @@ from vkit.timing import StallPattern
 __all__ = ["StreamSource", "StreamSink", "StreamMonitor"]
 
 
-class StreamSource:
+class StreamSource(_Source):
     """Sends frames into a stream-family DUT: one word per transfer (``in_valid && in_ready`` on a rising edge).
 
     ``in_sof`` marks the first pixel of a frame, ``in_eol`` the last pixel of each line. Seeded random idle
@@ -41,6 +40,8 @@ class StreamSource:
     Clock numbering: clock 0 is the first rising edge after :meth:`send` starts.
     """
 
+    family = "stream"
+
     def __init__(
         self,
         dut: Any,
@@ -54,17 +55,10 @@ class StreamSource:
         reset_active_high: bool = True,
         stats: dict[str, Any] | None = None,
     ) -> None:
-        bits = {"in_data": pixel_bits(pixel_format)} if pixel_format else None
-        self.signals, self._h, self._clock, self._reset = resolve_component(
-            dut, signals, "stream", clock, reset, bits
-        )
+        bits = _in_data_bits(pixel_format)
+        super().__init__(dut, signals, clock, reset, data_bits=bits, reset_active_high=reset_active_high)
+        self._init_source(pixel_format, seed, stats)
         self.gaps = gaps
-        self.pixel_format = pixel_format
-        self.seed = int(seed)
-        self.reset_active_high = reset_active_high
-        self.stats: dict[str, Any] = stats if stats is not None else {}
-        self.clocks = 0
-        """Rising edges seen by the last :meth:`send` so far."""
         self.sent = 0
         """Words taken by the DUT so far."""
         for role in ("in_valid", "in_sof", "in_eol"):
@@ -74,12 +68,7 @@ class StreamSource:
     async def send(self, frames: Any) -> None:
         """Send every pixel of ``frames``; returns once the DUT took the last word (valid then drops)."""
         arr, fmt = frames_array(frames, self.pixel_format)
-        width = len(self._h["in_data"])
-        if width < pixel_bits(fmt):
-            raise ConfigError(
-                f"role 'in_data' -> port {self.signals.roles['in_data']!r} is {width} bits wide but the pixel "
-                f"format {fmt} needs {pixel_bits(fmt)} bits; widen the port or send gray8 frames"
-            )
+        self._check_data_width(fmt)
         n_frames, height, line = arr.shape[:3]
         words = _pixel_words(arr, fmt).ravel().tolist()
         idx = np.arange(len(words))
@@ -96,7 +85,7 @@ class StreamSource:
         self.stats["frames_sent"] = int(n_frames)
         self.stats["first_input_clock"] = None
 
-        await wait_reset_released(self._clock, self._reset, self.reset_active_high)
+        await self._reset_released()
         h = self._h
         valid, data, s_sof, s_eol = h["in_valid"], h["in_data"], h["in_sof"], h["in_eol"]
         ready = bit_reader(h["in_ready"])
@@ -139,7 +128,7 @@ class StreamSource:
         s_eol.value = 0
 
 
-class StreamSink:
+class StreamSink(_Component):
     """Drives ``out_ready`` of a stream-family DUT with seeded random back-pressure.
 
     Before each clock, when ready is high, a ready-low run of 1..``max_length`` clocks (uniform) starts with
@@ -156,6 +145,7 @@ class StreamSink:
     (it sees valid, ready and the frame position together); the sink counts :attr:`low_clocks`.
     """
 
+    family = "stream"
     _CHUNK = 4096
 
     def __init__(
@@ -167,7 +157,7 @@ class StreamSink:
         *,
         backpressure: StallPattern | None = None,
     ) -> None:
-        self.signals, self._h, self._clock, self._reset = resolve_component(dut, signals, "stream", clock, reset)
+        super().__init__(dut, signals, clock, reset)
         self.backpressure = backpressure
         self.low_clocks = 0
         """Clocks on which the sink held ready low."""
@@ -226,7 +216,7 @@ class StreamSink:
                     self.low_clocks += 1
 
 
-class StreamMonitor:
+class StreamMonitor(_FrameMonitor):
     """Watches a stream-family DUT's output and rebuilds frames from ``out_sof`` / ``out_eol``.
 
     A transfer is a rising edge with ``out_valid`` and ``out_ready`` high. ``out_sof`` starts a new frame
@@ -246,6 +236,8 @@ class StreamMonitor:
         meta: initial capture meta (copied).
     """
 
+    family = "stream"
+
     def __init__(
         self,
         dut: Any,
@@ -258,145 +250,64 @@ class StreamMonitor:
         reset_active_high: bool = True,
         meta: dict[str, Any] | None = None,
     ) -> None:
-        self.signals, self._h, self._clock, self._reset = resolve_component(dut, signals, "stream", clock, reset)
-        self.expected_height = expected_height
-        self.expected_width = expected_width
-        self.reset_active_high = reset_active_high
-        self._builder = CaptureBuilder(meta)
-        self.meta: dict[str, Any] = self._builder.meta
-        self.meta.setdefault("family", "stream")
-        self.meta.setdefault("notes", [])
-        self.meta.update(
-            xz_data_count=0,
-            xz_control=[],
-            backpressure_pixels=[],
-            first_output_clock=None,
-            clocks_run=0,
-            timed_out=False,
-        )
-        self.clocks = 0
-        """Rising edges watched so far."""
-        self.frames_complete = 0
-        """Output frames finished: ``expected_height`` end-of-lines seen, or closed by the next start-of-frame."""
-        self._xz_total = 0
+        super().__init__(dut, signals, clock, reset, reset_active_high=reset_active_high)
+        self._init_monitor(expected_height, expected_width, meta, backpressure_pixels=[])
         self._frame = 0
         self._line = 0
         self._column = 0
         self._frame_pixels = 0
-        self._lines_in_frame = 0
-        self._frame_counted = False
-        self._target: int | None = None
-        self._deadline: int | None = None
-        self._event = Event()
-        self._clock_deadline: int | None = None
-        self._clock_event = Event()
-        self._task: Any = None
 
-    def start(self) -> None:
-        """Start watching (idempotent)."""
-        if self._task is None:
-            import cocotb
+    # -- how a line and a frame end -------------------------------------------------------------------
 
-            self._task = cocotb.start_soon(self._run())
+    def _start_frame(self) -> None:
+        """A start-of-frame marker on a transfer after pixels: the frame before it is over."""
+        self._close_frame()
+        self._frame += 1
+        self._line = self._column = 0
+        self._frame_pixels = 0
 
-    def stop(self) -> None:
-        """Stop watching; the capture keeps what was seen."""
-        if self._task is not None and not self._task.done():
-            self._task.cancel()
+    def _end_line(self) -> None:
+        """An end-of-line marker on a transfer: the line is over (after its pixel)."""
+        self._builder.new_line()
+        self._line += 1
+        self._column = 0
+        self._count_line()
 
-    def capture(self) -> Capture:
-        """A :class:`~vkit.capture.Capture` of everything seen so far (partial while running)."""
-        m = self.meta
-        m["clocks_run"] = self.clocks
-        if self._xz_total > MAX_EVENTS:
-            note = f"xz_control: {self._xz_total} events, only the first {MAX_EVENTS} are listed"
-            m["notes"] = [s for s in m["notes"] if not s.startswith("xz_control: ")] + [note]
-        if m.get("first_output_clock") is not None and m.get("first_input_clock") is not None:
-            m["latency_clocks"] = int(m["first_output_clock"]) - int(m["first_input_clock"])
-        return self._builder.build()
-
-    async def wait_clocks(self, n: int) -> None:
-        """Wait ``n`` (>= 1) clocks as counted by the running monitor (cheaper than a separate edge loop)."""
-        self.start()
-        self._clock_deadline = self.clocks + max(1, int(n))
-        self._clock_event.clear()
-        await self._clock_event.wait()
-        self._clock_deadline = None
-
-    async def wait_frames(self, n: int, timeout_clocks: int) -> bool:
-        """Wait until ``n`` output frames are complete or ``timeout_clocks`` clocks pass; never hangs.
-
-        Returns:
-            True when the frames arrived; False on timeout (meta ``timed_out`` and ``timeout_clocks`` set).
-        """
-        self.start()
-        if self.frames_complete >= n:
-            return True
-        self._target = n
-        self._deadline = self.clocks + int(timeout_clocks)
-        self._event.clear()
-        await self._event.wait()
-        self._target = None
-        self._deadline = None
-        if self.frames_complete >= n:
-            return True
-        self.meta["timed_out"] = True
-        self.meta["timeout_clocks"] = int(timeout_clocks)
-        self.meta["notes"].append(
-            f"timed out after {timeout_clocks} clocks with {self.frames_complete} of {n} output frames complete"
-        )
-        return False
-
-    def _xz(self, clock: int, role: str) -> None:
-        self._xz_total += 1
-        if self._xz_total <= MAX_EVENTS:
-            self.meta["xz_control"].append([clock, role])
-
-    def _check_done(self) -> None:
-        if self._target is not None and self.frames_complete >= self._target:
-            self._event.set()
-
-    async def _run(self) -> None:
-        await wait_reset_released(self._clock, self._reset, self.reset_active_high)
+    def _make_step(self) -> Callable[[], None]:
+        """The per-edge sampling function (closures keep the hot path on local variables)."""
         h = self._h
-        edge = RisingEdge(self._clock)
         read_valid = bit_reader(h["out_valid"])
         read_ready = bit_reader(h["out_ready"])
         read_sof = bit_reader(h["out_sof"])
         read_eol = bit_reader(h["out_eol"])
         read_data = word_reader(h["out_data"])
-        b = self._builder
+        add = self._builder.add
         meta = self.meta
         bp_pixels = meta["backpressure_pixels"]
+        event_at = self._event_at
         held = False
-        c = self.clocks
-        while True:
-            await edge
+
+        def step() -> None:
+            nonlocal held
+            c = self.clocks
             v = read_valid()
             if v < 0:
-                self._xz(c, "out_valid")
+                event_at("xz_control", c, "out_valid")
                 v = 0
             if v:
                 r = read_ready()
                 if r < 0:
-                    self._xz(c, "out_ready")
+                    event_at("xz_control", c, "out_ready")
                     r = 0
                 if r:
                     sof = read_sof()
                     eol = read_eol()
                     if sof < 0:
-                        self._xz(c, "out_sof")
+                        event_at("xz_control", c, "out_sof")
                     if eol < 0:
-                        self._xz(c, "out_eol")
+                        event_at("xz_control", c, "out_eol")
                     if sof == 1 and self._frame_pixels:
-                        if not self._frame_counted:
-                            self.frames_complete += 1
-                        b.new_frame()
-                        self._frame += 1
-                        self._line = self._column = 0
-                        self._frame_pixels = self._lines_in_frame = 0
-                        self._frame_counted = False
-                        self._check_done()
+                        self._start_frame()
                     value = read_data()
                     if value == UNKNOWN:
                         meta["xz_data_count"] += 1
@@ -404,23 +315,12 @@ class StreamMonitor:
                         meta["first_output_clock"] = c
                     if held:
                         bp_pixels.append([self._frame, self._line, self._column])
-                    b.add(value, c)
+                    add(value, c)
                     self._frame_pixels += 1
                     self._column += 1
                     held = False
                     if eol == 1:
-                        b.new_line()
-                        self._line += 1
-                        self._column = 0
-                        self._lines_in_frame += 1
-                        if (
-                            self.expected_height
-                            and self._lines_in_frame == self.expected_height
-                            and not self._frame_counted
-                        ):
-                            self.frames_complete += 1
-                            self._frame_counted = True
-                            self._check_done()
+                        self._end_line()
                 else:
                     held = True
             c += 1
@@ -429,3 +329,5 @@ class StreamMonitor:
                 self._event.set()
             if c == self._clock_deadline:
                 self._clock_event.set()
+
+        return step

@@ -8,9 +8,9 @@ from typing import Any
 import numpy as np
 from cocotb.triggers import Event
 
-from vkit.capture import UNKNOWN, Capture, CaptureBuilder
+from vkit.capture import UNKNOWN
 from vkit.errors import ConfigError
-from vkit.tb._common import MAX_EVENTS, bit_reader, resolve_component, ticker, wait_reset_released, word_reader
+from vkit.tb._common import _FrameMonitor, _in_data_bits, _Source, bit_reader, ticker, word_reader
 from vkit.tb.signals import SignalMap, pixel_bits
 from vkit.timing import ClockSchedule, StallPattern, VideoTiming, schedule
 
@@ -79,7 +79,7 @@ def sync_counts(hsync_edges: np.ndarray, vsync_edges: np.ndarray) -> list[int]:
     return [int(b) for b in np.diff(np.concatenate(([0], bounds)))]
 
 
-class VideoSource:
+class VideoSource(_Source):
     """Drives frames into a video-family DUT with a :class:`~vkit.timing.VideoTiming` and optional stalls.
 
     Every per-clock value (syncs, data-enable, valid, data word) comes from a precomputed numpy
@@ -108,6 +108,8 @@ class VideoSource:
     entry ``i`` is sampled by the design on clock ``i``.
     """
 
+    family = "video"
+
     def __init__(
         self,
         dut: Any,
@@ -128,26 +130,17 @@ class VideoSource:
             raise ConfigError("VideoSource: timing must be a vkit.timing.VideoTiming; build one with preset() or tiny()")
         if blanking not in ("random", "constant"):
             raise ConfigError(f"blanking = {blanking!r}; use 'random' or 'constant'")
-        if pixel_format is not None:
-            pixel_bits(pixel_format)
-        bits = {"in_data": pixel_bits(pixel_format)} if pixel_format else None
-        self.signals, self._h, self._clock, self._reset = resolve_component(
-            dut, signals, "video", clock, reset, bits
-        )
+        bits = _in_data_bits(pixel_format)
+        super().__init__(dut, signals, clock, reset, data_bits=bits, reset_active_high=reset_active_high)
+        self._init_source(pixel_format, seed, stats)
         if stalls is not None and stalls.probability > 0 and "in_valid" not in self._h:
             raise ConfigError(
                 "stalls need a pixel-valid input but role 'in_valid' is not mapped; map in_valid or drop the stalls"
             )
         self.timing = timing
         self.stalls = stalls
-        self.pixel_format = pixel_format
         self.blanking = blanking
         self.blanking_value = int(blanking_value)
-        self.seed = int(seed)
-        self.reset_active_high = reset_active_high
-        self.stats: dict[str, Any] = stats if stats is not None else {}
-        self.clocks = 0
-        """Rising edges seen by the last :meth:`send` so far."""
         self.schedule: ClockSchedule | None = None
         self._idle()
 
@@ -169,12 +162,7 @@ class VideoSource:
         """
         arr, fmt = frames_array(frames, self.pixel_format)
         if self.pixel_format is None:
-            width = len(self._h["in_data"])
-            if width < pixel_bits(fmt):
-                raise ConfigError(
-                    f"role 'in_data' -> port {self.signals.roles['in_data']!r} is {width} bits wide but the pixel "
-                    f"format {fmt} needs {pixel_bits(fmt)} bits; widen the port or send gray8 frames"
-                )
+            self._check_data_width(fmt)
         t = self.timing
         if arr.shape[1] != t.v_active or arr.shape[2] != t.h_active:
             raise ConfigError(
@@ -213,7 +201,7 @@ class VideoSource:
         self.stats["input_vsync_count"] = int(vs_edges.size)
         self.stats["input_hsync_per_frame"] = sync_counts(hs_edges, vs_edges)
 
-        await wait_reset_released(self._clock, self._reset, self.reset_active_high)
+        await self._reset_released()
         first_valid = int(np.argmax(sched.valid)) if sched.valid.any() else None
         self.stats["first_input_clock"] = first_valid
 
@@ -272,7 +260,7 @@ class VideoSource:
             tick.remove(step)
 
 
-class VideoMonitor:
+class VideoMonitor(_FrameMonitor):
     """Watches a video-family DUT's output every clock and rebuilds the frames it emits.
 
     A line ends when an ``out_de`` run ends; a frame starts at each leading edge of ``out_vsync`` (when
@@ -297,6 +285,9 @@ class VideoMonitor:
     Clock numbering: clock 0 is the first rising edge after :meth:`start`; values are sampled on the edge.
     """
 
+    family = "video"
+    _EVENT_KEYS = ("xz_control", "de_in_blanking")
+
     def __init__(
         self,
         dut: Any,
@@ -311,155 +302,36 @@ class VideoMonitor:
         reset_active_high: bool = True,
         meta: dict[str, Any] | None = None,
     ) -> None:
-        self.signals, self._h, self._clock, self._reset = resolve_component(dut, signals, "video", clock, reset)
+        super().__init__(dut, signals, clock, reset, reset_active_high=reset_active_high)
         if "out_vsync" not in self._h and not expected_height:
             raise ConfigError(
                 "video monitor: role 'out_vsync' is not mapped and expected_height is not given; "
                 "map out_vsync or give expected_height so frames can be split"
             )
-        self.expected_height = expected_height
-        self.expected_width = expected_width
+        self._init_monitor(
+            expected_height, expected_width, meta, de_in_blanking=[], output_vsync_count=0, output_hsync_per_frame=[]
+        )
+        self._split_by_height = "out_vsync" not in self._h
         self.vsync_active_high = vsync_active_high
         self.hsync_active_high = hsync_active_high
-        self.reset_active_high = reset_active_high
-        self._builder = CaptureBuilder(meta)
-        self.meta: dict[str, Any] = self._builder.meta
-        self.meta.setdefault("family", "video")
-        self.meta.setdefault("notes", [])
-        self.meta.update(
-            xz_data_count=0,
-            xz_control=[],
-            de_in_blanking=[],
-            output_vsync_count=0,
-            output_hsync_per_frame=[],
-            first_output_clock=None,
-            clocks_run=0,
-            timed_out=False,
-        )
-        self.clocks = 0
-        """Rising edges watched so far."""
-        self.frames_complete = 0
-        """Output frames finished: ``expected_height`` lines seen, or closed by the next vsync."""
-        self._event_counts = {"xz_control": 0, "de_in_blanking": 0}
-        self._lines_in_frame = 0
         self._line_pixels = 0
-        self._frame_counted = False
         self._hs_count = 0
-        self._target: int | None = None
-        self._deadline: int | None = None
-        self._event = Event()
-        self._clock_deadline: int | None = None
-        self._clock_event = Event()
-        self._task: Any = None
-        self._step: Callable[[], None] | None = None
 
-    # -- public ---------------------------------------------------------------------------------------
-
-    def start(self) -> None:
-        """Start watching (idempotent)."""
-        if self._task is None:
-            import cocotb
-
-            self._task = cocotb.start_soon(self._run())
-
-    def stop(self) -> None:
-        """Stop watching; the capture keeps what was seen."""
-        if self._task is not None and not self._task.done():
-            self._task.cancel()
-        if self._step is not None:
-            ticker(self._clock).remove(self._step)
-
-    def capture(self) -> Capture:
-        """A :class:`~vkit.capture.Capture` of everything seen so far (partial while running)."""
-        self._finish_meta()
-        return self._builder.build()
-
-    async def wait_clocks(self, n: int) -> None:
-        """Wait ``n`` (>= 1) clocks as counted by the running monitor (cheaper than a separate edge loop)."""
-        self.start()
-        self._clock_deadline = self.clocks + max(1, int(n))
-        self._clock_event.clear()
-        await self._clock_event.wait()
-        self._clock_deadline = None
-
-    async def wait_frames(self, n: int, timeout_clocks: int) -> bool:
-        """Wait until ``n`` output frames are complete or ``timeout_clocks`` clocks pass; never hangs.
-
-        Returns:
-            True when the frames arrived; False on timeout (then meta ``timed_out`` is True and
-            ``timeout_clocks`` is recorded).
-        """
-        self.start()
-        if self.frames_complete >= n:
-            return True
-        self._target = n
-        self._deadline = self.clocks + int(timeout_clocks)
-        self._event.clear()
-        await self._event.wait()
-        self._target = None
-        self._deadline = None
-        if self.frames_complete >= n:
-            return True
-        self.meta["timed_out"] = True
-        self.meta["timeout_clocks"] = int(timeout_clocks)
-        self.meta["notes"].append(
-            f"timed out after {timeout_clocks} clocks with {self.frames_complete} of {n} output frames complete"
-        )
-        return False
-
-    # -- internals ------------------------------------------------------------------------------------
-
-    def _finish_meta(self) -> None:
-        m = self.meta
-        m["clocks_run"] = self.clocks
-        for key, total in self._event_counts.items():
-            if total > MAX_EVENTS:
-                note = f"{key}: {total} events, only the first {MAX_EVENTS} are listed"
-                if note not in m["notes"]:
-                    m["notes"] = [s for s in m["notes"] if not s.startswith(f"{key}: ")] + [note]
-        if m.get("first_output_clock") is not None and m.get("first_input_clock") is not None:
-            m["latency_clocks"] = int(m["first_output_clock"]) - int(m["first_input_clock"])
-
-    def _event_at(self, key: str, clock: int, role: str | None = None) -> None:
-        self._event_counts[key] += 1
-        if self._event_counts[key] <= MAX_EVENTS:
-            self.meta[key].append([clock, role] if role is not None else clock)
-
-    def _check_done(self) -> None:
-        if self._target is not None and self.frames_complete >= self._target:
-            self._event.set()
+    # -- how a line and a frame end -------------------------------------------------------------------
 
     def _end_line(self) -> None:
         self._builder.new_line()
         if self._line_pixels:
-            self._lines_in_frame += 1
             self._line_pixels = 0
-            if self.expected_height and self._lines_in_frame == self.expected_height and not self._frame_counted:
-                self.frames_complete += 1
-                self._frame_counted = True
-                if "out_vsync" not in self._h:
-                    self._builder.new_frame()
-                    self._lines_in_frame = 0
-                    self._frame_counted = False
-                self._check_done()
+            self._count_line()
 
     def _on_vsync(self) -> None:
         self.meta["output_vsync_count"] += 1
         self.meta["output_hsync_per_frame"].append(self._hs_count)
         self._hs_count = 0
         if self._lines_in_frame or self._line_pixels:
-            if not self._frame_counted:
-                self.frames_complete += 1
-            self._builder.new_frame()
-            self._lines_in_frame = 0
             self._line_pixels = 0
-            self._frame_counted = False
-            self._check_done()
-
-    async def _run(self) -> None:
-        await wait_reset_released(self._clock, self._reset, self.reset_active_high)
-        self._step = self._make_step()
-        ticker(self._clock).add(self._step)
+            self._close_frame()
 
     def _make_step(self) -> Callable[[], None]:
         """The per-edge sampling function (closures keep the hot path on local variables)."""

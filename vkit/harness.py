@@ -729,6 +729,10 @@ def _verilog_stream(spec: HarnessSpec) -> str:
     reg              rdy_mem [0:RDEPTH-1];
     reg [8*NB-1:0] cur;
     reg [31:0] ri, tail, npix;
+    // rdy_mem[ri] kept in a register: a memory read inside always @* makes Icarus re-evaluate the
+    // block for the whole 64K-word pattern (a 32x24 run took seconds instead of a fraction).
+    reg        rdy_cur;
+    wire [31:0] ri_next = (ri + 32'd1 >= n_ready) ? 32'd0 : ri + 32'd1;
     reg [{GAP_BITS - 1}:0] gap_left;
     reg        started, have, any_xfer;
     wire sending = started && !done && have;
@@ -738,7 +742,7 @@ def _verilog_stream(spec: HarnessSpec) -> str:
         d_in_sof = offer & cur[{iw + 1}];
         d_in_eol = offer & cur[{iw}];
         d_in_data = offer ? cur[{iw - 1}:0] : (sending ? cur[{i1}:{i0}] : {{IW{{1'b0}}}});
-        d_out_ready = started && !done && rdy_mem[ri];
+        d_out_ready = started && !done && rdy_cur;
     end
 {_verilog_finish_block(dw)}
     // ---- capture
@@ -751,13 +755,14 @@ def _verilog_stream(spec: HarnessSpec) -> str:
         pix_stb <= 1'b0;
         frame_pulse <= 1'b0;
         if (rst) begin
-            ri <= 32'd0; clocks <= 32'd0; tail <= 32'd0; npix <= 32'd0; started <= 1'b1;
+            ri <= 32'd0; rdy_cur <= rdy_mem[0]; clocks <= 32'd0; tail <= 32'd0; npix <= 32'd0; started <= 1'b1;
             waited <= 1'b0; any_xfer <= 1'b0;
             cur <= first_word; have <= first_ok;
             gap_left <= first_ok ? first_word[{g1}:{g0}] : {GAP_BITS}'d0;
         end else if (!done) begin
             clocks <= clocks + 32'd1;
-            ri <= (ri + 32'd1 >= n_ready) ? 32'd0 : ri + 32'd1;
+            ri <= ri_next;
+            rdy_cur <= rdy_mem[ri_next];
             if (offer && (d_in_ready === 1'b1)) begin
                 if (cur[{iw + 1}]) frame_pulse <= 1'b1;
                 if (!any_xfer) {_ev("I", dw)}

@@ -169,15 +169,16 @@ def test_shards_merge_into_one_report(tmp_path, build_cache_dir, capsys):
 
 
 @pytest.mark.sim
-def test_fast_path_gives_the_clock_path_verdicts(tmp_path, build_cache_dir, capsys):
-    # The generated HDL harness (path "fast") must judge every case as the per-clock cocotb path does.
+def test_fast_and_native_paths_give_the_clock_path_verdicts(tmp_path, build_cache_dir, capsys):
+    # The generated HDL harness, under cocotb ("fast") or as a plain executable ("native"), must judge
+    # every case as the per-clock cocotb path does.
     simulator_available("icarus")
     body = (f'[[import]]\nmanifest = "{MANIFEST}"\nuse = ["edge_core", "stream_core"]\n'
             f'[[import]]\nmanifest = "{MANIFEST}"\nuse = ["blur_core"]\nbugs = "only"\n'
             '[stimulus]\npatterns = ["conveyor"]\ntimings = ["tiny32x24"]\nstalls = [0.1]\nbackpressure = [0.2]\n')
     cfg = _config(tmp_path, body, build_cache_dir)
     verdicts = {}
-    for path in ("clock", "fast"):
+    for path in ("clock", "fast", "native"):
         code = main(["run", str(cfg), "-j", "2", "--path", path, "--no-waves", "--out", str(tmp_path / path),
                      "--only", "edge_core/*", "--only", "stream_core/*", "--only", "*blur_truncate*"])
         out = capsys.readouterr().out
@@ -187,5 +188,5 @@ def test_fast_path_gives_the_clock_path_verdicts(tmp_path, build_cache_dir, caps
         for c in report["cases"]:
             meta = json.loads((tmp_path / path / c["files"]["verdict"]).read_text())["meta"]
             assert meta["path"] == path
-    assert verdicts["fast"] == verdicts["clock"]
+    assert verdicts["fast"] == verdicts["clock"] == verdicts["native"]
     assert {s for s, _ in verdicts["fast"].values()} == {"pass", "fail"}

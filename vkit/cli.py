@@ -248,17 +248,18 @@ def build_parser() -> argparse.ArgumentParser:
                     help="dump waves (Icarus, FST) around the first mismatch of every case")
     wv.add_argument("--no-waves", dest="waves", action="store_const", const="off",
                     help="no wave dumps, not even for failing cases (default: [run] waves, 'failing')")
-    r.add_argument("--path", choices=("clock", "fast"), default=None,
+    r.add_argument("--path", choices=("clock", "fast", "native"), default=None,
                    help="clock: cocotb drives every clock; fast: a generated HDL harness plays and captures "
-                        "whole runs (default: [run] path, 'clock')")
+                        "whole runs; native: that harness as a plain executable, no cocotb (default: [run] path, "
+                        "'clock')")
     r.set_defaults(func=_cmd_run)
 
     d = sub.add_parser("demo", help="run the bundled sample regression (sim/demo.toml)")
     d.add_argument("--out", default=None, help="report folder (default: ./vkit-demo)")
     d.add_argument("--sim", default=None, help="simulator (default: the demo's, verilator)")
     d.add_argument("-j", "--jobs", type=int, default=None, help="parallel worker processes")
-    d.add_argument("--path", choices=("clock", "fast"), default=None,
-                   help="clock (the demo's default) or fast (generated HDL harness)")
+    d.add_argument("--path", choices=("clock", "fast", "native"), default=None,
+                   help="clock (the demo's default), fast (generated HDL harness) or native (no cocotb)")
     d.set_defaults(func=_cmd_demo)
 
     ex = sub.add_parser("export", help="write one case as vectors and a self-checking plain-HDL testbench")

@@ -61,7 +61,7 @@ _RUN_KEYS = ("out_dir", "simulators", "jobs", "seed", "timeout_s", "max_listed",
              "waves", "pictures", "path")
 _WAVE_MODES = ("failing", "all", "off")
 _PICTURE_MODES = ("failing", "all")
-_PATHS = ("clock", "fast")
+_PATHS = ("clock", "fast", "native")
 _STIMULUS_KEYS = (
     "images", "patterns", "size", "frames", "timings", "stalls", "backpressure", "gaps", "blanking",
     "blanking_value", "seeds", "convert",
@@ -161,8 +161,9 @@ class RunSettings:
         waves: ``"failing"`` (rerun failing cases with a wave dump around the first mismatch),
             ``"all"`` or ``"off"``.
         pictures: ``"failing"`` (PNGs for failing frames only) or ``"all"`` (every frame, passing too).
-        path: ``"clock"`` (cocotb drives every clock) or ``"fast"`` (a generated HDL harness plays and
-            captures whole runs; same verdicts, far fewer Python wake-ups).
+        path: ``"clock"`` (cocotb drives every clock), ``"fast"`` (a generated HDL harness plays and
+            captures whole runs; same verdicts, far fewer Python wake-ups) or ``"native"`` (that harness
+            as a plain executable without cocotb; Icarus and Verilator).
     """
 
     out_dir: Path

@@ -60,9 +60,10 @@ __all__ = [
 _TIMESCALE = ("1ns", "1ps")
 _TEST_MODULE = "vkit.tb.entry"
 _WAVE_MODULE = "vkit_wave_window"
-PATHS: tuple[str, ...] = ("clock", "fast")
+PATHS: tuple[str, ...] = ("clock", "fast", "native")
 """How a case drives the design: ``clock`` = cocotb source and monitor every clock (interactive
-debugging, any user test), ``fast`` = the generated HDL harness plays and captures whole runs."""
+debugging, any user test); ``fast`` = the generated HDL harness plays and captures whole runs under
+cocotb; ``native`` = the same harness as a plain executable, no cocotb (Icarus, Verilator)."""
 WAVE_MODES: tuple[str, ...] = ("failing", "all", "off")
 """``[run] waves`` values: rerun failing cases with a wave dump (default), every case, or none."""
 _WAVE_LINES = 2
@@ -269,19 +270,21 @@ def build_design(case: Case, cache: BuildCache) -> BuildOutcome:
     return cache.ensure(request, builder)
 
 
-def build_fast_design(case: Case, cache: BuildCache) -> BuildOutcome:
+def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> BuildOutcome:
     """Build (or reuse) the fast-path harness (:mod:`vkit.harness`) around ``case``'s design.
 
     The harness depends on the design, its parameters and the family only, so one build serves every
-    image, timing, stall pattern and seed.
+    image, timing, stall pattern and seed. ``native=True`` builds it as a plain executable (no cocotb:
+    ``iverilog``/``vvp`` or ``verilator --binary``), for ``path = "native"``.
 
     Raises:
         ToolError: the simulator is missing or rejected the sources (first error line and log path).
-        ConfigError: the harness cannot be made for this design (e.g. a port width cannot be read).
+        ConfigError: the harness cannot be made for this design (e.g. a port width cannot be read), or
+            ``native`` was asked of a simulator or language that has no native build.
     """
     from cocotb_tools.runner import get_runner
 
-    from vkit.harness import fast_build_plan
+    from vkit.harness import fast_build_plan, native_build, native_build_plan
 
     info = require(case.simulator)
     activate(info)
@@ -290,13 +293,20 @@ def build_fast_design(case: Case, cache: BuildCache) -> BuildOutcome:
         d.top, d.sources, d.language, d.build_parameters(case.width, case.height), d.defines, d.family,
         d.ports, reset_active_high=d.reset_active_high, pixel_format=d.pixel_format,
     )  # harness files land in a folder named after their content, so parallel workers never clash
+    if native:
+        commands = native_build_plan(plan, case.simulator, cache.cache_dir).commands
+        build_args = ["native", *[a for cmd in commands for a in cmd if a.startswith("-")]]
+    else:
+        build_args = [*plan.build_kwargs(case.simulator)["build_args"], *d.build_args]
     request = BuildRequest.make(
         case.simulator, info.version, plan.toplevel, plan.sources, d.language, defines=plan.defines,
-        build_args=[*plan.build_kwargs(case.simulator)["build_args"], *d.build_args],
-        data_files=list(d.file_parameters.values()), include_dirs=d.include_dirs,
+        build_args=build_args, data_files=list(d.file_parameters.values()), include_dirs=d.include_dirs,
     )
 
     def builder(bdir: Path) -> None:
+        if native:
+            native_build(plan, case.simulator, bdir, always=True)
+            return
         log = bdir / "build.log"
         kwargs = plan.build_kwargs(case.simulator)
         kwargs["build_args"] = [*kwargs["build_args"], *d.build_args]
@@ -583,6 +593,11 @@ def _simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, ti
     capture_file = Path(simcase.capture_file)
     capture_file.unlink(missing_ok=True)
     case_json = simcase.to_json(sim_dir / "case.json")
+    if path == "native" and wave is None:
+        from vkit.harness import run_native
+
+        run_native(simcase, case.simulator, build_dir, timeout_s=timeout_s)
+        return capture_file
     runner = get_runner(case.simulator)
     kwargs: dict[str, Any] = dict(
         test_module=_TEST_MODULE, hdl_toplevel=d.top, hdl_toplevel_lang=d.language,
@@ -717,8 +732,10 @@ def run_one_case(case: Case, out_dir: str | Path, cache_dir: str | Path | None =
         tool_error = True
         if path not in PATHS:
             raise ConfigError(f"path = {path!r}; use one of {', '.join(PATHS)}")
-        builder = build_fast_design if path == "fast" else build_design
-        outcome = builder(case, BuildCache(cache_dir))
+        if path == "clock":
+            outcome = build_design(case, BuildCache(cache_dir))
+        else:
+            outcome = build_fast_design(case, BuildCache(cache_dir), native=path == "native")
         capture_file = _simulate(case, outcome.build_dir, sim_dir, frames, timeout_s, path=path)
         tool_error = False
         if capture_file.exists():

@@ -399,6 +399,22 @@ def test_sample_cores_fast_path_equals_per_clock_path(design: str, sim: str, tmp
     for key in ("latency_clocks", "output_vsync_count", "output_hsync_per_frame", "first_input_clock",
                 "xz_data_count", "de_in_blanking"):
         assert fast.meta[key] == slow.meta[key], key
+    if design == "edge_core":
+        # The native run (same vkit_fast_top as a plain executable, no cocotb) gives the identical Capture.
+        from vkit.harness import native_build, run_native
+
+        work = tmp_path / "fast"
+        case = SimCase("video", dict(d["ports"]), str(work / "frames.npy"), str(tmp_path / "native" / "cap.npz"), 32,
+                       24, pixel_format=d["pixel_format"], stalls=stalls, seed=3)
+        plan = fast_build_plan(d["top"], sources, "verilog", params, None, "video", case.signals,
+                               out_dir=work / "harness", pixel_format=case.pixel_format)
+        native_build(plan, sim, tmp_path / "native_build")
+        native = run_native(case, sim, tmp_path / "native_build", timeout_s=120)
+        assert Capture.load(case.capture_file).meta["path"] == "native" and native.meta["path"] == "native"
+        for cap in (fast, native):
+            cap.meta.pop("path")
+            cap.meta.pop("simulator", None)
+        _assert_same_capture(fast, native)
     # Both equal the bit-exact model on every checked pixel (the model is tested against SciPy/OpenCV).
     frames = np.load(tmp_path / "fast" / "frames.npy")
     spec = preset(d["spec"])
@@ -471,39 +487,6 @@ def test_fast_and_per_clock_paths_give_the_same_verdict(design: str, bug: str | 
                                                                             slow.extra_pixels)
     if bug is None:
         assert fast.passed, fast.to_dict()
-
-
-@pytest.mark.sim
-@pytest.mark.parametrize("sim", ["icarus", "verilator"])
-def test_native_run_gives_the_same_capture_as_the_cocotb_fast_path(sim: str, tmp_path: Path) -> None:
-    _require(sim)
-    from vkit.harness import native_build, run_native
-
-    d = _sample_design("edge_core")
-    sources = [RTL / f for f in d["sources"]]
-    params = _design_parameters(d, 24)
-    frames = np.random.default_rng(31).integers(0, 256, (2, 24, 32, 3), dtype=np.uint8)
-    caps = []
-    for path in ("fast", "native"):
-        work = tmp_path / path
-        work.mkdir()
-        np.save(work / "frames.npy", frames)
-        case = SimCase("video", dict(d["ports"]), str(work / "frames.npy"), str(work / "out" / "cap.npz"), 32, 24,
-                       pixel_format=d["pixel_format"], stalls={"probability": 0.15, "max_length": 3, "seed": 4}, seed=3)
-        if path == "fast":
-            caps.append(run_fast(sim, case, d["top"], sources, work, parameters=params))
-        else:
-            plan = fast_build_plan(d["top"], sources, "verilog", params, None, "video", case.signals,
-                                   out_dir=work / "harness", pixel_format=case.pixel_format)
-            native_build(plan, sim, work / "build")
-            caps.append(run_native(case, sim, work / "build", timeout_s=120))
-            assert Capture.load(case.capture_file).meta["path"] == "native"
-    fast, native = caps
-    for cap in caps:
-        cap.meta.pop("path")
-        cap.meta.pop("simulator", None)
-    _assert_same_capture(fast, native)
-    assert len(native) == 2 * 24 * 32 and native.meta["timed_out"] is False
 
 
 def test_native_build_plan_commands_and_refusals(tmp_path: Path) -> None:

@@ -730,12 +730,7 @@ def run_one_case(case: Case, out_dir: str | Path, cache_dir: str | Path | None =
         frames = make_frames(case)
         expected = [run_model(spec, f) for f in frames]
         tool_error = True
-        if path not in PATHS:
-            raise ConfigError(f"path = {path!r}; use one of {', '.join(PATHS)}")
-        if path == "clock":
-            outcome = build_design(case, BuildCache(cache_dir))
-        else:
-            outcome = build_fast_design(case, BuildCache(cache_dir), native=path == "native")
+        outcome = _build(case, BuildCache(cache_dir), path)
         capture_file = _simulate(case, outcome.build_dir, sim_dir, frames, timeout_s, path=path)
         tool_error = False
         if capture_file.exists():
@@ -790,9 +785,41 @@ def run_one_case(case: Case, out_dir: str | Path, cache_dir: str | Path | None =
 # ---------------------------------------------------------------------------------------------- workers
 
 
-def _build_worker(case: Case, cache_dir: str | None) -> tuple[str, dict[str, Any]]:
+def _build(case: Case, cache: BuildCache, path: str) -> BuildOutcome:
+    """The build a case of ``path`` runs on (the design itself, or the harness around it)."""
+    if path not in PATHS:
+        raise ConfigError(f"path = {path!r}; use one of {', '.join(PATHS)}")
+    if path == "clock":
+        return build_design(case, cache)
+    return build_fast_design(case, cache, native=path == "native")
+
+
+def _start_method(jobs: int) -> str:
+    """``fork`` when it is safe (POSIX, this process runs one thread), else ``spawn``.
+
+    Forked workers start with vkit, NumPy, Pillow and cocotb's runner already imported; spawned ones
+    import them again each, a fixed cost a short matrix feels in its -j scaling. Forking a process that
+    runs other threads (e.g. inside some test harnesses) can deadlock, so that case spawns.
+    """
+    import threading
+
+    if jobs <= 1 or "fork" not in multiprocessing.get_all_start_methods() or threading.active_count() > 1:
+        return "spawn"
+    import PIL.Image  # noqa: F401  (warm the modules every case needs, once, before forking)
+    import cocotb_tools.runner  # noqa: F401
+
+    import vkit.align  # noqa: F401
+    import vkit.pipeline  # noqa: F401
+    import vkit.quality  # noqa: F401
+    import vkit.report  # noqa: F401
+    import vkit.scoreboard  # noqa: F401
+
+    return "fork"
+
+
+def _build_worker(case: Case, cache_dir: str | None, path: str = "clock") -> tuple[str, dict[str, Any]]:
     try:
-        outcome = build_design(case, BuildCache(cache_dir))
+        outcome = _build(case, BuildCache(cache_dir), path)
         return "ok", {"build_dir": str(outcome.build_dir), "reused": outcome.reused,
                       "seconds": round(outcome.seconds, 3), "waited_s": round(outcome.waited_s, 3)}
     except VkitError as exc:
@@ -857,13 +884,13 @@ def run_cases(cases: list[Case], out_dir: str | Path, *, jobs: int = 1, cache_di
     builds: list[dict[str, Any]] = []
     build_errors: dict[tuple[str, str], str] = {}
     jobs = max(1, int(jobs))
-    ctx = multiprocessing.get_context("spawn")
+    ctx = multiprocessing.get_context(_start_method(jobs))
     pool = concurrent.futures.ProcessPoolExecutor(max_workers=jobs, mp_context=ctx) if jobs > 1 else None
     try:
         if pool is None:
-            done_builds = [(k, _build_worker(c, cache)) for k, c in reps.items()]
+            done_builds = [(k, _build_worker(c, cache, path)) for k, c in reps.items()]
         else:
-            futs = {k: pool.submit(_build_worker, c, cache) for k, c in reps.items()}
+            futs = {k: pool.submit(_build_worker, c, cache, path) for k, c in reps.items()}
             done_builds = [(k, f.result()) for k, f in futs.items()]
         for (sim, key), (state, info) in done_builds:
             rep = reps[(sim, key)]

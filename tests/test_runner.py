@@ -190,3 +190,22 @@ def test_fast_and_native_paths_give_the_clock_path_verdicts(tmp_path, build_cach
             assert meta["path"] == path
     assert verdicts["fast"] == verdicts["clock"] == verdicts["native"]
     assert {s for s, _ in verdicts["fast"].values()} == {"pass", "fail"}
+
+
+@pytest.mark.sim
+def test_failing_verilator_case_gets_a_wave_window(tmp_path, build_cache_dir, capsys):
+    # A failing case on the default simulator is rerun on Icarus with a dump cut to a window around
+    # its first mismatch; the report names the file.
+    simulator_available("verilator")
+    simulator_available("icarus")
+    body = (f'[[import]]\nmanifest = "{MANIFEST}"\nuse = ["blur_core"]\nbugs = "only"\n'
+            '[stimulus]\npatterns = ["conveyor"]\ntimings = ["tiny32x24"]\n')
+    cfg = _config(tmp_path, body, build_cache_dir)
+    assert main(["run", str(cfg), "--sim", "verilator", "--only", "*blur_truncate*"]) == 1
+    out = capsys.readouterr().out
+    assert "waves:" in out
+    (case,) = json.loads((tmp_path / "out" / "report.json").read_text())["cases"]
+    wave = tmp_path / "out" / case["files"]["waves"]
+    assert wave.is_file() and wave.stat().st_size > 100
+    meta = json.loads((tmp_path / "out" / case["files"]["verdict"]).read_text())["meta"]
+    assert meta["waves"]["simulator"] == "icarus" and meta["waves"]["first_clock"] < meta["waves"]["last_clock"]

@@ -17,6 +17,7 @@ Output folder layout (every path stays inside ``out_dir``)::
 from __future__ import annotations
 
 import concurrent.futures
+import dataclasses
 import difflib
 import multiprocessing
 import os
@@ -35,7 +36,7 @@ import numpy as np
 from vkit.buildcache import BuildCache, BuildOutcome, BuildRequest, build_key
 from vkit.config import Case, Config, expand_matrix, select_cases, shard_cases
 from vkit.errors import EXIT_CONFIG, EXIT_DUT, EXIT_PASS, ConfigError, ToolError, VkitError
-from vkit.simulators import activate, require
+from vkit.simulators import activate, find, require
 
 __all__ = [
     "CaseResult",
@@ -660,6 +661,10 @@ def _wave_rerun(case: Case, out: Path, cache_dir: str | Path | None, frames: np.
     """Rerun the case on the wave build with a dump limited to the window; returns report facts."""
     from vkit.report import safe_name
 
+    if case.simulator != "icarus" and case.design.language == "verilog" and find("icarus").available:
+        # Windowed dumps are made on Icarus: the same stimulus replays clock for clock there (the
+        # simulators agree on every capture, a tested fact), so the window found here still holds.
+        case = dataclasses.replace(case, simulator="icarus")
     anchor, first, last = wave_window(case, capture, verdict)
     start_ps = (capture.meta or {}).get("start_time_ps")
     if start_ps is None:
@@ -677,7 +682,8 @@ def _wave_rerun(case: Case, out: Path, cache_dir: str | Path | None, frames: np.
     if not wave_file.is_file():
         raise ToolError(f"waves: {case.simulator} wrote no {wave_file.name}; see {wave_dir / 'sim.log'}")
     return {"file": os.path.relpath(wave_file, out), "anchor_clock": anchor, "first_clock": first,
-            "last_clock": last, "from_ps": from_ps, "to_ps": to_ps, "format": "fst"}
+            "last_clock": last, "from_ps": from_ps, "to_ps": to_ps, "format": "fst",
+            "simulator": case.simulator}
 
 
 def run_one_case(case: Case, out_dir: str | Path, cache_dir: str | Path | None = None, *,

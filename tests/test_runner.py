@@ -115,6 +115,7 @@ def test_run_tiny_regression_passes(tmp_path, build_cache_dir, capsys):
     assert suite.get("tests") == "2" and suite.get("failures") == "0"
     for case in report["cases"]:
         assert case["coverage"]["stages"], "range coverage is part of every case"
+        assert isinstance(case["coverage"]["warnings"], list)
 
 
 @pytest.mark.sim

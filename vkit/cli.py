@@ -86,7 +86,7 @@ def _print_run_end(result) -> None:  # noqa: ANN001 - vkit.runner.RunResult
         print(f"expected-to-fail cases: {caught}/{len(bugs)} failed, {named} diagnosed as the expected kind")
     warned = sum(1 for c in result.cases if c.warnings)
     if warned:
-        print(f"coverage warnings on {warned} case(s): see 'coverage' in report.json")
+        print(f"coverage warnings on {warned} case(s): see 'coverage.warnings' in report.json")
     print(f"wall time {result.wall_s:.1f} s")
     print(f"report:  {result.report_files['json']}")
     print(f"junit:   {result.report_files['junit']}")

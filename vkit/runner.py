@@ -771,6 +771,7 @@ def run_one_case(case: Case, out_dir: str | Path, cache_dir: str | Path | None =
         files.update(_kept_files(out, sim_dir))
         if wave_info is not None:
             files["waves"] = wave_info["file"]
+        coverage["warnings"] = list(warnings)  # report.json carries the words, not just the figures
         entry = case_entry(case.id, verdict, simulator=case.simulator, seeds=case.seeds(), files=files,
                            coverage=coverage, meta=meta)
         diag = verdict.diagnosis

@@ -210,3 +210,20 @@ def test_failing_verilator_case_gets_a_wave_window(tmp_path, build_cache_dir, ca
     assert wave.is_file() and wave.stat().st_size > 100
     meta = json.loads((tmp_path / "out" / case["files"]["verdict"]).read_text())["meta"]
     assert meta["waves"]["simulator"] == "icarus" and meta["waves"]["first_clock"] < meta["waves"]["last_clock"]
+
+
+@pytest.mark.sim
+def test_ghdl_case_gets_a_wave_window_cut_from_its_vcd(tmp_path, build_cache_dir, capsys):
+    # GHDL cannot switch its dump on and off at run time; the runner dumps the run and keeps the window.
+    simulator_available("ghdl")
+    body = (f'[[import]]\nmanifest = "{MANIFEST}"\nuse = ["edge_core_vhdl"]\n'
+            '[stimulus]\npatterns = ["box"]\ntimings = ["tiny32x24"]\n')
+    cfg = _config(tmp_path, body, build_cache_dir)
+    assert main(["run", str(cfg), "--sim", "ghdl", "--waves"]) == 0, capsys.readouterr().out
+    (case,) = json.loads((tmp_path / "out" / "report.json").read_text())["cases"]
+    meta = json.loads((tmp_path / "out" / case["files"]["verdict"]).read_text())["meta"]["waves"]
+    text = (tmp_path / "out" / case["files"]["waves"]).read_text()
+    times = [int(line[1:]) for line in text.splitlines() if line.startswith("#")]
+    assert meta["format"] == "vcd" and "$enddefinitions" in text
+    assert min(times) >= meta["from_ps"] and max(times) <= meta["to_ps"]  # the dump's ticks are 1 ps here
+    assert not list((tmp_path / "out").rglob("whole_run.vcd"))  # the full dump is not kept

@@ -616,7 +616,10 @@ def _simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, ti
         kwargs["parameters"] = d.build_parameters(case.width, case.height)
         kwargs["test_args"] = ["--std=08", f"--workdir={build_dir}"]
         kwargs["timescale"] = _TIMESCALE
-    if wave is not None:
+    if wave is not None and case.simulator == "ghdl":
+        # GHDL dumps the whole run as VCD; _wave_rerun cuts it to the window afterwards
+        kwargs["plusargs"] = [f"--vcd={wave[0]}"]  # a run option: cocotb puts plusargs after the unit
+    elif wave is not None:
         # waves=True only makes vvp write FST; what is dumped, and when, is up to the window module
         kwargs["waves"] = True
         kwargs["plusargs"] = [f"+vkit_wave_file={wave[0]}", f"+vkit_wave_from_ps={wave[1]}",
@@ -675,14 +678,27 @@ def _wave_rerun(case: Case, out: Path, cache_dir: str | Path | None, frames: np.
     from_ps = int(start_ps) + first * period_ps
     to_ps = int(start_ps) + (last + 2) * period_ps
     wave_dir = _inside(out, out / safe_name(case.id) / "waves")
-    wave_file = wave_dir / "waves.fst"
-    wave_file.unlink(missing_ok=True)
-    outcome = build_wave_design(case, BuildCache(cache_dir))
-    _simulate(case, outcome.build_dir, wave_dir, frames, timeout_s, wave=(wave_file, from_ps, to_ps))
+    if case.simulator == "ghdl":
+        # GHDL cannot start and stop a dump at run time: dump the run, keep the window, drop the rest
+        from vkit.vcd import cut_vcd
+
+        full = wave_dir / "whole_run.vcd"
+        wave_file = wave_dir / "waves.vcd"
+        outcome = build_design(case, BuildCache(cache_dir))
+        _simulate(case, outcome.build_dir, wave_dir, frames, timeout_s, wave=(full, from_ps, to_ps))
+        cut_vcd(full, wave_file, from_ps, to_ps)
+        full.unlink(missing_ok=True)
+        fmt = "vcd"
+    else:
+        wave_file = wave_dir / "waves.fst"
+        wave_file.unlink(missing_ok=True)
+        outcome = build_wave_design(case, BuildCache(cache_dir))
+        _simulate(case, outcome.build_dir, wave_dir, frames, timeout_s, wave=(wave_file, from_ps, to_ps))
+        fmt = "fst"
     if not wave_file.is_file():
         raise ToolError(f"waves: {case.simulator} wrote no {wave_file.name}; see {wave_dir / 'sim.log'}")
     return {"file": os.path.relpath(wave_file, out), "anchor_clock": anchor, "first_clock": first,
-            "last_clock": last, "from_ps": from_ps, "to_ps": to_ps, "format": "fst",
+            "last_clock": last, "from_ps": from_ps, "to_ps": to_ps, "format": fmt,
             "simulator": case.simulator}
 
 

@@ -907,6 +907,9 @@ def run_cases(cases: list[Case], out_dir: str | Path, *, jobs: int = 1, cache_di
     builds: list[dict[str, Any]] = []
     build_errors: dict[tuple[str, str], str] = {}
     jobs = max(1, int(jobs))
+    # vkit does no linear algebra; an idle BLAS thread pool in every worker and every simulator's
+    # embedded Python only takes CPU from the other jobs (measured: -j 2 scaling 1.78x -> 2.04x).
+    os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
     ctx = multiprocessing.get_context(_start_method(jobs))
     pool = concurrent.futures.ProcessPoolExecutor(max_workers=jobs, mp_context=ctx) if jobs > 1 else None
     try:

@@ -20,9 +20,9 @@ __all__ = ["main"]
 
 
 def _frame(height: int, width: int, seed: int) -> np.ndarray:
-    """The conveyor-belt demo scene when vkit.patterns has it, else seeded uniform noise (RGB uint8)."""
+    """The conveyor-belt demo scene when vkit.video.patterns has it, else seeded uniform noise (RGB uint8)."""
     try:
-        from vkit.patterns import conveyor
+        from vkit.video.patterns import conveyor
 
         return conveyor(height, width, seed=seed, rgb=True)
     except ImportError:  # pragma: no cover - older trees
@@ -50,7 +50,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--seed", type=int, default=0, help="seed of the test frame")
     args = parser.parse_args(argv)
 
-    from vkit.pipeline import preset, run_model
+    from vkit.model.pipeline import preset, run_model
 
     spec = preset("edge")
     frame = _frame(args.height, args.width, args.seed)

@@ -41,8 +41,8 @@ patterns = ["conveyor", "checkerboard"]
 
 
 def _run(config_path: Path, jobs: int, out: Path) -> float:
-    from vkit.config import load_config
-    from vkit.runner import run
+    from vkit.run.config import load_config
+    from vkit.run.runner import run
 
     config = load_config(config_path)
     t0 = time.perf_counter()

@@ -4,12 +4,12 @@ On the sample edge core at 640x480 with 800x525 timing (preset "vga640x480p60", 
 high as the core expects), ``--frames`` frames per run (default 3, so fixed start-up is amortised
 as in a real regression), per simulator (Icarus, Verilator):
 
-  (a) the per-clock cocotb path (vkit.tb.entry), Python on every clock;
-  (b) the fast path (vkit.tb.fast on vkit_fast_top): the harness makes its clock, plays and captures
+  (a) the per-clock cocotb path (vkit.sim.tb.entry), Python on every clock;
+  (b) the fast path (vkit.sim.tb.fast on vkit_fast_top): the harness makes its clock, plays and captures
       in HDL, Python waits once for done;
-  (b') the native fast path (vkit.harness.run_native): the same vkit_fast_top built as a plain
+  (b') the native fast path (vkit.sim.harness.run_native): the same vkit_fast_top built as a plain
       executable (vvp / verilator --binary) and run as a subprocess, no cocotb at all;
-  (c) the exported self-checking testbench (vkit.export), no Python at all.
+  (c) the exported self-checking testbench (vkit.run.export), no Python at all.
 
 Builds are not timed (one build per path serves every run); each run is timed from the start of
 the simulator process to its exit (wall clock), so (a) and (b) include cocotb's start-up, and (b)
@@ -36,13 +36,13 @@ from typing import Callable
 
 import numpy as np
 
-from vkit.capture import Capture
-from vkit.export import export_case
-from vkit.harness import fast_build_plan, fast_test_args, native_build, run_native
-from vkit.pipeline import preset as spec_preset
-from vkit.pipeline import run_model
-from vkit.simulators import activate, find, subprocess_env
-from vkit.tb.case import CASE_ENV, SimCase
+from vkit.video.capture import Capture
+from vkit.run.export import export_case
+from vkit.sim.harness import fast_build_plan, fast_test_args, native_build, run_native
+from vkit.model.pipeline import preset as spec_preset
+from vkit.model.pipeline import run_model
+from vkit.sim.simulators import activate, find, subprocess_env
+from vkit.sim.case import CASE_ENV, SimCase
 
 __all__ = ["main"]
 
@@ -89,7 +89,7 @@ def _per_clock(sim: str, work: Path, frames: Path, n_frames: int, fraction: floa
     def run(seed: int) -> tuple[float, int]:
         case = _case(work, frames, n_frames, seed, timeout)
         case_json = case.to_json(work / f"case{seed}.json")
-        secs = _timed(lambda: runner.test(hdl_toplevel="edge_core", test_module="vkit.tb.entry",
+        secs = _timed(lambda: runner.test(hdl_toplevel="edge_core", test_module="vkit.sim.tb.entry",
                                           build_dir=work / "build", test_dir=work,
                                           extra_env={CASE_ENV: str(case_json)}, parameters=PARAMS))
         return secs, int(Capture.load(case.capture_file).meta.get("clocks_run") or 0)
@@ -160,7 +160,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--frames", type=int, default=3, help="frames per run (fixed start-up is amortised over them)")
     ap.add_argument("--repeats", type=int, default=3, help="runs per figure; the median is shown")
     args = ap.parse_args(argv)
-    from vkit.patterns import conveyor  # the demo scene: parcels on a conveyor belt
+    from vkit.video.patterns import conveyor  # the demo scene: parcels on a conveyor belt
 
     with tempfile.TemporaryDirectory(prefix="vkit_bench_") as tmp:
         root = Path(tmp)

@@ -1,7 +1,7 @@
 """Shared fixtures: simulator availability with install hints, and one build cache per test session.
 
 Tests marked ``slow`` are deselected unless ``-m`` is given (``pytest -m slow`` runs the long suite).
-``simulator_available(name)`` returns the :class:`vkit.simulators.SimulatorInfo` or skips the test
+``simulator_available(name)`` returns the :class:`vkit.sim.simulators.SimulatorInfo` or skips the test
 with the install hint. ``build_cache_dir`` is a session-scoped folder under pytest's temporary
 directory (a few MB of Icarus/GHDL builds, one Verilator build is about 10 MB); tests that run real
 simulations share it so each design is built once per session.
@@ -13,7 +13,7 @@ from pathlib import Path
 
 import pytest
 
-from vkit.simulators import SimulatorInfo, find
+from vkit.sim.simulators import SimulatorInfo, find
 
 REPO = Path(__file__).resolve().parents[1]
 SAMPLE_RTL = REPO / "sample_rtl"

@@ -8,10 +8,10 @@ from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from scipy import ndimage
 
-from vkit.align import Offset, infer_border, latency_clocks, measure_offset, shift_back
-from vkit.capture import UNKNOWN, CaptureBuilder
-from vkit.errors import ConfigError
-from vkit.pipeline import preset, run_model
+from vkit.check.align import Offset, infer_border, latency_clocks, measure_offset, shift_back
+from vkit.video.capture import UNKNOWN, CaptureBuilder
+from vkit.core.errors import ConfigError
+from vkit.model.pipeline import preset, run_model
 
 
 def _random_frame(seed: int, h: int, w: int) -> np.ndarray:

@@ -8,9 +8,9 @@ from pathlib import Path
 import pytest
 
 from conftest import SAMPLE_RTL, simulator_available
-from vkit.config import load_config
-from vkit.diagnose import KINDS
-from vkit.runner import run
+from vkit.run.config import load_config
+from vkit.check.diagnose import KINDS
+from vkit.run.runner import run
 
 pytestmark = pytest.mark.sim
 

@@ -6,9 +6,9 @@ from pathlib import Path
 
 import pytest
 
-from vkit.config import expand_matrix, load_config, parse_shard, select_cases, shard_cases
-from vkit.errors import ConfigError
-from vkit.timing import preset
+from vkit.run.config import expand_matrix, load_config, parse_shard, select_cases, shard_cases
+from vkit.core.errors import ConfigError
+from vkit.video.timing import preset
 
 MANIFEST = Path(__file__).resolve().parents[1] / "sample_rtl" / "designs.toml"
 
@@ -130,8 +130,8 @@ def test_bug_variants_and_declared_latency(tmp_path):
 
 
 def test_stimulus_axes_never_change_the_build(tmp_path):
-    from vkit.runner import build_request
-    from vkit.buildcache import build_key
+    from vkit.run.runner import build_request
+    from vkit.sim.buildcache import build_key
 
     cases = [c for c in expand_matrix(load_config(_write(tmp_path, BASE))) if c.design.name == "edge_core"]
     keys = {build_key(build_request(c, "v1")) for c in cases}

@@ -8,10 +8,10 @@ import numpy as np
 import pytest
 from scipy import ndimage
 
-from vkit.capture import UNKNOWN, CaptureBuilder
-from vkit.diagnose import KINDS
-from vkit.pipeline import preset, run_model
-from vkit.scoreboard import score
+from vkit.video.capture import UNKNOWN, CaptureBuilder
+from vkit.check.diagnose import KINDS
+from vkit.model.pipeline import preset, run_model
+from vkit.check.scoreboard import score
 
 H, W = 24, 32
 

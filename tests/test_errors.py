@@ -22,7 +22,7 @@ from PIL import Image
 
 from conftest import REPO, SAMPLE_RTL, simulator_available
 from vkit.cli import main
-from vkit.report import safe_name
+from vkit.report.writers import safe_name
 
 MANIFEST = SAMPLE_RTL / "designs.toml"
 MANGLE_SOURCES = [SAMPLE_RTL / "window3x3.v", SAMPLE_RTL / "blur_core.v", REPO / "tests" / "hdl_errors" / "blur_mangle.v"]
@@ -90,16 +90,16 @@ def test_misnamed_port_lists_ports_and_suggests_the_closest(tmp_path, build_cach
 def test_missing_port_is_caught_by_the_simulator_side_too(tmp_path, build_cache_dir, capsys):
     """A port the HDL reader cannot check (a name the design lacks entirely): cocotb's own check, capture kept."""
     simulator_available("icarus")
-    from vkit.config import expand_matrix, load_config
-    from vkit.runner import _simulate, build_design, make_frames
-    from vkit.buildcache import BuildCache
+    from vkit.run.config import expand_matrix, load_config
+    from vkit.run.runner import _simulate, build_design, make_frames
+    from vkit.sim.buildcache import BuildCache
 
     cfg = load_config(_config(tmp_path, _mangle(0, ports={**PORTS, "out_de": "frame_de"}), cache=build_cache_dir))
     (case,) = expand_matrix(cfg)
     sim_dir = tmp_path / "sim"
     outcome = build_design(case, BuildCache(build_cache_dir))
     capture_file = _simulate(case, outcome.build_dir, sim_dir, make_frames(case), 60)
-    from vkit.capture import Capture
+    from vkit.video.capture import Capture
 
     meta = Capture.load(capture_file).meta
     assert meta["error"].startswith("ConfigError: role 'out_de' -> port 'frame_de' not found in DUT 'blur_mangle'; ")
@@ -148,7 +148,7 @@ def test_silent_design_times_out_and_keeps_the_partial_capture(tmp_path, build_c
     ]
     (case,) = _report(tmp_path)["cases"]
     assert case["status"] == "no_output"
-    from vkit.capture import Capture
+    from vkit.video.capture import Capture
 
     cap = Capture.load(tmp_path / "out" / case["files"]["capture"])
     assert cap.meta["timed_out"] and cap.meta["clocks_run"] >= 3000 and len(cap) == 0
@@ -230,7 +230,7 @@ def test_image_of_the_wrong_mode(tmp_path, build_cache_dir, capsys):
     assert code == 2
     assert problems == [
         f"ERROR blur_core/icarus/belt-s1/tiny32x24/nostall: image {img}: is RGB but gray8 was asked; "
-        "pass --convert / convert=True for ITU-R 601-2 luma, or load rgb888 and use vkit.luma "
+        "pass --convert / convert=True for ITU-R 601-2 luma, or load rgb888 and use vkit.model.luma "
         "(in a vkit config: convert = true under [stimulus])"
     ]
 
@@ -309,7 +309,7 @@ def test_unknown_simulator_suggests_the_closest(tmp_path, capsys):
 
 
 def test_simulator_not_installed_gives_the_install_hint(tmp_path, capsys, monkeypatch):
-    from vkit import simulators
+    from vkit.sim import simulators
 
     cfg = str(_config(tmp_path, _mangle(0)))
     empty = tmp_path / "empty-bin"
@@ -471,7 +471,7 @@ def test_init_writes_a_starter_kit_and_refuses_to_overwrite(tmp_path, capsys):
     assert main(["init", "blur_core", *sources, "--out", str(tmp_path / "kit"), "--sim", "icarus"]) == 0
     out = capsys.readouterr().out
     assert out.startswith("vkit init: blur_core (verilog, family video, spec blur)")
-    from vkit.config import load_config
+    from vkit.run.config import load_config
 
     cfg = load_config(tmp_path / "kit" / "vkit.toml")
     assert cfg.designs["blur_core"].ports["out_de"] == "out_de"

@@ -9,9 +9,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from vkit.export import export_case, read_capture
-from vkit.simulators import find, subprocess_env
-from vkit.tb.case import SimCase
+from vkit.run.export import export_case, read_capture
+from vkit.sim.simulators import find, subprocess_env
+from vkit.sim.case import SimCase
 
 HDL = Path(__file__).parent / "hdl_fast"
 SIGNALS = {r: r for r in ("in_vsync", "in_hsync", "in_de", "in_valid", "in_data",

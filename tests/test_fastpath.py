@@ -9,12 +9,12 @@ from typing import Any
 import numpy as np
 import pytest
 
-from vkit.capture import UNKNOWN, Capture
-from vkit.capture_text import parse_capture_text
-from vkit.errors import ConfigError
-from vkit.harness import fast_build_plan, fast_test_args, scan_port_widths, verilog_harness
-from vkit.stimulus import write_hex
-from vkit.tb.case import CASE_ENV, SimCase
+from vkit.video.capture import UNKNOWN, Capture
+from vkit.sim.capture_text import parse_capture_text
+from vkit.core.errors import ConfigError
+from vkit.sim.harness import fast_build_plan, fast_test_args, scan_port_widths, verilog_harness
+from vkit.sim.stimulus import write_hex
+from vkit.sim.case import CASE_ENV, SimCase
 
 HDL = Path(__file__).parent / "hdl_fast"
 VIDEO_SIGNALS = {r: r for r in ("in_vsync", "in_hsync", "in_de", "in_valid", "in_data",
@@ -42,7 +42,7 @@ def _stream_case(tmp: Path, **kw: Any) -> SimCase:
 
 
 def _require(sim: str) -> None:
-    from vkit.simulators import find
+    from vkit.sim.simulators import find
 
     info = find(sim)
     if not info.available:
@@ -55,7 +55,7 @@ def run_fast(sim: str, case: SimCase, top: str, sources: list[Path], work: Path,
     """Build the harness around ``top`` (unless ``build_dir`` already holds it) and run ``case`` on it."""
     from cocotb_tools.runner import get_runner
 
-    from vkit.simulators import activate, find
+    from vkit.sim.simulators import activate, find
 
     activate(find(sim))
     language = "vhdl" if sim == "ghdl" else "verilog"
@@ -108,7 +108,7 @@ def _binary_records(events: list[tuple[int, str, int, int]], family: int, width:
     """Binary capture bytes built with Python's struct module (little-endian 32-bit words, as Verilog %u writes)."""
     import struct
 
-    from vkit.harness import CAPTURE_MAGIC, capture_data_words
+    from vkit.sim.harness import CAPTURE_MAGIC, capture_data_words
 
     nw = capture_data_words(width)
     out = struct.pack("<4I", CAPTURE_MAGIC, 1, family, width)
@@ -119,8 +119,8 @@ def _binary_records(events: list[tuple[int, str, int, int]], family: int, width:
 
 
 def test_binary_capture_gives_the_same_capture_as_text() -> None:
-    from vkit.capture_text import parse_capture_binary
-    from vkit.harness import CAPTURE_ROLES
+    from vkit.sim.capture_text import parse_capture_binary
+    from vkit.sim.harness import CAPTURE_ROLES
 
     text = "\n".join([
         "# vkit capture 1 video",
@@ -168,8 +168,8 @@ def test_port_widths_are_read_from_verilog_and_vhdl() -> None:
 def test_stimulus_data_matches_the_per_clock_source(tmp_path: Path) -> None:
     # The same seed must put the same garbage words on the bus as the per-clock source.
     pytest.importorskip("cocotb")
-    from vkit.stimulus import video_schedule_and_words
-    from vkit.tb.video import VideoSource
+    from vkit.sim.stimulus import video_schedule_and_words
+    from vkit.sim.tb.video import VideoSource
 
     case = _video_case(tmp_path, stalls={"probability": 0.2, "max_length": 3, "seed": 4}, seed=9)
     sched, words = video_schedule_and_words(case)
@@ -221,8 +221,8 @@ def test_binary_and_text_captures_of_one_run_are_identical(family: str, tmp_path
     _require("icarus")
     from cocotb_tools.runner import get_runner
 
-    from vkit.export import read_capture
-    from vkit.stimulus import fast_run_dir
+    from vkit.run.export import read_capture
+    from vkit.sim.stimulus import fast_run_dir
 
     if family == "video":
         case = _video_case(tmp_path, stalls={"probability": 0.2, "max_length": 3, "seed": 7})
@@ -273,7 +273,7 @@ def test_fast_path_on_ghdl_with_the_vhdl_harness(tmp_path: Path) -> None:
 @pytest.mark.sim
 @pytest.mark.parametrize("sim", ["icarus", "verilator"])
 def test_fast_path_matches_the_per_clock_path(sim: str, tmp_path: Path) -> None:
-    entry = pytest.importorskip("vkit.tb.entry")
+    entry = pytest.importorskip("vkit.sim.tb.entry")
     _require(sim)
     del entry
     case = _video_case(tmp_path / "fast", stalls={"probability": 0.1, "max_length": 2, "seed": 3})
@@ -290,7 +290,7 @@ def _run_per_clock(sim: str, case: SimCase, top: str, sources: list[Path], work:
                    parameters: dict[str, Any] | None = None, defines: dict[str, Any] | None = None) -> Capture:
     from cocotb_tools.runner import get_runner
 
-    from vkit.simulators import activate, find
+    from vkit.sim.simulators import activate, find
 
     activate(find(sim))
     case_json = case.to_json(work / "case.json")
@@ -298,13 +298,13 @@ def _run_per_clock(sim: str, case: SimCase, top: str, sources: list[Path], work:
     runner.build(sources=sources, hdl_toplevel=top, build_dir=work / f"build_{sim}", always=True,
                  timescale=("1ns", "1ps") if sim == "icarus" else None, parameters=parameters or {},
                  defines=defines or {})
-    runner.test(hdl_toplevel=top, test_module="vkit.tb.entry", build_dir=work / f"build_{sim}", test_dir=work,
+    runner.test(hdl_toplevel=top, test_module="vkit.sim.tb.entry", build_dir=work / f"build_{sim}", test_dir=work,
                 extra_env={CASE_ENV: str(case_json)}, parameters=parameters or {})
     return Capture.load(case.capture_file)
 
 
 def test_harness_text_names_the_real_ports() -> None:
-    from vkit.harness import HarnessSpec
+    from vkit.sim.harness import HarnessSpec
 
     roles = dict(VIDEO_SIGNALS, in_data="pix_in", out_data="pix_out")
     text = verilog_harness(HarnessSpec("video", "my_core", roles, 24, 8))
@@ -371,9 +371,9 @@ def test_one_build_runs_different_timing_stalls_seeds_and_frame_counts(tmp_path:
 @pytest.mark.parametrize("sim", ["icarus", "verilator"])
 @pytest.mark.parametrize("design", ["edge_core", "blur_core"])
 def test_sample_cores_fast_path_equals_per_clock_path(design: str, sim: str, tmp_path: Path) -> None:
-    pytest.importorskip("vkit.tb.entry")
+    pytest.importorskip("vkit.sim.tb.entry")
     _require(sim)
-    from vkit.pipeline import preset, run_model
+    from vkit.model.pipeline import preset, run_model
 
     d = _sample_design(design)
     sources = [RTL / f for f in d["sources"]]
@@ -401,7 +401,7 @@ def test_sample_cores_fast_path_equals_per_clock_path(design: str, sim: str, tmp
         assert fast.meta[key] == slow.meta[key], key
     if design == "edge_core":
         # The native run (same vkit_fast_top as a plain executable, no cocotb) gives the identical Capture.
-        from vkit.harness import native_build, run_native
+        from vkit.sim.harness import native_build, run_native
 
         work = tmp_path / "fast"
         case = SimCase("video", dict(d["ports"]), str(work / "frames.npy"), str(tmp_path / "native" / "cap.npz"), 32,
@@ -441,11 +441,11 @@ def _variants() -> list[tuple[str, str | None]]:
 @pytest.mark.sim
 @pytest.mark.parametrize("design,bug", _variants(), ids=[f"{d}-{b or 'good'}" for d, b in _variants()])
 def test_fast_and_per_clock_paths_give_the_same_verdict(design: str, bug: str | None, tmp_path: Path) -> None:
-    pytest.importorskip("vkit.tb.entry")
+    pytest.importorskip("vkit.sim.tb.entry")
     _require("icarus")
-    from vkit.patterns import box, to_rgb
-    from vkit.pipeline import preset, run_model
-    from vkit.scoreboard import score
+    from vkit.video.patterns import box, to_rgb
+    from vkit.model.pipeline import preset, run_model
+    from vkit.check.scoreboard import score
 
     d = _sample_design(design)
     sources = [RTL / f for f in d["sources"]]
@@ -490,7 +490,7 @@ def test_fast_and_per_clock_paths_give_the_same_verdict(design: str, bug: str | 
 
 
 def test_native_build_plan_commands_and_refusals(tmp_path: Path) -> None:
-    from vkit.harness import native_build_plan, run_native
+    from vkit.sim.harness import native_build_plan, run_native
 
     plan = fast_build_plan("fast_video_pass", [HDL / "fast_video_pass.v"], None, None, {"BUG_X": 1}, "video",
                            VIDEO_SIGNALS, out_dir=tmp_path / "h")

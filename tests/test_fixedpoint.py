@@ -7,8 +7,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from vkit.errors import ConfigError
-from vkit.fixedpoint import ROUNDING, bits_for_range, saturate, shift_round
+from vkit.core.errors import ConfigError
+from vkit.model.fixedpoint import ROUNDING, bits_for_range, saturate, shift_round
 
 
 def test_truncate_is_floor_like_signed_arithmetic_shift() -> None:

@@ -9,9 +9,9 @@ from pathlib import Path
 
 import pytest
 
-from vkit.errors import ConfigError
-from vkit.hdlports import Port, eval_int, find_design, list_designs, parse_ports, ports_from_verilator
-from vkit.simulators import find, subprocess_env
+from vkit.core.errors import ConfigError
+from vkit.sim.hdlports import Port, eval_int, find_design, list_designs, parse_ports, ports_from_verilator
+from vkit.sim.simulators import find, subprocess_env
 
 SAMPLE = Path(__file__).resolve().parent.parent / "sample_rtl"
 

@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from vkit.errors import ConfigError
-from vkit.images import load_image, pack_rgb, save_image, to_uint8, unpack_rgb
+from vkit.core.errors import ConfigError
+from vkit.video.images import load_image, pack_rgb, save_image, to_uint8, unpack_rgb
 
 
 def _rng_image(shape: tuple[int, ...], seed: int = 1) -> np.ndarray:

@@ -6,8 +6,8 @@ import cv2
 import numpy as np
 import pytest
 
-from vkit.errors import ConfigError
-from vkit.luma import BT601, BT709, OPENCV, PRESETS, LumaWeights, luma, luma_float, luma_range
+from vkit.core.errors import ConfigError
+from vkit.model.luma import BT601, BT709, OPENCV, PRESETS, LumaWeights, luma, luma_float, luma_range
 
 
 def _all_colours() -> np.ndarray:

@@ -13,9 +13,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from vkit.errors import ConfigError
-from vkit.kernels import correlate3x3
-from vkit.lut import (
+from vkit.core.errors import ConfigError
+from vkit.model.kernels import correlate3x3
+from vkit.model.lut import (
     read_readmemb,
     read_readmemh,
     table_from_function,
@@ -23,7 +23,7 @@ from vkit.lut import (
     write_readmemh,
     write_vhdl_package,
 )
-from vkit.magnitude import (
+from vkit.model.magnitude import (
     METHODS,
     isqrt,
     magnitude_abs_sum,

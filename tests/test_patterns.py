@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from scipy import ndimage
 
-from vkit.errors import ConfigError
-from vkit.patterns import PATTERNS, conveyor, make_pattern
+from vkit.core.errors import ConfigError
+from vkit.video.patterns import PATTERNS, conveyor, make_pattern
 
 H, W = 24, 32
 

@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 from scipy import ndimage
 
-from vkit.errors import ConfigError
-from vkit.pipeline import (
+from vkit.core.errors import ConfigError
+from vkit.model.pipeline import (
     PRESETS,
     SPECS_DIR,
     FilterSpec,
@@ -375,9 +375,9 @@ def test_with_border_copies() -> None:
 def test_model_imports_no_cocotb() -> None:
     code = (
         "import sys, numpy as np\n"
-        "import vkit.pipeline, vkit.widths, vkit.quality\n"
+        "import vkit.model.pipeline, vkit.model.widths, vkit.model.quality\n"
         "img = np.zeros((4, 5, 3), dtype=np.uint8)\n"
-        "vkit.quality.compare(vkit.pipeline.preset('edge'), img)\n"
+        "vkit.model.quality.compare(vkit.model.pipeline.preset('edge'), img)\n"
         "print(sorted(m for m in sys.modules if m.split('.')[0] in ('cocotb', 'cocotb_bus', 'cocotb_tools')))\n"
     )
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120, check=True)

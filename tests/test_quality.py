@@ -9,10 +9,10 @@ import numpy as np
 import pytest
 from scipy import ndimage
 
-from vkit import patterns
-from vkit.images import load_image, save_image
-from vkit.pipeline import preset, run_float, run_model
-from vkit.quality import compare, psnr_db, write_model_report
+from vkit.video import patterns
+from vkit.video.images import load_image, save_image
+from vkit.model.pipeline import preset, run_float, run_model
+from vkit.model.quality import compare, psnr_db, write_model_report
 
 
 def test_smooth_ramp_edge_error_is_small() -> None:

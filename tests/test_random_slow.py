@@ -19,10 +19,10 @@ import pytest
 
 from conftest import SAMPLE_RTL, simulator_available
 from vkit.cli import problem_line
-from vkit.config import load_config
-from vkit.patterns import PATTERNS
-from vkit.runner import run
-from vkit.timing import tiny
+from vkit.run.config import load_config
+from vkit.video.patterns import PATTERNS
+from vkit.run.runner import run
+from vkit.video.timing import tiny
 
 pytestmark = [pytest.mark.slow, pytest.mark.sim]
 

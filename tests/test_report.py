@@ -10,10 +10,10 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from vkit.capture import UNKNOWN, CaptureBuilder
-from vkit.errors import ConfigError
-from vkit.pipeline import preset, run_model
-from vkit.report import (
+from vkit.video.capture import UNKNOWN, CaptureBuilder
+from vkit.core.errors import ConfigError
+from vkit.model.pipeline import preset, run_model
+from vkit.report.writers import (
     MISSING_COLOUR,
     XZ_COLOUR,
     case_entry,
@@ -23,7 +23,7 @@ from vkit.report import (
     write_case_report,
     write_run_report,
 )
-from vkit.scoreboard import score
+from vkit.check.scoreboard import score
 
 H, W = 24, 32
 

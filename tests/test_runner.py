@@ -12,9 +12,9 @@ import pytest
 from PIL import Image
 
 from conftest import SAMPLE_RTL, simulator_available
-from vkit.buildcache import STAMP_NAME, BuildCache, BuildRequest, build_key
+from vkit.sim.buildcache import STAMP_NAME, BuildCache, BuildRequest, build_key
 from vkit.cli import main
-from vkit.config import expand_matrix, load_config
+from vkit.run.config import expand_matrix, load_config
 
 MANIFEST = SAMPLE_RTL / "designs.toml"
 
@@ -83,7 +83,7 @@ def _config(tmp_path: Path, body: str, cache: Path) -> Path:
 @pytest.mark.sim
 def test_second_build_is_skipped(tmp_path):
     simulator_available("icarus")
-    from vkit.runner import build_design
+    from vkit.run.runner import build_design
 
     cfg = load_config(_config(tmp_path, f'[[import]]\nmanifest = "{MANIFEST}"\nuse = ["edge_core"]\n'
                               '[stimulus]\npatterns = ["impulse"]\n', tmp_path / "cache"))

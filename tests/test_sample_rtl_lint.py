@@ -10,7 +10,7 @@ from pathlib import Path
 
 import pytest
 
-from vkit import simulators
+from vkit.sim import simulators
 
 if sys.version_info >= (3, 11):
     import tomllib

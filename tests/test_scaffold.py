@@ -11,11 +11,11 @@ from pathlib import Path
 
 import pytest
 
-from vkit.config import expand_matrix, load_config
-from vkit.errors import ConfigError
-from vkit.hdlports import Port, parse_ports
-from vkit.scaffold import guess_roles, parse_assignments, scaffold
-from vkit.simulators import find
+from vkit.run.config import expand_matrix, load_config
+from vkit.core.errors import ConfigError
+from vkit.sim.hdlports import Port, parse_ports
+from vkit.run.scaffold import guess_roles, parse_assignments, scaffold
+from vkit.sim.simulators import find
 
 ROOT = Path(__file__).resolve().parent.parent
 SAMPLE = ROOT / "sample_rtl"
@@ -180,7 +180,7 @@ def test_guess_roles_matches_the_sample_manifest() -> None:
 
 
 def load_config_manifest() -> dict:
-    from vkit.config import read_toml
+    from vkit.run.config import read_toml
 
     return read_toml(SAMPLE / "designs.toml")["designs"]
 
@@ -358,7 +358,7 @@ def test_pytest_plugin_collects_and_runs_the_cases(tmp_path: Path) -> None:
     repo = _repo(tmp_path)
     scaffold("cam_filter_top", _sources(repo), repo)
     # the user's existing pytest setup: a root conftest and an ini file
-    (repo / "conftest.py").write_text('pytest_plugins = ["vkit.pytest_plugin"]\n')
+    (repo / "conftest.py").write_text('pytest_plugins = ["vkit.run.pytest_plugin"]\n')
     (repo / "pytest.ini").write_text("[pytest]\nvkit_simulators = icarus\n")
     (repo / "test_own.py").write_text("def test_users_own_check():\n    assert 1 + 1 == 2\n")
     pytest_cmd = [sys.executable, "-m", "pytest", "-p", "no:cacheprovider", "-q", "-rA"]

@@ -10,10 +10,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from vkit.capture import UNKNOWN, Capture, CaptureBuilder
-from vkit.errors import ConfigError
-from vkit.pipeline import preset, run_model
-from vkit.scoreboard import score
+from vkit.video.capture import UNKNOWN, Capture, CaptureBuilder
+from vkit.core.errors import ConfigError
+from vkit.model.pipeline import preset, run_model
+from vkit.check.scoreboard import score
 
 
 def pack(frames, meta=None, *, first_clock=20, line_gap=6, skip_lines=()):

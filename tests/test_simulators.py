@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import pytest
 
-from vkit import simulators
-from vkit.errors import ConfigError, ToolError
+from vkit.sim import simulators
+from vkit.core.errors import ConfigError, ToolError
 
 
 @pytest.fixture(autouse=True)

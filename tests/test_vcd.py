@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import pytest
 
-from vkit.errors import ToolError
-from vkit.vcd import cut_vcd
+from vkit.core.errors import ToolError
+from vkit.sim.vcd import cut_vcd
 
 DUMP = """$date today $end
 $timescale 1 ns $end

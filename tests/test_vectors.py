@@ -51,8 +51,8 @@ def test_exported_testbench_replays_to_the_live_verdict(tmp_path, build_cache_di
 
 
 def test_replay_of_a_folder_that_is_not_an_export(tmp_path):
-    from vkit.errors import ConfigError
-    from vkit.vectors import replay
+    from vkit.core.errors import ConfigError
+    from vkit.run.vectors import replay
 
     with pytest.raises(ConfigError, match="is not a vkit export"):
         replay(tmp_path)

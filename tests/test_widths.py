@@ -8,9 +8,9 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from vkit import patterns
-from vkit.pipeline import FilterSpec, PipelineSpec, preset, run_model
-from vkit.widths import format_width_table, stage_range_map, stage_ranges, widths_to_dict
+from vkit.video import patterns
+from vkit.model.pipeline import FilterSpec, PipelineSpec, preset, run_model
+from vkit.model.widths import format_width_table, stage_range_map, stage_ranges, widths_to_dict
 
 
 def test_edge_widths() -> None:

@@ -9,8 +9,8 @@ import scipy.ndimage as ndi
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from vkit.errors import ConfigError
-from vkit.kernels import (
+from vkit.core.errors import ConfigError
+from vkit.model.kernels import (
     KERNELS,
     correlate3x3,
     correlate_padded,
@@ -19,7 +19,7 @@ from vkit.kernels import (
     median3x3,
     minimum3x3,
 )
-from vkit.window import BORDERS, OPENCV_BORDERS, SCIPY_MODES, interior_mask, pad, taps
+from vkit.model.window import BORDERS, OPENCV_BORDERS, SCIPY_MODES, interior_mask, pad, taps
 
 SCIPY_BORDERS = ("replicate", "zero", "constant", "mirror")
 CONSTANT = 37

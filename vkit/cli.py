@@ -8,7 +8,7 @@ import sys
 from pathlib import Path
 from typing import Sequence
 
-from vkit.errors import EXIT_CONFIG, EXIT_DUT, EXIT_PASS, ConfigError, VkitError
+from vkit.core.errors import EXIT_CONFIG, EXIT_DUT, EXIT_PASS, ConfigError, VkitError
 
 __all__ = ["main", "build_parser", "problem_line"]
 
@@ -23,8 +23,8 @@ def _size(text: str) -> tuple[int, int]:
     return w, h
 
 
-def _spec(text: str):  # noqa: ANN202 - returns vkit.pipeline.PipelineSpec
-    from vkit.pipeline import PipelineSpec, preset
+def _spec(text: str):  # noqa: ANN202 - returns vkit.model.pipeline.PipelineSpec
+    from vkit.model.pipeline import PipelineSpec, preset
 
     p = Path(text)
     if p.suffix == ".toml" or p.is_file():
@@ -35,8 +35,8 @@ def _spec(text: str):  # noqa: ANN202 - returns vkit.pipeline.PipelineSpec
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
-    from vkit.config import load_config
-    from vkit.runner import run
+    from vkit.run.config import load_config
+    from vkit.run.runner import run
 
     config = load_config(args.config)
     result = run(config, jobs=args.jobs, shard=args.shard, only=args.only, out_dir=args.out,
@@ -45,7 +45,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     return result.exit_code
 
 
-def problem_line(case) -> str:  # noqa: ANN001 - vkit.runner.CaseResult
+def problem_line(case) -> str:  # noqa: ANN001 - vkit.run.runner.CaseResult
     """The one line that says what went wrong with a case that did not pass.
 
     ``FAIL <id>: <kind>: <message>; <arrived> of <expected> pixels arrived`` for a design failure
@@ -66,7 +66,7 @@ def problem_line(case) -> str:  # noqa: ANN001 - vkit.runner.CaseResult
     return " ".join(text.split())
 
 
-def _print_run_end(result) -> None:  # noqa: ANN001 - vkit.runner.RunResult
+def _print_run_end(result) -> None:  # noqa: ANN001 - vkit.run.runner.RunResult
     summary = Path(result.report_files["summary"]).read_text()
     print()
     print(summary, end="")
@@ -96,10 +96,10 @@ def _print_run_end(result) -> None:  # noqa: ANN001 - vkit.runner.RunResult
 def _cmd_demo(args: argparse.Namespace) -> int:
     from importlib.resources import files
 
-    from vkit.config import load_config
-    from vkit.runner import run
+    from vkit.run.config import load_config
+    from vkit.run.runner import run
 
-    demo = Path(str(files("vkit.sim") / "demo.toml"))
+    demo = Path(str(files("vkit.regressions") / "demo.toml"))
     config = load_config(demo)
     out = Path(args.out) if args.out else Path.cwd() / "vkit-demo"
     result = run(config, jobs=args.jobs, out_dir=out, simulators=[args.sim] if args.sim else None, path=args.path)
@@ -113,8 +113,8 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 
 def _cmd_export(args: argparse.Namespace) -> int:
-    from vkit.config import expand_matrix, load_config, select_cases
-    from vkit.vectors import export_vectors
+    from vkit.run.config import expand_matrix, load_config, select_cases
+    from vkit.run.vectors import export_vectors
 
     config = load_config(args.config)
     cases = select_cases(expand_matrix(config, args.sim or None), args.case)
@@ -131,7 +131,7 @@ def _cmd_export(args: argparse.Namespace) -> int:
 
 
 def _cmd_replay(args: argparse.Namespace) -> int:
-    from vkit.vectors import replay
+    from vkit.run.vectors import replay
 
     verdict, files = replay(args.export_dir, args.capture, args.out)
     print(Path(files["summary"]).read_text(), end="")
@@ -142,7 +142,7 @@ def _cmd_replay(args: argparse.Namespace) -> int:
 
 
 def _cmd_merge(args: argparse.Namespace) -> int:
-    from vkit.runner import merge
+    from vkit.run.runner import merge
 
     merged, code = merge(args.out, args.reports)
     out = Path(args.out)
@@ -152,7 +152,7 @@ def _cmd_merge(args: argparse.Namespace) -> int:
 
 
 def _cmd_model(args: argparse.Namespace) -> int:
-    from vkit.quality import write_model_report
+    from vkit.model.quality import write_model_report
 
     spec = _spec(args.spec)
     paths = write_model_report(spec, list(args.images), args.out)
@@ -162,7 +162,7 @@ def _cmd_model(args: argparse.Namespace) -> int:
 
 
 def _cmd_widths(args: argparse.Namespace) -> int:
-    from vkit import widths
+    from vkit.model import widths
 
     spec = _spec(args.spec)
     if args.json:
@@ -188,8 +188,8 @@ def _plain(value):  # noqa: ANN001, ANN202 - any stage-range structure to JSON-r
 
 
 def _cmd_lut(args: argparse.Namespace) -> int:
-    from vkit import lut
-    from vkit.magnitude import root_table
+    from vkit.model import lut
+    from vkit.model.magnitude import root_table
 
     rounding = "half_up" if args.rounding else "truncate"
     table = root_table(args.address_bits, args.data_bits, scale=args.scale, rounding=rounding)
@@ -208,8 +208,8 @@ def _cmd_lut(args: argparse.Namespace) -> int:
 
 
 def _cmd_pattern(args: argparse.Namespace) -> int:
-    from vkit.images import save_image
-    from vkit.patterns import make_pattern
+    from vkit.video.images import save_image
+    from vkit.video.patterns import make_pattern
 
     w, h = args.size
     img = make_pattern(args.name, h, w, seed=args.seed, rgb=True if args.rgb else None)
@@ -219,7 +219,7 @@ def _cmd_pattern(args: argparse.Namespace) -> int:
 
 
 def _cmd_init(args: argparse.Namespace) -> int:
-    from vkit.scaffold import parse_assignments, scaffold
+    from vkit.run.scaffold import parse_assignments, scaffold
 
     result = scaffold(
         args.top, list(args.sources), args.out, args.family, spec=args.spec, pixel_format=args.pixel_format,
@@ -319,7 +319,7 @@ def build_parser() -> argparse.ArgumentParser:
     ini.set_defaults(func=_cmd_init)
 
     pa = sub.add_parser("pattern", help="write a verification pattern as PNG")
-    pa.add_argument("name", help="pattern name (see vkit.patterns.PATTERNS)")
+    pa.add_argument("name", help="pattern name (see vkit.video.patterns.PATTERNS)")
     pa.add_argument("--size", type=_size, default=(64, 48), help="WIDTHxHEIGHT (default 64x48)")
     pa.add_argument("--seed", type=int, default=0)
     pa.add_argument("--rgb", action="store_true", help="write RGB even for gray patterns")

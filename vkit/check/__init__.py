@@ -1,0 +1,28 @@
+"""The verdict: alignment, every pixel compared, output timing checked, failures diagnosed."""
+
+from __future__ import annotations
+
+from vkit.core.lazy import lazy_facade
+
+_HOME = {
+    "BORDER_POLICIES": "vkit.check.align",
+    "BorderInference": "vkit.check.align",
+    "Finding": "vkit.check.diagnose",
+    "FrameResult": "vkit.check.scoreboard",
+    "KINDS": "vkit.check.diagnose",
+    "Offset": "vkit.check.align",
+    "STATUSES": "vkit.check.scoreboard",
+    "SlipEvent": "vkit.check.diagnose",
+    "TimingIssue": "vkit.check.diagnose",
+    "Verdict": "vkit.check.scoreboard",
+    "border_coverage": "vkit.check.align",
+    "diagnose": "vkit.check.diagnose",
+    "infer_border": "vkit.check.align",
+    "latency_clocks": "vkit.check.align",
+    "measure_offset": "vkit.check.align",
+    "score": "vkit.check.scoreboard",
+    "shift_back": "vkit.check.align",
+    "slip_events": "vkit.check.diagnose",
+}
+__all__ = sorted(_HOME)
+__getattr__, __dir__ = lazy_facade(__name__, _HOME)

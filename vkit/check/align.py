@@ -1,0 +1,477 @@
+"""Alignment between expected and captured frames: pixel offset, latency in clocks, and the border policy a design implements."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, field
+from typing import Any, Callable, Sequence
+
+import numpy as np
+
+from vkit.video.capture import UNKNOWN, Capture, FrameView
+from vkit.core.errors import ConfigError
+
+__all__ = [
+    "Offset",
+    "BorderInference",
+    "BORDER_POLICIES",
+    "measure_offset",
+    "shift_back",
+    "latency_clocks",
+    "infer_border",
+    "border_coverage",
+]
+
+BORDER_POLICIES: tuple[str, ...] = ("replicate", "zero", "constant", "mirror")
+"""Border policies a design can implement (``unchecked`` is a checking choice, not a behaviour)."""
+
+_MATCH_IF_ALIGNED = 0.99
+"""Probability that a pixel matches under the right alignment (allows a few faulty pixels)."""
+_SAMPLE_PIXELS = 4096
+"""Pixels sampled for the coarse search over all candidate offsets."""
+_REFINE = 8
+"""Best coarse candidates re-scored on every pixel."""
+_CHUNK_ELEMENTS = 4_000_000
+"""Upper bound on (pixels x candidates) compared in one vectorised step."""
+
+
+@dataclass(frozen=True)
+class Offset:
+    """Where the captured frame sits relative to the expected one.
+
+    Convention: ``actual[y, x] == expected[y - dy, x - dx]``; positive ``dx`` means the output is
+    shifted right, positive ``dy`` down.
+
+    Attributes:
+        dx: column offset in pixels.
+        dy: row offset in lines.
+        kind: ``"none"`` (no offset), ``"grid"`` (every line moved by the same (dx, dy); pixels
+            pushed off a line edge are lost) or ``"raster"`` (the stream lags by ``dy * width + dx``
+            pixels in raster order, so pixels pushed off a line's end reappear at the start of the
+            next: a latency against the frame/line marks).
+        match_share: matching pixels over compared pixels at this offset, 0..1.
+        overlap: pixels compared at this offset.
+        confidence: posterior weight of this offset among the best candidates, 0..1.
+        width: frame width in pixels (to turn a raster offset into pixels).
+    """
+
+    dx: int = 0
+    dy: int = 0
+    kind: str = "none"
+    match_share: float = 0.0
+    overlap: int = 0
+    confidence: float = 0.0
+    width: int = 0
+
+    @property
+    def is_zero(self) -> bool:
+        """True when the frames line up as they are."""
+        return self.dx == 0 and self.dy == 0
+
+    @property
+    def raster_pixels(self) -> int:
+        """The offset as a lag in raster order, pixels (``dy * width + dx``)."""
+        return self.dy * self.width + self.dx
+
+    def describe(self) -> str:
+        """One phrase a designer can read, e.g. ``"right by 1 pixel and down by 0 lines"``."""
+        horiz = "right" if self.dx >= 0 else "left"
+        vert = "down" if self.dy >= 0 else "up"
+        px = abs(self.dx)
+        ln = abs(self.dy)
+        return (
+            f"{horiz} by {px} pixel{'s' if px != 1 else ''} and "
+            f"{vert} by {ln} line{'s' if ln != 1 else ''}"
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form."""
+        d = asdict(self)
+        d["raster_pixels"] = self.raster_pixels
+        return d
+
+
+@dataclass
+class BorderInference:
+    """Which border policy the captured output follows.
+
+    Attributes:
+        policy: best-matching policy name, or ``"unknown"`` when none matches at least half of the
+            border pixels where the policies differ.
+        share: share of discriminating border pixels the best policy matches, 0..1.
+        confidence: among pixels where the best and the runner-up policy differ, the share the best
+            one wins, times ``share``; 0..1.
+        offset: output offset measured on pixels all policies agree on, applied before comparing.
+        scores: policy name -> matched discriminating pixels.
+        compared: discriminating border pixels compared.
+    """
+
+    policy: str
+    share: float
+    confidence: float
+    offset: Offset
+    scores: dict[str, int] = field(default_factory=dict)
+    compared: int = 0
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form."""
+        return {
+            "policy": self.policy,
+            "share": self.share,
+            "confidence": self.confidence,
+            "offset": self.offset.to_dict(),
+            "scores": dict(self.scores),
+            "compared": self.compared,
+        }
+
+
+def _chance_match(exp_vals: np.ndarray, act_vals: np.ndarray) -> float:
+    """Probability that two unrelated pixels (one from each frame) are equal."""
+    if exp_vals.size == 0 or act_vals.size == 0:
+        return 0.5
+    ev, ec = np.unique(exp_vals, return_counts=True)
+    av, ac = np.unique(act_vals, return_counts=True)
+    common, ei, ai = np.intersect1d(ev, av, assume_unique=True, return_indices=True)
+    p = float(np.sum((ec[ei] / exp_vals.size) * (ac[ai] / act_vals.size)))
+    return min(max(p, 1e-6), 0.999)
+
+
+def _llr(matches: np.ndarray, overlap: np.ndarray, p0: float) -> np.ndarray:
+    """Log-likelihood ratio 'aligned' against 'unrelated' for match counts."""
+    q = _MATCH_IF_ALIGNED
+    if p0 >= q:
+        # Flat pictures: matches carry almost no evidence; still rank by matches.
+        return matches.astype(float) * 1e-3 - (overlap - matches) * 1e-3
+    return matches * math.log(q / p0) + (overlap - matches) * math.log((1 - q) / (1 - p0))
+
+
+def _candidates(height: int, width: int, max_dy: int, max_dx: int, raster: bool) -> np.ndarray:
+    """Rows of (kind, dy, dx, lag) with kind 0 = grid, 1 = raster."""
+    dys = np.arange(-max_dy, max_dy + 1)
+    dxs = np.arange(-max_dx, max_dx + 1)
+    gy, gx = np.meshgrid(dys, dxs, indexing="ij")
+    grid = np.stack([np.zeros(gy.size, np.int64), gy.ravel(), gx.ravel(), gy.ravel() * width + gx.ravel()], 1)
+    rows = [grid]
+    if raster and width > 1:
+        span = max_dy * width + width - 1
+        lags = np.arange(-span, span + 1)
+        lags = lags[(lags % width) != 0]  # whole-line lags are the same as grid (dy, 0)
+        if lags.size:
+            sgn = np.sign(lags)
+            dy = sgn * (np.abs(lags) // width)
+            dx = sgn * (np.abs(lags) % width)
+            rows.append(np.stack([np.ones(lags.size, np.int64), dy, dx, lags], 1))
+    return np.concatenate(rows).astype(np.int64)
+
+
+def _coarse_scores(
+    exp: np.ndarray,
+    e_ok: np.ndarray,
+    act_vals: np.ndarray,
+    ys: np.ndarray,
+    xs: np.ndarray,
+    cands: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Matches and overlap of sampled actual pixels against every candidate offset."""
+    h, w = exp.shape
+    flat = exp.ravel()
+    flat_ok = e_ok.ravel()
+    matches = np.zeros(len(cands), np.int64)
+    overlap = np.zeros(len(cands), np.int64)
+    step = max(1, _CHUNK_ELEMENTS // max(1, ys.size))
+    for start in range(0, len(cands), step):
+        c = cands[start : start + step]
+        kind = c[:, 0][None, :]
+        sy = ys[:, None] - c[:, 1][None, :]
+        sx = xs[:, None] - c[:, 2][None, :]
+        sr = (ys * w + xs)[:, None] - c[:, 3][None, :]
+        in_grid = (sy >= 0) & (sy < h) & (sx >= 0) & (sx < w)
+        src = np.where(kind == 1, sr, np.clip(sy, 0, h - 1) * w + np.clip(sx, 0, w - 1))
+        inside = np.where(kind == 1, (sr >= 0) & (sr < h * w), in_grid)
+        src = np.clip(src, 0, h * w - 1)
+        ok = inside & flat_ok[src]
+        eq = ok & (flat[src] == act_vals[:, None])
+        matches[start : start + step] = eq.sum(0)
+        overlap[start : start + step] = ok.sum(0)
+    return matches, overlap
+
+
+def _exact_score(
+    exp: np.ndarray, e_ok: np.ndarray, act: np.ndarray, a_ok: np.ndarray, kind: int, dy: int, dx: int
+) -> tuple[int, int]:
+    """Matches and overlap over every pixel for one candidate offset."""
+    h, w = exp.shape
+    if kind == 1:
+        lag = dy * w + dx
+        ef, eo, af, ao = exp.ravel(), e_ok.ravel(), act.ravel(), a_ok.ravel()
+        n = h * w
+        if lag >= 0:
+            e_s, eo_s, a_s, ao_s = ef[: n - lag], eo[: n - lag], af[lag:], ao[lag:]
+        else:
+            e_s, eo_s, a_s, ao_s = ef[-lag:], eo[-lag:], af[: n + lag], ao[: n + lag]
+    else:
+        ay0, ay1 = max(0, dy), min(h, h + dy)
+        ax0, ax1 = max(0, dx), min(w, w + dx)
+        if ay0 >= ay1 or ax0 >= ax1:
+            return 0, 0
+        a_s = act[ay0:ay1, ax0:ax1]
+        ao_s = a_ok[ay0:ay1, ax0:ax1]
+        e_s = exp[ay0 - dy : ay1 - dy, ax0 - dx : ax1 - dx]
+        eo_s = e_ok[ay0 - dy : ay1 - dy, ax0 - dx : ax1 - dx]
+    ok = ao_s & eo_s
+    return int(np.count_nonzero(ok & (a_s == e_s))), int(np.count_nonzero(ok))
+
+
+def measure_offset(
+    expected: np.ndarray,
+    actual: np.ndarray,
+    *,
+    present: np.ndarray | None = None,
+    valid: np.ndarray | None = None,
+    max_dy: int = 3,
+    max_dx: int | None = None,
+    raster: bool = True,
+    seed: int = 0,
+) -> Offset:
+    """Find the offset that best lines up ``actual`` with ``expected``.
+
+    Every candidate (dy in ``-max_dy..max_dy`` lines, dx in ``-max_dx..max_dx`` pixels, both as a
+    grid shift and, when ``raster`` is set, as a lag in raster order) is scored on a sample of the
+    present pixels in one vectorised pass; the best few are re-scored on every pixel. Scores are
+    log-likelihood ratios of "aligned" against "unrelated" given how often two unrelated pixels are
+    equal in these pictures, so a perfect match on a narrow overlap can beat a poor match on a wide
+    one.
+
+    Args:
+        expected: ``(H, W)`` integer frame from the model.
+        actual: ``(H, W)`` integer frame as captured; :data:`~vkit.video.capture.UNKNOWN` pixels are ignored.
+        present: ``(H, W)`` bool, True where a pixel arrived; all True when omitted.
+        valid: ``(H, W)`` bool, True where the expected pixel is checked; all True when omitted.
+        max_dy: largest line offset searched, lines (>= 0).
+        max_dx: largest column offset searched, pixels; ``W - 1`` when omitted.
+        raster: also search lags in raster order (latency against the frame marks).
+        seed: seed of the pixel sample (only used on frames with more than 4096 pixels).
+
+    Returns:
+        The best :class:`Offset`; zero offset with ``confidence`` 0 when nothing can be compared.
+    """
+    exp = np.asarray(expected)
+    act = np.asarray(actual)
+    if exp.ndim != 2 or exp.shape != act.shape:
+        raise ConfigError(
+            f"measure_offset: expected shape {exp.shape} and actual shape {act.shape} must be the same "
+            "(H, W); pass one frame at a time"
+        )
+    h, w = exp.shape
+    if max_dy < 0:
+        raise ConfigError(f"measure_offset: max_dy is {max_dy}; give 0 or more lines")
+    max_dy = min(max_dy, h - 1)
+    max_dx = w - 1 if max_dx is None else min(max(0, max_dx), w - 1)
+    a_ok = np.ones_like(act, bool) if present is None else np.asarray(present, bool).copy()
+    a_ok &= act != UNKNOWN
+    e_ok = np.ones_like(exp, bool) if valid is None else np.asarray(valid, bool)
+    ys, xs = np.nonzero(a_ok)
+    if ys.size == 0 or not e_ok.any():
+        return Offset(width=w)
+    if ys.size > _SAMPLE_PIXELS:
+        pick = np.random.default_rng(seed).choice(ys.size, _SAMPLE_PIXELS, replace=False)
+        ys, xs = ys[pick], xs[pick]
+    p0 = _chance_match(exp[e_ok], act[a_ok])
+    cands = _candidates(h, w, max_dy, max_dx, raster)
+    m, n = _coarse_scores(exp, e_ok, act[ys, xs], ys, xs, cands)
+    coarse = _llr(m, n, p0)
+    # Always re-score zero offset so an exact match is never lost to sampling.
+    zero = int(np.flatnonzero((cands[:, 0] == 0) & (cands[:, 1] == 0) & (cands[:, 2] == 0))[0])
+    order = list(np.argsort(-coarse, kind="stable")[:_REFINE])
+    if zero not in order:
+        order.append(zero)
+    scored = []
+    for i in order:
+        kind, dy, dx, lag = (int(v) for v in cands[i])
+        mm, nn = _exact_score(exp, e_ok, act, a_ok, kind, dy, dx)
+        llr = float(_llr(np.array(mm), np.array(nn), p0))
+        # Tie-break: smaller lag first, grid before raster.
+        scored.append((llr, -abs(lag), -kind, kind, dy, dx, mm, nn))
+    scored.sort(reverse=True)
+    best = scored[0]
+    llrs = np.array([s[0] for s in scored])
+    weights = np.exp(np.clip(llrs - best[0], -700, 0))
+    _, _, _, kind, dy, dx, mm, nn = best
+    # Grid and raster readings of the same (dy, dx) are one answer as far as the offset goes.
+    same = np.array([s[4] == dy and s[5] == dx for s in scored])
+    conf = float(weights[same].sum() / weights.sum())
+    name = "none" if dy == 0 and dx == 0 else ("raster" if kind == 1 else "grid")
+    return Offset(
+        dx=dx,
+        dy=dy,
+        kind=name,
+        match_share=mm / nn if nn else 0.0,
+        overlap=nn,
+        confidence=conf,
+        width=w,
+    )
+
+
+def shift_back(frame: np.ndarray, present: np.ndarray, offset: Offset) -> tuple[np.ndarray, np.ndarray]:
+    """Undo ``offset`` on a captured frame: returns ``(pixels, present)`` on the expected grid.
+
+    Places with no source pixel after the shift get ``present = False`` (and value 0).
+    """
+    frame = np.asarray(frame)
+    present = np.asarray(present, bool)
+    h, w = frame.shape
+    out = np.zeros_like(frame)
+    out_p = np.zeros_like(present)
+    if offset.is_zero:
+        return frame.copy(), present.copy()
+    if offset.kind == "raster":
+        lag = offset.dy * w + offset.dx
+        n = h * w
+        f, p = frame.ravel(), present.ravel()
+        of, op = out.reshape(-1), out_p.reshape(-1)
+        if abs(lag) >= n:
+            return out, out_p
+        if lag >= 0:
+            of[: n - lag], op[: n - lag] = f[lag:], p[lag:]
+        else:
+            of[-lag:], op[-lag:] = f[: n + lag], p[: n + lag]
+        return out, out_p
+    dy, dx = offset.dy, offset.dx
+    ey0, ey1 = max(0, -dy), min(h, h - dy)
+    ex0, ex1 = max(0, -dx), min(w, w - dx)
+    if ey0 < ey1 and ex0 < ex1:
+        out[ey0:ey1, ex0:ex1] = frame[ey0 + dy : ey1 + dy, ex0 + dx : ex1 + dx]
+        out_p[ey0:ey1, ex0:ex1] = present[ey0 + dy : ey1 + dy, ex0 + dx : ex1 + dx]
+    return out, out_p
+
+
+def latency_clocks(capture: Capture) -> int | None:
+    """Latency of the run in clocks: ``meta["latency_clocks"]``, else first output minus first input clock.
+
+    Returns None when the capture does not tell (no output, or the input clock was not recorded).
+    """
+    meta = capture.meta
+    if meta.get("latency_clocks") is not None:
+        return int(meta["latency_clocks"])
+    first_in = meta.get("first_input_clock")
+    first_out = meta.get("first_output_clock")
+    if first_out is None and len(capture):
+        first_out = int(capture.clock.min())
+    if first_in is None or first_out is None:
+        return None
+    return int(first_out) - int(first_in)
+
+
+def _as_views(actual: Capture | Sequence[FrameView], height: int, width: int) -> list[FrameView]:
+    if isinstance(actual, Capture):
+        return actual.frames(height, width)
+    return list(actual)
+
+
+def infer_border(
+    spec: Any,
+    images: Sequence[np.ndarray],
+    actual: Capture | Sequence[FrameView],
+    *,
+    policies: Sequence[str] = BORDER_POLICIES,
+    run_model: Callable[[Any, np.ndarray], Any] | None = None,
+) -> BorderInference:
+    """Tell which border policy the design implements, and at which output offset.
+
+    The model is run once per policy (``spec.with_border(policy)``) on every input image. Pixels where
+    all policies agree give the output offset (:func:`measure_offset`); pixels where they differ
+    (the border) are compared, after undoing that offset, against each policy's output.
+
+    Args:
+        spec: pipeline spec with a ``with_border(name)`` method.
+        images: the input images, one per captured frame, in order.
+        actual: the capture, or its frames already rebuilt.
+        policies: candidate policy names (at least two).
+        run_model: ``(spec, image) -> ModelResult``; :func:`vkit.model.pipeline.run_model` when omitted.
+
+    Returns:
+        A :class:`BorderInference`.
+    """
+    if len(policies) < 2:
+        raise ConfigError(f"infer_border: {len(policies)} policies given; give at least two to choose between")
+    if not images:
+        raise ConfigError("infer_border: no input images given; pass the images the design was fed")
+    if run_model is None:
+        from vkit.model.pipeline import run_model as _run
+
+        run_model = _run
+    results: dict[str, list[Any]] = {}
+    for p in policies:
+        runs = [run_model(spec.with_border(p), np.asarray(img)) for img in images]
+        # A policy that gives the same output as one already kept (constant 0 and zero) adds nothing.
+        if not any(
+            all(np.array_equal(a.output, b.output) for a, b in zip(runs, kept)) for kept in results.values()
+        ):
+            results[p] = runs
+    policies = list(results)
+    if len(policies) < 2:
+        off = Offset(width=int(np.asarray(results[policies[0]][0].output).shape[1]))
+        return BorderInference("unknown", 0.0, 0.0, off, {policies[0]: 0}, 0)
+    first = results[policies[0]][0].output
+    h, w = np.asarray(first).shape
+    views = _as_views(actual, h, w)
+    n_frames = min(len(images), len(views))
+    if n_frames == 0:
+        return BorderInference("unknown", 0.0, 0.0, Offset(width=w), {p: 0 for p in policies}, 0)
+    scores = {p: 0 for p in policies}
+    per_pixel_wins: dict[str, list[np.ndarray]] = {p: [] for p in policies}
+    compared = 0
+    offset = Offset(width=w)
+    for i in range(n_frames):
+        outs = np.stack([np.asarray(results[p][i].output, np.int64) for p in policies])
+        agree = np.all(outs == outs[0], axis=0)
+        view = views[i]
+        if i == 0:
+            offset = measure_offset(outs[0], view.pixels, present=view.present, valid=agree)
+        pix, pres = shift_back(view.pixels, view.present, offset)
+        pres = pres & (pix != UNKNOWN)
+        disc = ~agree & pres
+        compared += int(disc.sum())
+        for k, p in enumerate(policies):
+            win = disc & (outs[k] == pix)
+            scores[p] += int(win.sum())
+            per_pixel_wins[p].append(win[disc])
+    if compared == 0:
+        return BorderInference("unknown", 0.0, 0.0, offset, scores, 0)
+    ranked = sorted(policies, key=lambda p: -scores[p])
+    best, second = ranked[0], ranked[1]
+    share = scores[best] / compared
+    wb = np.concatenate(per_pixel_wins[best])
+    ws = np.concatenate(per_pixel_wins[second])
+    differ = wb != ws
+    won = float(np.mean(wb[differ])) if differ.any() else 0.5
+    conf = share * won
+    return BorderInference(best if share >= 0.5 else "unknown", share, conf, offset, scores, compared)
+
+
+def border_coverage(
+    spec: Any,
+    images: Sequence[np.ndarray],
+    *,
+    policies: Sequence[str] = BORDER_POLICIES,
+    run_model: Callable[[Any, np.ndarray], Any] | None = None,
+) -> float:
+    """Share of border-ring output pixels where the border policies give different values, 0..1.
+
+    0 means the stimulus cannot tell one border policy from another (e.g. a flat dark edge where
+    'zero' and 'replicate' agree): a pass says nothing about the border logic.
+    """
+    if not images:
+        raise ConfigError("border_coverage: no input images given; pass the images the design is fed")
+    if run_model is None:
+        from vkit.model.pipeline import run_model as _run
+
+        run_model = _run
+    differ = total = 0
+    for img in images:
+        outs = np.stack([np.asarray(run_model(spec.with_border(p), np.asarray(img)).output) for p in policies])
+        ring = np.zeros(outs.shape[1:], bool)
+        ring[0, :] = ring[-1, :] = ring[:, 0] = ring[:, -1] = True
+        differ += int(np.count_nonzero(~np.all(outs == outs[0], axis=0) & ring))
+        total += int(ring.sum())
+    return differ / max(1, total)

@@ -1,0 +1,20 @@
+"""The words of vkit's interface that several layers check against, each defined once."""
+
+from __future__ import annotations
+
+__all__ = ["DRIVE_MODES", "WAVE_MODES", "VERILOG_SUFFIXES", "VHDL_SUFFIXES", "HDL_SUFFIXES"]
+
+DRIVE_MODES: tuple[str, ...] = ("clock", "fast", "native")
+"""How a case drives the design: ``clock`` (cocotb touches every clock), ``fast`` (the generated HDL
+harness plays the stimulus under cocotb), ``native`` (the same harness as a plain executable)."""
+
+WAVE_MODES: tuple[str, ...] = ("failing", "all", "off")
+"""Which cases leave a waveform dump."""
+
+VERILOG_SUFFIXES: tuple[str, ...] = (".v", ".sv", ".vh", ".svh", ".vlog")
+"""File endings read as Verilog / SystemVerilog."""
+
+VHDL_SUFFIXES: tuple[str, ...] = (".vhd", ".vhdl")
+"""File endings read as VHDL."""
+
+HDL_SUFFIXES: tuple[str, ...] = VERILOG_SUFFIXES + VHDL_SUFFIXES

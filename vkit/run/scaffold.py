@@ -1,0 +1,703 @@
+"""Drop vkit into an existing RTL repo: guess the signal map from the top level's ports and write a starter kit."""
+
+from __future__ import annotations
+
+import json
+import os
+import re
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from importlib import resources
+from pathlib import Path
+from typing import Any
+
+from vkit.core.errors import ConfigError
+from vkit.sim.hdlports import HdlDesign, Port, find_design, list_designs
+from vkit.sim.signals import FAMILY_ROLES
+
+__all__ = [
+    "RoleGuess",
+    "ScaffoldResult",
+    "guess_roles",
+    "guess_spec",
+    "scaffold",
+    "parse_assignments",
+    "CONFIG_NAME",
+    "MAKEFILE_NAME",
+]
+
+CONFIG_NAME = "vkit.toml"
+"""File name of the starter config."""
+
+MAKEFILE_NAME = "Makefile.vkit"
+"""File name of the cocotb Makefile snippet."""
+
+# -- name vocabulary --------------------------------------------------------------------------------
+# Common practice, no source: the names RTL teams give video and AXI4-Stream style ports.
+
+_IN_PREFIX = {"in", "i", "s", "sink", "snk", "slave", "rx", "saxis", "up"}
+_OUT_PREFIX = {"out", "o", "m", "src", "source", "master", "tx", "maxis", "dn"}
+_IN_SUFFIX = {"in", "i"}
+_OUT_SUFFIX = {"out", "o"}
+
+_KINDS: dict[str, tuple[frozenset[str], tuple[str, ...], tuple[str, ...]]] = {
+    # kind: (exact words, word prefixes, word suffixes)
+    "clock": (
+        frozenset({"clk", "clock", "pclk", "aclk", "ck", "pixclk", "pixelclk", "sclk", "vclk", "clkin", "pixclock"}),
+        ("clk", "clock"),
+        ("clk", "clock"),
+    ),
+    "reset": (
+        frozenset({"rst", "reset", "rstn", "resetn", "arst", "arstn", "areset", "aresetn", "srst", "sreset", "nrst", "nreset", "rstb", "resetb"}),
+        ("rst", "reset", "arst", "areset", "srst"),
+        ("rst", "reset"),
+    ),
+    "ready": (frozenset({"ready", "rdy", "tready", "trdy"}), (), ("ready", "rdy")),
+    "valid": (frozenset({"valid", "vld", "tvalid", "val", "dv", "dvalid", "datavalid", "pvld", "pvalid", "pixvalid", "pixvld"}), (), ("valid", "vld")),
+    "sof": (frozenset({"sof", "tuser", "user", "sop", "framestart", "start", "startofframe"}), (), ("sof",)),
+    "eol": (frozenset({"eol", "tlast", "last", "eop", "lineend", "endofline", "linelast"}), (), ("eol", "last")),
+    "vsync": (frozenset({"vsync", "vs", "vsyn", "vsy", "fsync", "fs", "vertsync", "verticalsync"}), ("vsync",), ("vsync", "vs")),
+    "hsync": (frozenset({"hsync", "hs", "hsyn", "hsy", "lsync", "horizsync", "horizontalsync"}), ("hsync",), ("hsync", "hs")),
+    "de": (frozenset({"de", "den", "dataen", "dataenable", "active", "activevideo", "vde", "act", "dispen", "displayen", "videoactive", "vidactive"}), (), ("de", "den")),
+    "data": (
+        frozenset({"data", "pixel", "pix", "px", "rgb", "tdata", "y", "luma", "d", "din", "dout", "q", "video", "vid", "gray", "grey", "pixdata", "pixeldata", "vdata", "viddata", "videodata"}),
+        ("data", "pix", "rgb"),
+        ("data", "pix", "pixel", "rgb"),
+    ),
+}
+_KIND_ORDER = ("clock", "reset", "ready", "valid", "sof", "eol", "vsync", "hsync", "de", "data")
+_ACTIVE_LOW_WORDS = {"rstn", "resetn", "arstn", "aresetn", "nrst", "nreset", "rstb", "resetb"}
+_SCORE_WORDS = {3: "high", 2: "medium", 1: "low"}
+
+
+def _words(name: str) -> list[str]:
+    """Lower-case words of a port name: split at ``_``, digits boundaries kept, camelCase split."""
+    text = re.sub(r"(?<=[a-z0-9])(?=[A-Z])", "_", name.strip("\\"))
+    return [w for w in re.split(r"[^A-Za-z0-9]+", text.lower()) if w]
+
+
+@dataclass(frozen=True)
+class _Reading:
+    """What a port name says: its core words, the side it names, an active-low mark."""
+
+    core: tuple[str, ...]
+    side: str | None
+    active_low: bool
+
+
+def _read_name(name: str) -> _Reading:
+    words = _words(name)
+    side: str | None = None
+    low = False
+    if len(words) > 1 and words[0] in _IN_PREFIX | _OUT_PREFIX:
+        side = "in" if words[0] in _IN_PREFIX else "out"
+        words = words[1:]
+    if len(words) > 1 and words[0] == "axis":
+        words = words[1:]
+    if len(words) > 1 and words[-1] in _IN_SUFFIX | _OUT_SUFFIX | {"ni", "no"}:
+        last = words.pop()
+        side = side or ("in" if last in _IN_SUFFIX or last == "ni" else "out")
+        low = last in ("ni", "no")
+    if len(words) > 1 and words[-1] in ("n", "b"):
+        words.pop()
+        low = True
+    joined = "".join(words)
+    if joined in _ACTIVE_LOW_WORDS:
+        low = True
+    return _Reading(tuple(words), side, low)
+
+
+def _kind_score(reading: _Reading, kind: str) -> int:
+    exact, prefixes, suffixes = _KINDS[kind]
+    joined = "".join(reading.core)
+    if joined in exact:
+        return 3
+    if any(w in exact for w in reading.core):
+        return 2
+    if any(joined.startswith(p) for p in prefixes) or any(joined.endswith(s) for s in suffixes):
+        return 1
+    return 0
+
+
+def _role_for(kind: str, direction: str) -> str | None:
+    if direction not in ("input", "output"):
+        return None
+    if kind in ("clock", "reset"):
+        return kind if direction == "input" else None
+    if kind == "ready":
+        return "in_ready" if direction == "output" else "out_ready"
+    return ("in_" if direction == "input" else "out_") + kind
+
+
+def _fits(kind: str, port: Port) -> bool:
+    if kind == "data":
+        return port.width is None or port.width > 1
+    return port.width in (1, None)
+
+
+@dataclass
+class RoleGuess:
+    """The guessed signal map of one top level.
+
+    Unpacks as ``family, roles, notes = guess_roles(ports)``.
+
+    Attributes:
+        family: "video" or "stream".
+        roles: role -> port name, only roles of ``family`` (see :data:`vkit.sim.signals.FAMILY_ROLES`).
+        notes: one line per thing the user must look at (missing roles, ties, unused ports, widths).
+        confidence: role -> "high" (the name is a usual name for the role), "medium" (one word of the
+            name is), "low" (a partial match or picked as the only port left).
+        reset_active_high: reset polarity read from the name (``_n``/``n``/``_b`` suffix = active low),
+            None when no reset was found.
+        pixel_format: "gray8" or "rgb888" from the input data width.
+        unmapped: ports that play no role.
+    """
+
+    family: str
+    roles: dict[str, str]
+    notes: list[str] = field(default_factory=list)
+    confidence: dict[str, str] = field(default_factory=dict)
+    reset_active_high: bool | None = None
+    pixel_format: str = "gray8"
+    unmapped: list[str] = field(default_factory=list)
+
+    def __iter__(self):  # type: ignore[no-untyped-def]
+        return iter((self.family, self.roles, self.notes))
+
+    @property
+    def missing(self) -> list[str]:
+        """Required roles of the family with no port."""
+        required, _ = FAMILY_ROLES[self.family]
+        return [r for r in required if r not in self.roles]
+
+
+def guess_roles(ports: Sequence[Port], family: str | None = None) -> RoleGuess:
+    """Guess which port plays which role from the usual names, directions and widths.
+
+    Names are read word by word (``pix_clk_i`` -> pix, clk + side "in"; ``s_axis_tvalid`` -> side "in",
+    tvalid; ``arst_n`` -> arst, active low). The port direction decides ``in_`` versus ``out_`` (a
+    ready output is ``in_ready``, a ready input ``out_ready``); a name whose prefix or suffix says the
+    other side is still accepted, with a lower confidence and a note. Control roles need 1-bit ports,
+    data roles wider ones. A data role left without a named port takes the widest remaining port of
+    that direction (confidence "low").
+
+    Args:
+        ports: the top level's ports (:func:`vkit.sim.hdlports.parse_ports`).
+        family: "video" or "stream"; None infers it (video when syncs or data-enable are found,
+            stream when ready/start-of-frame/end-of-line are found).
+
+    Returns:
+        A :class:`RoleGuess`; every guess is for the user to CONFIRM.
+
+    Raises:
+        ConfigError: ``family`` is not a known family.
+    """
+    if family is not None and family not in FAMILY_ROLES:
+        raise ConfigError(f"family {family!r} is not known; use one of {', '.join(FAMILY_ROLES)} or leave it out to infer it")
+    notes: list[str] = []
+    # candidates[role] = [(score, order, port, reading)]
+    candidates: dict[str, list[tuple[int, int, Port, _Reading]]] = {}
+    for order, port in enumerate(ports):
+        reading = _read_name(port.name)
+        scored = [(k, _kind_score(reading, k)) for k in _KIND_ORDER]
+        scored = [(k, s) for k, s in scored if s > 0 and _fits(k, port)]
+        if not scored:
+            continue
+        best = max(s for _, s in scored)
+        for kind, s in scored:
+            if s < best:
+                continue
+            role = _role_for(kind, port.direction)
+            if role is None:
+                continue
+            score = s
+            role_side = "in" if role.startswith("in_") else ("out" if role.startswith("out_") else None)
+            if reading.side is not None and role_side is not None:
+                # a ready's name side is the side of the interface it belongs to, like the others
+                score += 1 if reading.side == role_side else -2
+            candidates.setdefault(role, []).append((score, order, port, reading))
+            break
+    chosen: dict[str, tuple[int, Port, _Reading]] = {}
+    used: set[str] = set()
+    for role in sorted(candidates, key=lambda r: -max(c[0] for c in candidates[r])):
+        cands = sorted((c for c in candidates[role] if c[2].name not in used), key=lambda c: (-c[0], c[1]))
+        if not cands:
+            continue
+        score, _, port, reading = cands[0]
+        ties = [c[2].name for c in cands[1:] if c[0] == score]
+        if ties:
+            notes.append(f"{role}: {port.name} picked over {', '.join(ties)} (same name score); CONFIRM")
+            score = min(score, 1)
+        if reading.side is not None and role.startswith(("in_", "out_")) and not role.startswith(reading.side + "_"):
+            notes.append(f"{role}: {port.name} is an {port.direction} but its name says side '{reading.side}'; CONFIRM")
+        chosen[role] = (score, port, reading)
+        used.add(port.name)
+    # data roles by elimination: the widest port left of that direction
+    for role, direction in (("in_data", "input"), ("out_data", "output")):
+        if role in chosen:
+            continue
+        rest = [p for p in ports if p.direction == direction and p.name not in used and (p.width or 0) > 1]
+        if rest:
+            port = max(rest, key=lambda p: p.width or 0)
+            chosen[role] = (0, port, _read_name(port.name))
+            used.add(port.name)
+            notes.append(f"{role}: {port.name} is the widest {direction} left ({port.width} bits), no name matched; CONFIRM")
+
+    def _count(fam: str) -> int:
+        req, opt = FAMILY_ROLES[fam]
+        return sum(1 for r in (*req, *opt) if r in chosen and r not in ("clock", "reset", "in_data", "out_data", "in_valid", "out_valid"))
+
+    if family is None:
+        video_n, stream_n = _count("video"), _count("stream")
+        if video_n == 0 and stream_n == 0:
+            family = "video"
+            notes.append("family: no sync, data-enable, ready, start-of-frame or end-of-line port found; assumed video; CONFIRM")
+        else:
+            family = "video" if video_n >= stream_n else "stream"
+            notes.append(f"family: {family} (from {video_n if family == 'video' else stream_n} {family} control ports); CONFIRM")
+    required, optional = FAMILY_ROLES[family]
+    roles: dict[str, str] = {}
+    confidence: dict[str, str] = {}
+    for role in (*required, *optional):
+        if role in chosen:
+            score, port, _ = chosen[role]
+            roles[role] = port.name
+            confidence[role] = _SCORE_WORDS.get(max(1, min(3, score)), "low")
+    for role in required:
+        if role not in roles:
+            notes.append(f"{role}: no port found; map it by hand")
+    unmapped = [p.name for p in ports if p.name not in roles.values()]
+    for name in unmapped:
+        p = next(q for q in ports if q.name == name)
+        notes.append(f"port {name} ({p.direction}, {p.width if p.width is not None else p.width_expr or '?'} bits) plays no role; tie it off in a wrapper if it must be driven")
+    reset_high: bool | None = None
+    if "reset" in roles:
+        reading = chosen["reset"][2]
+        reset_high = not reading.active_low
+        notes.append(f"reset: {roles['reset']} taken as active {'high' if reset_high else 'low'} from its name; CONFIRM")
+    pixel_format = "gray8"
+    data = chosen.get("in_data")
+    if data is not None:
+        w = data[1].width
+        if w == 24:
+            pixel_format = "rgb888"
+        elif w == 8:
+            pixel_format = "gray8"
+        elif w is None:
+            notes.append(f"in_data: width of {data[1].name} is {data[1].width_expr or 'unknown'}; assumed gray8 (8 bits); CONFIRM")
+        else:
+            pixel_format = "rgb888" if w > 24 else "gray8"
+            notes.append(f"in_data: {data[1].name} is {w} bits; vkit drives {pixel_format} in its low bits; CONFIRM")
+    return RoleGuess(family, roles, notes, confidence, reset_high, pixel_format, unmapped)
+
+
+# -- which preset the design implements ------------------------------------------------------------
+
+_SPEC_WORDS: tuple[tuple[str, tuple[str, ...]], ...] = (
+    ("edge", ("edge", "sobel", "gradient", "grad")),
+    ("median", ("median", "med3", "despeckle")),
+    ("blur", ("blur", "gauss", "gaussian", "smooth", "lowpass")),
+    ("sharpen", ("sharpen", "sharp", "unsharp", "laplace")),
+    ("erode", ("erode", "erosion")),
+    ("dilate", ("dilate", "dilation")),
+)
+
+
+def guess_spec(names: Sequence[str], pixel_format: str) -> tuple[str, str]:
+    """A pipeline preset for the design: from words in ``names`` (top first, then other modules and
+    files), else "edge" for rgb888 input and "blur" for gray8.
+
+    Returns:
+        (preset name, the reason in a few words).
+    """
+    for name in names:
+        low = name.lower()
+        for spec, words in _SPEC_WORDS:
+            for w in words:
+                if w in low:
+                    return spec, f"the name {name!r} contains {w!r}"
+    if pixel_format == "rgb888":
+        return "edge", "no filter named in the sources; edge is the preset taking rgb888"
+    return "blur", "no filter named in the sources; blur is a gray8 preset"
+
+
+
+# -- writing the starter kit ------------------------------------------------------------------------
+
+
+@dataclass
+class ScaffoldResult:
+    """What :func:`scaffold` wrote and what it guessed.
+
+    Attributes:
+        out_dir: the folder the files went to.
+        config: the starter config (``vkit.toml``).
+        test_module: the cocotb test module (``test_vkit_<top>.py``).
+        makefile: the cocotb Makefile snippet (``Makefile.vkit``).
+        design: the parsed top level (name, language, ports, parameters).
+        guess: the guessed signal map, family, reset polarity and pixel format.
+        spec: the pipeline preset written into the config.
+        simulators: simulators written into the config.
+        notes: every line the user should read, CONFIRM items first.
+    """
+
+    out_dir: Path
+    config: Path
+    test_module: Path
+    makefile: Path
+    design: HdlDesign
+    guess: RoleGuess
+    spec: str
+    simulators: list[str]
+    notes: list[str] = field(default_factory=list)
+
+    @property
+    def files(self) -> list[Path]:
+        """The three files written."""
+        return [self.config, self.test_module, self.makefile]
+
+    def summary(self) -> str:
+        """A few lines for the terminal: the files, the signal map with confidences, the notes."""
+        lines = [f"vkit init: {self.design.name} ({self.design.language}, family {self.guess.family}, spec {self.spec})"]
+        lines += [f"  wrote {p}" for p in self.files]
+        for role, port in self.guess.roles.items():
+            lines.append(f"  {role:10s} -> {port:20s} ({self.guess.confidence.get(role, 'low')})")
+        for role in self.guess.missing:
+            lines.append(f"  {role:10s} -> MISSING (map it by hand in {self.config.name})")
+        lines += [f"  note: {n}" for n in self.notes]
+        lines.append(f"  next: check the CONFIRM lines in {self.config.name}, then `vkit run {self.config.name}` "
+                     f"or `make -f {self.makefile.name} SIM={self.simulators[0]}`")
+        return "\n".join(lines)
+
+
+def _q(text: str) -> str:
+    """A TOML basic string."""
+    return json.dumps(str(text), ensure_ascii=False)
+
+
+def _toml_scalar(value: Any) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (int, float)):
+        return repr(value)
+    return _q(str(value))
+
+
+def _inline_table(table: Mapping[str, Any]) -> str:
+    if not table:
+        return "{}"
+    return "{ " + ", ".join(f"{k} = {_toml_scalar(v)}" for k, v in table.items()) + " }"
+
+
+def _rel(path: Path, base: Path) -> str:
+    return Path(os.path.relpath(path.resolve(), base.resolve())).as_posix()
+
+
+def _template(name: str) -> str:
+    return resources.files("vkit.run").joinpath("templates", name).read_text(encoding="utf-8")
+
+
+def _render(text: str, values: Mapping[str, str]) -> str:
+    for key, value in values.items():
+        text = text.replace("{{" + key + "}}", value)
+    left = re.findall(r"\{\{(\w+)\}\}", text)
+    if left:
+        raise ConfigError(f"template placeholder(s) {', '.join(sorted(set(left)))} have no value; this is a vkit bug, please report it")
+    return text
+
+
+_VIDEO_STIMULUS = """\
+[stimulus]
+# verification patterns plus the conveyor-belt scene (vkit.video.patterns); add images = ["frames/*.png"] for your own
+patterns = ["impulse", "step_right", "checkerboard", "ramp_h", "noise", { name = "conveyor", seeds = [1, 2] }]
+size = [32, 24]          # [width, height] pixels of the "tiny" timing
+timings = ["tiny"]       # add presets as you go: tiny64x48, vga640x480p60, hd1280x720p60, fhd1920x1080p60
+frames = 2
+seeds = [1]
+stalls = [0, { probability = 0.1, max_length = 3 }]   # in_valid low inside data-enable
+"""
+
+_STREAM_STIMULUS = """\
+[stimulus]
+# verification patterns plus the conveyor-belt scene (vkit.video.patterns); add images = ["frames/*.png"] for your own
+patterns = ["impulse", "step_right", "checkerboard", "ramp_h", "noise", { name = "conveyor", seeds = [1, 2] }]
+size = [32, 24]          # [width, height] pixels
+frames = 2
+seeds = [1]
+gaps = [0, 0.1]                                            # source valid low
+backpressure = [0, { probability = 0.2, max_length = 3 }]  # sink ready low
+"""
+
+
+def _config_text(
+    design_name: str,
+    design: HdlDesign,
+    sources: Sequence[Path],
+    out_dir: Path,
+    guess: RoleGuess,
+    spec: str,
+    spec_reason: str,
+    simulators: Sequence[str],
+    parameters: Mapping[str, Any],
+    defines: Mapping[str, Any],
+    ports_by_name: Mapping[str, Port],
+) -> str:
+    from vkit.model.pipeline import PRESETS
+
+    lines = [
+        f"# {CONFIG_NAME}: starter config written by `vkit init` for {design.name}.",
+        "# Lines marked CONFIRM are guesses from the port names and widths: check each against the design.",
+        f"# Run: vkit run {CONFIG_NAME}        or: make -f {MAKEFILE_NAME} SIM={simulators[0]}",
+        "",
+        "[run]",
+        'out_dir = "vkit-out"',
+        f"simulators = [{', '.join(_q(s) for s in simulators)}]",
+        "",
+        f"[designs.{design_name}]",
+        f"top = {_q(design.name)}",
+        f"sources = [{', '.join(_q(_rel(s, out_dir)) for s in sources)}]",
+        _c(f"family = {_q(guess.family)}", "guessed: CONFIRM (video: syncs + data-enable; stream: valid/ready + sof/eol)"),
+    ]
+    data = guess.roles.get("in_data")
+    data_port = ports_by_name.get(data) if data else None
+    why_fmt = f"from {data} ({data_port.width if data_port and data_port.width else '?'} bits)" if data else "no input data port found"
+    lines.append(_c(f"pixel_format = {_q(guess.pixel_format)}", f"guessed {why_fmt}: CONFIRM (gray8 or rgb888)"))
+    lines.append(_c(f"spec = {_q(spec)}", f"guessed, {spec_reason}: CONFIRM (presets: {', '.join(PRESETS)}; or spec_file = \"my_spec.toml\")"))
+    if guess.reset_active_high is not None:
+        lines.append(_c(f"reset_active_high = {_toml_scalar(guess.reset_active_high)}", f"guessed from {guess.roles['reset']}: CONFIRM"))
+    lines += [
+        "reset_cycles = 4",
+        "clock_period_ns = 10.0",
+        _c("tolerance_lsb = 0", "largest accepted |actual - expected|, LSB (0 = bit exact)"),
+        _c("# latency_clocks = 46", "the latency the design declares: first output pixel clock minus first input pixel clock"),
+        _c("# latency_timing = \"tiny32x24\"", "the timing latency_clocks holds for (checked there when given)"),
+    ]
+    if parameters:
+        lines.append(f"parameters = {_inline_table(parameters)}")
+    else:
+        params = {k: v for k, v in design.parameters.items() if v is not None}
+        if params:
+            lines.append(f"# parameters = {_inline_table(params)}   # defaults read from the source")
+    if defines:
+        lines.append(f"defines = {_inline_table(defines)}")
+    lines += ["", f"[designs.{design_name}.ports]"]
+    required, optional = FAMILY_ROLES[guess.family]
+    for role in (*required, *optional):
+        port = guess.roles.get(role)
+        if port is not None:
+            conf = guess.confidence.get(role, "low")
+            p = ports_by_name[port]
+            shape = f"{p.direction}, {p.width if p.width is not None else (p.width_expr or '?')} bit{'s' if p.width != 1 else ''}"
+            lines.append(_c(f"{role} = {_q(port)}", f"guessed (confidence {conf}; {shape}): CONFIRM"))
+        elif role in required:
+            lines.append(_c(f"# {role} = \"\"", "MISSING: no port found; map it to the design's port"))
+    if guess.unmapped:
+        lines.append(f"# not mapped: {', '.join(guess.unmapped)}")
+    lines.append("")
+    lines.append(_VIDEO_STIMULUS if guess.family == "video" else _STREAM_STIMULUS)
+    return "\n".join(lines)
+
+
+def _c(code: str, comment: str) -> str:
+    """A config line with its comment in a column."""
+    return f"{code:34s} # {comment}"
+
+
+def _make_value(value: Any) -> str:
+    if isinstance(value, bool):
+        return "1" if value else "0"
+    if isinstance(value, int):
+        return str(value)
+    return "'\"" + str(value).replace("'", "") + "\"'"
+
+
+def _makefile_text(
+    design_name: str,
+    design: HdlDesign,
+    sources: Sequence[Path],
+    out_dir: Path,
+    test_module: str,
+    default_sim: str,
+    parameters: Mapping[str, Any],
+    defines: Mapping[str, Any],
+) -> str:
+    var = "VHDL_SOURCES" if design.language == "vhdl" else "VERILOG_SOURCES"
+    srcs = [f"$(VKIT_DIR)/{_rel(s, out_dir)}" for s in sources]
+    sources_block = f"{var} += " + " \\\n    ".join(srcs) + "\n"
+    icarus = "".join(f"COMPILE_ARGS += -P$(COCOTB_TOPLEVEL).{k}={_make_value(v)}\n" for k, v in parameters.items())
+    icarus += "".join(f"COMPILE_ARGS += -D{k}={_make_value(v)}\n" for k, v in defines.items())
+    verilator = "".join(f"COMPILE_ARGS += -G{k}={_make_value(v)}\n" for k, v in parameters.items())
+    verilator += "".join(f"COMPILE_ARGS += -D{k}={_make_value(v)}\n" for k, v in defines.items())
+    ghdl = "".join(f"SIM_ARGS += -g{k}={v if isinstance(v, int) else str(v)}\n" for k, v in parameters.items())
+    return _render(
+        _template("Makefile.vkit.tmpl"),
+        {
+            "top": design.name,
+            "design": design_name,
+            "config_name": CONFIG_NAME,
+            "test_module": test_module,
+            "default_sim": default_sim,
+            "language": design.language,
+            "sources_block": sources_block,
+            "icarus_args": icarus,
+            "verilator_args": verilator,
+            "ghdl_args": ghdl,
+            "ghdl_hint": ", SIM=ghdl" if design.language == "vhdl" else "",
+        },
+    )
+
+
+def _test_module_text(design_name: str, design: HdlDesign, default_sim: str) -> str:
+    return _render(
+        _template("test_vkit.py.tmpl"),
+        {"top": design.name, "design": design_name, "config_name": CONFIG_NAME, "default_sim": default_sim},
+    )
+
+
+def scaffold(
+    top: str,
+    sources: Sequence[str | Path],
+    out_dir: str | Path = ".",
+    family: str | None = None,
+    *,
+    spec: str | None = None,
+    pixel_format: str | None = None,
+    simulators: Sequence[str] | None = None,
+    parameters: Mapping[str, Any] | None = None,
+    defines: Mapping[str, Any] | None = None,
+    design_name: str | None = None,
+    force: bool = False,
+) -> ScaffoldResult:
+    """Write a starter kit for design ``top`` into ``out_dir`` (usually the root of the user's RTL repo).
+
+    Writes three files, all from the top level's own port names:
+
+    * ``vkit.toml``: one ``[designs.<name>]`` table (sources relative to the config, the guessed
+      signal map with ``# guessed: CONFIRM`` comments, a pipeline preset to confirm, reset polarity)
+      and a small ``[stimulus]`` (tiny timing, a few patterns and the conveyor scene, with and
+      without stalls or back-pressure). ``vkit run vkit.toml`` runs it.
+    * ``test_vkit_<top>.py``: a cocotb test module that reads the config, runs each case through
+      :func:`vkit.sim.tb.entry.run_case`, scores it against :mod:`vkit.model.pipeline` and writes the report.
+    * ``Makefile.vkit``: cocotb's Makefile flow for that module (``make -f Makefile.vkit SIM=icarus``).
+
+    Args:
+        top: top-level module or entity name.
+        sources: HDL files in compile order.
+        out_dir: folder to write into (created if missing).
+        family: "video" or "stream"; None infers it from the port names.
+        spec: pipeline preset; None guesses it from the module/file names and the pixel format.
+        pixel_format: "gray8" or "rgb888"; None takes it from the input data width.
+        simulators: simulators for the config; default icarus + verilator (Verilog) or ghdl (VHDL).
+        parameters: parameter/generic values for the build (also used to work out port widths).
+        defines: Verilog defines for the build.
+        design_name: the design's name in the config; default ``top``.
+        force: overwrite existing files (otherwise an existing file is a ConfigError and nothing is written).
+
+    Raises:
+        ConfigError: a source is missing, ``top`` is not in the sources (the message lists what is),
+            the sources mix Verilog and VHDL, a name is not valid, or a file exists and ``force`` is False.
+    """
+    from vkit.model.pipeline import PRESETS
+    from vkit.sim.simulators import LANGUAGES, SIMULATORS
+    from vkit.sim.signals import PIXEL_FORMAT_BITS
+
+    if not sources:
+        raise ConfigError("vkit init: no sources given; list the HDL files of the design, in compile order")
+    src_paths = [Path(s) for s in sources]
+    params = dict(parameters or {})
+    defs = dict(defines or {})
+    design = find_design(src_paths, top, parameters={k: v for k, v in params.items() if isinstance(v, int)}, defines={k: str(v) for k, v in defs.items()})
+    all_designs = list_designs(src_paths, parameters={k: v for k, v in params.items() if isinstance(v, int)}, defines={k: str(v) for k, v in defs.items()})
+    languages = {d.language for d in all_designs} | {design.language}
+    from vkit.sim.hdlports import language_of
+
+    languages |= {language_of(p) for p in src_paths}
+    if len(languages) > 1:
+        raise ConfigError(
+            f"vkit init: sources mix {' and '.join(sorted(languages))}; vkit builds one language per design, "
+            "wrap the design in one language or list one language's files"
+        )
+    name = design_name or re.sub(r"\W", "_", design.name)
+    if not re.fullmatch(r"[A-Za-z_][\w-]*", name):
+        raise ConfigError(f"vkit init: design name {name!r} is not a plain name; pass design_name (letters, digits, _ and -)")
+    if spec is not None and spec not in PRESETS:
+        raise ConfigError(f"vkit init: spec {spec!r} is not a preset; use one of {', '.join(PRESETS)} (or edit spec in the config later)")
+    if pixel_format is not None and pixel_format not in PIXEL_FORMAT_BITS:
+        raise ConfigError(f"vkit init: pixel_format {pixel_format!r}; use one of {', '.join(PIXEL_FORMAT_BITS)}")
+    if simulators is None:
+        sims = [s for s in ("icarus", "verilator", "ghdl") if design.language in LANGUAGES[s]]
+    else:
+        sims = list(simulators)
+        for s in sims:
+            if s not in SIMULATORS:
+                raise ConfigError(f"vkit init: simulator {s!r} is not known; use one of {', '.join(SIMULATORS)}")
+            if design.language not in LANGUAGES[s]:
+                raise ConfigError(f"vkit init: {s} does not compile {design.language}; pick one of "
+                                  f"{', '.join(x for x in SIMULATORS if design.language in LANGUAGES[x])}")
+        if not sims:
+            raise ConfigError("vkit init: simulators is empty; name at least one")
+    out = Path(out_dir)
+    test_name = f"test_vkit_{re.sub(r'[^0-9A-Za-z_]', '_', design.name).lower()}"
+    targets = {"config": out / CONFIG_NAME, "test_module": out / f"{test_name}.py", "makefile": out / MAKEFILE_NAME}
+    existing = [str(p) for p in targets.values() if p.exists()]
+    if existing and not force:
+        raise ConfigError(f"vkit init: {', '.join(existing)} already exist(s); nothing was written; pass --force to overwrite")
+
+    guess = guess_roles(design.ports, family)
+    notes = list(guess.notes)
+    if pixel_format is not None and pixel_format != guess.pixel_format:
+        notes.append(f"pixel_format: {pixel_format} as given (the data width suggested {guess.pixel_format})")
+        guess.pixel_format = pixel_format
+    if spec is None:
+        names = [design.name] + [d.name for d in all_designs if d.name != design.name] + [p.stem for p in src_paths]
+        spec_name, reason = guess_spec(names, guess.pixel_format)
+    else:
+        spec_name, reason = spec, "as given"
+    spec_input = PRESETS[spec_name].input
+    if spec_input != guess.pixel_format:
+        notes.append(
+            f"spec: preset {spec_name!r} takes {spec_input} but pixel_format is {guess.pixel_format}; "
+            "pick a preset with that input or write a spec_file; CONFIRM"
+        )
+    notes.append(f"spec: {spec_name} ({reason}); CONFIRM")
+    out.mkdir(parents=True, exist_ok=True)
+    ports_by_name = {p.name: p for p in design.ports}
+    config_text = _config_text(name, design, src_paths, out, guess, spec_name, reason, sims, params, defs, ports_by_name)
+    targets["config"].write_text(config_text, encoding="utf-8")
+    targets["test_module"].write_text(_test_module_text(name, design, sims[0]), encoding="utf-8")
+    targets["makefile"].write_text(
+        _makefile_text(name, design, src_paths, out, test_name, sims[0], params, defs), encoding="utf-8"
+    )
+    return ScaffoldResult(
+        out_dir=out,
+        config=targets["config"],
+        test_module=targets["test_module"],
+        makefile=targets["makefile"],
+        design=design,
+        guess=guess,
+        spec=spec_name,
+        simulators=sims,
+        notes=notes,
+    )
+
+
+def parse_assignments(items: Sequence[str] | None, what: str = "parameter") -> dict[str, int | str]:
+    """``["W=10", "MODE=fast", "DEBUG"]`` -> ``{"W": 10, "MODE": "fast", "DEBUG": 1}`` (command-line -P / -D).
+
+    Raises:
+        ConfigError: an item without a name, or a name that is not an HDL identifier.
+    """
+    out: dict[str, int | str] = {}
+    for item in items or []:
+        name, sep, value = str(item).partition("=")
+        name = name.strip()
+        if not re.fullmatch(r"[A-Za-z_]\w*", name):
+            raise ConfigError(f"{what} {item!r}: give NAME=VALUE with NAME an HDL identifier, e.g. WIDTH=8")
+        text = value.strip()
+        if not sep:
+            out[name] = 1
+        elif re.fullmatch(r"[+-]?\d+", text):
+            out[name] = int(text)
+        else:
+            out[name] = text
+    return out

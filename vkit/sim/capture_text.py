@@ -1,0 +1,342 @@
+"""Parse the fast-path harness's capture file (binary records or text lines) into a :class:`vkit.video.capture.Capture`.
+
+Text format (the VHDL harness; the Verilog harness with ``+vkit_capture_bin=0``): a first line
+``# vkit capture 1 FAMILY``, then one event per line, ``CLOCK KIND ARG``, in the order the harness
+saw them (several per clock possible):
+
+    P <hex>|U   an output pixel (U: the data bus held X or Z)
+    L -         end of an output line (video: data-enable run ended; stream: after an end-of-line pixel)
+    F -         start of an output frame (video: output vsync leading edge; stream: start-of-frame pixel)
+    H -         output hsync leading edge (video)
+    B -         output data-enable high while output vsync was active (video)
+    X <role>    a control output (role name) held X or Z
+    K -         the next pixel waited at least one clock with valid high and ready low (stream)
+    I -         first input transfer accepted (stream)
+    T -         the harness's timeout was reached
+    E -         end of the run; CLOCK is the number of clocks run
+
+Binary format (the Verilog harness's default; little-endian 32-bit words, as Verilog ``%u`` writes
+them): a header of four words, :data:`vkit.sim.harness.CAPTURE_MAGIC`, the version (1), the family
+(0 video, 1 stream) and the output data width in bits; then one record per event of
+:func:`vkit.sim.harness.capture_record_bytes` bytes: the clock, ``kind | code << 8`` (kind the ASCII
+letter above; code 1 on a ``P`` record means X/Z data, on an ``X`` record it indexes
+:data:`vkit.sim.harness.CAPTURE_ROLES`), and ``ceil(width / 32)`` data words, least significant first.
+Both formats give the same Capture for the same run.
+
+Frame and line numbering follow the per-clock monitors exactly: a frame or line delimiter that
+closes an empty frame or line does not advance the count; without an output vsync, a video frame
+closes after ``height`` lines.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from vkit.video.capture import UNKNOWN, Capture
+from vkit.core.errors import ConfigError, DutError
+from vkit.sim.harness import CAPTURE_MAGIC, CAPTURE_ROLES, CAPTURE_VERSION, capture_data_words
+
+__all__ = ["MAX_EVENTS", "parse_capture_text", "parse_capture_binary", "read_capture_text", "read_capture_file",
+           "is_binary_capture"]
+
+MAX_EVENTS = 1000
+"""At most this many entries are kept in an event list (xz_control, de_in_blanking); the rest are counted."""
+
+
+def parse_capture_text(
+    text: str,
+    *,
+    family: str | None = None,
+    height: int | None = None,
+    split_on_height: bool = False,
+    meta: dict[str, Any] | None = None,
+) -> Capture:
+    """Turn capture text into a :class:`Capture`.
+
+    Args:
+        text: the file's content.
+        family: "video" or "stream"; default from the header line.
+        height: active lines per frame (used with ``split_on_height``).
+        split_on_height: close a video frame after ``height`` lines (when the design has no output vsync).
+        meta: meta entries known from the input side (frames_sent, first_input_clock, ...); copied in.
+
+    Raises:
+        ConfigError: the text is not a vkit capture (no header line).
+    """
+    lines = [text.split("\n", 1)[0]]
+    if not lines[0].startswith("# vkit capture"):
+        raise ConfigError("capture text: the first line is not '# vkit capture ...'; give a file written by the vkit harness")
+    head = lines[0].split()
+    family = family or (head[4] if len(head) > 4 else "video")
+    tokens = text.split("\n", 1)[1].split() if "\n" in text else []
+    if len(tokens) % 3:
+        tokens = tokens[: len(tokens) - len(tokens) % 3]  # a run cut short mid-line
+    clocks = tokens[0::3]
+    kinds = tokens[1::3]
+    args = tokens[2::3]
+    kind_a = np.array(kinds, dtype="S1").view(np.uint8) if kinds else np.zeros(0, np.uint8)
+    pos_p = np.flatnonzero(kind_a == ord("P"))
+    clock_all = np.array(clocks, dtype=np.int64) if clocks else np.zeros(0, np.int64)
+    values, xz_data = _hex_values(np.array(args, dtype="S")[pos_p] if pos_p.size else [])
+    return _build(family, clock_all, kind_a, lambda i: args[i], values, xz_data, height, split_on_height, meta)
+
+
+def parse_capture_binary(
+    data: bytes | np.ndarray,
+    *,
+    family: str | None = None,
+    height: int | None = None,
+    split_on_height: bool = False,
+    meta: dict[str, Any] | None = None,
+) -> Capture:
+    """Turn binary capture records into a :class:`Capture` (same arguments and result as :func:`parse_capture_text`).
+
+    Args:
+        data: the file's bytes (``bytes`` or a uint8 array, e.g. from ``np.fromfile``).
+
+    Raises:
+        ConfigError: the data does not start with the binary capture header.
+    """
+    raw = np.frombuffer(data, np.uint8) if isinstance(data, (bytes, bytearray, memoryview)) else np.asarray(data, np.uint8)
+    if raw.size < 16 or not is_binary_capture(raw[:4].tobytes()):
+        raise ConfigError("capture file: no binary capture header (VKCB); give a file written by the vkit harness")
+    magic, version, fam_code, width = (int(v) for v in raw[:16].view("<u4"))
+    del magic
+    if version != CAPTURE_VERSION:
+        raise ConfigError(f"capture file: binary format version {version}, this vkit reads {CAPTURE_VERSION}; "
+                          "rebuild the harness with this vkit")
+    family = family or ("stream" if fam_code == 1 else "video")
+    nw = capture_data_words(width)
+    rec = 8 + 4 * nw
+    body = raw[16:]
+    body = body[: body.size - body.size % rec]  # a run cut short mid-record
+    words = body.view("<u4").reshape(-1, 2 + nw)
+    clock_all = words[:, 0].astype(np.int64)
+    kc = words[:, 1]
+    kind_a = (kc & 0xFF).astype(np.uint8)
+    code = ((kc >> 8) & 0xFF).astype(np.int64)
+    pos_p = np.flatnonzero(kind_a == ord("P"))
+    xz = code[pos_p] == 1
+    if nw <= 2:
+        d = words[pos_p, 2:].astype(np.uint64)
+        v = d[:, 0] | (d[:, 1] << np.uint64(32)) if nw == 2 else d[:, 0]
+        values = v.astype(np.int64)
+    else:  # wider than 64 bits: Python ints, as the text parser does
+        values = np.array([sum(int(w) << (32 * j) for j, w in enumerate(row)) for row in words[pos_p, 2:]], np.int64)
+    values[xz] = UNKNOWN
+
+    def arg(i: int) -> str:
+        c = int(code[i])
+        return CAPTURE_ROLES[c] if 0 < c < len(CAPTURE_ROLES) else "-"
+
+    return _build(family, clock_all, kind_a, arg, values, int(xz.sum()), height, split_on_height, meta)
+
+
+def is_binary_capture(head: bytes) -> bool:
+    """True when ``head`` (the first 4+ bytes of a file) is a binary capture header."""
+    return len(head) >= 4 and int.from_bytes(head[:4], "little") == CAPTURE_MAGIC
+
+
+def _build(family: str, clock_all: np.ndarray, kind_a: np.ndarray, arg_of: Any, values: np.ndarray, xz_data: int,
+           height: int | None, split_on_height: bool, meta: dict[str, Any] | None) -> Capture:
+    """The Capture from decoded events (clock and ASCII kind code per event, values per pixel event); both formats."""
+    out_meta: dict[str, Any] = dict(meta or {})
+    out_meta.setdefault("family", family)
+    out_meta.setdefault("notes", [])
+    counts = {"xz_control": 0, "de_in_blanking": 0}
+    xz_control: list[list[Any]] = []
+    de_in_blanking: list[int] = []
+    hsync_per_frame: list[int] = []
+    vsync_count = 0
+    hs_count = 0
+    timed_out = False
+    clocks_run: int | None = None
+    first_input: int | None = None
+    waited_next: list[int] = []
+
+    is_p = kind_a == ord("P")
+    pos_p = np.flatnonzero(is_p)
+    k = int(pos_p.size)
+    clock_a = clock_all[pos_p]
+    if split_on_height and height and (kind_a == ord("F")).any():
+        frame_a, line_a, col_a = _positions_loop(kind_a, bool(split_on_height), height)
+    else:
+        frame_a, line_a, col_a = _positions(kind_a, is_p, pos_p, bool(split_on_height), height)
+    for i in np.flatnonzero(~is_p).tolist():
+        kind = chr(kind_a[i])
+        if kind == "F":
+            if family == "video":
+                vsync_count += 1
+                hsync_per_frame.append(hs_count)
+                hs_count = 0
+        elif kind == "H":
+            hs_count += 1
+        elif kind == "B":
+            counts["de_in_blanking"] += 1
+            if counts["de_in_blanking"] <= MAX_EVENTS:
+                de_in_blanking.append(int(clock_all[i]))
+        elif kind == "X":
+            counts["xz_control"] += 1
+            if counts["xz_control"] <= MAX_EVENTS:
+                xz_control.append([int(clock_all[i]), arg_of(i)])
+        elif kind == "K":
+            waited_next.append(int(np.searchsorted(pos_p, i)))
+        elif kind == "I":
+            first_input = int(clock_all[i])
+        elif kind == "T":
+            timed_out = True
+        elif kind == "E":
+            clocks_run = int(clock_all[i])
+    cap = Capture(values, clock_a, frame_a, line_a, col_a, out_meta)
+    m = cap.meta
+    m["xz_data_count"] = xz_data
+    m["xz_control"] = xz_control
+    if family == "video":
+        m["de_in_blanking"] = de_in_blanking
+        m["output_vsync_count"] = vsync_count
+        m["output_hsync_per_frame"] = hsync_per_frame
+    if family == "stream":
+        m["backpressure_pixels"] = [[int(frame_a[i]), int(line_a[i]), int(col_a[i])] for i in waited_next if i < k]
+    if first_input is not None:
+        m["first_input_clock"] = first_input
+    m["first_output_clock"] = int(clock_a[0]) if k else None
+    if m.get("first_output_clock") is not None and m.get("first_input_clock") is not None:
+        m["latency_clocks"] = int(m["first_output_clock"]) - int(m["first_input_clock"])
+    if clocks_run is None:
+        m["notes"].append("capture text has no end line: the simulation stopped before the harness finished")
+        clocks_run = int(clock_all[-1]) + 1 if clock_all.size else 0
+        timed_out = True
+    m["clocks_run"] = clocks_run
+    m["timed_out"] = bool(timed_out)
+    for key, total in counts.items():
+        if total > MAX_EVENTS:
+            m["notes"].append(f"{key}: {total} events, only the first {MAX_EVENTS} are listed")
+    return cap
+
+
+_HEX_LUT = np.full(256, -1, np.int64)
+for _i, _c in enumerate(b"0123456789abcdef"):
+    _HEX_LUT[_c] = _i
+for _i, _c in enumerate(b"ABCDEF"):
+    _HEX_LUT[_c] = 10 + _i
+
+
+def _hex_values(texts: Any) -> tuple[np.ndarray, int]:
+    """Hex words to int64 (vectorised); anything not plain hex (U, x, z) becomes UNKNOWN. Returns (values, unknown count)."""
+    n = len(texts)
+    if n == 0:
+        return np.zeros(0, np.int64), 0
+    raw = np.asarray(texts, dtype="S")
+    width = raw.dtype.itemsize
+    if width > 15:  # more than 60 bits: Python ints, then the same rules
+        out = np.empty(n, np.int64)
+        bad = 0
+        for i, t in enumerate(texts):
+            try:
+                out[i] = int(t.decode(), 16)
+            except ValueError:
+                out[i] = UNKNOWN
+                bad += 1
+        return out, bad
+    padded = np.char.rjust(raw, width, b"0")
+    digits = _HEX_LUT[np.frombuffer(padded.tobytes(), np.uint8).reshape(n, width)]
+    bad = (digits < 0).any(axis=1)
+    weights = (np.int64(16) ** np.arange(width - 1, -1, -1, dtype=np.int64))[None, :]
+    values = (np.where(digits < 0, 0, digits) * weights).sum(axis=1)
+    values[bad] = UNKNOWN
+    return values.astype(np.int64), int(bad.sum())
+
+
+def _positions(kind: np.ndarray, is_p: np.ndarray, pos_p: np.ndarray, split: bool, height: int | None
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Frame, line and column of every pixel event, vectorised (see the module docstring for the rules)."""
+    n = kind.size
+    is_l = kind == ord("L")
+    is_f = kind == ord("F")
+    cum_p = np.cumsum(is_p)
+    idx = np.arange(n)
+    # An L or F closes a non-empty line when a pixel came since the last L or F.
+    delim = is_l | is_f
+    d_pos = np.flatnonzero(delim)
+    p_at_d = cum_p[d_pos]
+    prev_p_at_d = np.concatenate(([0], p_at_d[:-1]))
+    eff_l = np.zeros(n, bool)
+    eff_l[d_pos] = (p_at_d > prev_p_at_d) & is_l[d_pos]
+    # An F opens a new frame when a pixel came since the last F.
+    f_pos = np.flatnonzero(is_f)
+    p_at_f = cum_p[f_pos]
+    prev_p_at_f = np.concatenate(([0], p_at_f[:-1]))
+    eff_f = np.zeros(n, bool)
+    eff_f[f_pos] = p_at_f > prev_p_at_f
+    cum_eff_l = np.cumsum(eff_l)
+    last_d = np.maximum.accumulate(np.where(delim, idx, -1))
+    last_f = np.maximum.accumulate(np.where(is_f, idx, -1))
+    base_p = np.where(last_d >= 0, cum_p[np.maximum(last_d, 0)], 0)
+    col = cum_p - 1 - base_p
+    if split and height:
+        frame = cum_eff_l // height
+        line = cum_eff_l % height
+    else:
+        frame = np.cumsum(eff_f)
+        line = cum_eff_l - np.where(last_f >= 0, cum_eff_l[np.maximum(last_f, 0)], 0)
+    return (frame[pos_p].astype(np.int64), line[pos_p].astype(np.int64), col[pos_p].astype(np.int64))
+
+
+def _positions_loop(kind: np.ndarray, split: bool, height: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Frame, line and column of every pixel event, one event at a time (frames split on height and on F)."""
+    frame = line = col = lines_in_frame = 0
+    frame_has = line_has = False
+    out: list[tuple[int, int, int]] = []
+    for k in kind.tolist():
+        if k == 80:  # P
+            out.append((frame, line, col))
+            col += 1
+            frame_has = line_has = True
+        elif k == 76:  # L
+            if line_has:
+                line += 1
+                lines_in_frame += 1
+                if split and lines_in_frame >= height:
+                    frame += 1
+                    line = lines_in_frame = 0
+                    frame_has = False
+            col = 0
+            line_has = False
+        elif k == 70:  # F
+            if frame_has:
+                frame += 1
+            line = col = lines_in_frame = 0
+            frame_has = line_has = False
+    arr = np.array(out, np.int64).reshape(-1, 3)
+    return arr[:, 0].copy(), arr[:, 1].copy(), arr[:, 2].copy()
+
+
+def read_capture_text(path: str | Path, **kwargs: Any) -> Capture:
+    """Read a capture text file (see :func:`parse_capture_text` for the keyword arguments).
+
+    Raises:
+        DutError: the file does not exist (the simulation never opened it).
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise DutError(f"capture text {str(p)!r} does not exist: the simulation did not start the harness; see the simulator log")
+    return parse_capture_text(p.read_text(errors="replace"), **kwargs)
+
+
+def read_capture_file(path: str | Path, **kwargs: Any) -> Capture:
+    """Read a harness capture file in either format (binary records or text lines; told apart by the header).
+
+    Raises:
+        DutError: the file does not exist (the simulation never opened it).
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise DutError(f"capture file {str(p)!r} does not exist: the simulation did not start the harness; see the simulator log")
+    with open(p, "rb") as fh:
+        head = fh.read(4)
+    if is_binary_capture(head):
+        return parse_capture_binary(np.fromfile(p, np.uint8), **kwargs)
+    return parse_capture_text(p.read_text(errors="replace"), **kwargs)

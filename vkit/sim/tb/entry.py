@@ -1,0 +1,203 @@
+"""The cocotb test the runner runs, and ``run_case`` for your own cocotb tests.
+
+The runner writes a :class:`~vkit.sim.case.SimCase` as JSON, points the environment variable ``VKIT_CASE``
+at it and runs this module (``test_module="vkit.sim.tb.entry"``). The test drives every frame, captures the
+output and always saves the capture, partial on timeout or error; scoring happens outside the simulator.
+
+Your own cocotb test can do the same in one call::
+
+    import cocotb
+    from vkit.sim.case import SimCase
+    from vkit.sim.tb.entry import run_case
+
+    @cocotb.test()
+    async def edge_frames(dut):
+        case = SimCase(
+            family="video",
+            signals={"clock": "clk", "reset": "rst", "in_vsync": "in_vsync", "in_hsync": "in_hsync",
+                     "in_de": "in_de", "in_valid": "in_valid", "in_data": "in_data",
+                     "out_vsync": "out_vsync", "out_hsync": "out_hsync", "out_de": "out_de",
+                     "out_valid": "out_valid", "out_data": "out_data"},
+            frames_file="frames.npy", capture_file="capture.npz", width=32, height=24,
+            pixel_format="rgb888", stalls={"probability": 0.1, "max_length": 3, "seed": 7},
+        )
+        capture = await run_case(dut, case)      # also saved to capture.npz
+        assert not capture.meta["timed_out"]
+        frames = capture.frames(case.height, case.width)
+"""
+
+from __future__ import annotations
+
+import json
+import os
+from pathlib import Path
+from typing import Any
+
+import cocotb
+from cocotb.clock import Clock
+from cocotb.triggers import ClockCycles, First, ReadWrite
+from cocotb.utils import get_sim_time
+
+from vkit.video.capture import Capture
+from vkit.core.errors import ConfigError
+from vkit.sim.case import CASE_ENV, SimCase, error_file_for
+from vkit.sim.signals import pixel_bits
+from vkit.sim.tb.stream import StreamMonitor, StreamSink, StreamSource
+from vkit.sim.tb.video import VideoMonitor, VideoSource
+
+__all__ = ["run_case", "vkit_case", "DRAIN_LINES"]
+
+DRAIN_LINES = 2
+"""Video lines watched after the last input clock, so trailing output syncs are seen."""
+
+
+def _error_line(exc: BaseException) -> str:
+    text = " ".join(str(exc).split())
+    return f"{type(exc).__name__}: {text}" if text else type(exc).__name__
+
+
+def _save(capture: Capture, case_capture_file: str | Path, error: str | None) -> None:
+    path = Path(case_capture_file)
+    sidecar = error_file_for(path)
+    if error:
+        capture.meta["error"] = error
+        capture.meta.setdefault("notes", []).append(error)
+    capture.save(path)
+    if error:
+        sidecar.write_text(error + "\n")
+
+
+async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
+    """Run one :class:`SimCase` on ``dut``: clock, reset, drive all frames, capture, wait (bounded).
+
+    Args:
+        dut: the cocotb top-level handle.
+        case: what to run.
+        save: write the capture to ``case.capture_file`` (always, also when this raises); on an error the
+            capture meta gets an ``error`` line and the same line goes to a ``.error.txt`` file beside it.
+
+    Returns:
+        The capture (meta ``timed_out`` is True when not every frame came out within the timeout).
+
+    Raises:
+        ConfigError: the case does not fit the DUT (misnamed port, narrow data bus, bad frames file).
+    """
+    meta: dict[str, Any] = {
+        "family": case.family,
+        "simulator": case.simulator or cocotb.SIM_NAME,
+        "clock_period_ns": case.clock_period_ns,
+        "notes": [],
+    }
+    if save:
+        error_file_for(case.capture_file).unlink(missing_ok=True)
+    monitor: VideoMonitor | StreamMonitor | None = None
+    send_task = None
+    sink: StreamSink | None = None
+    error: str | None = None
+    try:
+        frames = case.load_frames()
+        n_frames = int(frames.shape[0])
+        meta["frames_sent"] = n_frames
+        timeout = case.effective_timeout_clocks(n_frames)
+        meta["timeout_clocks"] = timeout
+        smap = case.signal_map()
+        handles = smap.resolve(dut, {"in_data": pixel_bits(case.pixel_format)})
+        clock = handles["clock"]
+        reset = handles.get("reset")
+        if case.family == "video":
+            timing = case.video_timing()
+            monitor = VideoMonitor(
+                dut, smap, clock, reset,
+                expected_height=case.height, expected_width=case.width,
+                vsync_active_high=timing.vsync_active_high, hsync_active_high=timing.hsync_active_high,
+                reset_active_high=case.reset_active_high, meta=meta,
+            )
+            source: VideoSource | StreamSource = VideoSource(
+                dut, smap, clock, reset,
+                timing=timing, stalls=case.stall_pattern(), pixel_format=case.pixel_format,
+                blanking=case.blanking, blanking_value=case.blanking_value, seed=case.seed,
+                reset_active_high=case.reset_active_high, stats=monitor.meta,
+            )
+        else:
+            monitor = StreamMonitor(
+                dut, smap, clock, reset,
+                expected_height=case.height, expected_width=case.width,
+                reset_active_high=case.reset_active_high, meta=meta,
+            )
+            source = StreamSource(
+                dut, smap, clock, reset,
+                gaps=case.gap_pattern(), pixel_format=case.pixel_format, seed=case.seed,
+                reset_active_high=case.reset_active_high, stats=monitor.meta,
+            )
+            sink = StreamSink(dut, smap, clock, reset, backpressure=case.backpressure_pattern())
+
+        Clock(clock, case.clock_period_ns, unit="ns").start()
+        if reset is not None:
+            reset.value = 1 if case.reset_active_high else 0
+            await ClockCycles(clock, case.reset_cycles)
+            reset.value = 0 if case.reset_active_high else 1
+        else:
+            await ClockCycles(clock, case.reset_cycles)
+        # Let the release reach the design before the components read it, so they all count from here.
+        await ReadWrite()
+        # capture clock k is the (k+1)-th rising edge after this time (the runner's wave window needs it)
+        monitor.meta["start_time_ps"] = int(get_sim_time("ps"))
+        monitor.start()
+        if sink is not None:
+            sink.start()
+        send_task = cocotb.start_soon(source.send(frames))
+        done = await monitor.wait_frames(n_frames, timeout)
+        if done:
+            # Keep watching until the input side has finished its last frame's blanking and a little
+            # after, so the output's trailing syncs are counted too (still bounded by the timeout).
+            remaining = max(1, timeout - monitor.clocks)
+            if not send_task.done():
+                waiter = cocotb.start_soon(monitor.wait_clocks(remaining))
+                await First(send_task, waiter)
+                waiter.cancel()
+            if case.family == "video":
+                await monitor.wait_clocks(DRAIN_LINES * case.video_timing().h_total)
+        elif not send_task.done():
+            monitor.meta["notes"].append("the source had not sent every frame when the timeout hit")
+    except Exception as exc:
+        error = _error_line(exc)
+        raise
+    finally:
+        if send_task is not None and not send_task.done():
+            send_task.cancel()
+        if sink is not None:
+            sink.stop()
+        if monitor is not None:
+            monitor.stop()
+            capture = monitor.capture()
+        else:
+            capture = Capture(meta=meta)
+        if save:
+            _save(capture, case.capture_file, error)
+    return capture
+
+
+def _capture_file_from_raw(path: str) -> str | None:
+    """Best effort: the capture_file of a case JSON that did not load as a SimCase."""
+    try:
+        data = json.loads(Path(path).read_text())
+        value = data.get("capture_file") if isinstance(data, dict) else None
+        return str(value) if value else None
+    except (OSError, ValueError):
+        return None
+
+
+@cocotb.test()
+async def vkit_case(dut: Any) -> None:
+    """Run the SimCase named by the ``VKIT_CASE`` environment variable and save its capture."""
+    path = os.environ.get(CASE_ENV)
+    if not path:
+        raise ConfigError(f"environment variable {CASE_ENV} is not set; point it at a case JSON written by SimCase.to_json")
+    try:
+        case = SimCase.from_json(path)
+    except Exception as exc:
+        target = _capture_file_from_raw(path)
+        if target:
+            _save(Capture(meta={"notes": []}), target, _error_line(exc))
+        raise
+    await run_case(dut, case)

@@ -1,0 +1,298 @@
+"""Load and save 8-bit gray or RGB images (PNG, PPM, PGM) with explicit mode checks and conversions."""
+
+from __future__ import annotations
+
+import threading
+import warnings
+from pathlib import Path
+from typing import Literal
+
+import numpy as np
+from PIL import Image, UnidentifiedImageError
+
+from vkit.core.errors import ConfigError
+
+__all__ = ["DEFAULT_MAX_PIXELS", "load_image", "save_image", "to_uint8", "pack_rgb", "unpack_rgb"]
+
+DEFAULT_MAX_PIXELS = 40_000_000
+"""Largest image (width * height) :func:`load_image` opens unless told otherwise."""
+
+Mode = Literal["auto", "gray8", "rgb888"]
+
+_READ_FORMATS = {"PNG", "PPM"}  # Pillow's PPM plugin reads PPM, PGM and PBM
+_SAVE_FORMATS = {".png": "PNG", ".ppm": "PPM", ".pgm": "PPM"}
+_BOMB_LOCK = threading.Lock()
+
+# Pillow mode -> (what it is, what convert=True does)
+_CONVERTIBLE = {
+    "1": ("1-bit black and white", "expand it to 0/255 gray"),
+    "P": ("palette", "expand the palette to RGB"),
+    "PA": ("palette with alpha", "expand the palette to RGB and drop the alpha channel"),
+    "RGBA": ("RGB with alpha", "drop the alpha channel"),
+    "RGBa": ("RGB with premultiplied alpha", "drop the alpha channel"),
+    "LA": ("gray with alpha", "drop the alpha channel"),
+    "La": ("gray with premultiplied alpha", "drop the alpha channel"),
+    "I;16": ("16-bit gray", "keep the top 8 bits"),
+    "I;16B": ("16-bit gray", "keep the top 8 bits"),
+    "I;16L": ("16-bit gray", "keep the top 8 bits"),
+    "I": ("16-bit gray", "keep the top 8 bits"),
+}
+
+
+def _fail(path: Path, problem: str, fix: str) -> ConfigError:
+    return ConfigError(f"image {path}: {problem}; {fix}")
+
+
+def _wide_source(im: Image.Image) -> str | None:
+    """Describe samples wider than 8 bits (or a PPM maxval other than 255), read before decoding; None if 8-bit."""
+    for tile in im.tile or []:
+        args = tile[3]
+        raw = args[0] if isinstance(args, tuple) and args else args
+        if im.format == "PPM" and isinstance(args, tuple) and len(args) >= 2:
+            maxval = args[-1]
+            if isinstance(maxval, int) and maxval != 255 and im.mode != "1":
+                return f"maxval {maxval} instead of 255"
+        if isinstance(raw, str) and ";16" in raw:
+            return "16-bit samples"
+    return None
+
+
+def load_image(
+    path: str | Path,
+    mode: Mode = "auto",
+    convert: bool = False,
+    max_pixels: int = DEFAULT_MAX_PIXELS,
+) -> np.ndarray:
+    """Read a PNG, PPM or PGM file into a uint8 array.
+
+    Args:
+        path: the file.
+        mode: ``"auto"`` keeps gray as ``(H, W)`` and colour as ``(H, W, 3)``; ``"gray8"`` demands
+            ``(H, W)``; ``"rgb888"`` demands ``(H, W, 3)``.
+        convert: allow explicit conversions, each lossy or a guess at intent, so none is silent:
+            16-bit samples keep their top 8 bits (PNG as stored; PPM/PGM with a maxval other than
+            255 are first rescaled to the full range by Pillow); RGBA/LA/PA drop alpha; palette
+            images expand to RGB; 1-bit images become 0/255 gray; for ``"rgb888"`` gray is copied
+            to 3 channels; for ``"gray8"`` colour becomes Pillow's ``L`` luma
+            (ITU-R 601-2 weights 299/587/114), or one channel when R == G == B everywhere.
+        max_pixels: decompression-bomb guard: a file claiming more than this many pixels
+            (width * height) is refused before it is decoded.
+
+    Returns:
+        ``uint8`` array, ``(H, W)`` gray or ``(H, W, 3)`` RGB.
+
+    Raises:
+        ConfigError: missing or unreadable file, an unsupported format or mode, a mode that needs
+            ``convert=True``, or an image over ``max_pixels``. The message is one line.
+    """
+    p = Path(path)
+    if mode not in ("auto", "gray8", "rgb888"):
+        raise ConfigError(f"load_image: mode = {mode!r}; use 'auto', 'gray8' or 'rgb888'")
+    if not p.is_file():
+        raise _fail(p, "no such file", "check the path")
+    im = _open_guarded(p, max_pixels)
+    try:
+        if im.format not in _READ_FORMATS:
+            raise _fail(p, f"format {im.format} is not read by vkit", "save it as PNG, PPM or PGM")
+        arr = _to_array(p, im, mode, convert)
+    finally:
+        im.close()
+    return arr
+
+
+def _open_guarded(p: Path, max_pixels: int) -> Image.Image:
+    if isinstance(max_pixels, bool) or not isinstance(max_pixels, int) or max_pixels < 1:
+        raise ConfigError(f"load_image: max_pixels = {max_pixels!r}; give a positive integer pixel count")
+    fix = f"pass a larger max_pixels (now {max_pixels}) if you trust the file"
+    try:
+        with _BOMB_LOCK, warnings.catch_warnings():
+            warnings.simplefilter("error", Image.DecompressionBombWarning)
+            saved = Image.MAX_IMAGE_PIXELS
+            # Pillow warns above its limit and refuses above twice it; warnings are errors here.
+            Image.MAX_IMAGE_PIXELS = max_pixels
+            try:
+                im = Image.open(p)
+            finally:
+                Image.MAX_IMAGE_PIXELS = saved
+    except (Image.DecompressionBombError, Image.DecompressionBombWarning) as err:
+        claimed = _claimed_pixels(str(err))
+        raise _fail(p, f"claims {claimed} pixels, over the limit of {max_pixels} (decompression-bomb guard)", fix)
+    except UnidentifiedImageError:
+        raise _fail(p, "is not an image Pillow can identify", "give a PNG, PPM or PGM file") from None
+    except (OSError, ValueError, SyntaxError) as err:
+        raise _fail(p, f"cannot be read ({str(err).splitlines()[0] if str(err) else type(err).__name__})",
+                    "check the file is a complete PNG, PPM or PGM") from None
+    w, h = im.size
+    if w * h > max_pixels:  # belt and braces: Pillow's own check may be switched off globally
+        im.close()
+        raise _fail(p, f"claims {w * h} pixels ({w}x{h}), over the limit of {max_pixels} (decompression-bomb guard)",
+                    fix)
+    return im
+
+
+def _claimed_pixels(message: str) -> str:
+    # Pillow's message reads "Image size (N pixels) exceeds limit of M pixels..."
+    for part in message.replace("(", " ").split():
+        if part.isdigit():
+            return part
+    return "too many"
+
+
+def _to_array(p: Path, im: Image.Image, mode: Mode, convert: bool) -> np.ndarray:
+    src_mode = im.mode
+    wide = _wide_source(im)
+    try:
+        im.load()
+    except (OSError, ValueError, SyntaxError) as err:
+        raise _fail(p, f"cannot be decoded ({str(err).splitlines()[0] if str(err) else type(err).__name__})",
+                    "check the file is complete") from None
+
+    if src_mode in ("L", "RGB") and wide is None:
+        arr = np.asarray(im, dtype=np.uint8)
+    elif src_mode in _CONVERTIBLE or src_mode in ("L", "RGB"):
+        kind = "gray" if src_mode == "L" else "RGB"
+        what, how = _CONVERTIBLE.get(src_mode, (f"{kind} with {wide}", "rescale the samples to 0..255 (Pillow)"))
+        if wide and src_mode in ("L", "RGB") and "16-bit" in wide:
+            how = "keep the top 8 bits"
+        if wide and src_mode.startswith("I") and "maxval" in wide:
+            what = f"gray with {wide}"
+            how = "rescale to 0..65535 (Pillow) and keep the top 8 bits"
+        if not convert:
+            raise _fail(p, f"mode is {src_mode} ({what}), vkit reads 8-bit gray or RGB",
+                        f"pass --convert / convert=True to {how}, or re-save it as 8-bit gray or RGB")
+        arr = _convert(im)
+    else:
+        raise _fail(p, f"mode {src_mode} is not supported", "re-save it as 8-bit gray or RGB PNG")
+
+    if mode == "gray8" and arr.ndim == 3:
+        if np.array_equal(arr[..., 0], arr[..., 1]) and np.array_equal(arr[..., 0], arr[..., 2]):
+            if not convert and src_mode == "RGB":
+                raise _fail(p, "is RGB (with equal channels) but gray8 was asked",
+                            "pass --convert / convert=True to take one channel, or use mode 'auto'")
+            arr = np.ascontiguousarray(arr[..., 0])
+        elif convert:
+            arr = np.asarray(Image.fromarray(arr, "RGB").convert("L"), dtype=np.uint8)
+        else:
+            raise _fail(p, "is RGB but gray8 was asked",
+                        "pass --convert / convert=True for ITU-R 601-2 luma, or load rgb888 and use vkit.model.luma")
+    elif mode == "rgb888" and arr.ndim == 2:
+        if not convert:
+            raise _fail(p, "is gray but rgb888 was asked",
+                        "pass --convert / convert=True to copy gray into R, G and B, or use mode 'auto'")
+        arr = np.repeat(arr[:, :, None], 3, axis=2)
+    return np.ascontiguousarray(arr, dtype=np.uint8)
+
+
+def _convert(im: Image.Image) -> np.ndarray:
+    m = im.mode
+    if m == "1":
+        return np.asarray(im.convert("L"), dtype=np.uint8)
+    if m in ("P", "PA"):
+        return np.asarray(im.convert("RGBA").convert("RGB"), dtype=np.uint8)
+    if m in ("RGBA", "RGBa"):
+        return np.asarray(im, dtype=np.uint8)[..., :3].copy()
+    if m in ("LA", "La"):
+        return np.asarray(im, dtype=np.uint8)[..., 0].copy()
+    if m.startswith("I"):
+        wide = np.asarray(im).astype(np.int64)
+        return np.clip(wide >> 8, 0, 255).astype(np.uint8)
+    # L or RGB decoded from 16-bit samples: Pillow already kept 8 bits
+    return np.asarray(im, dtype=np.uint8)
+
+
+def save_image(array: np.ndarray, path: str | Path) -> Path:
+    """Write an 8-bit gray ``(H, W)`` or RGB ``(H, W, 3)`` array as PNG, PPM or PGM (by extension).
+
+    ``.pgm`` takes gray only, ``.ppm`` RGB only, ``.png`` either. Integer arrays of any dtype are
+    accepted when every value is in 0..255; anything else (floats, bools, values out of range) is an
+    error: scale it first with :func:`to_uint8`.
+
+    Returns:
+        The path written.
+
+    Raises:
+        ConfigError: unknown extension, wrong shape or dtype, values out of range, or a write error.
+    """
+    p = Path(path)
+    ext = p.suffix.lower()
+    if ext not in _SAVE_FORMATS:
+        raise _fail(p, f"extension {ext or '(none)'} is not written by vkit", "use .png, .ppm or .pgm")
+    a = np.asarray(array)
+    if a.ndim == 3 and a.shape[2] == 3:
+        kind = "RGB"
+    elif a.ndim == 2:
+        kind = "L"
+    else:
+        raise _fail(p, f"array shape {a.shape} is neither (H, W) gray nor (H, W, 3) RGB", "pass one of those")
+    if a.size == 0:
+        raise _fail(p, f"array shape {a.shape} is empty", "pass an image with at least one pixel")
+    if ext == ".pgm" and kind != "L":
+        raise _fail(p, "PGM holds gray only, the array is RGB", "save as .ppm or .png")
+    if ext == ".ppm" and kind != "RGB":
+        raise _fail(p, "PPM here holds RGB only, the array is gray", "save as .pgm or .png")
+    if a.dtype != np.uint8:
+        if a.dtype == np.bool_ or not np.issubdtype(a.dtype, np.integer):
+            raise _fail(p, f"array dtype is {a.dtype}, not an integer type",
+                        "scale it with vkit.video.images.to_uint8(array, lo, hi)")
+        lo, hi = int(a.min()), int(a.max())
+        if lo < 0 or hi > 255:
+            raise _fail(p, f"values span {lo}..{hi}, outside 0..255",
+                        "scale it with vkit.video.images.to_uint8(array, lo, hi)")
+        a = a.astype(np.uint8)
+    try:
+        p.parent.mkdir(parents=True, exist_ok=True)
+        Image.fromarray(np.ascontiguousarray(a), kind).save(p, format=_SAVE_FORMATS[ext])
+    except OSError as err:
+        raise _fail(p, f"cannot be written ({err.strerror or err})", "check the folder is writable") from None
+    return p
+
+
+def to_uint8(array: np.ndarray, lo: float, hi: float) -> np.ndarray:
+    """Scale ``array`` linearly so ``lo`` maps to 0 and ``hi`` to 255, rounding half up and clipping.
+
+    Args:
+        array: any real array.
+        lo: input value shown as 0.
+        hi: input value shown as 255, > ``lo``.
+
+    Returns:
+        ``uint8`` array of the same shape: ``clip(floor((v - lo) * 255 / (hi - lo) + 0.5), 0, 255)``.
+    """
+    if not hi > lo:
+        raise ConfigError(f"to_uint8: hi = {hi!r} must be greater than lo = {lo!r}")
+    a = np.asarray(array, dtype=np.float64)
+    scaled = np.floor((a - lo) * (255.0 / (float(hi) - float(lo))) + 0.5)
+    return np.clip(scaled, 0, 255).astype(np.uint8)
+
+
+def pack_rgb(rgb: np.ndarray) -> np.ndarray:
+    """Pack 8:8:8 RGB into pixel-bus words: ``R << 16 | G << 8 | B`` (red in bits 23..16, blue in 7..0).
+
+    Args:
+        rgb: ``(..., 3)`` integer array with values 0..255, channel order R, G, B.
+
+    Returns:
+        ``uint32`` array of shape ``rgb.shape[:-1]``.
+    """
+    a = np.asarray(rgb)
+    if a.ndim < 1 or a.shape[-1] != 3:
+        raise ConfigError(f"pack_rgb: shape {a.shape} has no trailing axis of 3 (R, G, B); pass (..., 3)")
+    if not np.issubdtype(a.dtype, np.integer) or (a.size and (a.min() < 0 or a.max() > 255)):
+        raise ConfigError("pack_rgb: channels must be integers in 0..255; scale with vkit.video.images.to_uint8 first")
+    w = a.astype(np.uint32)
+    return (w[..., 0] << 16) | (w[..., 1] << 8) | w[..., 2]
+
+
+def unpack_rgb(words: np.ndarray) -> np.ndarray:
+    """Split pixel-bus words ``R << 16 | G << 8 | B`` into a ``(..., 3)`` uint8 R, G, B array.
+
+    Raises:
+        ConfigError: a word is negative or has bits above bit 23 set.
+    """
+    w = np.asarray(words)
+    if not np.issubdtype(w.dtype, np.integer):
+        raise ConfigError(f"unpack_rgb: dtype {w.dtype} is not an integer type; pass 24-bit integer words")
+    if w.size and (w.min() < 0 or w.max() > 0xFFFFFF):
+        raise ConfigError("unpack_rgb: words must be in 0..0xFFFFFF (24-bit 8:8:8 RGB); mask or check the bus width")
+    w = w.astype(np.uint32)
+    return np.stack([(w >> 16) & 0xFF, (w >> 8) & 0xFF, w & 0xFF], axis=-1).astype(np.uint8)

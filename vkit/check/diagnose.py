@@ -3,33 +3,16 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any, Sequence
+from dataclasses import dataclass
+from typing import Any, Sequence
 
 import numpy as np
 
 from vkit.check.align import shift_back
-from vkit.video.capture import UNKNOWN
-
-if TYPE_CHECKING:  # pragma: no cover
-    from vkit.check.align import BorderInference, Offset
-    from vkit.video.capture import Capture
-    from vkit.check.scoreboard import FrameResult
+from vkit.check.results import KINDS, BorderInference, Finding, FrameResult, Offset, TimingIssue
+from vkit.video.capture import UNKNOWN, Capture
 
 __all__ = ["KINDS", "Finding", "TimingIssue", "SlipEvent", "diagnose", "slip_events"]
-
-KINDS: tuple[str, ...] = (
-    "shift",
-    "border",
-    "overflow",
-    "stall",
-    "rounding",
-    "timing",
-    "xz",
-    "missing",
-    "scattered",
-)
-"""The fixed vocabulary of :attr:`Finding.kind`; other modules rely on these exact words."""
 
 _SIGNIFICANT_LOG_P = math.log(1e-4)
 """A region pattern must be this unlikely (log probability) under 'mismatches fall anywhere'."""
@@ -40,48 +23,6 @@ _ALIGN_MAX_PIXELS = 8192
 _SLIP_COLUMNS = (-2, 0)
 """A slip at output column x is tied to an input stall at column xs when x - xs lies in this range
 (output centre x - 1 leaves when input pixel x is taken; equal neighbour values move the slip by one)."""
-
-
-@dataclass
-class Finding:
-    """One named failure pattern.
-
-    Attributes:
-        kind: one of :data:`KINDS`.
-        message: one line a designer can act on.
-        evidence: the numbers behind it (JSON-ready).
-        confidence: how well the pattern explains the failures, 0..1 (findings are sorted by it).
-    """
-
-    kind: str
-    message: str
-    evidence: dict[str, Any] = field(default_factory=dict)
-    confidence: float = 0.0
-
-    def to_dict(self) -> dict[str, Any]:
-        """JSON-ready form."""
-        return {
-            "kind": self.kind,
-            "message": self.message,
-            "evidence": self.evidence,
-            "confidence": round(float(self.confidence), 4),
-        }
-
-
-@dataclass
-class TimingIssue:
-    """A timing problem the scoreboard saw (one line, plus its numbers).
-
-    Attributes:
-        category: ``line_length``, ``line_count``, ``frame_count``, ``de_in_blanking``, ``vsync``,
-            ``hsync``, ``xz_control``, ``latency``, ``timeout``, ``extra`` or ``offset``.
-        message: one line naming what was seen and what was expected.
-        evidence: the numbers (JSON-ready).
-    """
-
-    category: str
-    message: str
-    evidence: dict[str, Any] = field(default_factory=dict)
 
 
 def _log_tail(k: int, n: int, p: float) -> float:

@@ -13,9 +13,8 @@ from vkit.model import exact
 from vkit.video.capture import UNKNOWN, Capture, FrameView
 
 __all__ = [
-    "Offset",
-    "BorderInference",
     "BORDER_POLICIES",
+    "ModelRunner",
     "measure_offset",
     "shift_back",
     "latency_clocks",

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Any, Sequence
+from typing import Any, Callable, Sequence
 
 import numpy as np
 
@@ -420,7 +420,9 @@ def _shift_message(off: Offset) -> str:
 # --------------------------------------------------------------------------- region patterns
 
 
-def _region_stats(frames: Sequence[FrameResult], region_of) -> tuple[int, int, int, int]:
+def _region_stats(
+    frames: Sequence[FrameResult], region_of: Callable[[FrameResult], np.ndarray]
+) -> tuple[int, int, int, int]:
     """(bad in region, bad total, checked in region, checked total) over value mismatches."""
     bin_ = btot = cin = ctot = 0
     for fr in frames:

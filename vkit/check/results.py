@@ -183,15 +183,9 @@ class BorderInference:
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form."""
-        return {
-            "policy": self.policy,
-            "share": self.share,
-            "confidence": self.confidence,
-            "offset": self.offset.to_dict(),
-            "scores": dict(self.scores),
-            "compared": self.compared,
-        }
-
+        d = asdict(self)
+        d["offset"] = self.offset.to_dict()  # with its raster lag
+        return d
 
 
 @dataclass
@@ -212,12 +206,8 @@ class Finding:
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form."""
-        return {
-            "kind": self.kind,
-            "message": self.message,
-            "evidence": self.evidence,
-            "confidence": round(float(self.confidence), 4),
-        }
+        return {"kind": self.kind, "message": self.message, "evidence": self.evidence,
+                "confidence": round(float(self.confidence), 4)}
 
 
 @dataclass
@@ -234,7 +224,6 @@ class TimingIssue:
     category: str
     message: str
     evidence: dict[str, Any] = field(default_factory=dict)
-
 
 
 @dataclass

@@ -12,7 +12,8 @@ from scipy import ndimage
 from vkit.video import patterns
 from vkit.video.images import load_image, save_image
 from vkit.model.pipeline import preset, run_float, run_model
-from vkit.model.quality import compare, psnr_db, write_model_report
+from vkit.model.quality import compare, psnr_db
+from vkit.report.quality import write_model_report
 
 
 def test_smooth_ramp_edge_error_is_small() -> None:

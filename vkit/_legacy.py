@@ -24,7 +24,7 @@ MOVED: dict[str, str] = {
     "vkit.magnitude": "vkit.model.magnitude",
     "vkit.lut": "vkit.model.lut",
     "vkit.widths": "vkit.model.widths",
-    "vkit.quality": "vkit.model.quality",
+    "vkit.quality": "vkit.report.quality",  # with the file-writing half; the figures are re-exported
     "vkit.pipeline": "vkit.model.pipeline",
     "vkit.timing": "vkit.video.timing",
     "vkit.images": "vkit.video.images",

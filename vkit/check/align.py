@@ -3,18 +3,18 @@
 from __future__ import annotations
 
 import math
-from dataclasses import asdict, dataclass, field
-from typing import Any, Callable, Sequence
+from typing import Callable, Sequence
 
 import numpy as np
 
-from vkit.video.capture import UNKNOWN, Capture, FrameView
+from vkit.check.results import BorderInference, BorderSpec, ExpectedFrame, Offset
 from vkit.core.errors import ConfigError
+from vkit.model import exact
+from vkit.video.capture import UNKNOWN, Capture, FrameView
 
 __all__ = [
-    "Offset",
-    "BorderInference",
     "BORDER_POLICIES",
+    "ModelRunner",
     "measure_offset",
     "shift_back",
     "latency_clocks",
@@ -34,95 +34,9 @@ _REFINE = 8
 _CHUNK_ELEMENTS = 4_000_000
 """Upper bound on (pixels x candidates) compared in one vectorised step."""
 
-
-@dataclass(frozen=True)
-class Offset:
-    """Where the captured frame sits relative to the expected one.
-
-    Convention: ``actual[y, x] == expected[y - dy, x - dx]``; positive ``dx`` means the output is
-    shifted right, positive ``dy`` down.
-
-    Attributes:
-        dx: column offset in pixels.
-        dy: row offset in lines.
-        kind: ``"none"`` (no offset), ``"grid"`` (every line moved by the same (dx, dy); pixels
-            pushed off a line edge are lost) or ``"raster"`` (the stream lags by ``dy * width + dx``
-            pixels in raster order, so pixels pushed off a line's end reappear at the start of the
-            next: a latency against the frame/line marks).
-        match_share: matching pixels over compared pixels at this offset, 0..1.
-        overlap: pixels compared at this offset.
-        confidence: posterior weight of this offset among the best candidates, 0..1.
-        width: frame width in pixels (to turn a raster offset into pixels).
-    """
-
-    dx: int = 0
-    dy: int = 0
-    kind: str = "none"
-    match_share: float = 0.0
-    overlap: int = 0
-    confidence: float = 0.0
-    width: int = 0
-
-    @property
-    def is_zero(self) -> bool:
-        """True when the frames line up as they are."""
-        return self.dx == 0 and self.dy == 0
-
-    @property
-    def raster_pixels(self) -> int:
-        """The offset as a lag in raster order, pixels (``dy * width + dx``)."""
-        return self.dy * self.width + self.dx
-
-    def describe(self) -> str:
-        """One phrase a designer can read, e.g. ``"right by 1 pixel and down by 0 lines"``."""
-        horiz = "right" if self.dx >= 0 else "left"
-        vert = "down" if self.dy >= 0 else "up"
-        px = abs(self.dx)
-        ln = abs(self.dy)
-        return (
-            f"{horiz} by {px} pixel{'s' if px != 1 else ''} and "
-            f"{vert} by {ln} line{'s' if ln != 1 else ''}"
-        )
-
-    def to_dict(self) -> dict[str, Any]:
-        """JSON-ready form."""
-        d = asdict(self)
-        d["raster_pixels"] = self.raster_pixels
-        return d
-
-
-@dataclass
-class BorderInference:
-    """Which border policy the captured output follows.
-
-    Attributes:
-        policy: best-matching policy name, or ``"unknown"`` when none matches at least half of the
-            border pixels where the policies differ.
-        share: share of discriminating border pixels the best policy matches, 0..1.
-        confidence: among pixels where the best and the runner-up policy differ, the share the best
-            one wins, times ``share``; 0..1.
-        offset: output offset measured on pixels all policies agree on, applied before comparing.
-        scores: policy name -> matched discriminating pixels.
-        compared: discriminating border pixels compared.
-    """
-
-    policy: str
-    share: float
-    confidence: float
-    offset: Offset
-    scores: dict[str, int] = field(default_factory=dict)
-    compared: int = 0
-
-    def to_dict(self) -> dict[str, Any]:
-        """JSON-ready form."""
-        return {
-            "policy": self.policy,
-            "share": self.share,
-            "confidence": self.confidence,
-            "offset": self.offset.to_dict(),
-            "scores": dict(self.scores),
-            "compared": self.compared,
-        }
+ModelRunner = Callable[[BorderSpec, np.ndarray], ExpectedFrame]
+"""``(spec, image) -> expected frame``: how the border inference runs the model (default
+:func:`vkit.model.exact.run_model`)."""
 
 
 def _chance_match(exp_vals: np.ndarray, act_vals: np.ndarray) -> float:
@@ -255,13 +169,7 @@ def measure_offset(
     Returns:
         The best :class:`Offset`; zero offset with ``confidence`` 0 when nothing can be compared.
     """
-    exp = np.asarray(expected)
-    act = np.asarray(actual)
-    if exp.ndim != 2 or exp.shape != act.shape:
-        raise ConfigError(
-            f"measure_offset: expected shape {exp.shape} and actual shape {act.shape} must be the same "
-            "(H, W); pass one frame at a time"
-        )
+    exp, act = _same_shape_frames(expected, actual)
     h, w = exp.shape
     if max_dy < 0:
         raise ConfigError(f"measure_offset: max_dy is {max_dy}; give 0 or more lines")
@@ -279,37 +187,53 @@ def measure_offset(
     p0 = _chance_match(exp[e_ok], act[a_ok])
     cands = _candidates(h, w, max_dy, max_dx, raster)
     m, n = _coarse_scores(exp, e_ok, act[ys, xs], ys, xs, cands)
-    coarse = _llr(m, n, p0)
-    # Always re-score zero offset so an exact match is never lost to sampling.
+    scored = [_exact_llr(exp, e_ok, act, a_ok, cands[i], p0) for i in _shortlist(cands, _llr(m, n, p0))]
+    return _best_offset(scored, w)
+
+
+def _same_shape_frames(expected: np.ndarray, actual: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    exp = np.asarray(expected)
+    act = np.asarray(actual)
+    if exp.ndim != 2 or exp.shape != act.shape:
+        raise ConfigError(
+            f"measure_offset: expected shape {exp.shape} and actual shape {act.shape} must be the same "
+            "(H, W); pass one frame at a time"
+        )
+    return exp, act
+
+
+def _shortlist(cands: np.ndarray, coarse: np.ndarray) -> list[int]:
+    """The best coarse candidates, and always the zero offset so an exact match is never lost to sampling."""
     zero = int(np.flatnonzero((cands[:, 0] == 0) & (cands[:, 1] == 0) & (cands[:, 2] == 0))[0])
-    order = list(np.argsort(-coarse, kind="stable")[:_REFINE])
+    order = [int(i) for i in np.argsort(-coarse, kind="stable")[:_REFINE]]
     if zero not in order:
         order.append(zero)
-    scored = []
-    for i in order:
-        kind, dy, dx, lag = (int(v) for v in cands[i])
-        mm, nn = _exact_score(exp, e_ok, act, a_ok, kind, dy, dx)
-        llr = float(_llr(np.array(mm), np.array(nn), p0))
-        # Tie-break: smaller lag first, grid before raster.
-        scored.append((llr, -abs(lag), -kind, kind, dy, dx, mm, nn))
+    return order
+
+
+def _exact_llr(
+    exp: np.ndarray, e_ok: np.ndarray, act: np.ndarray, a_ok: np.ndarray, cand: np.ndarray, p0: float
+) -> tuple[float, int, int, int, int, int, int, int]:
+    """One candidate scored on every pixel, as a tuple that sorts best first when reversed:
+    ``(llr, -|lag|, -kind, kind, dy, dx, matches, overlap)`` (ties: smaller lag, then grid before raster)."""
+    kind, dy, dx, lag = (int(v) for v in cand)
+    mm, nn = _exact_score(exp, e_ok, act, a_ok, kind, dy, dx)
+    llr = float(_llr(np.array(mm), np.array(nn), p0))
+    return (llr, -abs(lag), -kind, kind, dy, dx, mm, nn)
+
+
+def _best_offset(scored: list[tuple[float, int, int, int, int, int, int, int]], width: int) -> Offset:
+    """The winner of the re-scored candidates, its confidence its posterior weight among them."""
     scored.sort(reverse=True)
     best = scored[0]
     llrs = np.array([s[0] for s in scored])
-    weights = np.exp(np.clip(llrs - best[0], -700, 0))
+    weights = np.exp(np.clip(llrs - best[0], -700, 0))  # -700: exp() stays above the float64 minimum
     _, _, _, kind, dy, dx, mm, nn = best
     # Grid and raster readings of the same (dy, dx) are one answer as far as the offset goes.
     same = np.array([s[4] == dy and s[5] == dx for s in scored])
     conf = float(weights[same].sum() / weights.sum())
     name = "none" if dy == 0 and dx == 0 else ("raster" if kind == 1 else "grid")
-    return Offset(
-        dx=dx,
-        dy=dy,
-        kind=name,
-        match_share=mm / nn if nn else 0.0,
-        overlap=nn,
-        confidence=conf,
-        width=w,
-    )
+    return Offset(dx=dx, dy=dy, kind=name, match_share=mm / nn if nn else 0.0, overlap=nn, confidence=conf, width=width)
 
 
 def shift_back(frame: np.ndarray, present: np.ndarray, offset: Offset) -> tuple[np.ndarray, np.ndarray]:
@@ -368,13 +292,18 @@ def _as_views(actual: Capture | Sequence[FrameView], height: int, width: int) ->
     return list(actual)
 
 
+_DECIDED_SHARE = 0.5
+"""A policy is named only when it matches at least half of the border pixels where the policies differ;
+below that no policy explains the border better than a coin."""
+
+
 def infer_border(
-    spec: Any,
+    spec: BorderSpec,
     images: Sequence[np.ndarray],
     actual: Capture | Sequence[FrameView],
     *,
     policies: Sequence[str] = BORDER_POLICIES,
-    run_model: Callable[[Any, np.ndarray], Any] | None = None,
+    run_model: ModelRunner | None = None,
 ) -> BorderInference:
     """Tell which border policy the design implements, and at which output offset.
 
@@ -387,7 +316,7 @@ def infer_border(
         images: the input images, one per captured frame, in order.
         actual: the capture, or its frames already rebuilt.
         policies: candidate policy names (at least two).
-        run_model: ``(spec, image) -> ModelResult``; :func:`vkit.model.pipeline.run_model` when omitted.
+        run_model: ``(spec, image) -> ModelResult``; :func:`vkit.model.exact.run_model` when omitted.
 
     Returns:
         A :class:`BorderInference`.
@@ -396,41 +325,45 @@ def infer_border(
         raise ConfigError(f"infer_border: {len(policies)} policies given; give at least two to choose between")
     if not images:
         raise ConfigError("infer_border: no input images given; pass the images the design was fed")
-    if run_model is None:
-        from vkit.model.pipeline import run_model as _run
-
-        run_model = _run
-    results: dict[str, list[Any]] = {}
-    for p in policies:
-        runs = [run_model(spec.with_border(p), np.asarray(img)) for img in images]
-        # A policy that gives the same output as one already kept (constant 0 and zero) adds nothing.
-        if not any(
-            all(np.array_equal(a.output, b.output) for a, b in zip(runs, kept)) for kept in results.values()
-        ):
-            results[p] = runs
-    policies = list(results)
-    if len(policies) < 2:
-        off = Offset(width=int(np.asarray(results[policies[0]][0].output).shape[1]))
-        return BorderInference("unknown", 0.0, 0.0, off, {policies[0]: 0}, 0)
-    first = results[policies[0]][0].output
-    h, w = np.asarray(first).shape
+    results = _distinct_policy_outputs(spec, images, policies, run_model or exact.run_model)
+    names = list(results)
+    if len(names) < 2:
+        off = Offset(width=int(np.asarray(results[names[0]][0]).shape[1]))
+        return BorderInference("unknown", 0.0, 0.0, off, {names[0]: 0}, 0)
+    h, w = np.asarray(results[names[0]][0]).shape
     views = _as_views(actual, h, w)
     n_frames = min(len(images), len(views))
     if n_frames == 0:
-        return BorderInference("unknown", 0.0, 0.0, Offset(width=w), {p: 0 for p in policies}, 0)
+        return BorderInference("unknown", 0.0, 0.0, Offset(width=w), {p: 0 for p in names}, 0)
+    return _judge_border(names, [np.stack([results[p][i] for p in names]) for i in range(n_frames)], views)
+
+
+def _distinct_policy_outputs(
+    spec: BorderSpec, images: Sequence[np.ndarray], policies: Sequence[str], run_model: ModelRunner
+) -> dict[str, list[np.ndarray]]:
+    """Policy -> its int64 output per image; a policy giving the same outputs as one kept already
+    (constant 0 and zero) adds nothing and is left out."""
+    results: dict[str, list[np.ndarray]] = {}
+    for p in policies:
+        outs = [np.asarray(run_model(spec.with_border(p), np.asarray(img)).output, np.int64) for img in images]
+        if not any(all(np.array_equal(a, b) for a, b in zip(outs, kept)) for kept in results.values()):
+            results[p] = outs
+    return results
+
+
+def _judge_border(policies: list[str], outputs: list[np.ndarray], views: list[FrameView]) -> BorderInference:
+    """Score each policy on the border pixels of each frame (``outputs[i]``: policies x H x W)."""
     scores = {p: 0 for p in policies}
     per_pixel_wins: dict[str, list[np.ndarray]] = {p: [] for p in policies}
     compared = 0
-    offset = Offset(width=w)
-    for i in range(n_frames):
-        outs = np.stack([np.asarray(results[p][i].output, np.int64) for p in policies])
+    offset = Offset(width=outputs[0].shape[2])
+    for i, outs in enumerate(outputs):
         agree = np.all(outs == outs[0], axis=0)
         view = views[i]
         if i == 0:
             offset = measure_offset(outs[0], view.pixels, present=view.present, valid=agree)
         pix, pres = shift_back(view.pixels, view.present, offset)
-        pres = pres & (pix != UNKNOWN)
-        disc = ~agree & pres
+        disc = ~agree & pres & (pix != UNKNOWN)
         compared += int(disc.sum())
         for k, p in enumerate(policies):
             win = disc & (outs[k] == pix)
@@ -438,23 +371,22 @@ def infer_border(
             per_pixel_wins[p].append(win[disc])
     if compared == 0:
         return BorderInference("unknown", 0.0, 0.0, offset, scores, 0)
-    ranked = sorted(policies, key=lambda p: -scores[p])
-    best, second = ranked[0], ranked[1]
+    best, second = sorted(policies, key=lambda p: -scores[p])[:2]
     share = scores[best] / compared
     wb = np.concatenate(per_pixel_wins[best])
     ws = np.concatenate(per_pixel_wins[second])
     differ = wb != ws
-    won = float(np.mean(wb[differ])) if differ.any() else 0.5
+    won = float(np.mean(wb[differ])) if differ.any() else 0.5  # no pixel tells them apart: a coin
     conf = share * won
-    return BorderInference(best if share >= 0.5 else "unknown", share, conf, offset, scores, compared)
+    return BorderInference(best if share >= _DECIDED_SHARE else "unknown", share, conf, offset, scores, compared)
 
 
 def border_coverage(
-    spec: Any,
+    spec: BorderSpec,
     images: Sequence[np.ndarray],
     *,
     policies: Sequence[str] = BORDER_POLICIES,
-    run_model: Callable[[Any, np.ndarray], Any] | None = None,
+    run_model: ModelRunner | None = None,
 ) -> float:
     """Share of border-ring output pixels where the border policies give different values, 0..1.
 
@@ -463,13 +395,10 @@ def border_coverage(
     """
     if not images:
         raise ConfigError("border_coverage: no input images given; pass the images the design is fed")
-    if run_model is None:
-        from vkit.model.pipeline import run_model as _run
-
-        run_model = _run
+    run = run_model or exact.run_model
     differ = total = 0
     for img in images:
-        outs = np.stack([np.asarray(run_model(spec.with_border(p), np.asarray(img)).output) for p in policies])
+        outs = np.stack([np.asarray(run(spec.with_border(p), np.asarray(img)).output) for p in policies])
         ring = np.zeros(outs.shape[1:], bool)
         ring[0, :] = ring[-1, :] = ring[:, 0] = ring[:, -1] = True
         differ += int(np.count_nonzero(~np.all(outs == outs[0], axis=0) & ring))

@@ -3,33 +3,25 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any, Sequence
+from dataclasses import dataclass
+from typing import Any, Callable, Sequence
 
 import numpy as np
 
 from vkit.check.align import shift_back
-from vkit.video.capture import UNKNOWN
-
-if TYPE_CHECKING:  # pragma: no cover
-    from vkit.check.align import BorderInference, Offset
-    from vkit.video.capture import Capture
-    from vkit.check.scoreboard import FrameResult
+from vkit.check.results import (
+    EVIDENCE_ITEMS,
+    KINDS,
+    BorderInference,
+    Finding,
+    FrameResult,
+    Offset,
+    StageValues,
+    TimingIssue,
+)
+from vkit.video.capture import UNKNOWN, Capture
 
 __all__ = ["KINDS", "Finding", "TimingIssue", "SlipEvent", "diagnose", "slip_events"]
-
-KINDS: tuple[str, ...] = (
-    "shift",
-    "border",
-    "overflow",
-    "stall",
-    "rounding",
-    "timing",
-    "xz",
-    "missing",
-    "scattered",
-)
-"""The fixed vocabulary of :attr:`Finding.kind`; other modules rely on these exact words."""
 
 _SIGNIFICANT_LOG_P = math.log(1e-4)
 """A region pattern must be this unlikely (log probability) under 'mismatches fall anywhere'."""
@@ -41,47 +33,85 @@ _SLIP_COLUMNS = (-2, 0)
 """A slip at output column x is tied to an input stall at column xs when x - xs lies in this range
 (output centre x - 1 leaves when input pixel x is taken; equal neighbour values move the slip by one)."""
 
-
-@dataclass
-class Finding:
-    """One named failure pattern.
-
-    Attributes:
-        kind: one of :data:`KINDS`.
-        message: one line a designer can act on.
-        evidence: the numbers behind it (JSON-ready).
-        confidence: how well the pattern explains the failures, 0..1 (findings are sorted by it).
-    """
-
-    kind: str
-    message: str
-    evidence: dict[str, Any] = field(default_factory=dict)
-    confidence: float = 0.0
-
-    def to_dict(self) -> dict[str, Any]:
-        """JSON-ready form."""
-        return {
-            "kind": self.kind,
-            "message": self.message,
-            "evidence": self.evidence,
-            "confidence": round(float(self.confidence), 4),
-        }
-
-
-@dataclass
-class TimingIssue:
-    """A timing problem the scoreboard saw (one line, plus its numbers).
-
-    Attributes:
-        category: ``line_length``, ``line_count``, ``frame_count``, ``de_in_blanking``, ``vsync``,
-            ``hsync``, ``xz_control``, ``latency``, ``timeout``, ``extra`` or ``offset``.
-        message: one line naming what was seen and what was expected.
-        evidence: the numbers (JSON-ready).
-    """
-
-    category: str
-    message: str
-    evidence: dict[str, Any] = field(default_factory=dict)
+_MIN_TELLING_PIXELS = 3
+"""Fewest cases (pixels of a shifted line, wrong pixels of a region, wrong-length lines) that can show a
+pattern: one or two fit any explanation."""
+_MATCH_SHARE = 0.9
+"""A line matches another (shifted) line when this share of its known pixels agree: a few wrong values
+on top of a slip do not hide it."""
+_EXPLAINED_SHARE = 0.8
+"""A pattern is named only when it explains at least this share of the failures it is about (lines,
+mismatches, slips)."""
+_REGION_MAX_SHARE = 0.5
+"""A region holding more than half of the checked pixels is the picture, not a place where faults gather."""
+_WRAPPED_SHARE = 0.8
+"""Share of wrong values that must look wrapped or saturated before an overflow is named."""
+_TOP_MIN_PRECISION = 0.5
+"""At least half of the pixels above an overflow threshold must be wrong."""
+_WRAP_PRECISION = 0.9
+"""A wrap is deterministic: nearly every pixel past a register bound comes out wrong."""
+_PRECISION_BONUS = 0.2
+"""An overflow region at 80% precision still counts with full confidence (some pixels past the bound
+wrap onto the right value by chance)."""
+_MIN_LEVELS = 3
+"""Fewest distinct stage values for a threshold to mean a bound (a two-level picture only has bright and dark)."""
+_WRAP_MIN_BITS = 4
+"""Narrowest register whose wrap is named (bounds 2, 4, 8 are too common among small values to tell)."""
+_HIGH_RANGE = 0.25
+"""Without a register bound, an overflow threshold must lie in the top three quarters of the stage's range."""
+_FAR_ERROR_DIVISOR = 4
+"""An error of a quarter of the output range or more counts as wrapped (far off, not rounding)."""
+_DEFAULT_OUTPUT_RANGE = (0, 255)
+"""Output range assumed when the model gave no ``output`` stage: 8-bit pixels."""
+_MIN_DE_WIDTH = 4
+"""Narrowest line on which a data-enable one clock off can be told from a wrong value."""
+_DE_CONFIDENCE = 0.99
+"""Confidence of a pattern matched line by line or slip by slip (data-enable offset, slips at stalls)
+that explains every case: such a match leaves little doubt."""
+_SLIPS_TIED_SHARE = 0.5
+"""At least half of the slips must start at a stall or back-pressure point to blame the stalls."""
+_BACKPRESSURE_REACH = 3.0
+"""Arrivals a back-pressure point covers (itself and one either side) when estimating the chance a slip lands there."""
+_BLURRED_SPAN = 2
+"""A slip whose place spans more than this many extra columns (equal neighbour values) is not named first."""
+_LINES_NAMED = 6
+"""Lines named in a one-line stall message."""
+_OTHER_LINE_OFFSETS = range(-3, 6)
+"""Line offsets tried against the true one (+1) when tying line lengths to input stalls."""
+_OFFSET_MARGIN = 1.5
+"""The true line offset must explain this many times more wrong lines than any other (plus one)."""
+_MIN_BORDER_SIDE = 3
+"""Smallest frame side with a border ring distinct from the interior, pixels."""
+_MIN_REGION_MISMATCHES = 2
+"""Fewest wrong pixels for a region (border ring, stall neighbourhood) to be judged."""
+_BORDER_RECALL = 0.9
+"""Share of mismatches that must sit on the border ring to blame the border handling."""
+_SIDE_SHARE = 0.05
+"""A frame side is named when it holds at least this share of the border mismatches."""
+_STALL_REGION_RECALL = 0.7
+"""Share of mismatches that must sit next to a stall or back-pressure point to blame the stalls."""
+_ROUNDING_SHARE = 0.9
+"""Share of wrong pixels that must be off by exactly one LSB past the tolerance to blame rounding."""
+_ROUNDING_MAX_DENSITY = 0.5
+"""A rounding fault touches half-way cases only; more than half of the pixels wrong is something else."""
+_SHIFT_MIN_CONFIDENCE = 0.5
+"""A measured offset is named only when it explains mismatches at least this well."""
+_SEEN_CONFIDENCE = 0.99
+"""Confidence of a fault seen directly on the output (X/Z pixels): not inferred."""
+_MISSING_CONFIDENCE = 0.96
+"""Confidence of missing pixels, times their share of the failures."""
+_APPLIED_SHIFT_CONFIDENCE = 0.98
+"""Confidence of an offset undone before comparing, times its match share."""
+_STALL_NEAR_CONFIDENCE = 0.98
+"""Confidence of line slips next to stalls, times how much they explain."""
+_SLIP_ALONE_CONFIDENCE = 0.75
+"""Confidence of line slips with no stall nearby: a handshake or counter fault, less sure."""
+_ROUNDING_CONFIDENCE = 0.95
+"""Confidence of a rounding fault, times how clean its pattern is."""
+_TIMING_OTHER_CONFIDENCE = 0.85
+"""Confidence of a timing issue with no entry in the action table."""
+_SCATTERED_CONFIDENCE = 0.1
+"""'scattered' only names the absence of a pattern: ranked below any pattern found."""
 
 
 def _log_tail(k: int, n: int, p: float) -> float:
@@ -127,7 +157,7 @@ def _line_count_message(issue: TimingIssue, frames: Sequence[FrameResult]) -> tu
 
     same = np.array([row_match(y, y) if rows_ok[y] else 0.0 for y in range(h)])
     lines = int(ev.get("lines", 0))
-    bad_rows = np.flatnonzero((same < 0.9) & rows_ok)
+    bad_rows = np.flatnonzero((same < _MATCH_SHARE) & rows_ok)
     if lines < h:
         if bad_rows.size == 0:
             first_missing = int(np.flatnonzero(~rows_ok)[0]) if (~rows_ok).any() else lines
@@ -139,7 +169,7 @@ def _line_count_message(issue: TimingIssue, frames: Sequence[FrameResult]) -> tu
             )
         k = int(bad_rows[0])
         up = [row_match(y, y + 1) for y in range(k, h - 1) if rows_ok[y]]
-        if up and np.mean(np.array(up) >= 0.9) >= 0.8:
+        if up and np.mean(np.array(up) >= _MATCH_SHARE) >= _EXPLAINED_SHARE:
             ev["dropped_line"] = k
             return (
                 f"{issue.message}: line {k} was dropped (output lines {k} on carry expected lines {k + 1} on); "
@@ -149,7 +179,7 @@ def _line_count_message(issue: TimingIssue, frames: Sequence[FrameResult]) -> tu
     elif lines > h and bad_rows.size:
         k = int(bad_rows[0])
         down = [row_match(y, y - 1) for y in range(max(k, 1), h) if rows_ok[y]]
-        if down and np.mean(np.array(down) >= 0.9) >= 0.8:
+        if down and np.mean(np.array(down) >= _MATCH_SHARE) >= _EXPLAINED_SHARE:
             ev["repeated_line"] = k - 1
             return (
                 f"{issue.message}: line {k - 1} was emitted twice (output lines {k} on carry expected lines "
@@ -178,7 +208,7 @@ def _timing_findings(timing: Sequence[TimingIssue], frames: Sequence[FrameResult
     for issue in timing:
         if issue.category == "offset":
             continue  # reported as a shift
-        kind, conf, action = _TIMING_ACTION.get(issue.category, ("timing", 0.85, ""))
+        kind, conf, action = _TIMING_ACTION.get(issue.category, ("timing", _TIMING_OTHER_CONFIDENCE, ""))
         msg, ev = issue.message, dict(issue.evidence)
         if issue.category == "line_count":
             msg, ev = _line_count_message(issue, frames)
@@ -207,8 +237,8 @@ def _xz_finding(frames: Sequence[FrameResult]) -> Finding | None:
         f"{_plural(total, 'output pixel')} carried X/Z, first at frame {fr.index} (x={x}, y={y}) "
         f"clock {clk}{where}; reset or initialise the registers on the output data path"
     )
-    ev = {"count": total, "first": {"frame": fr.index, "x": x, "y": y, "clock": clk}, "rows": rows[:50]}
-    return Finding("xz", msg, ev, 0.99)
+    ev = {"count": total, "first": {"frame": fr.index, "x": x, "y": y, "clock": clk}, "rows": rows[:EVIDENCE_ITEMS]}
+    return Finding("xz", msg, ev, _SEEN_CONFIDENCE)
 
 
 def _missing_finding(frames: Sequence[FrameResult], failures: int, meta: dict[str, Any]) -> Finding | None:
@@ -226,7 +256,7 @@ def _missing_finding(frames: Sequence[FrameResult], failures: int, meta: dict[st
         if rows.size and np.array_equal(rows, np.arange(h - rows.size, h)) and fr.missing[rows][fr.valid[rows]].all():
             tail_rows.append((fr.index, int(rows.size)))
     timed = bool(meta.get("timed_out"))
-    ev: dict[str, Any] = {"count": total, "checked": checked, "whole_frames": whole[:50], "timed_out": timed}
+    ev: dict[str, Any] = {"count": total, "checked": checked, "whole_frames": whole[:EVIDENCE_ITEMS], "timed_out": timed}
     if whole:
         what = f"frame(s) {', '.join(map(str, whole[:5]))} never came out"
         fix = "the design stops emitting; check it re-arms on vsync"
@@ -234,7 +264,7 @@ def _missing_finding(frames: Sequence[FrameResult], failures: int, meta: dict[st
         n = tail_rows[0][1]
         what = f"the last {_plural(n, 'line')} of {_plural(len(tail_rows), 'frame')} never arrived"
         fix = "flush the last line(s) at the leading edge of vsync (vertical front porch)"
-        ev["tail_lines"] = [list(t) for t in tail_rows[:50]]
+        ev["tail_lines"] = [list(t) for t in tail_rows[:EVIDENCE_ITEMS]]
     else:
         fr = next(fr for fr in frames if fr.missing.any())
         ys, xs = np.nonzero(fr.missing)
@@ -244,55 +274,66 @@ def _missing_finding(frames: Sequence[FrameResult], failures: int, meta: dict[st
         fix += f"; the run timed out after {meta.get('timeout_clocks', meta.get('clocks_run', '?'))} clocks"
     msg = f"{total} of {checked} checked pixels never arrived: {what}; {fix}"
     share = total / max(1, failures)
-    return Finding("missing", msg, ev, 0.96 * share)
+    return Finding("missing", msg, ev, _MISSING_CONFIDENCE * share)
+
+
+def _same_shifted(a: np.ndarray, e: np.ndarray, k: np.ndarray, asl: slice, esl: slice) -> bool:
+    """``a[asl]`` matches ``e[esl]`` on the known pixels ``k[asl]``."""
+    kk = k[asl]
+    return bool(kk.sum() >= _MIN_TELLING_PIXELS and np.mean(a[asl][kk] == e[esl][kk]) >= _MATCH_SHARE)
+
+
+def _de_vote(a: np.ndarray, e: np.ndarray, k: np.ndarray, w: int, n: int) -> str | None:
+    """``"lead"``, ``"lag"`` or None: what a line of ``n = w - 1`` or ``w + 1`` pixels says about data-enable."""
+    whole, head, tail = slice(0, w), slice(0, w - 1), slice(1, w)
+    if n == w - 1:
+        # The pixel outside data-enable is lost: the first one (late) or the last one (early).
+        if _same_shifted(a, e, k, head, tail) and not _same_shifted(a, e, k, head, head):
+            return "lag"
+        if _same_shifted(a, e, k, head, head) and not _same_shifted(a, e, k, head, tail):
+            return "lead"
+        return None
+    # One garbage pixel inside data-enable: before the data (early) or after it (late).
+    if _same_shifted(a, e, k, tail, head) and not _same_shifted(a, e, k, whole, whole):
+        return "lead"
+    if _same_shifted(a, e, k, whole, whole):
+        return "lag"
+    return None
 
 
 def _de_offset_finding(frames: Sequence[FrameResult]) -> Finding | None:
     """Data-enable one clock early or late: most lines one pixel short (or long) at the same end."""
     votes = {"lead": 0, "lag": 0}
-    lines = 0
-    short = long_ = 0
+    lines = short = long_ = 0
     for fr in frames:
         h, w = fr.expected.shape
-        if w < 4:
+        if w < _MIN_DE_WIDTH:
             continue
         known = fr.present & ~fr.unknown
         for y, n in enumerate(fr.line_lengths[:h]):
+            e, k = fr.expected[y], known[y]
+            off_by_one = n in (w - 1, w + 1)
+            if off_by_one and not np.any(e[1:][k[: w - 1]] != e[:-1][k[: w - 1]]):
+                continue  # a flat line cannot tell a one-pixel slip
             lines += 1
-            if n not in (w - 1, w + 1):
+            if not off_by_one:
                 continue
-            a, e, k = fr.actual[y], fr.expected[y], known[y]
-
-            def same(asl: slice, esl: slice) -> bool:
-                kk = k[asl]
-                return bool(kk.sum() >= 3 and np.mean(a[asl][kk] == e[esl][kk]) >= 0.9)
-
-            informative = bool(np.any(e[1:][k[: w - 1]] != e[:-1][k[: w - 1]]))
-            if not informative:
-                lines -= 1  # a flat line cannot tell a one-pixel slip
-                continue
-            if n == w - 1:
-                short += 1
-                # The pixel outside data-enable is lost: the first one (late) or the last one (early).
-                if same(slice(0, w - 1), slice(1, w)) and not same(slice(0, w - 1), slice(0, w - 1)):
-                    votes["lag"] += 1
-                elif same(slice(0, w - 1), slice(0, w - 1)) and not same(slice(0, w - 1), slice(1, w)):
-                    votes["lead"] += 1
-            else:
-                long_ += 1
-                # One garbage pixel inside data-enable: before the data (early) or after it (late).
-                if same(slice(1, w), slice(0, w - 1)) and not same(slice(0, w), slice(0, w)):
-                    votes["lead"] += 1
-                elif same(slice(0, w), slice(0, w)):
-                    votes["lag"] += 1
+            short, long_ = (short + 1, long_) if n == w - 1 else (short, long_ + 1)
+            side = _de_vote(fr.actual[y], e, k, w, n)
+            if side is not None:
+                votes[side] += 1
     if lines < 2:
         return None
     side = max(votes, key=lambda s_: votes[s_])
-    n_side = votes[side]
-    if n_side < 0.8 * lines:
+    if votes[side] < _EXPLAINED_SHARE * lines:
         return None
-    w = frames[0].expected.shape[1]
-    if short >= long_:
+    msg = _de_offset_message(side, votes[side], lines, short >= long_, frames[0].expected.shape[1])
+    ev = {"direction": side, "lines": lines, "lines_matching": votes[side], "short_lines": short, "long_lines": long_}
+    return Finding("timing", msg, ev, _DE_CONFIDENCE * votes[side] / lines)
+
+
+def _de_offset_message(side: str, n_side: int, lines: int, mostly_short: bool, w: int) -> str:
+    if mostly_short:
         n_px, what = w - 1, (
             "the first pixel of each line falls outside data-enable" if side == "lag"
             else "the last pixel of each line falls outside data-enable"
@@ -303,14 +344,12 @@ def _de_offset_finding(frames: Sequence[FrameResult]) -> Finding | None:
             else "one pixel after the data is inside data-enable"
         )
     verb = "leads" if side == "lead" else "lags"
-    msg = (
+    return (
         f"data-enable {verb} the pixel data by 1 clock: {n_side} of {_plural(lines, 'line')} carry {n_px} "
         f"pixels, each the expected line shifted by one with one pixel lost or added at the "
-        f"{'end' if (side == 'lead') == (short >= long_) else 'start'} ({what}); delay the data-enable "
+        f"{'end' if (side == 'lead') == mostly_short else 'start'} ({what}); delay the data-enable "
         f"{'by one more' if side == 'lead' else 'by one less'} clock so it matches the data path"
     )
-    ev = {"direction": side, "lines": lines, "lines_matching": n_side, "short_lines": short, "long_lines": long_}
-    return Finding("timing", msg, ev, 0.99 * n_side / lines)
 
 
 # --------------------------------------------------------------------------- shift
@@ -324,9 +363,9 @@ def _shift_findings(
             "shift",
             _shift_message(applied) + " (undone before comparing)",
             applied.to_dict(),
-            0.98 * applied.match_share,
+            _APPLIED_SHIFT_CONFIDENCE * applied.match_share,
         )
-    if offset is None or offset.is_zero or offset.match_share < 0.9:
+    if offset is None or offset.is_zero or offset.match_share < _MATCH_SHARE:
         return None
     before = after = 0
     for fr in frames:
@@ -344,7 +383,7 @@ def _shift_findings(
     ev["mismatches_before"] = before
     ev["mismatches_after"] = after
     conf = explained * offset.match_share * offset.confidence
-    if conf < 0.5:
+    if conf < _SHIFT_MIN_CONFIDENCE:
         return None
     return Finding("shift", _shift_message(offset), ev, conf)
 
@@ -381,7 +420,9 @@ def _shift_message(off: Offset) -> str:
 # --------------------------------------------------------------------------- region patterns
 
 
-def _region_stats(frames: Sequence[FrameResult], region_of) -> tuple[int, int, int, int]:
+def _region_stats(
+    frames: Sequence[FrameResult], region_of: Callable[[FrameResult], np.ndarray]
+) -> tuple[int, int, int, int]:
     """(bad in region, bad total, checked in region, checked total) over value mismatches."""
     bin_ = btot = cin = ctot = 0
     for fr in frames:
@@ -397,7 +438,7 @@ def _region_stats(frames: Sequence[FrameResult], region_of) -> tuple[int, int, i
 
 def _border_finding(frames: Sequence[FrameResult], border: BorderInference | None) -> Finding | None:
     shapes = [fr.expected.shape for fr in frames if fr.value_bad.any()]
-    if not shapes or min(min(s) for s in shapes) < 3:
+    if not shapes or min(min(s) for s in shapes) < _MIN_BORDER_SIDE:
         return None
 
     def ring(fr: FrameResult) -> np.ndarray:
@@ -406,11 +447,11 @@ def _border_finding(frames: Sequence[FrameResult], border: BorderInference | Non
         return m
 
     bin_, btot, cin, ctot = _region_stats(frames, ring)
-    if btot < 2 or ctot == 0:
+    if btot < _MIN_REGION_MISMATCHES or ctot == 0:
         return None
     recall = bin_ / btot
     base = cin / ctot
-    if recall < 0.9 or _log_tail(bin_, btot, base) > _SIGNIFICANT_LOG_P:
+    if recall < _BORDER_RECALL or _log_tail(bin_, btot, base) > _SIGNIFICANT_LOG_P:
         return None
     sides = {"top": 0, "bottom": 0, "left": 0, "right": 0}
     for fr in frames:
@@ -419,7 +460,7 @@ def _border_finding(frames: Sequence[FrameResult], border: BorderInference | Non
         sides["bottom"] += int(b[-1, :].sum())
         sides["left"] += int(b[:, 0].sum())
         sides["right"] += int(b[:, -1].sum())
-    named = [s for s, n in sides.items() if n >= max(1, 0.05 * bin_)]
+    named = [s for s, n in sides.items() if n >= max(1, _SIDE_SHARE * bin_)]
     side_txt = ", ".join(named[:-1]) + (" and " if len(named) > 1 else "") + named[-1]
     unit = (
         "row" if set(named) <= {"top", "bottom"} else "column" if set(named) <= {"left", "right"} else "rows/columns"
@@ -445,17 +486,20 @@ def _border_finding(frames: Sequence[FrameResult], border: BorderInference | Non
 def _stage_items(frames: Sequence[FrameResult]) -> list[str]:
     names: list[str] = []
     for fr in frames:
-        for name in getattr(fr.model, "stages", {}) or {}:
+        for name in fr.model.stages:
             if name not in names and name != "input":
                 names.append(name)
     return names
 
 
-def _stage_array(fr: FrameResult, name: str) -> Any:
-    st = (getattr(fr.model, "stages", {}) or {}).get(name)
-    if st is None:
-        return None
-    return st
+def _stage(fr: FrameResult, name: str) -> StageValues | None:
+    return fr.model.stages.get(name)
+
+
+def _output_bounds(fr: FrameResult) -> tuple[int, int]:
+    """The output stage's theoretical range (8 bits when the model gave no output stage)."""
+    out = _stage(fr, "output")
+    return (int(out.lo), int(out.hi)) if out is not None else _DEFAULT_OUTPUT_RANGE
 
 
 def _wrapped_share(frames: Sequence[FrameResult]) -> float:
@@ -465,126 +509,155 @@ def _wrapped_share(frames: Sequence[FrameResult]) -> float:
     if not errs:
         return 0.0
     e = np.concatenate(errs)
-    out = _stage_array(frames[0], "output")
-    lo, hi = (getattr(out, "lo", 0), getattr(out, "hi", 255)) if out is not None else (0, 255)
-    far = max(2, (int(hi) - int(lo) + 1) // 4)
+    lo, hi = _output_bounds(frames[0])
+    far = max(2, (hi - lo + 1) // _FAR_ERROR_DIVISOR)
     return float(np.mean((e < 0) | (np.abs(e) >= far)))
 
 
+@dataclass
+class _StageSample:
+    """One stage over the checked pixels of the failing frames: magnitudes, which pixels failed, and
+    where the model clamped (None when some frame's stage cannot clamp)."""
+
+    name: str
+    stage: StageValues
+    values: np.ndarray
+    bad: np.ndarray
+    clamped: np.ndarray | None
+
+
+def _stage_sample(failing: Sequence[FrameResult], name: str) -> _StageSample | None:
+    vals, bads, clamps = [], [], []
+    last = None
+    for fr in failing:
+        st = _stage(fr, name)
+        if st is None or np.asarray(st.array).shape != fr.expected.shape:
+            continue
+        last = st
+        checked = fr.valid & fr.present & ~fr.unknown
+        v = np.asarray(st.array).astype(np.int64)
+        if st.signed or (v < 0).any():
+            v = np.abs(v)
+        vals.append(v[checked])
+        bads.append(fr.value_bad[checked])
+        clamps.append(np.asarray(st.clamped, bool)[checked] if st.clamped is not None else None)
+    if last is None:
+        return None
+    clamped = np.concatenate(clamps) if all(c is not None for c in clamps) else None
+    return _StageSample(name, last, np.concatenate(vals), np.concatenate(bads), clamped)
+
+
 def _overflow_finding(frames: Sequence[FrameResult]) -> Finding | None:
+    """A stage that wraps or saturates differently: the mismatches sit where the model clamps it, or
+    above one value of it (a register bound)."""
     failing = [fr for fr in frames if fr.value_bad.any()]
     if not failing:
         return None
     # The values must look wrapped or saturated: small where large was expected (or far off) for a
     # register that wraps; for the clamp region, the model's value at a bound the design missed.
     wrapped = _wrapped_share(failing)
-    out_st = _stage_array(failing[0], "output")
-    bounds = (getattr(out_st, "lo", 0), getattr(out_st, "hi", 255)) if out_st is not None else (0, 255)
+    bounds = _output_bounds(failing[0])
     at_bound = float(np.mean(np.concatenate([np.isin(fr.expected[fr.value_bad], bounds) for fr in failing])))
-    best: Finding | None = None
+    found: list[Finding] = []
     for name in _stage_items(failing):
-        vals, bads, clamps = [], [], []
-        st0 = None
-        for fr in failing:
-            st = _stage_array(fr, name)
-            if st is None:
-                continue
-            arr = np.asarray(getattr(st, "array", st))
-            if arr.shape != fr.expected.shape:
-                continue
-            st0 = st
-            checked = fr.valid & fr.present & ~fr.unknown
-            v = arr.astype(np.int64)
-            if getattr(st, "signed", False) or (v < 0).any():
-                v = np.abs(v)
-            vals.append(v[checked])
-            bads.append(fr.value_bad[checked])
-            cm = getattr(st, "clamped", None)
-            clamps.append(np.asarray(cm, bool)[checked] if cm is not None else None)
-        if not vals:
+        sample = _stage_sample(failing, name)
+        if sample is None or int(sample.bad.sum()) < _MIN_TELLING_PIXELS or sample.values.size == 0:
             continue
-        v = np.concatenate(vals)
-        b = np.concatenate(bads)
-        total_bad, n = int(b.sum()), v.size
-        if total_bad < 3 or n == 0:
-            continue
-        # Clamp/saturation region of the model.
-        if all(c is not None for c in clamps):
-            c = np.concatenate(clamps)
-            cin, bin_ = int(c.sum()), int((c & b).sum())
-            recall, base = bin_ / total_bad, cin / n
-            if (cin and recall >= 0.8 and base <= 0.5 and max(wrapped, at_bound) >= 0.8
-                    and _log_tail(bin_, total_bad, base) <= _SIGNIFICANT_LOG_P):
-                conf = recall * (1 - base)
-                f = Finding(
-                    "overflow",
-                    f"{_pct(recall)} of mismatches sit where the model saturates {name} ({_pct(base)} of pixels): "
-                    f"the design wraps or saturates {name} at a different bound; saturate it like the model",
-                    {"stage": name, "region": "clamped", "in_region": bin_, "mismatches": total_bad,
-                     "region_share": base},
-                    conf,
-                )
-                if best is None or f.confidence > best.confidence:
-                    best = f
-        # Top of the stage's values: the best "value >= t" rule.
-        order = np.argsort(-v, kind="stable")
-        vs, bs = v[order], b[order]
-        cum = np.cumsum(bs)
-        k = np.arange(1, n + 1)
-        cut = np.ones(n, bool)
-        cut[:-1] = vs[:-1] != vs[1:]  # a region must hold whole value groups
-        cut &= k <= n // 2
-        if not cut.any():
-            continue
-        prec = cum / k
-        rec = cum / total_bad
-        f1 = np.where(cut, 2 * prec * rec / np.maximum(prec + rec, 1e-12), -1.0)
-        i = int(np.argmax(f1))
-        recall, precision, base = float(rec[i]), float(prec[i]), (i + 1) / n
-        if recall < 0.8 or precision < 0.5:
-            continue
-        if _log_tail(int(cum[i]), total_bad, base) > _SIGNIFICANT_LOG_P:
-            continue
-        t_in = int(vs[i])
-        t_out = int(vs[i + 1]) if i + 1 < n else None
-        if wrapped < 0.8 or precision < 0.9 or np.unique(vs).size < 3:
-            # A wrap is deterministic: nearly every pixel past the bound is wrong. A region where only
-            # some are (the bright part of a two-level picture) is where the signal is, not a bound.
-            continue
-        hi_range = getattr(st0, "hi", None)
-        wrap_b = int(t_out).bit_length() if t_out is not None else 0
-        at_wrap = t_out is not None and wrap_b >= 4 and t_out < (1 << wrap_b) <= t_in
-        if not at_wrap and hi_range is not None and int(hi_range) > 0 and t_in < 0.25 * int(hi_range):
-            continue  # neither a register bound (2^b, b >= 4) nor the high range of the stage
-        cond = f"{name} >= {t_in}"
-        bits_txt = ""
-        ev: dict[str, Any] = {"stage": name, "region": "top", "threshold": t_in, "below": t_out,
-                              "in_region": int(cum[i]), "mismatches": total_bad, "region_share": base,
-                              "precision": precision}
-        if t_out is not None:
-            b2 = max(0, int(t_out).bit_length())
-            if b2 >= 4 and t_out < (1 << b2) <= t_in:
-                need = getattr(st0, "bits", None)
-                widen = f"widen it to {need} bits" if need else "widen it"
-                cond = f"{name} >= 2^{b2} ({1 << b2})"
-                bits_txt = f": {name} wraps at {b2} bits; {widen} or saturate it"
-                ev["wrap_bits"] = b2
-        hi = getattr(st0, "hi", None)
-        if not bits_txt:
-            bits_txt = f": {name} overflows near the top of its range" + (f" (model range up to {hi})" if hi is not None else "")
-        conf = recall * (1 - base) * min(1.0, precision + 0.2)
-        if getattr(st0, "signed", False):
-            cond = "|" + name + "|" + cond[len(name):]
-        f = Finding(
-            "overflow",
-            f"{_pct(recall)} of mismatches sit where {cond} ({_pct(base)} of pixels, {_pct(precision)} of "
-            f"those wrong){bits_txt}",
-            ev,
-            conf,
-        )
+        for f in (_clamp_region_finding(sample, max(wrapped, at_bound)), _top_region_finding(sample, wrapped)):
+            if f is not None:
+                found.append(f)
+    best: Finding | None = None
+    for f in found:  # the first of equals wins, as the stages come in pipeline order
         if best is None or f.confidence > best.confidence:
             best = f
     return best
+
+
+def _clamp_region_finding(s: _StageSample, wrapped: float) -> Finding | None:
+    """Mismatches where the model saturates the stage: the design saturates it at another bound, or wraps."""
+    if s.clamped is None:
+        return None
+    total_bad, n = int(s.bad.sum()), s.values.size
+    cin, bin_ = int(s.clamped.sum()), int((s.clamped & s.bad).sum())
+    recall, base = bin_ / total_bad, cin / n
+    if not (cin and recall >= _EXPLAINED_SHARE and base <= _REGION_MAX_SHARE and wrapped >= _WRAPPED_SHARE
+            and _log_tail(bin_, total_bad, base) <= _SIGNIFICANT_LOG_P):
+        return None
+    return Finding(
+        "overflow",
+        f"{_pct(recall)} of mismatches sit where the model saturates {s.name} ({_pct(base)} of pixels): "
+        f"the design wraps or saturates {s.name} at a different bound; saturate it like the model",
+        {"stage": s.name, "region": "clamped", "in_region": bin_, "mismatches": total_bad, "region_share": base},
+        recall * (1 - base),
+    )
+
+
+def _best_top_cut(values: np.ndarray, bad: np.ndarray) -> tuple[int, np.ndarray, np.ndarray] | None:
+    """The rule "value >= t" that best separates wrong from right pixels (F1 score), over whole value
+    groups and at most half the pixels: ``(index in the sorted order, sorted values, running bad count)``."""
+    n = values.size
+    order = np.argsort(-values, kind="stable")
+    vs, cum = values[order], np.cumsum(bad[order])
+    k = np.arange(1, n + 1)
+    cut = np.ones(n, bool)
+    cut[:-1] = vs[:-1] != vs[1:]  # a region must hold whole value groups
+    cut &= k <= n // 2
+    if not cut.any():
+        return None
+    prec = cum / k
+    rec = cum / int(bad.sum())
+    f1 = np.where(cut, 2 * prec * rec / np.maximum(prec + rec, 1e-12), -1.0)
+    return int(np.argmax(f1)), vs, cum
+
+
+def _wrap_bits(t_in: int, t_out: int | None) -> int | None:
+    """``b`` when the cut between ``t_out`` (highest right value) and ``t_in`` (lowest wrong one) is the
+    register bound ``2**b`` (b >= :data:`_WRAP_MIN_BITS`), else None."""
+    if t_out is None:
+        return None
+    b = int(t_out).bit_length()
+    return b if b >= _WRAP_MIN_BITS and t_out < (1 << b) <= t_in else None
+
+
+def _top_region_finding(s: _StageSample, wrapped: float) -> Finding | None:
+    """Mismatches above one value of the stage: a register that wraps at ``2**b``, or the top of its range."""
+    top = _best_top_cut(s.values, s.bad)
+    if top is None:
+        return None
+    i, vs, cum = top
+    total_bad, n = int(s.bad.sum()), s.values.size
+    recall, precision, base = float(cum[i] / total_bad), float(cum[i] / (i + 1)), (i + 1) / n
+    if recall < _EXPLAINED_SHARE or precision < _TOP_MIN_PRECISION:
+        return None
+    if _log_tail(int(cum[i]), total_bad, base) > _SIGNIFICANT_LOG_P:
+        return None
+    if wrapped < _WRAPPED_SHARE or precision < _WRAP_PRECISION or np.unique(vs).size < _MIN_LEVELS:
+        # A wrap is deterministic: nearly every pixel past the bound is wrong. A region where only
+        # some are (the bright part of a two-level picture) is where the signal is, not a bound.
+        return None
+    t_in, t_out = int(vs[i]), (int(vs[i + 1]) if i + 1 < n else None)
+    bits = _wrap_bits(t_in, t_out)
+    if bits is None and int(s.stage.hi) > 0 and t_in < _HIGH_RANGE * int(s.stage.hi):
+        return None  # neither a register bound nor the high range of the stage
+    ev: dict[str, Any] = {"stage": s.name, "region": "top", "threshold": t_in, "below": t_out,
+                          "in_region": int(cum[i]), "mismatches": total_bad, "region_share": base,
+                          "precision": precision}
+    if bits is not None:
+        widen = f"widen it to {s.stage.bits} bits" if s.stage.bits else "widen it"
+        cond = f"{s.name} >= 2^{bits} ({1 << bits})"
+        why = f": {s.name} wraps at {bits} bits; {widen} or saturate it"
+        ev["wrap_bits"] = bits
+    else:
+        cond = f"{s.name} >= {t_in}"
+        why = f": {s.name} overflows near the top of its range (model range up to {s.stage.hi})"
+    if s.stage.signed:
+        cond = "|" + s.name + "|" + cond[len(s.name):]
+    return Finding(
+        "overflow",
+        f"{_pct(recall)} of mismatches sit where {cond} ({_pct(base)} of pixels, {_pct(precision)} of those wrong){why}",
+        ev,
+        recall * (1 - base) * min(1.0, precision + _PRECISION_BONUS),
+    )
 
 
 @dataclass
@@ -765,7 +838,7 @@ def _line_stall_finding(frames: Sequence[FrameResult], stall: Sequence[Sequence[
         for y, n in enumerate(fr.line_lengths[:h]):
             rows.append((fr.index, y, n - w))
     bad = [r for r in rows if r[2] != 0]
-    if len(bad) < 3:
+    if len(bad) < _MIN_TELLING_PIXELS:
         return None
 
     def explained(k: int) -> tuple[int, str]:
@@ -774,14 +847,16 @@ def _line_stall_finding(frames: Sequence[FrameResult], stall: Sequence[Sequence[
         return (drop, "dropped") if drop >= rep else (rep, "repeated")
 
     hit, how = explained(1)
-    others = [explained(k)[0] for k in range(-3, 6) if k != 1]
-    if hit < 0.8 * len(bad) or hit <= 1.5 * max(others + [0]) + 1:
+    others = [explained(k)[0] for k in _OTHER_LINE_OFFSETS if k != 1]
+    if hit < _EXPLAINED_SHARE * len(bad) or hit <= _OFFSET_MARGIN * max(others + [0]) + 1:
         return None
     lines = [(f, y) for f, y, d in bad if counts.get((f, y + 1), 0)]
     f0, y0 = lines[0]
     xs = first_x[(f0, y0 + 1)]
     n0 = next(d for f, y, d in bad if (f, y) == (f0, y0))
-    line_txt = ", ".join(str(y) for _, y in lines[:6]) + (f" (+{len(lines) - 6} more)" if len(lines) > 6 else "")
+    line_txt = ", ".join(str(y) for _, y in lines[:_LINES_NAMED]) + (
+        f" (+{len(lines) - _LINES_NAMED} more)" if len(lines) > _LINES_NAMED else ""
+    )
     direction = "left" if how == "dropped" else "right"
     per = "exactly one pixel per input stall" if how == "dropped" else "one pixel per stall clock"
     msg = (
@@ -792,8 +867,40 @@ def _line_stall_finding(frames: Sequence[FrameResult], stall: Sequence[Sequence[
         "while in_valid is low (take a pixel and emit one only on valid)"
     )
     ev = {"how": how, "lines_wrong": len(bad), "lines_explained": hit, "other_offsets_best": max(others + [0]),
-          "lines": [[f, y, d] for f, y, d in bad[:50]]}
-    return Finding("stall", msg, ev, 0.99 * hit / len(bad))
+          "lines": [[f, y, d] for f, y, d in bad[:EVIDENCE_ITEMS]]}
+    return Finding("stall", msg, ev, _DE_CONFIDENCE * hit / len(bad))
+
+
+_Hit = tuple[str, tuple[int, int]]
+"""What a slip is tied to: ``("input stall", (x, y))`` at the input or ``("back-pressure", (x, y))`` at the output."""
+
+
+def _stall_hit(ev: SlipEvent, tm: np.ndarray, stall: Sequence[Sequence[int]]) -> tuple[float, _Hit | None]:
+    """The chance that a slip of this span, placed anywhere on the frame, touches a stall target; and the
+    input stall it touches, if any (the input pixel whose slip column is nearest the event)."""
+    h, w = tm.shape
+    span = ev.x_hi - ev.x_lo + 1
+    c = np.concatenate([np.zeros((h, 1), np.int64), np.cumsum(tm.astype(np.int64), 1)], 1)
+    starts = np.arange(w)
+    ends = np.minimum(w, starts + span)
+    chance = float(np.mean((c[:, ends] - c[:, starts]) > 0))
+    if not tm[ev.y, ev.x_lo : ev.x_hi + 1].any():
+        return chance, None
+    cands = [(abs((xs - 1) - ev.x), xs, ys) for f, ys, xs in stall if int(f) == ev.frame and ys - 1 == ev.y]
+    if not cands:
+        return chance, None
+    _, xs, ys = min(cands)
+    return chance, ("input stall", (int(xs), int(ys)))
+
+
+def _backpressure_hit(ev: SlipEvent, bp_idx: np.ndarray, capture: Capture, n_arrived: int) -> tuple[float, _Hit | None]:
+    """The chance that a slip lands within one pixel of a back-pressure point; and the point it lands at."""
+    chance = min(1.0, _BACKPRESSURE_REACH * bp_idx.size / n_arrived)
+    near = np.flatnonzero(np.abs(bp_idx - ev.index) <= 1)
+    if not near.size:
+        return chance, None
+    k = int(bp_idx[near[0]])
+    return chance, ("back-pressure", (int(capture.column[k]), int(capture.line[k])))
 
 
 def _slip_stall_finding(
@@ -808,57 +915,52 @@ def _slip_stall_finding(
     events, subs = slip_events(frames, capture)
     if not events:
         return None
-    h, w = frames[0].expected.shape
     targets = _stall_targets(frames, stall)
     bp_idx = _backpressure_targets(capture, back)
     n_arrived = max(1, min(len(capture), _ALIGN_MAX_PIXELS + _ALIGN_MAX_PIXELS // 2))
     matched: list[tuple[SlipEvent, str, tuple[int, int]]] = []
     p_sum = 0.0
     for ev in events:
-        span = ev.x_hi - ev.x_lo + 1
-        hit: tuple[str, tuple[int, int]] | None = None
+        hit: _Hit | None = None
         p_ev = 0.0
-        tm = targets.get(ev.frame)
-        if tm is not None:
-            # Chance that a slip of this span, placed anywhere, touches a target.
-            t = tm.astype(np.int64)
-            c = np.concatenate([np.zeros((h, 1), np.int64), np.cumsum(t, 1)], 1)
-            starts = np.arange(w)
-            ends = np.minimum(w, starts + span)
-            p_ev += float(np.mean((c[:, ends] - c[:, starts]) > 0))
-            if tm[ev.y, ev.x_lo : ev.x_hi + 1].any():
-                # Name the stall: the input pixel whose slip column is nearest the event.
-                cands = [
-                    (abs((xs - 1) - ev.x), xs, ys)
-                    for f, ys, xs in stall
-                    if int(f) == ev.frame and ys - 1 == ev.y
-                ]
-                if cands:
-                    _, xs, ys = min(cands)
-                    hit = ("input stall", (int(xs), int(ys)))
+        if ev.frame in targets:
+            p_ev, hit = _stall_hit(ev, targets[ev.frame], stall)
         if bp_idx.size:
-            near = np.flatnonzero(np.abs(bp_idx - ev.index) <= 1)
-            p_ev += min(1.0, 3.0 * bp_idx.size / n_arrived)
-            if hit is None and near.size:
-                k = int(bp_idx[near[0]])
-                hit = ("back-pressure", (int(capture.column[k]), int(capture.line[k])))
+            chance, bp_hit = _backpressure_hit(ev, bp_idx, capture, n_arrived)
+            p_ev += chance
+            hit = hit or bp_hit
         p_sum += min(1.0, p_ev)
         if hit is not None:
             matched.append((ev, hit[0], hit[1]))
-    n = len(events)
-    k = len(matched)
-    p = p_sum / n
-    log_p = _log_tail(k, n, p)
-    ev_json = [e.to_list() for e in events[:50]]
-    if k == 0 or log_p > _COINCIDENT_LOG_P or k / n < 0.5:
+    n, k = len(events), len(matched)
+    log_p = _log_tail(k, n, p_sum / n)
+    if k == 0 or log_p > _COINCIDENT_LOG_P or k / n < _SLIPS_TIED_SHARE:
         return None
+    lines = sorted({(e.frame, e.y) for e, _, _ in matched})
+    evidence = {
+        "slips": [e.to_list() for e in events[:EVIDENCE_ITEMS]],
+        "matched": [[e.kind, e.frame, e.y, e.x, t, list(pos)] for e, t, pos in matched[:EVIDENCE_ITEMS]],
+        "chance_share": round(p_sum / n, 4),
+        "log10_chance": round(log_p / math.log(10), 2),
+        "substitutions": subs,
+        "lines": [list(x) for x in lines[:EVIDENCE_ITEMS]],
+    }
+    return Finding("stall", _slip_stall_message(matched, n, lines), evidence, _DE_CONFIDENCE * (k / n))
+
+
+def _slip_stall_message(
+    matched: list[tuple[SlipEvent, str, tuple[int, int]]], n: int, lines: list[tuple[int, int]]
+) -> str:
     # Name the clearest slip: the first one whose place is not blurred by equal neighbour values.
-    ev0, what, (sx, sy) = min(matched, key=lambda m_: (m_[0].x_hi - m_[0].x_lo > 2, m_[0].frame, m_[0].y, m_[0].x))
+    ev0, what, (sx, sy) = min(
+        matched, key=lambda m_: (m_[0].x_hi - m_[0].x_lo > _BLURRED_SPAN, m_[0].frame, m_[0].y, m_[0].x)
+    )
     # After a stall at input column xs the repeat takes output column xs; a drop loses centre xs - 1.
     x_want = sx if ev0.kind != "dropped" else sx - 1
     x_at = min(max(x_want, ev0.x_lo), ev0.x_hi) if what == "input stall" else ev0.x
-    lines = sorted({(e.frame, e.y) for e, _, _ in matched})
-    line_txt = ", ".join(str(y) for _, y in lines[:6]) + (f" (+{len(lines) - 6} more)" if len(lines) > 6 else "")
+    line_txt = ", ".join(str(y) for _, y in lines[:_LINES_NAMED]) + (
+        f" (+{len(lines) - _LINES_NAMED} more)" if len(lines) > _LINES_NAMED else ""
+    )
     how = "dropped" if ev0.kind == "dropped" else "repeated"
     direction = "left" if how == "dropped" else "right"
     if what == "input stall":
@@ -867,21 +969,11 @@ def _slip_stall_finding(
     else:
         fix = "advance the pipe only when out_ready is high on this clock (not a registered copy of it)"
         where = f"after back-pressure at output ({sx}, {sy})"
-    msg = (
+    return (
         f"frame {ev0.frame} line {ev0.y}: pixel {how} at x={x_at}, the rest of the line shifted {direction} "
-        f"by {ev0.count if ev0.count <= 3 else 'several'}: pixel {how} {where}; {k} of {_plural(n, 'slip')} on {_plural(len(lines), 'line')} "
-        f"({line_txt}) start right after a stall: {fix}"
+        f"by {ev0.count if ev0.count <= 3 else 'several'}: pixel {how} {where}; {len(matched)} of "
+        f"{_plural(n, 'slip')} on {_plural(len(lines), 'line')} ({line_txt}) start right after a stall: {fix}"
     )
-    evidence = {
-        "slips": ev_json,
-        "matched": [[e.kind, e.frame, e.y, e.x, t, list(pos)] for e, t, pos in matched[:50]],
-        "chance_share": round(p, 4),
-        "log10_chance": round(log_p / math.log(10), 2),
-        "substitutions": subs,
-        "lines": [list(x) for x in lines[:50]],
-    }
-    conf = 0.99 * (k / n)
-    return Finding("stall", msg, evidence, conf)
 
 
 def _stall_region(fr: FrameResult, stall: Sequence[Sequence[int]], back: Sequence[Sequence[int]]) -> np.ndarray:
@@ -905,11 +997,11 @@ def _row_slips(fr: FrameResult) -> list[tuple[int, int, str]]:
         y = int(y)
         x0 = int(np.flatnonzero(fr.value_bad[y])[0])
         a, e, k = fr.actual[y], fr.expected[y], known[y]
-        if int(fr.value_bad[y, x0:].sum()) < 3:
+        if int(fr.value_bad[y, x0:].sum()) < _MIN_TELLING_PIXELS:
             continue  # a slip moves the rest of the line: more than one or two pixels go wrong
         for how, asl, esl in (("repeated", slice(x0 + 1, None), slice(x0, -1)), ("dropped", slice(x0, -1), slice(x0 + 1, None))):
             kk = k[asl] & fr.valid[y][esl] & (a[asl] != e[asl])  # only pixels the slip changed tell
-            if kk.sum() >= 3 and np.mean(a[asl][kk] == e[esl][kk]) >= 0.9:
+            if kk.sum() >= _MIN_TELLING_PIXELS and np.mean(a[asl][kk] == e[esl][kk]) >= _MATCH_SHARE:
                 out.append((y, x0, how))
                 break
     return out
@@ -935,26 +1027,26 @@ def _stall_finding(
         if near:
             where = "right after a stall or back-pressure"
             fix = "the design does not hold its pipeline while in_valid or out_ready is low"
-            conf = 0.98 * explained * (near / len(slips))
+            conf = _STALL_NEAR_CONFIDENCE * explained * (near / len(slips))
         else:
             where = "with no recorded stall there"
             fix = "a pixel is taken twice or skipped; check the valid/ready handshake and the column counter"
-            conf = 0.75 * explained
+            conf = _SLIP_ALONE_CONFIDENCE * explained
         shift_dir = "right" if how == "repeated" else "left"
         msg = (
             f"frame {f} line {y}: pixel {how} at x={x0}, the rest of the line shifted {shift_dir} by 1, "
             f"{where} ({_plural(len(slips), 'line')} like this, {near} near a stall): {fix}"
         )
-        ev = {"slips": [[s[0], s[1], s[2], s[3], s[4]] for s in slips[:50]], "near_stall": near,
+        ev = {"slips": [[s[0], s[1], s[2], s[3], s[4]] for s in slips[:EVIDENCE_ITEMS]], "near_stall": near,
               "rows_failing": bad_rows}
         return Finding("stall", msg, ev, conf)
     if not stall and not back:
         return None
     bin_, btot, cin, ctot = _region_stats(failing, lambda fr: _stall_region(fr, stall, back))
-    if btot < 2 or ctot == 0 or cin == 0:
+    if btot < _MIN_REGION_MISMATCHES or ctot == 0 or cin == 0:
         return None
     recall, base = bin_ / btot, cin / ctot
-    if recall < 0.7 or base > 0.5 or _log_tail(bin_, btot, base) > _SIGNIFICANT_LOG_P:
+    if recall < _STALL_REGION_RECALL or base > _REGION_MAX_SHARE or _log_tail(bin_, btot, base) > _SIGNIFICANT_LOG_P:
         return None
     msg = (
         f"{_pct(recall)} of mismatches sit next to a stall or back-pressure point ({_pct(base)} of pixels): "
@@ -973,7 +1065,7 @@ def _rounding_finding(frames: Sequence[FrameResult], tol: int) -> Finding | None
     one = np.abs(errs) == tol + 1
     share = float(one.mean())
     density = errs.size / max(1, checked)
-    if share < 0.9 or density > 0.5:
+    if share < _ROUNDING_SHARE or density > _ROUNDING_MAX_DENSITY:
         return None
     up, down = int((errs[one] > 0).sum()), int((errs[one] < 0).sum())
     if down == 0:
@@ -987,7 +1079,7 @@ def _rounding_finding(frames: Sequence[FrameResult], tol: int) -> Finding | None
         f"(+{tol + 1}: {up}, -{tol + 1}: {down}): {hint}"
     )
     ev = {"count": int(errs.size), "plus": up, "minus": down, "density": density, "share_exact": share}
-    return Finding("rounding", msg, ev, share * (1 - density) * 0.95)
+    return Finding("rounding", msg, ev, share * (1 - density) * _ROUNDING_CONFIDENCE)
 
 
 def _scattered(frames: Sequence[FrameResult]) -> Finding:
@@ -1005,7 +1097,7 @@ def _scattered(frames: Sequence[FrameResult]) -> Finding:
         f"{total} mismatching pixels ({_pct(total / max(1, checked))} of checked) with no pattern found{first}; "
         "inspect the first mismatches' stage values",
         ev,
-        0.1,
+        _SCATTERED_CONFIDENCE,
     )
 
 
@@ -1048,41 +1140,71 @@ def diagnose(
     stall = [tuple(int(v) for v in s) for s in stall_pixels]
     back = [tuple(int(v) for v in s) for s in backpressure_pixels]
     failures = sum(int(fr.mismatch.sum()) for fr in frames)
-    value_failures = sum(int(fr.value_bad.sum()) for fr in frames)
     findings: list[Finding] = _timing_findings(timing, frames)
-    for f in (_xz_finding(frames), _missing_finding(frames, failures, meta)):
-        if f is not None:
-            findings.append(f)
+    findings += [f for f in (_xz_finding(frames), _missing_finding(frames, failures, meta)) if f is not None]
     shift = _shift_findings(frames, offset, applied_offset)
     if shift is not None:
         findings.append(shift)
-    # A cause found in the stream makes the line/frame/shift symptoms secondary.
-    cause = _de_offset_finding(frames)
-    if cause is None:
-        cause = _slip_stall_finding(frames, capture, stall, back)
-    if cause is None:
-        cause = _line_stall_finding(frames, stall)
+    cause = _stream_cause(frames, capture, stall, back)
     if cause is not None:
-        for f in findings:
-            if f.kind in ("timing", "missing", "shift") and f.evidence.get("category") not in (
-                "xz_control", "de_in_blanking", "vsync", "hsync"
-            ):
-                f.confidence *= 0.85
+        _demote_symptoms(findings)
         findings.append(cause)
     line_explained = any("dropped_line" in f.evidence or "repeated_line" in f.evidence for f in findings)
     if line_explained:
         # The lines after a dropped one move up, so the last line is 'missing' only as a consequence.
         findings = [f for f in findings if f.kind != "missing"]
+    value_failures = sum(int(fr.value_bad.sum()) for fr in frames)
     if value_failures and not line_explained and (shift is None or applied_offset is not None):
-        pixel = [
-            _border_finding(frames, border),
-            _overflow_finding(frames),
-            _stall_finding(frames, stall, back) if cause is None or cause.kind != "stall" else None,
-            _rounding_finding(frames, tolerance_lsb),
-        ]
-        pixel = [f for f in pixel if f is not None]
-        findings.extend(pixel)
-        if not pixel or max(f.confidence for f in pixel) < 0.3:
-            findings.append(_scattered(frames))
+        stall_named = cause is not None and cause.kind == "stall"
+        findings += _pixel_findings(frames, border, (stall, back), tolerance_lsb, stall_named)
     findings.sort(key=lambda f: -f.confidence)
     return findings
+
+
+def _stream_cause(
+    frames: Sequence[FrameResult], capture: Capture | None, stall: Sequence[Sequence[int]], back: Sequence[Sequence[int]]
+) -> Finding | None:
+    """A cause found in the output stream itself: data-enable one clock off, slips at stalls, or line
+    lengths that follow the stalls (the first of these that fits)."""
+    cause = _de_offset_finding(frames)
+    if cause is None:
+        cause = _slip_stall_finding(frames, capture, stall, back)
+    if cause is None:
+        cause = _line_stall_finding(frames, stall)
+    return cause
+
+
+_PRIMARY_CATEGORIES = ("xz_control", "de_in_blanking", "vsync", "hsync")
+"""Timing issues that stay first-hand even when a stream cause is found (no slip produces them)."""
+_SYMPTOM_WEIGHT = 0.85
+"""Confidence kept by line, frame and shift findings once a stream cause explains them: ranked below it."""
+_PATTERN_FLOOR = 0.3
+"""Below this confidence no pixel pattern explains the mismatches well; 'scattered' is added."""
+
+
+def _demote_symptoms(findings: list[Finding]) -> None:
+    """A cause found in the stream makes the line/frame/shift symptoms secondary."""
+    for f in findings:
+        if f.kind in ("timing", "missing", "shift") and f.evidence.get("category") not in _PRIMARY_CATEGORIES:
+            f.confidence *= _SYMPTOM_WEIGHT
+
+
+def _pixel_findings(
+    frames: Sequence[FrameResult],
+    border: BorderInference | None,
+    stalls: tuple[Sequence[Sequence[int]], Sequence[Sequence[int]]],
+    tolerance_lsb: int,
+    stall_named: bool,
+) -> list[Finding]:
+    """Patterns of the wrong values: border, overflow, stall region (unless a stall was named from the
+    stream), rounding; 'scattered' when none fits well. ``stalls`` is ``(input stalls, back-pressure)``."""
+    pixel = [
+        _border_finding(frames, border),
+        _overflow_finding(frames),
+        None if stall_named else _stall_finding(frames, *stalls),
+        _rounding_finding(frames, tolerance_lsb),
+    ]
+    found = [f for f in pixel if f is not None]
+    if not found or max(f.confidence for f in found) < _PATTERN_FLOOR:
+        found.append(_scattered(frames))
+    return found

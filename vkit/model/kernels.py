@@ -259,10 +259,7 @@ def minimum3x3(img: np.ndarray, border: str = "replicate", constant: float = 0) 
     References:
         Equivalent to ``scipy.ndimage.minimum_filter(size=3)`` with the matching mode.
     """
-    p = pad(img, border, constant)
-    height, width = p.shape[0] - 2, p.shape[1] - 2
-    col = np.minimum(np.minimum(p[0:height], p[1 : height + 1]), p[2 : height + 2])
-    return np.minimum(np.minimum(col[:, 0:width], col[:, 1 : width + 1]), col[:, 2 : width + 2])
+    return _extreme3x3(np.minimum, img, border, constant)
 
 
 def maximum3x3(img: np.ndarray, border: str = "replicate", constant: float = 0) -> np.ndarray:
@@ -271,7 +268,12 @@ def maximum3x3(img: np.ndarray, border: str = "replicate", constant: float = 0) 
     References:
         Equivalent to ``scipy.ndimage.maximum_filter(size=3)`` with the matching mode.
     """
+    return _extreme3x3(np.maximum, img, border, constant)
+
+
+def _extreme3x3(pick: np.ufunc, img: np.ndarray, border: str, constant: float) -> np.ndarray:
+    """``pick`` (np.minimum or np.maximum) over each 3x3 window: down the columns first, then along the rows."""
     p = pad(img, border, constant)
     height, width = p.shape[0] - 2, p.shape[1] - 2
-    col = np.maximum(np.maximum(p[0:height], p[1 : height + 1]), p[2 : height + 2])
-    return np.maximum(np.maximum(col[:, 0:width], col[:, 1 : width + 1]), col[:, 2 : width + 2])
+    col = pick(pick(p[0:height], p[1 : height + 1]), p[2 : height + 2])
+    return pick(pick(col[:, 0:width], col[:, 1 : width + 1]), col[:, 2 : width + 2])

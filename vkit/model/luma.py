@@ -18,6 +18,7 @@ __all__ = [
     "BT709",
     "OPENCV",
     "PRESETS",
+    "REAL_COEFFICIENTS",
     "luma",
     "luma_float",
     "luma_range",
@@ -88,9 +89,16 @@ def weights_from_coefficients(
     return LumaWeights(ints[0], ints[1], ints[2], fraction_bits, name)
 
 
-BT601 = weights_from_coefficients((0.299, 0.587, 0.114), 8, "bt601")
+REAL_COEFFICIENTS: dict[str, tuple[float, float, float]] = {
+    "bt601": (0.299, 0.587, 0.114),  # ITU-R BT.601-7
+    "bt709": (0.2126, 0.7152, 0.0722),  # ITU-R BT.709-6
+    "opencv": (0.299, 0.587, 0.114),  # OpenCV's RGB2GRAY uses the BT.601 coefficients
+}
+"""Preset name to the standard's real ``(kr, kg, kb)``: what the integer weights approximate."""
+
+BT601 = weights_from_coefficients(REAL_COEFFICIENTS["bt601"], 8, "bt601")
 """ITU-R BT.601 luma (Kr=0.299, Kb=0.114) with 8 fraction bits: 77, 150, 29."""
-BT709 = weights_from_coefficients((0.2126, 0.7152, 0.0722), 8, "bt709")
+BT709 = weights_from_coefficients(REAL_COEFFICIENTS["bt709"], 8, "bt709")
 """ITU-R BT.709 luma (Kr=0.2126, Kb=0.0722) with 8 fraction bits: 54, 183, 19 (sum 256)."""
 OPENCV = LumaWeights(9798, 19235, 3735, 15, "opencv")
 """The 15-fraction-bit set that reproduces OpenCV ``cvtColor(COLOR_RGB2GRAY)`` on 8-bit input, bit for bit."""

@@ -2,20 +2,20 @@
 
 from __future__ import annotations
 
-import json
 import math
 from dataclasses import dataclass, field
-from pathlib import Path
-from typing import TYPE_CHECKING, Any, Sequence
+from pathlib import PurePath
+from typing import Any, Sequence
 
 import numpy as np
 
 from vkit.core.errors import ConfigError
+from vkit.model.exact import run_model
+from vkit.model.float_twin import run_float
+from vkit.model.result import ModelResult
+from vkit.model.spec import PipelineSpec
 
-if TYPE_CHECKING:  # pragma: no cover
-    from vkit.model.pipeline import ModelResult, PipelineSpec
-
-__all__ = ["StageCoverage", "ImageQuality", "QualityReport", "compare", "psnr_db", "write_model_report"]
+__all__ = ["StageCoverage", "ImageQuality", "QualityReport", "ImageRun", "compare", "compare_runs", "psnr_db"]
 
 
 @dataclass
@@ -160,19 +160,28 @@ class _Pool:
     frame_pixels: int = 0
 
 
+@dataclass
+class ImageRun:
+    """One image through both models: its label, the bit-exact result and the float twin's."""
+
+    label: str
+    fixed: ModelResult
+    real: ModelResult
+
+
 def _as_image_list(spec: PipelineSpec, images: Any) -> list[np.ndarray]:
     if isinstance(images, np.ndarray):
         single = images.ndim == (3 if spec.input == "rgb888" else 2)
         return [images] if single else list(images)
-    if isinstance(images, (str, Path)):
-        return [_load(spec, images)]
-    return [_load(spec, x) if isinstance(x, (str, Path)) else np.asarray(x) for x in images]
-
-
-def _load(spec: PipelineSpec, path: str | Path) -> np.ndarray:
-    from vkit.video.images import load_image
-
-    return load_image(path, mode=spec.input)
+    if isinstance(images, (str, PurePath)):
+        images = [images]
+    for x in images:
+        if isinstance(x, (str, PurePath)):
+            raise ConfigError(
+                f"compare: {str(x)!r} is a file name; the model takes arrays: load it first with "
+                "vkit.video.images.load_image, or use vkit.report.quality.compare, which reads files"
+            )
+    return [np.asarray(x) for x in images]
 
 
 def _quality_of(
@@ -227,56 +236,42 @@ def compare(spec: PipelineSpec, images: Any, labels: Sequence[str] | None = None
 
     Args:
         spec: the pipeline.
-        images: one image array, a sequence of arrays, or file paths (PNG/PPM/PGM, read in the
-            spec's input format).
-        labels: a name per image; default: the file stem for paths, ``image<i>`` for arrays.
+        images: one image array or a sequence of them, in the spec's input format (file paths:
+            :func:`vkit.report.quality.compare`).
+        labels: a name per image; default ``image<i>``.
 
     Returns:
         A :class:`QualityReport` with per-image and pooled figures.
     """
-    return _compare(spec, images, labels, None)
+    return compare_runs(spec, images, labels)[0]
 
 
-def _labels(images: Any, count: int) -> list[str]:
-    items = list(images) if isinstance(images, (list, tuple)) else None
-    out = []
-    for i in range(count):
-        if items is not None and isinstance(items[i], (str, Path)):
-            out.append(Path(items[i]).stem)
-        elif isinstance(images, (str, Path)):
-            out.append(Path(images).stem)
-        else:
-            out.append(f"image{i}")
-        if out[-1] in out[:-1]:  # two files with one stem: keep the PNG names apart
-            out[-1] = f"{out[-1]}_{i}"
-    return out
-
-
-def _compare(
-    spec: PipelineSpec, images: Any, labels: Sequence[str] | None, keep: list[tuple[str, ModelResult, ModelResult]] | None
-) -> QualityReport:
-    from vkit.model.pipeline import run_float, run_model
-
+def compare_runs(
+    spec: PipelineSpec, images: Any, labels: Sequence[str] | None = None
+) -> tuple[QualityReport, list[ImageRun]]:
+    """:func:`compare`, also handing back both models' results per image (for pictures of the error)."""
     arrays = _as_image_list(spec, images)
     if not arrays:
-        raise ConfigError("compare: no images given; pass at least one image array or path")
+        raise ConfigError("compare: no images given; pass at least one image array")
     if labels is None:
-        labels = _labels(images, len(arrays))
+        labels = [f"image{i}" for i in range(len(arrays))]
     elif len(labels) != len(arrays):
         raise ConfigError(f"compare: {len(labels)} labels for {len(arrays)} images; give one label per image")
     pool = _Pool()
     per_image = []
-    order: list[tuple[str, int, int]] = []
+    runs: list[ImageRun] = []
     for label, img in zip(labels, arrays):
-        fixed = run_model(spec, img)
-        real = run_float(spec, img)
-        per_image.append(_quality_of(str(label), spec, fixed, real, pool))
-        if keep is not None:
-            keep.append((str(label), fixed, real))
-        if not order:
-            order = [(n, s.lo, s.hi) for n, s in fixed.stages.items()]
+        run = ImageRun(str(label), run_model(spec, img), run_float(spec, img))
+        per_image.append(_quality_of(run.label, spec, run.fixed, run.real, pool))
+        runs.append(run)
+    order = [(n, s.lo, s.hi) for n, s in runs[0].fixed.stages.items()]
+    return QualityReport(spec.name, spec.output.bits, per_image, _pooled(spec, pool, order)), runs
+
+
+def _pooled(spec: PipelineSpec, pool: _Pool, order: list[tuple[str, int, int]]) -> ImageQuality:
+    """The figures over every image at once."""
     peak = float(spec.output.max_value)
-    overall = ImageQuality(
+    return ImageQuality(
         label="overall",
         pixels=pool.pixels,
         max_abs_error=pool.max_abs,
@@ -286,45 +281,3 @@ def _compare(
         coverage=[_coverage(n, lo, hi, *pool.seen[n]) for n, lo, hi in order],
         clamp_shares={k: v / pool.frame_pixels for k, v in pool.clamp_hits.items()},
     )
-    return QualityReport(spec.name, spec.output.bits, per_image, overall)
-
-
-def write_model_report(spec: PipelineSpec, images: Any, out_dir: str | Path) -> list[Path]:
-    """Run the model on images and write what it produced and how good it is.
-
-    Writes, into ``out_dir`` (created if needed): ``<label>_output.png`` (the bit-exact output; scaled
-    to 0..255 when the output is not 8 bits), ``<label>_error.png`` (``|fixed - float|`` scaled so the
-    largest error of that image is white, black where nothing is checked), ``report.json`` (spec,
-    stage widths, quality) and ``report.txt`` (the width table and the quality summary).
-
-    Args:
-        spec: the pipeline.
-        images: as for :func:`compare`.
-        out_dir: folder to write into.
-
-    Returns:
-        The paths written, PNGs first, then ``report.json`` and ``report.txt``.
-    """
-    from vkit.video.images import save_image, to_uint8
-    from vkit.model.widths import format_width_table, widths_to_dict
-
-    out = Path(out_dir)
-    try:
-        out.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise ConfigError(f"report folder {str(out)!r} cannot be created ({exc.strerror}); pick a writable folder") from None
-    results: list[tuple[str, ModelResult, ModelResult]] = []
-    report = _compare(spec, images, None, results)
-    written: list[Path] = []
-    top = spec.output.max_value
-    for label, fixed, real in results:
-        shown = fixed.output if spec.output.bits == 8 else to_uint8(fixed.output, 0, top)
-        written.append(save_image(shown, out / f"{label}_output.png"))
-        err = np.where(fixed.valid_mask, np.abs(fixed.output - real.output), 0.0)
-        written.append(save_image(to_uint8(err, 0.0, max(float(err.max()), 1e-9)), out / f"{label}_error.png"))
-    data = {"spec": spec.to_dict(), "widths": widths_to_dict(spec)["stages"], "quality": report.to_dict()}
-    json_path = out / "report.json"
-    json_path.write_text(json.dumps(data, indent=2) + "\n", encoding="utf-8")
-    text_path = out / "report.txt"
-    text_path.write_text(format_width_table(spec) + "\n\n" + report.format_text() + "\n", encoding="utf-8")
-    return [*written, json_path, text_path]

@@ -4,14 +4,15 @@ from __future__ import annotations
 
 import math
 from dataclasses import asdict, dataclass
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 
+from vkit.model import magnitude as mag
 from vkit.model.fixedpoint import bits_for_range, shift_round
-
-if TYPE_CHECKING:  # pragma: no cover
-    from vkit.model.pipeline import PipelineSpec
+from vkit.model.kernels import kernel_range
+from vkit.model.luma import luma_range
+from vkit.model.spec import PipelineSpec
 
 __all__ = ["StageWidth", "stage_ranges", "stage_range_map", "format_width_table", "widths_to_dict", "dtype_for_range"]
 
@@ -71,7 +72,7 @@ def _div9(value: int, rounding: str) -> int:
 
 
 def stage_ranges(spec: PipelineSpec) -> list[StageWidth]:
-    """Theoretical range, sign and width of every stage :func:`vkit.model.pipeline.run_model` produces, in order.
+    """Theoretical range, sign and width of every stage :func:`vkit.model.exact.run_model` produces, in order.
 
     Ranges come from interval arithmetic: each stage's bounds follow from the previous stage's bounds
     and the spec (kernel weights via :func:`vkit.model.kernels.kernel_range`, rounding shifts applied to the
@@ -81,9 +82,6 @@ def stage_ranges(spec: PipelineSpec) -> list[StageWidth]:
     Example (the ``edge`` preset): luma 0..4080 (12 bits), gx/gy -16320..16320 (15 bits signed),
     sum_sq 0..532684800 (29 bits), address 0..8191 (13 bits), magnitude 0..255 (8 bits).
     """
-    from vkit.model.kernels import kernel_range
-    from vkit.model.luma import luma_range
-
     out: list[StageWidth] = [_width("input", 0, 255, "8 bits per component" if spec.input == "rgb888" else "8-bit grey")]
     lo, hi = 0, 255
     if spec.luma is not None:
@@ -130,8 +128,6 @@ def stage_ranges(spec: PipelineSpec) -> list[StageWidth]:
 
 
 def _magnitude_ranges(spec: PipelineSpec, gx: tuple[int, int], gy: tuple[int, int]) -> list[StageWidth]:
-    from vkit.model import magnitude as mag
-
     m = spec.magnitude
     assert m is not None
     out: list[StageWidth] = []

@@ -11,8 +11,10 @@ _HOME = {
     "case_entry": "vkit.report.writers",
     "format_summary": "vkit.report.writers",
     "merge_reports": "vkit.report.writers",
+    "read_images": "vkit.report.quality",
     "safe_name": "vkit.report.writers",
     "write_case_report": "vkit.report.writers",
+    "write_model_report": "vkit.report.quality",
     "write_run_report": "vkit.report.writers",
 }
 __all__ = sorted(_HOME)

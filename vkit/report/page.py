@@ -295,3 +295,77 @@ def write_index(out_dir: str | Path, title: str | None = None) -> Path:
     path = Path(out_dir) / INDEX_NAME
     path.write_text(render_index(out_dir, title), encoding="utf-8")
     return path
+
+
+# --------------------------------------------------------------------------- model quality page
+
+MODEL_PICTURE_WIDTH = 480
+"""Largest width of the model page's embedded output and error pictures, pixels."""
+_MAX_HISTOGRAM_BINS = 256
+"""Error histograms wider than this many 1-LSB bins are drawn with the observed bins only."""
+
+
+def _histogram(pairs: list[list[int]], title: str) -> BarChart:
+    """The error histogram as a bar chart with one bar per LSB from the lowest to the highest error."""
+    counts = {int(k): int(v) for k, v in pairs}
+    keys = sorted(counts)
+    if keys and keys[-1] - keys[0] < _MAX_HISTOGRAM_BINS:
+        keys = list(range(keys[0], keys[-1] + 1))
+    return bar_chart(title, "fixed point minus float, LSB", [(f"{k:+d}" if k else "0", counts.get(k, 0)) for k in keys])
+
+
+def _model_images(out: Path, images: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    shown = []
+    for q in images:
+        label = str(q.get("label"))
+        shown.append({
+            "quality": q,
+            "histogram": _histogram(q.get("error_histogram") or [], f"{label}: error histogram"),
+            "output": picture(out / f"{label}_output.png", out, MODEL_PICTURE_WIDTH),
+            "error": picture(out / f"{label}_error.png", out, MODEL_PICTURE_WIDTH),
+        })
+    return shown
+
+
+def render_model_page(out_dir: str | Path, title: str | None = None) -> str:
+    """The quality page of a model report folder as HTML text (see :func:`write_model_page`)."""
+    out = Path(out_dir)
+    data = _read_json(out / "report.json")
+    if data is None or not isinstance(data.get("quality"), dict):
+        raise ConfigError(f"model page: {out / 'report.json'} is missing or is not a model report; "
+                          "pass the folder `vkit model` (vkit.model.quality.write_model_report) wrote")
+    quality = data["quality"]
+    overall = quality.get("overall") or {}
+    spec = data.get("spec") or {}
+    return _environment().get_template("model.html.j2").render(
+        title=title or f"vkit model: {quality.get('pipeline', spec.get('name', '?'))}",
+        quality=quality, overall=overall, spec=spec, widths=data.get("widths") or [],
+        histogram=_histogram(overall.get("error_histogram") or [], "error histogram, all images"),
+        coverage=range_bars(overall.get("coverage") or []),
+        images=_model_images(out, list(quality.get("images") or [])),
+        peak=(1 << int(quality.get("output_bits", 8))) - 1,
+    )
+
+
+def write_model_page(out_dir: str | Path, title: str | None = None) -> Path:
+    """Write ``index.html`` into a model report folder: how far the bit-exact model is from its float twin.
+
+    Call it after :func:`vkit.model.quality.write_model_report` with the same folder. The page shows the
+    pooled error figures (max and mean ``|fixed - float|`` in output LSBs, PSNR), the error histogram,
+    per-stage range coverage against each stage's theoretical range, clamp shares, the stage width
+    table, the spec, and per image its output and error pictures with their own histogram.
+
+    Args:
+        out_dir: the model report folder (holds report.json and the ``<label>_output.png`` /
+            ``<label>_error.png`` pictures).
+        title: page title; default ``vkit model: <pipeline>``.
+
+    Returns:
+        The path of ``index.html``.
+
+    Raises:
+        ConfigError: no readable model report.json in ``out_dir``.
+    """
+    path = Path(out_dir) / INDEX_NAME
+    path.write_text(render_model_page(out_dir, title), encoding="utf-8")
+    return path

@@ -27,6 +27,7 @@ __all__ = [
     "bar_chart",
     "mismatches_per_line",
     "picture",
+    "first_frame_picture",
 ]
 
 _BLACK = (0, 0, 0)
@@ -156,31 +157,63 @@ class Picture:
         return self.src.startswith("data:")
 
 
+def _encode(im: Image.Image, max_width: int) -> tuple[str, int, int]:
+    """``im`` downscaled to at most ``max_width`` pixels wide (box filter), as a PNG ``data:`` URI."""
+    im = im.convert("RGB")
+    w, h = im.size
+    if w > max_width:
+        w, h = max_width, max(1, round(h * max_width / w))
+        im = im.resize((w, h), Image.BOX)
+    buf = io.BytesIO()
+    im.save(buf, format="PNG", optimize=True)
+    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii"), w, h
+
+
+def _relative(path: str | Path, page_dir: str | Path) -> str:
+    return Path(os.path.relpath(Path(path).resolve(), Path(page_dir).resolve())).as_posix()
+
+
 def picture(path: str | Path, page_dir: str | Path, max_width: int, embed: bool = True) -> Picture | None:
     """The picture at ``path`` downscaled to at most ``max_width`` pixels wide (aspect kept).
 
     Args:
         path: a PNG file.
         page_dir: the folder of the page that shows it (links are relative to it).
-        max_width: largest displayed width, pixels; wider pictures are downscaled (box filter).
-        embed: True: ``src`` is the (downscaled) PNG as a ``data:`` URI; False: ``src`` links the file.
+        max_width: largest width, pixels; wider pictures are downscaled (box filter).
+        embed: True: ``src`` is the (downscaled) PNG as a ``data:`` URI; False: ``src`` links the file
+            and the size is the size the page shows it at.
 
     Returns:
         None when the file is missing or not a picture.
     """
-    rel = Path(os.path.relpath(Path(path).resolve(), Path(page_dir).resolve())).as_posix()
+    rel = _relative(path, page_dir)
     try:
         with Image.open(path) as im:
-            im = im.convert("RGB")
-            w, h = im.size
-            if w > max_width:
-                h = max(1, round(h * max_width / w))
-                w = max_width
-                im = im.resize((w, h), Image.BOX)
             if not embed:
-                return Picture(rel, w, h, rel)
-            buf = io.BytesIO()
-            im.save(buf, format="PNG", optimize=True)
+                w, h = im.size
+                return Picture(rel, min(w, max_width), max(1, round(h * min(w, max_width) / w)), rel)
+            src, w, h = _encode(im, max_width)
     except (OSError, UnidentifiedImageError):
         return None
-    return Picture("data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii"), w, h, rel)
+    return Picture(src, w, h, rel)
+
+
+def first_frame_picture(frames_npy: str | Path, page_dir: str | Path, max_width: int) -> Picture | None:
+    """The first frame of a case's ``frames.npy`` (what the design was fed) as an embedded picture.
+
+    Args:
+        frames_npy: array ``(frames, height, width)`` or ``(frames, height, width, 3)``, uint8.
+        page_dir: the folder of the page (``full`` links the .npy file).
+        max_width: largest width, pixels.
+
+    Returns:
+        None when the file is missing, unreadable or not 8-bit frames.
+    """
+    try:
+        frames = np.load(frames_npy, allow_pickle=False)
+    except (OSError, ValueError):
+        return None
+    if frames.dtype != np.uint8 or frames.ndim not in (3, 4) or not len(frames):
+        return None
+    src, w, h = _encode(Image.fromarray(np.ascontiguousarray(frames[0])), max_width)
+    return Picture(src, w, h, _relative(frames_npy, page_dir))

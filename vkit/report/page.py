@@ -16,7 +16,9 @@ from pathlib import Path
 from typing import Any, Mapping
 
 from vkit.core.errors import ConfigError
-from vkit.report.figures import BarChart, Picture, RangeBar, bar_chart, mismatches_per_line, picture, range_bars
+from vkit.report.figures import (
+    BarChart, Picture, RangeBar, bar_chart, first_frame_picture, mismatches_per_line, picture, range_bars,
+)
 from vkit.report.writers import safe_name
 
 __all__ = ["CaseView", "load_cases", "render_index", "write_index", "render_model_page", "write_model_page"]
@@ -82,6 +84,7 @@ class CaseView:
     per_frame: BarChart | None = None
     per_line: BarChart | None = None
     picture: Picture | None = None
+    picture_note: str = ""
     traceback: str | None = None
     warnings: list[str] = field(default_factory=list)
 
@@ -189,21 +192,25 @@ def _add_figures(view: CaseView, out: Path, case: Mapping[str, Any], budget: lis
     if not view.passed and per_frame:
         view.per_frame = bar_chart("failing pixels per frame", "frame",
                                    [(p.get("frame"), int(p.get("mismatches", 0))) for p in per_frame])
-    frame = _shown_frame(case)
-    if frame is None:
-        return
-    index, files = frame
+    case_files = case.get("files") or {}
+    index, files = _shown_frame(case) or ("", {})
     if not view.passed and isinstance(files.get("diff"), str):
         lines = mismatches_per_line(out / files["diff"])
         if lines is not None:
             view.per_line = bar_chart(f"failing pixels per line, frame {index}", "line", list(enumerate(lines)))
-    shown = files.get("composite") or files.get("input")
-    if isinstance(shown, str):
-        width = PASS_PICTURE_WIDTH if view.passed else FAIL_PICTURE_WIDTH
-        pic = picture(out / shown, out, width, embed=budget[0] > 0)
-        if pic is not None and pic.embedded:
-            budget[0] -= len(pic.src)
-        view.picture = pic
+    keys = ("actual", "composite", "input") if view.passed else ("composite", "input")
+    shown = next((files[k] for k in keys if isinstance(files.get(k), str)), None)
+    width = PASS_PICTURE_WIDTH if view.passed else FAIL_PICTURE_WIDTH
+    if shown is not None:
+        view.picture = picture(out / shown, out, width, embed=budget[0] > 0)
+        view.picture_note = f"frame {index}: " + ("the design's output" if shown == files.get("actual") else
+                                                  "input, expected, actual, difference" if shown == files.get("composite")
+                                                  else "input")
+    elif view.passed and budget[0] > 0 and isinstance(case_files.get("frames_npy"), str):
+        view.picture = first_frame_picture(out / case_files["frames_npy"], out, width)
+        view.picture_note = "frame 0: input (no pictures kept for passing cases)"
+    if view.picture is not None and view.picture.embedded:
+        budget[0] -= len(view.picture.src)
 
 
 def load_cases(out_dir: str | Path) -> tuple[dict[str, Any], list[CaseView]]:

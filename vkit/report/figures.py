@@ -189,9 +189,12 @@ def picture(path: str | Path, page_dir: str | Path, max_width: int, embed: bool 
     rel = _relative(path, page_dir)
     try:
         with Image.open(path) as im:
+            w, h = im.size
             if not embed:
-                w, h = im.size
                 return Picture(rel, min(w, max_width), max(1, round(h * min(w, max_width) / w)), rel)
+            if w <= max_width and im.format == "PNG":  # small enough: the file's own bytes, no re-encoding
+                data = Path(path).read_bytes()
+                return Picture("data:image/png;base64," + base64.b64encode(data).decode("ascii"), w, h, rel)
             src, w, h = _encode(im, max_width)
     except (OSError, UnidentifiedImageError):
         return None

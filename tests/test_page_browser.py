@@ -120,6 +120,16 @@ def test_browser_filters_by_status_from_the_url(failing_run, tmp_path, wanted):
 
 
 @pytest.mark.sim
+@pytest.mark.parametrize("order", ["-mismatches", "mismatches"])
+def test_browser_sorts_by_a_column_from_the_url(failing_run, tmp_path, order):
+    out, report = failing_run
+    dom = _Dom(_browse((out / "index.html").as_uri() + f"#sort={order}", tmp_path / "profile", "--dump-dom").stdout)
+    by_anchor = {f"case-{safe_name(c['id'])}": c["counts"]["mismatches"] for c in report["cases"]}
+    shown = [by_anchor[r["data-target"]] for r in dom.rows]
+    assert shown == sorted(by_anchor.values(), reverse=order.startswith("-")) and len(set(shown)) > 1
+
+
+@pytest.mark.sim
 def test_browser_screenshot_is_kept(failing_run, tmp_path):
     out, _ = failing_run
     shot = tmp_path / "index.png"

@@ -2,9 +2,11 @@
 
 The pages are self-contained: styles, the table's sorting and filtering script and the thumbnails travel
 inside the file; full-size pictures, waves and ``verdict.json`` are linked relative to the page, so the
-page works from a file URL and from an unpacked CI artifact. Filters can be set from the URL fragment:
-``index.html#status=fail&q=edge_core`` (``status`` is ``pass``, ``fail``, ``no_output``, ``error`` or
-``failing`` = anything but a pass; ``q`` is text the row must contain).
+page works from a file URL and from an unpacked CI artifact. The table's view follows the URL fragment,
+so it can be linked: ``index.html#status=fail&q=edge_core&sort=-mismatches`` (``status`` is ``pass``,
+``fail``, ``no_output``, ``error`` or ``failing`` = anything but a pass; ``q`` is text the row must
+contain; ``sort`` is a column key: design, simulator, stimulus, timing, path, status, mismatches,
+diagnosis, time, with ``-`` for descending).
 """
 
 from __future__ import annotations

@@ -1,10 +1,12 @@
 /* vkit page script: sort and filter the case table, copy rerun commands, flag pictures that fail to load.
-   Filters follow the URL fragment (#status=fail&q=text) so a filtered view can be linked. No dependencies. */
+   The view follows the URL fragment so it can be linked: #status=fail&q=text&sort=-mismatches
+   (sort by a column key, "-" for descending). No dependencies. */
 (function () {
   "use strict";
   var table = document.getElementById("cases");
   var statusBox = document.getElementById("status-filter");
   var textBox = document.getElementById("text-filter");
+  var sortKey = "";
 
   function cellValue(row, index, numeric) {
     var cell = row.cells[index];
@@ -12,11 +14,10 @@
     return numeric ? parseFloat(raw) || 0 : raw.trim().toLowerCase();
   }
 
-  function sortBy(th) {
+  function sortBy(th, ascending) {
     var body = table.tBodies[0];
     var index = th.cellIndex;
     var numeric = th.getAttribute("data-type") === "num";
-    var ascending = th.getAttribute("aria-sort") !== "ascending";
     Array.prototype.forEach.call(th.parentNode.cells, function (h) { h.removeAttribute("aria-sort"); });
     th.setAttribute("aria-sort", ascending ? "ascending" : "descending");
     var rows = Array.prototype.slice.call(body.rows);
@@ -26,6 +27,7 @@
       return ascending ? order : -order;
     });
     rows.forEach(function (r) { body.appendChild(r); });
+    sortKey = (ascending ? "" : "-") + th.getAttribute("data-key");
   }
 
   function statusMatches(status, wanted) {
@@ -52,6 +54,7 @@
       var parts = [];
       if (wanted) parts.push("status=" + encodeURIComponent(wanted));
       if (text) parts.push("q=" + encodeURIComponent(text));
+      if (sortKey) parts.push("sort=" + encodeURIComponent(sortKey));
       try { history.replaceState(null, "", parts.length ? "#" + parts.join("&") : location.pathname); } catch (e) { /* file URL in a strict browser */ }
     }
   }
@@ -59,13 +62,16 @@
   function filterFromUrl() {
     var hash = location.hash.replace(/^#/, "");
     if (hash.indexOf("=") < 0) return;  /* a plain anchor such as #case-... */
-    var wanted = "", text = "";
+    var wanted = "", text = "", sort = "";
     hash.split("&").forEach(function (pair) {
       var kv = pair.split("=");
       var value = decodeURIComponent((kv[1] || "").replace(/\+/g, " "));
       if (kv[0] === "status") wanted = value;
       if (kv[0] === "q") text = value;
+      if (kv[0] === "sort") sort = value;
     });
+    var th = sort && table.tHead.querySelector('th[data-key="' + sort.replace(/^-/, "").replace(/[^a-z_]/g, "") + '"]');
+    if (th) sortBy(th, sort.charAt(0) !== "-");
     if (wanted && !Array.prototype.some.call(statusBox.options, function (o) { return o.value === wanted; })) {
       var option = document.createElement("option");
       option.value = option.textContent = wanted;
@@ -110,7 +116,10 @@
 
   if (table) {
     Array.prototype.forEach.call(table.tHead.rows[0].cells, function (th) {
-      th.addEventListener("click", function () { sortBy(th); });
+      th.addEventListener("click", function () {
+        sortBy(th, th.getAttribute("aria-sort") !== "ascending");
+        applyFilter(true);
+      });
     });
     statusBox.addEventListener("change", function () { applyFilter(true); });
     textBox.addEventListener("input", function () { applyFilter(true); });

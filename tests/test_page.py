@@ -200,3 +200,19 @@ def test_model_page_draws_the_report_histogram(tmp_path):
         assert f"fixed point minus float, LSB {label}: {n:,}</title>" in html
     pics = [_decode(i["src"]) for i in c.images]
     assert len(pics) == 4 and all(p.size == (W, H) for p in pics)  # output and error of each image
+
+
+def test_lines_chart_prefers_the_verdicts_own_counts(run_dir, tmp_path):
+    import shutil
+
+    copy = tmp_path / "run"
+    shutil.copytree(run_dir, copy)
+    report = json.loads((copy / "report.json").read_text())
+    fail = next(x for x in report["cases"] if x["id"] == FAIL_ID)
+    first = str(min(int(k) for k in fail["files"]["frames"]))
+    for per in fail["verdict"]["per_frame"]:
+        per["mismatches_per_line"] = [7] * H  # what a writer that lists the counts would store
+    (copy / "report.json").write_text(json.dumps(report))
+    html = write_index(copy).read_text()
+    assert f"failing pixels per line, frame {first}" in html
+    assert "line 23: 7</title>" in html and "line 5: 7</title>" in html

@@ -62,15 +62,16 @@ def test_plain_mode_writes_one_line_per_case_with_counts_and_estimate():
 
 def test_live_mode_keeps_failures_and_redraws_one_status_line():
     out = io.StringIO()
-    p = Progress(3, out, live=True, clock=FakeClock(0.0, 5.0, 10.0, 15.0))  # start, then one per redraw
+    p = Progress(3, out, live=True, clock=FakeClock(0.0, 5.0, 10.0, 10.0, 15.0))  # start, then one per redraw
     p.update("a", "pass", 1.0)
     p.update("b", "error", 1.0, diagnosis="could not build b")
+    p.echo("waves: b/waves.fst")
     p.update("c", "pass", 1.0)
     p.close()
     shown = screen(out.getvalue())
-    assert shown == ["ERROR b 1.0 s: could not build b",
+    assert shown == ["ERROR b 1.0 s: could not build b", "waves: b/waves.fst",
                      "[3/3] 2 passed, 0 failed, 1 errors, 0:15 elapsed, ~0:00 left"]
-    assert out.getvalue().count("\n") == 2  # the status line is redrawn in place, never scrolled
+    assert out.getvalue().count("\n") == 3  # the status line is redrawn in place, never scrolled
 
 
 def test_long_diagnosis_is_shortened_and_estimate_waits_for_a_case():

@@ -188,6 +188,15 @@ def _shown_frame(case: Mapping[str, Any]) -> tuple[str, Mapping[str, Any]] | Non
     return str(pick), frames[pick] or {}
 
 
+def _lines_of(out: Path, per_frame: list[dict[str, Any]], index: str, files: Mapping[str, Any]) -> list[int] | None:
+    """Failing pixels per line of frame ``index``: from the verdict when it lists them
+    (``per_frame[].mismatches_per_line``), else counted from the frame's diff picture."""
+    for p in per_frame:
+        if str(p.get("frame")) == index and isinstance(p.get("mismatches_per_line"), list):
+            return [int(n) for n in p["mismatches_per_line"]]
+    return mismatches_per_line(out / files["diff"]) if isinstance(files.get("diff"), str) else None
+
+
 def _add_figures(view: CaseView, out: Path, case: Mapping[str, Any], budget: list[int]) -> None:
     """Charts and the picture of one case; ``budget`` holds the embedded bytes still allowed."""
     per_frame = (case.get("verdict") or {}).get("per_frame") or []
@@ -196,8 +205,8 @@ def _add_figures(view: CaseView, out: Path, case: Mapping[str, Any], budget: lis
                                    [(p.get("frame"), int(p.get("mismatches", 0))) for p in per_frame])
     case_files = case.get("files") or {}
     index, files = _shown_frame(case) or ("", {})
-    if not view.passed and isinstance(files.get("diff"), str):
-        lines = mismatches_per_line(out / files["diff"])
+    if not view.passed:
+        lines = _lines_of(out, per_frame, index, files)
         if lines is not None:
             view.per_line = bar_chart(f"failing pixels per line, frame {index}", "line", list(enumerate(lines)))
     keys = ("actual", "composite", "input") if view.passed else ("composite", "input")

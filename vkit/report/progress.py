@@ -103,6 +103,14 @@ class Progress:
             self._write(f"{_CLEAR_LINE}{line}\n")
         self._draw()
 
+    def echo(self, text: str) -> None:
+        """Print a line of its own (a build message, a waves path) without breaking the status line."""
+        if self.live and self._drawn:
+            self._write(f"{_CLEAR_LINE}{text}\n")
+            self._draw()
+        else:
+            self._write(f"{text}\n")
+
     def close(self) -> None:
         """End the status line (live mode) so later output starts on a fresh line."""
         if self.live and self._drawn:

@@ -152,7 +152,7 @@ def _cmd_merge(args: argparse.Namespace) -> int:
 
 
 def _cmd_model(args: argparse.Namespace) -> int:
-    from vkit.model.quality import write_model_report
+    from vkit.report.quality import write_model_report
 
     spec = _spec(args.spec)
     paths = write_model_report(spec, list(args.images), args.out)

@@ -302,10 +302,11 @@ def test_unknown_simulator_suggests_the_closest(tmp_path, capsys):
     cfg = str(_config(tmp_path, _mangle(0)))
     code, _, err = _run(capsys, cfg, "--sim", "icarsu")
     assert code == 2
-    assert err == "vkit: error: --sim: unknown simulator 'icarsu'; did you mean 'icarus'? vkit drives verilator, icarus, ghdl"
+    assert err == "vkit: error: command line: --sim = 'icarsu' is not a simulator vkit drives; did you mean 'icarus'?"
     code, _, err = _run(capsys, cfg, "--sim", "questa")
     assert code == 2
-    assert err == "vkit: error: --sim: unknown simulator 'questa'; vkit drives verilator, icarus, ghdl"
+    assert err == ("vkit: error: command line: --sim = 'questa' is not a simulator vkit drives; "
+                   "use one of verilator, icarus, ghdl")
 
 
 def test_simulator_not_installed_gives_the_install_hint(tmp_path, capsys, monkeypatch):

@@ -22,6 +22,7 @@ __all__ = [
     "XZ_COLOUR",
     "UNCHECKED_COLOUR",
     "safe_name",
+    "case_folder",
     "case_entry",
     "write_case_report",
     "write_run_report",
@@ -57,8 +58,14 @@ def safe_name(case_id: str) -> str:
     return clean
 
 
-def _inside(out_dir: Path, path: Path) -> Path:
-    root = out_dir.resolve()
+def case_folder(out_dir: str | Path, case_id: str, *parts: str) -> Path:
+    """``out_dir/<safe case id>/<parts>``, resolved; every file of a case goes below it.
+
+    Raises:
+        ConfigError: the folder would fall outside ``out_dir`` (a case id or part that climbs out).
+    """
+    root = Path(out_dir).resolve()
+    path = Path(out_dir, safe_name(case_id), *parts)
     full = path.resolve()
     if full != root and root not in full.parents:
         raise ConfigError(f"report path {path} falls outside the report folder {out_dir}; use a plain case id")
@@ -180,7 +187,7 @@ def write_case_report(
     """
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
-    case_dir = _inside(out, out / safe_name(case_id))
+    case_dir = case_folder(out, case_id)
     case_dir.mkdir(parents=True, exist_ok=True)
     paths: dict[str, Any] = {"frames": {}}
     failing = not getattr(verdict, "passed", False) and getattr(verdict, "status", "") in ("fail", "no_output")

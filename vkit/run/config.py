@@ -76,11 +76,13 @@ __all__ = [
     "shard_cases",
     "parse_shard",
     "read_toml",
+    "PICTURE_MODES",
 ]
 
 _RUN_KEYS = ("out_dir", "simulators", "jobs", "seed", "timeout_s", "max_listed", "cache_dir", "coverage_floor",
              "waves", "pictures", "path")
-_PICTURE_MODES = ("failing", "all")
+PICTURE_MODES: tuple[str, ...] = ("failing", "all")
+"""``[run] pictures``: PNGs for failing frames only, or for every frame."""
 _STIMULUS_KEYS = (
     "images", "patterns", "size", "frames", "timings", "stalls", "backpressure", "gaps", "blanking",
     "blanking_value", "seeds", "convert",
@@ -304,13 +306,22 @@ class DesignConfig:
     align: str = "exact"
     timeout_clocks: int | None = None
 
-    def pipeline_spec(self) -> Any:
-        """The :class:`vkit.model.pipeline.PipelineSpec` this design implements."""
+    def pipeline_spec(self) -> pipeline.PipelineSpec:
+        """The :class:`vkit.model.pipeline.PipelineSpec` this design implements.
+
+        Raises:
+            ConfigError: the spec cannot be read, or it takes another pixel format than the design's.
+        """
         if self.spec_preset is not None:
-            return pipeline.preset(self.spec_preset)
-        if self.spec_file is not None:
-            return pipeline.PipelineSpec.from_toml(self.spec_file)
-        return pipeline.PipelineSpec.from_dict(self.spec_table or {})
+            spec = pipeline.preset(self.spec_preset)
+        elif self.spec_file is not None:
+            spec = pipeline.PipelineSpec.from_toml(self.spec_file)
+        else:
+            spec = pipeline.PipelineSpec.from_dict(self.spec_table or {})
+        if spec.input != self.pixel_format:
+            raise ConfigError(f"design {self.name}: spec {spec.name!r} takes {spec.input} but the design's "
+                              f"pixel_format is {self.pixel_format}; make them agree")
+        return spec
 
     def build_parameters(self, width: int, height: int) -> dict[str, Any]:
         """Parameters for a build at this frame size, file parameters as the language wants them."""
@@ -510,7 +521,7 @@ _RUN_FIELDS: dict[str, _Reader] = {
     "max_listed": _int_from(0),
     "coverage_floor": _share,
     "waves": _choice(WAVE_MODES),
-    "pictures": _choice(_PICTURE_MODES),
+    "pictures": _choice(PICTURE_MODES),
 }
 
 

@@ -2,9 +2,9 @@
 
 Enable it in the repo's root ``conftest.py``::
 
-    pytest_plugins = ["vkit.run.pytest_plugin"]
+    pytest_plugins = ["vkit.pytest_plugin"]
 
-or on the command line with ``pytest -p vkit.run.pytest_plugin``. pytest then collects every file named
+or on the command line with ``pytest -p vkit.pytest_plugin``. pytest then collects every file named
 ``vkit.toml`` it visits (or, when the ini option ``vkit_configs`` lists files, exactly those), and each
 case of the config's matrix becomes one item ``vkit.toml::<case id>`` marked ``sim`` and ``vkit``
 (``-m "not sim"`` leaves them out, ``-k conveyor`` picks cases by id). An item builds the design

@@ -18,6 +18,9 @@ from vkit.sim.simulators import SimulatorInfo, find
 REPO = Path(__file__).resolve().parents[1]
 SAMPLE_RTL = REPO / "sample_rtl"
 
+# Test data, not tests: tests/data/scaffold_prev holds a generated cocotb module that only runs in a simulator.
+collect_ignore = ["data"]
+
 
 def simulator_available(name: str) -> SimulatorInfo:
     """The simulator's info, or skip the calling test with its install hint."""

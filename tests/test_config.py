@@ -58,7 +58,7 @@ ports = { clock = "clk" }
 [stimulus]
 patterns = ["impulse"]
 """
-    with pytest.raises(ConfigError, match=r"source 'rtl/mine.v' not found"):
+    with pytest.raises(ConfigError, match=r"sources = 'rtl/mine.v' is not found"):
         load_config(_write(tmp_path, text))
 
 

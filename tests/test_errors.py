@@ -78,9 +78,9 @@ def test_misnamed_port_lists_ports_and_suggests_the_closest(tmp_path, build_cach
     code, problems, _ = _run(capsys, str(cfg))
     assert code == 2
     assert problems == [
-        f"ERROR mangle0/icarus/{CASE}: design mangle0: role 'out_de' -> port 'out_den' is not a port of blur_mangle; "
-        "did you mean 'out_de'? ports of blur_mangle: clk, rst, in_vsync, in_hsync, in_de, in_valid, in_data, "
-        "out_vsync, out_hsync, out_de, out_valid, out_data; fix the name in the design's ports table"
+        f"ERROR mangle0/icarus/{CASE}: design mangle0: ports.out_de = 'out_den' is not a port of blur_mangle (its "
+        "ports: clk, rst, in_vsync, in_hsync, in_de, in_valid, in_data, out_vsync, out_hsync, out_de, out_valid, "
+        "out_data); did you mean 'out_de'?"
     ]
     (case,) = _report(tmp_path)["cases"]
     assert case["status"] == "error" and "'out_den'" in case["diagnosis"]["message"]
@@ -91,14 +91,16 @@ def test_missing_port_is_caught_by_the_simulator_side_too(tmp_path, build_cache_
     """A port the HDL reader cannot check (a name the design lacks entirely): cocotb's own check, capture kept."""
     simulator_available("icarus")
     from vkit.run.config import expand_matrix, load_config
-    from vkit.run.runner import _simulate, build_design, make_frames
+    from vkit.run.builds import build_design
+    from vkit.run.inputs import make_frames
+    from vkit.run.simulate import simulate
     from vkit.sim.buildcache import BuildCache
 
     cfg = load_config(_config(tmp_path, _mangle(0, ports={**PORTS, "out_de": "frame_de"}), cache=build_cache_dir))
     (case,) = expand_matrix(cfg)
     sim_dir = tmp_path / "sim"
     outcome = build_design(case, BuildCache(build_cache_dir))
-    capture_file = _simulate(case, outcome.build_dir, sim_dir, make_frames(case), 60)
+    capture_file = simulate(case, outcome.build_dir, sim_dir, make_frames(case), 60)
     from vkit.video.capture import Capture
 
     meta = Capture.load(capture_file).meta
@@ -113,7 +115,7 @@ def test_port_too_narrow_for_the_pixel_format(tmp_path, build_cache_dir, capsys)
     code, problems, _ = _run(capsys, str(_config(tmp_path, design, cache=build_cache_dir)))
     assert code == 2
     assert problems == [
-        f"ERROR mangle0/icarus/{CASE}: design mangle0: role 'in_data' -> port 'in_data' is 8 bits wide but "
+        f"ERROR mangle0/icarus/{CASE}: design mangle0: ports.in_data = 'in_data' is 8 bits wide but "
         "pixel_format rgb888 needs 24 bits; widen the port or use a narrower pixel_format"
     ]
 
@@ -302,10 +304,11 @@ def test_unknown_simulator_suggests_the_closest(tmp_path, capsys):
     cfg = str(_config(tmp_path, _mangle(0)))
     code, _, err = _run(capsys, cfg, "--sim", "icarsu")
     assert code == 2
-    assert err == "vkit: error: --sim: unknown simulator 'icarsu'; did you mean 'icarus'? vkit drives verilator, icarus, ghdl"
+    assert err == "vkit: error: command line: --sim = 'icarsu' is not a simulator vkit drives; did you mean 'icarus'?"
     code, _, err = _run(capsys, cfg, "--sim", "questa")
     assert code == 2
-    assert err == "vkit: error: --sim: unknown simulator 'questa'; vkit drives verilator, icarus, ghdl"
+    assert err == ("vkit: error: command line: --sim = 'questa' is not a simulator vkit drives; "
+                   "use one of verilator, icarus, ghdl")
 
 
 def test_simulator_not_installed_gives_the_install_hint(tmp_path, capsys, monkeypatch):

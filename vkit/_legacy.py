@@ -78,6 +78,10 @@ class _Alias(importlib.abc.MetaPathFinder, importlib.abc.Loader):
 
 
 def install() -> None:
-    """Put the old-path finder on ``sys.meta_path`` once."""
+    """Put the old-path finder first on ``sys.meta_path``, once.
+
+    First, because ``vkit.tb`` is the package ``vkit.sim.tb`` itself: the path finder would otherwise load
+    ``vkit.tb.entry`` from that package's folder as a second copy of ``vkit.sim.tb.entry``.
+    """
     if not any(isinstance(f, _Alias) for f in sys.meta_path):
-        sys.meta_path.append(_Alias())
+        sys.meta_path.insert(0, _Alias())

@@ -6,9 +6,10 @@ import argparse
 import json
 import sys
 from pathlib import Path
-from typing import Sequence
+from typing import Any, Callable, NamedTuple, Sequence
 
 from vkit.core.errors import EXIT_CONFIG, EXIT_DUT, EXIT_PASS, ConfigError, VkitError
+from vkit.core.vocab import DRIVE_MODES
 
 __all__ = ["main", "build_parser", "problem_line"]
 
@@ -40,7 +41,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
     config = load_config(args.config)
     result = run(config, jobs=args.jobs, shard=args.shard, only=args.only, out_dir=args.out,
-                 simulators=args.sim or None, waves=args.waves, path=args.path)
+                 simulators=args.sim or None, waves=args.waves, drive=args.path)
     _print_run_end(result)
     return result.exit_code
 
@@ -94,15 +95,11 @@ def _print_run_end(result) -> None:  # noqa: ANN001 - vkit.run.runner.RunResult
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
-    from importlib.resources import files
+    from vkit.run.runner import demo_config, run
 
-    from vkit.run.config import load_config
-    from vkit.run.runner import run
-
-    demo = Path(str(files("vkit.regressions") / "demo.toml"))
-    config = load_config(demo)
     out = Path(args.out) if args.out else Path.cwd() / "vkit-demo"
-    result = run(config, jobs=args.jobs, out_dir=out, simulators=[args.sim] if args.sim else None, path=args.path)
+    result = run(demo_config(), jobs=args.jobs, out_dir=out, simulators=[args.sim] if args.sim else None,
+                 drive=args.path)
     _print_run_end(result)
     pngs = sorted(result.out_dir.rglob("*_composite.png"))
     if pngs:
@@ -113,17 +110,12 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 
 def _cmd_export(args: argparse.Namespace) -> int:
-    from vkit.run.config import expand_matrix, load_config, select_cases
-    from vkit.run.vectors import export_vectors
+    from vkit.run.config import load_config
+    from vkit.run.vectors import export_vectors, find_case
 
-    config = load_config(args.config)
-    cases = select_cases(expand_matrix(config, args.sim or None), args.case)
-    if len(cases) != 1:
-        listed = ", ".join(c.id for c in cases[:5]) + (" ..." if len(cases) > 5 else "")
-        raise ConfigError(f"export: {args.case!r} selects {len(cases)} cases ({listed or 'none'}); "
-                          "give one whole case id (see summary.txt of a run)")
-    done = export_vectors(cases[0], args.out)
-    print(f"exported {cases[0].id} to {done.out_dir}")
+    case = find_case(load_config(args.config), args.case, args.sim or None)
+    done = export_vectors(case, args.out)
+    print(f"exported {case.id} to {done.out_dir}")
     for sim, cmds in done.commands.items():
         print(f"  {sim}: " + " && ".join(" ".join(c) for c in cmds))
     print(f"then: vkit replay {done.out_dir}")
@@ -230,101 +222,123 @@ def _cmd_init(args: argparse.Namespace) -> int:
     return EXIT_PASS
 
 
+class _Arg(NamedTuple):
+    """One ``add_argument`` call as data: its flags and its keyword options."""
+
+    flags: tuple[str, ...]
+    options: dict[str, Any]
+
+
+def _arg(*flags: str, **options: Any) -> _Arg:
+    return _Arg(flags, options)
+
+
+_JOBS = _arg("-j", "--jobs", type=int, default=None, help="parallel worker processes")
+_WAVES = (
+    _arg("--waves", dest="waves", action="store_const", const="all", default=None,
+         help="dump waves (Icarus, FST) around the first mismatch of every case"),
+    _arg("--no-waves", dest="waves", action="store_const", const="off",
+         help="no wave dumps, not even for failing cases (default: [run] waves, 'failing')"),
+)
+_SPEC = _arg("spec", help="pipeline preset name or spec TOML file")
+
+_COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any, ...]], ...] = (
+    ("run", "run a regression config", _cmd_run, (
+        _arg("config", help="config TOML (or a pyproject.toml with [tool.vkit])"),
+        _JOBS,
+        _arg("--shard", default=None, help="K/N: run only shard K of N (case i goes to shard i %% N + 1)"),
+        _arg("--out", default=None, help="report folder (default: [run] out_dir)"),
+        _arg("--sim", nargs="+", default=None, help="simulators (replaces [run] simulators)"),
+        _arg("--only", action="append", default=None,
+             help="keep case ids matching this glob or text (a whole case id selects exactly that case)"),
+        _WAVES,
+        _arg("--path", choices=DRIVE_MODES, default=None,
+             help="clock: cocotb drives every clock; fast: a generated HDL harness plays and captures "
+                  "whole runs; native: that harness as a plain executable, no cocotb (default: [run] path, "
+                  "'clock')"),
+    )),
+    ("demo", "run the bundled sample regression (sim/demo.toml)", _cmd_demo, (
+        _arg("--out", default=None, help="report folder (default: ./vkit-demo)"),
+        _arg("--sim", default=None, help="simulator (default: the demo's, verilator)"),
+        _JOBS,
+        _arg("--path", choices=DRIVE_MODES, default=None,
+             help="clock (the demo's default), fast (generated HDL harness) or native (no cocotb)"),
+    )),
+    ("export", "write one case as vectors and a self-checking plain-HDL testbench", _cmd_export, (
+        _arg("config", help="config TOML"),
+        _arg("case", help="the whole id of one case (as summary.txt lists it)"),
+        _arg("--sim", nargs="+", default=None, help="simulators (replaces [run] simulators)"),
+        _arg("--out", default="vkit-export", help="export folder (default: ./vkit-export)"),
+    )),
+    ("replay", "judge the capture an exported testbench wrote, as a live run would", _cmd_replay, (
+        _arg("export_dir", help="folder written by `vkit export`"),
+        _arg("--capture", default=None, help="capture file (default: capture.bin/.txt in the folder)"),
+        _arg("--out", default=None, help="report folder (default: EXPORT_DIR/report)"),
+    )),
+    ("merge", "merge shard report.json files", _cmd_merge, (
+        _arg("out", help="folder for the merged report.json, junit.xml and summary.txt"),
+        _arg("reports", nargs="+", help="shard report.json files or their folders"),
+    )),
+    ("model", "run the bit-exact model on images and write a quality report", _cmd_model, (
+        _SPEC,
+        _arg("images", nargs="+", help="PNG/PPM/PGM images"),
+        _arg("--out", default="vkit-model", help="report folder (default: ./vkit-model)"),
+    )),
+    ("widths", "print each stage's range and bits", _cmd_widths, (
+        _SPEC,
+        _arg("--json", action="store_true", help="print JSON instead of a table"),
+    )),
+    ("lut", "write a lookup table file", _cmd_lut, (
+        _arg("kind", choices=["root"], help="table kind"),
+        _arg("--address-bits", type=int, default=13),
+        _arg("--data-bits", type=int, default=8),
+        _arg("--scale", type=int, default=8),
+        _arg("--rounding", action="store_true", help="round half up instead of the floor (math.isqrt)"),
+        _arg("--package", default=None, help="VHDL package name (default: from the file name)"),
+        _arg("--format", choices=["readmemh", "readmemb", "vhdl"], default="readmemh"),
+        _arg("-o", "--output", required=True, help="output file"),
+    )),
+    ("init", "write a starter vkit.toml, cocotb test and Makefile for an existing design", _cmd_init, (
+        _arg("top", help="top-level module or entity"),
+        _arg("sources", nargs="+", help="HDL files of the design, in compile order"),
+        _arg("--out", default=".", help="folder to write into (default: the current folder)"),
+        _arg("--family", choices=["video", "stream"], default=None, help="interface family (default: guessed)"),
+        _arg("--spec", default=None, help="pipeline preset (default: guessed from the names)"),
+        _arg("--pixel-format", default=None, help="gray8 or rgb888 (default: from the data width)"),
+        _arg("--sim", nargs="+", default=None, help="simulators for the config"),
+        _arg("-P", "--param", action="append", default=None, metavar="NAME=VALUE",
+             help="parameter / generic value (repeatable)"),
+        _arg("-D", "--define", action="append", default=None, metavar="NAME[=VALUE]",
+             help="Verilog define (repeatable)"),
+        _arg("--name", default=None, help="the design's name in the config (default: the top)"),
+        _arg("--force", action="store_true", help="overwrite existing files"),
+    )),
+    ("pattern", "write a verification pattern as PNG", _cmd_pattern, (
+        _arg("name", help="pattern name (see vkit.video.patterns.PATTERNS)"),
+        _arg("--size", type=_size, default=(64, 48), help="WIDTHxHEIGHT (default 64x48)"),
+        _arg("--seed", type=int, default=0),
+        _arg("--rgb", action="store_true", help="write RGB even for gray patterns"),
+        _arg("-o", "--output", required=True, help="output PNG"),
+    )),
+)
+"""Every subcommand: name, help, the function it calls, and its arguments (a tuple inside = one
+mutually exclusive group)."""
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser of the ``vkit`` command."""
     p = argparse.ArgumentParser(prog="vkit", description="Verification kit for streaming 3x3 video-filter RTL.")
     sub = p.add_subparsers(dest="command", required=True)
-
-    r = sub.add_parser("run", help="run a regression config")
-    r.add_argument("config", help="config TOML (or a pyproject.toml with [tool.vkit])")
-    r.add_argument("-j", "--jobs", type=int, default=None, help="parallel worker processes")
-    r.add_argument("--shard", default=None, help="K/N: run only shard K of N (case i goes to shard i %% N + 1)")
-    r.add_argument("--out", default=None, help="report folder (default: [run] out_dir)")
-    r.add_argument("--sim", nargs="+", default=None, help="simulators (replaces [run] simulators)")
-    r.add_argument("--only", action="append", default=None,
-                   help="keep case ids matching this glob or text (a whole case id selects exactly that case)")
-    wv = r.add_mutually_exclusive_group()
-    wv.add_argument("--waves", dest="waves", action="store_const", const="all", default=None,
-                    help="dump waves (Icarus, FST) around the first mismatch of every case")
-    wv.add_argument("--no-waves", dest="waves", action="store_const", const="off",
-                    help="no wave dumps, not even for failing cases (default: [run] waves, 'failing')")
-    r.add_argument("--path", choices=("clock", "fast", "native"), default=None,
-                   help="clock: cocotb drives every clock; fast: a generated HDL harness plays and captures "
-                        "whole runs; native: that harness as a plain executable, no cocotb (default: [run] path, "
-                        "'clock')")
-    r.set_defaults(func=_cmd_run)
-
-    d = sub.add_parser("demo", help="run the bundled sample regression (sim/demo.toml)")
-    d.add_argument("--out", default=None, help="report folder (default: ./vkit-demo)")
-    d.add_argument("--sim", default=None, help="simulator (default: the demo's, verilator)")
-    d.add_argument("-j", "--jobs", type=int, default=None, help="parallel worker processes")
-    d.add_argument("--path", choices=("clock", "fast", "native"), default=None,
-                   help="clock (the demo's default), fast (generated HDL harness) or native (no cocotb)")
-    d.set_defaults(func=_cmd_demo)
-
-    ex = sub.add_parser("export", help="write one case as vectors and a self-checking plain-HDL testbench")
-    ex.add_argument("config", help="config TOML")
-    ex.add_argument("case", help="the whole id of one case (as summary.txt lists it)")
-    ex.add_argument("--sim", nargs="+", default=None, help="simulators (replaces [run] simulators)")
-    ex.add_argument("--out", default="vkit-export", help="export folder (default: ./vkit-export)")
-    ex.set_defaults(func=_cmd_export)
-
-    rp = sub.add_parser("replay", help="judge the capture an exported testbench wrote, as a live run would")
-    rp.add_argument("export_dir", help="folder written by `vkit export`")
-    rp.add_argument("--capture", default=None, help="capture file (default: capture.bin/.txt in the folder)")
-    rp.add_argument("--out", default=None, help="report folder (default: EXPORT_DIR/report)")
-    rp.set_defaults(func=_cmd_replay)
-
-    m = sub.add_parser("merge", help="merge shard report.json files")
-    m.add_argument("out", help="folder for the merged report.json, junit.xml and summary.txt")
-    m.add_argument("reports", nargs="+", help="shard report.json files or their folders")
-    m.set_defaults(func=_cmd_merge)
-
-    mo = sub.add_parser("model", help="run the bit-exact model on images and write a quality report")
-    mo.add_argument("spec", help="pipeline preset name or spec TOML file")
-    mo.add_argument("images", nargs="+", help="PNG/PPM/PGM images")
-    mo.add_argument("--out", default="vkit-model", help="report folder (default: ./vkit-model)")
-    mo.set_defaults(func=_cmd_model)
-
-    w = sub.add_parser("widths", help="print each stage's range and bits")
-    w.add_argument("spec", help="pipeline preset name or spec TOML file")
-    w.add_argument("--json", action="store_true", help="print JSON instead of a table")
-    w.set_defaults(func=_cmd_widths)
-
-    lu = sub.add_parser("lut", help="write a lookup table file")
-    lu.add_argument("kind", choices=["root"], help="table kind")
-    lu.add_argument("--address-bits", type=int, default=13)
-    lu.add_argument("--data-bits", type=int, default=8)
-    lu.add_argument("--scale", type=int, default=8)
-    lu.add_argument("--rounding", action="store_true", help="round half up instead of the floor (math.isqrt)")
-    lu.add_argument("--package", default=None, help="VHDL package name (default: from the file name)")
-    lu.add_argument("--format", choices=["readmemh", "readmemb", "vhdl"], default="readmemh")
-    lu.add_argument("-o", "--output", required=True, help="output file")
-    lu.set_defaults(func=_cmd_lut)
-
-    ini = sub.add_parser("init", help="write a starter vkit.toml, cocotb test and Makefile for an existing design")
-    ini.add_argument("top", help="top-level module or entity")
-    ini.add_argument("sources", nargs="+", help="HDL files of the design, in compile order")
-    ini.add_argument("--out", default=".", help="folder to write into (default: the current folder)")
-    ini.add_argument("--family", choices=["video", "stream"], default=None, help="interface family (default: guessed)")
-    ini.add_argument("--spec", default=None, help="pipeline preset (default: guessed from the names)")
-    ini.add_argument("--pixel-format", default=None, help="gray8 or rgb888 (default: from the data width)")
-    ini.add_argument("--sim", nargs="+", default=None, help="simulators for the config")
-    ini.add_argument("-P", "--param", action="append", default=None, metavar="NAME=VALUE",
-                     help="parameter / generic value (repeatable)")
-    ini.add_argument("-D", "--define", action="append", default=None, metavar="NAME[=VALUE]",
-                     help="Verilog define (repeatable)")
-    ini.add_argument("--name", default=None, help="the design's name in the config (default: the top)")
-    ini.add_argument("--force", action="store_true", help="overwrite existing files")
-    ini.set_defaults(func=_cmd_init)
-
-    pa = sub.add_parser("pattern", help="write a verification pattern as PNG")
-    pa.add_argument("name", help="pattern name (see vkit.video.patterns.PATTERNS)")
-    pa.add_argument("--size", type=_size, default=(64, 48), help="WIDTHxHEIGHT (default 64x48)")
-    pa.add_argument("--seed", type=int, default=0)
-    pa.add_argument("--rgb", action="store_true", help="write RGB even for gray patterns")
-    pa.add_argument("-o", "--output", required=True, help="output PNG")
-    pa.set_defaults(func=_cmd_pattern)
+    for name, help_text, func, arguments in _COMMANDS:
+        cmd = sub.add_parser(name, help=help_text)
+        for item in arguments:
+            if isinstance(item, _Arg):
+                cmd.add_argument(*item.flags, **item.options)
+                continue
+            group = cmd.add_mutually_exclusive_group()
+            for arg in item:
+                group.add_argument(*arg.flags, **arg.options)
+        cmd.set_defaults(func=func)
     return p
 
 

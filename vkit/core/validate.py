@@ -18,6 +18,7 @@ from vkit.core.errors import ConfigError
 
 __all__ = [
     "SUGGEST_CUTOFF",
+    "closest",
     "suggest",
     "type_name",
     "fail",
@@ -37,12 +38,18 @@ message lists the valid words instead. 0.5 catches one or two slipped letters in
 practice, no source)."""
 
 
+def closest(word: object, choices: Iterable[str]) -> str | None:
+    """The one of ``choices`` most like ``word`` when it is at least :data:`SUGGEST_CUTOFF` alike, else None."""
+    close = difflib.get_close_matches(str(word), [str(c) for c in choices], n=1, cutoff=SUGGEST_CUTOFF)
+    return close[0] if close else None
+
+
 def suggest(word: object, choices: Iterable[str]) -> str:
     """``did you mean 'x'?`` for the closest of ``choices``, else the list of valid ones."""
     options = [str(c) for c in choices]
-    close = difflib.get_close_matches(str(word), options, n=1, cutoff=SUGGEST_CUTOFF)
-    if close:
-        return f"did you mean {close[0]!r}?"
+    close = closest(word, options)
+    if close is not None:
+        return f"did you mean {close!r}?"
     return f"use one of {', '.join(options)}"
 
 
@@ -80,24 +87,34 @@ def _is_int(value: Any) -> bool:
     return not isinstance(value, bool) and hasattr(value, "__index__")
 
 
+def _span(lo: float | None, hi: float | None) -> str:
+    """The allowed range in words: `` >= 1``, `` <= 9``, `` in 0..1`` or nothing."""
+    if lo is None and hi is None:
+        return ""
+    if hi is None:
+        return f" >= {lo}"
+    if lo is None:
+        return f" <= {hi}"
+    return f" in {lo}..{hi}"
+
+
 def want_int(where: str, key: str, value: Any, lo: int | None = None, hi: int | None = None) -> int:
     """``value`` is an integer (not true/false) in ``lo..hi`` (either end open when None)."""
-    span = f"{'' if lo is None else lo}..{'' if hi is None else hi}"
     if not _is_int(value):
-        raise fail(where, key, value, type_name(value), f"give an integer {span}".rstrip(". "))
+        raise fail(where, key, value, type_name(value), f"give an integer{_span(lo, hi)}")
     number = int(value)
     if (lo is not None and number < lo) or (hi is not None and number > hi):
-        raise fail(where, key, number, "out of range", f"give an integer in {span}")
+        raise fail(where, key, number, "out of range", f"give an integer{_span(lo, hi)}")
     return number
 
 
 def want_number(where: str, key: str, value: Any, lo: float | None = None, hi: float | None = None) -> float:
     """``value`` is an integer or a float in ``lo..hi``."""
     if isinstance(value, bool) or not isinstance(value, (int, float)) and not _is_int(value):
-        raise fail(where, key, value, type_name(value), "give a number")
+        raise fail(where, key, value, type_name(value), f"give a number{_span(lo, hi)}")
     number = float(value)
     if (lo is not None and number < lo) or (hi is not None and number > hi):
-        raise fail(where, key, value, "out of range", f"give a number in {lo}..{hi}")
+        raise fail(where, key, value, "out of range", f"give a number{_span(lo, hi)}")
     return number
 
 

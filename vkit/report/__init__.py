@@ -9,6 +9,7 @@ _HOME = {
     "UNCHECKED_COLOUR": "vkit.report.writers",
     "XZ_COLOUR": "vkit.report.writers",
     "case_entry": "vkit.report.writers",
+    "case_folder": "vkit.report.writers",
     "format_summary": "vkit.report.writers",
     "merge_reports": "vkit.report.writers",
     "read_images": "vkit.report.quality",

@@ -22,6 +22,7 @@ __all__ = [
     "XZ_COLOUR",
     "UNCHECKED_COLOUR",
     "safe_name",
+    "case_folder",
     "case_entry",
     "write_case_report",
     "write_run_report",
@@ -57,8 +58,14 @@ def safe_name(case_id: str) -> str:
     return clean
 
 
-def _inside(out_dir: Path, path: Path) -> Path:
-    root = out_dir.resolve()
+def case_folder(out_dir: str | Path, case_id: str, *parts: str) -> Path:
+    """``out_dir/<safe case id>/<parts>``, resolved; every file of a case goes below it.
+
+    Raises:
+        ConfigError: the folder would fall outside ``out_dir`` (a case id or part that climbs out).
+    """
+    root = Path(out_dir).resolve()
+    path = Path(out_dir, safe_name(case_id), *parts)
     full = path.resolve()
     if full != root and root not in full.parents:
         raise ConfigError(f"report path {path} falls outside the report folder {out_dir}; use a plain case id")
@@ -148,6 +155,29 @@ def _rebuild_frames(verdict: Any, expected: Sequence[Any], capture: Capture) -> 
     return score(expected, capture, tolerance_lsb=int(getattr(verdict, "tolerance_lsb", 0))).frames
 
 
+def _save_png(arr: np.ndarray, path: Path, out: Path) -> str:
+    Image.fromarray(arr, "RGB").save(path)
+    return _rel(out, path)
+
+
+def _frame_pictures(fr: Any, case_dir: Path, out: Path) -> dict[str, str]:
+    """Write one frame's expected, actual, diff, input (when kept) and composite PNGs; their report paths."""
+    e_img, a_img, d_img, emax = _frame_images(fr, _display_top(fr))
+    stem = case_dir / f"frame{fr.index:03d}"
+    files = {name: _save_png(arr, Path(f"{stem}_{name}.png"), out)
+             for name, arr in (("expected", e_img), ("actual", a_img), ("diff", d_img))}
+    panels = [("expected", e_img), ("actual", a_img), (f"|diff| max {emax}", d_img)]
+    stimulus = _input_image(fr)
+    if stimulus is not None:  # what the design was fed, first, so a defect can be traced to it
+        files["input"] = _save_png(stimulus, Path(f"{stem}_input.png"), out)
+        panels.insert(0, ("input", stimulus))
+    footer = f"frame {fr.index}: {int(fr.mismatch.sum())} failing px, max |err| {emax}; cyan=missing magenta=X/Z"
+    composite = Path(f"{stem}_composite.png")
+    _composite(panels, footer).save(composite)
+    files["composite"] = _rel(out, composite)
+    return files
+
+
 def write_case_report(
     case_id: str,
     verdict: Any,
@@ -180,39 +210,15 @@ def write_case_report(
     """
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
-    case_dir = _inside(out, out / safe_name(case_id))
+    case_dir = case_folder(out, case_id)
     case_dir.mkdir(parents=True, exist_ok=True)
     paths: dict[str, Any] = {"frames": {}}
-    failing = not getattr(verdict, "passed", False) and getattr(verdict, "status", "") in ("fail", "no_output")
-    if failing or (pictures == "all" and getattr(verdict, "status", "") != "error"):
-        frames = _rebuild_frames(verdict, expected, capture)
-        for fr in frames:
-            if not fr.failed and pictures != "all":
-                continue
-            top = _display_top(fr)
-            e_img, a_img, d_img, emax = _frame_images(fr, top)
-            stem = f"frame{fr.index:03d}"
-            files = {}
-            for name, arr in (("expected", e_img), ("actual", a_img), ("diff", d_img)):
-                p = case_dir / f"{stem}_{name}.png"
-                Image.fromarray(arr, "RGB").save(p)
-                files[name] = _rel(out, p)
-            footer = (
-                f"frame {fr.index}: {int(fr.mismatch.sum())} failing px, max |err| {emax}; "
-                "cyan=missing magenta=X/Z"
-            )
-            panels = [("expected", e_img), ("actual", a_img), (f"|diff| max {emax}", d_img)]
-            stimulus = _input_image(fr)
-            if stimulus is not None:  # what the design was fed, first, so a defect can be traced to it
-                p = case_dir / f"{stem}_input.png"
-                Image.fromarray(stimulus, "RGB").save(p)
-                files["input"] = _rel(out, p)
-                panels.insert(0, ("input", stimulus))
-            comp = _composite(panels, footer)
-            p = case_dir / f"{stem}_composite.png"
-            comp.save(p)
-            files["composite"] = _rel(out, p)
-            paths["frames"][str(fr.index)] = files
+    status = getattr(verdict, "status", "")
+    failing = not getattr(verdict, "passed", False) and status in ("fail", "no_output")
+    if failing or (pictures == "all" and status != "error"):
+        for fr in _rebuild_frames(verdict, expected, capture):
+            if fr.failed or pictures == "all":
+                paths["frames"][str(fr.index)] = _frame_pictures(fr, case_dir, out)
     vpath = case_dir / "verdict.json"
     body = {"id": str(case_id), "verdict": verdict.to_dict(), "meta": dict(meta or {})}
     vpath.write_text(json.dumps(body, indent=2, default=_json_default))

@@ -23,7 +23,7 @@ Example::
 
 from __future__ import annotations
 
-import difflib
+import fnmatch
 import glob
 import importlib.resources
 import os
@@ -31,9 +31,30 @@ import re
 import sys
 from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any, Callable, Iterator, Mapping, Sequence
 
 from vkit.core.errors import ConfigError
+from vkit.core.validate import (
+    check_keys,
+    fail,
+    suggest,
+    type_name,
+    want_bool,
+    want_choice,
+    want_int,
+    want_number,
+    want_str,
+    want_str_list,
+    want_table,
+)
+from vkit.core.vocab import DRIVE_MODES, VERILOG_SUFFIXES, VHDL_SUFFIXES, WAVE_MODES
+from vkit.model import pipeline
+from vkit.sim.signals import FAMILY_ROLES, PIXEL_FORMAT_BITS
+from vkit.sim.simulators import LANGUAGES, SIMULATORS
+from vkit.video.images import load_image
+from vkit.video.patterns import PATTERNS
+from vkit.video.timing import PRESETS as TIMING_PRESETS
+from vkit.video.timing import VideoTiming, tiny
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -55,13 +76,13 @@ __all__ = [
     "shard_cases",
     "parse_shard",
     "read_toml",
+    "PICTURE_MODES",
 ]
 
 _RUN_KEYS = ("out_dir", "simulators", "jobs", "seed", "timeout_s", "max_listed", "cache_dir", "coverage_floor",
              "waves", "pictures", "path")
-_WAVE_MODES = ("failing", "all", "off")
-_PICTURE_MODES = ("failing", "all")
-_PATHS = ("clock", "fast", "native")
+PICTURE_MODES: tuple[str, ...] = ("failing", "all")
+"""``[run] pictures``: PNGs for failing frames only, or for every frame."""
 _STIMULUS_KEYS = (
     "images", "patterns", "size", "frames", "timings", "stalls", "backpressure", "gaps", "blanking",
     "blanking_value", "seeds", "convert",
@@ -80,9 +101,8 @@ _MANIFEST_DESIGN_KEYS = (
 _BUG_KEYS = ("define", "description", "expect", "needs")
 _IMPORT_KEYS = ("manifest", "use", "bugs", "set")
 _TOP_KEYS = ("run", "designs", "stimulus", "import")
-_LANG_BY_EXT = {".v": "verilog", ".sv": "verilog", ".vh": "verilog", ".vhd": "vhdl", ".vhdl": "vhdl"}
-_FAMILIES = ("video", "stream")
-_PIXEL_FORMATS = ("gray8", "rgb888")
+_LANGUAGES = ("verilog", "vhdl")
+_LANGUAGE_BY_SUFFIX = {**{s: "verilog" for s in VERILOG_SUFFIXES}, **{s: "vhdl" for s in VHDL_SUFFIXES}}
 _DEFAULT_MAX_LENGTH = 4
 _PACKAGE_PREFIX = "package:"
 # The bundled regression configs were installed as vkit.sim before the simulator layer took that name.
@@ -163,9 +183,9 @@ class RunSettings:
         waves: ``"failing"`` (rerun failing cases with a wave dump around the first mismatch),
             ``"all"`` or ``"off"``.
         pictures: ``"failing"`` (PNGs for failing frames only) or ``"all"`` (every frame, passing too).
-        path: ``"clock"`` (cocotb drives every clock), ``"fast"`` (a generated HDL harness plays and
-            captures whole runs; same verdicts, far fewer Python wake-ups) or ``"native"`` (that harness
-            as a plain executable without cocotb; Icarus and Verilator).
+        drive: the drive mode, config key ``path``: ``"clock"`` (cocotb drives every clock), ``"fast"`` (a
+            generated HDL harness plays and captures whole runs; same verdicts, far fewer Python wake-ups)
+            or ``"native"`` (that harness as a plain executable without cocotb; Icarus and Verilator).
     """
 
     out_dir: Path
@@ -178,7 +198,12 @@ class RunSettings:
     coverage_floor: float = 0.5
     waves: str = "failing"
     pictures: str = "failing"
-    path: str = "clock"
+    drive: str = "clock"
+
+    @property
+    def path(self) -> str:
+        """The drive mode under the config key's name (older code reads ``run.path``)."""
+        return self.drive
 
 
 @dataclass
@@ -281,15 +306,22 @@ class DesignConfig:
     align: str = "exact"
     timeout_clocks: int | None = None
 
-    def pipeline_spec(self) -> Any:
-        """The :class:`vkit.model.pipeline.PipelineSpec` this design implements."""
-        from vkit.model import pipeline
+    def pipeline_spec(self) -> pipeline.PipelineSpec:
+        """The :class:`vkit.model.pipeline.PipelineSpec` this design implements.
 
+        Raises:
+            ConfigError: the spec cannot be read, or it takes another pixel format than the design's.
+        """
         if self.spec_preset is not None:
-            return pipeline.preset(self.spec_preset)
-        if self.spec_file is not None:
-            return pipeline.PipelineSpec.from_toml(self.spec_file)
-        return pipeline.PipelineSpec.from_dict(self.spec_table or {})
+            spec = pipeline.preset(self.spec_preset)
+        elif self.spec_file is not None:
+            spec = pipeline.PipelineSpec.from_toml(self.spec_file)
+        else:
+            spec = pipeline.PipelineSpec.from_dict(self.spec_table or {})
+        if spec.input != self.pixel_format:
+            raise ConfigError(f"design {self.name}: spec {spec.name!r} takes {spec.input} but the design's "
+                              f"pixel_format is {self.pixel_format}; make them agree")
+        return spec
 
     def build_parameters(self, width: int, height: int) -> dict[str, Any]:
         """Parameters for a build at this frame size, file parameters as the language wants them."""
@@ -382,8 +414,6 @@ class Case:
         if d.pipeline_clocks is None:
             return None
         if d.family == "video" and self.timing is not None:
-            from vkit.video.timing import VideoTiming
-
             return VideoTiming.from_dict(self.timing).h_total + 1 + d.pipeline_clocks
         if d.family == "stream":
             return self.width + 2 + d.pipeline_clocks
@@ -400,46 +430,34 @@ class Case:
 # ---------------------------------------------------------------------------------------------- helpers
 
 
-def _suggest(word: str, choices: tuple[str, ...] | list[str]) -> str:
-    close = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.5)
-    if close:
-        return f"did you mean {close[0]!r}?"
-    return f"valid keys are {', '.join(choices)}"
+_Reader = Callable[[str, str, Any], Any]
+"""``read(where, key, value)``: the checked value of one config key (raises ConfigError)."""
 
 
-def _check_keys(where: str, table: Mapping[str, Any], allowed: tuple[str, ...]) -> None:
-    for key in table:
-        if key not in allowed:
-            raise ConfigError(f"{where}: unknown key {key!r}; {_suggest(key, allowed)}")
+def _int_from(lo: int) -> _Reader:
+    return lambda where, key, value: want_int(where, key, value, lo)
 
 
-def _type_name(value: Any) -> str:
-    return {str: "a string", int: "an integer", float: "a number", bool: "true/false", list: "a list",
-            dict: "a table"}.get(type(value), type(value).__name__)
+def _choice(choices: Sequence[str]) -> _Reader:
+    return lambda where, key, value: want_choice(where, key, value, choices)
 
 
-def _want(where: str, key: str, value: Any, kind: type | tuple[type, ...], fix: str) -> Any:
-    kinds = kind if isinstance(kind, tuple) else (kind,)
-    ok = isinstance(value, kinds) and not (isinstance(value, bool) and bool not in kinds)
-    if not ok:
-        raise ConfigError(f"{where}: {key} = {value!r} is {_type_name(value)}; {fix}")
-    return value
+def _positive(where: str, key: str, value: Any) -> float:
+    number = want_number(where, key, value)
+    if number <= 0:
+        raise fail(where, key, value, "not above 0", "give a number > 0")
+    return number
 
 
-def _int(where: str, key: str, value: Any, lo: int | None = None) -> int:
-    _want(where, key, value, int, f"give an integer{'' if lo is None else f' >= {lo}'}")
-    if lo is not None and value < lo:
-        raise ConfigError(f"{where}: {key} = {value}; give an integer >= {lo}")
-    return int(value)
+def _share(where: str, key: str, value: Any) -> float:
+    return want_number(where, key, value, 0, 1)
 
 
-def _str_list(where: str, key: str, value: Any) -> list[str]:
-    if isinstance(value, str):
-        return [value]
-    _want(where, key, value, list, "give a list of strings")
-    for v in value:
-        _want(where, key, v, str, "give a list of strings")
-    return list(value)
+def _set_fields(where: str, data: Mapping[str, Any], target: Any, readers: Mapping[str, _Reader]) -> None:
+    """``target.KEY = read(where, KEY, data[KEY])`` for every key of ``readers`` that ``data`` holds."""
+    for key, read in readers.items():
+        if key in data:
+            setattr(target, key, read(where, key, data[key]))
 
 
 def _resolve(base: Path, text: str) -> Path:
@@ -454,6 +472,21 @@ def _resolve(base: Path, text: str) -> Path:
         return (root / rest).resolve()
     p = Path(os.path.expanduser(text))
     return (p if p.is_absolute() else base / p).resolve()
+
+
+def _glob_files(base: Path, text: str, want: Callable[[Path], bool]) -> tuple[list[Path], str]:
+    """Files a config entry names (a path or a glob, resolved against ``base``) and the pattern looked for."""
+    pattern = str(_resolve(base, text))
+    hits = sorted(glob.glob(pattern)) if glob.has_magic(pattern) else ([pattern] if want(Path(pattern)) else [])
+    return [Path(h) for h in hits], pattern
+
+
+def _existing_file(where: str, key: str, text: Any, base: Path) -> Path:
+    """A file path value that must name an existing file."""
+    path = _resolve(base, want_str(where, key, text))
+    if not path.is_file():
+        raise fail(where, key, text, f"not found (looked for {path})", "fix the path")
+    return path
 
 
 def read_toml(path: str | Path) -> dict[str, Any]:
@@ -478,311 +511,285 @@ def read_toml(path: str | Path) -> dict[str, Any]:
         raise ConfigError(f"{p}: {msg} (TOML syntax); fix the file") from None
 
 
-# ---------------------------------------------------------------------------------------------- sections
+# ---------------------------------------------------------------------------------------------- [run]
+
+
+_RUN_FIELDS: dict[str, _Reader] = {
+    "jobs": _int_from(1),
+    "seed": _int_from(0),
+    "timeout_s": _positive,
+    "max_listed": _int_from(0),
+    "coverage_floor": _share,
+    "waves": _choice(WAVE_MODES),
+    "pictures": _choice(PICTURE_MODES),
+}
 
 
 def _parse_run(where: str, data: Mapping[str, Any], base: Path) -> RunSettings:
-    _check_keys(where, data, _RUN_KEYS)
+    check_keys(where, data, _RUN_KEYS)
     out = RunSettings(out_dir=(base / "vkit-out").resolve())
-    if "out_dir" in data:
-        out.out_dir = _resolve(base, _want(where, "out_dir", data["out_dir"], str, "give a folder path"))
+    _set_fields(where, data, out, _RUN_FIELDS)
+    if "path" in data:  # the config key keeps its name; in Python it is the drive mode
+        out.drive = want_choice(where, "path", data["path"], DRIVE_MODES)
+    for key in ("out_dir", "cache_dir"):
+        if key in data:
+            setattr(out, key, _resolve(base, want_str(where, key, data[key])))
     if "simulators" in data:
-        out.simulators = _simulator_list(where, data["simulators"])
-    if "jobs" in data:
-        out.jobs = _int(where, "jobs", data["jobs"], 1)
-    if "seed" in data:
-        out.seed = _int(where, "seed", data["seed"], 0)
-    if "timeout_s" in data:
-        v = _want(where, "timeout_s", data["timeout_s"], (int, float), "give seconds as a number > 0")
-        if v <= 0:
-            raise ConfigError(f"{where}: timeout_s = {v}; give seconds as a number > 0")
-        out.timeout_s = float(v)
-    if "max_listed" in data:
-        out.max_listed = _int(where, "max_listed", data["max_listed"], 0)
-    if "cache_dir" in data:
-        out.cache_dir = _resolve(base, _want(where, "cache_dir", data["cache_dir"], str, "give a folder path"))
-    if "coverage_floor" in data:
-        v = _want(where, "coverage_floor", data["coverage_floor"], (int, float), "give a share 0.0..1.0")
-        if not 0 <= v <= 1:
-            raise ConfigError(f"{where}: coverage_floor = {v}; give a share 0.0..1.0")
-        out.coverage_floor = float(v)
-    if "waves" in data:
-        v = _want(where, "waves", data["waves"], str, f"give one of {', '.join(_WAVE_MODES)}")
-        if v not in _WAVE_MODES:
-            raise ConfigError(f"{where}: waves = {v!r}; {_suggest(v, _WAVE_MODES)}")
-        out.waves = v
-    if "pictures" in data:
-        v = _want(where, "pictures", data["pictures"], str, f"give one of {', '.join(_PICTURE_MODES)}")
-        if v not in _PICTURE_MODES:
-            raise ConfigError(f"{where}: pictures = {v!r}; {_suggest(v, _PICTURE_MODES)}")
-        out.pictures = v
-    if "path" in data:
-        v = _want(where, "path", data["path"], str, f"give one of {', '.join(_PATHS)}")
-        if v not in _PATHS:
-            raise ConfigError(f"{where}: path = {v!r}; {_suggest(v, _PATHS)}")
-        out.path = v
+        out.simulators = _simulator_list(where, "simulators", data["simulators"])
     return out
 
 
-def _simulator_list(where: str, value: Any) -> list[str]:
-    from vkit.sim.simulators import SIMULATORS
-
-    names = _str_list(where, "simulators", value)
-    for n in names:
-        if n not in SIMULATORS:
-            close = difflib.get_close_matches(n, list(SIMULATORS), n=1, cutoff=0.5)
-            hint = f"did you mean {close[0]!r}? " if close else ""
-            raise ConfigError(f"{where}: unknown simulator {n!r}; {hint}vkit drives {', '.join(SIMULATORS)}")
+def _simulator_list(where: str, key: str, value: Any) -> list[str]:
+    """A non-empty list of simulators vkit drives (a lone name counts as a list of one)."""
+    names = want_str_list(where, key, value)
+    for name in names:
+        if name not in SIMULATORS:
+            raise fail(where, key, name, "not a simulator vkit drives", suggest(name, SIMULATORS))
     if not names:
-        raise ConfigError(f"{where}: simulators is empty; name at least one of {', '.join(SIMULATORS)}")
+        raise fail(where, key, value, "empty", f"name at least one of {', '.join(SIMULATORS)}")
     return names
 
 
+# ---------------------------------------------------------------------------------------------- [stimulus]
+
+
 def _parse_flow(where: str, key: str, value: Any) -> Flow:
-    if isinstance(value, (int, float)) and not isinstance(value, bool):
-        if not 0 <= value <= 1:
-            raise ConfigError(f"{where}: {key} entry {value}; a bare number is a probability 0.0..1.0")
-        return Flow(float(value), _DEFAULT_MAX_LENGTH)
-    if isinstance(value, dict):
-        _check_keys(f"{where} {key} entry", value, ("probability", "max_length"))
-        p = value.get("probability", 0.0)
-        _want(where, f"{key}.probability", p, (int, float), "give a probability 0.0..1.0")
-        if not 0 <= p <= 1:
-            raise ConfigError(f"{where}: {key}.probability = {p}; give a probability 0.0..1.0")
-        m = _int(where, f"{key}.max_length", value.get("max_length", _DEFAULT_MAX_LENGTH), 1)
-        return Flow(float(p), m)
-    raise ConfigError(
-        f"{where}: {key} entry {value!r} is {_type_name(value)}; give a probability (0.1) or "
-        "{ probability = 0.1, max_length = 4 }"
-    )
+    if isinstance(value, Mapping):
+        check_keys(f"{where} {key} entry", value, ("probability", "max_length"))
+        p = want_number(where, f"{key}.probability", value.get("probability", 0.0), 0, 1)
+        m = want_int(where, f"{key}.max_length", value.get("max_length", _DEFAULT_MAX_LENGTH), 1)
+        return Flow(p, m)
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise fail(where, key, value, type_name(value),
+                   "give a probability (0.1) or { probability = 0.1, max_length = 4 }")
+    return Flow(want_number(where, key, value, 0, 1), _DEFAULT_MAX_LENGTH)
 
 
 def _parse_flows(where: str, key: str, value: Any) -> list[Flow]:
     items = value if isinstance(value, list) else [value]
     flows = [_parse_flow(where, key, v) for v in items]
     if not flows:
-        raise ConfigError(f"{where}: {key} is empty; give at least one entry (0 = none)")
-    uniq: list[Flow] = []
-    for f in flows:
-        if f not in uniq:
-            uniq.append(f)
-    return uniq
-
-
-def _parse_stimulus(where: str, data: Mapping[str, Any], base: Path) -> StimulusConfig:
-    from vkit.video.patterns import PATTERNS
-
-    _check_keys(where, data, _STIMULUS_KEYS)
-    st = StimulusConfig()
-    for text in _str_list(where, "images", data.get("images", [])):
-        pattern = str(_resolve(base, text))
-        hits = sorted(glob.glob(pattern)) if glob.has_magic(pattern) else ([pattern] if Path(pattern).exists() else [])
-        if not hits:
-            raise ConfigError(f"{where}: images entry {text!r} matches no file (looked for {pattern}); fix the path or glob")
-        st.images.extend(Path(h) for h in hits)
-    for item in data.get("patterns", []) if isinstance(data.get("patterns", []), list) else [data["patterns"]]:
-        if isinstance(item, str):
-            entry = PatternEntry(item)
-        elif isinstance(item, dict):
-            if "name" not in item:
-                raise ConfigError(f"{where}: a patterns table needs a name, e.g. {{ name = \"conveyor\", seeds = [1, 2] }}")
-            name = _want(where, "patterns.name", item["name"], str, "give a pattern name")
-            seeds = item.get("seeds")
-            if seeds is not None:
-                _want(where, "patterns.seeds", seeds, list, "give a list of integers")
-                seeds = tuple(_int(where, "patterns.seeds", s, 0) for s in seeds)
-            label = _want(where, "patterns.label", item.get("label", ""), str, "give a short name")
-            own = ("name", "seeds", "label", "timings", "stalls", "gaps", "backpressure")
-            options = tuple(sorted((k, v) for k, v in item.items() if k not in own))
-            flows = {k: tuple(_parse_flows(where, f"patterns.{k}", item[k])) for k in ("stalls", "gaps", "backpressure") if k in item}
-            timings = tuple(_parse_timings(where, item["timings"])) if "timings" in item else None
-            entry = PatternEntry(name, options, seeds, label, timings, **flows)
-        else:
-            raise ConfigError(f"{where}: patterns entry {item!r} is {_type_name(item)}; give a name or a table")
-        if entry.name not in PATTERNS:
-            close = difflib.get_close_matches(entry.name, list(PATTERNS), n=1)
-            hint = f"did you mean {close[0]!r}?" if close else f"known patterns are {', '.join(PATTERNS)}"
-            raise ConfigError(f"{where}: unknown pattern {entry.name!r}; {hint}")
-        st.patterns.append(entry)
-    if not st.images and not st.patterns:
-        raise ConfigError(f"{where}: no stimulus; give images = [...] or patterns = [...]")
-    if "size" in data:
-        v = data["size"]
-        if not (isinstance(v, list) and len(v) == 2 and all(isinstance(x, int) and not isinstance(x, bool) and x >= 2 for x in v)):
-            raise ConfigError(f"{where}: size = {v!r}; give [width, height] in pixels, each >= 2, e.g. [32, 24]")
-        st.size = (v[0], v[1])
-    if "frames" in data:
-        st.frames = _int(where, "frames", data["frames"], 1)
-    if "timings" in data:
-        st.timings = _parse_timings(where, data["timings"])
-    for key in ("stalls", "backpressure", "gaps"):
-        if key in data:
-            setattr(st, key, _parse_flows(where, key, data[key]))
-    if "blanking" in data:
-        v = _want(where, "blanking", data["blanking"], str, "give \"random\" or \"constant\"")
-        if v not in ("random", "constant"):
-            raise ConfigError(f"{where}: blanking = {v!r}; give \"random\" or \"constant\"")
-        st.blanking = v
-    if "blanking_value" in data:
-        st.blanking_value = _int(where, "blanking_value", data["blanking_value"], 0)
-    if "convert" in data:
-        st.convert = _want(where, "convert", data["convert"], bool, "give true or false")
-    if "seeds" in data:
-        seeds = data["seeds"] if isinstance(data["seeds"], list) else [data["seeds"]]
-        st.seeds = [_int(where, "seeds", s, 0) for s in seeds]
-        if not st.seeds:
-            raise ConfigError(f"{where}: seeds is empty; give at least one seed, e.g. [1]")
-    return st
+        raise fail(where, key, value, "empty", "give at least one entry (0 = none)")
+    return list(dict.fromkeys(flows))
 
 
 def _parse_timings(where: str, value: Any) -> list[tuple[str, dict[str, Any] | None]]:
-    from vkit.video.timing import PRESETS, VideoTiming
-
-    items = value if isinstance(value, list) else [value]
     out: list[tuple[str, dict[str, Any] | None]] = []
-    for item in items:
-        if isinstance(item, str):
-            if item == "tiny":
-                out.append(("tiny", None))
-                continue
-            if item not in PRESETS:
-                close = difflib.get_close_matches(item, list(PRESETS), n=1)
-                hint = f"did you mean {close[0]!r}?" if close else f"known presets are tiny, {', '.join(PRESETS)}"
-                raise ConfigError(f"{where}: unknown timing {item!r}; {hint}")
-            out.append((item, PRESETS[item].to_dict()))
-        elif isinstance(item, dict):
+    for item in value if isinstance(value, list) else [value]:
+        if item == "tiny":
+            out.append(("tiny", None))
+        elif isinstance(item, str):
+            if item not in TIMING_PRESETS:
+                raise fail(where, "timings", item, "not a timing preset", suggest(item, ["tiny", *TIMING_PRESETS]))
+            out.append((item, TIMING_PRESETS[item].to_dict()))
+        elif isinstance(item, Mapping):
             t = VideoTiming.from_dict(item)
             label = t.name if t.name and t.name != "custom" else f"custom{t.h_active}x{t.v_active}t{t.h_total}x{t.v_total}"
             out.append((label, t.to_dict()))
         else:
-            raise ConfigError(f"{where}: timings entry {item!r} is {_type_name(item)}; give a preset name or a table")
+            raise fail(where, "timings", item, type_name(item), "give a preset name or a table")
     if not out:
-        raise ConfigError(f"{where}: timings is empty; give at least one, e.g. [\"tiny\"]")
+        raise fail(where, "timings", value, "empty", 'give at least one, e.g. ["tiny"]')
     return out
 
 
+_PATTERN_OWN_KEYS = ("name", "seeds", "label", "timings", "stalls", "gaps", "backpressure")
+_FLOW_KEYS = ("stalls", "gaps", "backpressure")
+
+
+def _pattern_entry(where: str, item: Any) -> PatternEntry:
+    """One ``patterns`` entry: a name, or a table with a name, options and its own axes."""
+    if isinstance(item, str):
+        entry = PatternEntry(item)
+    elif isinstance(item, Mapping):
+        if "name" not in item:
+            raise ConfigError(f"{where}: a patterns table needs a name, e.g. {{ name = \"conveyor\", seeds = [1, 2] }}")
+        seeds = item.get("seeds")
+        entry = PatternEntry(
+            name=want_str(where, "patterns.name", item["name"]),
+            options=tuple(sorted((k, v) for k, v in item.items() if k not in _PATTERN_OWN_KEYS)),
+            seeds=None if seeds is None else tuple(_seeds(where, "patterns.seeds", seeds)),
+            label=want_str(where, "patterns.label", item.get("label", "")),
+            timings=tuple(_parse_timings(where, item["timings"])) if "timings" in item else None,
+            **{k: tuple(_parse_flows(where, f"patterns.{k}", item[k])) for k in _FLOW_KEYS if k in item},
+        )
+    else:
+        raise fail(where, "patterns", item, type_name(item), "give a name or a table")
+    if entry.name not in PATTERNS:
+        raise fail(where, "patterns", entry.name, "not a known pattern", suggest(entry.name, PATTERNS))
+    return entry
+
+
+def _seeds(where: str, key: str, value: Any) -> list[int]:
+    seeds = [want_int(where, key, s, 0) for s in (value if isinstance(value, list) else [value])]
+    if not seeds:
+        raise fail(where, key, value, "empty", "give at least one seed, e.g. [1]")
+    return seeds
+
+
+def _size(where: str, key: str, value: Any) -> tuple[int, int]:
+    ok = isinstance(value, list) and len(value) == 2
+    if not ok or not all(isinstance(x, int) and not isinstance(x, bool) and x >= 2 for x in value):
+        raise fail(where, key, value, "not a frame size", "give [width, height] in pixels, each >= 2, e.g. [32, 24]")
+    return value[0], value[1]
+
+
+_STIMULUS_FIELDS: dict[str, _Reader] = {
+    "size": _size,
+    "frames": _int_from(1),
+    "timings": lambda where, key, value: _parse_timings(where, value),
+    "stalls": _parse_flows,
+    "backpressure": _parse_flows,
+    "gaps": _parse_flows,
+    "blanking": _choice(("random", "constant")),
+    "blanking_value": _int_from(0),
+    "convert": want_bool,
+    "seeds": _seeds,
+}
+
+
+def _parse_stimulus(where: str, data: Mapping[str, Any], base: Path) -> StimulusConfig:
+    check_keys(where, data, _STIMULUS_KEYS)
+    st = StimulusConfig()
+    for text in want_str_list(where, "images", data.get("images", [])):
+        hits, pattern = _glob_files(base, text, Path.exists)
+        if not hits:
+            raise fail(where, "images", text, f"not found (looked for {pattern})", "fix the path or glob")
+        st.images.extend(hits)
+    patterns = data.get("patterns", [])
+    st.patterns = [_pattern_entry(where, item) for item in (patterns if isinstance(patterns, list) else [patterns])]
+    if not st.images and not st.patterns:
+        raise ConfigError(f"{where}: no stimulus; give images = [...] or patterns = [...]")
+    _set_fields(where, data, st, _STIMULUS_FIELDS)
+    return st
+
+
+# ---------------------------------------------------------------------------------------------- [designs.NAME]
+
+
+def _sources(where: str, value: Any, base: Path) -> list[Path]:
+    sources: list[Path] = []
+    for text in want_str_list(where, "sources", value):
+        hits, pattern = _glob_files(base, text, Path.is_file)
+        if not hits:
+            raise fail(where, "sources", text, f"not found (looked for {pattern})", f"fix the path relative to {base}")
+        sources.extend(hits)
+    return sources
+
+
+def _language(where: str, data: Mapping[str, Any], sources: list[Path]) -> str:
+    """The design's language: as given, else from the source file endings."""
+    if "language" in data:
+        return want_choice(where, "language", data["language"], _LANGUAGES)
+    langs = {_LANGUAGE_BY_SUFFIX.get(s.suffix.lower()) for s in sources}
+    if None in langs or len(langs) != 1:
+        raise ConfigError(
+            f"{where}: cannot tell the language from the source extensions "
+            f"({', '.join(sorted({s.suffix for s in sources}))}); add language = \"verilog\" or \"vhdl\""
+        )
+    return str(langs.pop())
+
+
+def _ports(where: str, value: Any) -> dict[str, str]:
+    ports = want_table(where, "ports", value)
+    return {role: want_str(where, f"ports.{role}", port) for role, port in ports.items()}
+
+
+def _set_spec(where: str, data: Mapping[str, Any], base: Path, d: DesignConfig) -> None:
+    """Exactly one of ``spec`` (a preset name or a table) and ``spec_file``."""
+    if "spec" in data and "spec_file" in data:
+        raise ConfigError(f"{where}: both spec and spec_file given; keep one")
+    if "spec_file" in data:
+        d.spec_file = _existing_file(where, "spec_file", data["spec_file"], base)
+    elif "spec" not in data:
+        raise ConfigError(f"{where}: no pipeline spec; add spec = \"edge\" (a preset), spec_file = \"...\" "
+                          f"or a [designs.{d.name}.spec] table")
+    elif isinstance(data["spec"], str):
+        d.spec_preset = data["spec"]
+    elif isinstance(data["spec"], Mapping):
+        d.spec_table = dict(data["spec"])
+    else:
+        raise fail(where, "spec", data["spec"], type_name(data["spec"]),
+                   f"give a preset name or a [designs.{d.name}.spec] table")
+
+
+def _file_parameters(where: str, value: Any, base: Path) -> dict[str, Path]:
+    table = want_table(where, "file_parameters", value)
+    return {name: _existing_file(where, f"file_parameters.{name}", text, base) for name, text in table.items()}
+
+
+def _frame_parameters(where: str, value: Any) -> dict[str, str]:
+    table = want_table(where, "frame_parameters", value)
+    for what in table:
+        if what not in ("height", "width"):
+            raise ConfigError(f"{where}: frame_parameters key {what!r}; use \"height\" or \"width\"")
+    return {what: want_str(where, f"frame_parameters.{what}", name) for what, name in table.items()}
+
+
+def _dict(where: str, key: str, value: Any) -> dict[str, Any]:
+    return dict(want_table(where, key, value))
+
+
+_DESIGN_FIELDS: dict[str, _Reader] = {
+    "parameters": _dict,
+    "defines": _dict,
+    "reset_active_high": want_bool,
+    "reset_cycles": _int_from(1),
+    "clock_period_ns": _positive,
+    "latency_clocks": _int_from(0),
+    "pipeline_clocks": _int_from(0),
+    "timeout_clocks": _int_from(1),
+    "latency_timing": want_str,
+    "tolerance_lsb": _int_from(0),
+    "expect": _choice(("pass", "fail")),
+    "description": want_str,
+    "build_args": want_str_list,
+    "align": _choice(("exact", "auto")),
+}
+"""Design keys that are one checked value each (read the same in a design table and an import's ``set``)."""
+
+
 def _parse_design(where: str, name: str, data: Mapping[str, Any], base: Path, *, manifest: bool = False) -> DesignConfig:
-    allowed = _MANIFEST_DESIGN_KEYS if manifest else _DESIGN_KEYS
-    _check_keys(where, {k: v for k, v in data.items() if not (manifest and k == "bugs")}, allowed)
+    check_keys(where, {k: v for k, v in data.items() if not (manifest and k == "bugs")},
+               _MANIFEST_DESIGN_KEYS if manifest else _DESIGN_KEYS)
     for key in ("top", "sources", "ports"):
         if key not in data:
             raise ConfigError(f"{where}: missing key {key!r}; every design needs top, sources and ports")
-    top = _want(where, "top", data["top"], str, "give the top-level module name")
-    sources: list[Path] = []
-    for text in _str_list(where, "sources", data["sources"]):
-        pattern = str(_resolve(base, text))
-        hits = sorted(glob.glob(pattern)) if glob.has_magic(pattern) else ([pattern] if Path(pattern).is_file() else [])
-        if not hits:
-            raise ConfigError(f"{where}: source {text!r} not found (looked for {pattern}); fix the path relative to {base}")
-        sources.extend(Path(h) for h in hits)
-    if "language" in data:
-        language = _want(where, "language", data["language"], str, "give \"verilog\" or \"vhdl\"")
-        if language not in ("verilog", "vhdl"):
-            raise ConfigError(f"{where}: language = {language!r}; give \"verilog\" or \"vhdl\"")
-    else:
-        langs = {_LANG_BY_EXT.get(s.suffix.lower()) for s in sources}
-        if None in langs or len(langs) != 1:
-            raise ConfigError(
-                f"{where}: cannot tell the language from the source extensions "
-                f"({', '.join(sorted({s.suffix for s in sources}))}); add language = \"verilog\" or \"vhdl\""
-            )
-        language = langs.pop()
-    family = _want(where, "family", data.get("family", "video"), str, "give \"video\" or \"stream\"")
-    if family not in _FAMILIES:
-        raise ConfigError(f"{where}: family = {family!r}; give \"video\" or \"stream\"")
-    pixel_format = _want(where, "pixel_format", data.get("pixel_format", "gray8"), str, "give \"gray8\" or \"rgb888\"")
-    if pixel_format not in _PIXEL_FORMATS:
-        raise ConfigError(f"{where}: pixel_format = {pixel_format!r}; give \"gray8\" or \"rgb888\"")
-    ports = _want(where, "ports", data["ports"], dict, "give a table role -> port name")
-    for role, port in ports.items():
-        _want(where, f"ports.{role}", port, str, "give the port name as a string")
-    d = DesignConfig(name=name, top=top, sources=sources, language=language, family=family,
-                     pixel_format=pixel_format, ports=dict(ports))
-    for key in ("parameters", "defines"):
-        if key in data:
-            setattr(d, key, dict(_want(where, key, data[key], dict, "give a table NAME = value")))
+    sources = _sources(where, data["sources"], base)
+    d = DesignConfig(
+        name=name, top=want_str(where, "top", data["top"]), sources=sources,
+        language=_language(where, data, sources),
+        family=want_choice(where, "family", data.get("family", "video"), tuple(FAMILY_ROLES)),
+        pixel_format=want_choice(where, "pixel_format", data.get("pixel_format", "gray8"), tuple(PIXEL_FORMAT_BITS)),
+        ports=_ports(where, data["ports"]),
+    )
+    _set_spec(where, data, base, d)
+    _set_fields(where, data, d, _DESIGN_FIELDS)
     if "file_parameters" in data:
-        for pname, text in _want(where, "file_parameters", data["file_parameters"], dict, "give a table NAME = \"file\"").items():
-            path = _resolve(base, _want(where, f"file_parameters.{pname}", text, str, "give a file path"))
-            if not path.is_file():
-                raise ConfigError(f"{where}: file_parameters.{pname} = {text!r} not found (looked for {path}); fix the path")
-            d.file_parameters[pname] = path
+        d.file_parameters = _file_parameters(where, data["file_parameters"], base)
     if "frame_parameters" in data:
-        fp = _want(where, "frame_parameters", data["frame_parameters"], dict, "give a table height/width -> parameter")
-        for what, pname in fp.items():
-            if what not in ("height", "width"):
-                raise ConfigError(f"{where}: frame_parameters key {what!r}; use \"height\" or \"width\"")
-            d.frame_parameters[what] = _want(where, f"frame_parameters.{what}", pname, str, "give the parameter name")
-    specs = [k for k in ("spec", "spec_file") if k in data]
-    if len(specs) > 1:
-        raise ConfigError(f"{where}: both spec and spec_file given; keep one")
-    if "spec" in data:
-        v = data["spec"]
-        if isinstance(v, str):
-            d.spec_preset = v
-        elif isinstance(v, dict):
-            d.spec_table = dict(v)
-        else:
-            raise ConfigError(f"{where}: spec = {v!r}; give a preset name or a [designs.{name}.spec] table")
-    elif "spec_file" in data:
-        p = _resolve(base, _want(where, "spec_file", data["spec_file"], str, "give a TOML file path"))
-        if not p.is_file():
-            raise ConfigError(f"{where}: spec_file {data['spec_file']!r} not found (looked for {p}); fix the path")
-        d.spec_file = p
-    else:
-        raise ConfigError(f"{where}: no pipeline spec; add spec = \"edge\" (a preset), spec_file = \"...\" or a [designs.{name}.spec] table")
-    if "reset_active_high" in data:
-        d.reset_active_high = _want(where, "reset_active_high", data["reset_active_high"], bool, "give true or false")
-    if "reset_cycles" in data:
-        d.reset_cycles = _int(where, "reset_cycles", data["reset_cycles"], 1)
-    if "clock_period_ns" in data:
-        v = _want(where, "clock_period_ns", data["clock_period_ns"], (int, float), "give a period in ns > 0")
-        if v <= 0:
-            raise ConfigError(f"{where}: clock_period_ns = {v}; give a period in ns > 0")
-        d.clock_period_ns = float(v)
-    for key in ("latency_clocks", "pipeline_clocks", "timeout_clocks"):
-        if key in data:
-            setattr(d, key, _int(where, key, data[key], 0 if key != "timeout_clocks" else 1))
-    if "latency_timing" in data:
-        d.latency_timing = _want(where, "latency_timing", data["latency_timing"], str, "give a timing preset name")
-    if "tolerance_lsb" in data:
-        d.tolerance_lsb = _int(where, "tolerance_lsb", data["tolerance_lsb"], 0)
-    if "simulators" in data:
-        sims = _simulator_list(where, data["simulators"])
-        if manifest:
-            d.supported = sims
-        else:
-            d.simulators = sims
-    if "expect" in data:
-        v = _want(where, "expect", data["expect"], str, "give \"pass\" or \"fail\"")
-        if v not in ("pass", "fail"):
-            raise ConfigError(f"{where}: expect = {v!r}; give \"pass\" or \"fail\"")
-        d.expect = v
-    if "description" in data:
-        d.description = _want(where, "description", data["description"], str, "give a sentence")
+        d.frame_parameters = _frame_parameters(where, data["frame_parameters"])
     if "include_dirs" in data:
-        d.include_dirs = [_resolve(base, t) for t in _str_list(where, "include_dirs", data["include_dirs"])]
-    if "build_args" in data:
-        d.build_args = _str_list(where, "build_args", data["build_args"])
-    if "align" in data:
-        v = _want(where, "align", data["align"], str, "give \"exact\" or \"auto\"")
-        if v not in ("exact", "auto"):
-            raise ConfigError(f"{where}: align = {v!r}; give \"exact\" or \"auto\"")
-        d.align = v
+        d.include_dirs = [_resolve(base, t) for t in want_str_list(where, "include_dirs", data["include_dirs"])]
+    if "simulators" in data:
+        sims = _simulator_list(where, "simulators", data["simulators"])
+        d.supported, d.simulators = (sims, None) if manifest else (None, sims)
     if d.language == "vhdl" and d.defines:
         raise ConfigError(f"{where}: defines are Verilog only and this design is VHDL; use parameters (generics)")
     return d
+
+
+# ---------------------------------------------------------------------------------------------- [[import]]
 
 
 def _bug_variants(where: str, good: DesignConfig, bugs: Mapping[str, Any]) -> list[DesignConfig]:
     out = []
     for bug, body in bugs.items():
         w = f"{where}.bugs.{bug}"
-        _want(w, "bug", body, dict, "give a table with define, description, expect")
-        _check_keys(w, body, _BUG_KEYS)
+        check_keys(w, want_table(w, "bug", body), _BUG_KEYS)
         if "define" not in body:
             raise ConfigError(f"{w}: missing key 'define'; name the Verilog define that enables the bug")
-        define = _want(w, "define", body["define"], str, "give the define name")
+        define = want_str(w, "define", body["define"])
         out.append(replace(
             good,
             name=f"{good.name}@{bug}",
@@ -796,97 +803,100 @@ def _bug_variants(where: str, good: DesignConfig, bugs: Mapping[str, Any]) -> li
     return out
 
 
-def _parse_import(where: str, data: Mapping[str, Any], base: Path) -> list[DesignConfig]:
-    _check_keys(where, data, _IMPORT_KEYS)
+def _manifest_designs(where: str, data: Mapping[str, Any], base: Path) -> tuple[Path, Mapping[str, Any], list[str]]:
+    """The manifest an import names, its ``[designs.NAME]`` tables and the names it uses."""
     if "manifest" not in data:
-        raise ConfigError(f"{where}: missing key 'manifest'; give the designs manifest path, e.g. \"../sample_rtl/designs.toml\"")
-    path = _resolve(base, _want(where, "manifest", data["manifest"], str, "give a file path"))
-    if not path.is_file():
-        raise ConfigError(f"{where}: manifest {data['manifest']!r} not found (looked for {path}); fix the path")
-    body = read_toml(path)
-    designs = body.get("designs")
-    if not isinstance(designs, dict) or not designs:
+        raise ConfigError(f"{where}: missing key 'manifest'; give the designs manifest path, "
+                          "e.g. \"../sample_rtl/designs.toml\"")
+    path = _existing_file(where, "manifest", data["manifest"], base)
+    designs = read_toml(path).get("designs")
+    if not isinstance(designs, Mapping) or not designs:
         raise ConfigError(f"{path}: no [designs.NAME] tables; is this a designs manifest?")
-    use = _str_list(where, "use", data["use"]) if "use" in data else list(designs)
+    use = want_str_list(where, "use", data["use"]) if "use" in data else list(designs)
     for u in use:
         if u not in designs:
-            raise ConfigError(f"{where}: design {u!r} is not in {path.name}; {_suggest(u, list(designs))}")
+            raise fail(where, "use", u, f"not a design of {path.name}", suggest(u, designs))
+    return path, designs, use
+
+
+def _parse_import(where: str, data: Mapping[str, Any], base: Path) -> list[DesignConfig]:
+    check_keys(where, data, _IMPORT_KEYS)
+    path, designs, use = _manifest_designs(where, data, base)
     bugs = data.get("bugs", False)
     if bugs not in (True, False, "only"):
-        raise ConfigError(f"{where}: bugs = {bugs!r}; give true, false or \"only\"")
-    overrides = _want(where, "set", data.get("set", {}), dict, "give a table of design keys")
-    _check_keys(f"{where}.set", overrides, _DESIGN_KEYS)
+        raise fail(where, "bugs", bugs, "not known", 'give true, false or "only"')
+    overrides = want_table(where, "set", data.get("set", {}))
+    check_keys(f"{where}.set", overrides, _DESIGN_KEYS)
     out: list[DesignConfig] = []
     for u in use:
         mw = f"{path.name} [designs.{u}]"
         good = _parse_design(mw, u, designs[u], path.parent, manifest=True)
         for key, value in overrides.items():
-            good = _apply_override(f"{where}.set", good, key, value, base)
-        variants = _bug_variants(mw, good, designs[u].get("bugs", {})) if bugs else []
+            good = _apply_override(f"{where}.set", good, key, value)
         if bugs != "only":
             out.append(good)
-        out.extend(variants)
+        if bugs:
+            out.extend(_bug_variants(mw, good, designs[u].get("bugs", {})))
     return out
 
 
 _SETTABLE = ("simulators", "parameters", "defines", "tolerance_lsb", "clock_period_ns", "reset_cycles",
-              "align", "timeout_clocks", "spec")
+             "align", "timeout_clocks", "spec")
 
 
-def _apply_override(where: str, d: DesignConfig, key: str, value: Any, base: Path) -> DesignConfig:
+def _apply_override(where: str, d: DesignConfig, key: str, value: Any) -> DesignConfig:
+    """An imported design with one key of the import's ``set`` table applied."""
     if key not in _SETTABLE:
         raise ConfigError(f"{where}: {key!r} cannot be set on imported designs; set one of {', '.join(_SETTABLE)}")
     if key == "simulators":
-        return replace(d, simulators=_simulator_list(where, value))
-    if key in ("parameters", "defines"):
-        return replace(d, **{key: {**getattr(d, key), **_want(where, key, value, dict, "give a table")}})
+        return replace(d, simulators=_simulator_list(where, key, value))
     if key == "spec":
-        return replace(d, spec_preset=_want(where, "spec", value, str, "give a preset name"), spec_table=None, spec_file=None)
-    if key == "align":
-        if value not in ("exact", "auto"):
-            raise ConfigError(f"{where}: align = {value!r}; give \"exact\" or \"auto\"")
-        return replace(d, align=value)
-    if key == "clock_period_ns":
-        v = _want(where, key, value, (int, float), "give a period in ns > 0")
-        if v <= 0:
-            raise ConfigError(f"{where}: clock_period_ns = {v}; give a period in ns > 0")
-        return replace(d, clock_period_ns=float(v))
-    return replace(d, **{key: _int(where, key, value, 0 if key == "tolerance_lsb" else 1)})
+        return replace(d, spec_preset=want_str(where, key, value), spec_table=None, spec_file=None)
+    if key in ("parameters", "defines"):
+        return replace(d, **{key: {**getattr(d, key), **_dict(where, key, value)}})
+    return replace(d, **{key: _DESIGN_FIELDS[key](where, key, value)})
 
 
 # ---------------------------------------------------------------------------------------------- loading
 
 
+def _add_design(where: str, designs: dict[str, DesignConfig], d: DesignConfig) -> None:
+    if d.name in designs:
+        raise ConfigError(f"{where}: design {d.name!r} is defined twice; rename one or drop it from 'use'")
+    designs[d.name] = d
+
+
+def _all_designs(name: str, data: Mapping[str, Any], base: Path) -> dict[str, DesignConfig]:
+    """The imported designs, then the config's own ``[designs.NAME]``, in order."""
+    designs: dict[str, DesignConfig] = {}
+    imports = data.get("import", [])
+    if isinstance(imports, Mapping):
+        imports = [imports]
+    if not isinstance(imports, list):
+        raise fail(name, "import", imports, type_name(imports), "write [[import]] tables")
+    for i, imp in enumerate(imports):
+        for d in _parse_import(f"{name} [[import]] #{i + 1}", want_table(name, "import", imp), base):
+            _add_design(name, designs, d)
+    for dname, body in want_table(name, "designs", data.get("designs", {})).items():
+        if "@" in dname or "/" in dname:
+            raise ConfigError(f"{name} [designs.{dname}]: names may not contain '@' or '/'; rename the design")
+        where = f"{name} [designs.{dname}]"
+        _add_design(name, designs, _parse_design(where, dname, want_table(where, "design", body), base))
+    if not designs:
+        raise ConfigError(f"{name}: no designs; add [designs.NAME] tables or an [[import]] of a manifest")
+    return designs
+
+
 def config_from_dict(data: Mapping[str, Any], path: str | Path) -> Config:
     """Build a :class:`Config` from parsed TOML; ``path`` anchors relative paths and names errors."""
     p = Path(path).resolve()
-    base = p.parent
-    name = p.name
-    _check_keys(name, data, _TOP_KEYS)
-    run = _parse_run(f"{name} [run]", _want(name, "run", data.get("run", {}), dict, "make [run] a table"), base)
-    designs: dict[str, DesignConfig] = {}
-    imports = data.get("import", [])
-    if isinstance(imports, dict):
-        imports = [imports]
-    _want(name, "import", imports, list, "write [[import]] tables")
-    for i, imp in enumerate(imports):
-        for d in _parse_import(f"{name} [[import]] #{i + 1}", _want(name, "import", imp, dict, "write [[import]] tables"), base):
-            if d.name in designs:
-                raise ConfigError(f"{name}: design {d.name!r} is defined twice; rename one or drop it from 'use'")
-            designs[d.name] = d
-    own = _want(name, "designs", data.get("designs", {}), dict, "write [designs.NAME] tables")
-    for dname, body in own.items():
-        if "@" in dname or "/" in dname:
-            raise ConfigError(f"{name} [designs.{dname}]: names may not contain '@' or '/'; rename the design")
-        if dname in designs:
-            raise ConfigError(f"{name}: design {dname!r} is defined twice; rename one or drop it from 'use'")
-        where = f"{name} [designs.{dname}]"
-        designs[dname] = _parse_design(where, dname, _want(where, "design", body, dict, "make it a table"), base)
-    if not designs:
-        raise ConfigError(f"{name}: no designs; add [designs.NAME] tables or an [[import]] of a manifest")
+    base, name = p.parent, p.name
+    check_keys(name, data, _TOP_KEYS)
+    run = _parse_run(f"{name} [run]", want_table(name, "run", data.get("run", {})), base)
+    designs = _all_designs(name, data, base)
     if "stimulus" not in data:
         raise ConfigError(f"{name}: no [stimulus] table; add one with patterns = [...] or images = [...]")
-    stimulus = _parse_stimulus(f"{name} [stimulus]", _want(name, "stimulus", data["stimulus"], dict, "make it a table"), base)
+    stimulus = _parse_stimulus(f"{name} [stimulus]", want_table(name, "stimulus", data["stimulus"]), base)
     return Config(path=p, run=run, designs=designs, stimulus=stimulus)
 
 
@@ -909,20 +919,83 @@ def load_config(path: str | Path) -> Config:
 # ---------------------------------------------------------------------------------------------- matrix
 
 
+@dataclass(frozen=True)
+class _Stimulus:
+    """One stimulus of the matrix: an image or a pattern entry, with the axes it runs on."""
+
+    kind: str
+    name: str
+    label: str
+    options: tuple[tuple[str, Any], ...]
+    seeds: tuple[int, ...]
+    size: tuple[int, int] | None
+    timings: tuple[tuple[str, dict[str, Any] | None], ...]
+    stalls: tuple[Flow, ...]
+    gaps: tuple[Flow, ...]
+    backpressure: tuple[Flow, ...]
+
+
 def _image_size(path: Path) -> tuple[int, int]:
     """``(width, height)`` through vkit.video.images (decompression-bomb guard, one-line errors)."""
-    from vkit.video.images import load_image
-
     arr = load_image(path, mode="auto", convert=True)
     return int(arr.shape[1]), int(arr.shape[0])
 
 
-def _design_simulators(d: DesignConfig, requested: list[str]) -> list[str]:
-    from vkit.sim.simulators import LANGUAGES
+def _stimuli(st: StimulusConfig) -> list[_Stimulus]:
+    """The images, then the pattern entries, each with its own axes or the ``[stimulus]`` ones."""
+    axes = dict(timings=tuple(st.timings), stalls=tuple(st.stalls), gaps=tuple(st.gaps),
+                backpressure=tuple(st.backpressure))
+    out = [_Stimulus("image", str(img), img.stem, (), tuple(st.seeds), _image_size(img), **axes) for img in st.images]
+    for pe in st.patterns:
+        own = {k: getattr(pe, k) for k in axes if getattr(pe, k) is not None}
+        out.append(_Stimulus("pattern", pe.name, pe.id_label, pe.options, pe.seeds or tuple(st.seeds), None,
+                             **{**axes, **own}))
+    return out
 
+
+def _design_simulators(d: DesignConfig, requested: list[str]) -> list[str]:
     if d.simulators is not None:
         return list(d.simulators)
     return [s for s in requested if d.language in LANGUAGES[s] and (d.supported is None or s in d.supported)]
+
+
+def _frame_timings(s: _Stimulus, size: tuple[int, int], family: str) -> list[tuple[str, dict[str, Any] | None, int, int]]:
+    """``(timing label, timing dict or None, width, height)`` of each timing a stimulus runs on."""
+    out = []
+    for label, timing in s.timings:
+        width, height = s.size or size
+        if timing is None:
+            timing, label = tiny(width, height).to_dict(), f"tiny{width}x{height}"
+        else:
+            width, height = int(timing["h_active"]), int(timing["v_active"])
+            if s.size is not None and (s.size[0] < width or s.size[1] < height):
+                raise ConfigError(f"image {s.name} is {s.size[0]}x{s.size[1]}, smaller than timing {label} "
+                                  f"({width}x{height}); use a larger image or a smaller timing")
+        if family == "stream":
+            timing, label = None, f"{width}x{height}"
+        out.append((label, timing, width, height))
+    return out
+
+
+def _flow_settings(s: _Stimulus, family: str) -> list[tuple[str, Flow, Flow, Flow]]:
+    """``(flow label, stalls, gaps, back-pressure)``: stalls for video, gaps x back-pressure for stream."""
+    if family == "video":
+        return [(f.label("stall"), f, Flow(), Flow()) for f in s.stalls]
+    return [(f"{g.label('gap')}-{b.label('bp')}", Flow(), g, b) for g in s.gaps for b in s.backpressure]
+
+
+def _design_cases(config: Config, d: DesignConfig, sim: str, s: _Stimulus) -> Iterator[Case]:
+    st = config.stimulus
+    for seed in s.seeds:
+        for tlabel, timing, width, height in _frame_timings(s, st.size, d.family):
+            for flabel, stall, gap, bp in _flow_settings(s, d.family):
+                yield Case(
+                    id=f"{d.name}/{sim}/{s.label}-s{seed}/{tlabel}/{flabel}", design=d, simulator=sim,
+                    stimulus=s.kind, stimulus_name=s.name, stimulus_label=s.label, pattern_options=s.options,
+                    seed=seed + config.run.seed, frames=st.frames, width=width, height=height, timing=timing,
+                    timing_label=tlabel, stalls=stall, gaps=gap, backpressure=bp, blanking=st.blanking,
+                    blanking_value=st.blanking_value, convert=st.convert,
+                )
 
 
 def expand_matrix(config: Config, simulators: list[str] | None = None) -> list[Case]:
@@ -936,63 +1009,22 @@ def expand_matrix(config: Config, simulators: list[str] | None = None) -> list[C
     Raises:
         ConfigError: the matrix is empty, or an image is smaller than a timing's active area.
     """
-    requested = _simulator_list("--sim", simulators) if simulators else config.run.simulators
-    st = config.stimulus
+    requested = _simulator_list("command line", "--sim", simulators) if simulators else config.run.simulators
+    stimuli = _stimuli(config.stimulus)
     cases: dict[str, Case] = {}
     skipped: list[str] = []
-    stimuli: list[tuple[str, str, str, tuple[tuple[str, Any], ...], tuple[int, ...], tuple[int, int] | None, PatternEntry | None]] = []
-    for img in st.images:
-        stimuli.append(("image", str(img), img.stem, (), tuple(st.seeds), _image_size(img), None))
-    for pe in st.patterns:
-        stimuli.append(("pattern", pe.name, pe.id_label, pe.options, pe.seeds or tuple(st.seeds), None, pe))
     for d in config.designs.values():
         sims = _design_simulators(d, requested)
         if not sims:
             skipped.append(d.name)
-            continue
         for sim in sims:
-            for kind, sname, slabel, options, seeds, own_size, pe in stimuli:
-                stalls = pe.stalls if pe is not None and pe.stalls is not None else st.stalls
-                gaps = pe.gaps if pe is not None and pe.gaps is not None else st.gaps
-                bps = pe.backpressure if pe is not None and pe.backpressure is not None else st.backpressure
-                flows = ([(f, Flow(), Flow()) for f in stalls] if d.family == "video"
-                         else [(Flow(), g, b) for g in gaps for b in bps])
-                timings = pe.timings if pe is not None and pe.timings is not None else st.timings
-                for seed in seeds:
-                    for tlabel, tdict in timings:
-                        width, height = own_size if own_size is not None else st.size
-                        timing = tdict
-                        if tdict is None:
-                            from vkit.video.timing import tiny
-
-                            timing = tiny(width, height).to_dict()
-                            tlabel = f"tiny{width}x{height}"
-                        else:
-                            width, height = int(tdict["h_active"]), int(tdict["v_active"])
-                            if own_size is not None and (own_size[0] < width or own_size[1] < height):
-                                raise ConfigError(
-                                    f"image {sname} is {own_size[0]}x{own_size[1]}, smaller than timing {tlabel} "
-                                    f"({width}x{height}); use a larger image or a smaller timing"
-                                )
-                        if d.family == "stream":
-                            timing, tlabel = None, f"{width}x{height}"
-                        for stall, gap, bp in flows:
-                            flabel = stall.label("stall") if d.family == "video" else f"{gap.label('gap')}-{bp.label('bp')}"
-                            cid = f"{d.name}/{sim}/{slabel}-s{seed}/{tlabel}/{flabel}"
-                            if cid in cases:
-                                continue
-                            cases[cid] = Case(
-                                id=cid, design=d, simulator=sim, stimulus=kind, stimulus_name=sname,
-                                stimulus_label=slabel, pattern_options=options, seed=seed + config.run.seed,
-                                frames=st.frames, width=width, height=height, timing=timing, timing_label=tlabel,
-                                stalls=stall, gaps=gap, backpressure=bp, blanking=st.blanking,
-                                blanking_value=st.blanking_value, convert=st.convert,
-                            )
+            for s in stimuli:
+                for case in _design_cases(config, d, sim, s):
+                    cases.setdefault(case.id, case)
     if not cases:
-        names = ", ".join(skipped) or "none"
         raise ConfigError(
-            f"{config.path.name}: the matrix is empty (no design runs on {', '.join(requested)}; designs: {names}); "
-            "pick simulators the designs support"
+            f"{config.path.name}: the matrix is empty (no design runs on {', '.join(requested)}; "
+            f"designs: {', '.join(skipped) or 'none'}); pick simulators the designs support"
         )
     ordered = sorted(cases.values(), key=lambda c: c.id)
     return [replace(c, index=i) for i, c in enumerate(ordered)]
@@ -1000,8 +1032,6 @@ def expand_matrix(config: Config, simulators: list[str] | None = None) -> list[C
 
 def select_cases(cases: list[Case], only: str | list[str] | None) -> list[Case]:
     """Cases whose id matches ``only``: a glob (``*``, ``?``, ``[``) or else a substring; several = any."""
-    import fnmatch
-
     if not only:
         return list(cases)
     pats = [only] if isinstance(only, str) else list(only)

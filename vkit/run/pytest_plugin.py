@@ -2,9 +2,9 @@
 
 Enable it in the repo's root ``conftest.py``::
 
-    pytest_plugins = ["vkit.run.pytest_plugin"]
+    pytest_plugins = ["vkit.pytest_plugin"]
 
-or on the command line with ``pytest -p vkit.run.pytest_plugin``. pytest then collects every file named
+or on the command line with ``pytest -p vkit.pytest_plugin``. pytest then collects every file named
 ``vkit.toml`` it visits (or, when the ini option ``vkit_configs`` lists files, exactly those), and each
 case of the config's matrix becomes one item ``vkit.toml::<case id>`` marked ``sim`` and ``vkit``
 (``-m "not sim"`` leaves them out, ``-k conveyor`` picks cases by id). An item builds the design
@@ -131,15 +131,17 @@ class VkitCaseItem(pytest.Item):
 
     def runtest(self) -> None:
         """Build (cached), simulate, score and report the case; raise on a failure or an error."""
-        from vkit.run.runner import run_one_case
+        from vkit.run.case import run_one_case
+        from vkit.run.options import RunOptions
         from vkit.sim.simulators import find
 
         info = find(self.case.simulator)
         if not info.available:
             pytest.skip(f"{self.case.simulator} is not usable here: {info.reason}")
         s = self.run_settings
-        res = run_one_case(self.case, self.out_dir, s.cache_dir, timeout_s=s.timeout_s,
-                           max_listed=s.max_listed, coverage_floor=s.coverage_floor)
+        options = RunOptions.make(self.out_dir, cache_dir=s.cache_dir, timeout_s=s.timeout_s,
+                                  max_listed=s.max_listed, coverage_floor=s.coverage_floor)
+        res = run_one_case(self.case, options)
         self.result = res
         self.config.stash[_ENTRIES].setdefault(str(self.out_dir), []).append(res.entry)
         self.user_properties.append(("vkit_status", res.status))

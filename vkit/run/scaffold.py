@@ -12,8 +12,11 @@ from pathlib import Path
 from typing import Any
 
 from vkit.core.errors import ConfigError
-from vkit.sim.hdlports import HdlDesign, Port, find_design, list_designs
-from vkit.sim.signals import FAMILY_ROLES
+from vkit.core.validate import fail, suggest
+from vkit.model.pipeline import PRESETS as SPEC_PRESETS
+from vkit.sim.hdlports import HdlDesign, Port, find_design, language_of, list_designs
+from vkit.sim.signals import FAMILY_ROLES, PIXEL_FORMAT_BITS
+from vkit.sim.simulators import LANGUAGES, SIMULATORS
 
 __all__ = [
     "RoleGuess",
@@ -171,6 +174,100 @@ class RoleGuess:
         return [r for r in required if r not in self.roles]
 
 
+_Candidate = tuple[int, int, Port, _Reading]
+"""(name score, port order, port, what its name says) of one port for one role."""
+_Pick = tuple[int, Port, _Reading]
+"""(name score, port, what its name says) of the port picked for a role."""
+_NEUTRAL_ROLES = ("clock", "reset", "in_data", "out_data", "in_valid", "out_valid")
+"""Roles both families have: they say nothing about which family a design is."""
+
+
+def _role_candidates(ports: Sequence[Port]) -> dict[str, list[_Candidate]]:
+    """Each role's candidate ports: a port goes to the role of its best-scoring kind that fits it."""
+    candidates: dict[str, list[_Candidate]] = {}
+    for order, port in enumerate(ports):
+        reading = _read_name(port.name)
+        scored = [(k, s) for k in _KIND_ORDER if (s := _kind_score(reading, k)) > 0 and _fits(k, port)]
+        best = max((s for _, s in scored), default=0)
+        for kind, s in scored:
+            role = _role_for(kind, port.direction) if s == best else None
+            if role is None:
+                continue
+            role_side = "in" if role.startswith("in_") else ("out" if role.startswith("out_") else None)
+            if reading.side is not None and role_side is not None:
+                # a ready's name side is the side of the interface it belongs to, like the others
+                s += 1 if reading.side == role_side else -2
+            candidates.setdefault(role, []).append((s, order, port, reading))
+            break
+    return candidates
+
+
+def _pick_ports(candidates: dict[str, list[_Candidate]], notes: list[str]) -> dict[str, _Pick]:
+    """The best free port per role, surest roles first; ties and side mismatches become notes."""
+    chosen: dict[str, _Pick] = {}
+    used: set[str] = set()
+    for role in sorted(candidates, key=lambda r: -max(c[0] for c in candidates[r])):
+        cands = sorted((c for c in candidates[role] if c[2].name not in used), key=lambda c: (-c[0], c[1]))
+        if not cands:
+            continue
+        score, _, port, reading = cands[0]
+        ties = [c[2].name for c in cands[1:] if c[0] == score]
+        if ties:
+            notes.append(f"{role}: {port.name} picked over {', '.join(ties)} (same name score); CONFIRM")
+            score = min(score, 1)
+        if reading.side is not None and role.startswith(("in_", "out_")) and not role.startswith(reading.side + "_"):
+            notes.append(f"{role}: {port.name} is an {port.direction} but its name says side '{reading.side}'; CONFIRM")
+        chosen[role] = (score, port, reading)
+        used.add(port.name)
+    return chosen
+
+
+def _fill_data_roles(ports: Sequence[Port], chosen: dict[str, _Pick], notes: list[str]) -> None:
+    """Data roles by elimination: the widest multi-bit port left of that direction."""
+    used = {pick[1].name for pick in chosen.values()}
+    for role, direction in (("in_data", "input"), ("out_data", "output")):
+        if role in chosen:
+            continue
+        rest = [p for p in ports if p.direction == direction and p.name not in used and (p.width or 0) > 1]
+        if rest:
+            port = max(rest, key=lambda p: p.width or 0)
+            chosen[role] = (0, port, _read_name(port.name))
+            used.add(port.name)
+            notes.append(f"{role}: {port.name} is the widest {direction} left ({port.width} bits), no name matched; CONFIRM")
+
+
+def _infer_family(chosen: Mapping[str, _Pick], notes: list[str]) -> str:
+    """The family whose own control roles found more ports (video on a tie or when none were found)."""
+
+    def count(fam: str) -> int:
+        req, opt = FAMILY_ROLES[fam]
+        return sum(1 for r in (*req, *opt) if r in chosen and r not in _NEUTRAL_ROLES)
+
+    video_n, stream_n = count("video"), count("stream")
+    if video_n == 0 and stream_n == 0:
+        notes.append("family: no sync, data-enable, ready, start-of-frame or end-of-line port found; assumed video; CONFIRM")
+        return "video"
+    family = "video" if video_n >= stream_n else "stream"
+    notes.append(f"family: {family} (from {max(video_n, stream_n)} {family} control ports); CONFIRM")
+    return family
+
+
+def _pixel_format(chosen: Mapping[str, _Pick], notes: list[str]) -> str:
+    """gray8 or rgb888 from the input data port's width (a note when the width is not 8 or 24)."""
+    if "in_data" not in chosen:
+        return "gray8"
+    port = chosen["in_data"][1]
+    w = port.width
+    if w in (8, 24):
+        return "rgb888" if w == 24 else "gray8"
+    if w is None:
+        notes.append(f"in_data: width of {port.name} is {port.width_expr or 'unknown'}; assumed gray8 (8 bits); CONFIRM")
+        return "gray8"
+    pixel_format = "rgb888" if w > 24 else "gray8"
+    notes.append(f"in_data: {port.name} is {w} bits; vkit drives {pixel_format} in its low bits; CONFIRM")
+    return pixel_format
+
+
 def guess_roles(ports: Sequence[Port], family: str | None = None) -> RoleGuess:
     """Guess which port plays which role from the usual names, directions and widths.
 
@@ -195,100 +292,23 @@ def guess_roles(ports: Sequence[Port], family: str | None = None) -> RoleGuess:
     if family is not None and family not in FAMILY_ROLES:
         raise ConfigError(f"family {family!r} is not known; use one of {', '.join(FAMILY_ROLES)} or leave it out to infer it")
     notes: list[str] = []
-    # candidates[role] = [(score, order, port, reading)]
-    candidates: dict[str, list[tuple[int, int, Port, _Reading]]] = {}
-    for order, port in enumerate(ports):
-        reading = _read_name(port.name)
-        scored = [(k, _kind_score(reading, k)) for k in _KIND_ORDER]
-        scored = [(k, s) for k, s in scored if s > 0 and _fits(k, port)]
-        if not scored:
-            continue
-        best = max(s for _, s in scored)
-        for kind, s in scored:
-            if s < best:
-                continue
-            role = _role_for(kind, port.direction)
-            if role is None:
-                continue
-            score = s
-            role_side = "in" if role.startswith("in_") else ("out" if role.startswith("out_") else None)
-            if reading.side is not None and role_side is not None:
-                # a ready's name side is the side of the interface it belongs to, like the others
-                score += 1 if reading.side == role_side else -2
-            candidates.setdefault(role, []).append((score, order, port, reading))
-            break
-    chosen: dict[str, tuple[int, Port, _Reading]] = {}
-    used: set[str] = set()
-    for role in sorted(candidates, key=lambda r: -max(c[0] for c in candidates[r])):
-        cands = sorted((c for c in candidates[role] if c[2].name not in used), key=lambda c: (-c[0], c[1]))
-        if not cands:
-            continue
-        score, _, port, reading = cands[0]
-        ties = [c[2].name for c in cands[1:] if c[0] == score]
-        if ties:
-            notes.append(f"{role}: {port.name} picked over {', '.join(ties)} (same name score); CONFIRM")
-            score = min(score, 1)
-        if reading.side is not None and role.startswith(("in_", "out_")) and not role.startswith(reading.side + "_"):
-            notes.append(f"{role}: {port.name} is an {port.direction} but its name says side '{reading.side}'; CONFIRM")
-        chosen[role] = (score, port, reading)
-        used.add(port.name)
-    # data roles by elimination: the widest port left of that direction
-    for role, direction in (("in_data", "input"), ("out_data", "output")):
-        if role in chosen:
-            continue
-        rest = [p for p in ports if p.direction == direction and p.name not in used and (p.width or 0) > 1]
-        if rest:
-            port = max(rest, key=lambda p: p.width or 0)
-            chosen[role] = (0, port, _read_name(port.name))
-            used.add(port.name)
-            notes.append(f"{role}: {port.name} is the widest {direction} left ({port.width} bits), no name matched; CONFIRM")
-
-    def _count(fam: str) -> int:
-        req, opt = FAMILY_ROLES[fam]
-        return sum(1 for r in (*req, *opt) if r in chosen and r not in ("clock", "reset", "in_data", "out_data", "in_valid", "out_valid"))
-
-    if family is None:
-        video_n, stream_n = _count("video"), _count("stream")
-        if video_n == 0 and stream_n == 0:
-            family = "video"
-            notes.append("family: no sync, data-enable, ready, start-of-frame or end-of-line port found; assumed video; CONFIRM")
-        else:
-            family = "video" if video_n >= stream_n else "stream"
-            notes.append(f"family: {family} (from {video_n if family == 'video' else stream_n} {family} control ports); CONFIRM")
+    chosen = _pick_ports(_role_candidates(ports), notes)
+    _fill_data_roles(ports, chosen, notes)
+    family = family or _infer_family(chosen, notes)
     required, optional = FAMILY_ROLES[family]
-    roles: dict[str, str] = {}
-    confidence: dict[str, str] = {}
-    for role in (*required, *optional):
-        if role in chosen:
-            score, port, _ = chosen[role]
-            roles[role] = port.name
-            confidence[role] = _SCORE_WORDS.get(max(1, min(3, score)), "low")
-    for role in required:
-        if role not in roles:
-            notes.append(f"{role}: no port found; map it by hand")
-    unmapped = [p.name for p in ports if p.name not in roles.values()]
-    for name in unmapped:
-        p = next(q for q in ports if q.name == name)
-        notes.append(f"port {name} ({p.direction}, {p.width if p.width is not None else p.width_expr or '?'} bits) plays no role; tie it off in a wrapper if it must be driven")
+    picked = [(role, chosen[role]) for role in (*required, *optional) if role in chosen]
+    roles = {role: port.name for role, (_, port, _) in picked}
+    confidence = {role: _SCORE_WORDS.get(max(1, min(3, score)), "low") for role, (score, _, _) in picked}
+    notes += [f"{role}: no port found; map it by hand" for role in required if role not in roles]
+    unmapped = [p for p in ports if p.name not in roles.values()]
+    notes += [f"port {p.name} ({p.direction}, {p.width if p.width is not None else p.width_expr or '?'} bits) plays "
+              "no role; tie it off in a wrapper if it must be driven" for p in unmapped]
     reset_high: bool | None = None
     if "reset" in roles:
-        reading = chosen["reset"][2]
-        reset_high = not reading.active_low
+        reset_high = not chosen["reset"][2].active_low
         notes.append(f"reset: {roles['reset']} taken as active {'high' if reset_high else 'low'} from its name; CONFIRM")
-    pixel_format = "gray8"
-    data = chosen.get("in_data")
-    if data is not None:
-        w = data[1].width
-        if w == 24:
-            pixel_format = "rgb888"
-        elif w == 8:
-            pixel_format = "gray8"
-        elif w is None:
-            notes.append(f"in_data: width of {data[1].name} is {data[1].width_expr or 'unknown'}; assumed gray8 (8 bits); CONFIRM")
-        else:
-            pixel_format = "rgb888" if w > 24 else "gray8"
-            notes.append(f"in_data: {data[1].name} is {w} bits; vkit drives {pixel_format} in its low bits; CONFIRM")
-    return RoleGuess(family, roles, notes, confidence, reset_high, pixel_format, unmapped)
+    pixel_format = _pixel_format(chosen, notes)
+    return RoleGuess(family, roles, notes, confidence, reset_high, pixel_format, [p.name for p in unmapped])
 
 
 # -- which preset the design implements ------------------------------------------------------------
@@ -429,40 +449,37 @@ backpressure = [0, { probability = 0.2, max_length = 3 }]  # sink ready low
 """
 
 
-def _config_text(
-    design_name: str,
-    design: HdlDesign,
-    sources: Sequence[Path],
-    out_dir: Path,
-    guess: RoleGuess,
-    spec: str,
-    spec_reason: str,
-    simulators: Sequence[str],
-    parameters: Mapping[str, Any],
-    defines: Mapping[str, Any],
-    ports_by_name: Mapping[str, Port],
-) -> str:
-    from vkit.model.pipeline import PRESETS
+@dataclass
+class _Kit:
+    """Everything the three starter files are written from."""
 
+    name: str
+    design: HdlDesign
+    sources: list[Path]
+    out_dir: Path
+    guess: RoleGuess
+    spec: str
+    spec_reason: str
+    simulators: list[str]
+    parameters: dict[str, Any]
+    defines: dict[str, Any]
+    notes: list[str]
+
+
+def _design_lines(kit: _Kit, ports_by_name: Mapping[str, Port]) -> list[str]:
+    """The ``[designs.NAME]`` table of the starter config, guesses marked CONFIRM."""
+    design, guess = kit.design, kit.guess
     lines = [
-        f"# {CONFIG_NAME}: starter config written by `vkit init` for {design.name}.",
-        "# Lines marked CONFIRM are guesses from the port names and widths: check each against the design.",
-        f"# Run: vkit run {CONFIG_NAME}        or: make -f {MAKEFILE_NAME} SIM={simulators[0]}",
-        "",
-        "[run]",
-        'out_dir = "vkit-out"',
-        f"simulators = [{', '.join(_q(s) for s in simulators)}]",
-        "",
-        f"[designs.{design_name}]",
+        f"[designs.{kit.name}]",
         f"top = {_q(design.name)}",
-        f"sources = [{', '.join(_q(_rel(s, out_dir)) for s in sources)}]",
+        f"sources = [{', '.join(_q(_rel(s, kit.out_dir)) for s in kit.sources)}]",
         _c(f"family = {_q(guess.family)}", "guessed: CONFIRM (video: syncs + data-enable; stream: valid/ready + sof/eol)"),
     ]
     data = guess.roles.get("in_data")
     data_port = ports_by_name.get(data) if data else None
     why_fmt = f"from {data} ({data_port.width if data_port and data_port.width else '?'} bits)" if data else "no input data port found"
     lines.append(_c(f"pixel_format = {_q(guess.pixel_format)}", f"guessed {why_fmt}: CONFIRM (gray8 or rgb888)"))
-    lines.append(_c(f"spec = {_q(spec)}", f"guessed, {spec_reason}: CONFIRM (presets: {', '.join(PRESETS)}; or spec_file = \"my_spec.toml\")"))
+    lines.append(_c(f"spec = {_q(kit.spec)}", f"guessed, {kit.spec_reason}: CONFIRM (presets: {', '.join(SPEC_PRESETS)}; or spec_file = \"my_spec.toml\")"))
     if guess.reset_active_high is not None:
         lines.append(_c(f"reset_active_high = {_toml_scalar(guess.reset_active_high)}", f"guessed from {guess.roles['reset']}: CONFIRM"))
     lines += [
@@ -472,15 +489,19 @@ def _config_text(
         _c("# latency_clocks = 46", "the latency the design declares: first output pixel clock minus first input pixel clock"),
         _c("# latency_timing = \"tiny32x24\"", "the timing latency_clocks holds for (checked there when given)"),
     ]
-    if parameters:
-        lines.append(f"parameters = {_inline_table(parameters)}")
-    else:
+    if kit.parameters:
+        lines.append(f"parameters = {_inline_table(kit.parameters)}")
+    elif any(v is not None for v in design.parameters.values()):
         params = {k: v for k, v in design.parameters.items() if v is not None}
-        if params:
-            lines.append(f"# parameters = {_inline_table(params)}   # defaults read from the source")
-    if defines:
-        lines.append(f"defines = {_inline_table(defines)}")
-    lines += ["", f"[designs.{design_name}.ports]"]
+        lines.append(f"# parameters = {_inline_table(params)}   # defaults read from the source")
+    if kit.defines:
+        lines.append(f"defines = {_inline_table(kit.defines)}")
+    return lines
+
+
+def _port_lines(design_name: str, guess: RoleGuess, ports_by_name: Mapping[str, Port]) -> list[str]:
+    """The ``[designs.NAME.ports]`` table: each guessed port with its confidence, missing roles commented."""
+    lines = [f"[designs.{design_name}.ports]"]
     required, optional = FAMILY_ROLES[guess.family]
     for role in (*required, *optional):
         port = guess.roles.get(role)
@@ -493,9 +514,26 @@ def _config_text(
             lines.append(_c(f"# {role} = \"\"", "MISSING: no port found; map it to the design's port"))
     if guess.unmapped:
         lines.append(f"# not mapped: {', '.join(guess.unmapped)}")
-    lines.append("")
-    lines.append(_VIDEO_STIMULUS if guess.family == "video" else _STREAM_STIMULUS)
-    return "\n".join(lines)
+    return lines
+
+
+def _config_text(kit: _Kit) -> str:
+    """The starter ``vkit.toml``."""
+    ports_by_name = {p.name: p for p in kit.design.ports}
+    head = [
+        f"# {CONFIG_NAME}: starter config written by `vkit init` for {kit.design.name}.",
+        "# Lines marked CONFIRM are guesses from the port names and widths: check each against the design.",
+        f"# Run: vkit run {CONFIG_NAME}        or: make -f {MAKEFILE_NAME} SIM={kit.simulators[0]}",
+        "",
+        "[run]",
+        'out_dir = "vkit-out"',
+        f"simulators = [{', '.join(_q(s) for s in kit.simulators)}]",
+        "",
+    ]
+    design = _design_lines(kit, ports_by_name)
+    ports = _port_lines(kit.name, kit.guess, ports_by_name)
+    stimulus = _VIDEO_STIMULUS if kit.guess.family == "video" else _STREAM_STIMULUS
+    return "\n".join([*head, *design, "", *ports, "", stimulus])
 
 
 def _c(code: str, comment: str) -> str:
@@ -554,6 +592,90 @@ def _test_module_text(design_name: str, design: HdlDesign, default_sim: str) -> 
     )
 
 
+def _read_top(top: str, sources: list[Path], parameters: Mapping[str, Any],
+              defines: Mapping[str, Any]) -> tuple[HdlDesign, list[HdlDesign]]:
+    """The top level and every design in the sources, which must all be in one language."""
+    ints = {k: v for k, v in parameters.items() if isinstance(v, int)}
+    texts = {k: str(v) for k, v in defines.items()}
+    design = find_design(sources, top, parameters=ints, defines=texts)
+    all_designs = list_designs(sources, parameters=ints, defines=texts)
+    languages = {d.language for d in all_designs} | {design.language} | {language_of(p) for p in sources}
+    if len(languages) > 1:
+        raise ConfigError(
+            f"vkit init: sources mix {' and '.join(sorted(languages))}; vkit builds one language per design, "
+            "wrap the design in one language or list one language's files"
+        )
+    return design, all_designs
+
+
+def _simulators_for(language: str, simulators: Sequence[str] | None) -> list[str]:
+    """The simulators to write into the config: as given (each must compile ``language``), else all that do."""
+    able = [s for s in SIMULATORS if language in LANGUAGES[s]]
+    if simulators is None:
+        return [s for s in ("icarus", "verilator", "ghdl") if s in able]
+    for s in simulators:
+        if s not in SIMULATORS:
+            raise fail("vkit init", "simulators", s, "not a simulator vkit drives", suggest(s, SIMULATORS))
+        if s not in able:
+            raise ConfigError(f"vkit init: {s} does not compile {language}; pick one of {', '.join(able)}")
+    if not simulators:
+        raise ConfigError("vkit init: simulators is empty; name at least one")
+    return list(simulators)
+
+
+def _check_choices(name: str, spec: str | None, pixel_format: str | None) -> None:
+    if not re.fullmatch(r"[A-Za-z_][\w-]*", name):
+        raise ConfigError(f"vkit init: design name {name!r} is not a plain name; pass design_name (letters, digits, _ and -)")
+    if spec is not None and spec not in SPEC_PRESETS:
+        raise fail("vkit init", "spec", spec, "not a preset", f"{suggest(spec, SPEC_PRESETS)} (or edit spec in the config later)")
+    if pixel_format is not None and pixel_format not in PIXEL_FORMAT_BITS:
+        raise fail("vkit init", "pixel_format", pixel_format, "not known", suggest(pixel_format, PIXEL_FORMAT_BITS))
+
+
+def _targets(out: Path, design: HdlDesign, force: bool) -> dict[str, Path]:
+    """The three files to write; existing ones are an error unless ``force``."""
+    test_name = f"test_vkit_{re.sub(r'[^0-9A-Za-z_]', '_', design.name).lower()}"
+    targets = {"config": out / CONFIG_NAME, "test_module": out / f"{test_name}.py", "makefile": out / MAKEFILE_NAME}
+    existing = [str(p) for p in targets.values() if p.exists()]
+    if existing and not force:
+        raise ConfigError(f"vkit init: {', '.join(existing)} already exist(s); nothing was written; pass --force to overwrite")
+    return targets
+
+
+def _choose_spec(spec: str | None, design: HdlDesign, all_designs: list[HdlDesign], sources: list[Path],
+                 guess: RoleGuess, notes: list[str]) -> tuple[str, str]:
+    """The preset to write (given, else guessed from the names) and why; a format clash becomes a note."""
+    if spec is None:
+        names = [design.name] + [d.name for d in all_designs if d.name != design.name] + [p.stem for p in sources]
+        spec, reason = guess_spec(names, guess.pixel_format)
+    else:
+        reason = "as given"
+    spec_input = SPEC_PRESETS[spec].input
+    if spec_input != guess.pixel_format:
+        notes.append(
+            f"spec: preset {spec!r} takes {spec_input} but pixel_format is {guess.pixel_format}; "
+            "pick a preset with that input or write a spec_file; CONFIRM"
+        )
+    notes.append(f"spec: {spec} ({reason}); CONFIRM")
+    return spec, reason
+
+
+def _write_kit(kit: _Kit, targets: Mapping[str, Path]) -> ScaffoldResult:
+    """Write the config, the cocotb test module and the Makefile; what was written."""
+    kit.out_dir.mkdir(parents=True, exist_ok=True)
+    test_name = targets["test_module"].stem
+    targets["config"].write_text(_config_text(kit), encoding="utf-8")
+    targets["test_module"].write_text(_test_module_text(kit.name, kit.design, kit.simulators[0]), encoding="utf-8")
+    targets["makefile"].write_text(
+        _makefile_text(kit.name, kit.design, kit.sources, kit.out_dir, test_name, kit.simulators[0], kit.parameters,
+                       kit.defines),
+        encoding="utf-8",
+    )
+    return ScaffoldResult(out_dir=kit.out_dir, config=targets["config"], test_module=targets["test_module"],
+                          makefile=targets["makefile"], design=kit.design, guess=kit.guess, spec=kit.spec,
+                          simulators=kit.simulators, notes=kit.notes)
+
+
 def scaffold(
     top: str,
     sources: Sequence[str | Path],
@@ -597,88 +719,23 @@ def scaffold(
         ConfigError: a source is missing, ``top`` is not in the sources (the message lists what is),
             the sources mix Verilog and VHDL, a name is not valid, or a file exists and ``force`` is False.
     """
-    from vkit.model.pipeline import PRESETS
-    from vkit.sim.simulators import LANGUAGES, SIMULATORS
-    from vkit.sim.signals import PIXEL_FORMAT_BITS
-
     if not sources:
         raise ConfigError("vkit init: no sources given; list the HDL files of the design, in compile order")
     src_paths = [Path(s) for s in sources]
-    params = dict(parameters or {})
-    defs = dict(defines or {})
-    design = find_design(src_paths, top, parameters={k: v for k, v in params.items() if isinstance(v, int)}, defines={k: str(v) for k, v in defs.items()})
-    all_designs = list_designs(src_paths, parameters={k: v for k, v in params.items() if isinstance(v, int)}, defines={k: str(v) for k, v in defs.items()})
-    languages = {d.language for d in all_designs} | {design.language}
-    from vkit.sim.hdlports import language_of
-
-    languages |= {language_of(p) for p in src_paths}
-    if len(languages) > 1:
-        raise ConfigError(
-            f"vkit init: sources mix {' and '.join(sorted(languages))}; vkit builds one language per design, "
-            "wrap the design in one language or list one language's files"
-        )
+    params, defs = dict(parameters or {}), dict(defines or {})
+    design, all_designs = _read_top(top, src_paths, params, defs)
     name = design_name or re.sub(r"\W", "_", design.name)
-    if not re.fullmatch(r"[A-Za-z_][\w-]*", name):
-        raise ConfigError(f"vkit init: design name {name!r} is not a plain name; pass design_name (letters, digits, _ and -)")
-    if spec is not None and spec not in PRESETS:
-        raise ConfigError(f"vkit init: spec {spec!r} is not a preset; use one of {', '.join(PRESETS)} (or edit spec in the config later)")
-    if pixel_format is not None and pixel_format not in PIXEL_FORMAT_BITS:
-        raise ConfigError(f"vkit init: pixel_format {pixel_format!r}; use one of {', '.join(PIXEL_FORMAT_BITS)}")
-    if simulators is None:
-        sims = [s for s in ("icarus", "verilator", "ghdl") if design.language in LANGUAGES[s]]
-    else:
-        sims = list(simulators)
-        for s in sims:
-            if s not in SIMULATORS:
-                raise ConfigError(f"vkit init: simulator {s!r} is not known; use one of {', '.join(SIMULATORS)}")
-            if design.language not in LANGUAGES[s]:
-                raise ConfigError(f"vkit init: {s} does not compile {design.language}; pick one of "
-                                  f"{', '.join(x for x in SIMULATORS if design.language in LANGUAGES[x])}")
-        if not sims:
-            raise ConfigError("vkit init: simulators is empty; name at least one")
+    _check_choices(name, spec, pixel_format)
+    sims = _simulators_for(design.language, simulators)
     out = Path(out_dir)
-    test_name = f"test_vkit_{re.sub(r'[^0-9A-Za-z_]', '_', design.name).lower()}"
-    targets = {"config": out / CONFIG_NAME, "test_module": out / f"{test_name}.py", "makefile": out / MAKEFILE_NAME}
-    existing = [str(p) for p in targets.values() if p.exists()]
-    if existing and not force:
-        raise ConfigError(f"vkit init: {', '.join(existing)} already exist(s); nothing was written; pass --force to overwrite")
-
+    targets = _targets(out, design, force)
     guess = guess_roles(design.ports, family)
     notes = list(guess.notes)
     if pixel_format is not None and pixel_format != guess.pixel_format:
         notes.append(f"pixel_format: {pixel_format} as given (the data width suggested {guess.pixel_format})")
         guess.pixel_format = pixel_format
-    if spec is None:
-        names = [design.name] + [d.name for d in all_designs if d.name != design.name] + [p.stem for p in src_paths]
-        spec_name, reason = guess_spec(names, guess.pixel_format)
-    else:
-        spec_name, reason = spec, "as given"
-    spec_input = PRESETS[spec_name].input
-    if spec_input != guess.pixel_format:
-        notes.append(
-            f"spec: preset {spec_name!r} takes {spec_input} but pixel_format is {guess.pixel_format}; "
-            "pick a preset with that input or write a spec_file; CONFIRM"
-        )
-    notes.append(f"spec: {spec_name} ({reason}); CONFIRM")
-    out.mkdir(parents=True, exist_ok=True)
-    ports_by_name = {p.name: p for p in design.ports}
-    config_text = _config_text(name, design, src_paths, out, guess, spec_name, reason, sims, params, defs, ports_by_name)
-    targets["config"].write_text(config_text, encoding="utf-8")
-    targets["test_module"].write_text(_test_module_text(name, design, sims[0]), encoding="utf-8")
-    targets["makefile"].write_text(
-        _makefile_text(name, design, src_paths, out, test_name, sims[0], params, defs), encoding="utf-8"
-    )
-    return ScaffoldResult(
-        out_dir=out,
-        config=targets["config"],
-        test_module=targets["test_module"],
-        makefile=targets["makefile"],
-        design=design,
-        guess=guess,
-        spec=spec_name,
-        simulators=sims,
-        notes=notes,
-    )
+    spec_name, reason = _choose_spec(spec, design, all_designs, src_paths, guess, notes)
+    return _write_kit(_Kit(name, design, src_paths, out, guess, spec_name, reason, sims, params, defs, notes), targets)
 
 
 def parse_assignments(items: Sequence[str] | None, what: str = "parameter") -> dict[str, int | str]:

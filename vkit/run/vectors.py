@@ -16,10 +16,10 @@ from typing import Any
 
 import numpy as np
 
-from vkit.run.config import Case
 from vkit.core.errors import ConfigError
+from vkit.run.config import Case, Config, expand_matrix, select_cases
 
-__all__ = ["ExportedCase", "export_vectors", "replay"]
+__all__ = ["ExportedCase", "export_vectors", "find_case", "replay"]
 
 _INFO = "vectors.json"
 
@@ -39,6 +39,20 @@ class ExportedCase:
     commands: dict[str, list[list[str]]]
 
 
+def find_case(config: Config, case_id: str, simulators: list[str] | None = None) -> Case:
+    """The one case of ``config`` that ``case_id`` selects (a whole case id, as summary.txt lists it).
+
+    Raises:
+        ConfigError: ``case_id`` selects no case or several (the message lists a few).
+    """
+    cases = select_cases(expand_matrix(config, simulators), case_id)
+    if len(cases) != 1:
+        listed = ", ".join(c.id for c in cases[:5]) + (" ..." if len(cases) > 5 else "")
+        raise ConfigError(f"export: {case_id!r} selects {len(cases)} cases ({listed or 'none'}); "
+                          "give one whole case id (see summary.txt of a run)")
+    return cases[0]
+
+
 def export_vectors(case: Case, out_dir: str | Path) -> ExportedCase:
     """Export ``case`` (one case of a config's matrix) as vectors and a self-checking testbench.
 
@@ -47,14 +61,11 @@ def export_vectors(case: Case, out_dir: str | Path) -> ExportedCase:
     """
     from vkit.run.export import export_case
     from vkit.model.pipeline import run_model
-    from vkit.run.runner import make_frames, make_sim_case
+    from vkit.run.inputs import make_frames, make_sim_case
 
     d = case.design
     out = Path(out_dir).resolve()
     spec = d.pipeline_spec()
-    if spec.input != d.pixel_format:
-        raise ConfigError(f"design {d.name}: spec {spec.name!r} takes {spec.input} but the design's pixel_format "
-                          f"is {d.pixel_format}; make them agree")
     frames = make_frames(case)
     expected = [run_model(spec, f) for f in frames]
     simcase = make_sim_case(case, out, frames)

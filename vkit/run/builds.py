@@ -1,0 +1,219 @@
+"""The build phase: one simulator build per design, simulator and frame-size parameters, through the build cache.
+
+Three kinds of build serve the drive modes and the wave reruns: the design itself (``clock``), the
+generated fast-path harness around it (``fast``; as a plain executable for ``native``), and the design
+with a wave-window module beside it (Icarus, for windowed waveform dumps). A build that fails is one
+:class:`~vkit.core.errors.ToolError` line: the tool's first error line and the path of the full log.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+from contextlib import contextmanager
+from importlib import resources
+from pathlib import Path
+from typing import Any, Iterator
+
+from cocotb_tools.runner import get_runner
+
+from vkit.core.errors import ConfigError, ToolError
+from vkit.core.validate import want_choice
+from vkit.core.vocab import DRIVE_MODES
+from vkit.run.config import Case
+from vkit.sim.buildcache import BuildCache, BuildOutcome, BuildRequest
+from vkit.sim.harness import fast_build_plan, native_build, native_build_plan
+from vkit.sim.simulators import activate, require
+
+__all__ = [
+    "TIMESCALE",
+    "WAVE_MODULE",
+    "build_request",
+    "build_design",
+    "build_fast_design",
+    "build_wave_design",
+    "build_for_drive",
+    "first_error_line",
+    "quiet_pytest_env",
+]
+
+TIMESCALE = ("1ns", "1ps")
+"""Time unit and precision given to Icarus and Verilator builds (cocotb's clock needs a timescale)."""
+WAVE_MODULE = "vkit_wave_window"
+"""Name of the Verilog module that limits a waveform dump to a time window."""
+_ERROR_RE = re.compile(r"(%Error|error:|Error:|\berror\b|ERROR|syntax error|cannot|unable to)", re.IGNORECASE)
+
+
+def _default_build_args(simulator: str) -> list[str]:
+    if simulator == "ghdl":
+        return ["--std=08"]
+    if simulator == "verilator":
+        # warnings are reported in build.log but do not stop the build of a user design
+        return ["-Wno-fatal"]
+    return []
+
+
+def build_request(case: Case, tool_version: str) -> BuildRequest:
+    """The :class:`BuildRequest` of a case (only design, simulator and frame-size parameters matter)."""
+    d = case.design
+    return BuildRequest.make(
+        case.simulator, tool_version, d.top, d.sources, d.language,
+        parameters=d.build_parameters(case.width, case.height),
+        defines=d.defines,
+        build_args=[*_default_build_args(case.simulator), *d.build_args],
+        data_files=list(d.file_parameters.values()),
+        include_dirs=d.include_dirs,
+    )
+
+
+def first_error_line(log: Path) -> str:
+    """The first line of a tool log that reads like an error (else its last line), squeezed to 300 chars."""
+    try:
+        lines = log.read_text(errors="replace").splitlines()
+    except OSError:
+        return "no build log was written"
+    for line in lines:
+        if _ERROR_RE.search(line) and "Running command" not in line:
+            return " ".join(line.split())[:300]
+    tail = [ln for ln in lines if ln.strip()]
+    return " ".join(tail[-1].split())[:300] if tail else "the tool printed nothing"
+
+
+@contextmanager
+def quiet_pytest_env() -> Iterator[None]:
+    """cocotb's runner behaves differently under pytest (it exits on failed tests); vkit judges itself."""
+    saved = os.environ.pop("PYTEST_CURRENT_TEST", None)
+    try:
+        yield
+    finally:
+        if saved is not None:
+            os.environ["PYTEST_CURRENT_TEST"] = saved
+
+
+def _cocotb_build(simulator: str, what: str, bdir: Path, **kwargs: Any) -> None:
+    """``runner.build(**kwargs)`` into ``bdir``; a failure is one ToolError naming ``what`` and the log."""
+    log = bdir / "build.log"
+    try:
+        with quiet_pytest_env():
+            get_runner(simulator).build(build_dir=str(bdir), log_file=str(log), **kwargs)
+    except (RuntimeError, ValueError, SystemExit, OSError) as exc:
+        line = first_error_line(log) if log.exists() else " ".join(str(exc).split())
+        raise ToolError(f"{simulator} could not build {what}: {line} (full log: {log})") from None
+
+
+def _design_build_kwargs(case: Case, build_args: list[str]) -> dict[str, Any]:
+    """``runner.build`` keywords for the design's own sources (GHDL takes its generics at run time)."""
+    d = case.design
+    kwargs: dict[str, Any] = dict(hdl_toplevel=d.top, build_args=build_args, always=True,
+                                  includes=[str(p) for p in d.include_dirs])
+    if case.simulator != "ghdl":
+        kwargs.update(parameters=d.build_parameters(case.width, case.height), defines=dict(d.defines),
+                      timescale=TIMESCALE)
+    return kwargs
+
+
+def build_design(case: Case, cache: BuildCache) -> BuildOutcome:
+    """Build (or reuse) the simulator model of ``case``'s design.
+
+    Raises:
+        ToolError: the simulator is missing, or it rejected the sources (the tool's first error line
+            and the path of the full ``build.log``).
+    """
+    info = require(case.simulator)
+    activate(info)
+    request = build_request(case, info.version)
+    d = case.design
+
+    def builder(bdir: Path) -> None:
+        _cocotb_build(case.simulator, f"{d.name} (top {d.top})", bdir, sources=[str(s) for s in d.sources],
+                      **_design_build_kwargs(case, list(request.build_args)))
+
+    return cache.ensure(request, builder)
+
+
+def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> BuildOutcome:
+    """Build (or reuse) the fast-path harness (:mod:`vkit.sim.harness`) around ``case``'s design.
+
+    The harness depends on the design, its parameters and the family only, so one build serves every
+    image, timing, stall pattern and seed. ``native=True`` builds it as a plain executable (no cocotb:
+    ``iverilog``/``vvp`` or ``verilator --binary``), for the drive mode ``native``.
+
+    Raises:
+        ToolError: the simulator is missing or rejected the sources (first error line and log path).
+        ConfigError: the harness cannot be made for this design (e.g. a port width cannot be read), or
+            ``native`` was asked of a simulator or language that has no native build.
+    """
+    info = require(case.simulator)
+    activate(info)
+    d = case.design
+    plan = fast_build_plan(
+        d.top, d.sources, d.language, d.build_parameters(case.width, case.height), d.defines, d.family,
+        d.ports, reset_active_high=d.reset_active_high, pixel_format=d.pixel_format,
+    )  # harness files land in a folder named after their content, so parallel workers never clash
+    if native:
+        commands = native_build_plan(plan, case.simulator, cache.cache_dir).commands
+        build_args = ["native", *[a for cmd in commands for a in cmd if a.startswith("-")]]
+    else:
+        build_args = [*plan.build_kwargs(case.simulator)["build_args"], *d.build_args]
+    request = BuildRequest.make(
+        case.simulator, info.version, plan.toplevel, plan.sources, d.language, defines=plan.defines,
+        build_args=build_args, data_files=list(d.file_parameters.values()), include_dirs=d.include_dirs,
+    )
+
+    def builder(bdir: Path) -> None:
+        if native:
+            native_build(plan, case.simulator, bdir, always=True)
+            return
+        kwargs = plan.build_kwargs(case.simulator)
+        kwargs["build_args"] = [*kwargs["build_args"], *d.build_args]
+        _cocotb_build(case.simulator, f"the fast-path harness of {d.name} (top {d.top})", bdir,
+                      includes=[str(p) for p in d.include_dirs], **kwargs)
+
+    return cache.ensure(request, builder)
+
+
+def _wave_module_text(top: str) -> str:
+    """A Verilog module that dumps ``top`` only between two times given as plusargs (Icarus)."""
+    text = resources.files("vkit.run").joinpath("templates", "wave_window.v.tmpl").read_text(encoding="utf-8")
+    return text.replace("{{top}}", top).replace("{{module}}", WAVE_MODULE)
+
+
+def build_wave_design(case: Case, cache: BuildCache) -> BuildOutcome:
+    """Build (or reuse) the design with the wave-window module as a second root (Icarus only).
+
+    The window module reads ``+vkit_wave_file``, ``+vkit_wave_from_ps`` and ``+vkit_wave_to_ps`` at
+    run time, so one such build serves every case of the design.
+
+    Raises:
+        ToolError: the simulator rejected the sources.
+        ConfigError: the simulator is not Icarus.
+    """
+    if case.simulator != "icarus":
+        raise ConfigError(f"waves: windowed dumps are made on icarus, not {case.simulator}; "
+                          f"rerun the case with --sim icarus --waves")
+    info = require(case.simulator)
+    activate(info)
+    d = case.design
+    base = build_request(case, info.version)
+    build_args = [*base.build_args, "-s", WAVE_MODULE]
+    request = BuildRequest.make(
+        base.simulator, base.tool_version, base.top, base.sources, base.language,
+        parameters=d.build_parameters(case.width, case.height), defines=d.defines,
+        build_args=build_args, data_files=base.data_files, include_dirs=base.include_dirs,
+    )
+
+    def builder(bdir: Path) -> None:
+        module = bdir / f"{WAVE_MODULE}.v"
+        module.write_text(_wave_module_text(d.top))
+        _cocotb_build(case.simulator, f"{d.name} with the wave module", bdir,
+                      sources=[*(str(s) for s in d.sources), str(module)], **_design_build_kwargs(case, build_args))
+
+    return cache.ensure(request, builder)
+
+
+def build_for_drive(case: Case, cache: BuildCache, drive: str) -> BuildOutcome:
+    """The build a case driven by ``drive`` runs on: the design itself, or the harness around it."""
+    want_choice("run options", "drive", drive, DRIVE_MODES)
+    if drive == "clock":
+        return build_design(case, cache)
+    return build_fast_design(case, cache, native=drive == "native")

@@ -1,0 +1,192 @@
+"""One case end to end, in four steps: prepare (frames, model, port check), simulate, judge, report.
+
+A case never raises for a case-level problem: a bad stimulus, a failed build or a simulator crash
+comes back as a :class:`~vkit.run.results.CaseResult` of status ``error`` with the one-line reason,
+and whatever the simulation left behind is kept in the report.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import shlex
+import time
+import traceback
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from vkit.check.scoreboard import Verdict, score
+from vkit.core.errors import ToolError, VkitError
+from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
+from vkit.report.writers import case_entry, case_folder, write_case_report
+from vkit.run.builds import build_for_drive
+from vkit.run.config import Case
+from vkit.run.coverage import stimulus_coverage
+from vkit.run.inputs import check_ports, make_frames
+from vkit.run.options import RunOptions
+from vkit.run.results import CaseResult, case_meta, error_result
+from vkit.run.simulate import simulate
+from vkit.run.waves import wave_rerun
+from vkit.sim.buildcache import BuildCache, BuildOutcome
+from vkit.video.capture import Capture
+
+__all__ = ["run_one_case", "rerun_command"]
+
+_KEPT_FILES = (("case_json", "case.json"), ("frames_npy", "frames.npy"), ("capture", "capture.npz"),
+               ("capture_error", "capture.error.txt"), ("sim_log", "sim.log"))
+"""Report key and file name of what a simulation leaves in the case's run folder."""
+
+
+def rerun_command(config_path: str | Path, case_id: str, simulator: str, out_dir: str | Path | None = None,
+                  waves: bool = False) -> str:
+    """The shell command that reruns exactly one case of a config (same seeds), quoted for a POSIX shell."""
+    words = ["vkit", "run", str(Path(config_path).resolve()), "--only", case_id, "--sim", simulator]
+    if out_dir is not None:
+        words += ["--out", str(out_dir)]
+    if waves:
+        words.append("--waves")
+    return " ".join(shlex.quote(w) for w in words)
+
+
+@dataclass(frozen=True)
+class _Prepared:
+    """A case ready to simulate: its run folder, spec, input frames and the model's expected results."""
+
+    sim_dir: Path
+    spec: PipelineSpec
+    frames: np.ndarray
+    expected: list[ModelResult]
+
+
+@dataclass(frozen=True)
+class _Judged:
+    """The verdict of a case with its coverage figures, warnings and wave facts (None: no waves)."""
+
+    verdict: Verdict
+    coverage: dict[str, Any]
+    warnings: list[str]
+    waves: dict[str, Any] | None
+
+
+def _kept_files(out: Path, sim_dir: Path) -> dict[str, Any]:
+    """Report-relative paths of what a case's simulation left behind (all kept, even on error)."""
+    return {key: os.path.relpath(sim_dir / name, out) for key, name in _KEPT_FILES if (sim_dir / name).exists()}
+
+
+def _strip_exc_name(text: str) -> str:
+    m = re.match(r"(ConfigError|ToolError|DutError): (.*)", text)
+    return m.group(2) if m else text
+
+
+def _prepare(case: Case, out: Path) -> _Prepared:
+    """Check the spec and ports, make the frames and run the bit-exact model on them."""
+    sim_dir = case_folder(out, case.id, "sim")
+    spec = case.design.pipeline_spec()
+    check_ports(case)
+    frames = make_frames(case)
+    return _Prepared(sim_dir, spec, frames, [run_model(spec, f) for f in frames])
+
+
+def _simulate(case: Case, prep: _Prepared, options: RunOptions) -> tuple[BuildOutcome, Capture]:
+    """Build (or reuse) and run the simulation; a missing capture becomes a capture that says so."""
+    outcome = build_for_drive(case, BuildCache(options.cache_dir), options.drive)
+    capture_file = simulate(case, outcome.build_dir, prep.sim_dir, prep.frames, options.timeout_s,
+                            drive=options.drive)
+    if capture_file.exists():
+        return outcome, Capture.load(capture_file)
+    return outcome, Capture(meta={"error": f"no capture was written; see {prep.sim_dir / 'sim.log'}"})
+
+
+def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -> _Judged:
+    """Score the capture, measure the stimulus coverage, and dump waves when the options ask for them."""
+    d = case.design
+    verdict = score(
+        prep.expected, capture, tolerance_lsb=d.tolerance_lsb,
+        declared_latency_clocks=case.declared_latency_clocks(), align=d.align, max_listed=options.max_listed,
+        spec=prep.spec, images=list(prep.frames),
+    )
+    coverage, warnings = stimulus_coverage(prep.spec, prep.frames, options.coverage_floor)
+    waves: dict[str, Any] | None = None
+    if options.waves == "all" or (options.waves == "failing" and verdict.status in ("fail", "no_output")):
+        try:
+            waves = wave_rerun(case, options.out_dir, BuildCache(options.cache_dir), prep.frames, capture, verdict,
+                               options.timeout_s)
+        except VkitError as exc:  # the verdict stands; say why there is no wave file
+            warnings.append(f"no waves: {exc}")
+    return _Judged(verdict, coverage, warnings, waves)
+
+
+def _report(case: Case, prep: _Prepared, outcome: BuildOutcome, capture: Capture, judged: _Judged,
+            options: RunOptions, seconds: float, rerun: str | None) -> CaseResult:
+    """Write the case's pictures and verdict.json; its report entry and result."""
+    out, verdict, waves = options.out_dir, judged.verdict, judged.waves
+    meta = {**case_meta(case, seconds), "build_dir": str(outcome.build_dir), "build_reused": outcome.reused,
+            "path": options.drive, "warnings": judged.warnings, "rerun": rerun}
+    if waves is not None:
+        meta["waves"] = waves
+    files = write_case_report(case.id, verdict, prep.expected, capture, out, meta=meta, pictures=options.pictures)
+    files.update(_kept_files(out, prep.sim_dir))
+    if waves is not None:
+        files["waves"] = waves["file"]
+    coverage = {**judged.coverage, "warnings": list(judged.warnings)}  # report.json carries the words too
+    entry = case_entry(case.id, verdict, simulator=case.simulator, seeds=case.seeds(), files=files,
+                       coverage=coverage, meta=meta)
+    diag = verdict.diagnosis
+    return CaseResult(
+        case.id, verdict.status, case.simulator, seconds, case.design.expect, case.design.expect_kind,
+        diagnosis=f"{diag.kind}: {diag.message}" if diag else None, diagnosis_kind=diag.kind if diag else None,
+        warnings=judged.warnings, tool_error=verdict.status == "error", entry=entry, rerun=rerun,
+        waves=waves["file"] if waves else None,
+    )
+
+
+def _error(case: Case, options: RunOptions, message: str, is_tool: bool, seconds: float,
+           sim_dir: Path | None, rerun: str | None) -> CaseResult:
+    """The result of a case that could not be judged, with what its simulation left behind."""
+    files = _kept_files(options.out_dir, sim_dir) if sim_dir is not None else {}
+    res = error_result(case, message, seconds, is_tool, files)
+    res.rerun = rerun
+    res.entry["meta"]["rerun"] = rerun
+    return res
+
+
+def run_one_case(case: Case, options: RunOptions) -> CaseResult:
+    """Run one case end to end and write its report; never raises for a case-level problem.
+
+    Args:
+        case: the case.
+        options: the run's options (report folder, build cache, time limit, waves, pictures, drive
+            mode; with ``config_path`` the report carries the command that reruns exactly this case).
+
+    Returns:
+        A :class:`CaseResult`; errors (bad stimulus, build failure, simulator crash) come back as
+        status ``error`` with the one-line reason as the diagnosis.
+    """
+    t0 = time.monotonic()
+    out = options.out_dir
+    rerun = (rerun_command(options.config_path, case.id, case.simulator, out / "rerun")
+             if options.config_path is not None else None)
+    sim_dir: Path | None = None
+    in_simulation = False
+    try:
+        prep = _prepare(case, out)
+        sim_dir, in_simulation = prep.sim_dir, True
+        outcome, capture = _simulate(case, prep, options)
+        in_simulation = False
+        if capture.meta.get("error"):
+            # the cocotb side stopped (misnamed port, narrow bus, ...): one line, capture and log kept
+            message = _strip_exc_name(" ".join(str(capture.meta["error"]).split()))
+            return _error(case, options, message, False, time.monotonic() - t0, sim_dir, rerun)
+        judged = _judge(case, prep, capture, options)
+        return _report(case, prep, outcome, capture, judged, options, time.monotonic() - t0, rerun)
+    except VkitError as exc:
+        return _error(case, options, str(exc), in_simulation or isinstance(exc, ToolError), time.monotonic() - t0,
+                      sim_dir, rerun)
+    except Exception as exc:  # a crash inside vkit itself: keep the case and its traceback in the report
+        message = f"internal error {type(exc).__name__}: {' '.join(str(exc).split())}"
+        res = _error(case, options, message, True, time.monotonic() - t0, sim_dir, rerun)
+        res.entry["meta"]["traceback"] = traceback.format_exc(limit=6)
+        return res

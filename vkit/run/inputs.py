@@ -1,0 +1,123 @@
+"""What a case feeds the simulator: its frames, the check of its signal map, and its SimCase."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from vkit.core.errors import ConfigError
+from vkit.core.validate import closest, fail
+from vkit.run.config import Case
+from vkit.sim.case import SimCase
+from vkit.sim.hdlports import Port, parse_ports
+from vkit.sim.signals import CONTROL_ROLES, PIXEL_FORMAT_BITS
+from vkit.video.images import load_image
+from vkit.video.patterns import make_pattern
+
+__all__ = ["make_frames", "check_ports", "make_sim_case", "BACKPRESSURE_SEED_OFFSET"]
+
+BACKPRESSURE_SEED_OFFSET = 7919
+"""Added to a stream case's seed for its back-pressure pattern, so ready and valid gaps are not the same
+random sequence (any fixed prime does; vkit init's generated tests use the same offset)."""
+
+
+def _crop(image: np.ndarray, width: int, height: int) -> np.ndarray:
+    h, w = image.shape[:2]
+    top, left = (h - height) // 2, (w - width) // 2
+    return image[top:top + height, left:left + width]
+
+
+def _image_frame(case: Case) -> np.ndarray:
+    try:
+        loaded = load_image(case.stimulus_name, mode=case.design.pixel_format, convert=case.convert)
+    except ConfigError as exc:
+        if "convert" not in str(exc):
+            raise
+        raise ConfigError(f"{exc} (in a vkit config: convert = true under [stimulus])") from None
+    return _crop(loaded, case.width, case.height)
+
+
+def make_frames(case: Case) -> np.ndarray:
+    """The case's input frames, uint8 ``(N, H, W)`` (gray8) or ``(N, H, W, 3)`` (rgb888).
+
+    Frame ``k`` of a pattern uses seed ``case.seed + k`` (seeded patterns differ per frame). An image
+    is read in the design's pixel format (conversions only with ``[stimulus] convert = true``) and
+    centre-cropped to the case's size; every frame of an image case is that image.
+    """
+    rgb = case.design.pixel_format == "rgb888"
+    frames = []
+    for k in range(case.frames):
+        if case.stimulus == "pattern":
+            img = make_pattern(case.stimulus_name, case.height, case.width, seed=case.seed + k, rgb=rgb,
+                               **dict(case.pattern_options))
+        else:
+            img = _image_frame(case)
+        frames.append(np.ascontiguousarray(img, dtype=np.uint8))
+    return np.stack(frames)
+
+
+def _top_ports(case: Case) -> list[Port]:
+    """The top level's ports as the light HDL reader sees them; empty when it cannot read them."""
+    d = case.design
+    ints = {k: v for k, v in d.build_parameters(case.width, case.height).items()
+            if isinstance(v, int) and not isinstance(v, bool)}
+    try:
+        return list(parse_ports(d.sources, d.top, parameters=ints, defines={k: str(v) for k, v in d.defines.items()}))
+    except Exception:  # noqa: BLE001 - the reader is a pre-check only; the simulator has the last word
+        return []
+
+
+def check_ports(case: Case) -> None:
+    """Check the case's signal map against the top level's ports as written in the sources.
+
+    Runs before any build, so a misnamed port or a narrow data bus is one line naming the role, the
+    port, the closest real port and the port list. When the light HDL reader cannot read the top
+    level, nothing is checked here (the cocotb side checks the elaborated design again).
+
+    Raises:
+        ConfigError: a mapped port is missing, a control role is not 1 bit, or ``in_data`` is
+            narrower than the pixel format.
+    """
+    d = case.design
+    ports = _top_ports(case)
+    names = [p.name for p in ports]
+    by_name = {p.name: p for p in ports}
+    by_lower = {p.name.lower(): p for p in ports}
+    where = f"design {d.name}"
+    for role, name in d.ports.items() if ports else ():
+        port = by_name.get(name) or by_lower.get(name.lower())
+        if port is None:
+            near = closest(name, names)
+            raise fail(where, f"ports.{role}", name, f"not a port of {d.top} (its ports: {', '.join(names)})",
+                       f"did you mean {near!r}?" if near else "fix the name in the design's ports table")
+        if port.width is None:
+            continue
+        if role in CONTROL_ROLES and port.width != 1:
+            raise fail(where, f"ports.{role}", port.name, f"{port.width} bits wide",
+                       f"a control role needs a 1-bit port; map {role!r} to one")
+        need = PIXEL_FORMAT_BITS.get(d.pixel_format)
+        if role == "in_data" and need is not None and port.width < need:
+            raise fail(where, "ports.in_data", port.name, f"{port.width} bits wide but pixel_format "
+                       f"{d.pixel_format} needs {need} bits", "widen the port or use a narrower pixel_format")
+
+
+def make_sim_case(case: Case, sim_dir: Path, frames: np.ndarray) -> SimCase:
+    """The :class:`vkit.sim.case.SimCase` of ``case``: frames saved to ``sim_dir/frames.npy``, capture to
+    ``sim_dir/capture.npz``; the same seeds and flow patterns whichever drive mode or test drives it."""
+    d = case.design
+    sim_dir.mkdir(parents=True, exist_ok=True)
+    frames_file = sim_dir / "frames.npy"
+    np.save(frames_file, frames)
+    video, stream = d.family == "video", d.family == "stream"
+    return SimCase(
+        family=d.family, signals=dict(d.ports), frames_file=str(frames_file),
+        capture_file=str(sim_dir / "capture.npz"),
+        width=case.width, height=case.height, pixel_format=d.pixel_format, timing=case.timing,
+        stalls=case.stalls.as_pattern(case.seed) if video else None,
+        stream_gaps=case.gaps.as_pattern(case.seed) if stream else None,
+        backpressure=case.backpressure.as_pattern(case.seed + BACKPRESSURE_SEED_OFFSET) if stream else None,
+        blanking=case.blanking, blanking_value=case.blanking_value, seed=case.seed,
+        clock_period_ns=d.clock_period_ns, reset_active_high=d.reset_active_high, reset_cycles=d.reset_cycles,
+        timeout_clocks=d.timeout_clocks, simulator=case.simulator, label=case.id,
+    )

@@ -1,0 +1,110 @@
+"""One simulation of one case on a finished build: the cocotb test (or the native executable), time-bounded."""
+
+from __future__ import annotations
+
+import os
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Any, Iterator, NamedTuple
+
+import numpy as np
+from cocotb_tools.runner import get_runner
+
+from vkit.core.errors import ToolError
+from vkit.run.builds import TIMESCALE, first_error_line, quiet_pytest_env
+from vkit.run.config import Case
+from vkit.run.inputs import make_sim_case
+from vkit.sim.case import CASE_ENV, SimCase
+from vkit.sim.harness import fast_test_args, run_native
+
+__all__ = ["TEST_MODULE", "WaveDump", "simulate"]
+
+TEST_MODULE = "vkit.sim.tb.entry"
+"""The cocotb test module that plays a SimCase clock by clock."""
+
+
+class WaveDump(NamedTuple):
+    """Where a wave rerun dumps, and the time window it keeps (ps from the start of the simulation)."""
+
+    file: Path
+    from_ps: int
+    to_ps: int
+
+
+def _test_kwargs(case: Case, simcase: SimCase, case_json: Path, build_dir: Path, sim_dir: Path,
+                 drive: str, wave: WaveDump | None) -> dict[str, Any]:
+    """``runner.test`` keywords for the case's drive mode (a wave rerun always drives clock by clock)."""
+    d = case.design
+    kwargs: dict[str, Any] = dict(
+        test_module=TEST_MODULE, hdl_toplevel=d.top, hdl_toplevel_lang=d.language,
+        build_dir=str(build_dir), test_dir=str(sim_dir),
+        extra_env={CASE_ENV: str(case_json)}, log_file=str(sim_dir / "sim.log"),
+        results_xml=str(sim_dir / "results.xml"),
+    )
+    if drive == "fast" and wave is None:
+        fast = fast_test_args(simcase, case.simulator)
+        fast["test_dir"] = fast["test_dir"] or str(build_dir)
+        kwargs.update(fast)
+    elif case.simulator == "ghdl":
+        kwargs["parameters"] = d.build_parameters(case.width, case.height)
+        kwargs["test_args"] = ["--std=08", f"--workdir={build_dir}"]
+        kwargs["timescale"] = TIMESCALE
+    if wave is not None and case.simulator == "ghdl":
+        # GHDL dumps the whole run as VCD; the wave rerun cuts it to the window afterwards
+        kwargs["plusargs"] = [f"--vcd={wave.file}"]  # a run option: cocotb puts plusargs after the unit
+    elif wave is not None:
+        # waves=True only makes vvp write FST; what is dumped, and when, is up to the window module
+        kwargs["waves"] = True
+        kwargs["plusargs"] = [f"+vkit_wave_file={wave.file}", f"+vkit_wave_from_ps={wave.from_ps}",
+                              f"+vkit_wave_to_ps={wave.to_ps}"]
+    return kwargs
+
+
+@contextmanager
+def _time_limit(timeout_s: float) -> Iterator[None]:
+    """cocotb's runner has no time limit; coreutils ``timeout`` bounds the simulator process."""
+    saved = os.environ.get("SIM_CMD_PREFIX")
+    os.environ["SIM_CMD_PREFIX"] = f"timeout -k 10 {max(1, int(timeout_s))}"
+    try:
+        yield
+    finally:
+        if saved is None:
+            os.environ.pop("SIM_CMD_PREFIX", None)
+        else:
+            os.environ["SIM_CMD_PREFIX"] = saved
+
+
+def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float, *,
+             wave: WaveDump | None = None, drive: str = "clock") -> Path:
+    """Write the SimCase, run the simulation of ``drive``, return the capture path (which may be missing).
+
+    Args:
+        case: the case.
+        build_dir: the build of :func:`vkit.run.builds.build_for_drive` (or ``build_wave_design``).
+        sim_dir: the case's run folder (frames, case.json, capture, sim.log).
+        frames: the input frames (:func:`vkit.run.inputs.make_frames`).
+        timeout_s: wall-clock limit of the simulator process, s.
+        wave: a dump and its window, for a rerun on a wave build (always clock by clock).
+        drive: ``"clock"``, ``"fast"`` or ``"native"``.
+
+    Raises:
+        ToolError: the simulator stopped (or ran out of time) before writing a capture.
+    """
+    simcase = make_sim_case(case, sim_dir, frames)
+    capture_file = Path(simcase.capture_file)
+    capture_file.unlink(missing_ok=True)
+    case_json = simcase.to_json(sim_dir / "case.json")
+    if drive == "native" and wave is None:
+        run_native(simcase, case.simulator, build_dir, timeout_s=timeout_s)
+        return capture_file
+    kwargs = _test_kwargs(case, simcase, Path(case_json), build_dir, sim_dir, drive, wave)
+    try:
+        with _time_limit(timeout_s), quiet_pytest_env():
+            get_runner(case.simulator).test(**kwargs)
+    except SystemExit as exc:
+        code = exc.code if isinstance(exc.code, int) else 1
+        if not capture_file.exists():
+            why = "exceeded timeout_s" if code == 124 else f"exited with code {code}"
+            raise ToolError(f"{case.simulator} {why} before writing a capture: "
+                            f"{first_error_line(sim_dir / 'sim.log')} (log: {sim_dir / 'sim.log'})") from None
+    return capture_file

@@ -272,7 +272,7 @@ def build_design(case: Case, cache: BuildCache) -> BuildOutcome:
 
 
 def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> BuildOutcome:
-    """Build (or reuse) the fast-path harness (:mod:`vkit.sim.harness`) around ``case``'s design.
+    """Build (or reuse) the fast-path harness (:mod:`vkit.sim.fast`) around ``case``'s design.
 
     The harness depends on the design, its parameters and the family only, so one build serves every
     image, timing, stall pattern and seed. ``native=True`` builds it as a plain executable (no cocotb:
@@ -285,7 +285,7 @@ def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> Bu
     """
     from cocotb_tools.runner import get_runner
 
-    from vkit.sim.harness import fast_build_plan, native_build, native_build_plan
+    from vkit.sim.fast import fast_build_plan, native_build, native_build_plan
 
     info = require(case.simulator)
     activate(info)
@@ -595,7 +595,7 @@ def _simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, ti
     capture_file.unlink(missing_ok=True)
     case_json = simcase.to_json(sim_dir / "case.json")
     if path == "native" and wave is None:
-        from vkit.sim.harness import run_native
+        from vkit.sim.fast import run_native
 
         run_native(simcase, case.simulator, build_dir, timeout_s=timeout_s)
         return capture_file
@@ -607,7 +607,7 @@ def _simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, ti
         results_xml=str(sim_dir / "results.xml"),
     )
     if path == "fast" and wave is None:
-        from vkit.sim.harness import fast_test_args
+        from vkit.sim.fast import fast_test_args
 
         fast = fast_test_args(simcase, case.simulator)
         fast["test_dir"] = fast["test_dir"] or str(build_dir)

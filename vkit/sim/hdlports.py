@@ -13,12 +13,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from vkit.core.errors import ConfigError
+from vkit.core.vocab import HDL_SUFFIXES, VERILOG_SUFFIXES, VHDL_SUFFIXES
 
 __all__ = [
     "Port",
     "HdlDesign",
-    "VERILOG_SUFFIXES",
-    "VHDL_SUFFIXES",
     "language_of",
     "list_designs",
     "find_design",
@@ -27,11 +26,6 @@ __all__ = [
     "ports_from_verilator",
 ]
 
-VERILOG_SUFFIXES: tuple[str, ...] = (".v", ".sv", ".vh", ".svh", ".vlog")
-"""File suffixes read as Verilog/SystemVerilog."""
-
-VHDL_SUFFIXES: tuple[str, ...] = (".vhd", ".vhdl")
-"""File suffixes read as VHDL."""
 
 _MAX_POW_EXPONENT = 1024
 
@@ -84,7 +78,7 @@ def language_of(path: str | Path) -> str:
         return "vhdl"
     raise ConfigError(
         f"HDL source {str(path)!r} has suffix {suffix or '(none)'!r}; use one of "
-        f"{', '.join(VERILOG_SUFFIXES + VHDL_SUFFIXES)}"
+        f"{', '.join(HDL_SUFFIXES)}"
     )
 
 

@@ -7,7 +7,7 @@ as in a real regression), per simulator (Icarus, Verilator):
   (a) the per-clock cocotb path (vkit.sim.tb.entry), Python on every clock;
   (b) the fast path (vkit.sim.tb.fast on vkit_fast_top): the harness makes its clock, plays and captures
       in HDL, Python waits once for done;
-  (b') the native fast path (vkit.sim.harness.run_native): the same vkit_fast_top built as a plain
+  (b') the native fast path (vkit.sim.fast.run_native): the same vkit_fast_top built as a plain
       executable (vvp / verilator --binary) and run as a subprocess, no cocotb at all;
   (c) the exported self-checking testbench (vkit.run.export), no Python at all.
 
@@ -38,7 +38,7 @@ import numpy as np
 
 from vkit.video.capture import Capture
 from vkit.run.export import export_case
-from vkit.sim.harness import fast_build_plan, fast_test_args, native_build, run_native
+from vkit.sim.fast import fast_build_plan, fast_test_args, native_build, run_native
 from vkit.model.pipeline import preset as spec_preset
 from vkit.model.pipeline import run_model
 from vkit.sim.simulators import activate, find, subprocess_env

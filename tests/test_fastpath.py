@@ -10,10 +10,12 @@ import numpy as np
 import pytest
 
 from vkit.video.capture import UNKNOWN, Capture
-from vkit.sim.capture_text import parse_capture_text
+from vkit.sim.fast.capture_file import parse_capture_text
 from vkit.core.errors import ConfigError
-from vkit.sim.harness import fast_build_plan, fast_test_args, scan_port_widths, verilog_harness
-from vkit.sim.stimulus import write_hex
+from vkit.sim.fast.build import fast_build_plan, fast_test_args
+from vkit.sim.fast.harness import verilog_harness
+from vkit.sim.hdlports import parse_ports
+from vkit.sim.fast.stimulus import write_hex
 from vkit.sim.case import CASE_ENV, SimCase
 
 HDL = Path(__file__).parent / "hdl_fast"
@@ -108,7 +110,7 @@ def _binary_records(events: list[tuple[int, str, int, int]], family: int, width:
     """Binary capture bytes built with Python's struct module (little-endian 32-bit words, as Verilog %u writes)."""
     import struct
 
-    from vkit.sim.harness import CAPTURE_MAGIC, capture_data_words
+    from vkit.sim.fast.wire import CAPTURE_MAGIC, capture_data_words
 
     nw = capture_data_words(width)
     out = struct.pack("<4I", CAPTURE_MAGIC, 1, family, width)
@@ -119,8 +121,8 @@ def _binary_records(events: list[tuple[int, str, int, int]], family: int, width:
 
 
 def test_binary_capture_gives_the_same_capture_as_text() -> None:
-    from vkit.sim.capture_text import parse_capture_binary
-    from vkit.sim.harness import CAPTURE_ROLES
+    from vkit.sim.fast.capture_file import parse_capture_binary
+    from vkit.sim.fast.wire import CAPTURE_ROLES
 
     text = "\n".join([
         "# vkit capture 1 video",
@@ -159,16 +161,17 @@ def test_hex_file_matches_python_formatting(tmp_path: Path) -> None:
 
 
 def test_port_widths_are_read_from_verilog_and_vhdl() -> None:
-    v = scan_port_widths([HDL / "fast_video_pass.v"], "fast_video_pass")
+    # The harness takes its bus widths from the one HDL port reader (vkit.sim.hdlports).
+    v = {p.name: p.width for p in parse_ports([HDL / "fast_video_pass.v"], "fast_video_pass")}
     assert v["in_data"] == 8 and v["out_data"] == 8 and v["out_de"] == 1
-    h = scan_port_widths([HDL / "fast_video_pass.vhd"], "fast_video_pass_vhd")
+    h = {p.name: p.width for p in parse_ports([HDL / "fast_video_pass.vhd"], "fast_video_pass_vhd")}
     assert h["in_data"] == 8 and h["out_vsync"] == 1
 
 
 def test_stimulus_data_matches_the_per_clock_source(tmp_path: Path) -> None:
     # The same seed must put the same garbage words on the bus as the per-clock source.
     pytest.importorskip("cocotb")
-    from vkit.sim.stimulus import video_schedule_and_words
+    from vkit.sim.fast.stimulus import video_schedule_and_words
     from vkit.sim.tb.video import VideoSource
 
     case = _video_case(tmp_path, stalls={"probability": 0.2, "max_length": 3, "seed": 4}, seed=9)
@@ -222,7 +225,7 @@ def test_binary_and_text_captures_of_one_run_are_identical(family: str, tmp_path
     from cocotb_tools.runner import get_runner
 
     from vkit.run.export import read_capture
-    from vkit.sim.stimulus import fast_run_dir
+    from vkit.sim.fast.stimulus import fast_run_dir
 
     if family == "video":
         case = _video_case(tmp_path, stalls={"probability": 0.2, "max_length": 3, "seed": 7})
@@ -304,7 +307,7 @@ def _run_per_clock(sim: str, case: SimCase, top: str, sources: list[Path], work:
 
 
 def test_harness_text_names_the_real_ports() -> None:
-    from vkit.sim.harness import HarnessSpec
+    from vkit.sim.fast.harness import HarnessSpec
 
     roles = dict(VIDEO_SIGNALS, in_data="pix_in", out_data="pix_out")
     text = verilog_harness(HarnessSpec("video", "my_core", roles, 24, 8))
@@ -401,7 +404,7 @@ def test_sample_cores_fast_path_equals_per_clock_path(design: str, sim: str, tmp
         assert fast.meta[key] == slow.meta[key], key
     if design == "edge_core":
         # The native run (same vkit_fast_top as a plain executable, no cocotb) gives the identical Capture.
-        from vkit.sim.harness import native_build, run_native
+        from vkit.sim.fast.native import native_build, run_native
 
         work = tmp_path / "fast"
         case = SimCase("video", dict(d["ports"]), str(work / "frames.npy"), str(tmp_path / "native" / "cap.npz"), 32,
@@ -490,7 +493,7 @@ def test_fast_and_per_clock_paths_give_the_same_verdict(design: str, bug: str | 
 
 
 def test_native_build_plan_commands_and_refusals(tmp_path: Path) -> None:
-    from vkit.sim.harness import native_build_plan, run_native
+    from vkit.sim.fast.native import native_build_plan, run_native
 
     plan = fast_build_plan("fast_video_pass", [HDL / "fast_video_pass.v"], None, None, {"BUG_X": 1}, "video",
                            VIDEO_SIGNALS, out_dir=tmp_path / "h")

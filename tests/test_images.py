@@ -11,7 +11,8 @@ import pytest
 from PIL import Image
 
 from vkit.core.errors import ConfigError
-from vkit.video.images import load_image, pack_rgb, save_image, to_uint8, unpack_rgb
+from vkit.video.formats import pack_rgb, unpack_rgb
+from vkit.video.images import load_image, save_image, to_uint8
 
 
 def _rng_image(shape: tuple[int, ...], seed: int = 1) -> np.ndarray:

@@ -141,7 +141,7 @@ def _config_error_line(simulate, top: str, case: SimCase, parameters: dict[str, 
 
 
 def _expected_words(frames: np.ndarray) -> np.ndarray:
-    from vkit.video.images import pack_rgb
+    from vkit.video.formats import pack_rgb
 
     return pack_rgb(frames).astype(np.int64) if frames.ndim == 4 else frames.astype(np.int64)
 
@@ -187,7 +187,7 @@ def test_sim_case_json_round_trip(tmp_path: Path) -> None:
 
 
 def test_sync_counts_per_vsync_period() -> None:
-    from vkit.sim.tb.video import sync_counts
+    from vkit.video.words import sync_counts
 
     # hsync edges at 1,3,5,7,9; vsync edges at 4 and 8: two hsyncs before the first, two between.
     assert sync_counts(np.array([1, 3, 5, 7, 9]), np.array([4, 8])) == [2, 2]
@@ -291,7 +291,7 @@ def test_misnamed_port_reports_one_line_with_ports(tmp_path: Path, simulate) -> 
     )
     line = _config_error_line(simulate, "video_passthrough", case)
     assert line.startswith("ConfigError: role 'in_data' -> port 'in_dta' not found")
-    assert "closest DUT port: 'in_data'" in line
+    assert "did you mean 'in_data'?" in line
     assert "out_hsync" in line and "in_valid" in line  # the DUT's ports are listed
     assert Capture.load(case.capture_file).meta["error"] == line
 

@@ -2,7 +2,10 @@
 
 from __future__ import annotations
 
-__all__ = ["DRIVE_MODES", "WAVE_MODES", "VERILOG_SUFFIXES", "VHDL_SUFFIXES", "HDL_SUFFIXES"]
+__all__ = ["PIXEL_FORMAT_BITS", "DRIVE_MODES", "WAVE_MODES", "VERILOG_SUFFIXES", "VHDL_SUFFIXES", "HDL_SUFFIXES"]
+
+PIXEL_FORMAT_BITS: dict[str, int] = {"gray8": 8, "rgb888": 24}
+"""Pixel formats a design's data bus carries, with the bits of one pixel: 8-bit gray, 8:8:8 RGB."""
 
 DRIVE_MODES: tuple[str, ...] = ("clock", "fast", "native")
 """How a case drives the design: ``clock`` (cocotb touches every clock), ``fast`` (the generated HDL

@@ -10,6 +10,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from vkit.core.errors import ConfigError
+from vkit.core.vocab import PIXEL_FORMAT_BITS
 from vkit.core.validate import check_keys, fail, want_bool, want_choice, want_int, want_table
 from vkit.model.fixedpoint import ROUNDING
 from vkit.model.kernels import KERNELS
@@ -43,7 +44,7 @@ __all__ = [
 WHERE = "pipeline spec"
 """What a spec error names as the place to edit (the spec file, or the ``spec`` table of a design)."""
 
-INPUTS = ("gray8", "rgb888")
+INPUTS = tuple(PIXEL_FORMAT_BITS)
 """Input formats: one 8-bit grey component, or 8-bit R, G, B."""
 FILTER_KINDS = (
     "sobel", "prewitt", "scharr", "custom", "box", "gaussian", "sharpen", "laplacian", "median", "min", "max",

@@ -22,7 +22,7 @@ from vkit.core.validate import want_choice
 from vkit.core.vocab import DRIVE_MODES
 from vkit.run.config import Case
 from vkit.sim.buildcache import BuildCache, BuildOutcome, BuildRequest
-from vkit.sim.harness import fast_build_plan, native_build, native_build_plan
+from vkit.sim.fast import fast_build_plan, native_build, native_build_plan
 from vkit.sim.simulators import activate, require
 
 __all__ = [
@@ -132,7 +132,7 @@ def build_design(case: Case, cache: BuildCache) -> BuildOutcome:
 
 
 def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> BuildOutcome:
-    """Build (or reuse) the fast-path harness (:mod:`vkit.sim.harness`) around ``case``'s design.
+    """Build (or reuse) the fast-path harness (:mod:`vkit.sim.fast`) around ``case``'s design.
 
     The harness depends on the design, its parameters and the family only, so one build serves every
     image, timing, stall pattern and seed. ``native=True`` builds it as a plain executable (no cocotb:

@@ -49,7 +49,9 @@ from vkit.core.validate import (
 )
 from vkit.core.vocab import DRIVE_MODES, VERILOG_SUFFIXES, VHDL_SUFFIXES, WAVE_MODES
 from vkit.model import pipeline
-from vkit.sim.signals import FAMILY_ROLES, PIXEL_FORMAT_BITS
+from vkit.sim.signals import FAMILY_ROLES
+from vkit.video.formats import PIXEL_FORMAT_BITS
+from vkit.video.words import BLANKING_MODES
 from vkit.sim.simulators import LANGUAGES, SIMULATORS
 from vkit.video.images import load_image
 from vkit.video.patterns import PATTERNS
@@ -641,7 +643,7 @@ _STIMULUS_FIELDS: dict[str, _Reader] = {
     "stalls": _parse_flows,
     "backpressure": _parse_flows,
     "gaps": _parse_flows,
-    "blanking": _choice(("random", "constant")),
+    "blanking": _choice(BLANKING_MODES),
     "blanking_value": _int_from(0),
     "convert": want_bool,
     "seeds": _seeds,

@@ -11,7 +11,8 @@ from vkit.core.validate import closest, fail
 from vkit.run.config import Case
 from vkit.sim.case import SimCase
 from vkit.sim.hdlports import Port, parse_ports
-from vkit.sim.signals import CONTROL_ROLES, PIXEL_FORMAT_BITS
+from vkit.sim.signals import CONTROL_ROLES
+from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.images import load_image
 from vkit.video.patterns import make_pattern
 

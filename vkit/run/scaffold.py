@@ -15,7 +15,8 @@ from vkit.core.errors import ConfigError
 from vkit.core.validate import fail, suggest
 from vkit.model.pipeline import PRESETS as SPEC_PRESETS
 from vkit.sim.hdlports import HdlDesign, Port, find_design, language_of, list_designs
-from vkit.sim.signals import FAMILY_ROLES, PIXEL_FORMAT_BITS
+from vkit.sim.signals import FAMILY_ROLES
+from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.sim.simulators import LANGUAGES, SIMULATORS
 
 __all__ = [

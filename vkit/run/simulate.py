@@ -15,7 +15,7 @@ from vkit.run.builds import TIMESCALE, first_error_line, quiet_pytest_env
 from vkit.run.config import Case
 from vkit.run.inputs import make_sim_case
 from vkit.sim.case import CASE_ENV, SimCase
-from vkit.sim.harness import fast_test_args, run_native
+from vkit.sim.fast import fast_test_args, run_native
 
 __all__ = ["TEST_MODULE", "WaveDump", "simulate"]
 

@@ -11,8 +11,11 @@ from typing import Any
 import numpy as np
 
 from vkit.core.errors import ConfigError
-from vkit.sim.signals import FAMILY_ROLES, PIXEL_FORMAT_BITS, SignalMap
+from vkit.core.validate import suggest
+from vkit.sim.signals import FAMILY_ROLES, SignalMap
+from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.timing import StallPattern, VideoTiming, tiny
+from vkit.video.words import BLANKING_MODES
 
 __all__ = ["SimCase", "CASE_ENV", "TIMEOUT_FACTOR", "TIMEOUT_MARGIN_CLOCKS", "error_file_for"]
 
@@ -104,10 +107,8 @@ class SimCase:
         if self.family not in FAMILY_ROLES:
             raise ConfigError(f"case family {self.family!r} is not known; use one of {', '.join(FAMILY_ROLES)}")
         if self.pixel_format not in PIXEL_FORMAT_BITS:
-            raise ConfigError(
-                f"case pixel_format {self.pixel_format!r} is not known; use one of {', '.join(PIXEL_FORMAT_BITS)}"
-            )
-        if self.blanking not in ("random", "constant"):
+            raise ConfigError(f"case pixel_format {self.pixel_format!r} is not known; {suggest(self.pixel_format, PIXEL_FORMAT_BITS)}")
+        if self.blanking not in BLANKING_MODES:
             raise ConfigError(f"case blanking {self.blanking!r}; use 'random' or 'constant'")
         for key in ("width", "height", "reset_cycles"):
             v = getattr(self, key)

@@ -13,12 +13,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from vkit.core.errors import ConfigError
+from vkit.core.vocab import HDL_SUFFIXES, VERILOG_SUFFIXES, VHDL_SUFFIXES
 
 __all__ = [
     "Port",
     "HdlDesign",
-    "VERILOG_SUFFIXES",
-    "VHDL_SUFFIXES",
     "language_of",
     "list_designs",
     "find_design",
@@ -27,11 +26,6 @@ __all__ = [
     "ports_from_verilator",
 ]
 
-VERILOG_SUFFIXES: tuple[str, ...] = (".v", ".sv", ".vh", ".svh", ".vlog")
-"""File suffixes read as Verilog/SystemVerilog."""
-
-VHDL_SUFFIXES: tuple[str, ...] = (".vhd", ".vhdl")
-"""File suffixes read as VHDL."""
 
 _MAX_POW_EXPONENT = 1024
 
@@ -84,7 +78,7 @@ def language_of(path: str | Path) -> str:
         return "vhdl"
     raise ConfigError(
         f"HDL source {str(path)!r} has suffix {suffix or '(none)'!r}; use one of "
-        f"{', '.join(VERILOG_SUFFIXES + VHDL_SUFFIXES)}"
+        f"{', '.join(HDL_SUFFIXES)}"
     )
 
 
@@ -457,11 +451,21 @@ def _v_strip_blocks(body: str) -> str:
 
 def _v_module(name: str, header: str, body: str, path: Path, overrides: Mapping[str, int]) -> HdlDesign:
     params: dict[str, int | None] = {}
+    port_text, statements = _v_header(name, header, body, path, params, overrides)
+    items = [i.strip() for i in _split_top(port_text, ",")] if port_text.strip() else []
+    ansi = any(re.match(r"(input|output|inout|ref)\b", i) or re.match(_IDENT + r"\s*\.\s*" + _IDENT + r"\s+" + _IDENT, i) for i in items)
+    if ansi:
+        return HdlDesign(name, "verilog", path, _v_ansi_ports(name, items, path, params), params)
+    return HdlDesign(name, "verilog", path, _v_body_ports(name, items, statements, path, params), params)
+
+
+def _v_header(name: str, header: str, body: str, path: Path, params: dict[str, int | None],
+              overrides: Mapping[str, int]) -> tuple[str, list[str]]:
+    """Read the parameters (header and body) into ``params``; return the port list text and the body statements."""
     pos = 0
     m_imp = re.match(r"\s*(?:import\s+[^;]*;\s*)*", header)
     if m_imp:
         pos = m_imp.end()
-    port_text = ""
     rest = header[pos:].lstrip()
     if rest.startswith("#"):
         open_at = rest.find("(")
@@ -470,45 +474,50 @@ def _v_module(name: str, header: str, body: str, path: Path, overrides: Mapping[
             raise ConfigError(f"{path}: module {name}: unbalanced parentheses in the parameter list; fix the header")
         _v_params(_split_top(rest[open_at + 1 : end - 1], ","), params, overrides)
         rest = rest[end:].lstrip()
-    clean_body = _v_strip_blocks(body)
-    statements = _split_top(clean_body, ";")
+    statements = _split_top(_v_strip_blocks(body), ";")
     # Body parameters can set widths of non-ANSI ports and of ANSI ports declared with later localparams.
-    body_params = [s for s in statements if re.match(r"\s*(parameter|localparam)\b", s)]
-    for s in body_params:
-        _v_params(_split_top(re.sub(r"^\s*(parameter|localparam)\b", r"\1 ", s), ","), params, overrides)
-    if rest.startswith("("):
-        end = _balanced(rest, 0)
-        if end < 0:
-            raise ConfigError(f"{path}: module {name}: unbalanced parentheses in the port list; fix the header")
-        port_text = rest[1 : end - 1]
-    items = [i.strip() for i in _split_top(port_text, ",")] if port_text.strip() else []
-    ansi = any(re.match(r"(input|output|inout|ref)\b", i) or re.match(_IDENT + r"\s*\.\s*" + _IDENT + r"\s+" + _IDENT, i) for i in items)
+    for st in statements:
+        if re.match(r"\s*(parameter|localparam)\b", st):
+            _v_params(_split_top(re.sub(r"^\s*(parameter|localparam)\b", r"\1 ", st), ","), params, overrides)
+    if not rest.startswith("("):
+        return "", statements
+    end = _balanced(rest, 0)
+    if end < 0:
+        raise ConfigError(f"{path}: module {name}: unbalanced parentheses in the port list; fix the header")
+    return rest[1 : end - 1], statements
+
+
+def _v_ansi_ports(name: str, items: list[str], path: Path, params: Mapping[str, int | None]) -> list[Port]:
+    """Ports declared in the header (``input wire [7:0] a, b``): a bare name takes the declaration before it."""
     ports: list[Port] = []
-    if ansi:
-        prev: _VDecl | None = None
-        for item in items:
-            item = item.split("=", 1)[0].strip()
-            split = _split_name(item)
-            if split is None:
-                raise ConfigError(f"{path}: module {name}: cannot read port declaration {item!r}; simplify it")
-            pre, pname, unpacked = split
-            if re.search(r"\.\s*$", pre) or re.match(r"^\s*" + _IDENT + r"\s*\.\s*" + _IDENT + r"\s*$", pre):
-                ports.append(Port(pname, "interface", None, False, pre.strip()))
-                prev = None
-                continue
-            if not pre.strip() and prev is not None:
-                decl = prev
-            else:
-                decl = _v_decl_prefix(pre, params)
-                if decl.direction is None:
-                    decl.direction = prev.direction if prev is not None else "inout"
-            prev = decl
-            width, expr = decl.width, decl.width_expr
-            if unpacked:
-                width, expr = None, (expr + " " + unpacked).strip() + " (unpacked array)"
-            ports.append(Port(pname, decl.direction or "inout", width, decl.signed, expr))
-        return HdlDesign(name, "verilog", path, ports, params)
-    # Non-ANSI: names in the header, directions and types in the body.
+    prev: _VDecl | None = None
+    for item in items:
+        item = item.split("=", 1)[0].strip()
+        split = _split_name(item)
+        if split is None:
+            raise ConfigError(f"{path}: module {name}: cannot read port declaration {item!r}; simplify it")
+        pre, pname, unpacked = split
+        if re.search(r"\.\s*$", pre) or re.match(r"^\s*" + _IDENT + r"\s*\.\s*" + _IDENT + r"\s*$", pre):
+            ports.append(Port(pname, "interface", None, False, pre.strip()))
+            prev = None
+            continue
+        if not pre.strip() and prev is not None:
+            decl = prev
+        else:
+            decl = _v_decl_prefix(pre, params)
+            if decl.direction is None:
+                decl.direction = prev.direction if prev is not None else "inout"
+        prev = decl
+        width, expr = decl.width, decl.width_expr
+        if unpacked:
+            width, expr = None, (expr + " " + unpacked).strip() + " (unpacked array)"
+        ports.append(Port(pname, decl.direction or "inout", width, decl.signed, expr))
+    return ports
+
+
+def _v_body_ports(name: str, items: list[str], statements: list[str], path: Path,
+                  params: Mapping[str, int | None]) -> list[Port]:
+    """Non-ANSI ports: names in the header, directions and types in the body."""
     order: list[str] = []
     for item in items:
         m = re.match(r"^\.\s*(" + _IDENT + r")\s*\(", item)
@@ -518,26 +527,8 @@ def _v_module(name: str, header: str, body: str, path: Path, overrides: Mapping[
             order.append(item)
         elif item:
             raise ConfigError(f"{path}: module {name}: cannot read port list item {item!r}; simplify it")
-    dirs: dict[str, _VDecl] = {}
-    types: dict[str, _VDecl] = {}
-    for s in statements:
-        s = s.strip()
-        m = re.match(r"(input|output|inout|wire|reg|logic|bit|integer|int|var|tri)\b", s)
-        if not m:
-            continue
-        parts = _split_top(s, ",")
-        head = parts[0]
-        hm = _split_name(head.split("=", 1)[0])
-        if hm is None:
-            continue
-        decl = _v_decl_prefix(hm[0], params)
-        names = [hm[1]] + [
-            mm.group(1) for p in parts[1:] if (mm := re.match(r"\s*(" + _IDENT + r")", p))
-        ]
-        target = dirs if decl.direction else types
-        for n in names:
-            if n in order and n not in target:
-                target[n] = decl
+    dirs, types = _v_body_decls(statements, order, params)
+    ports: list[Port] = []
     for pname in order:
         decl = dirs.get(pname)
         if decl is None:
@@ -551,7 +542,29 @@ def _v_module(name: str, header: str, body: str, path: Path, overrides: Mapping[
         if t is not None:
             signed = signed or t.signed
         ports.append(Port(pname, decl.direction or "inout", width, signed, expr))
-    return HdlDesign(name, "verilog", path, ports, params)
+    return ports
+
+
+def _v_body_decls(statements: list[str], order: list[str], params: Mapping[str, int | None]
+                  ) -> tuple[dict[str, _VDecl], dict[str, _VDecl]]:
+    """The body's direction declarations and net/variable type declarations of the named ports (first wins)."""
+    dirs: dict[str, _VDecl] = {}
+    types: dict[str, _VDecl] = {}
+    for st in statements:
+        st = st.strip()
+        if not re.match(r"(input|output|inout|wire|reg|logic|bit|integer|int|var|tri)\b", st):
+            continue
+        parts = _split_top(st, ",")
+        hm = _split_name(parts[0].split("=", 1)[0])
+        if hm is None:
+            continue
+        decl = _v_decl_prefix(hm[0], params)
+        names = [hm[1]] + [mm.group(1) for p in parts[1:] if (mm := re.match(r"\s*(" + _IDENT + r")", p))]
+        target = dirs if decl.direction else types
+        for n in names:
+            if n in order and n not in target:
+                target[n] = decl
+    return dirs, types
 
 
 def _verilog_designs(path: Path, text: str, overrides: Mapping[str, int], defines: Mapping[str, str]) -> list[HdlDesign]:
@@ -735,12 +748,7 @@ def list_designs(
     """
     if isinstance(paths, (str, Path)):
         paths = [paths]
-    if defines is None:
-        macro_map: dict[str, str] = {}
-    elif isinstance(defines, Mapping):
-        macro_map = {str(k): str(v) for k, v in defines.items()}
-    else:
-        macro_map = {str(k): "" for k in defines}
+    macro_map = _macro_map(defines)
     overrides = dict(parameters or {})
     designs: list[HdlDesign] = []
     for p in paths:
@@ -847,24 +855,33 @@ def ports_from_verilator(
     Raises:
         ToolError: Verilator is missing or rejects the sources (its first error line is quoted).
     """
+    if isinstance(paths, (str, Path)):
+        paths = [paths]
+    return _ports_of_tree(_verilator_tree([Path(p) for p in paths], top, parameters, defines, timeout_s), top)
+
+
+def _macro_map(defines: Mapping[str, str] | Iterable[str] | None) -> dict[str, str]:
+    """Macros as name -> value (a bare name defines it empty)."""
+    if defines is None:
+        return {}
+    if isinstance(defines, Mapping):
+        return {str(k): str(v) for k, v in defines.items()}
+    return {str(k): "" for k in defines}
+
+
+def _verilator_tree(paths: Sequence[Path], top: str, parameters: Mapping[str, int] | None,
+                    defines: Mapping[str, str] | Iterable[str] | None, timeout_s: float) -> dict[str, object]:
+    """Verilator's ``--json-only`` tree of ``top``."""
     from vkit.core.errors import ToolError
     from vkit.sim.simulators import require, subprocess_env
 
     info = require("verilator")
-    if isinstance(paths, (str, Path)):
-        paths = [paths]
-    if defines is None:
-        macro_items: list[tuple[str, str]] = []
-    elif isinstance(defines, Mapping):
-        macro_items = [(str(k), str(v)) for k, v in defines.items()]
-    else:
-        macro_items = [(str(k), "") for k in defines]
     exe = str(Path(info.bin_dir or "") / "verilator") if info.bin_dir else "verilator"
     with tempfile.TemporaryDirectory(prefix="vkit-ports-") as tmp:
         cmd = [exe, "--json-only", "-Wno-fatal", "-Wno-lint", "-Wno-style", "--top-module", top, "-Mdir", tmp]
         cmd += [f"-G{k}={int(v)}" for k, v in (parameters or {}).items()]
-        cmd += [f"-D{k}={v}" if v else f"-D{k}" for k, v in macro_items]
-        cmd += [str(Path(p)) for p in paths]
+        cmd += [f"-D{k}={v}" if v else f"-D{k}" for k, v in _macro_map(defines).items()]
+        cmd += [str(p) for p in paths]
         try:
             proc = subprocess.run(cmd, capture_output=True, text=True, env=subprocess_env(info), timeout=timeout_s, check=False)
         except subprocess.TimeoutExpired:
@@ -875,27 +892,29 @@ def ports_from_verilator(
         tree_files = list(Path(tmp).glob("*.tree.json"))
         if not tree_files:
             raise ToolError(f"verilator --json-only wrote no tree for {top!r}; check the Verilator version (>= 5.036)")
-        tree = json.loads(tree_files[0].read_text())
+        return json.loads(tree_files[0].read_text())
+
+
+def _index_nodes(node: object, nodes: dict[str, Mapping[str, object]]) -> None:
+    """Every node of the tree that has an address, by address."""
+    if isinstance(node, dict):
+        if "addr" in node:
+            nodes[str(node["addr"])] = node
+        for v in node.values():
+            _index_nodes(v, nodes)
+    elif isinstance(node, list):
+        for v in node:
+            _index_nodes(v, nodes)
+
+
+def _ports_of_tree(tree: dict[str, object], top: str) -> list[Port]:
+    """The ports of ``top`` in a Verilator JSON tree, in declaration order."""
     nodes: dict[str, Mapping[str, object]] = {}
-    ordered: list[Mapping[str, object]] = []
-
-    def _walk(node: object) -> None:
-        if isinstance(node, dict):
-            if "addr" in node:
-                nodes[str(node["addr"])] = node
-            for v in node.values():
-                _walk(v)
-        elif isinstance(node, list):
-            for v in node:
-                _walk(v)
-
-    _walk(tree)
-    ordered = []
+    _index_nodes(tree, nodes)
     modules = [m for m in tree.get("modulesp", []) if isinstance(m, dict) and m.get("type") == "MODULE"]
     top_mod = next((m for m in modules if m.get("origName") == top or m.get("name") == top), modules[0] if modules else None)
-    for stmt in (top_mod or {}).get("stmtsp", []):
-        if isinstance(stmt, dict) and stmt.get("type") == "VAR" and stmt.get("direction") not in (None, "NONE"):
-            ordered.append(stmt)
+    ordered = [stmt for stmt in (top_mod or {}).get("stmtsp", [])
+               if isinstance(stmt, dict) and stmt.get("type") == "VAR" and stmt.get("direction") not in (None, "NONE")]
     ports: list[Port] = []
     seen: set[str] = set()
     for var in ordered:

@@ -2,12 +2,13 @@
 
 from __future__ import annotations
 
-import difflib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
 from vkit.core.errors import ConfigError
+from vkit.core.validate import suggest
+from vkit.video.formats import PIXEL_FORMAT_BITS, pixel_bits
 
 __all__ = [
     "FAMILY_ROLES",
@@ -63,20 +64,6 @@ CONTROL_ROLES = frozenset(
     }
 )
 """Roles that must be 1-bit ports."""
-
-PIXEL_FORMAT_BITS: dict[str, int] = {"gray8": 8, "rgb888": 24}
-"""Input data bus bits each pixel format needs (rgb888 packs R<<16 | G<<8 | B)."""
-
-
-def pixel_bits(pixel_format: str) -> int:
-    """Bits of the input data bus needed by ``pixel_format`` ("gray8" -> 8, "rgb888" -> 24)."""
-    try:
-        return PIXEL_FORMAT_BITS[pixel_format]
-    except KeyError:
-        raise ConfigError(
-            f"pixel_format {pixel_format!r} is not known; use one of {', '.join(sorted(PIXEL_FORMAT_BITS))}"
-        ) from None
-
 
 def _is_value_handle(handle: Any) -> bool:
     """True for handles that carry a value (nets, regs, ports), False for scopes and instances."""
@@ -172,8 +159,7 @@ class SignalMap:
             for p in ports:
                 if p.lower() == name.lower():
                     return dut._get(p) if hasattr(dut, "_get") else getattr(dut, p), ports
-        close = difflib.get_close_matches(name, ports, n=1, cutoff=0.0)
-        hint = f"closest DUT port: {close[0]!r}" if close else "the DUT has no ports"
+        hint = suggest(name, ports) if ports else "the DUT has no ports"
         dut_name = getattr(dut, "_name", "dut")
         raise ConfigError(
             f"role {role!r} -> port {name!r} not found in DUT {dut_name!r}; {hint}; "

@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from vkit.core.errors import ConfigError, ToolError
+from vkit.core.validate import suggest
 
 __all__ = [
     "SIMULATORS",
@@ -75,11 +76,7 @@ class SimulatorInfo:
 
 def _check_name(name: str) -> str:
     if name not in SIMULATORS:
-        import difflib
-
-        close = difflib.get_close_matches(str(name), list(SIMULATORS), n=1, cutoff=0.5)
-        hint = f"did you mean {close[0]!r}? " if close else ""
-        raise ConfigError(f"unknown simulator {name!r}; {hint}vkit drives {', '.join(SIMULATORS)}")
+        raise ConfigError(f"unknown simulator {name!r}; {suggest(name, SIMULATORS)}")
     return name
 
 

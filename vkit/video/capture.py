@@ -14,10 +14,13 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["UNKNOWN", "Capture", "CaptureBuilder", "FrameView"]
+__all__ = ["UNKNOWN", "MAX_EVENTS", "Capture", "CaptureBuilder", "FrameView"]
 
 UNKNOWN = -1
 """Pixel value stored for a sample whose data bus carried X or Z."""
+
+MAX_EVENTS = 1000
+"""At most this many entries are kept in a capture's event list (xz_control, de_in_blanking); the rest are counted."""
 
 
 @dataclass

@@ -11,6 +11,7 @@ import numpy as np
 from PIL import Image, UnidentifiedImageError
 
 from vkit.core.errors import ConfigError
+from vkit.video.formats import pack_rgb, unpack_rgb  # their home is formats; kept importable here
 
 __all__ = ["DEFAULT_MAX_PIXELS", "load_image", "save_image", "to_uint8", "pack_rgb", "unpack_rgb"]
 
@@ -263,36 +264,3 @@ def to_uint8(array: np.ndarray, lo: float, hi: float) -> np.ndarray:
     a = np.asarray(array, dtype=np.float64)
     scaled = np.floor((a - lo) * (255.0 / (float(hi) - float(lo))) + 0.5)
     return np.clip(scaled, 0, 255).astype(np.uint8)
-
-
-def pack_rgb(rgb: np.ndarray) -> np.ndarray:
-    """Pack 8:8:8 RGB into pixel-bus words: ``R << 16 | G << 8 | B`` (red in bits 23..16, blue in 7..0).
-
-    Args:
-        rgb: ``(..., 3)`` integer array with values 0..255, channel order R, G, B.
-
-    Returns:
-        ``uint32`` array of shape ``rgb.shape[:-1]``.
-    """
-    a = np.asarray(rgb)
-    if a.ndim < 1 or a.shape[-1] != 3:
-        raise ConfigError(f"pack_rgb: shape {a.shape} has no trailing axis of 3 (R, G, B); pass (..., 3)")
-    if not np.issubdtype(a.dtype, np.integer) or (a.size and (a.min() < 0 or a.max() > 255)):
-        raise ConfigError("pack_rgb: channels must be integers in 0..255; scale with vkit.video.images.to_uint8 first")
-    w = a.astype(np.uint32)
-    return (w[..., 0] << 16) | (w[..., 1] << 8) | w[..., 2]
-
-
-def unpack_rgb(words: np.ndarray) -> np.ndarray:
-    """Split pixel-bus words ``R << 16 | G << 8 | B`` into a ``(..., 3)`` uint8 R, G, B array.
-
-    Raises:
-        ConfigError: a word is negative or has bits above bit 23 set.
-    """
-    w = np.asarray(words)
-    if not np.issubdtype(w.dtype, np.integer):
-        raise ConfigError(f"unpack_rgb: dtype {w.dtype} is not an integer type; pass 24-bit integer words")
-    if w.size and (w.min() < 0 or w.max() > 0xFFFFFF):
-        raise ConfigError("unpack_rgb: words must be in 0..0xFFFFFF (24-bit 8:8:8 RGB); mask or check the bus width")
-    w = w.astype(np.uint32)
-    return np.stack([(w >> 16) & 0xFF, (w >> 8) & 0xFF, w & 0xFF], axis=-1).astype(np.uint8)

@@ -215,45 +215,69 @@ def conveyor(height: int, width: int, seed: int = 0, rgb: bool = True) -> np.nda
     """
     _check_size(height, width)
     rng = np.random.default_rng(seed)
-    h, w = int(height), int(width)
-    s = float(min(h, w))
-    ys = np.arange(h, dtype=np.float32)[:, None]
-    xs = np.arange(w, dtype=np.float32)[None, :]
-    img = np.empty((h, w, 3), dtype=np.float32)
+    sc = _Scene(int(height), int(width))
+    sc.belt_top = 0.15 * sc.h + rng.uniform(-0.02, 0.02) * sc.h
+    sc.belt_bot = 0.85 * sc.h + rng.uniform(-0.02, 0.02) * sc.h
+    sc.rail = max(1.5, 0.045 * sc.h)
+    _draw_floor(sc, rng)
+    _draw_belt(sc, rng)
+    _draw_rails(sc)
+    parcels = _place_parcels(sc, rng)
+    _draw_shadows(sc, parcels)
+    for parcel in parcels:
+        _draw_parcel(sc, parcel)
+    return _camera(sc, rng, rgb)
 
-    belt_top = 0.15 * h + rng.uniform(-0.02, 0.02) * h
-    belt_bot = 0.85 * h + rng.uniform(-0.02, 0.02) * h
-    rail = max(1.5, 0.045 * h)
 
-    # floor: painted concrete with slow mottling and a yellow safety line on each side
+class _Scene:
+    """The conveyor picture being drawn: float RGB canvas, coordinate grids and the belt's place."""
+
+    def __init__(self, h: int, w: int) -> None:
+        self.h, self.w = h, w
+        self.s = float(min(h, w))
+        self.ys = np.arange(h, dtype=np.float32)[:, None]
+        self.xs = np.arange(w, dtype=np.float32)[None, :]
+        self.img = np.empty((h, w, 3), dtype=np.float32)
+        self.belt_top = self.belt_bot = self.rail = 0.0
+
+
+def _draw_floor(sc: _Scene, rng: np.random.Generator) -> None:
+    """Painted concrete with slow mottling and a yellow safety line on each side of the belt."""
+    h, w, ys = sc.h, sc.w, sc.ys
     mottle = _smooth_profile(rng, w, 7)[None, :] * 0.5 + _smooth_profile(rng, h, 5)[:, None] * 0.5
     floor = np.array([78, 82, 78], dtype=np.float32)
-    img[:] = floor + (6.0 * mottle)[:, :, None]
-    line_off = rail + max(1.0, 0.04 * h)
+    sc.img[:] = floor + (6.0 * mottle)[:, :, None]
+    line_off = sc.rail + max(1.0, 0.04 * h)
     line_w = max(1.0, 0.018 * h)
-    for edge, sign in ((belt_top, -1.0), (belt_bot, 1.0)):
+    for edge, sign in ((sc.belt_top, -1.0), (sc.belt_bot, 1.0)):
         centre = edge + sign * (line_off + line_w)
         rs = _rows(centre - line_w, centre + line_w, h)
         a = np.clip(line_w / 2 - np.abs(ys[rs] - centre) + 0.5, 0.0, 1.0)[:, :, None]
-        img[rs] = img[rs] * (1 - a) + np.array([200, 170, 40], dtype=np.float32) * a
+        sc.img[rs] = sc.img[rs] * (1 - a) + np.array([200, 170, 40], dtype=np.float32) * a
 
-    # belt: dark rubber, ribs across the direction of travel, streaks along it
+
+def _draw_belt(sc: _Scene, rng: np.random.Generator) -> None:
+    """Dark rubber, ribs across the direction of travel, streaks along it."""
+    h, w, ys, xs = sc.h, sc.w, sc.ys, sc.xs
     period = max(4.0, w / 48.0)
     phase = rng.uniform(0, period)
     rib = (0.5 + 0.5 * np.cos(2 * np.pi * (xs + phase) / period)) ** 6
     streak = _smooth_profile(rng, h, max(2, h // 6))[:, None]
-    rs = _rows(belt_top, belt_bot, h)
-    on_belt = ((ys[rs] >= belt_top) & (ys[rs] < belt_bot)).astype(np.float32)[:, :, None]
+    rs = _rows(sc.belt_top, sc.belt_bot, h)
+    on_belt = ((ys[rs] >= sc.belt_top) & (ys[rs] < sc.belt_bot)).astype(np.float32)[:, :, None]
     belt_level = 50.0 + 14.0 * rib + 4.0 * streak[rs]
     belt = belt_level[:, :, None] + np.array([0.0, 2.0, 5.0], dtype=np.float32)
-    img[rs] = img[rs] * (1 - on_belt) + belt * on_belt
+    sc.img[rs] = sc.img[rs] * (1 - on_belt) + belt * on_belt
 
-    # side rails: brushed metal, rounded shading, bolts at a fixed pitch
-    pitch = max(6.0, w / 11.0)
+
+def _draw_rails(sc: _Scene) -> None:
+    """Side rails of brushed metal: rounded shading, bolts at a fixed pitch."""
+    rail, xs = sc.rail, sc.xs
+    pitch = max(6.0, sc.w / 11.0)
     bolt_r = max(0.8, rail * 0.22)
-    for top in (belt_top - rail, belt_bot):
-        rs = _rows(top, top + rail, h)
-        ys_all, ys = ys, ys[rs]
+    for top in (sc.belt_top - rail, sc.belt_bot):
+        rs = _rows(top, top + rail, sc.h)
+        ys = sc.ys[rs]
         centre = top + rail / 2
         t = np.clip((ys - centre) / (rail / 2), -1.0, 1.0)
         inside = np.clip(rail / 2 - np.abs(ys - centre) + 0.5, 0.0, 1.0)[:, :, None]
@@ -264,99 +288,118 @@ def conveyor(height: int, width: int, seed: int = 0, rgb: bool = True) -> np.nda
         bolt = np.clip(bolt_r - d + 0.5, 0.0, 1.0)
         metal = metal * (1 - bolt) + (95.0 + 60.0 * np.clip(-(bx + (ys - centre)) / (bolt_r + 1e-6), 0, 1)) * bolt
         metal3 = metal[:, :, None] + np.array([0.0, 2.0, 6.0], dtype=np.float32)
-        img[rs] = img[rs] * (1 - inside) + metal3 * inside
-        ys = ys_all
+        sc.img[rs] = sc.img[rs] * (1 - inside) + metal3 * inside
 
-    # parcels: one per slot along the belt, turned a little
+
+def _place_parcels(sc: _Scene, rng: np.random.Generator) -> list[tuple[Any, ...]]:
+    """Three to six parcels, one per slot along the belt, turned a little: (cx, cy, half_u, half_v, theta, colour, seed)."""
     n = int(rng.integers(3, 7))
-    belt_h = belt_bot - belt_top
-    slots = np.linspace(0.03 * w, 0.97 * w, n + 1)
+    belt_h = sc.belt_bot - sc.belt_top
+    slots = np.linspace(0.03 * sc.w, 0.97 * sc.w, n + 1)
     parcels = []
     for i in range(n):
         sw = slots[i + 1] - slots[i]
         a = sw * rng.uniform(0.55, 0.85)
         b = min(belt_h * rng.uniform(0.35, 0.7), belt_h * 0.8)
         cx = (slots[i] + slots[i + 1]) / 2 + rng.uniform(-1, 1) * (sw - a) / 3
-        cy = (belt_top + belt_bot) / 2 + rng.uniform(-1, 1) * (belt_h - b) / 3
+        cy = (sc.belt_top + sc.belt_bot) / 2 + rng.uniform(-1, 1) * (belt_h - b) / 3
         theta = rng.uniform(-0.26, 0.26)
         colour = _CARDBOARD[rng.integers(len(_CARDBOARD))] + rng.uniform(-8, 8, size=3).astype(np.float32)
         parcels.append((cx, cy, a / 2, b / 2, theta, colour, rng.integers(0, 2**31)))
+    return parcels
 
-    def local(cx: float, cy: float, half_u: float, half_v: float, theta: float, grow: float):
-        r = np.hypot(half_u, half_v) + grow + 1.0
-        y0, y1 = max(0, int(cy - r)), min(h, int(cy + r) + 2)
-        x0, x1 = max(0, int(cx - r)), min(w, int(cx + r) + 2)
-        if y0 >= y1 or x0 >= x1:
-            return None
-        yy = ys[y0:y1] - cy
-        xx = xs[:, x0:x1] - cx
-        c, sn = np.cos(theta), np.sin(theta)
-        u = xx * c + yy * sn
-        v = -xx * sn + yy * c
-        return (slice(y0, y1), slice(x0, x1)), u, v
 
-    soft = max(1.0, 0.035 * s)
-    off_x, off_y = 0.018 * s, 0.028 * s
+def _local(sc: _Scene, cx: float, cy: float, half_u: float, half_v: float, theta: float, grow: float
+           ) -> tuple[tuple[slice, slice], np.ndarray, np.ndarray] | None:
+    """The canvas box around a turned rectangle and its (u, v) coordinates there; None when off the canvas."""
+    r = np.hypot(half_u, half_v) + grow + 1.0
+    y0, y1 = max(0, int(cy - r)), min(sc.h, int(cy + r) + 2)
+    x0, x1 = max(0, int(cx - r)), min(sc.w, int(cx + r) + 2)
+    if y0 >= y1 or x0 >= x1:
+        return None
+    yy = sc.ys[y0:y1] - cy
+    xx = sc.xs[:, x0:x1] - cx
+    c, sn = np.cos(theta), np.sin(theta)
+    return (slice(y0, y1), slice(x0, x1)), xx * c + yy * sn, -xx * sn + yy * c
+
+
+def _draw_shadows(sc: _Scene, parcels: list[tuple[Any, ...]]) -> None:
+    """A soft shadow to the lower right of every parcel."""
+    soft = max(1.0, 0.035 * sc.s)
+    off_x, off_y = 0.018 * sc.s, 0.028 * sc.s
     for cx, cy, hu, hv, theta, _, _ in parcels:
-        got = local(cx + off_x, cy + off_y, hu, hv, theta, soft)
+        got = _local(sc, cx + off_x, cy + off_y, hu, hv, theta, soft)
         if got is None:
             continue
         box, u, v = got
         shade = 0.55 * _box_alpha(u, v, hu, hv, soft * 2)
-        img[box] *= (1 - shade)[:, :, None]
+        sc.img[box] *= (1 - shade)[:, :, None]
 
-    for cx, cy, hu, hv, theta, colour, pseed in parcels:
-        got = local(cx, cy, hu, hv, theta, 1.0)
-        if got is None:
-            continue
-        box, u, v = got
-        prng = np.random.default_rng(pseed)
-        cover = _box_alpha(u, v, hu, hv, 1.0)[:, :, None]
-        edge = np.minimum(hu - np.abs(u), hv - np.abs(v))
-        bevel = np.clip(edge / max(1.0, 0.02 * s), 0.0, 1.0)
-        light = 1.0 + 0.06 * (-u / hu - v / hv) / 2
-        body = colour * ((0.82 + 0.18 * bevel) * light)[:, :, None]
-        # the flap seam under the tape, then the tape strip along the parcel
-        tape_half = max(0.75, hv * prng.uniform(0.14, 0.22))
-        tape_colour = colour * 0.55 + np.array([215, 185, 135], dtype=np.float32) * 0.45 + 12.0
-        ta = np.clip(tape_half - np.abs(v) + 0.5, 0.0, 1.0)[:, :, None]
-        body = body * (1 - ta) + tape_colour * ((0.9 + 0.1 * bevel) * light)[:, :, None] * ta
-        seam = np.clip(0.6 - np.abs(v), 0.0, 1.0)[:, :, None] * 0.25
-        body = body * (1 - seam)
-        # shipping label on one side of the tape, with a barcode block and two lines of print
-        side = 1.0 if prng.random() < 0.5 else -1.0
-        margin = max(1.0, 0.08 * hv)
-        room = hv - tape_half - 2 * margin
-        lw = 2 * hu * prng.uniform(0.3, 0.45)
-        lh = room * prng.uniform(0.6, 0.9)
-        if lh >= 3.0 and lw >= 4.0:
-            lu0 = prng.uniform(-hu + margin, hu - margin - lw)
-            lv_mid = side * (tape_half + margin + lh / 2)
-            lu = u - (lu0 + lw / 2)
-            lv = (v - lv_mid) * side  # grows away from the tape
-            la = _box_alpha(lu, lv, lw / 2, lh / 2, 1.0)[:, :, None]
-            paper = np.array([238, 236, 228], dtype=np.float32)
-            pad = max(0.5, 0.08 * min(lw, lh))
-            bar_u0 = -lw / 2 + pad
-            module = max(1.0, (lw - 2 * pad) / 64.0)
-            bits = prng.integers(0, 2, size=int((lw - 2 * pad) / module) + 2)
-            bits[0] = 1
-            idx = np.clip(((lu - bar_u0) / module).astype(np.int32), 0, len(bits) - 1)
-            in_bars = (np.abs(lu) <= lw / 2 - pad) & (lv >= -lh / 2 + pad) & (lv <= -lh / 2 + pad + 0.55 * lh)
-            ink = (in_bars & (bits[idx] == 1)).astype(np.float32)
-            for frac in (0.72, 0.86):
-                row_v = -lh / 2 + frac * lh
-                glyph = max(1.0, 2.5 * module)
-                chars = prng.integers(0, 2, size=int(lw / glyph) + 2)
-                gidx = np.clip(((lu + lw / 2) / glyph).astype(np.int32), 0, len(chars) - 1)
-                text = (np.abs(lv - row_v) <= max(0.5, 0.04 * lh)) & (np.abs(lu) <= lw / 2 - pad)
-                ink = np.maximum(ink, (text & (chars[gidx] == 1)).astype(np.float32) * 0.8)
-            label = paper * (1 - ink[:, :, None]) + np.float32(28.0) * ink[:, :, None]
-            body = body * (1 - la) + label * light[:, :, None] * la
-        img[box] = img[box] * (1 - cover) + body * cover
 
-    # optics and sensor: vignetting, then Gaussian noise
-    r2 = ((xs - w / 2) / (w / 2 + 1e-6)) ** 2 + ((ys - h / 2) / (h / 2 + 1e-6)) ** 2
+def _draw_parcel(sc: _Scene, parcel: tuple[Any, ...]) -> None:
+    """One parcel: bevelled cardboard, the flap seam under a tape strip, and a shipping label."""
+    cx, cy, hu, hv, theta, colour, pseed = parcel
+    got = _local(sc, cx, cy, hu, hv, theta, 1.0)
+    if got is None:
+        return
+    box, u, v = got
+    prng = np.random.default_rng(pseed)
+    cover = _box_alpha(u, v, hu, hv, 1.0)[:, :, None]
+    edge = np.minimum(hu - np.abs(u), hv - np.abs(v))
+    bevel = np.clip(edge / max(1.0, 0.02 * sc.s), 0.0, 1.0)
+    light = 1.0 + 0.06 * (-u / hu - v / hv) / 2
+    body = colour * ((0.82 + 0.18 * bevel) * light)[:, :, None]
+    tape_half = max(0.75, hv * prng.uniform(0.14, 0.22))
+    tape_colour = colour * 0.55 + np.array([215, 185, 135], dtype=np.float32) * 0.45 + 12.0
+    ta = np.clip(tape_half - np.abs(v) + 0.5, 0.0, 1.0)[:, :, None]
+    body = body * (1 - ta) + tape_colour * ((0.9 + 0.1 * bevel) * light)[:, :, None] * ta
+    seam = np.clip(0.6 - np.abs(v), 0.0, 1.0)[:, :, None] * 0.25
+    body = body * (1 - seam)
+    label = _label(u, v, hu, hv, tape_half, prng)
+    if label is not None:
+        la, paper = label
+        body = body * (1 - la) + paper * light[:, :, None] * la
+    sc.img[box] = sc.img[box] * (1 - cover) + body * cover
+
+
+def _label(u: np.ndarray, v: np.ndarray, hu: float, hv: float, tape_half: float, prng: np.random.Generator
+           ) -> tuple[np.ndarray, np.ndarray] | None:
+    """A shipping label on one side of the tape: (cover, picture) with a barcode block and two lines of print."""
+    side = 1.0 if prng.random() < 0.5 else -1.0
+    margin = max(1.0, 0.08 * hv)
+    room = hv - tape_half - 2 * margin
+    lw = 2 * hu * prng.uniform(0.3, 0.45)
+    lh = room * prng.uniform(0.6, 0.9)
+    if lh < 3.0 or lw < 4.0:
+        return None
+    lu0 = prng.uniform(-hu + margin, hu - margin - lw)
+    lv_mid = side * (tape_half + margin + lh / 2)
+    lu = u - (lu0 + lw / 2)
+    lv = (v - lv_mid) * side  # grows away from the tape
+    la = _box_alpha(lu, lv, lw / 2, lh / 2, 1.0)[:, :, None]
+    paper = np.array([238, 236, 228], dtype=np.float32)
+    pad = max(0.5, 0.08 * min(lw, lh))
+    bar_u0 = -lw / 2 + pad
+    module = max(1.0, (lw - 2 * pad) / 64.0)
+    bits = prng.integers(0, 2, size=int((lw - 2 * pad) / module) + 2)
+    bits[0] = 1
+    idx = np.clip(((lu - bar_u0) / module).astype(np.int32), 0, len(bits) - 1)
+    in_bars = (np.abs(lu) <= lw / 2 - pad) & (lv >= -lh / 2 + pad) & (lv <= -lh / 2 + pad + 0.55 * lh)
+    ink = (in_bars & (bits[idx] == 1)).astype(np.float32)
+    for frac in (0.72, 0.86):
+        row_v = -lh / 2 + frac * lh
+        glyph = max(1.0, 2.5 * module)
+        chars = prng.integers(0, 2, size=int(lw / glyph) + 2)
+        gidx = np.clip(((lu + lw / 2) / glyph).astype(np.int32), 0, len(chars) - 1)
+        text = (np.abs(lv - row_v) <= max(0.5, 0.04 * lh)) & (np.abs(lu) <= lw / 2 - pad)
+        ink = np.maximum(ink, (text & (chars[gidx] == 1)).astype(np.float32) * 0.8)
+    return la, paper * (1 - ink[:, :, None]) + np.float32(28.0) * ink[:, :, None]
+
+
+def _camera(sc: _Scene, rng: np.random.Generator, rgb: bool) -> np.ndarray:
+    """Optics and sensor: vignetting, Gaussian noise, rounding to uint8; gray by BT.601 weights when asked."""
+    h, w, img = sc.h, sc.w, sc.img
+    r2 = ((sc.xs - w / 2) / (w / 2 + 1e-6)) ** 2 + ((sc.ys - h / 2) / (h / 2 + 1e-6)) ** 2
     img *= (1.0 - 0.08 * r2)[:, :, None]
     grain = rng.standard_normal((h, w, 3), dtype=np.float32)
     grain *= 2.0
@@ -368,9 +411,6 @@ def conveyor(height: int, width: int, seed: int = 0, rgb: bool = True) -> np.nda
         return out
     wide = out.astype(np.uint16)
     return ((77 * wide[..., 0] + 150 * wide[..., 1] + 29 * wide[..., 2] + 128) >> 8).astype(np.uint8)
-
-
-# ---------------------------------------------------------------- registry
 
 
 def _step_factory(direction: str) -> Callable[..., np.ndarray]:

@@ -348,6 +348,32 @@ def schedule(timing: VideoTiming, frames: int = 1, stalls: StallPattern | None =
     if isinstance(frames, bool) or not isinstance(frames, (int, np.integer)) or frames < 1:
         raise ConfigError(f"schedule: frames = {frames!r}, expected an integer >= 1")
     t = timing
+    lv = _frame_levels(t, int(frames))
+    stall_pixels = np.zeros((0, 3), dtype=np.int32)
+    if stalls is not None and stalls.probability > 0.0:
+        lengths = stalls.draw(frames, t.v_active, t.h_active)
+        lv = _stretch(lv, lengths)
+        f_idx, y_idx, x_idx = np.nonzero(lengths)
+        stall_pixels = np.stack([f_idx, y_idx, x_idx], axis=1).astype(np.int32)
+    hs = lv["hs"] if t.hsync_active_high else ~lv["hs"]
+    vs = lv["vs"] if t.vsync_active_high else ~lv["vs"]
+    return ClockSchedule(
+        timing=t,
+        frames=int(frames),
+        hsync=np.ascontiguousarray(hs),
+        vsync=np.ascontiguousarray(vs),
+        de=lv["de"],
+        valid=lv["valid"],
+        x=lv["x"],
+        y=lv["y"],
+        frame=lv["fr"],
+        n_clocks=int(lv["de"].size),
+        stall_pixels=stall_pixels,
+    )
+
+
+def _frame_levels(t: VideoTiming, frames: int) -> dict[str, np.ndarray]:
+    """Per-clock de, hsync, vsync (active high), pixel position and frame of ``frames`` frames without stalls."""
     ht, vt = t.h_total, t.v_total
     col = np.arange(ht, dtype=np.int32)
     line = np.arange(vt, dtype=np.int32)
@@ -356,61 +382,33 @@ def schedule(timing: VideoTiming, frames: int = 1, stalls: StallPattern | None =
     vs_start = t.v_active + t.v_front_porch
     frame_vs = (line >= vs_start) & (line < vs_start + t.v_sync)
     frame_active = line < t.v_active
-
     # One frame as (v_total, h_total) grids, then tiled over frames.
     de_f = frame_active[:, None] & line_de[None, :]
-    hs_f = np.broadcast_to(line_hs[None, :], (vt, ht))
-    vs_f = np.broadcast_to(frame_vs[:, None], (vt, ht))
-    x_f = np.where(de_f, col[None, :], -1).astype(np.int32)
-    y_f = np.where(de_f, line[:, None], -1).astype(np.int32)
+    grids = {
+        "de": de_f,
+        "hs": np.broadcast_to(line_hs[None, :], (vt, ht)),
+        "vs": np.broadcast_to(frame_vs[:, None], (vt, ht)),
+        "x": np.where(de_f, col[None, :], -1).astype(np.int32),
+        "y": np.where(de_f, line[:, None], -1).astype(np.int32),
+    }
+    lv = {k: np.tile(a.ravel(), frames) for k, a in grids.items()}
+    lv["fr"] = np.repeat(np.arange(frames, dtype=np.int32), t.clocks_per_frame)
+    lv["valid"] = lv["de"].copy()
+    return lv
 
-    def tile(a: np.ndarray) -> np.ndarray:
-        return np.tile(a.ravel(), frames)
 
-    de = tile(de_f)
-    hs = tile(hs_f)
-    vs = tile(vs_f)
-    x = tile(x_f)
-    y = tile(y_f)
-    fr = np.repeat(np.arange(frames, dtype=np.int32), t.clocks_per_frame)
-    valid = de.copy()
-    stall_pixels = np.zeros((0, 3), dtype=np.int32)
-
-    if stalls is not None and stalls.probability > 0.0:
-        lengths = stalls.draw(frames, t.v_active, t.h_active)
-        # Repeat each pixel clock 1 + stall times; the leading copies are the stall clocks.
-        counts = np.ones(de.size, dtype=np.int32)
-        counts[de] += lengths.ravel()
-        src = np.repeat(np.arange(de.size, dtype=np.int32), counts)
-        ends = np.cumsum(counts, dtype=np.int64)
-        valid = np.zeros(src.size, dtype=bool)
-        valid[ends - 1] = de
-        de = de[src]
-        hs = hs[src]
-        vs = vs[src]
-        fr = fr[src]
-        x_new = np.full(src.size, -1, dtype=np.int32)
-        y_new = np.full(src.size, -1, dtype=np.int32)
-        x_new[ends - 1] = x
-        y_new[ends - 1] = y
-        x, y = x_new, y_new
-        f_idx, y_idx, x_idx = np.nonzero(lengths)
-        stall_pixels = np.stack([f_idx, y_idx, x_idx], axis=1).astype(np.int32)
-
-    if not t.hsync_active_high:
-        hs = ~hs
-    if not t.vsync_active_high:
-        vs = ~vs
-    return ClockSchedule(
-        timing=t,
-        frames=int(frames),
-        hsync=np.ascontiguousarray(hs),
-        vsync=np.ascontiguousarray(vs),
-        de=de,
-        valid=valid,
-        x=x,
-        y=y,
-        frame=fr,
-        n_clocks=int(de.size),
-        stall_pixels=stall_pixels,
-    )
+def _stretch(lv: dict[str, np.ndarray], lengths: np.ndarray) -> dict[str, np.ndarray]:
+    """Insert ``lengths[f, y, x]`` stall clocks before each pixel: copies of its clock with valid low."""
+    de = lv["de"]
+    # Repeat each pixel clock 1 + stall times; the leading copies are the stall clocks.
+    counts = np.ones(de.size, dtype=np.int32)
+    counts[de] += lengths.ravel()
+    src = np.repeat(np.arange(de.size, dtype=np.int32), counts)
+    ends = np.cumsum(counts, dtype=np.int64)
+    out = {k: lv[k][src] for k in ("de", "hs", "vs", "fr")}
+    out["valid"] = np.zeros(src.size, dtype=bool)
+    out["valid"][ends - 1] = de
+    for k in ("x", "y"):
+        out[k] = np.full(src.size, -1, dtype=np.int32)
+        out[k][ends - 1] = lv[k]
+    return out

@@ -8,12 +8,13 @@ from typing import Any
 import cocotb
 from cocotb.triggers import ClockCycles, Event, RisingEdge
 
-from vkit.video.capture import UNKNOWN, Capture, CaptureBuilder
+from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, CaptureBuilder
 from vkit.core.errors import ConfigError
-from vkit.sim.signals import SignalMap, pixel_bits
+from vkit.sim.signals import SignalMap
+from vkit.video.formats import pixel_bits
+from vkit.video.words import BLANKING_MODES
 
 __all__ = [
-    "MAX_EVENTS",
     "apply_reset",
     "bit_reader",
     "word_reader",
@@ -21,9 +22,6 @@ __all__ = [
     "wait_reset_released",
     "ticker",
 ]
-
-MAX_EVENTS = 1000
-"""At most this many entries are kept in an event list (xz_control, de_in_blanking); the rest are counted."""
 
 _BIT = {"0": 0, "1": 1, "L": 0, "H": 1, "l": 0, "h": 1}
 
@@ -197,9 +195,14 @@ class _Source(_Component):
     :meth:`_init_source`.
     """
 
-    def _init_source(self, pixel_format: str | None, seed: int, stats: dict[str, Any] | None) -> None:
+    def _init_source(self, pixel_format: str | None, seed: int, stats: dict[str, Any] | None,
+                     blanking: str = "random", blanking_value: int = 0) -> None:
+        if blanking not in BLANKING_MODES:
+            raise ConfigError(f"blanking = {blanking!r}; use 'random' or 'constant'")
         self.pixel_format = pixel_format
         self.seed = int(seed)
+        self.blanking = blanking
+        self.blanking_value = int(blanking_value)
         self.stats: dict[str, Any] = stats if stats is not None else {}
         self.clocks = 0
         """Rising edges seen by the last ``send`` so far."""

@@ -41,7 +41,7 @@ from cocotb.utils import get_sim_time
 from vkit.video.capture import Capture
 from vkit.core.errors import ConfigError
 from vkit.sim.case import CASE_ENV, SimCase, error_file_for
-from vkit.sim.signals import pixel_bits
+from vkit.video.formats import pixel_bits
 from vkit.sim.tb.stream import StreamMonitor, StreamSink, StreamSource
 from vkit.sim.tb.video import VideoMonitor, VideoSource
 
@@ -67,6 +67,62 @@ def _save(capture: Capture, case_capture_file: str | Path, error: str | None) ->
         sidecar.write_text(error + "\n")
 
 
+def _components(dut: Any, case: SimCase, meta: dict[str, Any]) -> tuple[Any, Any, StreamSink | None, Any, Any]:
+    """The monitor, source and (stream) sink of ``case`` on ``dut``, and the clock and reset handles."""
+    smap = case.signal_map()
+    handles = smap.resolve(dut, {"in_data": pixel_bits(case.pixel_format)})
+    clock, reset = handles["clock"], handles.get("reset")
+    common = dict(expected_height=case.height, expected_width=case.width, reset_active_high=case.reset_active_high,
+                  meta=meta)
+    source_options = dict(pixel_format=case.pixel_format, blanking=case.blanking, blanking_value=case.blanking_value,
+                          seed=case.seed, reset_active_high=case.reset_active_high)
+    if case.family == "video":
+        timing = case.video_timing()
+        monitor: VideoMonitor | StreamMonitor = VideoMonitor(
+            dut, smap, clock, reset, vsync_active_high=timing.vsync_active_high,
+            hsync_active_high=timing.hsync_active_high, **common,
+        )
+        source: VideoSource | StreamSource = VideoSource(
+            dut, smap, clock, reset, timing=timing, stalls=case.stall_pattern(), stats=monitor.meta, **source_options,
+        )
+        return monitor, source, None, clock, reset
+    monitor = StreamMonitor(dut, smap, clock, reset, **common)
+    source = StreamSource(dut, smap, clock, reset, gaps=case.gap_pattern(), stats=monitor.meta, **source_options)
+    sink = StreamSink(dut, smap, clock, reset, backpressure=case.backpressure_pattern())
+    return monitor, source, sink, clock, reset
+
+
+async def _clock_and_reset(case: SimCase, clock: Any, reset: Any) -> None:
+    """Start the clock and hold reset (if any) for ``case.reset_cycles`` rising edges."""
+    Clock(clock, case.clock_period_ns, unit="ns").start()
+    if reset is not None:
+        reset.value = 1 if case.reset_active_high else 0
+    await ClockCycles(clock, case.reset_cycles)
+    if reset is not None:
+        reset.value = 0 if case.reset_active_high else 1
+    # Let the release reach the design before the components read it, so they all count from here.
+    await ReadWrite()
+
+
+async def _watch(case: SimCase, monitor: VideoMonitor | StreamMonitor, send_task: Any, n_frames: int,
+                 timeout: int) -> None:
+    """Wait for every output frame (bounded by ``timeout`` clocks), then for the input side and the trailing syncs."""
+    done = await monitor.wait_frames(n_frames, timeout)
+    if not done:
+        if not send_task.done():
+            monitor.meta["notes"].append("the source had not sent every frame when the timeout hit")
+        return
+    # Keep watching until the input side has finished its last frame's blanking and a little
+    # after, so the output's trailing syncs are counted too (still bounded by the timeout).
+    remaining = max(1, timeout - monitor.clocks)
+    if not send_task.done():
+        waiter = cocotb.start_soon(monitor.wait_clocks(remaining))
+        await First(send_task, waiter)
+        waiter.cancel()
+    if case.family == "video":
+        await monitor.wait_clocks(DRAIN_LINES * case.video_timing().h_total)
+
+
 async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
     """Run one :class:`SimCase` on ``dut``: clock, reset, drive all frames, capture, wait (bounded).
 
@@ -82,12 +138,8 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
     Raises:
         ConfigError: the case does not fit the DUT (misnamed port, narrow data bus, bad frames file).
     """
-    meta: dict[str, Any] = {
-        "family": case.family,
-        "simulator": case.simulator or cocotb.SIM_NAME,
-        "clock_period_ns": case.clock_period_ns,
-        "notes": [],
-    }
+    meta: dict[str, Any] = {"family": case.family, "simulator": case.simulator or cocotb.SIM_NAME,
+                            "clock_period_ns": case.clock_period_ns, "notes": []}
     if save:
         error_file_for(case.capture_file).unlink(missing_ok=True)
     monitor: VideoMonitor | StreamMonitor | None = None
@@ -100,65 +152,15 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
         meta["frames_sent"] = n_frames
         timeout = case.effective_timeout_clocks(n_frames)
         meta["timeout_clocks"] = timeout
-        smap = case.signal_map()
-        handles = smap.resolve(dut, {"in_data": pixel_bits(case.pixel_format)})
-        clock = handles["clock"]
-        reset = handles.get("reset")
-        if case.family == "video":
-            timing = case.video_timing()
-            monitor = VideoMonitor(
-                dut, smap, clock, reset,
-                expected_height=case.height, expected_width=case.width,
-                vsync_active_high=timing.vsync_active_high, hsync_active_high=timing.hsync_active_high,
-                reset_active_high=case.reset_active_high, meta=meta,
-            )
-            source: VideoSource | StreamSource = VideoSource(
-                dut, smap, clock, reset,
-                timing=timing, stalls=case.stall_pattern(), pixel_format=case.pixel_format,
-                blanking=case.blanking, blanking_value=case.blanking_value, seed=case.seed,
-                reset_active_high=case.reset_active_high, stats=monitor.meta,
-            )
-        else:
-            monitor = StreamMonitor(
-                dut, smap, clock, reset,
-                expected_height=case.height, expected_width=case.width,
-                reset_active_high=case.reset_active_high, meta=meta,
-            )
-            source = StreamSource(
-                dut, smap, clock, reset,
-                gaps=case.gap_pattern(), pixel_format=case.pixel_format, seed=case.seed,
-                reset_active_high=case.reset_active_high, stats=monitor.meta,
-            )
-            sink = StreamSink(dut, smap, clock, reset, backpressure=case.backpressure_pattern())
-
-        Clock(clock, case.clock_period_ns, unit="ns").start()
-        if reset is not None:
-            reset.value = 1 if case.reset_active_high else 0
-            await ClockCycles(clock, case.reset_cycles)
-            reset.value = 0 if case.reset_active_high else 1
-        else:
-            await ClockCycles(clock, case.reset_cycles)
-        # Let the release reach the design before the components read it, so they all count from here.
-        await ReadWrite()
+        monitor, source, sink, clock, reset = _components(dut, case, meta)
+        await _clock_and_reset(case, clock, reset)
         # capture clock k is the (k+1)-th rising edge after this time (the runner's wave window needs it)
         monitor.meta["start_time_ps"] = int(get_sim_time("ps"))
         monitor.start()
         if sink is not None:
             sink.start()
         send_task = cocotb.start_soon(source.send(frames))
-        done = await monitor.wait_frames(n_frames, timeout)
-        if done:
-            # Keep watching until the input side has finished its last frame's blanking and a little
-            # after, so the output's trailing syncs are counted too (still bounded by the timeout).
-            remaining = max(1, timeout - monitor.clocks)
-            if not send_task.done():
-                waiter = cocotb.start_soon(monitor.wait_clocks(remaining))
-                await First(send_task, waiter)
-                waiter.cancel()
-            if case.family == "video":
-                await monitor.wait_clocks(DRAIN_LINES * case.video_timing().h_total)
-        elif not send_task.done():
-            monitor.meta["notes"].append("the source had not sent every frame when the timeout hit")
+        await _watch(case, monitor, send_task, n_frames, timeout)
     except Exception as exc:
         error = _error_line(exc)
         raise
@@ -169,9 +171,7 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
             sink.stop()
         if monitor is not None:
             monitor.stop()
-            capture = monitor.capture()
-        else:
-            capture = Capture(meta=meta)
+        capture = monitor.capture() if monitor is not None else Capture(meta=meta)
         if save:
             _save(capture, case.capture_file, error)
     return capture

@@ -1,8 +1,8 @@
 """The cocotb test of the fast path: the harness makes its clock, plays and captures in HDL; Python waits for done.
 
 Run with ``test_module="vkit.sim.tb.fast"`` and toplevel ``vkit_fast_top`` (see
-:func:`vkit.sim.harness.fast_build_plan`), with the keyword arguments of
-:func:`vkit.sim.harness.fast_test_args` (the case JSON named by ``VKIT_CASE``, and the harness's
+:func:`vkit.sim.fast.build.fast_build_plan`), with the keyword arguments of
+:func:`vkit.sim.fast.build.fast_test_args` (the case JSON named by ``VKIT_CASE``, and the harness's
 plusargs or generics). The clock is generated inside the simulator by the harness, so no Python
 runs per clock: the test waits once for ``done`` (bounded by a timer) and reads the capture file
 (binary records from the Verilog harness, text from the VHDL one).
@@ -23,12 +23,12 @@ from cocotb.triggers import First, RisingEdge, Timer
 
 from vkit.video.capture import Capture
 from vkit.core.errors import ConfigError, VkitError
-from vkit.run.export import read_capture
-from vkit.sim.harness import CAPTURE_TEXT_NAME, capture_file_name
-from vkit.sim.stimulus import StimulusFiles, fast_run_dir, prepare_fast_run, read_fast_run
 from vkit.sim.case import CASE_ENV, SimCase, error_file_for
+from vkit.sim.fast.capture_file import read_capture
+from vkit.sim.fast.stimulus import StimulusFiles, fast_run_dir, prepare_fast_run, read_fast_run
+from vkit.sim.fast.wire import capture_file_name
 
-__all__ = ["run_fast_case", "CAPTURE_TEXT_NAME"]
+__all__ = ["run_fast_case"]
 
 _SLACK_CLOCKS = 1000
 
@@ -44,7 +44,7 @@ async def run_fast_case(dut: Any, case: SimCase) -> Capture:
     """Wait for the self-clocked harness ``dut`` to finish ``case``; return the capture (also saved)."""
     stim = read_fast_run(case)
     if stim is None:
-        # Started by hand, without vkit.sim.harness.fast_test_args: the plusargs must still name these files.
+        # Started by hand, without vkit.sim.fast.fast_test_args: the plusargs must still name these files.
         stim = prepare_fast_run(case)
     cap_text = fast_run_dir(case) / capture_file_name(stim.language)
     period = float(case.clock_period_ns)

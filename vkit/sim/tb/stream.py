@@ -8,11 +8,12 @@ from typing import Any
 import numpy as np
 from cocotb.triggers import RisingEdge
 
-from vkit.video.capture import UNKNOWN
+from vkit.sim.signals import SignalMap
 from vkit.sim.tb._common import _Component, _FrameMonitor, _in_data_bits, _Source, bit_reader, word_reader
-from vkit.sim.signals import SignalMap, pixel_bits
-from vkit.sim.tb.video import _pixel_words, frames_array
+from vkit.video.capture import UNKNOWN
+from vkit.video.formats import frames_array
 from vkit.video.timing import StallPattern
+from vkit.video.words import READY_CHUNK_CLOCKS, StreamTransfers, ready_chunk, stream_transfers
 
 __all__ = ["StreamSource", "StreamSink", "StreamMonitor"]
 
@@ -32,6 +33,9 @@ class StreamSource(_Source):
         gaps: optional :class:`~vkit.video.timing.StallPattern`: chance of a gap before each pixel and its
             longest length in clocks, seeded.
         pixel_format: "gray8" or "rgb888"; None infers it from the frames.
+        blanking: "random" drives seeded random words on ``in_data`` during gaps; "constant" drives
+            ``blanking_value``.
+        blanking_value: the constant gap word, >= 0.
         seed: seed of the garbage words driven during gaps.
         reset_active_high: reset polarity.
         stats: a dict the source writes Capture meta keys into (``frames_sent``, ``first_input_clock``,
@@ -51,13 +55,15 @@ class StreamSource(_Source):
         *,
         gaps: StallPattern | None = None,
         pixel_format: str | None = None,
+        blanking: str = "random",
+        blanking_value: int = 0,
         seed: int = 0,
         reset_active_high: bool = True,
         stats: dict[str, Any] | None = None,
     ) -> None:
         bits = _in_data_bits(pixel_format)
         super().__init__(dut, signals, clock, reset, data_bits=bits, reset_active_high=reset_active_high)
-        self._init_source(pixel_format, seed, stats)
+        self._init_source(pixel_format, seed, stats, blanking, blanking_value)
         self.gaps = gaps
         self.sent = 0
         """Words taken by the DUT so far."""
@@ -65,26 +71,22 @@ class StreamSource(_Source):
             self._h[role].value = 0
         self._h["in_data"].value = 0
 
-    async def send(self, frames: Any) -> None:
-        """Send every pixel of ``frames``; returns once the DUT took the last word (valid then drops)."""
+    def prepare(self, frames: Any) -> StreamTransfers:
+        """Every transfer of ``frames`` (pixels, markers, gaps, idle words); records the run facts in ``stats``."""
         arr, fmt = frames_array(frames, self.pixel_format)
         self._check_data_width(fmt)
-        n_frames, height, line = arr.shape[:3]
-        words = _pixel_words(arr, fmt).ravel().tolist()
-        idx = np.arange(len(words))
-        sof = ((idx % (height * line)) == 0).astype(int).tolist()
-        eol = ((idx % line) == line - 1).astype(int).tolist()
-        if self.gaps is not None and self.gaps.probability > 0:
-            gap_arr = self.gaps.draw(n_frames, height, line)
-            self.stats["stall_pixels"] = np.argwhere(gap_arr > 0).astype(int).tolist()
-            gap = gap_arr.ravel().tolist()
-        else:
-            self.stats["stall_pixels"] = []
-            gap = [0] * len(words)
-        garbage = np.random.default_rng(self.seed).integers(0, 1 << pixel_bits(fmt), size=len(words)).tolist()
-        self.stats["frames_sent"] = int(n_frames)
+        t = stream_transfers(arr, fmt, self.gaps, blanking=self.blanking, blanking_value=self.blanking_value,
+                             seed=self.seed)
+        self.stats["stall_pixels"] = t.stall_pixels
+        self.stats["frames_sent"] = t.frames
         self.stats["first_input_clock"] = None
+        return t
 
+    async def send(self, frames: Any) -> None:
+        """Send every pixel of ``frames``; returns once the DUT took the last word (valid then drops)."""
+        t = self.prepare(frames)
+        words, gap, garbage = t.data.tolist(), t.gaps.tolist(), t.idle.tolist()
+        sof, eol = t.sof.astype(int).tolist(), t.eol.astype(int).tolist()
         await self._reset_released()
         h = self._h
         valid, data, s_sof, s_eol = h["in_valid"], h["in_data"], h["in_sof"], h["in_eol"]
@@ -146,7 +148,7 @@ class StreamSink(_Component):
     """
 
     family = "stream"
-    _CHUNK = 4096
+    _CHUNK = READY_CHUNK_CLOCKS
 
     def __init__(
         self,
@@ -167,25 +169,8 @@ class StreamSink(_Component):
 
     def _levels(self, carry: int) -> tuple[list[int], int]:
         """Ready levels for the next chunk of clocks, and the low clocks left over into the next chunk."""
-        bp = self.backpressure
-        n = self._CHUNK
-        out = np.ones(n, np.int8)
-        starts = self._rng.random(n) < bp.probability
-        lengths = self._rng.integers(1, bp.max_length + 1, size=n)
-        i = 0
-        if carry:
-            out[:carry] = 0
-            i = carry
-        left = 0
-        while i < n:
-            if starts[i]:
-                end = i + int(lengths[i])
-                out[i : min(end, n)] = 0
-                left = max(0, end - n)
-                i = end
-            else:
-                i += 1
-        return out.tolist(), left
+        levels, left = ready_chunk(self._rng, self.backpressure, carry, self._CHUNK)
+        return levels.astype(int).tolist(), left
 
     def start(self) -> None:
         """Start driving ready (idempotent)."""

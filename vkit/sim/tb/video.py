@@ -8,75 +8,15 @@ from typing import Any
 import numpy as np
 from cocotb.triggers import Event
 
-from vkit.video.capture import UNKNOWN
 from vkit.core.errors import ConfigError
+from vkit.sim.signals import SignalMap
 from vkit.sim.tb._common import _FrameMonitor, _in_data_bits, _Source, bit_reader, ticker, word_reader
-from vkit.sim.signals import SignalMap, pixel_bits
+from vkit.video.capture import UNKNOWN
+from vkit.video.formats import frames_array
 from vkit.video.timing import ClockSchedule, StallPattern, VideoTiming, schedule
+from vkit.video.words import video_data_words, video_input_facts
 
-__all__ = ["VideoSource", "VideoMonitor", "frames_array", "sync_counts"]
-
-
-def frames_array(frames: Any, pixel_format: str | None = None) -> tuple[np.ndarray, str]:
-    """Stack ``frames`` into ``(N, H, W)`` (gray8) or ``(N, H, W, 3)`` (rgb888) uint8 and name the format.
-
-    Args:
-        frames: one frame or a sequence of frames, each uint8-valued ``(H, W)`` or ``(H, W, 3)``.
-        pixel_format: "gray8", "rgb888" or None to infer from the shape.
-
-    Raises:
-        ConfigError: empty input, mixed shapes, values outside 0..255 or a shape/format mismatch.
-    """
-    arr = frames if isinstance(frames, np.ndarray) else np.asarray(frames)
-    # A single frame is (H, W) or (H, W, 3); a 3-D array ending in 3 is one RGB frame unless gray8 was asked.
-    if arr.ndim == 2 or (arr.ndim == 3 and arr.shape[-1] == 3 and pixel_format != "gray8"):
-        arr = arr[None]
-    if arr.dtype == object or arr.size == 0:
-        raise ConfigError("frames: got no frames or frames of different shapes; give equal-size (H, W) or (H, W, 3) arrays")
-    if arr.ndim == 4 and arr.shape[-1] == 3:
-        fmt = "rgb888"
-    elif arr.ndim == 3:
-        fmt = "gray8"
-    else:
-        raise ConfigError(f"frames: shape {arr.shape} is not (N, H, W) or (N, H, W, 3); give uint8 gray or RGB frames")
-    if pixel_format is not None and pixel_format != fmt:
-        pixel_bits(pixel_format)
-        raise ConfigError(
-            f"frames: shape {arr.shape} is {fmt} but pixel_format is {pixel_format!r}; "
-            f"give {'(N, H, W, 3)' if pixel_format == 'rgb888' else '(N, H, W)'} frames or change pixel_format"
-        )
-    if arr.dtype != np.uint8:
-        if not np.issubdtype(arr.dtype, np.integer) or arr.min() < 0 or arr.max() > 255:
-            raise ConfigError(f"frames: dtype {arr.dtype} with values outside 0..255; give uint8 frames")
-        arr = arr.astype(np.uint8)
-    return arr, fmt
-
-
-def _pixel_words(frames: np.ndarray, fmt: str) -> np.ndarray:
-    """Data-bus words per pixel, ``(N, H, W)`` int64 (rgb888 packed as R<<16 | G<<8 | B)."""
-    if fmt == "rgb888":
-        from vkit.video.images import pack_rgb
-
-        return np.asarray(pack_rgb(frames), dtype=np.int64)
-    return frames.astype(np.int64)
-
-
-def _leading_edges(level: np.ndarray, active: bool) -> np.ndarray:
-    """Clock indices where ``level`` becomes ``active`` (the clock before index 0 counts as inactive)."""
-    on = level if active else ~level
-    prev = np.concatenate(([False], on[:-1]))
-    return np.flatnonzero(on & ~prev)
-
-
-def sync_counts(hsync_edges: np.ndarray, vsync_edges: np.ndarray) -> list[int]:
-    """Hsync leading edges per vsync period.
-
-    Entry ``k`` counts the hsync leading edges after vsync leading edge ``k - 1`` (the start of the run for
-    ``k = 0``) and before vsync leading edge ``k``; hsync pulses after the last vsync are not listed. The
-    monitor counts its output the same way, so input and output lists compare entry by entry.
-    """
-    bounds = np.searchsorted(hsync_edges, vsync_edges, side="left")
-    return [int(b) for b in np.diff(np.concatenate(([0], bounds)))]
+__all__ = ["VideoSource", "VideoMonitor"]
 
 
 class VideoSource(_Source):
@@ -128,19 +68,15 @@ class VideoSource(_Source):
     ) -> None:
         if not isinstance(timing, VideoTiming):
             raise ConfigError("VideoSource: timing must be a vkit.video.timing.VideoTiming; build one with preset() or tiny()")
-        if blanking not in ("random", "constant"):
-            raise ConfigError(f"blanking = {blanking!r}; use 'random' or 'constant'")
         bits = _in_data_bits(pixel_format)
         super().__init__(dut, signals, clock, reset, data_bits=bits, reset_active_high=reset_active_high)
-        self._init_source(pixel_format, seed, stats)
+        self._init_source(pixel_format, seed, stats, blanking, blanking_value)
         if stalls is not None and stalls.probability > 0 and "in_valid" not in self._h:
             raise ConfigError(
                 "stalls need a pixel-valid input but role 'in_valid' is not mapped; map in_valid or drop the stalls"
             )
         self.timing = timing
         self.stalls = stalls
-        self.blanking = blanking
-        self.blanking_value = int(blanking_value)
         self.schedule: ClockSchedule | None = None
         self._idle()
 
@@ -170,18 +106,8 @@ class VideoSource(_Source):
                 "give frames of the timing's active size or change the timing"
             )
         sched = schedule(t, int(arr.shape[0]), self.stalls)
-        bits = pixel_bits(fmt)
-        rng = np.random.default_rng(self.seed)
-        garbage = rng.integers(0, 1 << bits, size=sched.n_clocks, dtype=np.int64)
-        if self.blanking == "random":
-            words = garbage
-        else:
-            words = np.full(sched.n_clocks, self.blanking_value, np.int64)
-            stall = sched.de & ~sched.valid
-            words[stall] = garbage[stall]
-        pix = sched.x >= 0
-        packed = _pixel_words(arr, fmt)
-        words[pix] = packed[sched.frame[pix], sched.y[pix], sched.x[pix]]
+        words = video_data_words(sched, arr, fmt, blanking=self.blanking, blanking_value=self.blanking_value,
+                                 seed=self.seed)
         return sched, words
 
     async def send(self, frames: Any) -> None:
@@ -193,18 +119,24 @@ class VideoSource(_Source):
         """
         sched, words = self.prepare(frames)
         self.schedule = sched
-        t = self.timing
-        vs_edges = _leading_edges(sched.vsync, t.vsync_active_high)
-        hs_edges = _leading_edges(sched.hsync, t.hsync_active_high)
-        self.stats["frames_sent"] = int(sched.frames)
-        self.stats["stall_pixels"] = sched.stall_pixels.tolist()
-        self.stats["input_vsync_count"] = int(vs_edges.size)
-        self.stats["input_hsync_per_frame"] = sync_counts(hs_edges, vs_edges)
-
+        facts = video_input_facts(sched)
+        first_valid = facts.pop("first_input_clock")
+        self.stats.update(facts)
         await self._reset_released()
-        first_valid = int(np.argmax(sched.valid)) if sched.valid.any() else None
         self.stats["first_input_clock"] = first_valid
+        done = Event()
+        step = self._make_player(sched, words, done)
+        self.clocks = 0
+        step(first=True)
+        tick = ticker(self._clock)
+        tick.add(step)
+        try:
+            await done.wait()
+        finally:
+            tick.remove(step)
 
+    def _control_changes(self, sched: ClockSchedule) -> tuple[list[Any], list[int], list[tuple[int, ...]]]:
+        """The control handles, the clocks where any of their levels changes, and the levels from there on."""
         h = self._h
         ctrl = [h["in_vsync"], h["in_hsync"], h["in_de"]]
         levels = [sched.vsync, sched.hsync, sched.de]
@@ -215,16 +147,20 @@ class VideoSource(_Source):
         prev = np.concatenate((np.full((lv.shape[0], 1), -1, np.int8), lv[:, :-1]), axis=1)
         change_at = np.flatnonzero((lv != prev).any(axis=0)).tolist()
         change_vals = [tuple(int(v) for v in col) for col in lv[:, change_at].T]
+        return ctrl, change_at, change_vals
+
+    def _make_player(self, sched: ClockSchedule, words: np.ndarray, done: Event) -> Callable[..., None]:
+        """The per-edge function that drives schedule entry ``i`` (sampled by the design on clock ``i``)."""
+        h = self._h
+        ctrl, change_at, change_vals = self._control_changes(sched)
         data = h["in_data"]
         word_list = words.tolist()
-
         n = sched.n_clocks
         change_at.append(n)  # sentinel
         state = {"i": 0, "k": 0, "next": change_at[0], "last": -1}
-        done = Event()
 
         def drive(i: int) -> None:
-            # Write schedule entry i (sampled by the design on clock i); only values that change.
+            # Only values that change are written.
             if i == state["next"]:
                 k = state["k"]
                 for handle, value in zip(ctrl, change_vals[k]):
@@ -236,7 +172,10 @@ class VideoSource(_Source):
                 data.value = w
                 state["last"] = w
 
-        def step() -> None:
+        def step(first: bool = False) -> None:
+            if first:
+                drive(0)
+                return
             i = state["i"] + 1
             state["i"] = i
             self.clocks = i
@@ -247,17 +186,10 @@ class VideoSource(_Source):
                 h["in_de"].value = 0
                 if "in_valid" in h:
                     h["in_valid"].value = 0
-                tick.remove(step)
+                ticker(self._clock).remove(step)
                 done.set()
 
-        self.clocks = 0
-        drive(0)
-        tick = ticker(self._clock)
-        tick.add(step)
-        try:
-            await done.wait()
-        finally:
-            tick.remove(step)
+        return step
 
 
 class VideoMonitor(_FrameMonitor):

@@ -1,4 +1,4 @@
-"""Parse the fast-path harness's capture file (binary records or text lines) into a :class:`vkit.video.capture.Capture`.
+"""The one reader of the fast-path harness's capture file (binary records or text lines): a :class:`~vkit.video.capture.Capture`.
 
 Text format (the VHDL harness; the Verilog harness with ``+vkit_capture_bin=0``): a first line
 ``# vkit capture 1 FAMILY``, then one event per line, ``CLOCK KIND ARG``, in the order the harness
@@ -15,13 +15,8 @@ saw them (several per clock possible):
     T -         the harness's timeout was reached
     E -         end of the run; CLOCK is the number of clocks run
 
-Binary format (the Verilog harness's default; little-endian 32-bit words, as Verilog ``%u`` writes
-them): a header of four words, :data:`vkit.sim.harness.CAPTURE_MAGIC`, the version (1), the family
-(0 video, 1 stream) and the output data width in bits; then one record per event of
-:func:`vkit.sim.harness.capture_record_bytes` bytes: the clock, ``kind | code << 8`` (kind the ASCII
-letter above; code 1 on a ``P`` record means X/Z data, on an ``X`` record it indexes
-:data:`vkit.sim.harness.CAPTURE_ROLES`), and ``ceil(width / 32)`` data words, least significant first.
-Both formats give the same Capture for the same run.
+Binary format (the Verilog harness's default): the records described in :mod:`vkit.sim.fast.wire`,
+with the kind letters above. Both formats give the same Capture for the same run.
 
 Frame and line numbering follow the per-clock monitors exactly: a frame or line delimiter that
 closes an empty frame or line does not advance the count; without an output vsync, a video frame
@@ -30,20 +25,21 @@ closes after ``height`` lines.
 
 from __future__ import annotations
 
+import tempfile
+from collections.abc import Callable
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from vkit.video.capture import UNKNOWN, Capture
 from vkit.core.errors import ConfigError, DutError
-from vkit.sim.harness import CAPTURE_MAGIC, CAPTURE_ROLES, CAPTURE_VERSION, capture_data_words
+from vkit.sim.case import SimCase
+from vkit.sim.fast.stimulus import StimulusFiles, write_stimulus
+from vkit.sim.fast.wire import CAPTURE_MAGIC, CAPTURE_ROLES, CAPTURE_VERSION, FAMILY_CODES, capture_data_words
+from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture
 
-__all__ = ["MAX_EVENTS", "parse_capture_text", "parse_capture_binary", "read_capture_text", "read_capture_file",
-           "is_binary_capture"]
-
-MAX_EVENTS = 1000
-"""At most this many entries are kept in an event list (xz_control, de_in_blanking); the rest are counted."""
+__all__ = ["parse_capture_text", "parse_capture_binary", "is_binary_capture", "input_meta", "read_capture"]
 
 
 def parse_capture_text(
@@ -108,7 +104,7 @@ def parse_capture_binary(
     if version != CAPTURE_VERSION:
         raise ConfigError(f"capture file: binary format version {version}, this vkit reads {CAPTURE_VERSION}; "
                           "rebuild the harness with this vkit")
-    family = family or ("stream" if fam_code == 1 else "video")
+    family = family or ("stream" if fam_code == FAMILY_CODES["stream"] else "video")
     nw = capture_data_words(width)
     rec = 8 + 4 * nw
     body = raw[16:]
@@ -140,81 +136,101 @@ def is_binary_capture(head: bytes) -> bool:
     return len(head) >= 4 and int.from_bytes(head[:4], "little") == CAPTURE_MAGIC
 
 
-def _build(family: str, clock_all: np.ndarray, kind_a: np.ndarray, arg_of: Any, values: np.ndarray, xz_data: int,
-           height: int | None, split_on_height: bool, meta: dict[str, Any] | None) -> Capture:
+@dataclass
+class _Events:
+    """What the non-pixel events of a capture say (everything but the pixels themselves)."""
+
+    xz_control: list[list[Any]] = field(default_factory=list)
+    de_in_blanking: list[int] = field(default_factory=list)
+    hsync_per_frame: list[int] = field(default_factory=list)
+    counts: dict[str, int] = field(default_factory=lambda: {"xz_control": 0, "de_in_blanking": 0})
+    vsync_count: int = 0
+    hs_count: int = 0
+    timed_out: bool = False
+    clocks_run: int | None = None
+    first_input: int | None = None
+    waited_next: list[int] = field(default_factory=list)
+
+    def bounded(self, key: str, entry: Any) -> None:
+        """Count an event of list ``key``; keep it while the list is under :data:`MAX_EVENTS`."""
+        self.counts[key] += 1
+        if self.counts[key] <= MAX_EVENTS:
+            getattr(self, key).append(entry)
+
+
+def _scan_events(family: str, clock_all: np.ndarray, kind_a: np.ndarray, pos_p: np.ndarray,
+                 arg_of: Callable[[int], str]) -> _Events:
+    """Walk the non-pixel events in order (syncs, X/Z, waits, first input, timeout, end)."""
+    ev = _Events()
+    for i in np.flatnonzero(kind_a != ord("P")).tolist():
+        kind = chr(kind_a[i])
+        if kind == "F" and family == "video":
+            ev.vsync_count += 1
+            ev.hsync_per_frame.append(ev.hs_count)
+            ev.hs_count = 0
+        elif kind == "H":
+            ev.hs_count += 1
+        elif kind == "B":
+            ev.bounded("de_in_blanking", int(clock_all[i]))
+        elif kind == "X":
+            ev.bounded("xz_control", [int(clock_all[i]), arg_of(i)])
+        elif kind == "K":
+            ev.waited_next.append(int(np.searchsorted(pos_p, i)))
+        elif kind == "I":
+            ev.first_input = int(clock_all[i])
+        elif kind == "T":
+            ev.timed_out = True
+        elif kind == "E":
+            ev.clocks_run = int(clock_all[i])
+    return ev
+
+
+def _build(family: str, clock_all: np.ndarray, kind_a: np.ndarray, arg_of: Callable[[int], str], values: np.ndarray,
+           xz_data: int, height: int | None, split_on_height: bool, meta: dict[str, Any] | None) -> Capture:
     """The Capture from decoded events (clock and ASCII kind code per event, values per pixel event); both formats."""
     out_meta: dict[str, Any] = dict(meta or {})
     out_meta.setdefault("family", family)
     out_meta.setdefault("notes", [])
-    counts = {"xz_control": 0, "de_in_blanking": 0}
-    xz_control: list[list[Any]] = []
-    de_in_blanking: list[int] = []
-    hsync_per_frame: list[int] = []
-    vsync_count = 0
-    hs_count = 0
-    timed_out = False
-    clocks_run: int | None = None
-    first_input: int | None = None
-    waited_next: list[int] = []
-
     is_p = kind_a == ord("P")
     pos_p = np.flatnonzero(is_p)
-    k = int(pos_p.size)
-    clock_a = clock_all[pos_p]
     if split_on_height and height and (kind_a == ord("F")).any():
         frame_a, line_a, col_a = _positions_loop(kind_a, bool(split_on_height), height)
     else:
         frame_a, line_a, col_a = _positions(kind_a, is_p, pos_p, bool(split_on_height), height)
-    for i in np.flatnonzero(~is_p).tolist():
-        kind = chr(kind_a[i])
-        if kind == "F":
-            if family == "video":
-                vsync_count += 1
-                hsync_per_frame.append(hs_count)
-                hs_count = 0
-        elif kind == "H":
-            hs_count += 1
-        elif kind == "B":
-            counts["de_in_blanking"] += 1
-            if counts["de_in_blanking"] <= MAX_EVENTS:
-                de_in_blanking.append(int(clock_all[i]))
-        elif kind == "X":
-            counts["xz_control"] += 1
-            if counts["xz_control"] <= MAX_EVENTS:
-                xz_control.append([int(clock_all[i]), arg_of(i)])
-        elif kind == "K":
-            waited_next.append(int(np.searchsorted(pos_p, i)))
-        elif kind == "I":
-            first_input = int(clock_all[i])
-        elif kind == "T":
-            timed_out = True
-        elif kind == "E":
-            clocks_run = int(clock_all[i])
-    cap = Capture(values, clock_a, frame_a, line_a, col_a, out_meta)
+    ev = _scan_events(family, clock_all, kind_a, pos_p, arg_of)
+    cap = Capture(values, clock_all[pos_p], frame_a, line_a, col_a, out_meta)
+    _fill_meta(cap, family, ev, xz_data, clock_all)
+    return cap
+
+
+def _fill_meta(cap: Capture, family: str, ev: _Events, xz_data: int, clock_all: np.ndarray) -> None:
+    """Write the output-side facts of the events into the capture's meta."""
     m = cap.meta
+    k = int(cap.values.size)
     m["xz_data_count"] = xz_data
-    m["xz_control"] = xz_control
+    m["xz_control"] = ev.xz_control
     if family == "video":
-        m["de_in_blanking"] = de_in_blanking
-        m["output_vsync_count"] = vsync_count
-        m["output_hsync_per_frame"] = hsync_per_frame
+        m["de_in_blanking"] = ev.de_in_blanking
+        m["output_vsync_count"] = ev.vsync_count
+        m["output_hsync_per_frame"] = ev.hsync_per_frame
     if family == "stream":
-        m["backpressure_pixels"] = [[int(frame_a[i]), int(line_a[i]), int(col_a[i])] for i in waited_next if i < k]
-    if first_input is not None:
-        m["first_input_clock"] = first_input
-    m["first_output_clock"] = int(clock_a[0]) if k else None
+        m["backpressure_pixels"] = [[int(cap.frame[i]), int(cap.line[i]), int(cap.column[i])]
+                                    for i in ev.waited_next if i < k]
+    if ev.first_input is not None:
+        m["first_input_clock"] = ev.first_input
+    m["first_output_clock"] = int(cap.clock[0]) if k else None
     if m.get("first_output_clock") is not None and m.get("first_input_clock") is not None:
         m["latency_clocks"] = int(m["first_output_clock"]) - int(m["first_input_clock"])
+    timed_out, clocks_run = ev.timed_out, ev.clocks_run
     if clocks_run is None:
         m["notes"].append("capture text has no end line: the simulation stopped before the harness finished")
         clocks_run = int(clock_all[-1]) + 1 if clock_all.size else 0
         timed_out = True
     m["clocks_run"] = clocks_run
     m["timed_out"] = bool(timed_out)
-    for key, total in counts.items():
+    for key, total in ev.counts.items():
         if total > MAX_EVENTS:
             m["notes"].append(f"{key}: {total} events, only the first {MAX_EVENTS} are listed")
-    return cap
 
 
 _HEX_LUT = np.full(256, -1, np.int64)
@@ -314,29 +330,51 @@ def _positions_loop(kind: np.ndarray, split: bool, height: int) -> tuple[np.ndar
     return arr[:, 0].copy(), arr[:, 1].copy(), arr[:, 2].copy()
 
 
-def read_capture_text(path: str | Path, **kwargs: Any) -> Capture:
-    """Read a capture text file (see :func:`parse_capture_text` for the keyword arguments).
-
-    Raises:
-        DutError: the file does not exist (the simulation never opened it).
-    """
-    p = Path(path)
-    if not p.is_file():
-        raise DutError(f"capture text {str(p)!r} does not exist: the simulation did not start the harness; see the simulator log")
-    return parse_capture_text(p.read_text(errors="replace"), **kwargs)
-
-
-def read_capture_file(path: str | Path, **kwargs: Any) -> Capture:
-    """Read a harness capture file in either format (binary records or text lines; told apart by the header).
-
-    Raises:
-        DutError: the file does not exist (the simulation never opened it).
-    """
-    p = Path(path)
-    if not p.is_file():
-        raise DutError(f"capture file {str(p)!r} does not exist: the simulation did not start the harness; see the simulator log")
-    with open(p, "rb") as fh:
+def _parse_file(path: Path, **kwargs: Any) -> Capture:
+    """Parse a harness capture file in either format (told apart by the header)."""
+    if not path.is_file():
+        raise DutError(f"capture file {str(path)!r} does not exist: the simulation did not start the harness; "
+                       "see the simulator log")
+    with open(path, "rb") as fh:
         head = fh.read(4)
     if is_binary_capture(head):
-        return parse_capture_binary(np.fromfile(p, np.uint8), **kwargs)
-    return parse_capture_text(p.read_text(errors="replace"), **kwargs)
+        return parse_capture_binary(np.fromfile(path, np.uint8), **kwargs)
+    return parse_capture_text(path.read_text(errors="replace"), **kwargs)
+
+
+def input_meta(case: SimCase, stim: StimulusFiles | None = None) -> dict[str, Any]:
+    """The input-side Capture meta of ``case`` (frames_sent, first_input_clock, stall_pixels, syncs)."""
+    if stim is None:
+        with tempfile.TemporaryDirectory(prefix="vkit_meta_") as tmp:
+            stim = write_stimulus(case, tmp)
+    meta = dict(stim.input_meta)
+    meta.pop("first_gap_clocks", None)
+    meta["family"] = case.family
+    if case.simulator:
+        meta["simulator"] = case.simulator
+    if stim.timeout:
+        meta["timeout_clocks"] = int(stim.timeout)
+    return meta
+
+
+def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = None) -> Capture:
+    """Read a harness capture file (live fast-path run, native run or exported testbench; binary or text).
+
+    Args:
+        path: the ``capture.bin`` / ``capture.txt`` the harness wrote.
+        case: the case the run was made from (gives the input-side meta and how frames split).
+        stim: the stimulus the run used, if at hand (saves rebuilding it).
+
+    Raises:
+        DutError: the file does not exist (the simulation never opened it).
+    """
+    cap = _parse_file(
+        Path(path),
+        family=case.family,
+        height=int(case.height),
+        split_on_height=case.family == "video" and "out_vsync" not in case.signals,
+        meta=input_meta(case, stim),
+    )
+    if cap.meta.get("timed_out") and "timeout_clocks" not in cap.meta:
+        cap.meta["timeout_clocks"] = int(cap.meta.get("clocks_run", 0))
+    return cap

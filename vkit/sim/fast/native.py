@@ -1,0 +1,188 @@
+"""Native runs: ``vkit_fast_top`` built as a plain executable and run with no cocotb in the loop (Verilog harness).
+
+    from vkit.sim.fast import fast_build_plan, native_build, run_native
+
+    plan = fast_build_plan(...)                                     # see vkit.sim.fast.build
+    native_build(plan, sim, build_dir)                              # skipped when build_dir holds plan's build
+    for case in cases:
+        capture = run_native(case, sim, build_dir)                  # also saved to case.capture_file
+
+``native_build_plan(plan, sim, build_dir)`` gives the commands without running them (:class:`NativeBuild`:
+``commands``, ``run``, ``key``); ``native_run_args(case)`` the plusargs and capture path of one run.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import subprocess
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+from vkit.core.errors import ConfigError, ToolError
+from vkit.sim.case import SimCase
+from vkit.sim.fast.build import VERILATOR_ARGS, HarnessBuild, define_args
+from vkit.sim.fast.capture_file import read_capture
+from vkit.sim.fast.stimulus import fast_run_dir, prepare_fast_run, read_fast_run
+from vkit.sim.fast.wire import CAPTURE_BIN_NAME, TOPLEVEL
+from vkit.sim.simulators import find, require, subprocess_env
+from vkit.video.capture import Capture
+
+__all__ = ["NATIVE_SIMULATORS", "NativeBuild", "native_build_plan", "native_build", "native_run_args", "run_native"]
+
+NATIVE_SIMULATORS = ("icarus", "verilator")
+"""Simulators :func:`native_build_plan` builds a plain executable with (Verilog harness)."""
+
+_NATIVE_INFO = "vkit_native.json"
+_LOG_TAIL_LINES = 3
+"""Lines of a failed tool's output quoted in the error."""
+
+
+@dataclass
+class NativeBuild:
+    """The commands that build ``vkit_fast_top`` as a plain executable, and the command that runs it.
+
+    Attributes:
+        simulator: "icarus" or "verilator".
+        build_dir: the folder the build writes into.
+        commands: argument lists run in ``build_dir`` in order (each one a subprocess).
+        run: the argument list that runs one case (add the plusargs of :func:`native_run_args`).
+        key: the harness build's key plus the simulator: equal keys mean an equal executable.
+    """
+
+    simulator: str
+    build_dir: Path
+    commands: list[list[str]]
+    run: list[str]
+    key: str
+
+
+def _tail(res: subprocess.CompletedProcess[str]) -> str:
+    return " | ".join((res.stdout + res.stderr).strip().splitlines()[-_LOG_TAIL_LINES:])
+
+
+def native_build_plan(plan: HarnessBuild, simulator: str, build_dir: str | Path) -> NativeBuild:
+    """The build of ``plan``'s harness and design as a plain executable (``iverilog``/``vvp`` or ``verilator --binary``).
+
+    Args:
+        plan: from :func:`vkit.sim.fast.build.fast_build_plan` (Verilog harness).
+        simulator: "icarus" or "verilator".
+        build_dir: folder for the build products (absolute paths are used throughout).
+
+    Raises:
+        ConfigError: a VHDL harness or a simulator without a native build here.
+    """
+    if plan.language != "verilog" or simulator not in NATIVE_SIMULATORS:
+        raise ConfigError(
+            f"native path: {simulator!r} with a {plan.language} harness has no native build; use icarus or verilator "
+            "with a Verilog design, or path = \"fast\""
+        )
+    out = Path(build_dir).resolve()
+    srcs = [str(Path(p).resolve()) for p in plan.sources]
+    defs = define_args(plan.defines)
+    if simulator == "icarus":
+        vvp = out / f"{TOPLEVEL}.vvp"
+        commands = [["iverilog", "-g2012", *defs, "-s", TOPLEVEL, "-o", str(vvp), *srcs]]
+        run = ["vvp", "-n", str(vvp)]
+    else:
+        mdir = out / "obj_native"
+        commands = [["verilator", "--binary", *VERILATOR_ARGS, "-j", "2", *defs, "--top-module", TOPLEVEL,
+                     "--Mdir", str(mdir), "-o", f"V{TOPLEVEL}", *srcs]]
+        run = [str(mdir / f"V{TOPLEVEL}")]
+    key = hashlib.sha256(f"{plan.key}\0{simulator}\0native".encode()).hexdigest()
+    return NativeBuild(simulator, out, commands, run, key)
+
+
+def native_build(plan: HarnessBuild, simulator: str, build_dir: str | Path, *, always: bool = False) -> NativeBuild:
+    """Run :func:`native_build_plan`'s commands unless ``build_dir`` already holds the same build; record it there.
+
+    Raises:
+        ToolError: the simulator is not installed, or a build command failed (its last output lines are given).
+    """
+    nb = native_build_plan(plan, simulator, build_dir)
+    info_file = nb.build_dir / _NATIVE_INFO
+    if not always and info_file.is_file() and Path(nb.run[-1]).is_file():
+        if json.loads(info_file.read_text()).get("key") == nb.key:
+            return nb
+    env = subprocess_env(require(simulator))
+    nb.build_dir.mkdir(parents=True, exist_ok=True)
+    for cmd in nb.commands:
+        res = subprocess.run(cmd, cwd=nb.build_dir, env=env, capture_output=True, text=True)
+        if res.returncode != 0:
+            raise ToolError(f"native build: {cmd[0]} exited with {res.returncode}: {_tail(res)}; fix the design or its sources")
+    info_file.write_text(json.dumps({"key": nb.key, "simulator": simulator, "run": nb.run}) + "\n")
+    return nb
+
+
+def native_run_args(case: SimCase, *, in_width: int | None = None) -> tuple[list[str], Path]:
+    """Write ``case``'s stimulus (once) and return (plusargs for a native run, the capture file it will write)."""
+    stim = prepare_fast_run(case, in_width, language="verilog")
+    capture = fast_run_dir(case) / CAPTURE_BIN_NAME
+    plusargs = stim.plusargs(capture) + [f"+vkit_half_ns={case.clock_period_ns / 2:.6f}",
+                                         f"+vkit_reset_cycles={case.reset_cycles}", "+vkit_native=1"]
+    return plusargs, capture
+
+
+def _native_info(build_dir: str | Path, simulator: str) -> dict[str, object]:
+    info_file = Path(build_dir) / _NATIVE_INFO
+    info = json.loads(info_file.read_text()) if info_file.is_file() else {}
+    if info.get("simulator") != simulator:
+        raise ConfigError(f"native path: {str(build_dir)!r} holds no native {simulator} build; call "
+                          "vkit.sim.fast.native_build first")
+    return info
+
+
+def _finish(cap: Capture, case: SimCase, simulator: str, note: str | None = None) -> Capture:
+    """Stamp the run facts of a native run on ``cap`` and save it to the case's capture file."""
+    cap.meta.update(simulator=simulator, path="native")
+    if note is not None:
+        cap.meta["timed_out"] = True
+        cap.meta.setdefault("notes", []).append(note)
+    cap.save(case.capture_file, compress=False)
+    return cap
+
+
+def run_native(case: SimCase, simulator: str, build_dir: str | Path, *, in_width: int | None = None,
+               timeout_s: float | None = None) -> Capture:
+    """Run ``case`` on the native executable in ``build_dir`` (made by :func:`native_build`); return its Capture.
+
+    Python writes the stimulus, runs the executable once with the harness's plusargs (no cocotb),
+    reads the binary capture and saves it to ``case.capture_file`` (also on a timeout, partial).
+
+    Args:
+        case: the case.
+        simulator: the simulator the build was made with ("icarus" or "verilator").
+        build_dir: the folder given to :func:`native_build`.
+        in_width: input data bus bits when it differs from the pixel format's bits.
+        timeout_s: wall-clock limit of the run in seconds (None: none; the harness's own timeout still holds).
+
+    Returns:
+        A :class:`~vkit.video.capture.Capture` with ``meta["path"] = "native"``.
+
+    Raises:
+        ConfigError: ``build_dir`` holds no native build for ``simulator``.
+        ToolError: the executable failed or ran past ``timeout_s``.
+    """
+    info = _native_info(build_dir, simulator)
+    plusargs, capture = native_run_args(case, in_width=in_width)
+    run_dir = fast_run_dir(case)
+    capture.unlink(missing_ok=True)
+    t0 = time.perf_counter()
+    try:
+        res = subprocess.run([*info["run"], *plusargs], cwd=run_dir, env=subprocess_env(find(simulator)),
+                             capture_output=True, text=True, timeout=timeout_s)
+    except subprocess.TimeoutExpired:
+        res = None
+    secs = time.perf_counter() - t0
+    log = run_dir / "native.log"
+    log.write_text("" if res is None else res.stdout + res.stderr)
+    if res is not None and res.returncode != 0:
+        message = f"native run: {info['run'][0]} exited with {res.returncode}: {_tail(res)}; see {log}"
+        if capture.is_file():  # keep what was captured before the failure
+            _finish(read_capture(capture, case, read_fast_run(case)), case, simulator, message)
+        raise ToolError(message)
+    if not capture.is_file():
+        raise ToolError(f"native run: no capture file after {secs:.1f} s; see {log}")
+    note = None if res is not None else f"the native run passed its {timeout_s} s wall-clock limit; the capture is partial"
+    return _finish(read_capture(capture, case, read_fast_run(case)), case, simulator, note)

@@ -1,0 +1,356 @@
+"""Stimulus and expected-output files for the fast-path harness, from a :class:`~vkit.sim.case.SimCase`.
+
+Everything here is numpy: a 640x480 frame at 800x525 timing (420,000 clocks) becomes a stimulus file
+in a fraction of a second. The Verilog harness streams a binary file (``$fread``, big-endian words);
+the VHDL harness reads hex text (one word per line). Word layouts are in :mod:`vkit.sim.fast.wire`; the
+words themselves come from :mod:`vkit.video.words`, as the per-clock sources' do.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from vkit.core.errors import ConfigError
+from vkit.sim.case import SimCase
+from vkit.sim.fast.wire import (
+    GAP_BITS,
+    MAX_IN_WIDTH,
+    READY_WORDS,
+    pack_fields,
+    stream_word_bits,
+    stream_word_fields,
+    video_word_bits,
+    video_word_fields,
+    word_bytes,
+)
+from vkit.video.formats import pixel_bits
+from vkit.video.timing import ClockSchedule, schedule
+from vkit.video.words import StreamTransfers, ready_levels, stream_transfers, video_data_words, video_input_facts
+
+__all__ = [
+    "StimulusFiles",
+    "drain_clocks",
+    "stimulus_words_needed",
+    "video_schedule_and_words",
+    "stream_stimulus",
+    "write_hex",
+    "write_words",
+    "write_stimulus",
+    "expected_words",
+    "write_expected",
+    "fast_run_dir",
+    "prepare_fast_run",
+    "read_fast_run",
+]
+
+_DRAIN_MARGIN_CLOCKS = 64
+"""Video: clocks watched after two more lines (pipeline latency beyond the line buffers; common practice, no source)."""
+
+
+def drain_clocks(case: SimCase) -> int:
+    """Clocks the harness keeps capturing after the last stimulus word (pipeline and line-buffer flush).
+
+    Video: two lines plus 64 clocks (the last output line is flushed at the leading edge of vsync,
+    which the schedule already contains). Stream: four lines plus 256 clocks, stretched by the
+    average back-pressure; the harness stops earlier once every expected pixel arrived.
+    """
+    if case.family == "video":
+        return 2 * case.video_timing().h_total + _DRAIN_MARGIN_CLOCKS
+    factor = 1.0
+    bp = case.backpressure_pattern()
+    if bp is not None:
+        factor = 1.0 + bp.probability * (bp.max_length + 1) / 2
+    return int((4 * case.width + 256) * factor) + 256
+
+
+def stimulus_words_needed(case: SimCase) -> int:
+    """Player memory words the case needs (video: clocks of all frames; stream: transfers)."""
+    n = case.frame_count()
+    if case.family != "video":
+        return n * case.width * case.height
+    t = case.video_timing()
+    stalls = case.stall_pattern()
+    if stalls is None or stalls.probability == 0:
+        return n * t.clocks_per_frame
+    return schedule(t, n, stalls).n_clocks
+
+
+def video_schedule_and_words(case: SimCase) -> tuple[ClockSchedule, np.ndarray]:
+    """The per-clock schedule and data-bus word of every clock, as the per-clock source drives them."""
+    frames = case.load_frames()
+    sched = schedule(case.video_timing(), int(frames.shape[0]), case.stall_pattern())
+    words = video_data_words(sched, frames, case.pixel_format, blanking=case.blanking,
+                             blanking_value=case.blanking_value, seed=case.seed)
+    return sched, words
+
+
+def stream_stimulus(case: SimCase) -> StreamTransfers:
+    """The stream family's transfers (pixels, markers, gaps, idle words), as the per-clock source sends them."""
+    transfers = stream_transfers(case.load_frames(), case.pixel_format, case.gap_pattern(), blanking=case.blanking,
+                                 blanking_value=case.blanking_value, seed=case.seed)
+    if transfers.gaps.max(initial=0) >= (1 << GAP_BITS):
+        raise ConfigError(f"stream_gaps: a gap of {int(transfers.gaps.max())} clocks exceeds {(1 << GAP_BITS) - 1}; "
+                          "lower max_length")
+    return transfers
+
+
+_HEX = np.frombuffer(b"0123456789abcdef", np.uint8)
+
+
+def write_hex(path: str | Path, words: np.ndarray, bits: int) -> Path:
+    """Write ``words`` (non-negative integers) one per line as zero-padded hex for ``$readmemh``.
+
+    Args:
+        path: output file.
+        words: 1-D integer array, each < 2**bits.
+        bits: word width in bits, 1..64; lines carry ceil(bits/4) digits.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    digits = max(1, (bits + 3) // 4)
+    w = np.asarray(words).astype(np.uint64).reshape(-1)
+    shifts = (np.arange(digits - 1, -1, -1, dtype=np.uint64) * np.uint64(4))[None, :]
+    nib = ((w[:, None] >> shifts) & np.uint64(15)).astype(np.intp)
+    chars = np.empty((w.size, digits + 1), np.uint8)
+    chars[:, :digits] = _HEX[nib]
+    chars[:, digits] = ord("\n")
+    path.write_bytes(chars.tobytes())
+    return path
+
+
+def write_words(path: str | Path, fields: list[tuple[np.ndarray, int]], nbytes: int | None = None) -> Path:
+    """Write words packed from bit fields as big-endian binary records, one per word, for ``$fread``.
+
+    Args:
+        path: output file.
+        fields: ``(values, bits)`` from the least significant field up; values are non-negative
+            integers (< 2**bits, bits <= 64), all arrays the same length.
+        nbytes: bytes per record (default: the total bits rounded up to bytes).
+
+    Returns:
+        ``path``. Record ``i`` holds ``sum(values_k[i] << offset_k)`` in ``nbytes`` bytes, MSB first.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    nbytes = int(nbytes or word_bytes(sum(b for _, b in fields)))
+    n = int(np.asarray(fields[0][0]).size) if fields else 0
+    out = np.zeros((n, nbytes), np.uint8)
+    offset = 0
+    for values, bits in fields:
+        v = np.asarray(values).astype(np.uint64).reshape(-1) & np.uint64((1 << bits) - 1)
+        for byte in range(nbytes):
+            lo = 8 * byte
+            if lo >= offset + bits or lo + 8 <= offset:
+                continue
+            part = v >> np.uint64(lo - offset) if lo >= offset else v << np.uint64(offset - lo)
+            out[:, nbytes - 1 - byte] |= (part & np.uint64(0xFF)).astype(np.uint8)
+        offset += bits
+    path.write_bytes(out.tobytes())
+    return path
+
+
+@dataclass
+class StimulusFiles:
+    """The files and numbers one harness run needs.
+
+    Attributes:
+        stim: video: per-clock words; stream: per-transfer words (binary for Verilog, hex for VHDL).
+        ready: stream ready pattern (hex, one bit per line), or None.
+        words: words in ``stim``.
+        ready_words: entries in ``ready`` (1 for video).
+        drain: clocks captured after the stimulus.
+        timeout: harness timeout in clocks from clock 0 (0 = none).
+        expect_pixels: output pixels expected (frames x width x height).
+        input_meta: Capture meta the input side knows (frames_sent, first_input_clock,
+            stall_pixels, input_vsync_count, input_hsync_per_frame).
+        ready_levels: stream ready pattern (bool array), for the back-pressure pixels; None for video.
+        language: "verilog" (binary stimulus) or "vhdl" (hex stimulus).
+        hsync_active_high / vsync_active_high: sync polarity of the timing (video).
+    """
+
+    stim: Path
+    ready: Path | None
+    words: int
+    ready_words: int
+    drain: int
+    timeout: int
+    expect_pixels: int
+    input_meta: dict[str, Any] = field(default_factory=dict)
+    ready_levels: np.ndarray | None = None
+    language: str = "verilog"
+    hsync_active_high: bool = True
+    vsync_active_high: bool = True
+
+    def plusargs(self, capture: str | Path) -> list[str]:
+        """Verilog plusargs for ``vkit_harness`` (capture file path included)."""
+        args = [f"+vkit_stim={self.stim}", f"+vkit_capture={capture}", f"+vkit_drain={self.drain}",
+                f"+vkit_timeout={self.timeout}", f"+vkit_expect={self.expect_pixels}",
+                f"+vkit_hs_high={int(self.hsync_active_high)}", f"+vkit_vs_high={int(self.vsync_active_high)}"]
+        if self.ready is not None:
+            args += [f"+vkit_ready={self.ready}", f"+vkit_ready_words={self.ready_words}"]
+        return args
+
+    def generics(self, capture: str | Path) -> dict[str, Any]:
+        """VHDL generics for ``vkit_harness`` / ``vkit_fast_top`` (GHDL ``-gNAME=VALUE``, given at run time)."""
+        return {"STIM_FILE": str(self.stim), "CAPTURE_FILE": str(capture), "WORDS": self.words,
+                "DEPTH": max(1, self.words), "DRAIN": self.drain, "TIMEOUT": self.timeout,
+                "HS_HIGH": int(self.hsync_active_high), "VS_HIGH": int(self.vsync_active_high)}
+
+    def to_json(self, key: str) -> str:
+        """The description :func:`read_fast_run` reads back, for the case fingerprint ``key``."""
+        return json.dumps({
+            "case": key,
+            "paths": {"stim": str(self.stim), "ready": str(self.ready) if self.ready else None},
+            "words": self.words, "ready_words": self.ready_words, "drain": self.drain, "timeout": self.timeout,
+            "expect_pixels": self.expect_pixels, "input_meta": self.input_meta, "language": self.language,
+            "hs_high": self.hsync_active_high, "vs_high": self.vsync_active_high,
+        })
+
+
+def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout_rel: int | None) -> StimulusFiles:
+    """Video: one word per clock of the schedule."""
+    if in_width > MAX_IN_WIDTH:
+        raise ConfigError(f"stimulus: input data width {in_width} bits is too wide for the player (max {MAX_IN_WIDTH})")
+    sched, data = video_schedule_and_words(case)
+    fields = video_word_fields(sched, data, in_width)
+    if language == "vhdl":
+        stim = write_hex(out / "stim.hex", pack_fields(fields), video_word_bits(in_width))
+    else:
+        stim = write_words(out / "stim.bin", fields)
+    meta = video_input_facts(sched)
+    first = meta["first_input_clock"]
+    timeout = int(timeout_rel) + (first or 0) if timeout_rel else 0
+    t = sched.timing
+    return StimulusFiles(stim, None, int(sched.n_clocks), 1, drain_clocks(case), timeout,
+                         int(sched.frames) * case.width * case.height, meta, None, language,
+                         bool(t.hsync_active_high), bool(t.vsync_active_high))
+
+
+def _write_stream(case: SimCase, out: Path, in_width: int, language: str, timeout_rel: int | None) -> StimulusFiles:
+    """Stream: one word per transfer, and the sink's ready pattern."""
+    if language != "verilog":
+        raise ConfigError("stimulus: the stream family has a Verilog harness only; use a Verilog simulator")
+    bits = pixel_bits(case.pixel_format)
+    if in_width != bits:
+        raise ConfigError(f"stimulus: stream input bus is {in_width} bits but the pixel format has {bits}; "
+                          "give a design whose input width matches the pixel format")
+    s = stream_stimulus(case)
+    stim = write_words(out / "stim.bin", stream_word_fields(s, in_width), word_bytes(stream_word_bits(in_width)))
+    levels = ready_levels(case.backpressure_pattern(), READY_WORDS)
+    ready = write_hex(out / "ready.hex", levels.astype(np.uint64), 1)
+    meta = {"frames_sent": s.frames, "first_input_clock": None, "stall_pixels": s.stall_pixels,
+            "first_gap_clocks": int(s.gaps[0]) if s.gaps.size else 0}
+    timeout = int(timeout_rel) if timeout_rel else 0
+    return StimulusFiles(stim, ready, int(s.data.size), int(levels.size), drain_clocks(case), timeout,
+                         int(s.data.size), meta, levels, language)
+
+
+def write_stimulus(case: SimCase, out_dir: str | Path, in_width: int | None = None, language: str = "verilog") -> StimulusFiles:
+    """Write the case's stimulus files into ``out_dir`` and return what the harness run needs.
+
+    Args:
+        case: the case.
+        out_dir: folder for ``stim.bin`` (Verilog) or ``stim.hex`` (VHDL), and ``ready.hex`` for the
+            stream family.
+        in_width: input data bus bits (default: the pixel format's bits).
+        language: "verilog" or "vhdl" (video only): which harness reads the files.
+    """
+    if language not in ("verilog", "vhdl"):
+        raise ConfigError(f"stimulus: language {language!r} is not known; use 'verilog' or 'vhdl'")
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    width = int(in_width or pixel_bits(case.pixel_format))
+    write = _write_video if case.family == "video" else _write_stream
+    return write(case, out, width, language, case.effective_timeout_clocks())
+
+
+def expected_words(expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> np.ndarray:
+    """Expected-output words ``{check, value[out_width-1:0]}`` per output pixel in output (raster) order.
+
+    Args:
+        expected: ``(F, H, W)`` or ``(H, W)`` non-negative integer model output.
+        mask: bool, ``(H, W)`` or ``(F, H, W)``; False where the pixel is not checked (border). None = all.
+        out_width: output data bus bits.
+    """
+    e = np.asarray(expected)
+    if e.ndim == 2:
+        e = e[None]
+    if e.ndim != 3:
+        raise ConfigError(f"expected output: shape {e.shape} is not (F, H, W) or (H, W); give model output frames")
+    if e.size and (e.min() < 0 or e.max() >= (1 << out_width)):
+        raise ConfigError(
+            f"expected output: values {int(e.min())}..{int(e.max())} do not fit the {out_width}-bit output bus; "
+            "give the right out_width"
+        )
+    m = np.ones(e.shape, bool) if mask is None else np.broadcast_to(np.asarray(mask, bool), e.shape)
+    return e.astype(np.uint64).reshape(-1) | (m.reshape(-1).astype(np.uint64) << np.uint64(out_width))
+
+
+def write_expected(path: str | Path, expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> Path:
+    """Write :func:`expected_words` as a ``$readmemh`` file (``out_width + 1`` bits per line)."""
+    return write_hex(path, expected_words(expected, mask, out_width), out_width + 1)
+
+
+def fast_run_dir(case: SimCase) -> Path:
+    """The folder a fast-path run keeps its stimulus files in: beside the capture, ``<stem>_fast/``."""
+    cap = Path(case.capture_file)
+    return cap.parent / (cap.stem + "_fast")
+
+
+def prepare_fast_run(case: SimCase, in_width: int | None = None, language: str = "verilog") -> StimulusFiles:
+    """Write the fast-path stimulus files of ``case`` into :func:`fast_run_dir` (once) and describe them.
+
+    The runner calls this (through :func:`vkit.sim.fast.build.fast_test_args`) before starting the
+    simulator, to get the plusargs (Verilog, :meth:`StimulusFiles.plusargs`) or generics (VHDL,
+    :meth:`StimulusFiles.generics`); the cocotb test (:mod:`vkit.sim.tb.fast`) reads the description back
+    with :func:`read_fast_run`. Files are rewritten only when a fingerprint of the case, the width
+    and the language changed.
+    """
+    key = _case_key(case, in_width, language)
+    found = read_fast_run(case, key)
+    if found is not None:
+        return found
+    out = fast_run_dir(case)
+    stim = write_stimulus(case, out, in_width, language)
+    (out / "stimulus.json").write_text(stim.to_json(key))
+    return stim
+
+
+def read_fast_run(case: SimCase, key: str | None = None) -> StimulusFiles | None:
+    """The stimulus :func:`prepare_fast_run` wrote for ``case`` (any width/language when ``key`` is None), or None."""
+    info = fast_run_dir(case) / "stimulus.json"
+    if not info.is_file():
+        return None
+    data = json.loads(info.read_text())
+    if (key is not None and data.get("case") != key) or not all(Path(p).is_file() for p in data["paths"].values() if p):
+        return None
+    ready = None
+    if data["paths"].get("ready"):
+        ready = np.frombuffer(Path(data["paths"]["ready"]).read_bytes(), np.uint8)[0::2] == ord("1")
+    paths = {k: Path(v) if v else None for k, v in data["paths"].items()}
+    return StimulusFiles(paths["stim"], paths["ready"], data["words"], data["ready_words"], data["drain"],
+                         data["timeout"], data["expect_pixels"], data["input_meta"], ready, data["language"],
+                         data["hs_high"], data["vs_high"])
+
+
+_KEY_FIELDS = ("family", "frames_file", "width", "height", "pixel_format", "timing", "stalls", "stream_gaps",
+               "backpressure", "blanking", "blanking_value", "seed", "timeout_clocks")
+"""The case fields that shape the stimulus."""
+
+
+def _case_key(case: SimCase, in_width: int | None = None, language: str = "verilog") -> str:
+    """A fingerprint of everything in the case that shapes the stimulus (and of the frames file)."""
+    data = case.to_dict()
+    frames = Path(str(data.get("frames_file")))
+    stat = frames.stat() if frames.is_file() else None
+    keep = {k: data.get(k) for k in _KEY_FIELDS}
+    keep["frames_stat"] = [stat.st_size, stat.st_mtime_ns] if stat else None
+    keep["in_width"] = in_width
+    keep["language"] = language
+    return hashlib.sha256(json.dumps(keep, sort_keys=True, default=str).encode()).hexdigest()

@@ -1,0 +1,214 @@
+"""The schedule -> words encoding: what the input bus carries on every clock, computed once for every path.
+
+The per-clock cocotb sources (:mod:`vkit.sim.tb.video`, :mod:`vkit.sim.tb.stream`) and the fast-path
+stimulus writer (:mod:`vkit.sim.fast.stimulus`) both take their words from here, so the two paths drive
+identical buses: the same pixels, the same seeded garbage outside active video and on stall clocks, the
+same gaps, the same sink back-pressure, and the same input-side facts (sync counts, stalled pixels).
+Pure numpy; no simulator.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from vkit.video.formats import pixel_bits, pixel_words
+from vkit.video.timing import ClockSchedule, StallPattern
+
+__all__ = [
+    "BLANKING_MODES",
+    "READY_CHUNK_CLOCKS",
+    "video_data_words",
+    "leading_edges",
+    "sync_counts",
+    "video_input_facts",
+    "StreamTransfers",
+    "stream_transfers",
+    "ready_chunk",
+    "ready_levels",
+]
+
+BLANKING_MODES: tuple[str, ...] = ("random", "constant")
+"""What the data bus carries outside active video: seeded random words, or one constant word."""
+
+READY_CHUNK_CLOCKS = 4096
+"""Clocks of sink ready levels drawn per call of the generator (the draw order depends on it)."""
+
+
+def _garbage(seed: int, bits: int, n: int) -> np.ndarray:
+    """``n`` seeded random words of ``bits`` bits (numpy PCG64): the bus content nobody may sample."""
+    return np.random.default_rng(int(seed)).integers(0, 1 << bits, size=n, dtype=np.int64)
+
+
+def video_data_words(
+    sched: ClockSchedule,
+    frames: np.ndarray,
+    pixel_format: str,
+    *,
+    blanking: str = "random",
+    blanking_value: int = 0,
+    seed: int = 0,
+) -> np.ndarray:
+    """The data-bus word of every clock of ``sched``.
+
+    Args:
+        sched: the per-clock schedule (:func:`vkit.video.timing.schedule`) of ``frames``.
+        frames: uint8 ``(N, H, W)`` (gray8) or ``(N, H, W, 3)`` (rgb888) of the timing's active size.
+        pixel_format: "gray8" or "rgb888".
+        blanking: "random": seeded random words on every clock that carries no pixel; "constant":
+            ``blanking_value`` there, but still random words on stall clocks (data-enable high, valid low).
+        blanking_value: the constant blanking word, >= 0.
+        seed: seed of the random words (numpy PCG64).
+
+    Returns:
+        int64 array of length ``sched.n_clocks``.
+    """
+    garbage = _garbage(seed, pixel_bits(pixel_format), sched.n_clocks)
+    if blanking == "random":
+        words = garbage
+    else:
+        words = np.full(sched.n_clocks, int(blanking_value), np.int64)
+        stall = sched.de & ~sched.valid
+        words[stall] = garbage[stall]
+    pix = sched.x >= 0
+    words[pix] = pixel_words(frames, pixel_format)[sched.frame[pix], sched.y[pix], sched.x[pix]]
+    return words
+
+
+def leading_edges(level: np.ndarray, active: bool) -> np.ndarray:
+    """Clock indices where ``level`` becomes ``active`` (the clock before index 0 counts as inactive)."""
+    on = level if active else ~level
+    prev = np.concatenate(([False], on[:-1]))
+    return np.flatnonzero(on & ~prev)
+
+
+def sync_counts(hsync_edges: np.ndarray, vsync_edges: np.ndarray) -> list[int]:
+    """Hsync leading edges per vsync period.
+
+    Entry ``k`` counts the hsync leading edges after vsync leading edge ``k - 1`` (the start of the run for
+    ``k = 0``) and before vsync leading edge ``k``; hsync pulses after the last vsync are not listed. The
+    monitor counts its output the same way, so input and output lists compare entry by entry.
+    """
+    bounds = np.searchsorted(hsync_edges, vsync_edges, side="left")
+    return [int(b) for b in np.diff(np.concatenate(([0], bounds)))]
+
+
+def video_input_facts(sched: ClockSchedule) -> dict[str, object]:
+    """The Capture meta the video input side knows before the run: frames, first valid clock, stalls, syncs."""
+    t = sched.timing
+    vs_edges = leading_edges(sched.vsync, t.vsync_active_high)
+    hs_edges = leading_edges(sched.hsync, t.hsync_active_high)
+    return {
+        "frames_sent": int(sched.frames),
+        "first_input_clock": int(np.argmax(sched.valid)) if sched.valid.any() else None,
+        "stall_pixels": sched.stall_pixels.tolist(),
+        "input_vsync_count": int(vs_edges.size),
+        "input_hsync_per_frame": sync_counts(hs_edges, vs_edges),
+    }
+
+
+@dataclass
+class StreamTransfers:
+    """Every transfer of a stream-family run, in order (all arrays one entry per pixel).
+
+    Attributes:
+        data: the pixel's data-bus word (int64).
+        sof: start of frame (first pixel of each frame).
+        eol: end of line (last pixel of each line).
+        gaps: idle clocks (valid low) before the pixel is offered, int64.
+        idle: the data word driven during those idle clocks (int64).
+        stall_pixels: ``[frame, line, column]`` of every pixel that came right after a gap.
+        frames: frames in the run.
+    """
+
+    data: np.ndarray
+    sof: np.ndarray
+    eol: np.ndarray
+    gaps: np.ndarray
+    idle: np.ndarray
+    stall_pixels: list[list[int]]
+    frames: int
+
+
+def stream_transfers(
+    frames: np.ndarray,
+    pixel_format: str,
+    gaps: StallPattern | None = None,
+    *,
+    blanking: str = "random",
+    blanking_value: int = 0,
+    seed: int = 0,
+) -> StreamTransfers:
+    """The stream source's transfers: pixels in raster order with their markers, idle gaps and idle words.
+
+    Args:
+        frames: uint8 ``(N, H, W)`` or ``(N, H, W, 3)``.
+        pixel_format: "gray8" or "rgb888".
+        gaps: chance and longest length of an idle gap before each pixel (seeded), or None for none.
+        blanking: "random" (seeded random idle words) or "constant" (``blanking_value``).
+        blanking_value: the constant idle word.
+        seed: seed of the random idle words (numpy PCG64).
+    """
+    n, h, w = (int(v) for v in frames.shape[:3])
+    data = pixel_words(frames, pixel_format).reshape(-1)
+    gap_arr = gaps.draw(n, h, w) if gaps is not None else np.zeros((n, h, w), np.int64)
+    idle = _garbage(seed, pixel_bits(pixel_format), data.size)
+    if blanking != "random":
+        idle[:] = int(blanking_value)
+    index = np.arange(data.size)
+    return StreamTransfers(
+        data=data,
+        sof=index % (h * w) == 0,
+        eol=index % w == w - 1,
+        gaps=gap_arr.reshape(-1).astype(np.int64),
+        idle=idle,
+        stall_pixels=np.argwhere(gap_arr > 0).astype(int).tolist(),
+        frames=n,
+    )
+
+
+def ready_chunk(
+    rng: np.random.Generator, pattern: StallPattern, carry: int, clocks: int = READY_CHUNK_CLOCKS
+) -> tuple[np.ndarray, int]:
+    """The sink's ready levels for the next ``clocks`` clocks, and the low clocks that spill into the next chunk.
+
+    Before each clock with ready high, a ready-low run of 1..``max_length`` clocks (uniform) starts with
+    ``pattern.probability``. One call draws ``clocks`` start chances, then ``clocks`` lengths, from ``rng``.
+
+    Args:
+        rng: the sink's generator (numpy PCG64 seeded with ``pattern.seed``), advanced by the call.
+        pattern: the back-pressure pattern.
+        carry: low clocks left over from the previous chunk.
+        clocks: chunk length.
+
+    Returns:
+        (levels, carry): bool ready levels, and the low clocks left for the next chunk.
+    """
+    starts = rng.random(clocks) < pattern.probability
+    lengths = rng.integers(1, pattern.max_length + 1, size=clocks)
+    out = np.ones(clocks, bool)
+    out[:carry] = False
+    i = carry
+    left = 0
+    for j in np.flatnonzero(starts[i:]) + i:
+        if j < i:
+            continue
+        end = int(j) + int(lengths[j])
+        out[j:min(end, clocks)] = False
+        left = max(0, end - clocks)
+        i = end
+    return out, left
+
+
+def ready_levels(pattern: StallPattern | None, clocks: int) -> np.ndarray:
+    """The first ``clocks`` ready levels of a sink with back-pressure ``pattern`` (all high without one)."""
+    if pattern is None or pattern.probability == 0:
+        return np.ones(clocks, bool)
+    rng = np.random.default_rng(pattern.seed)
+    chunks: list[np.ndarray] = []
+    carry = 0
+    for _ in range((clocks + READY_CHUNK_CLOCKS - 1) // READY_CHUNK_CLOCKS):
+        levels, carry = ready_chunk(rng, pattern, carry)
+        chunks.append(levels)
+    return np.concatenate(chunks)[:clocks] if chunks else np.ones(0, bool)

@@ -18,7 +18,7 @@ from PIL import Image
 from vkit.check.scoreboard import score
 from vkit.core.errors import ConfigError
 from vkit.model.pipeline import preset, run_model
-from vkit.model.quality import write_model_report
+from vkit.report.quality import write_model_report
 from vkit.report import page
 from vkit.report.figures import mismatches_per_line
 from vkit.report.page import write_index, write_model_page

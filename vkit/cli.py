@@ -85,6 +85,10 @@ def _print_run_end(result) -> None:  # noqa: ANN001 - vkit.run.runner.RunResult
         caught = sum(1 for c in bugs if c.status != "pass")
         named = sum(1 for c in bugs if c.expect_kind and c.diagnosis_kind == c.expect_kind)
         print(f"expected-to-fail cases: {caught}/{len(bugs)} failed, {named} diagnosed as the expected kind")
+        if result.exit_from == "expectations":
+            surprises = [c.id for c in bugs if c.status == "pass"]
+            print("exit code from expectations: " + (f"{len(surprises)} seeded bug(s) passed unexpectedly: "
+                                                      + ", ".join(surprises) if surprises else "every case came out as expected"))
     warned = sum(1 for c in result.cases if c.warnings)
     if warned:
         print(f"coverage warnings on {warned} case(s): see 'coverage.warnings' in report.json")
@@ -92,6 +96,8 @@ def _print_run_end(result) -> None:  # noqa: ANN001 - vkit.run.runner.RunResult
     print(f"report:  {result.report_files['json']}")
     print(f"junit:   {result.report_files['junit']}")
     print(f"summary: {result.report_files['summary']}")
+    if "index" in result.report_files:
+        print(f"page:    {result.report_files['index']}")
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
@@ -106,6 +112,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
         print(f"pictures: {len(pngs)} composite PNG(s) under {result.out_dir}, e.g. {pngs[0]}")
     else:
         print(f"pictures: none (PNGs are written for failing frames only) under {result.out_dir}")
+    print(f"open this page: {result.report_files['index']}")
     return result.exit_code
 
 
@@ -140,16 +147,19 @@ def _cmd_merge(args: argparse.Namespace) -> int:
     out = Path(args.out)
     print((out / "summary.txt").read_text(), end="")
     print(f"merged {len(merged['cases'])} cases from {len(args.reports)} report(s) into {out / 'report.json'}")
+    print(f"page:    {out / 'index.html'}")
     return code
 
 
 def _cmd_model(args: argparse.Namespace) -> int:
+    from vkit.report.page import write_model_page
     from vkit.report.quality import write_model_report
 
     spec = _spec(args.spec)
     paths = write_model_report(spec, list(args.images), args.out)
     for p in paths:
         print(p)
+    print(write_model_page(args.out))
     return EXIT_PASS
 
 

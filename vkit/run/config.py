@@ -82,12 +82,15 @@ __all__ = [
 ]
 
 _RUN_KEYS = ("out_dir", "simulators", "jobs", "seed", "timeout_s", "max_listed", "cache_dir", "coverage_floor",
-             "waves", "pictures", "path")
+             "waves", "pictures", "path", "exit_code")
+EXIT_CODE_MODES: tuple[str, ...] = ("verdicts", "expectations")
+"""``[run] exit_code``: from the verdicts alone (a seeded bug that fails makes the run fail), or from the
+expectations (a case marked ``expect = "fail"`` that fails counts as met; one that passes fails the run)."""
 PICTURE_MODES: tuple[str, ...] = ("failing", "all")
 """``[run] pictures``: PNGs for failing frames only, or for every frame."""
 _STIMULUS_KEYS = (
     "images", "patterns", "size", "frames", "timings", "stalls", "backpressure", "gaps", "blanking",
-    "blanking_value", "seeds", "convert",
+    "blanking_value", "seeds", "convert", "designs",
 )
 _DESIGN_KEYS = (
     "top", "sources", "language", "family", "pixel_format", "parameters", "file_parameters",
@@ -149,7 +152,7 @@ class Flow:
 class PatternEntry:
     """One generated stimulus: a pattern name, its options and, optionally, its own axes.
 
-    ``seeds``, ``timings``, ``stalls``, ``gaps`` and ``backpressure`` given here replace the
+    ``seeds``, ``timings``, ``stalls``, ``gaps``, ``backpressure`` and ``designs`` given here replace the
     ``[stimulus]`` lists of the same name for this pattern only (None = use those lists).
     """
 
@@ -161,6 +164,7 @@ class PatternEntry:
     stalls: tuple[Flow, ...] | None = None
     gaps: tuple[Flow, ...] | None = None
     backpressure: tuple[Flow, ...] | None = None
+    designs: tuple[str, ...] | None = None
 
     @property
     def id_label(self) -> str:
@@ -184,6 +188,7 @@ class RunSettings:
             coverage warning in the case result, 0.0..1.0.
         waves: ``"failing"`` (rerun failing cases with a wave dump around the first mismatch),
             ``"all"`` or ``"off"``.
+        exit_code: ``"verdicts"`` or ``"expectations"`` (:data:`EXIT_CODE_MODES`).
         pictures: ``"failing"`` (PNGs for failing frames only) or ``"all"`` (every frame, passing too).
         drive: the drive mode, config key ``path``: ``"clock"`` (cocotb drives every clock), ``"fast"`` (a
             generated HDL harness plays and captures whole runs; same verdicts, far fewer Python wake-ups)
@@ -201,6 +206,7 @@ class RunSettings:
     waves: str = "failing"
     pictures: str = "failing"
     drive: str = "clock"
+    exit_code: str = "verdicts"
 
     @property
     def path(self) -> str:
@@ -224,6 +230,8 @@ class StimulusConfig:
         blanking: ``"random"`` or ``"constant"`` data outside active video.
         blanking_value: data word in blanking when ``blanking`` is ``"constant"``.
         seeds: seeds every stimulus without its own seeds runs with.
+        designs: which designs the stimuli run on: design-name globs, ``!GLOB`` leaves matching designs
+            out (``["*"]``, the default, is every design; ``["!*@*"]`` leaves out the seeded-bug variants).
         convert: allow the lossy image conversions of :func:`vkit.video.images.load_image` (16-bit to 8-bit,
             alpha dropped, colour to luma, gray to RGB); False (default) makes each an error.
     """
@@ -240,6 +248,7 @@ class StimulusConfig:
     blanking_value: int = 0
     seeds: list[int] = field(default_factory=lambda: [1])
     convert: bool = False
+    designs: list[str] = field(default_factory=lambda: ["*"])
 
 
 @dataclass
@@ -517,6 +526,7 @@ def read_toml(path: str | Path) -> dict[str, Any]:
 
 
 _RUN_FIELDS: dict[str, _Reader] = {
+    "exit_code": _choice(EXIT_CODE_MODES),
     "jobs": _int_from(1),
     "seed": _int_from(0),
     "timeout_s": _positive,
@@ -595,7 +605,7 @@ def _parse_timings(where: str, value: Any) -> list[tuple[str, dict[str, Any] | N
     return out
 
 
-_PATTERN_OWN_KEYS = ("name", "seeds", "label", "timings", "stalls", "gaps", "backpressure")
+_PATTERN_OWN_KEYS = ("name", "seeds", "label", "timings", "stalls", "gaps", "backpressure", "designs")
 _FLOW_KEYS = ("stalls", "gaps", "backpressure")
 
 
@@ -614,6 +624,7 @@ def _pattern_entry(where: str, item: Any) -> PatternEntry:
             label=want_str(where, "patterns.label", item.get("label", "")),
             timings=tuple(_parse_timings(where, item["timings"])) if "timings" in item else None,
             **{k: tuple(_parse_flows(where, f"patterns.{k}", item[k])) for k in _FLOW_KEYS if k in item},
+            designs=tuple(want_str_list(where, "patterns.designs", item["designs"])) if "designs" in item else None,
         )
     else:
         raise fail(where, "patterns", item, type_name(item), "give a name or a table")
@@ -647,6 +658,7 @@ _STIMULUS_FIELDS: dict[str, _Reader] = {
     "blanking_value": _int_from(0),
     "convert": want_bool,
     "seeds": _seeds,
+    "designs": want_str_list,
 }
 
 
@@ -824,9 +836,7 @@ def _manifest_designs(where: str, data: Mapping[str, Any], base: Path) -> tuple[
 def _parse_import(where: str, data: Mapping[str, Any], base: Path) -> list[DesignConfig]:
     check_keys(where, data, _IMPORT_KEYS)
     path, designs, use = _manifest_designs(where, data, base)
-    bugs = data.get("bugs", False)
-    if bugs not in (True, False, "only"):
-        raise fail(where, "bugs", bugs, "not known", 'give true, false or "only"')
+    bugs = _import_bugs(where, data.get("bugs", False), {u: designs[u].get("bugs", {}) for u in use})
     overrides = want_table(where, "set", data.get("set", {}))
     check_keys(f"{where}.set", overrides, _DESIGN_KEYS)
     out: list[DesignConfig] = []
@@ -835,11 +845,28 @@ def _parse_import(where: str, data: Mapping[str, Any], base: Path) -> list[Desig
         good = _parse_design(mw, u, designs[u], path.parent, manifest=True)
         for key, value in overrides.items():
             good = _apply_override(f"{where}.set", good, key, value)
-        if bugs != "only":
+        if bugs is True or bugs is False:
             out.append(good)
         if bugs:
-            out.extend(_bug_variants(mw, good, designs[u].get("bugs", {})))
+            chosen = {k: v for k, v in designs[u].get("bugs", {}).items() if isinstance(bugs, bool) or k in bugs}
+            out.extend(_bug_variants(mw, good, chosen))
     return out
+
+
+def _import_bugs(where: str, value: Any, bugs_of: Mapping[str, Mapping[str, Any]]) -> bool | frozenset[str]:
+    """``bugs``: true (good designs and every bug), false (good only), "only" (every bug, no good design)
+    or a list of bug names (those bugs only). Returns a bool, or the set of bug names to take."""
+    if value is True or value is False:
+        return value
+    if value == "only":
+        return frozenset(name for bugs in bugs_of.values() for name in bugs)
+    known = sorted({name for bugs in bugs_of.values() for name in bugs})
+    if not isinstance(value, list):
+        raise fail(where, "bugs", value, "not known", 'give true, false, "only" or a list of bug names')
+    for name in want_str_list(where, "bugs", value):
+        if name not in known:
+            raise fail(where, "bugs", name, "not a seeded bug of the designs used", suggest(name, known))
+    return frozenset(value)
 
 
 _SETTABLE = ("simulators", "parameters", "defines", "tolerance_lsb", "clock_period_ns", "reset_cycles",
@@ -935,6 +962,14 @@ class _Stimulus:
     stalls: tuple[Flow, ...]
     gaps: tuple[Flow, ...]
     backpressure: tuple[Flow, ...]
+    designs: tuple[str, ...] = ("*",)
+
+    def runs_on(self, design: str) -> bool:
+        """True when ``design`` matches one of the globs and none of the ``!`` globs."""
+        keep = [g for g in self.designs if not g.startswith("!")]
+        drop = [g[1:] for g in self.designs if g.startswith("!")]
+        wanted = not keep or any(fnmatch.fnmatchcase(design, g) for g in keep)
+        return wanted and not any(fnmatch.fnmatchcase(design, g) for g in drop)
 
 
 def _image_size(path: Path) -> tuple[int, int]:
@@ -946,7 +981,7 @@ def _image_size(path: Path) -> tuple[int, int]:
 def _stimuli(st: StimulusConfig) -> list[_Stimulus]:
     """The images, then the pattern entries, each with its own axes or the ``[stimulus]`` ones."""
     axes = dict(timings=tuple(st.timings), stalls=tuple(st.stalls), gaps=tuple(st.gaps),
-                backpressure=tuple(st.backpressure))
+                backpressure=tuple(st.backpressure), designs=tuple(st.designs))
     out = [_Stimulus("image", str(img), img.stem, (), tuple(st.seeds), _image_size(img), **axes) for img in st.images]
     for pe in st.patterns:
         own = {k: getattr(pe, k) for k in axes if getattr(pe, k) is not None}
@@ -1020,7 +1055,7 @@ def expand_matrix(config: Config, simulators: list[str] | None = None) -> list[C
         if not sims:
             skipped.append(d.name)
         for sim in sims:
-            for s in stimuli:
+            for s in (s for s in stimuli if s.runs_on(d.name)):
                 for case in _design_cases(config, d, sim, s):
                     cases.setdefault(case.id, case)
     if not cases:

@@ -10,7 +10,7 @@ from vkit.core.errors import EXIT_CONFIG, EXIT_DUT, EXIT_PASS
 from vkit.report.writers import case_entry
 from vkit.run.config import Case
 
-__all__ = ["CaseResult", "RunResult", "exit_code_for", "case_meta", "error_result"]
+__all__ = ["CaseResult", "RunResult", "exit_code_for", "met_expectation", "case_meta", "error_result"]
 
 
 @dataclass
@@ -62,10 +62,18 @@ class RunResult:
     report_files: dict[str, str]
     builds: list[dict[str, Any]]
     wall_s: float
+    exit_from: str = "verdicts"
+    """``"verdicts"`` or ``"expectations"`` (``[run] exit_code``)."""
 
     @property
     def exit_code(self) -> int:
-        """0 all passed, 1 a design failed, 2 a case could not be judged (config or tool)."""
+        """0 all passed, 1 a design failed, 2 a case could not be judged (config or tool).
+
+        Judged by expectations (``exit_from == "expectations"``), a case marked to fail that failed counts as
+        passed and one that passed as failed (an ``unexpected pass``); errors stay errors.
+        """
+        if self.exit_from == "expectations":
+            return exit_code_for([met_expectation(c) for c in self.cases])
         return exit_code_for([c.status for c in self.cases])
 
     def counts(self) -> dict[str, int]:
@@ -74,6 +82,13 @@ class RunResult:
         for c in self.cases:
             out[c.status] = out.get(c.status, 0) + 1
         return out
+
+
+def met_expectation(case: CaseResult) -> str:
+    """The case's status judged against what the config expected: ``pass`` when it came out as expected."""
+    if case.expect != "fail" or case.status == "error":
+        return case.status
+    return "fail" if case.status == "pass" else "pass"
 
 
 def exit_code_for(statuses: list[str]) -> int:

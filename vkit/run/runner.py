@@ -23,6 +23,7 @@ from typing import Any, TextIO
 
 from vkit.core.errors import ConfigError
 from vkit.core.vocab import DRIVE_MODES, WAVE_MODES
+from vkit.report.page import write_index
 from vkit.report.writers import merge_reports
 from vkit.run.builds import build_design, build_fast_design, build_request, build_wave_design
 from vkit.run.case import rerun_command, run_one_case
@@ -92,7 +93,10 @@ def run(config: Config, jobs: int | None = None, shard: tuple[int, int] | str | 
         raise ConfigError(f"shard {shard} of {config.path.name} holds no case; use fewer shards")
     options = RunOptions.from_settings(config.run, config_path=config.path, out_dir=out_dir, jobs=jobs or None,
                                        waves=waves, drive=drive)
-    return run_cases(cases, options, progress=progress, stream=stream)
+    result = run_cases(cases, options, progress=progress, stream=stream)
+    result.exit_from = config.run.exit_code
+    result.report_files["index"] = str(write_index(result.out_dir, title=f"vkit run: {config.path.name}"))
+    return result
 
 
 def demo_config() -> Config:
@@ -105,5 +109,6 @@ def merge(out_dir: str | Path, reports: list[str | Path]) -> tuple[dict[str, Any
     if not reports:
         raise ConfigError("merge: no report.json given; pass the shard reports (or their folders)")
     merged = merge_reports(list(reports), Path(out_dir))
+    write_index(out_dir, title=f"vkit merge: {len(reports)} shard(s)")
     statuses = [c.get("status") or c.get("verdict", {}).get("status", "error") for c in merged["cases"]]
     return merged, exit_code_for(statuses)

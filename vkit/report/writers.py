@@ -327,6 +327,7 @@ def _report_case(c: Mapping[str, Any]) -> dict[str, Any]:
         "seeds": c.get("seeds", {}),
         "files": c.get("files", {}),
         "coverage": c.get("coverage"),
+        "meta": c.get("meta", {}),
         "verdict": v,
     }
 

@@ -19,7 +19,10 @@ from vkit.model.spec import PipelineSpec
 from vkit.model.widths import StageWidth, dtype_for_range, stage_range_map
 from vkit.model.window import interior_mask, pad
 
-__all__ = ["ORDER_FILTERS", "ModelPlan", "model_plan", "check_image", "new_stage", "run_model", "run_model_frames"]
+__all__ = [
+    "ORDER_FILTERS", "Variation", "ModelPlan", "model_plan", "check_image", "new_stage", "output_levels", "run_model", "run_plan",
+    "run_model_frames",
+]
 
 ORDER_FILTERS: dict[str, Callable[..., np.ndarray]] = {"median": median3x3, "min": minimum3x3, "max": maximum3x3}
 """Order-filter kind to its 3x3 function ``(image, border, constant)``."""
@@ -28,6 +31,32 @@ _BAND_ROWS = 32
 """Rows per band: a band's temporaries stay in cache at the frame widths in use (measured, no source)."""
 _PLAN_CACHE_SIZE = 64
 """Plans kept; specs are few in practice, the bound only stops a long session from growing without end."""
+
+
+@dataclass(frozen=True)
+class Variation:
+    """Departures from the spec that no spec field states: the knobs of the spec mutants
+    (:mod:`vkit.model.mutants`). The default departs from nothing, and the model then runs as before.
+
+    Attributes:
+        limits: ``(stage, bits, "wrap" | "saturate")``: the stage (``luma``, ``gx``, ``gy``,
+            ``filtered``, ``sum_sq``, ``magnitude``) kept in a word of ``bits`` bits (two's complement
+            when the stage is signed), by wrapping around or by saturating.
+        address_overflow: ``"clamp"`` (the spec's) or ``"wrap"`` (the table address keeps its low
+            ``address_bits`` bits).
+        output_overflow: ``"saturate"`` (the spec's) or ``"wrap"`` (the output keeps its low bits).
+        output_top: the output's saturation bound, None for the spec's ``2**bits - 1``.
+        right_border: None, or the value the window reads beyond the right edge (linear filters only).
+    """
+
+    limits: tuple[tuple[str, int, str], ...] = ()
+    address_overflow: str = "clamp"
+    output_overflow: str = "saturate"
+    output_top: int | None = None
+    right_border: int | None = None
+
+
+NO_VARIATION = Variation()
 
 
 @dataclass(frozen=True)
@@ -42,6 +71,7 @@ class ModelPlan:
         kernels: the filter's integer kernels as nested tuples (``gx``/``gy`` or ``filtered``).
         pad_dtype: dtype of the padded window input (wide enough for the weighted sums).
         table: the root table for ``magnitude.method = "table"``, else None.
+        variation: departures from the spec (spec mutants only); none by default.
     """
 
     spec: PipelineSpec
@@ -51,6 +81,7 @@ class ModelPlan:
     kernels: dict[str, tuple[tuple[int, int, int], ...]]
     pad_dtype: np.dtype
     table: np.ndarray | None
+    variation: Variation = NO_VARIATION
 
 
 _PLANS: dict[PipelineSpec, ModelPlan] = {}
@@ -137,9 +168,13 @@ def run_model(spec: PipelineSpec, image: Any, *, keep_stages: bool = True, band_
     Raises:
         ConfigError: wrong image shape or dtype for the spec's input format.
     """
-    img = check_image(spec, image)
+    return run_plan(model_plan(spec), check_image(spec, image), keep_stages=keep_stages, band_rows=band_rows)
+
+
+def run_plan(plan: ModelPlan, img: np.ndarray, *, keep_stages: bool = True, band_rows: int = _BAND_ROWS) -> ModelResult:
+    """:func:`run_model` on a worked-out plan (possibly a mutant's) and a checked image."""
+    spec = plan.spec
     band_rows = want_int("run_model", "band_rows", band_rows, 1)
-    plan = model_plan(spec)
     height, width = img.shape[:2]
     names = [n for n in spec.stage_names() if n != "input"]
     kept = names if keep_stages else ["output"]
@@ -183,12 +218,14 @@ def _filter_band(plan: ModelPlan, src: np.ndarray, top: int, rows: int) -> dict[
     border, constant = spec.window.border, spec.window.constant
     band: dict[str, np.ndarray] = {}
     if spec.luma is not None:
-        src = _luma_rows(plan, src)
+        src = _limit(plan, "luma", _luma_rows(plan, src))
         band["luma"] = src[top : top + rows]
     if filt.is_order:
-        band["filtered"] = ORDER_FILTERS[filt.kind](src, border, constant)[top : top + rows]
+        band["filtered"] = _limit(plan, "filtered", ORDER_FILTERS[filt.kind](src, border, constant)[top : top + rows])
         return band
     padded = pad(src, border, constant, dtype=plan.pad_dtype)[top : top + rows + 2]
+    if plan.variation.right_border is not None:
+        padded[:, -1] = plan.variation.right_border
     for name, k in plan.kernels.items():
         acc = correlate_padded(padded, k)
         if filt.absolute:
@@ -197,8 +234,22 @@ def _filter_band(plan: ModelPlan, src: np.ndarray, top: int, rows: int) -> dict[
             acc = np.floor_divide(acc + 4, 9) if filt.rounding == "half_up" else np.floor_divide(acc, 9)
         else:
             acc = shift_round(acc, filt.shift, filt.rounding)
-        band[name] = acc
+        band[name] = _limit(plan, name, acc)
     return band
+
+
+def _limit(plan: ModelPlan, name: str, value: np.ndarray) -> np.ndarray:
+    """``value`` kept in the word :attr:`Variation.limits` gives stage ``name``; unchanged without one."""
+    for stage, bits, how in plan.variation.limits:
+        if stage != name:
+            continue
+        signed = plan.widths[name].signed
+        lo, hi = (-(1 << (bits - 1)), (1 << (bits - 1)) - 1) if signed else (0, (1 << bits) - 1)
+        if how == "saturate":
+            value = np.clip(value, lo, hi)
+        else:
+            value = ((value.astype(np.int64) - lo) & ((1 << bits) - 1)) + lo
+    return value
 
 
 def _output_band(plan: ModelPlan, value: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
@@ -212,10 +263,18 @@ def _output_band(plan: ModelPlan, value: np.ndarray) -> tuple[np.ndarray, np.nda
     if out_spec.shift:
         v = np.right_shift(v, out_spec.shift)
     clamped = None
-    if plan.widths["output"].can_clamp:
+    var = plan.variation
+    if var is not NO_VARIATION:
+        v = v & top_value if var.output_overflow == "wrap" else np.clip(v, 0, top_value if var.output_top is None else var.output_top)
+    elif plan.widths["output"].can_clamp:
         clamped = (v < 0) | (v > top_value)
         v = np.clip(v, 0, top_value)
     return out_spec.levels(v, top_value), clamped
+
+
+def output_levels(plan: ModelPlan, value: np.ndarray) -> np.ndarray:
+    """The output pixels the last stage's ``value`` maps to (scale, shift, saturate, invert, threshold)."""
+    return _output_band(plan, value)[0]
 
 
 def _luma_rows(plan: ModelPlan, img: np.ndarray) -> np.ndarray:
@@ -256,17 +315,21 @@ def _magnitude_band(plan: ModelPlan, band: dict[str, np.ndarray], views: dict[st
         ss = views.get("sum_sq")
         ss = np.multiply(gx, gx, dtype=sq_type, out=ss)
         ss += np.multiply(gy, gy, dtype=sq_type)
-        band["sum_sq"] = ss
+        ss = band["sum_sq"] = _limit(plan, "sum_sq", ss)
         if m.method == "exact":
-            return magmod.isqrt(ss).astype(plan.dtypes["magnitude"], copy=False)
-        addr, clamped = magmod.table_address(ss, m.shift, m.address_bits)
+            return _limit(plan, "magnitude", magmod.isqrt(ss).astype(plan.dtypes["magnitude"], copy=False))
+        if plan.variation.address_overflow == "wrap":
+            ss = np.right_shift(ss, m.shift) & ((1 << m.address_bits) - 1)
+            addr, clamped = magmod.table_address(ss, 0, m.address_bits)
+        else:
+            addr, clamped = magmod.table_address(ss, m.shift, m.address_bits)
         band["address_clamped"] = clamped
         band["address"] = addr
         assert plan.table is not None
         out = views.get("magnitude")
         return plan.table.take(addr) if out is None else plan.table.take(addr, out=out)
     func = magmod.magnitude_abs_sum if m.method == "abs_sum" else magmod.magnitude_max_min_half
-    return np.asarray(func(gx, gy)).astype(plan.dtypes["magnitude"], copy=False)
+    return _limit(plan, "magnitude", np.asarray(func(gx, gy)).astype(plan.dtypes["magnitude"], copy=False))
 
 
 def run_model_frames(spec: PipelineSpec, frames: Iterable[Any], *, keep_stages: bool = True) -> list[ModelResult]:

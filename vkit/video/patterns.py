@@ -8,6 +8,7 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from vkit.core.errors import ConfigError
+from vkit.video.killers import killers
 
 __all__ = [
     "PATTERNS",
@@ -437,6 +438,7 @@ PATTERNS: dict[str, Callable[..., np.ndarray]] = {
     "noise": noise,
     "flat": flat,
     "conveyor": conveyor,
+    "killers": killers,  # frames that kill spec mutants (vkit.video.killers)
 }
 """Pattern name -> generator taking ``(height, width, **options)`` and returning uint8."""
 

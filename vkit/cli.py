@@ -252,6 +252,32 @@ _WAVES = (
 )
 _SPEC = _arg("spec", help="pipeline preset name or spec TOML file")
 
+def _cmd_strength(args: argparse.Namespace) -> int:
+    import numpy as np
+
+    from vkit.model.strength import stimulus_strength
+    from vkit.video.synthesis import SCAFFOLD_PATTERNS, stimulus_frames, synthesize
+
+    spec = _spec(args.spec)
+    w, h = args.size
+    frames = stimulus_frames(spec, args.stimulus or list(SCAFFOLD_PATTERNS), w, h, frames=args.frames)
+    report = stimulus_strength(spec, frames)
+    added = synthesize(spec, frames, w, h) if args.synthesize else []
+    data = report.to_dict()
+    if added:
+        data["synthesized"] = [label for label, _ in added]
+        data["with_synthesized"] = stimulus_strength(spec, np.concatenate([frames, [f for _, f in added]])).to_dict()
+    if args.json:
+        print(json.dumps(data, indent=2))
+        return EXIT_PASS
+    print(report.text())
+    if added:
+        after = data["with_synthesized"]
+        print(f"with {', '.join(data['synthesized'])} added: kills {after['killed']} of {after['mutants']} "
+              f"({100 * after['kill_rate']:.1f}%)")
+    return EXIT_PASS
+
+
 _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any, ...]], ...] = (
     ("run", "run a regression config", _cmd_run, (
         _arg("config", help="config TOML (or a pyproject.toml with [tool.vkit])"),
@@ -297,6 +323,14 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
     ("widths", "print each stage's range and bits", _cmd_widths, (
         _SPEC,
         _arg("--json", action="store_true", help="print JSON instead of a table"),
+    )),
+    ("strength", "which spec mutants a stimulus kills, and why the rest survive (no simulator)", _cmd_strength, (
+        _SPEC,
+        _arg("stimulus", nargs="*", help="pattern names (name or name:seed) or image files (default: the scaffold's)"),
+        _arg("--size", type=_size, default=(32, 24), help="WIDTHxHEIGHT (default 32x24)"),
+        _arg("--frames", type=int, default=2, help="frames per pattern (default 2, as a scaffolded config)"),
+        _arg("--synthesize", action="store_true", help="also pick frames that kill the survivors"),
+        _arg("--json", action="store_true", help="print JSON instead of text"),
     )),
     ("lut", "write a lookup table file", _cmd_lut, (
         _arg("kind", choices=["root"], help="table kind"),

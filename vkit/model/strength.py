@@ -3,12 +3,12 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any, Sequence
+from typing import Any, Mapping, Sequence
 
 import numpy as np
 
 from vkit.model.exact import check_image, run_model, run_plan
-from vkit.model.mutants import Mutant, spec_mutants
+from vkit.model.mutants import Mutant, mutant_outputs, spec_mutants
 from vkit.model.quality import StageCoverage
 from vkit.model.result import ModelResult
 from vkit.model.spec import PipelineSpec
@@ -168,20 +168,24 @@ def _table_share(spec: PipelineSpec, runs: list[ModelResult]) -> float | None:
     return len(seen) / (1 << spec.magnitude.address_bits)
 
 
-def stimulus_strength(spec: PipelineSpec, frames: Any, mutants: Sequence[Mutant] | None = None) -> StrengthReport:
+def stimulus_strength(spec: PipelineSpec, frames: Any, mutants: Sequence[Mutant] | None = None,
+                      outputs: Mapping[str, tuple[str, np.ndarray]] | None = None) -> StrengthReport:
     """Run every mutant of ``spec`` on ``frames`` (``(N, H, W[, 3])`` or one frame, uint8) and say which
-    the frames kill, why the others survive, the stages' range coverage and the table-address share."""
+    the frames kill, why the others survive, the stages' range coverage and the table-address share.
+
+    ``outputs`` (mutant name -> (description, ``(N, H, W)`` output), as the diagnosis by mutants makes
+    them) saves running the mutants a second time."""
     mutants = list(spec_mutants(spec) if mutants is None else mutants)
     imgs = _frames(spec, frames)
     runs = [run_model(spec, img) for img in imgs]
-    per_frame = kill_sets(spec, imgs, mutants)
+    truth = np.stack([r.output for r in runs])
+    checked = np.stack([r.valid_mask for r in runs])
     verdicts = []
-    for i, m in enumerate(mutants):
-        killed = any(k[i] for k in per_frame)
-        pixels = 0
-        if killed:
-            pixels = sum(int(np.count_nonzero((run_plan(m.plan, img, keep_stages=False).output != r.output)
-                                              & r.valid_mask)) for img, r in zip(imgs, runs))
-        reason = "" if killed else (m.equivalent or _reason(m, spec, imgs, runs))
-        verdicts.append(MutantVerdict(m, killed, pixels, reason))
+    for m in mutants:
+        if m.equivalent:
+            verdicts.append(MutantVerdict(m, False, 0, m.equivalent))
+            continue
+        out = outputs[m.name][1] if outputs is not None and m.name in outputs else mutant_outputs(m, imgs, spec)
+        pixels = int(np.count_nonzero((out != truth) & checked))
+        verdicts.append(MutantVerdict(m, pixels > 0, pixels, "" if pixels else _reason(m, spec, imgs, runs)))
     return StrengthReport(spec.name, len(imgs), verdicts, _coverage(runs), _table_share(spec, runs))

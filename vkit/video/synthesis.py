@@ -1,0 +1,83 @@
+"""Stimulus for the strength report: frames from pattern names or images, and the frames chosen to kill
+the mutants a stimulus leaves alive."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Sequence
+
+import numpy as np
+
+from vkit.core.errors import ConfigError
+from vkit.model.mutants import Mutant, spec_mutants
+from vkit.model.spec import PipelineSpec
+from vkit.model.strength import kill_sets
+from vkit.video.images import load_image
+from vkit.video.killers import KILLER_PARTS
+from vkit.video.patterns import PATTERNS, make_pattern
+
+__all__ = ["SCAFFOLD_PATTERNS", "KILLER_SEEDS", "stimulus_frames", "synthesize"]
+
+SCAFFOLD_PATTERNS = ("impulse", "step_right", "checkerboard", "ramp_h", "noise", "conveyor:1", "conveyor:2")
+"""The stimulus a freshly scaffolded config runs (``vkit init``), as ``name[:seed]``; 2 frames each."""
+
+KILLER_SEEDS = tuple(range(len(KILLER_PARTS)))
+"""Seeds of the ``killers`` pattern that give each of its parts once."""
+
+_CANDIDATE_SEEDS = 3
+"""Extra seeds of each seeded candidate pattern offered to :func:`synthesize` (enough to find a second
+border or colour frame when one is not enough; measured on the sample specs)."""
+
+
+def stimulus_frames(spec: PipelineSpec, items: Sequence[str], width: int, height: int, frames: int = 2,
+                    seed: int = 1) -> np.ndarray:
+    """Frames of ``items`` in ``spec``'s input format: a pattern name (``name`` or ``name:seed``, frame k
+    with seed + k, as a case makes them) or an image file (centre-cropped to ``width`` x ``height``)."""
+    rgb = spec.input == "rgb888"
+    out = []
+    for item in items:
+        name, _, own = item.partition(":")
+        if name in PATTERNS:
+            base = int(own) if own else seed
+            out += [make_pattern(name, height, width, seed=base + k, rgb=rgb) for k in range(frames)]
+            continue
+        if not Path(item).is_file():
+            raise ConfigError(f"stimulus {item!r} is neither a pattern ({', '.join(PATTERNS)}) nor an image file; "
+                              "fix the name or the path")
+        img = load_image(item, mode=spec.input)
+        top, left = max(0, (img.shape[0] - height) // 2), max(0, (img.shape[1] - width) // 2)
+        out.append(img[top : top + height, left : left + width])
+    shapes = {f.shape for f in out}
+    if len(shapes) != 1:
+        raise ConfigError(f"stimulus frames have different sizes {sorted(shapes)}; give images of at least "
+                          f"{width}x{height} pixels")
+    return np.stack(out).astype(np.uint8)
+
+
+def _candidates(spec: PipelineSpec, width: int, height: int) -> list[tuple[str, np.ndarray]]:
+    rgb = spec.input == "rgb888"
+    seeds = range(len(KILLER_PARTS) * _CANDIDATE_SEEDS)
+    out = [(f"killers:{s}", make_pattern("killers", height, width, seed=s, rgb=rgb)) for s in seeds]
+    out += [(f"noise:{s}", make_pattern("noise", height, width, seed=s, rgb=rgb)) for s in range(_CANDIDATE_SEEDS)]
+    return out
+
+
+def synthesize(spec: PipelineSpec, frames: np.ndarray, width: int, height: int,
+               mutants: Sequence[Mutant] | None = None) -> list[tuple[str, np.ndarray]]:
+    """Frames that kill the mutants ``frames`` leave alive, chosen greedily (each pick kills the most of
+    the rest) from the ``killers`` parts and noise; ``(label, frame)`` pairs, label ``pattern:seed``.
+
+    Mutants no candidate kills stay alive (the strength report gives the reason)."""
+    mutants = [m for m in (spec_mutants(spec) if mutants is None else mutants) if not m.equivalent]
+    alive = ~np.any(kill_sets(spec, frames, mutants), axis=0) if len(frames) else np.ones(len(mutants), bool)
+    pool = _candidates(spec, width, height)
+    kills = kill_sets(spec, np.stack([f for _, f in pool]), mutants)
+    chosen = []
+    while alive.any():
+        gains = [int(np.count_nonzero(k & alive)) for k in kills]
+        best = int(np.argmax(gains))
+        if gains[best] == 0:
+            break
+        chosen.append(pool[best])
+        alive &= ~kills[best]
+    return chosen

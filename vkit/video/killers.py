@@ -38,9 +38,10 @@ def border_rings(height: int, width: int, seed: int = 0) -> np.ndarray:
     ring0[[0, -1], :] = True
     ring0[:, [0, -1]] = True
     ring1 = np.zeros_like(ring0)
-    ring1[[1, -2], 1:-1] = True
-    ring1[1:-1, [1, -2]] = True
-    ring1 &= ~ring0
+    if height >= 3 and width >= 3:
+        ring1[[1, -2], 1:-1] = True
+        ring1[1:-1, [1, -2]] = True
+        ring1 &= ~ring0
     alt = ((np.arange(height)[:, None] + np.arange(width)[None, :]) % 4 < 2)
     out[ring0] = np.where(alt, 255, 200)[ring0]
     out[ring1] = np.where(alt, 0, 60)[ring1]
@@ -63,8 +64,9 @@ def killers(height: int, width: int, seed: int = 0, rgb: bool = False) -> np.nda
     Give four consecutive seeds (``seeds = [0, 2]`` with ``frames = 2``) for the whole set. Grey parts
     are copied into R, G, B for ``rgb``; ``colour_noise`` is taken to grey by BT.601 weights for ``gray``.
     """
-    if height < 8 or width < 8:
-        raise ConfigError(f"killers pattern: {width}x{height} pixels is too small; give at least 8x8")
+    if isinstance(height, bool) or not isinstance(height, (int, np.integer)) or height < 1 or \
+            isinstance(width, bool) or not isinstance(width, (int, np.integer)) or width < 1:
+        raise ConfigError(f"killers pattern: {width!r}x{height!r} pixels; give integers >= 1 (32x24 or more kills best)")
     part = KILLER_PARTS[seed % len(KILLER_PARTS)]
     if part == "colour_noise":
         out = colour_noise(height, width, seed)

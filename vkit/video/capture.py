@@ -83,6 +83,11 @@ class RunFacts:
     extra: dict[str, Any] = field(default_factory=dict)
     """Keys of a saved capture that are none of the fields above (kept so they are saved again)."""
 
+    @property
+    def stop_clocks(self) -> int | None:
+        """Clocks a timed-out run stopped after: ``timeout_clocks``, else ``clocks_run``; None if neither is known."""
+        return self.timeout_clocks if self.timeout_clocks is not None else self.clocks_run
+
     def to_dict(self) -> dict[str, Any]:
         """The facts as a JSON-ready dict: every field that is not None, then the ``extra`` keys."""
         out = {f.name: getattr(self, f.name) for f in fields(self) if f.name != "extra"}

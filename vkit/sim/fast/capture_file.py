@@ -129,7 +129,7 @@ def parse_capture_binary(
         c = int(code[i])
         return CAPTURE_ROLES[c] if 0 < c < len(CAPTURE_ROLES) else "-"
 
-    return _build(family, clock_all, kind_a, arg, values, int(xz.sum()), height, split_on_height, meta)
+    return _build(family, clock_all, kind_a, arg, values, int(xz.sum()), height, split_on_height, facts)
 
 
 def is_binary_capture(head: bytes) -> bool:
@@ -364,7 +364,7 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
 
     Args:
         path: the ``capture.bin`` / ``capture.txt`` the harness wrote.
-        case: the case the run was made from (gives the input-side meta and how frames split).
+        case: the case the run was made from (gives the input-side run facts and how frames split).
         stim: the stimulus the run used, if at hand (saves rebuilding it).
 
     Raises:

@@ -92,7 +92,7 @@ def _per_clock(sim: str, work: Path, frames: Path, n_frames: int, fraction: floa
         secs = _timed(lambda: runner.test(hdl_toplevel="edge_core", test_module="vkit.sim.tb.entry",
                                           build_dir=work / "build", test_dir=work,
                                           extra_env={CASE_ENV: str(case_json)}, parameters=PARAMS))
-        return secs, int(Capture.load(case.capture_file).meta.get("clocks_run") or 0)
+        return secs, int(Capture.load(case.capture_file).facts.clocks_run or 0)
 
     return run
 
@@ -111,7 +111,7 @@ def _fast(sim: str, work: Path, frames: Path, n_frames: int, stim_secs: list[flo
         kw = fast_test_args(case, sim)
         stim_secs.append(time.perf_counter() - t0)
         runner.test(build_dir=work / "build", **kw)
-        return time.perf_counter() - t0, int(Capture.load(case.capture_file).meta["clocks_run"])
+        return time.perf_counter() - t0, int(Capture.load(case.capture_file).facts.clocks_run)
 
     return run
 
@@ -123,7 +123,7 @@ def _native(sim: str, work: Path, frames: Path, n_frames: int) -> Run:
     def run(seed: int) -> tuple[float, int]:
         case = _case(work, frames, n_frames, seed)
         secs = _timed(lambda: run_native(case, sim, work / "build"))
-        return secs, int(Capture.load(case.capture_file).meta["clocks_run"])
+        return secs, int(Capture.load(case.capture_file).facts.clocks_run)
 
     return run
 

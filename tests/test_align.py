@@ -9,7 +9,7 @@ from hypothesis import strategies as st
 from scipy import ndimage
 
 from vkit.check.align import Offset, infer_border, latency_clocks, measure_offset, shift_back
-from vkit.video.capture import UNKNOWN, CaptureBuilder
+from vkit.video.capture import UNKNOWN, CaptureBuilder, RunFacts
 from vkit.core.errors import ConfigError
 from vkit.model.pipeline import preset, run_model
 
@@ -88,16 +88,16 @@ def test_shape_mismatch_is_a_config_error() -> None:
 
 
 def test_latency_from_meta_or_first_clocks() -> None:
-    b = CaptureBuilder({"first_input_clock": 10})
+    b = CaptureBuilder(RunFacts(first_input_clock=10))
     b.add(5, 47)
     assert latency_clocks(b.build()) == 37
-    b.meta["latency_clocks"] = 12
+    b.facts.latency_clocks = 12
     assert latency_clocks(b.build()) == 12
     assert latency_clocks(CaptureBuilder().build()) is None
 
 
 def _capture(frames: list[np.ndarray]):
-    b = CaptureBuilder({"frames_sent": len(frames)})
+    b = CaptureBuilder(RunFacts(frames_sent=len(frames)))
     clk = 0
     for f in frames:
         b.new_frame()

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from scipy import ndimage
 
-from vkit.video.capture import UNKNOWN, CaptureBuilder
+from vkit.video.capture import UNKNOWN, CaptureBuilder, RunFacts
 from vkit.check.diagnose import KINDS
 from vkit.model.pipeline import preset, run_model
 from vkit.check.scoreboard import score
@@ -20,7 +20,7 @@ def pack(frames, meta=None, *, skip_lines=(), rows=None):
     """A capture as a video monitor builds it; ``rows`` may replace whole output lines (any length)."""
     m = {"frames_sent": len(frames), "first_input_clock": 0}
     m.update(meta or {})
-    b = CaptureBuilder(m)
+    b = CaptureBuilder(RunFacts(**m))
     clk = 30
     for f in frames:
         b.new_frame()

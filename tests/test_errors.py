@@ -103,9 +103,9 @@ def test_missing_port_is_caught_by_the_simulator_side_too(tmp_path, build_cache_
     capture_file = simulate(case, outcome.build_dir, sim_dir, make_frames(case), 60)
     from vkit.video.capture import Capture
 
-    meta = Capture.load(capture_file).meta
-    assert meta["error"].startswith("ConfigError: role 'out_de' -> port 'frame_de' not found in DUT 'blur_mangle'; ")
-    assert (sim_dir / "capture.error.txt").read_text().strip() == meta["error"]
+    meta = Capture.load(capture_file).facts
+    assert meta.error.startswith("ConfigError: role 'out_de' -> port 'frame_de' not found in DUT 'blur_mangle'; ")
+    assert (sim_dir / "capture.error.txt").read_text().strip() == meta.error
 
 
 @pytest.mark.sim
@@ -153,7 +153,7 @@ def test_silent_design_times_out_and_keeps_the_partial_capture(tmp_path, build_c
     from vkit.video.capture import Capture
 
     cap = Capture.load(tmp_path / "out" / case["files"]["capture"])
-    assert cap.meta["timed_out"] and cap.meta["clocks_run"] >= 3000 and len(cap) == 0
+    assert cap.facts.timed_out and cap.facts.clocks_run >= 3000 and len(cap) == 0
     assert "waves" not in case["files"]  # waves = "off"
 
 

@@ -58,8 +58,8 @@ def test_exported_verilog_testbench_passes_and_reads_back(sim: str, tmp_path: Pa
     assert len(views) == 2
     for view, want in zip(views, frames):
         np.testing.assert_array_equal(view.pixels, want)
-    assert cap.meta["latency_clocks"] == 1 and cap.meta["timed_out"] is False
-    assert cap.meta["output_hsync_per_frame"] == cap.meta["input_hsync_per_frame"]
+    assert cap.facts.latency_clocks == 1 and cap.facts.timed_out is False
+    assert cap.facts.output_hsync_per_frame == cap.facts.input_hsync_per_frame
 
 
 @pytest.mark.sim

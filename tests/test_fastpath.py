@@ -9,7 +9,7 @@ from typing import Any
 import numpy as np
 import pytest
 
-from vkit.video.capture import UNKNOWN, Capture
+from vkit.video.capture import UNKNOWN, Capture, RunFacts
 from vkit.sim.fast.capture_file import parse_capture_text
 from vkit.core.errors import ConfigError
 from vkit.sim.fast.build import fast_build_plan, fast_test_args
@@ -89,19 +89,19 @@ def test_capture_text_rebuilds_frames_lines_and_events() -> None:
         "3 P 0a", "4 P U", "5 L -", "6 X out_de", "7 P 0b", "8 L -",
         "9 H -", "10 F -", "10 B -", "11 P ff", "12 L -", "20 E -", "",
     ])
-    cap = parse_capture_text(text, meta={"first_input_clock": 1})
+    cap = parse_capture_text(text, facts=RunFacts(first_input_clock=1))
     assert cap.values.tolist() == [10, UNKNOWN, 11, 255]
     assert cap.frame.tolist() == [0, 0, 0, 1] and cap.line.tolist() == [0, 0, 1, 0]
     assert cap.column.tolist() == [0, 1, 0, 0]
-    m = cap.meta
-    assert m["xz_data_count"] == 1 and m["xz_control"] == [[6, "out_de"]] and m["de_in_blanking"] == [10]
-    assert m["output_vsync_count"] == 1 and m["output_hsync_per_frame"] == [1]
-    assert m["latency_clocks"] == 2 and m["clocks_run"] == 20 and m["timed_out"] is False
+    m = cap.facts
+    assert m.xz_data_count == 1 and m.xz_control == [[6, "out_de"]] and m.de_in_blanking == [10]
+    assert m.output_vsync_count == 1 and m.output_hsync_per_frame == [1]
+    assert m.latency_clocks == 2 and m.clocks_run == 20 and m.timed_out is False
 
 
 def test_capture_text_without_end_line_is_a_partial_timed_out_run() -> None:
     cap = parse_capture_text("# vkit capture 1 stream\n5 F -\n5 P 01\n6 P 02")
-    assert len(cap) == 2 and cap.meta["timed_out"] is True and cap.meta["clocks_run"] == 7
+    assert len(cap) == 2 and cap.facts.timed_out is True and cap.facts.clocks_run == 7
     with pytest.raises(ConfigError):
         parse_capture_text("not a capture\n")
 
@@ -132,15 +132,15 @@ def test_binary_capture_gives_the_same_capture_as_text() -> None:
     events = [(3, "P", 0, 10), (4, "P", 1, 0), (5, "L", 0, 0), (6, "X", CAPTURE_ROLES.index("out_de"), 0),
               (7, "P", 0, 11), (8, "L", 0, 0), (9, "H", 0, 0), (10, "F", 0, 0), (10, "B", 0, 0), (11, "P", 0, 255),
               (12, "L", 0, 0), (20, "E", 0, 0)]
-    a = parse_capture_text(text, meta={"first_input_clock": 1})
-    b = parse_capture_binary(_binary_records(events, 0, 8), meta={"first_input_clock": 1})
+    a = parse_capture_text(text, facts=RunFacts(first_input_clock=1))
+    b = parse_capture_binary(_binary_records(events, 0, 8), facts=RunFacts(first_input_clock=1))
     _assert_same_capture(a, b)
     # A 40-bit bus spans two data words; a cut-off last record is dropped, as a cut-off text line is.
     wide = _binary_records([(1, "F", 0, 0), (2, "P", 0, 0xAB_CDEF_0123), (3, "P", 0, 5)], 1, 40)
     c = parse_capture_binary(wide[:-3])
     d = parse_capture_text("# vkit capture 1 stream\n1 F -\n2 P abcdef0123\n3 P")  # the text run cut mid-line
     _assert_same_capture(c, d)
-    assert c.values.tolist() == [0xAB_CDEF_0123] and c.meta["timed_out"] is True
+    assert c.values.tolist() == [0xAB_CDEF_0123] and c.facts.timed_out is True
     with pytest.raises(ConfigError):
         parse_capture_binary(b"# vkit capture 1 video\n")
 
@@ -150,7 +150,7 @@ def _assert_same_capture(a: Capture, b: Capture) -> None:
         x, y = getattr(a, key), getattr(b, key)
         assert x.dtype == y.dtype == np.int64, key
         np.testing.assert_array_equal(x, y, err_msg=key)
-    assert a.meta == b.meta
+    assert a.facts == b.facts
 
 
 def test_hex_file_matches_python_formatting(tmp_path: Path) -> None:
@@ -194,13 +194,13 @@ def test_fast_video_passthrough_returns_the_input(sim: str, tmp_path: Path) -> N
     case = _video_case(tmp_path, stalls={"probability": 0.1, "max_length": 3, "seed": 2}, simulator=sim)
     cap = run_fast(sim, case, "fast_video_pass", [HDL / "fast_video_pass.v"], tmp_path)
     _assert_same_frames(cap, case.load_frames())
-    m = cap.meta
-    assert m["timed_out"] is False and m["path"] == "fast"
-    assert m["latency_clocks"] == 1  # one register stage in fast_video_pass.v
-    assert m["output_vsync_count"] == m["input_vsync_count"] == 2
-    assert m["output_hsync_per_frame"] == m["input_hsync_per_frame"]
-    assert m["xz_control"] == [] and m["de_in_blanking"] == []
-    assert len(m["stall_pixels"]) > 0
+    m = cap.facts
+    assert m.timed_out is False and m.path == "fast"
+    assert m.latency_clocks == 1  # one register stage in fast_video_pass.v
+    assert m.output_vsync_count == m.input_vsync_count == 2
+    assert m.output_hsync_per_frame == m.input_hsync_per_frame
+    assert m.xz_control == [] and m.de_in_blanking == []
+    assert len(m.stall_pixels) > 0
 
 
 @pytest.mark.sim
@@ -211,8 +211,8 @@ def test_fast_stream_passthrough_with_gaps_and_backpressure(sim: str, tmp_path: 
                         backpressure={"probability": 0.3, "max_length": 5, "seed": 2})
     cap = run_fast(sim, case, "fast_stream_pass", [HDL / "fast_stream_pass.v"], tmp_path)
     _assert_same_frames(cap, case.load_frames())
-    assert cap.meta["timed_out"] is False
-    assert len(cap.meta["backpressure_pixels"]) > 0 and len(cap.meta["stall_pixels"]) > 0
+    assert cap.facts.timed_out is False
+    assert len(cap.facts.backpressure_pixels) > 0 and len(cap.facts.stall_pixels) > 0
     # Every listed back-pressure pixel arrived right after a clock with ready low: a stall seen as a gap.
     clocks = np.sort(cap.clock)
     assert np.all(np.diff(clocks) >= 1)
@@ -256,9 +256,9 @@ def test_fast_path_timeout_saves_a_partial_capture(tmp_path: Path) -> None:
     _require("icarus")
     case = _video_case(tmp_path, timeout_clocks=900)
     cap = run_fast("icarus", case, "fast_video_pass", [HDL / "fast_video_pass.v"], tmp_path)
-    assert cap.meta["timed_out"] is True
+    assert cap.facts.timed_out is True
     assert 0 < len(cap) < 2 * 32 * 24
-    assert cap.meta["clocks_run"] == 900  # first input pixel is clock 0, so the harness stops at 900
+    assert cap.facts.clocks_run == 900  # first input pixel is clock 0, so the harness stops at 900
 
 
 @pytest.mark.sim
@@ -270,7 +270,7 @@ def test_fast_path_on_ghdl_with_the_vhdl_harness(tmp_path: Path) -> None:
     except SystemExit as exc:  # pragma: no cover - reported by the runner on a build failure
         raise AssertionError(f"GHDL run failed: {exc}") from None
     _assert_same_frames(cap, case.load_frames())
-    assert cap.meta["latency_clocks"] == 1
+    assert cap.facts.latency_clocks == 1
 
 
 @pytest.mark.sim
@@ -286,7 +286,7 @@ def test_fast_path_matches_the_per_clock_path(sim: str, tmp_path: Path) -> None:
     for key in ("values", "frame", "line", "column", "clock"):
         np.testing.assert_array_equal(getattr(fast, key), getattr(slow, key), err_msg=key)
     for key in ("latency_clocks", "output_vsync_count", "output_hsync_per_frame", "first_input_clock"):
-        assert fast.meta[key] == slow.meta[key], key
+        assert getattr(fast.facts, key) == getattr(slow.facts, key), key
 
 
 def _run_per_clock(sim: str, case: SimCase, top: str, sources: list[Path], work: Path, *,
@@ -362,12 +362,12 @@ def test_one_build_runs_different_timing_stalls_seeds_and_frame_counts(tmp_path:
     for cap, case in zip(caps, (a, b)):
         # A pass-through design returns its input (fast_video_pass.v: out_data = in_data, 1 clock).
         _assert_same_frames(cap, case.load_frames())
-        assert cap.meta["latency_clocks"] == 1 and cap.meta["timed_out"] is False
-    assert caps[0].meta["output_hsync_per_frame"] == caps[0].meta["input_hsync_per_frame"]
+        assert cap.facts.latency_clocks == 1 and cap.facts.timed_out is False
+    assert caps[0].facts.output_hsync_per_frame == caps[0].facts.input_hsync_per_frame
     # Active-low syncs given at run time: the pass-through resets its outputs to 0 (= active), so it
     # shows one extra sync edge out of reset; every input frame's hsyncs come out after it.
-    assert caps[1].meta["output_hsync_per_frame"][-2:] == caps[1].meta["input_hsync_per_frame"][-2:]
-    assert len(caps[1].meta["stall_pixels"]) > 0
+    assert caps[1].facts.output_hsync_per_frame[-2:] == caps[1].facts.input_hsync_per_frame[-2:]
+    assert len(caps[1].facts.stall_pixels) > 0
 
 
 @pytest.mark.sim
@@ -401,7 +401,7 @@ def test_sample_cores_fast_path_equals_per_clock_path(design: str, sim: str, tmp
         np.testing.assert_array_equal(getattr(fast, key), getattr(slow, key), err_msg=key)
     for key in ("latency_clocks", "output_vsync_count", "output_hsync_per_frame", "first_input_clock",
                 "xz_data_count", "de_in_blanking"):
-        assert fast.meta[key] == slow.meta[key], key
+        assert getattr(fast.facts, key) == getattr(slow.facts, key), key
     if design == "edge_core":
         # The native run (same vkit_fast_top as a plain executable, no cocotb) gives the identical Capture.
         from vkit.sim.fast.native import native_build, run_native
@@ -413,10 +413,10 @@ def test_sample_cores_fast_path_equals_per_clock_path(design: str, sim: str, tmp
                                out_dir=work / "harness", pixel_format=case.pixel_format)
         native_build(plan, sim, tmp_path / "native_build")
         native = run_native(case, sim, tmp_path / "native_build", timeout_s=120)
-        assert Capture.load(case.capture_file).meta["path"] == "native" and native.meta["path"] == "native"
+        assert Capture.load(case.capture_file).facts.path == "native" and native.facts.path == "native"
         for cap in (fast, native):
-            cap.meta.pop("path")
-            cap.meta.pop("simulator", None)
+            cap.facts.path = None
+            cap.facts.simulator = None
         _assert_same_capture(fast, native)
     # Both equal the bit-exact model on every checked pixel (the model is tested against SciPy/OpenCV).
     frames = np.load(tmp_path / "fast" / "frames.npy")
@@ -426,7 +426,7 @@ def test_sample_cores_fast_path_equals_per_clock_path(design: str, sim: str, tmp
         np.testing.assert_array_equal(view.pixels[want.valid_mask], want.output[want.valid_mask])
     # latency_clocks in designs.toml is measured without stalls on tiny32x24; the first line has no stall
     # before its first output pixel only by chance, so check the declared figure on the pipeline instead.
-    assert fast.meta["latency_clocks"] >= d["latency_clocks"]
+    assert fast.facts.latency_clocks >= d["latency_clocks"]
 
 
 def _variants() -> list[tuple[str, str | None]]:

@@ -23,7 +23,7 @@ from vkit.report import page
 from vkit.report.figures import mismatches_per_line
 from vkit.report.page import write_index, write_model_page
 from vkit.report.writers import case_entry, write_case_report, write_run_report
-from vkit.video.capture import UNKNOWN, CaptureBuilder
+from vkit.video.capture import UNKNOWN, CaptureBuilder, RunFacts
 from vkit.video.patterns import box, checkerboard
 
 H, W = 24, 32
@@ -35,7 +35,7 @@ VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "met
 
 
 def _pack(frames, rows=None):
-    b = CaptureBuilder({"frames_sent": len(frames), "first_input_clock": 0})
+    b = CaptureBuilder(RunFacts(frames_sent=len(frames), first_input_clock=0))
     clk = 17
     for f in frames:
         b.new_frame()

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from vkit.video.capture import UNKNOWN, CaptureBuilder
+from vkit.video.capture import UNKNOWN, CaptureBuilder, RunFacts
 from vkit.core.errors import ConfigError
 from vkit.model.pipeline import preset, run_model
 from vkit.report.writers import (
@@ -29,7 +29,7 @@ H, W = 24, 32
 
 
 def pack(frames, meta=None, rows=None):
-    b = CaptureBuilder({"frames_sent": len(frames), "first_input_clock": 0, **(meta or {})})
+    b = CaptureBuilder(RunFacts(frames_sent=len(frames), first_input_clock=0, **(meta or {})))
     clk = 17
     for f in frames:
         b.new_frame()
@@ -119,7 +119,7 @@ def test_run_report_json_junit_and_summary(failing, tmp_path) -> None:
     r, cap, v = failing
     files = write_case_report("blur-bad", v, [r, r], cap, tmp_path)
     ok = score([r], pack([r.output]))
-    no_out = score([r], CaptureBuilder({"timed_out": True, "timeout_clocks": 10}).build())
+    no_out = score([r], CaptureBuilder(RunFacts(timed_out=True, timeout_clocks=10)).build())
     cases = [
         case_entry("blur-bad", v, simulator="icarus", seeds={"image": 1}, files=files, coverage={"lines": 0.9}),
         case_entry("blur-ok", ok, simulator="verilator"),

@@ -10,7 +10,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from vkit.video.capture import UNKNOWN, Capture, CaptureBuilder
+from vkit.video.capture import UNKNOWN, Capture, CaptureBuilder, RunFacts
 from vkit.core.errors import ConfigError
 from vkit.model.pipeline import preset, run_model
 from vkit.check.scoreboard import score
@@ -20,7 +20,7 @@ def pack(frames, meta=None, *, first_clock=20, line_gap=6, skip_lines=()):
     """Build a capture as a video monitor would: one data-enable run per line, a vsync per frame."""
     m = {"frames_sent": len(frames), "first_input_clock": 0}
     m.update(meta or {})
-    b = CaptureBuilder(m)
+    b = CaptureBuilder(RunFacts(**m))
     clk = first_clock
     for f in frames:
         b.new_frame()
@@ -122,7 +122,7 @@ def test_unknown_pixels_are_failures_and_named(edge) -> None:
 
 def test_missing_and_extra_pixels_and_line_timing(edge) -> None:
     _, r = edge
-    b = CaptureBuilder({"frames_sent": 1})
+    b = CaptureBuilder(RunFacts(frames_sent=1))
     clk = 0
     for y in range(24):
         b.new_line()
@@ -163,7 +163,7 @@ def test_control_timing_faults_fail_with_clean_pixels(edge, meta, words) -> None
 
 def test_no_output_counts_what_arrived(edge) -> None:
     _, r = edge
-    cap = CaptureBuilder({"timed_out": True, "timeout_clocks": 5000, "frames_sent": 1}).build()
+    cap = CaptureBuilder(RunFacts(timed_out=True, timeout_clocks=5000, frames_sent=1)).build()
     v = score([r], cap)
     assert v.status == "no_output" and not v.passed
     assert v.pixels_arrived == 0 and v.pixels_expected == 768

@@ -205,14 +205,14 @@ def test_video_passthrough_with_stalls(sim: str, tmp_path: Path, simulate) -> No
     case = _sim_case(tmp_path, "video", frames, stalls={"probability": 0.15, "max_length": 3, "seed": 3}, simulator=sim)
     cap = simulate(sim, "video_passthrough", case)
     _assert_frames_equal(cap, frames)
-    m = cap.meta
-    assert not m["timed_out"]
-    assert m["frames_sent"] == 2 and len(m["stall_pixels"]) > 0
+    m = cap.facts
+    assert not m.timed_out
+    assert m.frames_sent == 2 and len(m.stall_pixels) > 0
     # The design is two registers deep, so every pixel leaves two clocks after it entered.
-    assert m["latency_clocks"] == 2
-    assert m["output_vsync_count"] == m["input_vsync_count"] == 2
-    assert m["output_hsync_per_frame"] == m["input_hsync_per_frame"]
-    assert m["xz_data_count"] == 0 and m["xz_control"] == [] and m["de_in_blanking"] == []
+    assert m.latency_clocks == 2
+    assert m.output_vsync_count == m.input_vsync_count == 2
+    assert m.output_hsync_per_frame == m.input_hsync_per_frame
+    assert m.xz_data_count == 0 and m.xz_control == [] and m.de_in_blanking == []
     assert not error_file_for(case.capture_file).exists()
 
 
@@ -233,10 +233,10 @@ def test_video_timeout_keeps_partial_capture(tmp_path: Path, simulate) -> None:
         signals={**VIDEO_SIGNALS, "out_de": "rst"}, timeout_clocks=1500,
     )
     cap = simulate("icarus", "video_passthrough", case)
-    assert cap.meta["timed_out"] is True
-    assert cap.meta["timeout_clocks"] == 1500
-    assert cap.meta["clocks_run"] >= 1500
-    assert len(cap) == 0 and cap.meta["output_vsync_count"] >= 1
+    assert cap.facts.timed_out is True
+    assert cap.facts.timeout_clocks == 1500
+    assert cap.facts.clocks_run >= 1500
+    assert len(cap) == 0 and cap.facts.output_vsync_count >= 1
 
 
 @pytest.mark.sim
@@ -246,8 +246,8 @@ def test_video_monitor_records_xz_on_data_and_control(tmp_path: Path, simulate) 
     n, h, w = frames.shape
     case = _sim_case(tmp_path, "video", frames)
     cap = simulate("icarus", "video_xz", case, {"WIDTH": 8, "XZ_EVERY": 50, "XZ_FIRST": 7})
-    m = cap.meta
-    assert not m["timed_out"]
+    m = cap.facts
+    assert not m.timed_out
     views = cap.frames(h, w)
     assert len(views) == n
     # The design puts all-'x' on out_data for output pixel k (counted over the run) when k % 50 == 7.
@@ -257,11 +257,11 @@ def test_video_monitor_records_xz_on_data_and_control(tmp_path: Path, simulate) 
     got = np.concatenate([view.pixels.ravel() for view in views])
     np.testing.assert_array_equal(got, expected)
     assert all(view.present.all() and view.line_lengths == [w] * h for view in views)
-    assert m["xz_data_count"] == int(unknown.sum()) > 0
+    assert m.xz_data_count == int(unknown.sum()) > 0
     # out_de is 'x' for one clock, the one after the first line's last pixel: listed with its clock and
     # role, and read as low, so that line still ends there.
-    assert m["xz_control"] == [[int(views[0].clocks[0, w - 1]) + 1, "out_de"]]
-    assert m["de_in_blanking"] == []
+    assert m.xz_control == [[int(views[0].clocks[0, w - 1]) + 1, "out_de"]]
+    assert m.de_in_blanking == []
 
 
 @pytest.mark.sim
@@ -276,12 +276,12 @@ def test_stream_passthrough_with_gaps_and_backpressure(sim: str, tmp_path: Path,
     )
     cap = simulate(sim, "stream_passthrough", case)
     _assert_frames_equal(cap, frames)
-    m = cap.meta
-    assert not m["timed_out"]
-    assert len(m["stall_pixels"]) > 0 and len(m["backpressure_pixels"]) > 0
+    m = cap.facts
+    assert not m.timed_out
+    assert len(m.stall_pixels) > 0 and len(m.backpressure_pixels) > 0
     # Back-pressure slows the stream: it needs more clocks than one per pixel.
-    assert m["clocks_run"] > frames.size
-    assert m["xz_data_count"] == 0 and m["xz_control"] == []
+    assert m.clocks_run > frames.size
+    assert m.xz_data_count == 0 and m.xz_control == []
 
 
 @pytest.mark.sim
@@ -293,7 +293,7 @@ def test_misnamed_port_reports_one_line_with_ports(tmp_path: Path, simulate) -> 
     assert line.startswith("ConfigError: role 'in_data' -> port 'in_dta' not found")
     assert "did you mean 'in_data'?" in line
     assert "out_hsync" in line and "in_valid" in line  # the DUT's ports are listed
-    assert Capture.load(case.capture_file).meta["error"] == line
+    assert Capture.load(case.capture_file).facts.error == line
 
 
 @pytest.mark.sim

@@ -270,15 +270,15 @@ def shift_back(frame: np.ndarray, present: np.ndarray, offset: Offset) -> tuple[
 
 
 def latency_clocks(capture: Capture) -> int | None:
-    """Latency of the run in clocks: ``meta["latency_clocks"]``, else first output minus first input clock.
+    """Latency of the run in clocks: ``facts.latency_clocks``, else first output minus first input clock.
 
     Returns None when the capture does not tell (no output, or the input clock was not recorded).
     """
-    meta = capture.meta
-    if meta.get("latency_clocks") is not None:
-        return int(meta["latency_clocks"])
-    first_in = meta.get("first_input_clock")
-    first_out = meta.get("first_output_clock")
+    facts = capture.facts
+    if facts.latency_clocks is not None:
+        return int(facts.latency_clocks)
+    first_in = facts.first_input_clock
+    first_out = facts.first_output_clock
     if first_out is None and len(capture):
         first_out = int(capture.clock.min())
     if first_in is None or first_out is None:

@@ -19,7 +19,7 @@ from vkit.check.results import (
     StageValues,
     TimingIssue,
 )
-from vkit.video.capture import UNKNOWN, Capture
+from vkit.video.capture import UNKNOWN, Capture, RunFacts
 
 __all__ = ["KINDS", "Finding", "TimingIssue", "SlipEvent", "diagnose", "slip_events"]
 
@@ -241,7 +241,7 @@ def _xz_finding(frames: Sequence[FrameResult]) -> Finding | None:
     return Finding("xz", msg, ev, _SEEN_CONFIDENCE)
 
 
-def _missing_finding(frames: Sequence[FrameResult], failures: int, meta: dict[str, Any]) -> Finding | None:
+def _missing_finding(frames: Sequence[FrameResult], failures: int, facts: RunFacts) -> Finding | None:
     total = sum(int(fr.missing.sum()) for fr in frames)
     if total == 0:
         return None
@@ -255,7 +255,7 @@ def _missing_finding(frames: Sequence[FrameResult], failures: int, meta: dict[st
         h = fr.expected.shape[0]
         if rows.size and np.array_equal(rows, np.arange(h - rows.size, h)) and fr.missing[rows][fr.valid[rows]].all():
             tail_rows.append((fr.index, int(rows.size)))
-    timed = bool(meta.get("timed_out"))
+    timed = bool(facts.timed_out)
     ev: dict[str, Any] = {"count": total, "checked": checked, "whole_frames": whole[:EVIDENCE_ITEMS], "timed_out": timed}
     if whole:
         what = f"frame(s) {', '.join(map(str, whole[:5]))} never came out"
@@ -271,7 +271,8 @@ def _missing_finding(frames: Sequence[FrameResult], failures: int, meta: dict[st
         what = f"first gap at frame {fr.index} (x={int(xs[0])}, y={int(ys[0])})"
         fix = "pixels are lost between input and output"
     if timed:
-        fix += f"; the run timed out after {meta.get('timeout_clocks', meta.get('clocks_run', '?'))} clocks"
+        stop = facts.stop_clocks
+        fix += f"; the run timed out after {stop if stop is not None else '?'} clocks"
     msg = f"{total} of {checked} checked pixels never arrived: {what}; {fix}"
     share = total / max(1, failures)
     return Finding("missing", msg, ev, _MISSING_CONFIDENCE * share)
@@ -1104,7 +1105,7 @@ def _scattered(frames: Sequence[FrameResult]) -> Finding:
 def diagnose(
     frames: Sequence[FrameResult],
     *,
-    meta: dict[str, Any] | None = None,
+    facts: RunFacts | None = None,
     timing: Sequence[TimingIssue] = (),
     offset: Offset | None = None,
     applied_offset: Offset | None = None,
@@ -1122,7 +1123,7 @@ def diagnose(
 
     Args:
         frames: per-frame results from the scoreboard (``expected``, ``actual``, masks, ``model``).
-        meta: the capture's meta dict.
+        facts: the capture's run facts.
         timing: timing issues the scoreboard found.
         offset: offset measured on the raw frames (``align="exact"``), if any.
         applied_offset: offset already undone before comparing (``align="auto"``), if any.
@@ -1136,12 +1137,12 @@ def diagnose(
     Returns:
         Findings sorted by confidence (highest first); empty when nothing failed.
     """
-    meta = meta or {}
+    facts = facts if facts is not None else RunFacts()
     stall = [tuple(int(v) for v in s) for s in stall_pixels]
     back = [tuple(int(v) for v in s) for s in backpressure_pixels]
     failures = sum(int(fr.mismatch.sum()) for fr in frames)
     findings: list[Finding] = _timing_findings(timing, frames)
-    findings += [f for f in (_xz_finding(frames), _missing_finding(frames, failures, meta)) if f is not None]
+    findings += [f for f in (_xz_finding(frames), _missing_finding(frames, failures, facts)) if f is not None]
     shift = _shift_findings(frames, offset, applied_offset)
     if shift is not None:
         findings.append(shift)

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any, Mapping, Sequence
+from typing import Any, Sequence
 
 import numpy as np
 
@@ -22,7 +22,7 @@ from vkit.check.results import (
     Verdict,
 )
 from vkit.core.errors import ConfigError
-from vkit.video.capture import UNKNOWN, Capture, FrameView
+from vkit.video.capture import UNKNOWN, Capture, FrameView, RunFacts
 
 __all__ = ["FrameResult", "Verdict", "score", "STATUSES"]
 
@@ -110,9 +110,9 @@ def _line_issues(views: list[FrameView | None], shapes: list[tuple[int, int]]) -
 
 
 def _frame_count_issue(capture: Capture, expected_frames: int) -> TimingIssue | None:
-    """Frames out against frames sent (``meta["frames_sent"]``, else the expected list)."""
+    """Frames out against frames sent (``facts.frames_sent``, else the expected list)."""
     frames_out = capture.frame_count
-    sent = capture.meta.get("frames_sent")
+    sent = capture.facts.frames_sent
     if sent is not None and frames_out != int(sent):
         return TimingIssue(
             "frame_count",
@@ -128,24 +128,24 @@ def _frame_count_issue(capture: Capture, expected_frames: int) -> TimingIssue | 
     return None
 
 
-def _sync_issues(meta: Mapping[str, Any]) -> list[TimingIssue]:
+def _sync_issues(facts: RunFacts) -> list[TimingIssue]:
     """Data-enable in vertical blanking, vsync and hsync pulse counts, X/Z on control outputs."""
     issues: list[TimingIssue] = []
-    dib = list(meta.get("de_in_blanking") or [])
+    dib = list(facts.de_in_blanking or [])
     if dib:
         issues.append(TimingIssue(
             "de_in_blanking",
             f"output data-enable high during vertical blanking on {len(dib)} clock(s), first at clock {dib[0]}",
             {"clocks": dib[:EVIDENCE_ITEMS], "count": len(dib)},
         ))
-    vin, vout = meta.get("input_vsync_count"), meta.get("output_vsync_count")
+    vin, vout = facts.input_vsync_count, facts.output_vsync_count
     if vin is not None and vout is not None and int(vin) != int(vout):
         issues.append(TimingIssue(
             "vsync",
             f"output vsync pulses: {int(vout)}, input vsync pulses: {int(vin)}",
             {"input_vsync_count": int(vin), "output_vsync_count": int(vout)},
         ))
-    hin, hout = meta.get("input_hsync_per_frame"), meta.get("output_hsync_per_frame")
+    hin, hout = facts.input_hsync_per_frame, facts.output_hsync_per_frame
     if hin is not None and hout is not None:
         diff = [k for k in range(min(len(hin), len(hout))) if int(hin[k]) != int(hout[k])]
         if diff:
@@ -155,7 +155,7 @@ def _sync_issues(meta: Mapping[str, Any]) -> list[TimingIssue]:
                 f"frame {k}: {int(hout[k])} output hsync pulses, {int(hin[k])} input hsync pulses",
                 {"frames": diff[:EVIDENCE_ITEMS], "input": list(hin), "output": list(hout)},
             ))
-    xzc = list(meta.get("xz_control") or [])
+    xzc = list(facts.xz_control or [])
     if xzc:
         first = xzc[0]
         issues.append(TimingIssue(
@@ -196,15 +196,15 @@ def _timing_issues(
 
     ``latency`` is ``(declared, measured, tolerance)`` in clocks.
     """
-    meta = capture.meta
+    facts = capture.facts
     issues, extra = _line_issues(views, shapes)
     extra += int(np.count_nonzero(capture.frame >= len(shapes))) if len(capture) else 0
     issues.append(_frame_count_issue(capture, len(shapes)))
-    issues.extend(_sync_issues(meta))
-    if meta.get("timed_out"):
+    issues.extend(_sync_issues(facts))
+    if facts.timed_out:
         issues.append(TimingIssue(
             "timeout",
-            f"the run timed out after {meta.get('timeout_clocks', meta.get('clocks_run', '?'))} clocks "
+            f"the run timed out after {facts.stop_clocks if facts.stop_clocks is not None else '?'} clocks "
             f"with {len(capture)} of {sum(h * w for h, w in shapes)} pixels out",
             {"pixels_arrived": len(capture), "pixels_expected": int(sum(h * w for h, w in shapes))},
         ))
@@ -301,19 +301,19 @@ def _early_verdict(
     expected: Sequence[ExpectedFrame], capture: Capture, pixels_expected: int, base: dict[str, Any]
 ) -> Verdict | None:
     """The verdict of a run that cannot be scored pixel by pixel: it failed, or nothing came out."""
-    meta = capture.meta
-    if meta.get("error"):
-        msg = f"the run failed before it could be scored: {meta['error']}"
+    facts = capture.facts
+    if facts.error:
+        msg = f"the run failed before it could be scored: {facts.error}"
         return Verdict(
             passed=False,
             status="error",
             timing_errors=[msg],
-            findings=[Finding("timing", msg, {"error": str(meta["error"])}, 1.0)],
+            findings=[Finding("timing", msg, {"error": str(facts.error)}, 1.0)],
             **base,
         )
     if len(capture) == 0:
-        timed = meta.get("timed_out")
-        clocks = meta.get("timeout_clocks", meta.get("clocks_run"))
+        timed = facts.timed_out
+        clocks = facts.stop_clocks
         why = f"the run timed out after {clocks} clocks" if timed else "the run ended"
         msg = f"no output: 0 of {pixels_expected} pixels arrived ({why}); check output data-enable/valid and reset"
         return Verdict(
@@ -406,7 +406,7 @@ def score(
         accept_offset: with ``align="auto"``, do not fail on a non-zero offset.
         max_listed: mismatching pixels listed in ``first_mismatches``.
         stall_pixels: ``[frame, y, x]`` input pixels that came right after a stall; taken from
-            ``capture.meta["stall_pixels"]`` when omitted.
+            ``capture.facts.stall_pixels`` when omitted.
         spec: the pipeline spec; with ``images`` it lets the diagnosis name the border policy the
             design implements (optional).
         images: the input images, one per frame (optional, see ``spec``).
@@ -492,16 +492,16 @@ def _diagnosis(
     options: _Options,
 ) -> list[Finding]:
     """:func:`vkit.check.diagnose.diagnose` with what the scoreboard found."""
-    meta = capture.meta
+    facts = capture.facts
     stall_pixels = options.stall_pixels
     return diagnose(
         frames,
-        meta=meta,
+        facts=facts,
         timing=issues,
         offset=offset if options.align == "exact" else None,
         applied_offset=offset if options.align == "auto" else None,
-        stall_pixels=(meta.get("stall_pixels") or []) if stall_pixels is None else stall_pixels,
-        backpressure_pixels=meta.get("backpressure_pixels") or [],
+        stall_pixels=(facts.stall_pixels or []) if stall_pixels is None else stall_pixels,
+        backpressure_pixels=facts.backpressure_pixels or [],
         border=border,
         tolerance_lsb=options.tolerance_lsb,
         capture=capture,

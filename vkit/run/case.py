@@ -31,7 +31,7 @@ from vkit.run.results import CaseResult, case_meta, error_result
 from vkit.run.simulate import simulate
 from vkit.run.waves import wave_rerun
 from vkit.sim.buildcache import BuildCache, BuildOutcome
-from vkit.video.capture import Capture
+from vkit.video.capture import Capture, RunFacts
 
 __all__ = ["run_one_case", "rerun_command"]
 
@@ -97,7 +97,7 @@ def _simulate(case: Case, prep: _Prepared, options: RunOptions) -> tuple[BuildOu
                             drive=options.drive)
     if capture_file.exists():
         return outcome, Capture.load(capture_file)
-    return outcome, Capture(meta={"error": f"no capture was written; see {prep.sim_dir / 'sim.log'}"})
+    return outcome, Capture(facts=RunFacts(error=f"no capture was written; see {prep.sim_dir / 'sim.log'}"))
 
 
 def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -> _Judged:
@@ -176,9 +176,9 @@ def run_one_case(case: Case, options: RunOptions) -> CaseResult:
         sim_dir, in_simulation = prep.sim_dir, True
         outcome, capture = _simulate(case, prep, options)
         in_simulation = False
-        if capture.meta.get("error"):
+        if capture.facts.error:
             # the cocotb side stopped (misnamed port, narrow bus, ...): one line, capture and log kept
-            message = _strip_exc_name(" ".join(str(capture.meta["error"]).split()))
+            message = _strip_exc_name(" ".join(str(capture.facts.error).split()))
             return _error(case, options, message, False, time.monotonic() - t0, sim_dir, rerun)
         judged = _judge(case, prep, capture, options)
         return _report(case, prep, outcome, capture, judged, options, time.monotonic() - t0, rerun)

@@ -29,10 +29,10 @@ def _anchor_clock(capture: Any, verdict: Any) -> int:
     for m in (verdict.first_mismatches if verdict is not None else []) or []:
         if m.get("clock") is not None:
             return int(m["clock"])
-    meta = getattr(capture, "meta", {}) or {}
-    for key in ("first_output_clock", "first_input_clock"):
-        if meta.get(key) is not None:
-            return int(meta[key])
+    facts = capture.facts
+    for clock in (facts.first_output_clock, facts.first_input_clock):
+        if clock is not None:
+            return int(clock)
     return 0
 
 
@@ -84,7 +84,7 @@ def wave_rerun(case: Case, out: Path, cache: BuildCache, frames: np.ndarray, cap
         # simulators agree on every capture, a tested fact), so the window found here still holds.
         case = dataclasses.replace(case, simulator="icarus")
     anchor, first, last = wave_window(case, capture, verdict)
-    start_ps = (capture.meta or {}).get("start_time_ps")
+    start_ps = capture.facts.start_time_ps
     if start_ps is None:
         raise ToolError("waves: the capture holds no start_time_ps, so clocks cannot be turned into times; "
                         "rerun with the current vkit.sim.tb.entry")

@@ -15,6 +15,7 @@ _HOME = {
     "PATTERNS": "vkit.video.patterns",
     "PIXEL_FORMAT_BITS": "vkit.video.formats",
     "PRESETS": "vkit.video.timing",
+    "RunFacts": "vkit.video.capture",
     "StallPattern": "vkit.video.timing",
     "StreamTransfers": "vkit.video.words",
     "UNKNOWN": "vkit.video.capture",

@@ -7,20 +7,111 @@ design marked them, never filters. It never imports cocotb.
 
 from __future__ import annotations
 
+import copy
 import json
-from dataclasses import dataclass, field
+import warnings
+from dataclasses import dataclass, field, fields
 from pathlib import Path
-from typing import Any
+from typing import Any, Mapping
 
 import numpy as np
 
-__all__ = ["UNKNOWN", "MAX_EVENTS", "Capture", "CaptureBuilder", "FrameView"]
+__all__ = ["UNKNOWN", "MAX_EVENTS", "Capture", "CaptureBuilder", "FrameView", "RunFacts"]
 
 UNKNOWN = -1
 """Pixel value stored for a sample whose data bus carried X or Z."""
 
 MAX_EVENTS = 1000
 """At most this many entries are kept in a capture's event list (xz_control, de_in_blanking); the rest are counted."""
+
+
+@dataclass
+class RunFacts:
+    """Facts about one run that travel with its capture: what was sent, when, and what went wrong.
+
+    Written by the capturing side (monitors and sources, the fast-path capture file reader, the native
+    run), read by the scoreboard, the diagnosis and the runner. ``None`` means "not recorded". Clocks
+    are counted from the first clock after reset.
+    """
+
+    family: str | None = None
+    """Interface family: "video" or "stream"."""
+    simulator: str | None = None
+    """Simulator that ran the design ("icarus", "verilator", "ghdl", ...)."""
+    path: str | None = None
+    """Drive mode of a fast-path run ("fast" or "native"); None for the per-clock cocotb run."""
+    clock_period_ns: float | None = None
+    """Clock period of the run, ns."""
+    frames_sent: int | None = None
+    """Frames the source drove, frames."""
+    first_input_clock: int | None = None
+    """Clock of the first input pixel, clocks."""
+    first_output_clock: int | None = None
+    """Clock of the first output pixel, clocks."""
+    latency_clocks: int | None = None
+    """First output pixel clock minus first input pixel clock, clocks."""
+    clocks_run: int | None = None
+    """Clocks the run lasted, clocks."""
+    timed_out: bool = False
+    """True when not every frame came out before the run stopped."""
+    timeout_clocks: int | None = None
+    """The run's limit, clocks (a fast-path run reading its own timeout records the clocks it ran)."""
+    start_time_ps: int | None = None
+    """Simulation time of the monitor's start, ps; clock k is the (k+1)-th rising edge after it."""
+    xz_data_count: int = 0
+    """Output samples with X/Z on the data bus, samples."""
+    xz_control: list[list[Any]] = field(default_factory=list)
+    """``[clock, role]`` where a control output such as data-enable held X/Z (at most MAX_EVENTS)."""
+    de_in_blanking: list[int] = field(default_factory=list)
+    """Clocks where output data-enable was high while output vsync was active (at most MAX_EVENTS)."""
+    input_vsync_count: int | None = None
+    """Vsync pulses the source drove, pulses."""
+    output_vsync_count: int | None = None
+    """Vsync pulses the design emitted, pulses."""
+    input_hsync_per_frame: list[int] | None = None
+    """Hsync pulses the source drove in each frame, pulses."""
+    output_hsync_per_frame: list[int] | None = None
+    """Hsync pulses the design emitted in each frame, pulses."""
+    stall_pixels: list[list[int]] = field(default_factory=list)
+    """``[frame, y, x]`` of each input pixel that came right after a stall."""
+    backpressure_pixels: list[list[int]] = field(default_factory=list)
+    """``[frame, y, x]`` of each output pixel that came right after the sink held ready low."""
+    error: str | None = None
+    """One line: why the run stopped before it could be scored."""
+    notes: list[str] = field(default_factory=list)
+    """Human-readable remarks from the capturing side."""
+    extra: dict[str, Any] = field(default_factory=dict)
+    """Keys of a saved capture that are none of the fields above (kept so they are saved again)."""
+
+    @property
+    def stop_clocks(self) -> int | None:
+        """Clocks a timed-out run stopped after: ``timeout_clocks``, else ``clocks_run``; None if neither is known."""
+        return self.timeout_clocks if self.timeout_clocks is not None else self.clocks_run
+
+    def to_dict(self) -> dict[str, Any]:
+        """The facts as a JSON-ready dict: every field that is not None, then the ``extra`` keys."""
+        out = {f.name: getattr(self, f.name) for f in fields(self) if f.name != "extra"}
+        out = {k: v for k, v in out.items() if v is not None}
+        out.update((k, v) for k, v in self.extra.items() if k not in out)
+        return out
+
+    @classmethod
+    def from_dict(cls, data: Mapping[str, Any]) -> RunFacts:
+        """Read facts written by :meth:`to_dict` (or an older capture's meta); unknown keys go to ``extra``."""
+        facts = cls()
+        facts.update(data)
+        return facts
+
+    def update(self, data: Mapping[str, Any]) -> None:
+        """Set the fields named by the keys of ``data`` (e.g. an input-side facts dict); unknown keys go to ``extra``."""
+        for key, value in data.items():
+            if key in _FACT_NAMES:
+                setattr(self, key, value)
+            else:
+                self.extra[key] = value
+
+
+_FACT_NAMES = frozenset(f.name for f in fields(RunFacts)) - {"extra"}
 
 
 @dataclass
@@ -59,20 +150,7 @@ class Capture:
         frame: output frame number the sample belongs to (from vsync or start-of-frame).
         line: line number inside that frame (from data-enable runs or end-of-line).
         column: position inside that line.
-        meta: facts about the run, JSON-serialisable. Keys used by vkit (all optional):
-            ``family`` ("video" or "stream"); ``simulator``; ``frames_sent`` (int);
-            ``first_input_clock`` / ``first_output_clock`` (int, clock of the first pixel in / out);
-            ``clocks_run`` (int); ``timed_out`` (bool) and ``timeout_clocks`` (int);
-            ``xz_data_count`` (int, samples with X/Z on the data bus);
-            ``xz_control`` (list of [clock, role] where a control output such as data-enable held X/Z);
-            ``de_in_blanking`` (list of clocks where output data-enable was high while output vsync was active);
-            ``input_vsync_count`` / ``output_vsync_count`` (int, sync pulses seen);
-            ``input_hsync_per_frame`` / ``output_hsync_per_frame`` (list of int);
-            ``stall_pixels`` (list of [frame, y, x]: input pixels that came right after a stall);
-            ``backpressure_pixels`` (list of [frame, y, x]: output pixels that came right after the
-            sink held ready low);
-            ``latency_clocks`` (int, first output pixel clock minus first input pixel clock);
-            ``notes`` (list of str, human-readable remarks from the capturing side).
+        facts: facts about the run (:class:`RunFacts`).
     """
 
     values: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
@@ -80,7 +158,14 @@ class Capture:
     frame: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
     line: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
     column: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
-    meta: dict[str, Any] = field(default_factory=dict)
+    facts: RunFacts = field(default_factory=RunFacts)
+
+    @property
+    def meta(self) -> dict[str, Any]:
+        """Deprecated: the run facts as a dict (a copy); read :attr:`facts` instead."""
+        warnings.warn("Capture.meta is deprecated and will be removed; read Capture.facts (a RunFacts) instead",
+                      DeprecationWarning, stacklevel=2)
+        return self.facts.to_dict()
 
     def __len__(self) -> int:
         return int(self.values.size)
@@ -119,7 +204,7 @@ class Capture:
         return views
 
     def save(self, path: str | Path, compress: bool = True) -> Path:
-        """Write the capture as one ``.npz`` file (arrays plus the meta as JSON).
+        """Write the capture as one ``.npz`` file (arrays plus the run facts as JSON under ``meta``).
 
         Args:
             path: the file.
@@ -136,13 +221,13 @@ class Capture:
                 frame=self.frame,
                 line=self.line,
                 column=self.column,
-                meta=np.array(json.dumps(self.meta)),
+                meta=np.array(json.dumps(self.facts.to_dict())),
             )
         return path
 
     @classmethod
     def load(cls, path: str | Path) -> Capture:
-        """Read a capture written by :meth:`save`."""
+        """Read a capture written by :meth:`save` (also by an older vkit: unknown meta keys land in ``facts.extra``)."""
         with np.load(Path(path), allow_pickle=False) as z:
             return cls(
                 values=z["values"].astype(np.int64),
@@ -150,7 +235,7 @@ class Capture:
                 frame=z["frame"].astype(np.int64),
                 line=z["line"].astype(np.int64),
                 column=z["column"].astype(np.int64),
-                meta=json.loads(str(z["meta"])),
+                facts=RunFacts.from_dict(json.loads(str(z["meta"]))),
             )
 
 
@@ -162,8 +247,9 @@ class CaptureBuilder:
     run, end-of-line), then :meth:`add` per pixel.
     """
 
-    def __init__(self, meta: dict[str, Any] | None = None) -> None:
-        self.meta: dict[str, Any] = dict(meta or {})
+    def __init__(self, facts: RunFacts | None = None) -> None:
+        self.facts: RunFacts = facts if facts is not None else RunFacts()
+        """The run facts of the capture; writers (monitor, source) fill them in while it runs."""
         self._rows: list[tuple[int, int, int, int, int]] = []
         self._frame = 0
         self._line = 0
@@ -200,4 +286,4 @@ class CaptureBuilder:
             arr = np.array(self._rows, dtype=np.int64)
         else:
             arr = np.zeros((0, 5), np.int64)
-        return Capture(arr[:, 0], arr[:, 1], arr[:, 2], arr[:, 3], arr[:, 4], dict(self.meta))
+        return Capture(arr[:, 0], arr[:, 1], arr[:, 2], arr[:, 3], arr[:, 4], copy.copy(self.facts))

@@ -25,6 +25,7 @@ closes after ``height`` lines.
 
 from __future__ import annotations
 
+import copy
 import tempfile
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -37,7 +38,7 @@ from vkit.core.errors import ConfigError, DutError
 from vkit.sim.case import SimCase
 from vkit.sim.fast.stimulus import StimulusFiles, write_stimulus
 from vkit.sim.fast.wire import CAPTURE_MAGIC, CAPTURE_ROLES, CAPTURE_VERSION, FAMILY_CODES, capture_data_words
-from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture
+from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, RunFacts
 
 __all__ = ["parse_capture_text", "parse_capture_binary", "is_binary_capture", "input_meta", "read_capture"]
 
@@ -48,7 +49,7 @@ def parse_capture_text(
     family: str | None = None,
     height: int | None = None,
     split_on_height: bool = False,
-    meta: dict[str, Any] | None = None,
+    facts: RunFacts | None = None,
 ) -> Capture:
     """Turn capture text into a :class:`Capture`.
 
@@ -57,7 +58,7 @@ def parse_capture_text(
         family: "video" or "stream"; default from the header line.
         height: active lines per frame (used with ``split_on_height``).
         split_on_height: close a video frame after ``height`` lines (when the design has no output vsync).
-        meta: meta entries known from the input side (frames_sent, first_input_clock, ...); copied in.
+        facts: run facts known from the input side (frames_sent, first_input_clock, ...); copied in.
 
     Raises:
         ConfigError: the text is not a vkit capture (no header line).
@@ -77,7 +78,7 @@ def parse_capture_text(
     pos_p = np.flatnonzero(kind_a == ord("P"))
     clock_all = np.array(clocks, dtype=np.int64) if clocks else np.zeros(0, np.int64)
     values, xz_data = _hex_values(np.array(args, dtype="S")[pos_p] if pos_p.size else [])
-    return _build(family, clock_all, kind_a, lambda i: args[i], values, xz_data, height, split_on_height, meta)
+    return _build(family, clock_all, kind_a, lambda i: args[i], values, xz_data, height, split_on_height, facts)
 
 
 def parse_capture_binary(
@@ -86,7 +87,7 @@ def parse_capture_binary(
     family: str | None = None,
     height: int | None = None,
     split_on_height: bool = False,
-    meta: dict[str, Any] | None = None,
+    facts: RunFacts | None = None,
 ) -> Capture:
     """Turn binary capture records into a :class:`Capture` (same arguments and result as :func:`parse_capture_text`).
 
@@ -128,7 +129,7 @@ def parse_capture_binary(
         c = int(code[i])
         return CAPTURE_ROLES[c] if 0 < c < len(CAPTURE_ROLES) else "-"
 
-    return _build(family, clock_all, kind_a, arg, values, int(xz.sum()), height, split_on_height, meta)
+    return _build(family, clock_all, kind_a, arg, values, int(xz.sum()), height, split_on_height, facts)
 
 
 def is_binary_capture(head: bytes) -> bool:
@@ -186,11 +187,11 @@ def _scan_events(family: str, clock_all: np.ndarray, kind_a: np.ndarray, pos_p: 
 
 
 def _build(family: str, clock_all: np.ndarray, kind_a: np.ndarray, arg_of: Callable[[int], str], values: np.ndarray,
-           xz_data: int, height: int | None, split_on_height: bool, meta: dict[str, Any] | None) -> Capture:
+           xz_data: int, height: int | None, split_on_height: bool, facts: RunFacts | None) -> Capture:
     """The Capture from decoded events (clock and ASCII kind code per event, values per pixel event); both formats."""
-    out_meta: dict[str, Any] = dict(meta or {})
-    out_meta.setdefault("family", family)
-    out_meta.setdefault("notes", [])
+    out_facts = copy.deepcopy(facts) if facts is not None else RunFacts()
+    if out_facts.family is None:
+        out_facts.family = family
     is_p = kind_a == ord("P")
     pos_p = np.flatnonzero(is_p)
     if split_on_height and height and (kind_a == ord("F")).any():
@@ -198,39 +199,39 @@ def _build(family: str, clock_all: np.ndarray, kind_a: np.ndarray, arg_of: Calla
     else:
         frame_a, line_a, col_a = _positions(kind_a, is_p, pos_p, bool(split_on_height), height)
     ev = _scan_events(family, clock_all, kind_a, pos_p, arg_of)
-    cap = Capture(values, clock_all[pos_p], frame_a, line_a, col_a, out_meta)
-    _fill_meta(cap, family, ev, xz_data, clock_all)
+    cap = Capture(values, clock_all[pos_p], frame_a, line_a, col_a, out_facts)
+    _fill_facts(cap, family, ev, xz_data, clock_all)
     return cap
 
 
-def _fill_meta(cap: Capture, family: str, ev: _Events, xz_data: int, clock_all: np.ndarray) -> None:
-    """Write the output-side facts of the events into the capture's meta."""
-    m = cap.meta
+def _fill_facts(cap: Capture, family: str, ev: _Events, xz_data: int, clock_all: np.ndarray) -> None:
+    """Write the output-side facts of the events into the capture's run facts."""
+    f = cap.facts
     k = int(cap.values.size)
-    m["xz_data_count"] = xz_data
-    m["xz_control"] = ev.xz_control
+    f.xz_data_count = xz_data
+    f.xz_control = ev.xz_control
     if family == "video":
-        m["de_in_blanking"] = ev.de_in_blanking
-        m["output_vsync_count"] = ev.vsync_count
-        m["output_hsync_per_frame"] = ev.hsync_per_frame
+        f.de_in_blanking = ev.de_in_blanking
+        f.output_vsync_count = ev.vsync_count
+        f.output_hsync_per_frame = ev.hsync_per_frame
     if family == "stream":
-        m["backpressure_pixels"] = [[int(cap.frame[i]), int(cap.line[i]), int(cap.column[i])]
-                                    for i in ev.waited_next if i < k]
+        f.backpressure_pixels = [[int(cap.frame[i]), int(cap.line[i]), int(cap.column[i])]
+                                 for i in ev.waited_next if i < k]
     if ev.first_input is not None:
-        m["first_input_clock"] = ev.first_input
-    m["first_output_clock"] = int(cap.clock[0]) if k else None
-    if m.get("first_output_clock") is not None and m.get("first_input_clock") is not None:
-        m["latency_clocks"] = int(m["first_output_clock"]) - int(m["first_input_clock"])
+        f.first_input_clock = ev.first_input
+    f.first_output_clock = int(cap.clock[0]) if k else None
+    if f.first_output_clock is not None and f.first_input_clock is not None:
+        f.latency_clocks = int(f.first_output_clock) - int(f.first_input_clock)
     timed_out, clocks_run = ev.timed_out, ev.clocks_run
     if clocks_run is None:
-        m["notes"].append("capture text has no end line: the simulation stopped before the harness finished")
+        f.notes.append("capture text has no end line: the simulation stopped before the harness finished")
         clocks_run = int(clock_all[-1]) + 1 if clock_all.size else 0
         timed_out = True
-    m["clocks_run"] = clocks_run
-    m["timed_out"] = bool(timed_out)
+    f.clocks_run = clocks_run
+    f.timed_out = bool(timed_out)
     for key, total in ev.counts.items():
         if total > MAX_EVENTS:
-            m["notes"].append(f"{key}: {total} events, only the first {MAX_EVENTS} are listed")
+            f.notes.append(f"{key}: {total} events, only the first {MAX_EVENTS} are listed")
 
 
 _HEX_LUT = np.full(256, -1, np.int64)
@@ -342,19 +343,20 @@ def _parse_file(path: Path, **kwargs: Any) -> Capture:
     return parse_capture_text(path.read_text(errors="replace"), **kwargs)
 
 
-def input_meta(case: SimCase, stim: StimulusFiles | None = None) -> dict[str, Any]:
-    """The input-side Capture meta of ``case`` (frames_sent, first_input_clock, stall_pixels, syncs)."""
+def input_meta(case: SimCase, stim: StimulusFiles | None = None) -> RunFacts:
+    """The input-side run facts of ``case`` (frames_sent, first_input_clock, stall_pixels, syncs)."""
     if stim is None:
         with tempfile.TemporaryDirectory(prefix="vkit_meta_") as tmp:
             stim = write_stimulus(case, tmp)
-    meta = dict(stim.input_meta)
-    meta.pop("first_gap_clocks", None)
-    meta["family"] = case.family
+    known = dict(stim.input_meta)
+    known.pop("first_gap_clocks", None)
+    facts = RunFacts.from_dict(known)
+    facts.family = case.family
     if case.simulator:
-        meta["simulator"] = case.simulator
+        facts.simulator = case.simulator
     if stim.timeout:
-        meta["timeout_clocks"] = int(stim.timeout)
-    return meta
+        facts.timeout_clocks = int(stim.timeout)
+    return facts
 
 
 def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = None) -> Capture:
@@ -362,7 +364,7 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
 
     Args:
         path: the ``capture.bin`` / ``capture.txt`` the harness wrote.
-        case: the case the run was made from (gives the input-side meta and how frames split).
+        case: the case the run was made from (gives the input-side run facts and how frames split).
         stim: the stimulus the run used, if at hand (saves rebuilding it).
 
     Raises:
@@ -373,8 +375,8 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
         family=case.family,
         height=int(case.height),
         split_on_height=case.family == "video" and "out_vsync" not in case.signals,
-        meta=input_meta(case, stim),
+        facts=input_meta(case, stim),
     )
-    if cap.meta.get("timed_out") and "timeout_clocks" not in cap.meta:
-        cap.meta["timeout_clocks"] = int(cap.meta.get("clocks_run", 0))
+    if cap.facts.timed_out and cap.facts.timeout_clocks is None:
+        cap.facts.timeout_clocks = int(cap.facts.clocks_run or 0)
     return cap

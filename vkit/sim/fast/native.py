@@ -135,10 +135,10 @@ def _native_info(build_dir: str | Path, simulator: str) -> dict[str, object]:
 
 def _finish(cap: Capture, case: SimCase, simulator: str, note: str | None = None) -> Capture:
     """Stamp the run facts of a native run on ``cap`` and save it to the case's capture file."""
-    cap.meta.update(simulator=simulator, path="native")
+    cap.facts.simulator, cap.facts.path = simulator, "native"
     if note is not None:
-        cap.meta["timed_out"] = True
-        cap.meta.setdefault("notes", []).append(note)
+        cap.facts.timed_out = True
+        cap.facts.notes.append(note)
     cap.save(case.capture_file, compress=False)
     return cap
 
@@ -158,7 +158,7 @@ def run_native(case: SimCase, simulator: str, build_dir: str | Path, *, in_width
         timeout_s: wall-clock limit of the run in seconds (None: none; the harness's own timeout still holds).
 
     Returns:
-        A :class:`~vkit.video.capture.Capture` with ``meta["path"] = "native"``.
+        A :class:`~vkit.video.capture.Capture` with ``facts.path = "native"``.
 
     Raises:
         ConfigError: ``build_dir`` holds no native build for ``simulator``.

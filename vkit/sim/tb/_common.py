@@ -8,7 +8,7 @@ from typing import Any
 import cocotb
 from cocotb.triggers import ClockCycles, Event, RisingEdge
 
-from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, CaptureBuilder
+from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, CaptureBuilder, RunFacts
 from vkit.core.errors import ConfigError
 from vkit.sim.signals import SignalMap
 from vkit.video.formats import pixel_bits
@@ -195,7 +195,7 @@ class _Source(_Component):
     :meth:`_init_source`.
     """
 
-    def _init_source(self, pixel_format: str | None, seed: int, stats: dict[str, Any] | None,
+    def _init_source(self, pixel_format: str | None, seed: int, stats: RunFacts | None,
                      blanking: str = "random", blanking_value: int = 0) -> None:
         if blanking not in BLANKING_MODES:
             raise ConfigError(f"blanking = {blanking!r}; use 'random' or 'constant'")
@@ -203,7 +203,7 @@ class _Source(_Component):
         self.seed = int(seed)
         self.blanking = blanking
         self.blanking_value = int(blanking_value)
-        self.stats: dict[str, Any] = stats if stats is not None else {}
+        self.stats: RunFacts = stats if stats is not None else RunFacts()
         self.clocks = 0
         """Rising edges seen by the last ``send`` so far."""
 
@@ -220,7 +220,7 @@ class _Source(_Component):
 class _FrameMonitor(_Component):
     """The monitor behaviour both families share; subclasses say how a line and a frame end.
 
-    Shared: the capture builder and its meta (``xz_data_count``, ``xz_control``, ``first_output_clock``,
+    Shared: the capture builder and its run facts (``xz_data_count``, ``xz_control``, ``first_output_clock``,
     ``clocks_run``, ``timed_out``, ``latency_clocks``), bounded event lists, frame counting against
     ``expected_height``, :meth:`start` / :meth:`stop` / :meth:`capture` / :meth:`wait_clocks` /
     :meth:`wait_frames`. A subclass implements :meth:`_make_step`, the function the clock's shared
@@ -230,13 +230,13 @@ class _FrameMonitor(_Component):
     """
 
     _EVENT_KEYS: tuple[str, ...] = ("xz_control",)
-    """Meta keys of the event lists bounded by :data:`MAX_EVENTS`."""
+    """:class:`RunFacts` fields of the event lists bounded by :data:`MAX_EVENTS`."""
 
     def _init_monitor(
-        self, expected_height: int | None, expected_width: int | None, meta: dict[str, Any] | None, **family_keys: Any
+        self, expected_height: int | None, expected_width: int | None, facts: RunFacts | None, **family_keys: Any
     ) -> None:
-        """Set up the frame counting and the capture meta; ``family_keys`` are the family's own meta keys
-        (placed after ``xz_control``). A subclass calls it right after the base constructor."""
+        """Set up the frame counting and the capture's run facts; ``family_keys`` are the family's own
+        :class:`RunFacts` fields and their starting values. A subclass calls it right after the base constructor."""
         self.expected_height = expected_height
         self.expected_width = expected_width
         self.clocks = 0
@@ -245,12 +245,14 @@ class _FrameMonitor(_Component):
         """Output frames finished: ``expected_height`` lines seen, or closed by the start of the next frame."""
         self._split_by_height = False
         """True when a frame ends after ``expected_height`` lines because nothing else marks its end."""
-        self._builder = CaptureBuilder(meta)
-        self.meta: dict[str, Any] = self._builder.meta
-        m = self.meta
-        m.setdefault("family", self.family)
-        m.setdefault("notes", [])
-        m.update(xz_data_count=0, xz_control=[], **family_keys, first_output_clock=None, clocks_run=0, timed_out=False)
+        self._builder = CaptureBuilder(facts)
+        self.facts: RunFacts = self._builder.facts
+        """The run facts of the capture (sources write theirs here too, through their ``stats``)."""
+        f = self.facts
+        if f.family is None:
+            f.family = self.family
+        f.update(dict(xz_data_count=0, xz_control=[], **family_keys, first_output_clock=None, clocks_run=0,
+                      timed_out=False))
         self._event_counts = dict.fromkeys(self._EVENT_KEYS, 0)
         self._lines_in_frame = 0
         self._frame_counted = False
@@ -278,15 +280,15 @@ class _FrameMonitor(_Component):
 
     def capture(self) -> Capture:
         """A :class:`~vkit.video.capture.Capture` of everything seen so far (partial while running)."""
-        m = self.meta
-        m["clocks_run"] = self.clocks
+        f = self.facts
+        f.clocks_run = self.clocks
         for key, total in self._event_counts.items():
             if total > MAX_EVENTS:
                 note = f"{key}: {total} events, only the first {MAX_EVENTS} are listed"
-                if note not in m["notes"]:
-                    m["notes"] = [s for s in m["notes"] if not s.startswith(f"{key}: ")] + [note]
-        if m.get("first_output_clock") is not None and m.get("first_input_clock") is not None:
-            m["latency_clocks"] = int(m["first_output_clock"]) - int(m["first_input_clock"])
+                if note not in f.notes:
+                    f.notes = [s for s in f.notes if not s.startswith(f"{key}: ")] + [note]
+        if f.first_output_clock is not None and f.first_input_clock is not None:
+            f.latency_clocks = int(f.first_output_clock) - int(f.first_input_clock)
         return self._builder.build()
 
     async def wait_clocks(self, n: int) -> None:
@@ -301,7 +303,7 @@ class _FrameMonitor(_Component):
         """Wait until ``n`` output frames are complete or ``timeout_clocks`` clocks pass; never hangs.
 
         Returns:
-            True when the frames arrived; False on timeout (then meta ``timed_out`` is True and
+            True when the frames arrived; False on timeout (then ``facts.timed_out`` is True and
             ``timeout_clocks`` is recorded).
         """
         self.start()
@@ -315,9 +317,9 @@ class _FrameMonitor(_Component):
         self._deadline = None
         if self.frames_complete >= n:
             return True
-        self.meta["timed_out"] = True
-        self.meta["timeout_clocks"] = int(timeout_clocks)
-        self.meta["notes"].append(
+        self.facts.timed_out = True
+        self.facts.timeout_clocks = int(timeout_clocks)
+        self.facts.notes.append(
             f"timed out after {timeout_clocks} clocks with {self.frames_complete} of {n} output frames complete"
         )
         return False
@@ -332,7 +334,7 @@ class _FrameMonitor(_Component):
         """Count an event of list ``key`` at ``clock``; list it as ``[clock, role]`` (or ``clock``) while bounded."""
         self._event_counts[key] += 1
         if self._event_counts[key] <= MAX_EVENTS:
-            self.meta[key].append([clock, role] if role is not None else clock)
+            getattr(self.facts, key).append([clock, role] if role is not None else clock)
 
     def _check_done(self) -> None:
         if self._target is not None and self.frames_complete >= self._target:

@@ -22,7 +22,7 @@ Your own cocotb test can do the same in one call::
             pixel_format="rgb888", stalls={"probability": 0.1, "max_length": 3, "seed": 7},
         )
         capture = await run_case(dut, case)      # also saved to capture.npz
-        assert not capture.meta["timed_out"]
+        assert not capture.facts.timed_out
         frames = capture.frames(case.height, case.width)
 """
 
@@ -38,7 +38,7 @@ from cocotb.clock import Clock
 from cocotb.triggers import ClockCycles, First, ReadWrite
 from cocotb.utils import get_sim_time
 
-from vkit.video.capture import Capture
+from vkit.video.capture import Capture, RunFacts
 from vkit.core.errors import ConfigError
 from vkit.sim.case import CASE_ENV, SimCase, error_file_for
 from vkit.video.formats import pixel_bits
@@ -60,20 +60,20 @@ def _save(capture: Capture, case_capture_file: str | Path, error: str | None) ->
     path = Path(case_capture_file)
     sidecar = error_file_for(path)
     if error:
-        capture.meta["error"] = error
-        capture.meta.setdefault("notes", []).append(error)
+        capture.facts.error = error
+        capture.facts.notes.append(error)
     capture.save(path)
     if error:
         sidecar.write_text(error + "\n")
 
 
-def _components(dut: Any, case: SimCase, meta: dict[str, Any]) -> tuple[Any, Any, StreamSink | None, Any, Any]:
+def _components(dut: Any, case: SimCase, facts: RunFacts) -> tuple[Any, Any, StreamSink | None, Any, Any]:
     """The monitor, source and (stream) sink of ``case`` on ``dut``, and the clock and reset handles."""
     smap = case.signal_map()
     handles = smap.resolve(dut, {"in_data": pixel_bits(case.pixel_format)})
     clock, reset = handles["clock"], handles.get("reset")
     common = dict(expected_height=case.height, expected_width=case.width, reset_active_high=case.reset_active_high,
-                  meta=meta)
+                  facts=facts)
     source_options = dict(pixel_format=case.pixel_format, blanking=case.blanking, blanking_value=case.blanking_value,
                           seed=case.seed, reset_active_high=case.reset_active_high)
     if case.family == "video":
@@ -83,11 +83,11 @@ def _components(dut: Any, case: SimCase, meta: dict[str, Any]) -> tuple[Any, Any
             hsync_active_high=timing.hsync_active_high, **common,
         )
         source: VideoSource | StreamSource = VideoSource(
-            dut, smap, clock, reset, timing=timing, stalls=case.stall_pattern(), stats=monitor.meta, **source_options,
+            dut, smap, clock, reset, timing=timing, stalls=case.stall_pattern(), stats=monitor.facts, **source_options,
         )
         return monitor, source, None, clock, reset
     monitor = StreamMonitor(dut, smap, clock, reset, **common)
-    source = StreamSource(dut, smap, clock, reset, gaps=case.gap_pattern(), stats=monitor.meta, **source_options)
+    source = StreamSource(dut, smap, clock, reset, gaps=case.gap_pattern(), stats=monitor.facts, **source_options)
     sink = StreamSink(dut, smap, clock, reset, backpressure=case.backpressure_pattern())
     return monitor, source, sink, clock, reset
 
@@ -110,7 +110,7 @@ async def _watch(case: SimCase, monitor: VideoMonitor | StreamMonitor, send_task
     done = await monitor.wait_frames(n_frames, timeout)
     if not done:
         if not send_task.done():
-            monitor.meta["notes"].append("the source had not sent every frame when the timeout hit")
+            monitor.facts.notes.append("the source had not sent every frame when the timeout hit")
         return
     # Keep watching until the input side has finished its last frame's blanking and a little
     # after, so the output's trailing syncs are counted too (still bounded by the timeout).
@@ -130,16 +130,16 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
         dut: the cocotb top-level handle.
         case: what to run.
         save: write the capture to ``case.capture_file`` (always, also when this raises); on an error the
-            capture meta gets an ``error`` line and the same line goes to a ``.error.txt`` file beside it.
+            capture's ``facts.error`` gets a line and the same line goes to a ``.error.txt`` file beside it.
 
     Returns:
-        The capture (meta ``timed_out`` is True when not every frame came out within the timeout).
+        The capture (``facts.timed_out`` is True when not every frame came out within the timeout).
 
     Raises:
         ConfigError: the case does not fit the DUT (misnamed port, narrow data bus, bad frames file).
     """
-    meta: dict[str, Any] = {"family": case.family, "simulator": case.simulator or cocotb.SIM_NAME,
-                            "clock_period_ns": case.clock_period_ns, "notes": []}
+    facts = RunFacts(family=case.family, simulator=case.simulator or cocotb.SIM_NAME,
+                     clock_period_ns=case.clock_period_ns)
     if save:
         error_file_for(case.capture_file).unlink(missing_ok=True)
     monitor: VideoMonitor | StreamMonitor | None = None
@@ -149,13 +149,13 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
     try:
         frames = case.load_frames()
         n_frames = int(frames.shape[0])
-        meta["frames_sent"] = n_frames
+        facts.frames_sent = n_frames
         timeout = case.effective_timeout_clocks(n_frames)
-        meta["timeout_clocks"] = timeout
-        monitor, source, sink, clock, reset = _components(dut, case, meta)
+        facts.timeout_clocks = timeout
+        monitor, source, sink, clock, reset = _components(dut, case, facts)
         await _clock_and_reset(case, clock, reset)
         # capture clock k is the (k+1)-th rising edge after this time (the runner's wave window needs it)
-        monitor.meta["start_time_ps"] = int(get_sim_time("ps"))
+        monitor.facts.start_time_ps = int(get_sim_time("ps"))
         monitor.start()
         if sink is not None:
             sink.start()
@@ -171,7 +171,7 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
             sink.stop()
         if monitor is not None:
             monitor.stop()
-        capture = monitor.capture() if monitor is not None else Capture(meta=meta)
+        capture = monitor.capture() if monitor is not None else Capture(facts=facts)
         if save:
             _save(capture, case.capture_file, error)
     return capture
@@ -198,6 +198,6 @@ async def vkit_case(dut: Any) -> None:
     except Exception as exc:
         target = _capture_file_from_raw(path)
         if target:
-            _save(Capture(meta={"notes": []}), target, _error_line(exc))
+            _save(Capture(), target, _error_line(exc))
         raise
     await run_case(dut, case)

@@ -21,7 +21,7 @@ from typing import Any
 import cocotb
 from cocotb.triggers import First, RisingEdge, Timer
 
-from vkit.video.capture import Capture
+from vkit.video.capture import Capture, RunFacts
 from vkit.core.errors import ConfigError, VkitError
 from vkit.sim.case import CASE_ENV, SimCase, error_file_for
 from vkit.sim.fast.capture_file import read_capture
@@ -59,14 +59,14 @@ async def run_fast_case(dut: Any, case: SimCase) -> Capture:
     cap = read_capture(cap_text, case, stim)
     t2 = time.perf_counter()
     if python_timeout:
-        cap.meta["timed_out"] = True
-        cap.meta["timeout_clocks"] = bound
-        cap.meta.setdefault("notes", []).append(
+        cap.facts.timed_out = True
+        cap.facts.timeout_clocks = bound
+        cap.facts.notes.append(
             f"the harness did not finish within {bound} clocks; the capture is partial"
         )
     if case.simulator:
-        cap.meta["simulator"] = case.simulator
-    cap.meta["path"] = "fast"
+        cap.facts.simulator = case.simulator
+    cap.facts.path = "fast"
     # Plain, not compressed: compressing a 640x480 frame's capture takes as long as simulating it.
     cap.save(case.capture_file, compress=False)
     dut._log.info("vkit fast path: simulation %.2f s, capture read %.2f s, saved %.2f s (wall clock)",
@@ -88,7 +88,7 @@ async def fast_case(dut: Any) -> None:
         Path(err).parent.mkdir(parents=True, exist_ok=True)
         Path(err).write_text(f"{exc}\n")
         if not Path(case.capture_file).exists():
-            Capture(meta={"family": case.family, "timed_out": False, "notes": [str(exc)]}).save(case.capture_file)
+            Capture(facts=RunFacts(family=case.family, timed_out=False, notes=[str(exc)])).save(case.capture_file)
         raise
     except Exception as exc:  # noqa: BLE001 - the reason must reach the runner even for unexpected errors
         Path(err).parent.mkdir(parents=True, exist_ok=True)

@@ -10,7 +10,7 @@ from cocotb.triggers import RisingEdge
 
 from vkit.sim.signals import SignalMap
 from vkit.sim.tb._common import _Component, _FrameMonitor, _in_data_bits, _Source, bit_reader, word_reader
-from vkit.video.capture import UNKNOWN
+from vkit.video.capture import UNKNOWN, RunFacts
 from vkit.video.formats import frames_array
 from vkit.video.timing import StallPattern
 from vkit.video.words import READY_CHUNK_CLOCKS, StreamTransfers, ready_chunk, stream_transfers
@@ -38,8 +38,9 @@ class StreamSource(_Source):
         blanking_value: the constant gap word, >= 0.
         seed: seed of the garbage words driven during gaps.
         reset_active_high: reset polarity.
-        stats: a dict the source writes Capture meta keys into (``frames_sent``, ``first_input_clock``,
-            ``stall_pixels`` = pixels that came right after a gap); pass the monitor's ``meta``.
+        stats: the :class:`~vkit.video.capture.RunFacts` the source writes into (``frames_sent``,
+            ``first_input_clock``, ``stall_pixels`` = pixels that came right after a gap); pass the monitor's
+            ``facts``.
 
     Clock numbering: clock 0 is the first rising edge after :meth:`send` starts.
     """
@@ -59,7 +60,7 @@ class StreamSource(_Source):
         blanking_value: int = 0,
         seed: int = 0,
         reset_active_high: bool = True,
-        stats: dict[str, Any] | None = None,
+        stats: RunFacts | None = None,
     ) -> None:
         bits = _in_data_bits(pixel_format)
         super().__init__(dut, signals, clock, reset, data_bits=bits, reset_active_high=reset_active_high)
@@ -77,9 +78,9 @@ class StreamSource(_Source):
         self._check_data_width(fmt)
         t = stream_transfers(arr, fmt, self.gaps, blanking=self.blanking, blanking_value=self.blanking_value,
                              seed=self.seed)
-        self.stats["stall_pixels"] = t.stall_pixels
-        self.stats["frames_sent"] = t.frames
-        self.stats["first_input_clock"] = None
+        self.stats.stall_pixels = t.stall_pixels
+        self.stats.frames_sent = t.frames
+        self.stats.first_input_clock = None
         return t
 
     async def send(self, frames: Any) -> None:
@@ -123,7 +124,7 @@ class StreamSource(_Source):
                 if ready() == 1:
                     break
             if i == 0:
-                self.stats["first_input_clock"] = c - 1
+                self.stats.first_input_clock = c - 1
             self.sent = i + 1
         valid.value = 0
         s_sof.value = 0
@@ -218,7 +219,7 @@ class StreamMonitor(_FrameMonitor):
             it, only when the next start-of-frame arrives).
         expected_width: pixels per line (recorded only), or None.
         reset_active_high: reset polarity.
-        meta: initial capture meta (copied).
+        facts: the capture's run facts to start from (kept, not copied).
     """
 
     family = "stream"
@@ -233,10 +234,10 @@ class StreamMonitor(_FrameMonitor):
         expected_height: int | None = None,
         expected_width: int | None = None,
         reset_active_high: bool = True,
-        meta: dict[str, Any] | None = None,
+        facts: RunFacts | None = None,
     ) -> None:
         super().__init__(dut, signals, clock, reset, reset_active_high=reset_active_high)
-        self._init_monitor(expected_height, expected_width, meta, backpressure_pixels=[])
+        self._init_monitor(expected_height, expected_width, facts, backpressure_pixels=[])
         self._frame = 0
         self._line = 0
         self._column = 0
@@ -267,8 +268,8 @@ class StreamMonitor(_FrameMonitor):
         read_eol = bit_reader(h["out_eol"])
         read_data = word_reader(h["out_data"])
         add = self._builder.add
-        meta = self.meta
-        bp_pixels = meta["backpressure_pixels"]
+        facts = self.facts
+        bp_pixels = facts.backpressure_pixels
         event_at = self._event_at
         held = False
 
@@ -295,9 +296,9 @@ class StreamMonitor(_FrameMonitor):
                         self._start_frame()
                     value = read_data()
                     if value == UNKNOWN:
-                        meta["xz_data_count"] += 1
-                    if meta["first_output_clock"] is None:
-                        meta["first_output_clock"] = c
+                        facts.xz_data_count += 1
+                    if facts.first_output_clock is None:
+                        facts.first_output_clock = c
                     if held:
                         bp_pixels.append([self._frame, self._line, self._column])
                     add(value, c)

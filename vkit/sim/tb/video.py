@@ -11,7 +11,7 @@ from cocotb.triggers import Event
 from vkit.core.errors import ConfigError
 from vkit.sim.signals import SignalMap
 from vkit.sim.tb._common import _FrameMonitor, _in_data_bits, _Source, bit_reader, ticker, word_reader
-from vkit.video.capture import UNKNOWN
+from vkit.video.capture import UNKNOWN, RunFacts
 from vkit.video.formats import frames_array
 from vkit.video.timing import ClockSchedule, StallPattern, VideoTiming, schedule
 from vkit.video.words import video_data_words, video_input_facts
@@ -40,9 +40,9 @@ class VideoSource(_Source):
         blanking_value: the constant blanking word, >= 0.
         seed: seed for the garbage words (numpy PCG64).
         reset_active_high: reset polarity.
-        stats: a dict the source writes its run facts into (Capture meta keys: ``frames_sent``,
-            ``first_input_clock``, ``stall_pixels``, ``input_vsync_count``, ``input_hsync_per_frame``);
-            pass the monitor's :attr:`VideoMonitor.meta` so they land in its capture.
+        stats: the :class:`~vkit.video.capture.RunFacts` the source writes its run facts into
+            (``frames_sent``, ``first_input_clock``, ``stall_pixels``, ``input_vsync_count``,
+            ``input_hsync_per_frame``); pass the monitor's :attr:`VideoMonitor.facts` so they land in its capture.
 
     Clock numbering: clock 0 is the first rising edge after :meth:`send` starts; a value of schedule
     entry ``i`` is sampled by the design on clock ``i``.
@@ -64,7 +64,7 @@ class VideoSource(_Source):
         blanking_value: int = 0,
         seed: int = 0,
         reset_active_high: bool = True,
-        stats: dict[str, Any] | None = None,
+        stats: RunFacts | None = None,
     ) -> None:
         if not isinstance(timing, VideoTiming):
             raise ConfigError("VideoSource: timing must be a vkit.video.timing.VideoTiming; build one with preset() or tiny()")
@@ -123,7 +123,7 @@ class VideoSource(_Source):
         first_valid = facts.pop("first_input_clock")
         self.stats.update(facts)
         await self._reset_released()
-        self.stats["first_input_clock"] = first_valid
+        self.stats.first_input_clock = first_valid
         done = Event()
         step = self._make_player(sched, words, done)
         self.clocks = 0
@@ -208,11 +208,12 @@ class VideoMonitor(_FrameMonitor):
         reset: the reset handle, or None for the map's ``reset`` role; :meth:`start` waits until it is
             inactive.
         expected_height: active lines per output frame, or None; needed when ``out_vsync`` is not mapped.
-        expected_width: pixels per output line (only recorded in the meta), or None.
+        expected_width: pixels per output line (recorded only), or None.
         vsync_active_high: polarity of ``out_vsync``.
         hsync_active_high: polarity of ``out_hsync``.
         reset_active_high: reset polarity.
-        meta: initial capture meta (copied); sources may write into :attr:`meta` through their ``stats``.
+        facts: the capture's run facts to start from (kept, not copied); sources write into :attr:`facts`
+            through their ``stats``.
 
     Clock numbering: clock 0 is the first rising edge after :meth:`start`; values are sampled on the edge.
     """
@@ -232,7 +233,7 @@ class VideoMonitor(_FrameMonitor):
         vsync_active_high: bool = True,
         hsync_active_high: bool = True,
         reset_active_high: bool = True,
-        meta: dict[str, Any] | None = None,
+        facts: RunFacts | None = None,
     ) -> None:
         super().__init__(dut, signals, clock, reset, reset_active_high=reset_active_high)
         if "out_vsync" not in self._h and not expected_height:
@@ -241,7 +242,7 @@ class VideoMonitor(_FrameMonitor):
                 "map out_vsync or give expected_height so frames can be split"
             )
         self._init_monitor(
-            expected_height, expected_width, meta, de_in_blanking=[], output_vsync_count=0, output_hsync_per_frame=[]
+            expected_height, expected_width, facts, de_in_blanking=[], output_vsync_count=0, output_hsync_per_frame=[]
         )
         self._split_by_height = "out_vsync" not in self._h
         self.vsync_active_high = vsync_active_high
@@ -258,8 +259,8 @@ class VideoMonitor(_FrameMonitor):
             self._count_line()
 
     def _on_vsync(self) -> None:
-        self.meta["output_vsync_count"] += 1
-        self.meta["output_hsync_per_frame"].append(self._hs_count)
+        self.facts.output_vsync_count += 1
+        self.facts.output_hsync_per_frame.append(self._hs_count)
         self._hs_count = 0
         if self._lines_in_frame or self._line_pixels:
             self._line_pixels = 0
@@ -274,7 +275,7 @@ class VideoMonitor(_FrameMonitor):
         read_hs = bit_reader(h["out_hsync"]) if "out_hsync" in h else None
         read_data = word_reader(h["out_data"])
         add = self._builder.add
-        meta = self.meta
+        facts = self.facts
         event_at = self._event_at
         vs_on_level = 1 if self.vsync_active_high else 0
         hs_on_level = 1 if self.hsync_active_high else 0
@@ -316,9 +317,9 @@ class VideoMonitor(_FrameMonitor):
             if pix:
                 value = read_data()
                 if value == UNKNOWN:
-                    meta["xz_data_count"] += 1
-                if meta["first_output_clock"] is None:
-                    meta["first_output_clock"] = c
+                    facts.xz_data_count += 1
+                if facts.first_output_clock is None:
+                    facts.first_output_clock = c
                 add(value, c)
                 self._line_pixels += 1
             prev["de"] = de

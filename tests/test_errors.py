@@ -481,3 +481,41 @@ def test_init_writes_a_starter_kit_and_refuses_to_overwrite(tmp_path, capsys):
     assert main(["init", "blur_core", *sources, "--out", str(tmp_path / "kit")]) == 2
     err = capsys.readouterr().err.strip()
     assert err.startswith("vkit: error: vkit init: ") and err.endswith("nothing was written; pass --force to overwrite")
+
+
+# ------------------------------------------------------------------------------------------ vkit merge
+
+
+_OK_CASE = {"id": "a", "status": "pass", "passed": True, "verdict": {"status": "pass", "passed": True}}
+
+
+@pytest.mark.parametrize(("body", "line"), [
+    ({}, "report: 'totals' is a required property"),
+    ([], "report: [] is not of type 'object'"),
+    ({"totals": {"cases": 1, "passed": 1, "failed": 0, "errors": 0},
+      "cases": [{"id": "a", "status": "pass", "passed": True}]}, "report.cases[0]: 'verdict' is a required property"),
+])
+def test_merge_refuses_what_is_not_a_report(tmp_path, capsys, body, line):
+    shard = tmp_path / "shard.json"
+    shard.write_text(json.dumps(body))
+    assert main(["merge", str(tmp_path / "all"), str(shard)]) == 2
+    out, err = capsys.readouterr()
+    assert out == "" and "Traceback" not in err
+    assert err.strip() == (f"vkit: error: merge: {shard}: not a vkit report: {line}; pass the report.json that a vkit "
+                           "run or vkit merge wrote")
+    assert not (tmp_path / "all").exists()  # nothing written
+
+
+def test_merge_refuses_shards_without_cases_and_a_file_as_output(tmp_path, capsys):
+    empty = tmp_path / "empty.json"
+    empty.write_text(json.dumps({"totals": {"cases": 0, "passed": 0, "failed": 0, "errors": 0}, "cases": []}))
+    assert main(["merge", str(tmp_path / "all"), str(empty), str(empty)]) == 2
+    assert capsys.readouterr().err.strip() == ("vkit: error: merge: the 2 report(s) hold no case; a shard that ran "
+                                               "nothing is a broken shard: check each shard's run")
+    good, blocker = tmp_path / "good.json", tmp_path / "blocker"
+    good.write_text(json.dumps({"totals": {"cases": 1, "passed": 1, "failed": 0, "errors": 0}, "cases": [_OK_CASE]}))
+    blocker.write_text("x")
+    assert main(["merge", str(blocker), str(good)]) == 2
+    assert capsys.readouterr().err.strip() == (f"vkit: error: merge: output folder {blocker} is a file; give a folder "
+                                               "(new or existing) for the merged report")
+    assert main(["merge", str(tmp_path / "all"), str(good)]) == 0

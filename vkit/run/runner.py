@@ -101,9 +101,23 @@ def demo_config() -> Config:
 
 
 def merge(out_dir: str | Path, reports: list[str | Path]) -> tuple[dict[str, Any], int]:
-    """Merge shard ``report.json`` files into one report in ``out_dir``; returns (report, exit code)."""
+    """Merge shard ``report.json`` files into one report in ``out_dir``; returns (report, exit code).
+
+    Raises:
+        ConfigError: no report given, one is not a vkit report (``report.schema.json``), the shards hold
+            no case at all, or ``out_dir`` is a file or cannot be written. Nothing is written then.
+    """
     if not reports:
         raise ConfigError("merge: no report.json given; pass the shard reports (or their folders)")
-    merged = merge_reports(list(reports), Path(out_dir))
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise ConfigError(f"merge: output folder {out} is a file; give a folder (new or existing) for the merged report")
+    if not merge_reports(list(reports))["cases"]:  # read and checked without writing anything
+        raise ConfigError(f"merge: the {len(reports)} report(s) hold no case; a shard that ran nothing is a broken "
+                          "shard: check each shard's run")
+    try:
+        merged = merge_reports(list(reports), out)
+    except OSError as exc:
+        raise ConfigError(f"merge: cannot write to {out} ({exc.strerror or exc}); pick a writable folder") from None
     statuses = [c.get("status") or c.get("verdict", {}).get("status", "error") for c in merged["cases"]]
     return merged, exit_code_for(statuses)

@@ -54,6 +54,7 @@ from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.words import BLANKING_MODES
 from vkit.sim.simulators import LANGUAGES, SIMULATORS
 from vkit.video.images import load_image
+from vkit.video.limits import check_case_size, check_frame_size
 from vkit.video.patterns import PATTERNS
 from vkit.video.timing import PRESETS as TIMING_PRESETS
 from vkit.video.timing import VideoTiming, tiny
@@ -633,6 +634,7 @@ def _size(where: str, key: str, value: Any) -> tuple[int, int]:
     ok = isinstance(value, list) and len(value) == 2
     if not ok or not all(isinstance(x, int) and not isinstance(x, bool) and x >= 2 for x in value):
         raise fail(where, key, value, "not a frame size", "give [width, height] in pixels, each >= 2, e.g. [32, 24]")
+    check_frame_size(where, key, value[0], value[1])
     return value[0], value[1]
 
 
@@ -990,6 +992,7 @@ def _design_cases(config: Config, d: DesignConfig, sim: str, s: _Stimulus) -> It
     st = config.stimulus
     for seed in s.seeds:
         for tlabel, timing, width, height in _frame_timings(s, st.size, d.family):
+            check_case_size(f"{config.path.name} [stimulus]", st.frames, width, height)
             for flabel, stall, gap, bp in _flow_settings(s, d.family):
                 yield Case(
                     id=f"{d.name}/{sim}/{s.label}-s{seed}/{tlabel}/{flabel}", design=d, simulator=sim,

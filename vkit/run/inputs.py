@@ -138,10 +138,24 @@ def check_ports(case: Case) -> None:
         if role in CONTROL_ROLES and port.width != 1:
             raise fail(where, f"ports.{role}", port.name, f"{port.width} bits wide",
                        f"a control role needs a 1-bit port; map {role!r} to one")
-        need = PIXEL_FORMAT_BITS.get(d.pixel_format)
-        if role == "in_data" and need is not None and port.width < need:
-            raise fail(where, "ports.in_data", port.name, f"{port.width} bits wide but pixel_format "
-                       f"{d.pixel_format} needs {need} bits", "widen the port or use a narrower pixel_format")
+        _check_data_width(case, role, port)
+
+
+def _check_data_width(case: Case, role: str, port: Port) -> None:
+    """``in_data`` holds the pixel format; ``out_data`` is exactly as wide as the spec's output pixel."""
+    d = case.design
+    where = f"design {d.name}"
+    need = PIXEL_FORMAT_BITS.get(d.pixel_format)
+    if role == "in_data" and need is not None and port.width is not None and port.width < need:
+        raise fail(where, "ports.in_data", port.name, f"{port.width} bits wide but pixel_format "
+                   f"{d.pixel_format} needs {need} bits", "widen the port or use a narrower pixel_format")
+    if role == "out_data" and port.width is not None:
+        bits = d.pipeline_spec().output.bits
+        if port.width != bits:
+            side = "narrower" if port.width < bits else "wider"
+            raise fail(where, "ports.out_data", port.name, f"{port.width} bits wide, {side} than the "
+                       f"{bits}-bit output pixel of spec {d.pipeline_spec().name}",
+                       f"make the port {bits} bits wide or set [output] bits = {port.width} in the spec")
 
 
 def make_sim_case(case: Case, sim_dir: Path, frames: np.ndarray) -> SimCase:

@@ -277,7 +277,7 @@ def test_decompression_bomb_is_refused_before_decoding(tmp_path, capsys):
     code, _, err = _run(capsys, str(_image_config(tmp_path, img)))
     assert code == 2
     assert err == (f"vkit: error: image {img}: claims 10000000000 pixels, over the limit of 40000000 "
-                   "(decompression-bomb guard); pass a larger max_pixels (now 40000000) if you trust the file")
+                   "(decompression-bomb guard); raise [stimulus] max_image_pixels (now 40000000) if you trust the file")
 
 
 # ------------------------------------------------------------------------------------------ config and tools

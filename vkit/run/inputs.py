@@ -8,7 +8,7 @@ import numpy as np
 
 from vkit.core.errors import ConfigError
 from vkit.core.validate import closest, fail
-from vkit.run.config import Case
+from vkit.run.config import IMAGE_PIXELS_SETTING, Case
 from vkit.sim.case import SimCase
 from vkit.sim.hdlports import HdlDesign, Port, find_design
 from vkit.sim.signals import CONTROL_ROLES
@@ -31,7 +31,8 @@ def _crop(image: np.ndarray, width: int, height: int) -> np.ndarray:
 
 def _image_frame(case: Case) -> np.ndarray:
     try:
-        loaded = load_image(case.stimulus_name, mode=case.design.pixel_format, convert=case.convert)
+        loaded = load_image(case.stimulus_name, mode=case.design.pixel_format, convert=case.convert,
+                            max_pixels=case.max_image_pixels, setting=IMAGE_PIXELS_SETTING)
     except ConfigError as exc:
         if "convert" not in str(exc):
             raise

@@ -18,6 +18,7 @@ Output folder layout (every path stays inside ``out_dir``)::
 from __future__ import annotations
 
 import importlib.resources
+import sys
 from pathlib import Path
 from typing import Any, TextIO
 
@@ -26,7 +27,7 @@ from vkit.core.vocab import DRIVE_MODES, WAVE_MODES
 from vkit.report.writers import merge_reports
 from vkit.run.builds import build_design, build_fast_design, build_request, build_wave_design
 from vkit.run.case import rerun_command, run_one_case
-from vkit.run.config import Config, expand_matrix, load_config, select_cases, shard_cases
+from vkit.run.config import Config, dropped_designs, expand_matrix, load_config, select_cases, shard_cases
 from vkit.run.inputs import check_ports, make_frames, make_sim_case
 from vkit.run.options import RunOptions
 from vkit.run.pool import run_cases
@@ -88,6 +89,9 @@ def run(config: Config, jobs: int | None = None, shard: tuple[int, int] | str | 
         ConfigError / ToolError: nothing could run (empty selection, missing simulator, bad option).
     """
     cases = shard_cases(select_cases(expand_matrix(config, simulators), only), shard)
+    note = dropped_designs(config, simulators)
+    if note is not None and progress:
+        print(note, file=stream or sys.stdout)
     if not cases:
         raise ConfigError(f"shard {shard} of {config.path.name} holds no case; use fewer shards")
     options = RunOptions.from_settings(config.run, config_path=config.path, out_dir=out_dir, jobs=jobs or None,

@@ -118,3 +118,12 @@ def test_designs_left_out_by_sim_are_named_in_one_note(tmp_path, capsys):
     config = load_config(cfg)
     assert {c.design.name for c in expand_matrix(config, ["icarus"])} == {"d"}
     assert dropped_designs(config, ["icarus"]) == ("note: --sim icarus leaves out design(s) v (vhdl runs on ghdl)")
+
+
+def test_model_command_names_its_own_image_pixel_option(tmp_path, capsys):
+    img = tmp_path / "belt.png"
+    Image.fromarray(np.zeros((40, 50), np.uint8)).save(img)
+    line = _one_line(capsys, "model", "blur", str(img), "--max-image-pixels", "100", "--out", str(tmp_path / "m"))
+    assert line == (f"vkit: error: image {img}: claims 2000 pixels, over the limit of 100 (decompression-bomb guard); "
+                    "raise --max-image-pixels (now 100) if you trust the file")
+    assert main(["model", "blur", str(img), "--max-image-pixels", "2000", "--out", str(tmp_path / "m")]) == 0

@@ -277,7 +277,7 @@ def test_decompression_bomb_is_refused_before_decoding(tmp_path, capsys):
     code, _, err = _run(capsys, str(_image_config(tmp_path, img)))
     assert code == 2
     assert err == (f"vkit: error: image {img}: claims 10000000000 pixels, over the limit of 40000000 "
-                   "(decompression-bomb guard); pass a larger max_pixels (now 40000000) if you trust the file")
+                   "(decompression-bomb guard); raise [stimulus] max_image_pixels (now 40000000) if you trust the file")
 
 
 # ------------------------------------------------------------------------------------------ config and tools
@@ -481,3 +481,98 @@ def test_init_writes_a_starter_kit_and_refuses_to_overwrite(tmp_path, capsys):
     assert main(["init", "blur_core", *sources, "--out", str(tmp_path / "kit")]) == 2
     err = capsys.readouterr().err.strip()
     assert err.startswith("vkit: error: vkit init: ") and err.endswith("nothing was written; pass --force to overwrite")
+
+
+# ------------------------------------------------------------------------------------------ vkit merge
+
+
+_OK_CASE = {"id": "a", "status": "pass", "passed": True, "verdict": {"status": "pass", "passed": True}}
+
+
+@pytest.mark.parametrize(("body", "line"), [
+    ({}, "report: 'totals' is a required property"),
+    ([], "report: [] is not of type 'object'"),
+    ({"totals": {"cases": 1, "passed": 1, "failed": 0, "errors": 0},
+      "cases": [{"id": "a", "status": "pass", "passed": True}]}, "report.cases[0]: 'verdict' is a required property"),
+])
+def test_merge_refuses_what_is_not_a_report(tmp_path, capsys, body, line):
+    shard = tmp_path / "shard.json"
+    shard.write_text(json.dumps(body))
+    assert main(["merge", str(tmp_path / "all"), str(shard)]) == 2
+    out, err = capsys.readouterr()
+    assert out == "" and "Traceback" not in err
+    assert err.strip() == (f"vkit: error: merge: {shard}: not a vkit report: {line}; pass the report.json that a vkit "
+                           "run or vkit merge wrote")
+    assert not (tmp_path / "all").exists()  # nothing written
+
+
+def test_merge_refuses_shards_without_cases_and_a_file_as_output(tmp_path, capsys):
+    empty = tmp_path / "empty.json"
+    empty.write_text(json.dumps({"totals": {"cases": 0, "passed": 0, "failed": 0, "errors": 0}, "cases": []}))
+    assert main(["merge", str(tmp_path / "all"), str(empty), str(empty)]) == 2
+    assert capsys.readouterr().err.strip() == ("vkit: error: merge: the 2 report(s) hold no case; a shard that ran "
+                                               "nothing is a broken shard: check each shard's run")
+    good, blocker = tmp_path / "good.json", tmp_path / "blocker"
+    good.write_text(json.dumps({"totals": {"cases": 1, "passed": 1, "failed": 0, "errors": 0}, "cases": [_OK_CASE]}))
+    blocker.write_text("x")
+    assert main(["merge", str(blocker), str(good)]) == 2
+    assert capsys.readouterr().err.strip() == (f"vkit: error: merge: output folder {blocker} is a file; give a folder "
+                                               "(new or existing) for the merged report")
+    assert main(["merge", str(tmp_path / "all"), str(good)]) == 0
+
+
+# ------------------------------------------------------------------------------------------ verdicts that say what happened
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("drive", ["clock", "fast"])
+def test_x_on_the_output_data_enable_is_named_with_its_clock(tmp_path, build_cache_dir, capsys, drive):
+    """MODE 7 never resets out_de/out_valid: not just "no output", but which control held X/Z, from which clock."""
+    simulator_available("icarus")
+    cfg = _config(tmp_path, _mangle(7), cache=build_cache_dir)
+    code, problems, _ = _run(capsys, str(cfg), "--no-waves", "--path", drive)
+    assert code == 1
+    first = {"clock": 0, "fast": 1}[drive]  # the harness counts the first clock after reset as 1
+    assert problems == [
+        f"FAIL mangle7/icarus/{CASE}: xz: no output: 0 of 768 pixels arrived: control output out_de held X/Z on "
+        f"1000+ clock(s) (read as low), first at clock {first}; reset every output control register (data-enable, "
+        "valid, syncs); 0 of 768 pixels arrived"
+    ]
+
+
+@pytest.mark.sim
+def test_data_enable_held_high_is_named_first(tmp_path, build_cache_dir, capsys):
+    """MODE 8 holds out_de high every clock: the stuck data-enable leads, not "last line not flushed"."""
+    simulator_available("icarus")
+    code, problems, _ = _run(capsys, str(_config(tmp_path, _mangle(8), cache=build_cache_dir)), "--no-waves")
+    assert code == 1
+    (line,) = problems
+    assert line.startswith(f"FAIL mangle8/icarus/{CASE}: timing: frame 0: data-enable never goes low between lines: "
+                           "line 0 is 1039 pixels long, expected 32; drive data-enable low in horizontal blanking, "
+                           "between the lines; "), line
+    assert "flushed" not in line
+
+
+def _port_case(tmp_path: Path, out_bits: int):  # noqa: ANN202 - vkit.run.config.Case
+    """blur_mangle's ports with out_data ``out_bits`` wide (only the header is read: no simulator)."""
+    from vkit.run.config import expand_matrix, load_config
+
+    top = tmp_path / "narrow.v"
+    top.write_text("module narrow(input clk, input rst, input in_vsync, input in_hsync, input in_de, input in_valid,\n"
+                   f"  input [7:0] in_data, output out_vsync, output out_hsync, output out_de, output out_valid,\n"
+                   f"  output [{out_bits - 1}:0] out_data);\nendmodule\n")
+    design = f'[designs.n]\ntop = "narrow"\nsources = ["{top}"]\nspec = "blur"\nports = {_toml_table(PORTS)}\n'
+    (case,) = expand_matrix(load_config(_config(tmp_path, design)))
+    return case
+
+
+@pytest.mark.parametrize(("bits", "side"), [(4, "narrower"), (12, "wider")])
+def test_output_port_width_is_checked_like_the_input(tmp_path, bits, side):
+    from vkit.core.errors import ConfigError
+    from vkit.run.inputs import check_ports
+
+    with pytest.raises(ConfigError) as err:
+        check_ports(_port_case(tmp_path, bits))
+    assert str(err.value) == (f"design n: ports.out_data = 'out_data' is {bits} bits wide, {side} than the 8-bit output "
+                              f"pixel of spec blur; make the port 8 bits wide or set [output] bits = {bits} in the spec")
+    check_ports(_port_case(tmp_path, 8))

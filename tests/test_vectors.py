@@ -48,6 +48,27 @@ def test_exported_testbench_replays_to_the_live_verdict(tmp_path, build_cache_di
     assert replayed["verdict"]["mismatches"] == mismatches
     assert replayed["diagnosis"]["kind"] == live["diagnosis"]["kind"] == "rounding"
     assert replayed["files"]["frames"]["0"]["composite"].endswith("_composite.png")
+    _replay_refuses_cut_and_foreign_captures(export, capsys)
+
+
+def _replay_refuses_cut_and_foreign_captures(export: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """A capture cut short is a truncated file (exit 2), not a design that did not flush its last line;
+    random bytes are not a capture at all and are never parsed."""
+    capsys.readouterr()
+    data = (export / "capture.bin").read_bytes()
+    cut = export / "cut.bin"
+    cut.write_bytes(data[: len(data) * 2 // 3])
+    assert main(["replay", str(export), "--capture", str(cut)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.startswith(f"vkit: error: capture file {str(cut)!r} is truncated: its last record is cut after "), err
+    assert err.endswith("the testbench did not finish writing it (stopped early, or the file was cut): rerun it to "
+                        "the end, then replay")
+    junk = export / "junk.bin"
+    junk.write_bytes(bytes((i * 97 + 13) % 256 for i in range(5000)))
+    assert main(["replay", str(export), "--capture", str(junk)]) == 2
+    assert capsys.readouterr().err.strip() == (
+        f"vkit: error: capture file {str(junk)!r} is not a vkit capture file (it starts with neither the binary "
+        "header VKCB nor '# vkit capture'); give the capture.bin or capture.txt a vkit harness wrote")
 
 
 def test_replay_of_a_folder_that_is_not_an_export(tmp_path):

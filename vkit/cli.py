@@ -24,6 +24,16 @@ def _size(text: str) -> tuple[int, int]:
     return w, h
 
 
+def _positive_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r}: give a whole number >= 1") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"{text!r}: give a whole number >= 1")
+    return value
+
+
 def _spec(text: str):  # noqa: ANN202 - returns vkit.model.pipeline.PipelineSpec
     from vkit.model.pipeline import PipelineSpec, preset
 
@@ -154,9 +164,11 @@ def _cmd_merge(args: argparse.Namespace) -> int:
 def _cmd_model(args: argparse.Namespace) -> int:
     from vkit.report.page import write_model_page
     from vkit.report.quality import write_model_report
+    from vkit.video.images import DEFAULT_MAX_PIXELS
 
     spec = _spec(args.spec)
-    paths = write_model_report(spec, list(args.images), args.out)
+    limit = args.max_image_pixels or DEFAULT_MAX_PIXELS
+    paths = write_model_report(spec, list(args.images), args.out, max_image_pixels=limit)
     for p in paths:
         print(p)
     print(write_model_page(args.out))
@@ -319,6 +331,9 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
         _SPEC,
         _arg("images", nargs="+", help="PNG/PPM/PGM images"),
         _arg("--out", default="vkit-model", help="report folder (default: ./vkit-model)"),
+        _arg("--max-image-pixels", type=_positive_int, default=None,
+             help="decompression-bomb guard: refuse image files claiming more pixels (default: "
+                  "vkit.video.images.DEFAULT_MAX_PIXELS)"),
     )),
     ("widths", "print each stage's range and bits", _cmd_widths, (
         _SPEC,

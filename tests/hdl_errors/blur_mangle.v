@@ -8,6 +8,8 @@
 // MODE 4  one extra pixel after every line (out_de = de OR de one clock late)
 // MODE 5  the first output line after reset suppressed (one line missing)
 // MODE 6  one extra line of the last line's length before each output vsync
+// MODE 7  out_de and out_valid never reset: X on the output controls, data-enable read as low
+// MODE 8  out_de and out_valid held high every clock after reset (data-enable never goes low)
 //
 // Every mode delays the outputs by one register so the modes share one latency.
 
@@ -75,6 +77,8 @@ module blur_mangle #(
                     end
                     if ((b_vs && !vs_q && run_len != 0) || burst != 0) out_vsync <= 1'b0;
                 end
+                7: begin out_de <= 1'bx; out_valid <= 1'bx; end
+                8: begin out_de <= 1'b1; out_valid <= 1'b1; end
                 default: ;
             endcase
         end

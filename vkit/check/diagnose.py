@@ -197,6 +197,7 @@ _TIMING_ACTION = {
     "vsync": ("timing", 0.9, "output vsync must follow input vsync one pulse per frame"),
     "hsync": ("timing", 0.88, "output hsync must follow input hsync one pulse per line"),
     "xz_control": ("xz", 0.99, "reset every output control register (data-enable, valid, syncs)"),
+    "stuck_line_delimiter": ("timing", 0.985, ""),
     "latency": ("timing", 0.93, "update the declared latency or fix the pipeline depth"),
     "extra": ("timing", 0.8, "the design emits more pixels than the frame holds"),
     "timeout": ("missing", 0.7, "the design stopped emitting before the frame was complete"),
@@ -1175,7 +1176,7 @@ def _stream_cause(
     return cause
 
 
-_PRIMARY_CATEGORIES = ("xz_control", "de_in_blanking", "vsync", "hsync")
+_PRIMARY_CATEGORIES = ("xz_control", "stuck_line_delimiter", "de_in_blanking", "vsync", "hsync")
 """Timing issues that stay first-hand even when a stream cause is found (no slip produces them)."""
 _SYMPTOM_WEIGHT = 0.85
 """Confidence kept by line, frame and shift findings once a stream cause explains them: ranked below it."""

@@ -215,8 +215,9 @@ class TimingIssue:
     """A timing problem the scoreboard saw (one line, plus its numbers).
 
     Attributes:
-        category: ``line_length``, ``line_count``, ``frame_count``, ``de_in_blanking``, ``vsync``,
-            ``hsync``, ``xz_control``, ``latency``, ``timeout``, ``extra`` or ``offset``.
+        category: ``stuck_line_delimiter``, ``line_length``, ``line_count``, ``frame_count``,
+            ``de_in_blanking``, ``vsync``, ``hsync``, ``xz_control``, ``latency``, ``timeout``, ``extra`` or
+            ``offset``.
         message: one line naming what was seen and what was expected.
         evidence: the numbers (JSON-ready).
     """

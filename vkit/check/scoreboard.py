@@ -22,7 +22,7 @@ from vkit.check.results import (
     Verdict,
 )
 from vkit.core.errors import ConfigError
-from vkit.video.capture import UNKNOWN, Capture, FrameView, RunFacts
+from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, FrameView, RunFacts
 
 __all__ = ["FrameResult", "Verdict", "score", "STATUSES"]
 
@@ -81,7 +81,29 @@ def _check_options(align: str, tolerance_lsb: int, latency_tolerance_clocks: int
 # --------------------------------------------------------------------------- timing
 
 
-def _line_issues(views: list[FrameView | None], shapes: list[tuple[int, int]]) -> tuple[list[TimingIssue], int]:
+STUCK_LINE_FACTOR = 2
+"""An output line at least this many frame widths long means the line delimiter never dropped: two
+lines ran into one (a data-enable held high, an end-of-line never sent)."""
+
+
+def _stuck_delimiter_issue(i: int, lengths: Sequence[int], w: int, family: str | None) -> TimingIssue | None:
+    """The line delimiter that never ends a line, named before the line counts it upsets."""
+    long = [(y, n) for y, n in enumerate(lengths) if n >= STUCK_LINE_FACTOR * w]
+    if not long:
+        return None
+    y, n = long[0]
+    what = ("end-of-line never comes" if family == "stream" else "data-enable never goes low")
+    fix = ("send end-of-line on the last pixel of every line" if family == "stream" else
+           "drive data-enable low in horizontal blanking, between the lines")
+    return TimingIssue(
+        "stuck_line_delimiter",
+        f"frame {i}: {what} between lines: line {y} is {n} pixels long, expected {w}; {fix}",
+        {"frame": i, "line": y, "length": n, "width": w, "long_lines": len(long)},
+    )
+
+
+def _line_issues(views: list[FrameView | None], shapes: list[tuple[int, int]],
+                 family: str | None = None) -> tuple[list[TimingIssue], int]:
     """Lines of the wrong length and frames with the wrong line count; pixels past the grid."""
     issues: list[TimingIssue] = []
     extra = 0
@@ -89,6 +111,9 @@ def _line_issues(views: list[FrameView | None], shapes: list[tuple[int, int]]) -
         if view is None:
             continue
         lengths = view.line_lengths
+        stuck = _stuck_delimiter_issue(i, lengths, w, family)
+        if stuck is not None:
+            issues.append(stuck)
         bad = [(y, n) for y, n in enumerate(lengths) if n != w]
         extra += sum(max(0, n - w) for y, n in enumerate(lengths) if y < h)
         extra += sum(lengths[h:])
@@ -197,7 +222,7 @@ def _timing_issues(
     ``latency`` is ``(declared, measured, tolerance)`` in clocks.
     """
     facts = capture.facts
-    issues, extra = _line_issues(views, shapes)
+    issues, extra = _line_issues(views, shapes, facts.family)
     extra += int(np.count_nonzero(capture.frame >= len(shapes))) if len(capture) else 0
     issues.append(_frame_count_issue(capture, len(shapes)))
     issues.extend(_sync_issues(facts))
@@ -316,11 +341,22 @@ def _early_verdict(
         clocks = facts.stop_clocks
         why = f"the run timed out after {clocks} clocks" if timed else "the run ended"
         msg = f"no output: 0 of {pixels_expected} pixels arrived ({why}); check output data-enable/valid and reset"
+        evidence = {"pixels_arrived": 0, "pixels_expected": pixels_expected}
+        finding = Finding("missing", msg, evidence, 1.0)
+        xzc = list(facts.xz_control or [])
+        if xzc:  # an X/Z control is read as low: it is why nothing came out
+            clock, role = xzc[0][0], xzc[0][1]
+            many = "+" if len(xzc) >= MAX_EVENTS else ""
+            msg = (f"no output: 0 of {pixels_expected} pixels arrived: control output {role} held X/Z on "
+                   f"{len(xzc)}{many} clock(s) (read as low), first at clock {clock}; reset every output control "
+                   "register (data-enable, valid, syncs)")
+            events = [list(e) for e in xzc[:EVIDENCE_ITEMS]]
+            finding = Finding("xz", msg, {**evidence, "category": "xz_control", "events": events, "count": len(xzc)}, 1.0)
         return Verdict(
             passed=False,
             status="no_output",
             timing_errors=[msg],
-            findings=[Finding("missing", msg, {"pixels_arrived": 0, "pixels_expected": pixels_expected}, 1.0)],
+            findings=[finding],
             missing_pixels=pixels_expected,
             mismatches=pixels_expected,
             frames_checked=len(expected),

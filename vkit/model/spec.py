@@ -402,8 +402,18 @@ class PipelineSpec:
                 data = _toml.load(fh)
         except FileNotFoundError:
             raise ConfigError(f"pipeline spec file {str(p)!r} does not exist; check the path") from None
+        except IsADirectoryError:
+            raise ConfigError(f"pipeline spec file {str(p)!r} is a directory; give a spec TOML file or a preset name") from None
+        except OSError as exc:
+            raise ConfigError(f"pipeline spec file {str(p)!r} cannot be read ({exc.strerror}); check the path") from None
+        except UnicodeDecodeError as exc:
+            raise ConfigError(f"pipeline spec file {str(p)!r} is not UTF-8 text (byte {exc.start}); "
+                              "give a spec TOML file") from None
         except _toml.TOMLDecodeError as exc:
             raise ConfigError(f"pipeline spec file {str(p)!r} is not valid TOML ({exc}); fix the syntax") from None
+        if not data:
+            raise ConfigError(f"pipeline spec file {str(p)!r} is empty; write its stages (see vkit.model.spec) "
+                              "or give a preset name") from None
         if "name" not in data:
             data = {"name": p.stem, **data}
         return cls.from_dict(data)

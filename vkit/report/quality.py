@@ -15,7 +15,7 @@ from vkit.core.errors import ConfigError
 from vkit.model.quality import ImageQuality, ImageRun, QualityReport, StageCoverage, compare_runs, psnr_db
 from vkit.model.spec import PipelineSpec
 from vkit.model.widths import format_width_table, widths_to_dict
-from vkit.video.images import load_image, save_image, to_uint8
+from vkit.video.images import DEFAULT_MAX_PIXELS, load_image, save_image, to_uint8
 
 __all__ = [
     "StageCoverage",
@@ -31,13 +31,15 @@ _ERROR_FLOOR = 1e-9
 """Smallest full-scale value of an error picture, LSB: an image with no error stays black instead of dividing by 0."""
 
 
-def read_images(spec: PipelineSpec, images: Any) -> tuple[list[np.ndarray], list[str]]:
+def read_images(spec: PipelineSpec, images: Any, max_image_pixels: int = DEFAULT_MAX_PIXELS
+                ) -> tuple[list[np.ndarray], list[str]]:
     """The images as arrays in the spec's input format, and a label for each.
 
     Args:
         spec: the pipeline (its ``input`` sets how files are read).
         images: one image array, a sequence of arrays, a file path (PNG/PPM/PGM), or a sequence mixing
             paths and arrays.
+        max_image_pixels: decompression-bomb guard of the files (``vkit model --max-image-pixels``).
 
     Returns:
         ``(arrays, labels)``: the file stem for a path (``<stem>_<i>`` when two files share a stem, so
@@ -53,7 +55,8 @@ def read_images(spec: PipelineSpec, images: Any) -> tuple[list[np.ndarray], list
     arrays, labels = [], []
     for i, item in enumerate(items):
         if isinstance(item, (str, PurePath)):
-            arrays.append(load_image(item, mode=spec.input))
+            arrays.append(load_image(item, mode=spec.input, max_pixels=max_image_pixels,
+                                     setting="--max-image-pixels"))
             label = Path(item).stem
         else:
             arrays.append(np.asarray(item))
@@ -68,13 +71,14 @@ def compare(spec: PipelineSpec, images: Any, labels: Sequence[str] | None = None
 
 
 def _compare_files(
-    spec: PipelineSpec, images: Any, labels: Sequence[str] | None
+    spec: PipelineSpec, images: Any, labels: Sequence[str] | None, max_image_pixels: int = DEFAULT_MAX_PIXELS
 ) -> tuple[QualityReport, list[ImageRun]]:
-    arrays, default_labels = read_images(spec, images)
+    arrays, default_labels = read_images(spec, images, max_image_pixels)
     return compare_runs(spec, arrays, default_labels if labels is None else labels)
 
 
-def write_model_report(spec: PipelineSpec, images: Any, out_dir: str | Path) -> list[Path]:
+def write_model_report(spec: PipelineSpec, images: Any, out_dir: str | Path, *,
+                       max_image_pixels: int = DEFAULT_MAX_PIXELS) -> list[Path]:
     """Run the model on images and write what it produced and how good it is.
 
     Writes, into ``out_dir`` (created if needed): ``<label>_output.png`` (the bit-exact output; scaled
@@ -86,6 +90,7 @@ def write_model_report(spec: PipelineSpec, images: Any, out_dir: str | Path) -> 
         spec: the pipeline.
         images: as for :func:`read_images`.
         out_dir: folder to write into.
+        max_image_pixels: as for :func:`read_images`.
 
     Returns:
         The paths written, PNGs first, then ``report.json`` and ``report.txt``.
@@ -95,7 +100,7 @@ def write_model_report(spec: PipelineSpec, images: Any, out_dir: str | Path) -> 
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise ConfigError(f"report folder {str(out)!r} cannot be created ({exc.strerror}); pick a writable folder") from None
-    report, runs = _compare_files(spec, images, None)
+    report, runs = _compare_files(spec, images, None, max_image_pixels)
     written: list[Path] = []
     for run in runs:
         written.extend(_write_pictures(spec, run, out))

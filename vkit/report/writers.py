@@ -16,6 +16,7 @@ from PIL import Image, ImageDraw, ImageFont
 
 from vkit.video.capture import UNKNOWN, Capture
 from vkit.core.errors import ConfigError
+from vkit.report.schema import check_report
 
 __all__ = [
     "MISSING_COLOUR",
@@ -433,6 +434,23 @@ def _rebase(files: Any, src: Path, dst: Path) -> Any:
     return files
 
 
+def _read_shard(p: Path) -> tuple[Path, dict[str, Any]]:
+    """The path and body of one shard report (a folder means its report.json), checked against the schema."""
+    if p.is_dir():
+        p = p / "report.json"
+    try:
+        text = p.read_bytes().decode("utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        why = exc.strerror if isinstance(exc, OSError) and exc.strerror else "not UTF-8 text"
+        raise ConfigError(f"merge: cannot read {p} ({why}); pass the report.json each shard wrote") from None
+    try:
+        body = json.loads(text)
+    except ValueError as exc:
+        raise ConfigError(f"merge: {p} is not JSON ({exc}); pass the report.json each shard wrote") from None
+    check_report(body, f"merge: {p}")
+    return p, body
+
+
 def merge_reports(paths: Sequence[str | Path], out_dir: str | Path | None = None) -> dict[str, Any]:
     """Merge the ``report.json`` of several shards into one.
 
@@ -445,20 +463,15 @@ def merge_reports(paths: Sequence[str | Path], out_dir: str | Path | None = None
         The merged report (``totals`` and ``cases``, in shard order).
 
     Raises:
-        ConfigError: a file is missing or unreadable, or two shards hold the same case id.
+        ConfigError: a file is missing, unreadable or not a vkit report (checked against
+            ``report.schema.json``), or two shards hold the same case id.
     """
     merged: list[dict[str, Any]] = []
     seen: dict[str, str] = {}
     dst = Path(out_dir) if out_dir is not None else None
     for p in paths:
-        p = Path(p)
-        if p.is_dir():
-            p = p / "report.json"
-        try:
-            body = json.loads(p.read_text())
-        except (OSError, ValueError) as exc:
-            raise ConfigError(f"merge_reports: cannot read {p} ({exc}); pass the report.json each shard wrote") from exc
-        for c in body.get("cases", []):
+        p, body = _read_shard(Path(p))
+        for c in body["cases"]:
             if c["id"] in seen:
                 raise ConfigError(
                     f"merge_reports: case {c['id']!r} is in both {seen[c['id']]} and {p}; shards must not overlap"

@@ -21,6 +21,7 @@ from vkit.core.errors import ConfigError, ToolError
 from vkit.core.validate import want_choice
 from vkit.core.vocab import DRIVE_MODES
 from vkit.run.config import Case
+from vkit.run.inputs import check_parameters
 from vkit.sim.buildcache import BuildCache, BuildOutcome, BuildRequest
 from vkit.sim.fast import fast_build_plan, native_build, native_build_plan
 from vkit.sim.simulators import activate, require
@@ -34,6 +35,8 @@ __all__ = [
     "build_wave_design",
     "build_for_drive",
     "first_error_line",
+    "parameter_error_line",
+    "PARAMETER_WORDING",
     "quiet_pytest_env",
 ]
 
@@ -41,6 +44,16 @@ TIMESCALE = ("1ns", "1ps")
 """Time unit and precision given to Icarus and Verilator builds (cocotb's clock needs a timescale)."""
 WAVE_MODULE = "vkit_wave_window"
 """Name of the Verilog module that limits a waveform dump to a time window."""
+PARAMETER_WORDING: dict[str, tuple[str, ...]] = {
+    "icarus": (r"invalid value specified for defparam: \S+", r"warning: parameter \w+ not found in \S+"),
+    "verilator": (r"Parameters from the command line were not found in the design: .+",),
+    "ghdl": (r"cannot find in top entity generic '\w+'", r"value not in range for generic '\w+'",
+             r"^'value: .+"),
+}
+"""How each simulator says it rejected a parameter/generic value or name (regular expressions on one
+log line). Icarus only warns and exits 0, so a build log holding one of these lines fails the build;
+GHDL takes generics at run time and says so in the run log."""
+_PARAMETER_RE = re.compile("|".join(f"(?:{w})" for words in PARAMETER_WORDING.values() for w in words))
 _ERROR_RE = re.compile(r"(%Error|error:|Error:|\berror\b|ERROR|syntax error|cannot|unable to)", re.IGNORECASE)
 
 
@@ -66,12 +79,30 @@ def build_request(case: Case, tool_version: str) -> BuildRequest:
     )
 
 
-def first_error_line(log: Path) -> str:
-    """The first line of a tool log that reads like an error (else its last line), squeezed to 300 chars."""
+def _log_lines(log: Path) -> list[str] | None:
     try:
-        lines = log.read_text(errors="replace").splitlines()
+        return log.read_text(errors="replace").splitlines()
     except OSError:
+        return None
+
+
+def parameter_error_line(log: Path) -> str | None:
+    """The first line of a tool log where the simulator rejects a parameter (:data:`PARAMETER_WORDING`)."""
+    for line in _log_lines(log) or []:
+        if _PARAMETER_RE.search(line):
+            return " ".join(line.split())[:300]
+    return None
+
+
+def first_error_line(log: Path) -> str:
+    """The first line of a tool log that rejects a parameter, else the first that reads like an error
+    (else its last line), squeezed to 300 chars."""
+    lines = _log_lines(log)
+    if lines is None:
         return "no build log was written"
+    rejected = parameter_error_line(log)
+    if rejected is not None:
+        return rejected
     for line in lines:
         if _ERROR_RE.search(line) and "Running command" not in line:
             return " ".join(line.split())[:300]
@@ -99,6 +130,10 @@ def _cocotb_build(simulator: str, what: str, bdir: Path, **kwargs: Any) -> None:
     except (RuntimeError, ValueError, SystemExit, OSError) as exc:
         line = first_error_line(log) if log.exists() else " ".join(str(exc).split())
         raise ToolError(f"{simulator} could not build {what}: {line} (full log: {log})") from None
+    rejected = parameter_error_line(log)
+    if rejected is not None:  # Icarus warns about a parameter it ignored and still exits 0
+        raise ToolError(f"{simulator} did not build {what} as asked: {rejected}; fix the parameter in the "
+                        f"design's parameters table (full log: {log})")
 
 
 def _design_build_kwargs(case: Case, build_args: list[str]) -> dict[str, Any]:
@@ -119,6 +154,7 @@ def build_design(case: Case, cache: BuildCache) -> BuildOutcome:
         ToolError: the simulator is missing, or it rejected the sources (the tool's first error line
             and the path of the full ``build.log``).
     """
+    check_parameters(case)
     info = require(case.simulator)
     activate(info)
     request = build_request(case, info.version)
@@ -143,6 +179,7 @@ def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> Bu
         ConfigError: the harness cannot be made for this design (e.g. a port width cannot be read), or
             ``native`` was asked of a simulator or language that has no native build.
     """
+    check_parameters(case)
     info = require(case.simulator)
     activate(info)
     d = case.design

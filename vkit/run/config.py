@@ -53,7 +53,8 @@ from vkit.sim.signals import FAMILY_ROLES
 from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.words import BLANKING_MODES
 from vkit.sim.simulators import LANGUAGES, SIMULATORS
-from vkit.video.images import load_image
+from vkit.video.images import DEFAULT_MAX_PIXELS, load_image
+from vkit.video.limits import check_case_size, check_frame_size
 from vkit.video.patterns import PATTERNS
 from vkit.video.timing import PRESETS as TIMING_PRESETS
 from vkit.video.timing import VideoTiming, tiny
@@ -74,6 +75,7 @@ __all__ = [
     "load_config",
     "config_from_dict",
     "expand_matrix",
+    "dropped_designs",
     "select_cases",
     "shard_cases",
     "parse_shard",
@@ -90,7 +92,7 @@ PICTURE_MODES: tuple[str, ...] = ("failing", "all")
 """``[run] pictures``: PNGs for failing frames only, or for every frame."""
 _STIMULUS_KEYS = (
     "images", "patterns", "size", "frames", "timings", "stalls", "backpressure", "gaps", "blanking",
-    "blanking_value", "seeds", "convert", "designs",
+    "blanking_value", "seeds", "convert", "designs", "max_image_pixels",
 )
 _DESIGN_KEYS = (
     "top", "sources", "language", "family", "pixel_format", "parameters", "file_parameters",
@@ -110,6 +112,8 @@ _LANGUAGES = ("verilog", "vhdl")
 _LANGUAGE_BY_SUFFIX = {**{s: "verilog" for s in VERILOG_SUFFIXES}, **{s: "vhdl" for s in VHDL_SUFFIXES}}
 _DEFAULT_MAX_LENGTH = 4
 _PACKAGE_PREFIX = "package:"
+IMAGE_PIXELS_SETTING = "[stimulus] max_image_pixels"
+"""The config key of the decompression-bomb guard, as an image error names it."""
 # The bundled regression configs were installed as vkit.sim before the simulator layer took that name.
 _PACKAGE_RENAMED = {"vkit.sim": "vkit.regressions"}
 
@@ -234,6 +238,8 @@ class StimulusConfig:
             out (``["*"]``, the default, is every design; ``["!*@*"]`` leaves out the seeded-bug variants).
         convert: allow the lossy image conversions of :func:`vkit.video.images.load_image` (16-bit to 8-bit,
             alpha dropped, colour to luma, gray to RGB); False (default) makes each an error.
+        max_image_pixels: decompression-bomb guard: an image file claiming more pixels (width x height)
+            is refused before it is decoded (default :data:`vkit.video.images.DEFAULT_MAX_PIXELS`).
     """
 
     images: list[Path] = field(default_factory=list)
@@ -249,6 +255,7 @@ class StimulusConfig:
     seeds: list[int] = field(default_factory=lambda: [1])
     convert: bool = False
     designs: list[str] = field(default_factory=lambda: ["*"])
+    max_image_pixels: int = DEFAULT_MAX_PIXELS
 
 
 @dataclass
@@ -380,6 +387,7 @@ class Case:
         blanking, blanking_value: blanking data.
         index: position in the sorted full matrix (0-based), the basis of sharding.
         convert: image conversions allowed (``[stimulus] convert``).
+        max_image_pixels: the decompression-bomb guard of the image (``[stimulus] max_image_pixels``).
     """
 
     id: str
@@ -402,6 +410,7 @@ class Case:
     blanking_value: int = 0
     index: int = 0
     convert: bool = False
+    max_image_pixels: int = DEFAULT_MAX_PIXELS
 
     @property
     def steady(self) -> bool:
@@ -480,7 +489,11 @@ def _resolve(base: Path, text: str) -> Path:
             root = Path(str(importlib.resources.files(pkg)))
         except ModuleNotFoundError:
             raise ConfigError(f"path {text!r}: package {pkg!r} is not installed; fix the package name") from None
-        return (root / rest).resolve()
+        found = (root / rest).resolve()
+        if not found.is_relative_to(root.resolve()):
+            raise ConfigError(f"path {text!r} leaves package {pkg!r} (it resolves to {found}); "
+                              f"name a file inside the package, or give a plain path")
+        return found
     p = Path(os.path.expanduser(text))
     return (p if p.is_absolute() else base / p).resolve()
 
@@ -492,11 +505,19 @@ def _glob_files(base: Path, text: str, want: Callable[[Path], bool]) -> tuple[li
     return [Path(h) for h in hits], pattern
 
 
+def _no_file(where: str, key: str, text: str, path: str | Path, fix: str, example: str = "*.v") -> ConfigError:
+    """The error for a path value naming no file: a directory is said to be one, anything else is not found."""
+    if Path(path).is_dir():
+        return fail(where, key, text, f"a directory ({path}), not a file",
+                    f"name the files in it, e.g. {str(text).rstrip('/') + '/' + example!r}")
+    return fail(where, key, text, f"not found (looked for {path})", fix)
+
+
 def _existing_file(where: str, key: str, text: Any, base: Path) -> Path:
     """A file path value that must name an existing file."""
     path = _resolve(base, want_str(where, key, text))
     if not path.is_file():
-        raise fail(where, key, text, f"not found (looked for {path})", "fix the path")
+        raise _no_file(where, key, text, path, "fix the path")
     return path
 
 
@@ -644,6 +665,7 @@ def _size(where: str, key: str, value: Any) -> tuple[int, int]:
     ok = isinstance(value, list) and len(value) == 2
     if not ok or not all(isinstance(x, int) and not isinstance(x, bool) and x >= 2 for x in value):
         raise fail(where, key, value, "not a frame size", "give [width, height] in pixels, each >= 2, e.g. [32, 24]")
+    check_frame_size(where, key, value[0], value[1])
     return value[0], value[1]
 
 
@@ -659,6 +681,7 @@ _STIMULUS_FIELDS: dict[str, _Reader] = {
     "convert": want_bool,
     "seeds": _seeds,
     "designs": want_str_list,
+    "max_image_pixels": _int_from(1),
 }
 
 
@@ -666,9 +689,9 @@ def _parse_stimulus(where: str, data: Mapping[str, Any], base: Path) -> Stimulus
     check_keys(where, data, _STIMULUS_KEYS)
     st = StimulusConfig()
     for text in want_str_list(where, "images", data.get("images", [])):
-        hits, pattern = _glob_files(base, text, Path.exists)
+        hits, pattern = _glob_files(base, text, Path.is_file)
         if not hits:
-            raise fail(where, "images", text, f"not found (looked for {pattern})", "fix the path or glob")
+            raise _no_file(where, "images", text, pattern, "fix the path or glob", "*.png")
         st.images.extend(hits)
     patterns = data.get("patterns", [])
     st.patterns = [_pattern_entry(where, item) for item in (patterns if isinstance(patterns, list) else [patterns])]
@@ -686,7 +709,7 @@ def _sources(where: str, value: Any, base: Path) -> list[Path]:
     for text in want_str_list(where, "sources", value):
         hits, pattern = _glob_files(base, text, Path.is_file)
         if not hits:
-            raise fail(where, "sources", text, f"not found (looked for {pattern})", f"fix the path relative to {base}")
+            raise _no_file(where, "sources", text, pattern, f"fix the path relative to {base}")
         sources.extend(hits)
     return sources
 
@@ -972,9 +995,9 @@ class _Stimulus:
         return wanted and not any(fnmatch.fnmatchcase(design, g) for g in drop)
 
 
-def _image_size(path: Path) -> tuple[int, int]:
+def _image_size(path: Path, max_pixels: int) -> tuple[int, int]:
     """``(width, height)`` through vkit.video.images (decompression-bomb guard, one-line errors)."""
-    arr = load_image(path, mode="auto", convert=True)
+    arr = load_image(path, mode="auto", convert=True, max_pixels=max_pixels, setting=IMAGE_PIXELS_SETTING)
     return int(arr.shape[1]), int(arr.shape[0])
 
 
@@ -982,7 +1005,8 @@ def _stimuli(st: StimulusConfig) -> list[_Stimulus]:
     """The images, then the pattern entries, each with its own axes or the ``[stimulus]`` ones."""
     axes = dict(timings=tuple(st.timings), stalls=tuple(st.stalls), gaps=tuple(st.gaps),
                 backpressure=tuple(st.backpressure), designs=tuple(st.designs))
-    out = [_Stimulus("image", str(img), img.stem, (), tuple(st.seeds), _image_size(img), **axes) for img in st.images]
+    out = [_Stimulus("image", str(img), img.stem, (), tuple(st.seeds), _image_size(img, st.max_image_pixels), **axes)
+           for img in st.images]
     for pe in st.patterns:
         own = {k: getattr(pe, k) for k in axes if getattr(pe, k) is not None}
         out.append(_Stimulus("pattern", pe.name, pe.id_label, pe.options, pe.seeds or tuple(st.seeds), None,
@@ -990,10 +1014,30 @@ def _stimuli(st: StimulusConfig) -> list[_Stimulus]:
     return out
 
 
-def _design_simulators(d: DesignConfig, requested: list[str]) -> list[str]:
-    if d.simulators is not None:
-        return list(d.simulators)
-    return [s for s in requested if d.language in LANGUAGES[s] and (d.supported is None or s in d.supported)]
+def _design_simulators(d: DesignConfig, requested: list[str], command_line: bool = False) -> list[str]:
+    """The simulators a design runs on: its own list (an override of ``[run]``) unless the command line
+    names simulators, which win; always only those of its language and, when imported, its manifest's."""
+    wanted = requested if command_line or d.simulators is None else d.simulators
+    return [s for s in wanted if d.language in LANGUAGES[s] and (d.supported is None or s in d.supported)]
+
+
+def _why_none(d: DesignConfig, requested: list[str]) -> str:
+    """Why a design runs on none of ``requested``: its language, or its manifest's list."""
+    if not any(d.language in LANGUAGES[s] for s in requested):
+        return f"{d.language} runs on {', '.join(s for s in LANGUAGES if d.language in LANGUAGES[s])}"
+    return f"its manifest lists {', '.join(d.supported or [])}"
+
+
+def dropped_designs(config: Config, simulators: list[str] | None) -> str | None:
+    """One note naming the designs ``--sim`` leaves without a case, and why; None when none is left out."""
+    if not simulators:
+        return None
+    requested = _simulator_list("command line", "--sim", simulators)
+    left = [f"{d.name} ({_why_none(d, requested)})" for d in config.designs.values()
+            if not _design_simulators(d, requested, command_line=True)]
+    if not left:
+        return None
+    return f"note: --sim {' '.join(requested)} leaves out design(s) {'; '.join(left)}"
 
 
 def _frame_timings(s: _Stimulus, size: tuple[int, int], family: str) -> list[tuple[str, dict[str, Any] | None, int, int]]:
@@ -1025,13 +1069,14 @@ def _design_cases(config: Config, d: DesignConfig, sim: str, s: _Stimulus) -> It
     st = config.stimulus
     for seed in s.seeds:
         for tlabel, timing, width, height in _frame_timings(s, st.size, d.family):
+            check_case_size(f"{config.path.name} [stimulus]", st.frames, width, height)
             for flabel, stall, gap, bp in _flow_settings(s, d.family):
                 yield Case(
                     id=f"{d.name}/{sim}/{s.label}-s{seed}/{tlabel}/{flabel}", design=d, simulator=sim,
                     stimulus=s.kind, stimulus_name=s.name, stimulus_label=s.label, pattern_options=s.options,
                     seed=seed + config.run.seed, frames=st.frames, width=width, height=height, timing=timing,
                     timing_label=tlabel, stalls=stall, gaps=gap, backpressure=bp, blanking=st.blanking,
-                    blanking_value=st.blanking_value, convert=st.convert,
+                    blanking_value=st.blanking_value, convert=st.convert, max_image_pixels=st.max_image_pixels,
                 )
 
 
@@ -1040,8 +1085,9 @@ def expand_matrix(config: Config, simulators: list[str] | None = None) -> list[C
 
     Args:
         config: a loaded config.
-        simulators: replaces ``[run] simulators`` (designs that name their own keep them; a design
-            only runs on simulators of its language and, when imported, on those its manifest lists).
+        simulators: replaces ``[run] simulators`` and the designs' own ``simulators`` (the command line
+            wins); a design only runs on simulators of its language and, when imported, on those its
+            manifest lists (:func:`dropped_designs` names the designs left out).
 
     Raises:
         ConfigError: the matrix is empty, or an image is smaller than a timing's active area.
@@ -1051,7 +1097,7 @@ def expand_matrix(config: Config, simulators: list[str] | None = None) -> list[C
     cases: dict[str, Case] = {}
     skipped: list[str] = []
     for d in config.designs.values():
-        sims = _design_simulators(d, requested)
+        sims = _design_simulators(d, requested, command_line=bool(simulators))
         if not sims:
             skipped.append(d.name)
         for sim in sims:

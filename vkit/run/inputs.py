@@ -8,15 +8,15 @@ import numpy as np
 
 from vkit.core.errors import ConfigError
 from vkit.core.validate import closest, fail
-from vkit.run.config import Case
+from vkit.run.config import IMAGE_PIXELS_SETTING, Case
 from vkit.sim.case import SimCase
-from vkit.sim.hdlports import Port, parse_ports
+from vkit.sim.hdlports import HdlDesign, Port, find_design
 from vkit.sim.signals import CONTROL_ROLES
 from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.images import load_image
 from vkit.video.patterns import make_pattern
 
-__all__ = ["make_frames", "check_ports", "make_sim_case", "BACKPRESSURE_SEED_OFFSET"]
+__all__ = ["make_frames", "check_ports", "check_parameters", "make_sim_case", "BACKPRESSURE_SEED_OFFSET"]
 
 BACKPRESSURE_SEED_OFFSET = 7919
 """Added to a stream case's seed for its back-pressure pattern, so ready and valid gaps are not the same
@@ -31,7 +31,8 @@ def _crop(image: np.ndarray, width: int, height: int) -> np.ndarray:
 
 def _image_frame(case: Case) -> np.ndarray:
     try:
-        loaded = load_image(case.stimulus_name, mode=case.design.pixel_format, convert=case.convert)
+        loaded = load_image(case.stimulus_name, mode=case.design.pixel_format, convert=case.convert,
+                            max_pixels=case.max_image_pixels, setting=IMAGE_PIXELS_SETTING)
     except ConfigError as exc:
         if "convert" not in str(exc):
             raise
@@ -58,15 +59,56 @@ def make_frames(case: Case) -> np.ndarray:
     return np.stack(frames)
 
 
-def _top_ports(case: Case) -> list[Port]:
-    """The top level's ports as the light HDL reader sees them; empty when it cannot read them."""
+def _top_design(case: Case) -> HdlDesign | None:
+    """The top level as the light HDL reader sees it; None when it cannot read it."""
     d = case.design
     ints = {k: v for k, v in d.build_parameters(case.width, case.height).items()
             if isinstance(v, int) and not isinstance(v, bool)}
     try:
-        return list(parse_ports(d.sources, d.top, parameters=ints, defines={k: str(v) for k, v in d.defines.items()}))
+        return find_design(d.sources, d.top, parameters=ints, defines={k: str(v) for k, v in d.defines.items()})
     except Exception:  # noqa: BLE001 - the reader is a pre-check only; the simulator has the last word
-        return []
+        return None
+
+
+def _top_ports(case: Case) -> list[Port]:
+    """The top level's ports as the light HDL reader sees them; empty when it cannot read them."""
+    design = _top_design(case)
+    return list(design.ports) if design is not None else []
+
+
+def _parameter_keys(case: Case) -> list[tuple[str, str, object]]:
+    """``(config key, parameter name, value)`` of every parameter a build of the case sets."""
+    d = case.design
+    keys = [(f"parameters.{k}", k, v) for k, v in d.parameters.items()]
+    keys += [(f"file_parameters.{k}", k, str(v)) for k, v in d.file_parameters.items()]
+    keys += [(f"frame_parameters.{what}", k, k) for what, k in d.frame_parameters.items()]
+    return keys
+
+
+def check_parameters(case: Case) -> None:
+    """Check every parameter/generic the case sets against those written in the top level's sources.
+
+    Runs before any build: a simulator given a parameter its design lacks may ignore it (Icarus only
+    warns), and the case would then pass on the default value. When the light HDL reader cannot read
+    the top level, nothing is checked here (the build log is scanned for the simulator's own words).
+
+    Raises:
+        ConfigError: a parameter is not one of the top level's (the line lists them, with "did you mean").
+    """
+    design = _top_design(case)
+    if design is None:
+        return
+    d = case.design
+    names = list(design.parameters)
+    known = {n.lower() if design.language == "vhdl" else n for n in names}
+    for key, name, value in _parameter_keys(case):
+        if (name.lower() if design.language == "vhdl" else name) in known:
+            continue
+        near = closest(name, names)
+        kind = "generic" if design.language == "vhdl" else "parameter"
+        have = f"its {kind}s: {', '.join(names)}" if names else f"it has no {kind}s"
+        raise fail(f"design {d.name}", key, value, f"not a {kind} of {d.top} ({have})",
+                   f"did you mean {near!r}?" if near else f"remove it or name a {kind} {d.top} has")
 
 
 def check_ports(case: Case) -> None:
@@ -97,10 +139,24 @@ def check_ports(case: Case) -> None:
         if role in CONTROL_ROLES and port.width != 1:
             raise fail(where, f"ports.{role}", port.name, f"{port.width} bits wide",
                        f"a control role needs a 1-bit port; map {role!r} to one")
-        need = PIXEL_FORMAT_BITS.get(d.pixel_format)
-        if role == "in_data" and need is not None and port.width < need:
-            raise fail(where, "ports.in_data", port.name, f"{port.width} bits wide but pixel_format "
-                       f"{d.pixel_format} needs {need} bits", "widen the port or use a narrower pixel_format")
+        _check_data_width(case, role, port)
+
+
+def _check_data_width(case: Case, role: str, port: Port) -> None:
+    """``in_data`` holds the pixel format; ``out_data`` is exactly as wide as the spec's output pixel."""
+    d = case.design
+    where = f"design {d.name}"
+    need = PIXEL_FORMAT_BITS.get(d.pixel_format)
+    if role == "in_data" and need is not None and port.width is not None and port.width < need:
+        raise fail(where, "ports.in_data", port.name, f"{port.width} bits wide but pixel_format "
+                   f"{d.pixel_format} needs {need} bits", "widen the port or use a narrower pixel_format")
+    if role == "out_data" and port.width is not None:
+        bits = d.pipeline_spec().output.bits
+        if port.width != bits:
+            side = "narrower" if port.width < bits else "wider"
+            raise fail(where, "ports.out_data", port.name, f"{port.width} bits wide, {side} than the "
+                       f"{bits}-bit output pixel of spec {d.pipeline_spec().name}",
+                       f"make the port {bits} bits wide or set [output] bits = {port.width} in the spec")
 
 
 def make_sim_case(case: Case, sim_dir: Path, frames: np.ndarray) -> SimCase:

@@ -8,6 +8,7 @@ from pathlib import Path
 from vkit.core.validate import want_choice, want_int, want_number
 from vkit.core.vocab import DRIVE_MODES, WAVE_MODES
 from vkit.run.config import PICTURE_MODES, RunSettings
+from vkit.sim.buildcache import check_cache_dir, default_cache_dir
 
 __all__ = ["RunOptions"]
 
@@ -49,6 +50,7 @@ class RunOptions:
         want_choice(where, "waves", self.waves, WAVE_MODES)
         want_choice(where, "pictures", self.pictures, PICTURE_MODES)
         want_choice(where, "drive", self.drive, DRIVE_MODES)
+        check_cache_dir(self.cache_dir if self.cache_dir is not None else default_cache_dir())
 
     @classmethod
     def make(cls, out_dir: str | Path, *, cache_dir: str | Path | None = None,

@@ -51,8 +51,10 @@ def _check_writable(out: Path) -> None:
     try:
         out.mkdir(parents=True, exist_ok=True)
         probe = out / f".vkit-write-test-{os.getpid()}"
-        probe.write_text("ok\n")
-        probe.unlink()
+        try:
+            probe.write_text("ok\n")
+        finally:  # a write that fails (disk full) still leaves the created file: never leave it behind
+            probe.unlink(missing_ok=True)
     except OSError as exc:
         why = exc.strerror or type(exc).__name__
         raise ConfigError(f"output folder {out} cannot be written ({why}); pick a writable folder with --out "

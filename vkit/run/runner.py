@@ -18,6 +18,7 @@ Output folder layout (every path stays inside ``out_dir``)::
 from __future__ import annotations
 
 import importlib.resources
+import sys
 from pathlib import Path
 from typing import Any, TextIO
 
@@ -27,7 +28,7 @@ from vkit.report.page import write_index
 from vkit.report.writers import merge_reports
 from vkit.run.builds import build_design, build_fast_design, build_request, build_wave_design
 from vkit.run.case import rerun_command, run_one_case
-from vkit.run.config import Config, expand_matrix, load_config, select_cases, shard_cases
+from vkit.run.config import Config, dropped_designs, expand_matrix, load_config, select_cases, shard_cases
 from vkit.run.inputs import check_ports, make_frames, make_sim_case
 from vkit.run.options import RunOptions
 from vkit.run.pool import run_cases
@@ -89,6 +90,9 @@ def run(config: Config, jobs: int | None = None, shard: tuple[int, int] | str | 
         ConfigError / ToolError: nothing could run (empty selection, missing simulator, bad option).
     """
     cases = shard_cases(select_cases(expand_matrix(config, simulators), only), shard)
+    note = dropped_designs(config, simulators)
+    if note is not None and progress:
+        print(note, file=stream or sys.stdout)
     if not cases:
         raise ConfigError(f"shard {shard} of {config.path.name} holds no case; use fewer shards")
     options = RunOptions.from_settings(config.run, config_path=config.path, out_dir=out_dir, jobs=jobs or None,
@@ -105,10 +109,24 @@ def demo_config() -> Config:
 
 
 def merge(out_dir: str | Path, reports: list[str | Path]) -> tuple[dict[str, Any], int]:
-    """Merge shard ``report.json`` files into one report in ``out_dir``; returns (report, exit code)."""
+    """Merge shard ``report.json`` files into one report in ``out_dir``; returns (report, exit code).
+
+    Raises:
+        ConfigError: no report given, one is not a vkit report (``report.schema.json``), the shards hold
+            no case at all, or ``out_dir`` is a file or cannot be written. Nothing is written then.
+    """
     if not reports:
         raise ConfigError("merge: no report.json given; pass the shard reports (or their folders)")
-    merged = merge_reports(list(reports), Path(out_dir))
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise ConfigError(f"merge: output folder {out} is a file; give a folder (new or existing) for the merged report")
+    if not merge_reports(list(reports))["cases"]:  # read and checked without writing anything
+        raise ConfigError(f"merge: the {len(reports)} report(s) hold no case; a shard that ran nothing is a broken "
+                          "shard: check each shard's run")
+    try:
+        merged = merge_reports(list(reports), out)
+    except OSError as exc:
+        raise ConfigError(f"merge: cannot write to {out} ({exc.strerror or exc}); pick a writable folder") from None
     write_index(out_dir, title=f"vkit merge: {len(reports)} shard(s)")
     statuses = [c.get("status") or c.get("verdict", {}).get("status", "error") for c in merged["cases"]]
     return merged, exit_code_for(statuses)

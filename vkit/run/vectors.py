@@ -85,6 +85,21 @@ def export_vectors(case: Case, out_dir: str | Path) -> ExportedCase:
     return ExportedCase(out, Path(result.testbench), dict(result.commands))
 
 
+def _check_complete(capture_file: Path) -> None:
+    """A capture file the testbench did not finish is refused as such, before the design is blamed."""
+    from vkit.sim.fast.capture_file import truncation
+
+    if capture_file.is_dir():
+        raise ConfigError(f"capture file {str(capture_file)!r} is a directory; name the capture.bin or capture.txt in it")
+    if not capture_file.is_file():
+        raise ConfigError(f"capture file {str(capture_file)!r} does not exist; run the exported testbench first "
+                          "(see README.txt), or name the capture file")
+    why = truncation(capture_file)
+    if why is not None:
+        raise ConfigError(f"capture file {str(capture_file)!r} is truncated: {why}; the testbench did not finish "
+                          "writing it (stopped early, or the file was cut): rerun it to the end, then replay")
+
+
 def replay(export_dir: str | Path, capture_file: str | Path | None = None,
            out_dir: str | Path | None = None) -> tuple[Any, dict[str, str]]:
     """Judge the capture an exported testbench wrote, exactly as a live run judges its capture.
@@ -99,7 +114,8 @@ def replay(export_dir: str | Path, capture_file: str | Path | None = None,
         and summary.txt.
 
     Raises:
-        ConfigError: the folder is not an export, or the capture file is missing.
+        ConfigError: the folder is not an export, or the capture file is missing, truncated (no end-of-run
+            event) or not a vkit capture file.
     """
     from vkit.run.export import read_capture
     from vkit.model.pipeline import PipelineSpec, run_model
@@ -119,6 +135,7 @@ def replay(export_dir: str | Path, capture_file: str | Path | None = None,
             raise ConfigError(f"no capture.bin or capture.txt in {str(src)!r}; run the exported testbench there "
                               "first (see README.txt), or name the capture file")
         capture_file = found[0]
+    _check_complete(Path(capture_file))
     spec = PipelineSpec.from_toml(src / "spec.toml")
     frames = np.load(src / "frames.npy")
     expected = [run_model(spec, f) for f in frames]

@@ -21,7 +21,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Callable
 
-__all__ = ["BUILD_FORMAT", "STAMP_NAME", "BuildRequest", "BuildOutcome", "BuildCache", "build_key", "default_cache_dir"]
+from vkit.core.errors import ConfigError
+
+__all__ = ["BUILD_FORMAT", "STAMP_NAME", "BuildRequest", "BuildOutcome", "BuildCache", "build_key", "default_cache_dir",
+           "check_cache_dir"]
 
 BUILD_FORMAT = "vkit-build-1"
 """Version of how vkit invokes builds; changing it invalidates every cached build."""
@@ -129,6 +132,17 @@ def default_cache_dir() -> Path:
     return Path.home() / ".cache" / "vkit" / "builds"
 
 
+def check_cache_dir(cache_dir: Path) -> None:
+    """Raise one ConfigError line when ``cache_dir`` (or the first of its parents that exists) is not a folder."""
+    probe = cache_dir
+    while not probe.exists() and probe.parent != probe:
+        probe = probe.parent
+    if not probe.is_dir():
+        what = "is a file" if probe == cache_dir else f"lies under {probe}, which is a file"
+        raise ConfigError(f"build cache: cache_dir = {str(cache_dir)!r} {what}, not a folder; point [run] cache_dir "
+                          "(or $VKIT_CACHE_DIR) at a folder")
+
+
 @dataclass
 class BuildOutcome:
     """Result of :meth:`BuildCache.ensure`.
@@ -177,7 +191,12 @@ class BuildCache:
         stamp = bdir / STAMP_NAME
         if stamp.is_file():
             return BuildOutcome(bdir, key, True)
-        self.cache_dir.mkdir(parents=True, exist_ok=True)
+        check_cache_dir(self.cache_dir)
+        try:
+            self.cache_dir.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise ConfigError(f"build cache: cache_dir = {str(self.cache_dir)!r} cannot be made ({exc.strerror}); "
+                              "point [run] cache_dir (or $VKIT_CACHE_DIR) at a writable folder") from None
         lock_path = bdir.with_name(bdir.name + ".lock")
         t0 = time.monotonic()
         with open(lock_path, "a") as lock:

@@ -63,6 +63,7 @@ def load_image(
     mode: Mode = "auto",
     convert: bool = False,
     max_pixels: int = DEFAULT_MAX_PIXELS,
+    setting: str = "max_pixels",
 ) -> np.ndarray:
     """Read a PNG, PPM or PGM file into a uint8 array.
 
@@ -78,6 +79,8 @@ def load_image(
             (ITU-R 601-2 weights 299/587/114), or one channel when R == G == B everywhere.
         max_pixels: decompression-bomb guard: a file claiming more than this many pixels
             (width * height) is refused before it is decoded.
+        setting: where the user sets ``max_pixels`` (``"[stimulus] max_image_pixels"``,
+            ``"--max-image-pixels"``), named by the error's fix.
 
     Returns:
         ``uint8`` array, ``(H, W)`` gray or ``(H, W, 3)`` RGB.
@@ -91,7 +94,7 @@ def load_image(
         raise ConfigError(f"load_image: mode = {mode!r}; use 'auto', 'gray8' or 'rgb888'")
     if not p.is_file():
         raise _fail(p, "no such file", "check the path")
-    im = _open_guarded(p, max_pixels)
+    im = _open_guarded(p, max_pixels, setting)
     try:
         if im.format not in _READ_FORMATS:
             raise _fail(p, f"format {im.format} is not read by vkit", "save it as PNG, PPM or PGM")
@@ -101,10 +104,10 @@ def load_image(
     return arr
 
 
-def _open_guarded(p: Path, max_pixels: int) -> Image.Image:
+def _open_guarded(p: Path, max_pixels: int, setting: str = "max_pixels") -> Image.Image:
     if isinstance(max_pixels, bool) or not isinstance(max_pixels, int) or max_pixels < 1:
         raise ConfigError(f"load_image: max_pixels = {max_pixels!r}; give a positive integer pixel count")
-    fix = f"pass a larger max_pixels (now {max_pixels}) if you trust the file"
+    fix = f"raise {setting} (now {max_pixels}) if you trust the file"
     try:
         with _BOMB_LOCK, warnings.catch_warnings():
             warnings.simplefilter("error", Image.DecompressionBombWarning)

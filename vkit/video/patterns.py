@@ -9,6 +9,7 @@ import numpy as np
 
 from vkit.core.errors import ConfigError
 from vkit.video.killers import killers
+from vkit.video.limits import check_frame_size
 
 __all__ = [
     "PATTERNS",
@@ -458,7 +459,7 @@ def make_pattern(
         **options: the pattern's own keyword arguments (``cell``, ``value``, ``low``, ``high``).
 
     Raises:
-        ConfigError: unknown name or option.
+        ConfigError: unknown name or option, or a size over :data:`vkit.video.limits.MAX_FRAME_PIXELS`.
     """
     try:
         gen = PATTERNS[name]
@@ -472,6 +473,7 @@ def make_pattern(
         raise ConfigError(
             f"pattern {name!r}: unknown option(s) {', '.join(unknown)}; it takes {', '.join(allowed) or 'no options'}"
         )
+    check_frame_size(f"pattern {name!r}", "size", width, height)
     if "seed" in params:
         kwargs["seed"] = seed
     if "rgb" in params:

@@ -1,7 +1,7 @@
 """The one reader of the fast-path harness's capture file (binary records or text lines): a :class:`~vkit.video.capture.Capture`.
 
 Text format (the VHDL harness; the Verilog harness with ``+vkit_capture_bin=0``): a first line
-``# vkit capture 1 FAMILY``, then one event per line, ``CLOCK KIND ARG``, in the order the harness
+``# vkit capture VERSION FAMILY`` (VERSION is :data:`~vkit.sim.fast.wire.CAPTURE_VERSION`), then one event per line, ``CLOCK KIND ARG``, in the order the harness
 saw them (several per clock possible):
 
     P <hex>|U   an output pixel (U: the data bus held X or Z)
@@ -15,8 +15,11 @@ saw them (several per clock possible):
     T -         the harness's timeout was reached
     E -         end of the run; CLOCK is the number of clocks run
 
-Binary format (the Verilog harness's default): the records described in :mod:`vkit.sim.fast.wire`,
-with the kind letters above. Both formats give the same Capture for the same run.
+Binary format (the Verilog harness's default): a 16-byte header (magic "VKCB", version, family, data
+width), then the records described in :mod:`vkit.sim.fast.wire`, with the kind letters above. Both
+formats give the same Capture for the same run. A file that starts with neither header is not a vkit
+capture and is never parsed; a file without the final ``E`` event is a truncated file
+(:func:`truncation`).
 
 Frame and line numbering follow the per-clock monitors exactly: a frame or line delimiter that
 closes an empty frame or line does not advance the count; without an output vsync, a video frame
@@ -40,7 +43,21 @@ from vkit.sim.fast.stimulus import StimulusFiles, write_stimulus
 from vkit.sim.fast.wire import CAPTURE_MAGIC, CAPTURE_ROLES, CAPTURE_VERSION, FAMILY_CODES, capture_data_words
 from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, RunFacts
 
-__all__ = ["parse_capture_text", "parse_capture_binary", "is_binary_capture", "input_meta", "read_capture"]
+__all__ = [
+    "TEXT_HEADER",
+    "parse_capture_text",
+    "parse_capture_binary",
+    "is_binary_capture",
+    "is_text_capture",
+    "truncation",
+    "input_meta",
+    "read_capture",
+]
+
+TEXT_HEADER = "# vkit capture "
+"""Start of a text capture's first line; the version and the family follow."""
+_BINARY_HEADER_BYTES = 16
+"""Magic, version, family and data width: four little-endian 32-bit words."""
 
 
 def parse_capture_text(
@@ -63,10 +80,13 @@ def parse_capture_text(
     Raises:
         ConfigError: the text is not a vkit capture (no header line).
     """
-    lines = [text.split("\n", 1)[0]]
-    if not lines[0].startswith("# vkit capture"):
+    first = text.split("\n", 1)[0]
+    if not first.startswith(TEXT_HEADER):
         raise ConfigError("capture text: the first line is not '# vkit capture ...'; give a file written by the vkit harness")
-    head = lines[0].split()
+    head = first.split()
+    if len(head) < 4 or head[3] != str(CAPTURE_VERSION):
+        raise ConfigError(f"capture text: format version {head[3] if len(head) > 3 else 'missing'}, this vkit reads "
+                          f"{CAPTURE_VERSION}; rebuild the harness with this vkit")
     family = family or (head[4] if len(head) > 4 else "video")
     tokens = text.split("\n", 1)[1].split() if "\n" in text else []
     if len(tokens) % 3:
@@ -135,6 +155,67 @@ def parse_capture_binary(
 def is_binary_capture(head: bytes) -> bool:
     """True when ``head`` (the first 4+ bytes of a file) is a binary capture header."""
     return len(head) >= 4 and int.from_bytes(head[:4], "little") == CAPTURE_MAGIC
+
+
+def is_text_capture(head: bytes) -> bool:
+    """True when ``head`` (the first bytes of a file) starts a text capture's header line."""
+    return head.startswith(TEXT_HEADER.encode("ascii"))
+
+
+def _binary_truncation(path: Path, size: int) -> str | None:
+    if size < _BINARY_HEADER_BYTES:
+        return f"it holds {size} bytes, fewer than the {_BINARY_HEADER_BYTES}-byte header"
+    with open(path, "rb") as fh:
+        header = np.frombuffer(fh.read(_BINARY_HEADER_BYTES), "<u4")
+        rec = 8 + 4 * capture_data_words(int(header[3]))
+        body = size - _BINARY_HEADER_BYTES
+        if body % rec:
+            return f"its last record is cut after {body % rec} of {rec} bytes"
+        if body == 0:
+            return "it holds the header and no event"
+        fh.seek(size - rec)
+        last = np.frombuffer(fh.read(8), "<u4")
+    if (int(last[1]) & 0xFF) != ord("E"):
+        return f"it stops at clock {int(last[0])} without the end-of-run event"
+    return None
+
+
+def _text_truncation(path: Path, size: int) -> str | None:
+    with open(path, "rb") as fh:
+        fh.seek(max(0, size - 256))
+        tail = fh.read()
+    if not tail.endswith(b"\n"):
+        return "its last line is cut mid-line"
+    last = tail.rstrip(b"\n").rsplit(b"\n", 1)[-1].split()
+    if len(last) < 2 or last[1] != b"E":
+        return f"it stops at {b' '.join(last).decode(errors='replace')!r} without the end-of-run line"
+    return None
+
+
+def truncation(path: str | Path) -> str | None:
+    """Why the capture file at ``path`` is incomplete (the harness writes an ``E`` event last), or None.
+
+    A file without the end event was cut short: the simulator was stopped before the harness finished
+    writing, or the file was copied or cut before it was complete. Only the header and the last event
+    are read.
+
+    Raises:
+        ConfigError: ``path`` is not a vkit capture file (see :func:`is_binary_capture`).
+    """
+    p = Path(path)
+    size = p.stat().st_size
+    with open(p, "rb") as fh:
+        head = fh.read(len(TEXT_HEADER))
+    if is_binary_capture(head):
+        return _binary_truncation(p, size)
+    if is_text_capture(head):
+        return _text_truncation(p, size)
+    raise _not_a_capture(p)
+
+
+def _not_a_capture(path: Path) -> ConfigError:
+    return ConfigError(f"capture file {str(path)!r} is not a vkit capture file (it starts with neither the binary "
+                       f"header VKCB nor {TEXT_HEADER.strip()!r}); give the capture.bin or capture.txt a vkit harness wrote")
 
 
 @dataclass
@@ -333,13 +414,17 @@ def _positions_loop(kind: np.ndarray, split: bool, height: int) -> tuple[np.ndar
 
 def _parse_file(path: Path, **kwargs: Any) -> Capture:
     """Parse a harness capture file in either format (told apart by the header)."""
+    if path.is_dir():
+        raise ConfigError(f"capture file {str(path)!r} is a directory; give the capture.bin or capture.txt file in it")
     if not path.is_file():
         raise DutError(f"capture file {str(path)!r} does not exist: the simulation did not start the harness; "
                        "see the simulator log")
     with open(path, "rb") as fh:
-        head = fh.read(4)
+        head = fh.read(len(TEXT_HEADER))
     if is_binary_capture(head):
         return parse_capture_binary(np.fromfile(path, np.uint8), **kwargs)
+    if not is_text_capture(head):
+        raise _not_a_capture(path)
     return parse_capture_text(path.read_text(errors="replace"), **kwargs)
 
 
@@ -369,6 +454,7 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
 
     Raises:
         DutError: the file does not exist (the simulation never opened it).
+        ConfigError: the file is not a vkit capture file (neither header), or of another format version.
     """
     cap = _parse_file(
         Path(path),

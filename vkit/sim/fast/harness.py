@@ -266,5 +266,5 @@ def vhdl_harness(spec: HarnessSpec) -> str:
     return render(
         "harness.vhd.j2", dut_top=spec.dut_top, harness=HARNESS, toplevel=TOPLEVEL, iw=iw, ow=ow, sw=sw,
         hexw=4 * ((sw + 3) // 4), oh=4 * ((ow + 3) // 4), sigs=sigs, ties=ties, conns=conns, gmap=gmap,
-        reset_active_high=spec.reset_active_high, bit=_word_bits(spec),
+        reset_active_high=spec.reset_active_high, bit=_word_bits(spec), version=CAPTURE_VERSION,
     )

@@ -17,7 +17,7 @@ import pytest
 
 from vkit.cli import build_parser, main
 
-SUBCOMMANDS = ("run", "demo", "export", "replay", "merge", "model", "widths", "lut", "init", "pattern")
+SUBCOMMANDS = ("run", "demo", "export", "replay", "merge", "model", "widths", "strength", "lut", "init", "pattern")
 """What ``vkit --help`` lists; test_every_subcommand_is_covered keeps this in step with the parser."""
 
 
@@ -70,6 +70,11 @@ def _cases(j: dict[str, Path]) -> list[list[str]]:
         # widths
         ["widths", s["missing"]], ["widths", s["folder"]], ["widths", s["empty"]], ["widths", s["bytes"]],
         ["widths", "ëdge ✓"], ["widths", "edge", "--bogus"],
+        # strength
+        ["strength", s["missing"]], ["strength", s["bytes"]], ["strength", "edge", s["bytes"]],
+        ["strength", "edge", s["folder"]], ["strength", "edge", "nosuchpattern"], ["strength", "edge", "impulse:-1"],
+        ["strength", "edge", "--size", "100000x100000"], ["strength", "edge", "--size", "0x0"],
+        ["strength", "edge", "--frames", "-2"], ["strength", "edge", "--frames", "1000000000"],
         # lut
         ["lut", "root", "-o", s["folder"]], ["lut", "root", "-o", str(j["file"] / "t.hex")],
         ["lut", "root", "--address-bits", "100000000", "-o", str(j["folder"] / "t.hex")],

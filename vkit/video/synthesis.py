@@ -9,6 +9,8 @@ from typing import Sequence
 import numpy as np
 
 from vkit.core.errors import ConfigError
+from vkit.core.validate import fail, want_int
+from vkit.video.limits import check_case_size
 from vkit.model.mutants import Mutant, spec_mutants
 from vkit.model.spec import PipelineSpec
 from vkit.model.strength import kill_sets
@@ -34,11 +36,15 @@ def stimulus_frames(spec: PipelineSpec, items: Sequence[str], width: int, height
     """Frames of ``items`` in ``spec``'s input format: a pattern name (``name`` or ``name:seed``, frame k
     with seed + k, as a case makes them) or an image file (centre-cropped to ``width`` x ``height``)."""
     rgb = spec.input == "rgb888"
+    want_int("vkit strength", "--frames", frames, 1)
+    check_case_size("vkit strength", frames, width, height)
     out = []
     for item in items:
         name, _, own = item.partition(":")
         if name in PATTERNS:
-            base = int(own) if own else seed
+            base = want_int("vkit strength", f"seed of {name}", int(own), 0) if own.lstrip("-").isdigit() else seed
+            if own and not own.lstrip("-").isdigit():
+                raise fail("vkit strength", "stimulus", item, "not NAME or NAME:SEED", "give the seed as a whole number >= 0")
             out += [make_pattern(name, height, width, seed=base + k, rgb=rgb) for k in range(frames)]
             continue
         if not Path(item).is_file():

@@ -22,7 +22,7 @@ import time
 from pathlib import Path
 from typing import Any, Callable, Hashable, TextIO
 
-from vkit.core.errors import VkitError
+from vkit.core.errors import ConfigError, VkitError
 from vkit.report.progress import Progress
 from vkit.report.writers import write_run_report
 from vkit.run.builds import build_for_drive, build_request
@@ -205,6 +205,18 @@ def _run_case_phase(cases: list[Case], build_errors: dict[_BuildKey, str], optio
     return results
 
 
+def _write_reports(ordered: list[CaseResult], builds: list[dict[str, Any]], out: Path) -> dict[str, str]:
+    """report.json, junit.xml, summary.txt and builds.json; a full disk or a lost folder is one clear error."""
+    try:
+        files = write_run_report([r.entry for r in ordered], out)
+        (out / "builds.json").write_text(json.dumps(builds, indent=2) + "\n")
+    except OSError as exc:
+        why = exc.strerror or type(exc).__name__
+        raise ConfigError(f"the report cannot be written to {out} ({why}); free some space or give another --out, "
+                          "then run again") from None
+    return files
+
+
 def run_cases(cases: list[Case], options: RunOptions, *, progress: bool = True,
               stream: TextIO | None = None, new_out: bool = False) -> RunResult:
     """Build, run, score and report a list of cases into ``options.out_dir`` (see :func:`vkit.run.runner.run`).
@@ -241,6 +253,5 @@ def run_cases(cases: list[Case], options: RunOptions, *, progress: bool = True,
         results = _run_case_phase(cases, build_errors, options, runner, shown, stop)
         shown.close()
         ordered = [results[c.id] for c in cases]
-        files = write_run_report([r.entry for r in ordered], options.out_dir)
-        (options.out_dir / "builds.json").write_text(json.dumps(builds, indent=2) + "\n")
+        files = _write_reports(ordered, builds, options.out_dir)
     return RunResult(options.out_dir, ordered, files, builds, time.monotonic() - t0, stop.signum, notes)

@@ -116,7 +116,7 @@ def _wait_for_hang(proc: subprocess.Popen, log: Path, jobs: int) -> None:
     deadline = time.monotonic() + 240
     while time.monotonic() < deadline:
         assert proc.poll() is None, log.read_text()
-        done = "pass a_ok" in log.read_text()
+        done = "  pass a_ok" in log.read_text()
         sims = [p for p, sid, cmd, _ in _processes() if sid == proc.pid and ("vvp" in cmd or "Vvkit" in cmd)]
         if done and sims:
             time.sleep(0.5)

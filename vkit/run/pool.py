@@ -51,6 +51,10 @@ pictures before the run kills it as a timeout. A value from experience: the fram
 scoring of one case well under it."""
 
 
+_CASE_INDENT = "  "
+"""Before each case's progress line (see :class:`vkit.report.progress.Progress`)."""
+
+
 def _start_method() -> str:
     """``fork`` when it is safe (POSIX, this process runs one thread), else ``spawn``.
 
@@ -239,7 +243,7 @@ def run_cases(cases: list[Case], options: RunOptions, *, progress: bool = True,
     # vkit does no linear algebra; an idle BLAS thread pool in every worker and every simulator's
     # embedded Python only takes CPU from the other jobs (measured: -j 2 scaling 1.78x -> 2.04x).
     os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
-    shown = Progress(len(cases), stream if progress else io.StringIO())
+    shown = Progress(len(cases), stream if progress else io.StringIO(), indent=_CASE_INDENT)
     with lock_out_dir(options.out_dir, new_out=new_out) as lock, _StopSignals() as stop:
         notes = [lock.note] if lock.note else []
         if lock.out_dir != options.out_dir:

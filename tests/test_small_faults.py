@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import errno
 import json
 from pathlib import Path
 
@@ -39,26 +38,14 @@ def _one_line(capsys: pytest.CaptureFixture[str], *argv: str) -> str:
     return line
 
 
-def test_write_probe_never_stays_in_the_output_folder(tmp_path, monkeypatch):
-    """A probe write that fails (disk full) has already created the file: it must still go."""
-    from vkit.run import pool
+def test_no_probe_file_is_left_in_the_output_folder(tmp_path):
+    """Writability is proven by the run's lock file (which says who writes the folder), not a probe file."""
+    from vkit.run.outlock import lock_out_dir
 
-    real = Path.write_text
-
-    def full_disk(self: Path, *args: object, **kwargs: object) -> int:
-        if self.name.startswith(".vkit-write-test-"):
-            self.touch()  # what a failing write leaves: the file, 0 bytes
-            raise OSError(errno.ENOSPC, "No space left on device")
-        return real(self, *args, **kwargs)
-
-    monkeypatch.setattr(Path, "write_text", full_disk)
     out = tmp_path / "out"
-    with pytest.raises(ConfigError, match=r"cannot be written \(No space left on device\)"):
-        pool._check_writable(out)
-    assert list(out.iterdir()) == []
-    monkeypatch.setattr(Path, "write_text", real)
-    pool._check_writable(out)
-    assert list(out.iterdir()) == []
+    with lock_out_dir(out):
+        pass
+    assert [p.name for p in out.iterdir()] == [".vkit-run.lock"]
 
 
 def test_a_source_that_is_a_directory_is_called_one(tmp_path, capsys):

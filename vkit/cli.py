@@ -51,7 +51,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
     config = load_config(args.config)
     result = run(config, jobs=args.jobs, shard=args.shard, only=args.only, out_dir=args.out,
-                 simulators=args.sim or None, waves=args.waves, drive=args.path)
+                 simulators=args.sim or None, waves=args.waves, drive=args.path, new_out=args.new_out)
     _print_run_end(result)
     return result.exit_code
 
@@ -78,6 +78,12 @@ def problem_line(case) -> str:  # noqa: ANN001 - vkit.run.runner.CaseResult
 
 
 def _print_run_end(result) -> None:  # noqa: ANN001 - vkit.run.runner.RunResult
+    if result.stopped_by is not None:
+        import signal
+
+        stopped = sum(1 for c in result.cases if c.status == "interrupted")
+        print(f"vkit: stopped by {signal.Signals(result.stopped_by).name}: {len(result.cases) - stopped} case(s) "
+              f"finished, {stopped} interrupted; the report holds them all", file=sys.stderr)
     summary = Path(result.report_files["summary"]).read_text()
     print()
     print(summary, end="")
@@ -304,6 +310,9 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
              help="clock: cocotb drives every clock; fast: a generated HDL harness plays and captures "
                   "whole runs; native: that harness as a plain executable, no cocotb (default: [run] path, "
                   "'clock')"),
+        _arg("--new-out", action="store_true",
+             help="when another run is writing the report folder, write a sibling folder (OUT-2, ...) instead "
+                  "of stopping"),
     )),
     ("demo", "run the bundled sample regression (sim/demo.toml)", _cmd_demo, (
         _arg("--out", default=None, help="report folder (default: ./vkit-demo)"),

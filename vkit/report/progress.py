@@ -40,10 +40,12 @@ class Progress:
         live: force the terminal (True) or plain (False) mode; default: live when ``stream`` is a
             terminal and ``TERM`` is not ``dumb``.
         clock: seconds from any fixed origin (default ``time.monotonic``; tests pass their own).
+        indent: text put before every case line; a run indents them so that a case's progress line never
+            reads like the closing problem line (``FAIL <id>: ...``) that CI logs are searched for.
     """
 
     def __init__(self, total: int, stream: TextIO | None = None, *, live: bool | None = None,
-                 clock: Callable[[], float] = time.monotonic) -> None:
+                 clock: Callable[[], float] = time.monotonic, indent: str = "") -> None:
         self.total = max(0, int(total))
         self.stream = stream if stream is not None else sys.stdout
         self.live = _is_terminal(self.stream) if live is None else bool(live)
@@ -54,6 +56,7 @@ class Progress:
         self.failed = 0
         self.errors = 0
         self._drawn = False
+        self.indent = indent
 
     def elapsed(self) -> float:
         """Seconds since the run started."""
@@ -124,7 +127,7 @@ class Progress:
         self.close()
 
     def _case_line(self, case_id: str, status: str, seconds: float | None, diagnosis: str | None, note: str) -> str:
-        text = f"{status.upper() if status != 'pass' else 'pass'} {case_id}"
+        text = f"{self.indent}{status.upper() if status != 'pass' else 'pass'} {case_id}"
         if seconds is not None:
             text += f" {seconds:.1f} s"
         if diagnosis and status != "pass":

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+import io
 import json
 import math
 import os
@@ -215,7 +216,8 @@ def write_case_report(
     case_dir.mkdir(parents=True, exist_ok=True)
     paths: dict[str, Any] = {"frames": {}}
     status = getattr(verdict, "status", "")
-    failing = not getattr(verdict, "passed", False) and status in ("fail", "no_output")
+    # timeout / error: a simulation stopped at its time limit or by a signal, scored up to where it stopped
+    failing = not getattr(verdict, "passed", False) and status in ("fail", "no_output", "timeout", "error")
     if failing or (pictures == "all" and status != "error"):
         for fr in _rebuild_frames(verdict, expected, capture):
             if fr.failed or pictures == "all":
@@ -414,14 +416,26 @@ def write_run_report(cases: Sequence[Mapping[str, Any]], out_dir: str | Path) ->
         raise ConfigError(f"report: case id(s) {', '.join(dup[:5])} appear more than once; give every case its own id")
     body = {"totals": _totals(norm), "cases": [_report_case(c) for c in norm]}
     pj = out / "report.json"
-    pj.write_text(json.dumps(body, indent=2, default=_json_default))
+    _write_atomic(pj, json.dumps(body, indent=2, default=_json_default).encode())
     px = out / "junit.xml"
     tree = _junit(norm)
     ET.indent(tree)
-    tree.write(px, encoding="utf-8", xml_declaration=True)
+    xml = io.BytesIO()
+    tree.write(xml, encoding="utf-8", xml_declaration=True)
+    _write_atomic(px, xml.getvalue())
     ps = out / "summary.txt"
-    ps.write_text(format_summary(norm))
+    _write_atomic(ps, format_summary(norm).encode())
     return {"json": str(pj), "junit": str(px), "summary": str(ps)}
+
+
+def _write_atomic(path: Path, data: bytes) -> None:
+    """Write ``path`` whole or not at all: a temporary file beside it, then a rename over it (POSIX atomic)."""
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    try:
+        tmp.write_bytes(data)
+        os.replace(tmp, path)
+    finally:
+        tmp.unlink(missing_ok=True)
 
 
 def _rebase(files: Any, src: Path, dst: Path) -> Any:

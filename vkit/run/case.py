@@ -12,12 +12,13 @@ import re
 import shlex
 import time
 import traceback
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from vkit.check.results import Finding
 from vkit.check.scoreboard import Verdict, score
 from vkit.core.errors import ToolError, VkitError
 from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
@@ -27,10 +28,11 @@ from vkit.run.config import Case
 from vkit.run.coverage import stimulus_coverage
 from vkit.run.inputs import check_ports, make_frames
 from vkit.run.options import RunOptions
-from vkit.run.results import CaseResult, case_meta, error_result
+from vkit.run.results import CaseResult, case_meta, error_result, stopped_result
 from vkit.run.simulate import simulate
 from vkit.run.waves import wave_rerun
 from vkit.sim.buildcache import BuildCache, BuildOutcome
+from vkit.sim.guard import GuardOutcome
 from vkit.video.capture import Capture, RunFacts
 
 __all__ = ["run_one_case", "rerun_command"]
@@ -90,27 +92,50 @@ def _prepare(case: Case, out: Path) -> _Prepared:
     return _Prepared(sim_dir, spec, frames, [run_model(spec, f) for f in frames])
 
 
-def _simulate(case: Case, prep: _Prepared, options: RunOptions) -> tuple[BuildOutcome, Capture]:
-    """Build (or reuse) and run the simulation; a missing capture becomes a capture that says so."""
+def _simulate(case: Case, prep: _Prepared, options: RunOptions, left_s: float) -> tuple[BuildOutcome, Capture]:
+    """Build (or reuse) and run the simulation (``left_s`` seconds at most); a missing capture becomes a
+    capture that says so."""
     outcome = build_for_drive(case, BuildCache(options.cache_dir), options.drive)
-    capture_file = simulate(case, outcome.build_dir, prep.sim_dir, prep.frames, options.timeout_s,
-                            drive=options.drive)
+    capture_file = simulate(case, outcome.build_dir, prep.sim_dir, prep.frames, left_s, drive=options.drive)
     if capture_file.exists():
         return outcome, Capture.load(capture_file)
     return outcome, Capture(facts=RunFacts(error=f"no capture was written; see {prep.sim_dir / 'sim.log'}"))
 
 
+def _sim_stop(capture: Capture, timeout_s: float) -> Finding | None:
+    """The finding of a simulator stopped at the time limit (kind ``timeout``) or by a signal (``crash``)."""
+    raw = capture.facts.sim_outcome
+    if not raw:
+        return None
+    outcome = replace(GuardOutcome(**raw), limit_s=timeout_s)  # the limit the user set, not what was left of it
+    if not outcome.timed_out and outcome.signal is None:
+        return None
+    last = f"last output at clock {int(capture.clock.max())}" if len(capture) else "no output before that"
+    evidence = {"pixels_arrived": len(capture), "signal": outcome.signal, "seconds": round(outcome.seconds, 3)}
+    return Finding("timeout" if outcome.timed_out else "crash", f"{outcome.describe()}; {last}", evidence, 1.0)
+
+
 def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -> _Judged:
-    """Score the capture, measure the stimulus coverage, and dump waves when the options ask for them."""
+    """Score the capture, measure the stimulus coverage, and dump waves when the options ask for them.
+
+    A simulation stopped at the time limit or by a signal is scored up to where it stopped (what
+    arrived is compared, the rest counts as missing) and takes the status ``timeout`` (the design's
+    fault, as a hung design is the usual cause) or ``error`` (a crash is the tool's), with that first.
+    """
     d = case.design
     verdict = score(
         prep.expected, capture, tolerance_lsb=d.tolerance_lsb,
         declared_latency_clocks=case.declared_latency_clocks(), align=d.align, max_listed=options.max_listed,
         spec=prep.spec, images=list(prep.frames),
     )
+    stop = _sim_stop(capture, options.timeout_s)
+    if stop is not None:
+        status = "timeout" if stop.kind == "timeout" else "error"
+        verdict = replace(verdict, status=status, passed=False, findings=[stop, *verdict.findings])
     coverage, warnings = stimulus_coverage(prep.spec, prep.frames, options.coverage_floor)
     waves: dict[str, Any] | None = None
-    if options.waves == "all" or (options.waves == "failing" and verdict.status in ("fail", "no_output")):
+    wanted = options.waves == "all" or (options.waves == "failing" and verdict.status in ("fail", "no_output"))
+    if wanted and stop is None:  # a stopped simulation would only stop again
         try:
             waves = wave_rerun(case, options.out_dir, BuildCache(options.cache_dir), prep.frames, capture, verdict,
                                options.timeout_s)
@@ -153,6 +178,15 @@ def _error(case: Case, options: RunOptions, message: str, is_tool: bool, seconds
     return res
 
 
+def _too_slow(case: Case, options: RunOptions, seconds: float, sim_dir: Path, rerun: str | None) -> CaseResult:
+    message = (f"making the stimulus and the expected frames took {seconds:.1f} s, past timeout_s = "
+               f"{options.timeout_s:g} s, before the simulation started; use fewer or smaller frames or raise timeout_s")
+    res = stopped_result(case, "timeout", message, seconds, _kept_files(options.out_dir, sim_dir))
+    res.rerun = rerun
+    res.entry["meta"]["rerun"] = rerun
+    return res
+
+
 def run_one_case(case: Case, options: RunOptions) -> CaseResult:
     """Run one case end to end and write its report; never raises for a case-level problem.
 
@@ -173,10 +207,13 @@ def run_one_case(case: Case, options: RunOptions) -> CaseResult:
     in_simulation = False
     try:
         prep = _prepare(case, out)
+        left_s = options.timeout_s - (time.monotonic() - t0)
+        if left_s <= 0:  # the time limit covers the stimulus and the model too
+            return _too_slow(case, options, time.monotonic() - t0, prep.sim_dir, rerun)
         sim_dir, in_simulation = prep.sim_dir, True
-        outcome, capture = _simulate(case, prep, options)
+        outcome, capture = _simulate(case, prep, options, left_s)
         in_simulation = False
-        if capture.facts.error:
+        if capture.facts.error and capture.facts.sim_outcome is None:
             # the cocotb side stopped (misnamed port, narrow bus, ...): one line, capture and log kept
             message = _strip_exc_name(" ".join(str(capture.facts.error).split()))
             return _error(case, options, message, False, time.monotonic() - t0, sim_dir, rerun)

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 from vkit.core.validate import want_choice, want_int, want_number
@@ -62,6 +62,10 @@ class RunOptions:
             config_path=Path(config_path).resolve() if config_path is not None else None,
             **options,  # type: ignore[arg-type]
         )
+
+    def with_out_dir(self, out_dir: str | Path) -> RunOptions:
+        """The same options writing into ``out_dir`` (made absolute)."""
+        return replace(self, out_dir=Path(out_dir).resolve())
 
     @classmethod
     def from_settings(cls, run: RunSettings, config_path: str | Path | None = None, **overrides: object) -> RunOptions:

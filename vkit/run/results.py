@@ -10,7 +10,7 @@ from vkit.core.errors import EXIT_CONFIG, EXIT_DUT, EXIT_PASS
 from vkit.report.writers import case_entry
 from vkit.run.config import Case
 
-__all__ = ["CaseResult", "RunResult", "exit_code_for", "met_expectation", "case_meta", "error_result"]
+__all__ = ["CaseResult", "RunResult", "exit_code_for", "met_expectation", "case_meta", "error_result", "stopped_result"]
 
 
 @dataclass
@@ -19,7 +19,9 @@ class CaseResult:
 
     Attributes:
         id: case id.
-        status: ``pass``, ``fail``, ``no_output`` (the design's verdicts) or ``error`` (nothing judged).
+        status: ``pass``, ``fail``, ``no_output``, ``timeout`` (the design's verdicts; ``timeout``: the
+            simulation or the case ran past ``timeout_s``), ``error`` (nothing judged, or the simulator
+            crashed) or ``interrupted`` (the run was stopped by Ctrl-C or SIGTERM before the case ended).
         simulator: simulator name.
         seconds: wall time of the case (frames, model, simulation, scoring, report), s.
         expect: what the config expected (``pass`` or ``fail``; reported only).
@@ -64,14 +66,21 @@ class RunResult:
     wall_s: float
     exit_from: str = "verdicts"
     """``"verdicts"`` or ``"expectations"`` (``[run] exit_code``)."""
+    stopped_by: int | None = None
+    """The signal (SIGINT, SIGTERM) that stopped the run before every case ended, or None."""
+    notes: list[str] = field(default_factory=list)
+    """Lines the run said besides the cases (``-j`` cut, output folder moved, ...)."""
 
     @property
     def exit_code(self) -> int:
-        """0 all passed, 1 a design failed, 2 a case could not be judged (config or tool).
+        """0 all passed, 1 a design failed, 2 a case could not be judged (config or tool); 128 + N when
+        signal N stopped the run (130 Ctrl-C, 143 SIGTERM), as a shell reports it.
 
         Judged by expectations (``exit_from == "expectations"``), a case marked to fail that failed counts as
         passed and one that passed as failed (an ``unexpected pass``); errors stay errors.
         """
+        if self.stopped_by is not None:
+            return 128 + self.stopped_by
         if self.exit_from == "expectations":
             return exit_code_for([met_expectation(c) for c in self.cases])
         return exit_code_for([c.status for c in self.cases])
@@ -118,10 +127,22 @@ def case_meta(case: Case, seconds: float) -> dict[str, Any]:
 def error_result(case: Case, message: str, seconds: float, tool_error: bool,
                  files: dict[str, Any] | None = None) -> CaseResult:
     """The result of a case that could not be judged: status ``error``, ``message`` as its one finding."""
-    finding = {"kind": "error", "message": message, "confidence": 1.0, "evidence": {}}
-    verdict = {"passed": False, "status": "error", "timing_errors": [message], "findings": [finding],
+    return _unjudged(case, "error", "error", message, seconds, tool_error, files)
+
+
+def stopped_result(case: Case, status: str, message: str, seconds: float,
+                   files: dict[str, Any] | None = None) -> CaseResult:
+    """The result of a case the run stopped: ``timeout`` (past its time limit; the design's fault) or
+    ``interrupted`` (Ctrl-C or SIGTERM of the run), ``message`` as its one finding."""
+    return _unjudged(case, status, status, message, seconds, False, files)
+
+
+def _unjudged(case: Case, status: str, kind: str, message: str, seconds: float, tool_error: bool,
+              files: dict[str, Any] | None) -> CaseResult:
+    finding = {"kind": kind, "message": message, "confidence": 1.0, "evidence": {}}
+    verdict = {"passed": False, "status": status, "timing_errors": [message], "findings": [finding],
                "diagnosis": dict(finding)}
     entry = case_entry(case.id, verdict, simulator=case.simulator, seeds=case.seeds(), files=files or {},
                        meta=case_meta(case, seconds))
-    return CaseResult(case.id, "error", case.simulator, seconds, case.design.expect, case.design.expect_kind,
-                      f"error: {message}", "error", [], tool_error, entry)
+    return CaseResult(case.id, status, case.simulator, seconds, case.design.expect, case.design.expect_kind,
+                      f"{kind}: {message}", kind, [], tool_error, entry)

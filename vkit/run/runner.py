@@ -23,6 +23,7 @@ from pathlib import Path
 from typing import Any, TextIO
 
 from vkit.core.errors import ConfigError
+from vkit.core.validate import want_int
 from vkit.core.vocab import DRIVE_MODES, WAVE_MODES
 from vkit.report.page import write_index
 from vkit.report.writers import merge_reports
@@ -66,12 +67,13 @@ PATHS = DRIVE_MODES
 def run(config: Config, jobs: int | None = None, shard: tuple[int, int] | str | None = None,
         only: str | list[str] | None = None, progress: bool = True, *, out_dir: str | Path | None = None,
         simulators: list[str] | None = None, stream: TextIO | None = None, waves: str | None = None,
-        drive: str | None = None) -> RunResult:
+        drive: str | None = None, new_out: bool = False) -> RunResult:
     """Run a config's regression.
 
     Args:
         config: a loaded config.
-        jobs: worker processes (default: ``[run] jobs``); above 1 a process pool.
+        jobs: cases run at once, each in a process of its own (default: ``[run] jobs``; >= 1, cut to the
+            number of cases and to :data:`vkit.run.pool.JOBS_PER_CPU` per CPU).
         shard: ``(K, N)`` or ``"K/N"``: run only case ``i`` with ``i % N + 1 == K`` of the sorted matrix.
         only: keep cases whose id matches (glob or substring; a list = any).
         progress: print a line per build and per case (``[3/12] id pass 1.2 s``).
@@ -82,22 +84,28 @@ def run(config: Config, jobs: int | None = None, shard: tuple[int, int] | str | 
             with a dump of a clock window around their first mismatch (Icarus).
         drive: ``"clock"``, ``"fast"`` or ``"native"`` (default ``[run] path``); see
             :data:`vkit.core.vocab.DRIVE_MODES`.
+        new_out: when another run is writing the report folder, write a sibling (``out-2``) instead of
+            stopping with an error.
 
     Returns:
-        A :class:`RunResult`; ``exit_code`` is 0 all pass, 1 a design failed, 2 a case errored.
+        A :class:`RunResult`; ``exit_code`` is 0 all pass, 1 a design failed, 2 a case errored, 130 / 143
+        when Ctrl-C / SIGTERM stopped the run (the report then holds the finished cases and the
+        interrupted ones).
 
     Raises:
         ConfigError / ToolError: nothing could run (empty selection, missing simulator, bad option).
     """
+    if jobs is not None:
+        want_int("command line", "--jobs", jobs, 1)
     cases = shard_cases(select_cases(expand_matrix(config, simulators), only), shard)
     note = dropped_designs(config, simulators)
     if note is not None and progress:
         print(note, file=stream or sys.stdout)
     if not cases:
         raise ConfigError(f"shard {shard} of {config.path.name} holds no case; use fewer shards")
-    options = RunOptions.from_settings(config.run, config_path=config.path, out_dir=out_dir, jobs=jobs or None,
+    options = RunOptions.from_settings(config.run, config_path=config.path, out_dir=out_dir, jobs=jobs,
                                        waves=waves, drive=drive)
-    result = run_cases(cases, options, progress=progress, stream=stream)
+    result = run_cases(cases, options, progress=progress, stream=stream, new_out=new_out)
     result.exit_from = config.run.exit_code
     result.report_files["index"] = str(write_index(result.out_dir, title=f"vkit run: {config.path.name}"))
     return result

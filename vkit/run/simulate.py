@@ -5,22 +5,32 @@ from __future__ import annotations
 import os
 from contextlib import contextmanager
 from pathlib import Path
+from dataclasses import asdict
 from typing import Any, Iterator, NamedTuple
 
 import numpy as np
 from cocotb_tools.runner import get_runner
 
-from vkit.core.errors import ToolError
+from vkit.core.errors import ToolError, VkitError
 from vkit.run.builds import TIMESCALE, first_error_line, quiet_pytest_env
 from vkit.run.config import Case
 from vkit.run.inputs import make_sim_case
 from vkit.sim.case import CASE_ENV, SimCase
+from vkit.sim import guard
 from vkit.sim.fast import fast_test_args, run_native
+from vkit.sim.fast.capture_file import read_capture
+from vkit.sim.fast.stimulus import fast_run_dir
+from vkit.sim.fast.wire import capture_file_name
+from vkit.video.capture import Capture, RunFacts
 
-__all__ = ["TEST_MODULE", "WaveDump", "simulate"]
+__all__ = ["TEST_MODULE", "GUARD_STATUS", "WaveDump", "simulate"]
 
 TEST_MODULE = "vkit.sim.tb.entry"
 """The cocotb test module that plays a SimCase clock by clock."""
+
+
+GUARD_STATUS = "guard.json"
+"""The simulator guard's status file in a case's run folder (how the simulator process ended)."""
 
 
 class WaveDump(NamedTuple):
@@ -61,10 +71,11 @@ def _test_kwargs(case: Case, simcase: SimCase, case_json: Path, build_dir: Path,
 
 
 @contextmanager
-def _time_limit(timeout_s: float) -> Iterator[None]:
-    """cocotb's runner has no time limit; coreutils ``timeout`` bounds the simulator process."""
+def _time_limit(timeout_s: float, status_file: Path) -> Iterator[None]:
+    """cocotb's runner has no time limit: the simulator runs under :mod:`vkit.sim.guard` (``SIM_CMD_PREFIX``),
+    which stops it at ``timeout_s``, keeps it in this case's process group and writes how it ended."""
     saved = os.environ.get("SIM_CMD_PREFIX")
-    os.environ["SIM_CMD_PREFIX"] = f"timeout -k 10 {max(1, int(timeout_s))}"
+    os.environ["SIM_CMD_PREFIX"] = guard.prefix(timeout_s, status_file)
     try:
         yield
     finally:
@@ -74,9 +85,24 @@ def _time_limit(timeout_s: float) -> Iterator[None]:
             os.environ["SIM_CMD_PREFIX"] = saved
 
 
+def _left_behind(simcase: SimCase, language: str, drive: str, outcome: guard.GuardOutcome) -> Capture:
+    """What a stopped simulator left: the harness's own capture file (fast path, flushed per line) or nothing."""
+    raw = fast_run_dir(simcase) / capture_file_name(language)
+    if drive == "fast" and raw.is_file():
+        try:
+            return read_capture(raw, simcase)
+        except VkitError:
+            pass
+    return Capture(facts=RunFacts(notes=[f"{outcome.describe()}; it left no capture"]))
+
+
 def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float, *,
              wave: WaveDump | None = None, drive: str = "clock") -> Path:
     """Write the SimCase, run the simulation of ``drive``, return the capture path (which may be missing).
+
+    A simulator stopped at ``timeout_s`` or ended by a signal leaves a capture all the same (partial, or
+    empty when nothing was kept) whose facts ``sim_outcome`` says how it ended
+    (:class:`vkit.sim.guard.GuardOutcome` as a dict).
 
     Args:
         case: the case.
@@ -88,7 +114,7 @@ def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, tim
         drive: ``"clock"``, ``"fast"`` or ``"native"``.
 
     Raises:
-        ToolError: the simulator stopped (or ran out of time) before writing a capture.
+        ToolError: the simulator failed (an exit code, not a signal or the time limit) before writing a capture.
     """
     simcase = make_sim_case(case, sim_dir, frames)
     capture_file = Path(simcase.capture_file)
@@ -98,13 +124,19 @@ def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, tim
         run_native(simcase, case.simulator, build_dir, timeout_s=timeout_s)
         return capture_file
     kwargs = _test_kwargs(case, simcase, Path(case_json), build_dir, sim_dir, drive, wave)
+    status_file = sim_dir / GUARD_STATUS
+    status_file.unlink(missing_ok=True)
     try:
-        with _time_limit(timeout_s), quiet_pytest_env():
+        with _time_limit(timeout_s, status_file), quiet_pytest_env():
             get_runner(case.simulator).test(**kwargs)
-    except SystemExit as exc:
-        code = exc.code if isinstance(exc.code, int) else 1
-        if not capture_file.exists():
-            why = "exceeded timeout_s" if code == 124 else f"exited with code {code}"
-            raise ToolError(f"{case.simulator} {why} before writing a capture: "
+    except (SystemExit, RuntimeError) as exc:  # cocotb's runner: RuntimeError, or SystemExit under pytest
+        outcome = guard.read_status(status_file)
+        if outcome is not None and (outcome.timed_out or outcome.signal is not None):
+            cap = Capture.load(capture_file) if capture_file.is_file() else _left_behind(simcase, case.design.language, drive, outcome)
+            cap.facts.sim_outcome = asdict(outcome)
+            cap.save(capture_file)
+        elif not capture_file.exists():
+            code = outcome.returncode if outcome is not None else getattr(exc, "code", 1)
+            raise ToolError(f"{case.simulator} exited with code {code} before writing a capture: "
                             f"{first_error_line(sim_dir / 'sim.log')} (log: {sim_dir / 'sim.log'})") from None
     return capture_file

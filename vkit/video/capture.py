@@ -80,6 +80,10 @@ class RunFacts:
     """One line: why the run stopped before it could be scored."""
     notes: list[str] = field(default_factory=list)
     """Human-readable remarks from the capturing side."""
+    sim_outcome: dict[str, Any] | None = None
+    """How the simulator ended when it was stopped at its wall-clock limit or by a signal: a
+    :class:`vkit.sim.guard.GuardOutcome` as a dict (returncode, timed_out, seconds, limit_s); None when it
+    ended by itself."""
     extra: dict[str, Any] = field(default_factory=dict)
     """Keys of a saved capture that are none of the fields above (kept so they are saved again)."""
 

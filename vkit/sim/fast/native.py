@@ -16,16 +16,16 @@ from __future__ import annotations
 import hashlib
 import json
 import subprocess
-import time
-from dataclasses import dataclass
+from dataclasses import asdict, dataclass
 from pathlib import Path
 
-from vkit.core.errors import ConfigError, ToolError
+from vkit.core.errors import ConfigError, ToolError, VkitError
 from vkit.sim.case import SimCase
 from vkit.sim.fast.build import VERILATOR_ARGS, HarnessBuild, define_args
 from vkit.sim.fast.capture_file import read_capture
 from vkit.sim.fast.stimulus import fast_run_dir, prepare_fast_run, read_fast_run
 from vkit.sim.fast.wire import CAPTURE_BIN_NAME, TOPLEVEL
+from vkit.sim.guard import GuardOutcome, run_guarded
 from vkit.sim.simulators import find, require, subprocess_env
 from vkit.video.capture import Capture
 
@@ -133,12 +133,14 @@ def _native_info(build_dir: str | Path, simulator: str) -> dict[str, object]:
     return info
 
 
-def _finish(cap: Capture, case: SimCase, simulator: str, note: str | None = None) -> Capture:
+def _finish(cap: Capture, case: SimCase, simulator: str, note: str | None = None,
+            outcome: GuardOutcome | None = None) -> Capture:
     """Stamp the run facts of a native run on ``cap`` and save it to the case's capture file."""
     cap.facts.simulator, cap.facts.path = simulator, "native"
     if note is not None:
-        cap.facts.timed_out = True
         cap.facts.notes.append(note)
+    if outcome is not None:
+        cap.facts.sim_outcome = asdict(outcome)
     cap.save(case.capture_file, compress=False)
     return cap
 
@@ -147,8 +149,11 @@ def run_native(case: SimCase, simulator: str, build_dir: str | Path, *, in_width
                timeout_s: float | None = None) -> Capture:
     """Run ``case`` on the native executable in ``build_dir`` (made by :func:`native_build`); return its Capture.
 
-    Python writes the stimulus, runs the executable once with the harness's plusargs (no cocotb),
-    reads the binary capture and saves it to ``case.capture_file`` (also on a timeout, partial).
+    Python writes the stimulus, runs the executable once with the harness's plusargs (no cocotb) under
+    :func:`vkit.sim.guard.run_guarded`, reads the binary capture and saves it to ``case.capture_file``.
+    A run stopped at ``timeout_s`` or ended by a signal is no error here: its capture (partial, as the
+    harness flushes it line by line; empty when there is none) carries ``facts.sim_outcome``, the
+    :class:`~vkit.sim.guard.GuardOutcome` as a dict.
 
     Args:
         case: the case.
@@ -162,27 +167,36 @@ def run_native(case: SimCase, simulator: str, build_dir: str | Path, *, in_width
 
     Raises:
         ConfigError: ``build_dir`` holds no native build for ``simulator``.
-        ToolError: the executable failed or ran past ``timeout_s``.
+        ToolError: the executable exited with an error code, or wrote no capture.
     """
     info = _native_info(build_dir, simulator)
     plusargs, capture = native_run_args(case, in_width=in_width)
     run_dir = fast_run_dir(case)
     capture.unlink(missing_ok=True)
-    t0 = time.perf_counter()
-    try:
-        res = subprocess.run([*info["run"], *plusargs], cwd=run_dir, env=subprocess_env(find(simulator)),
-                             capture_output=True, text=True, timeout=timeout_s)
-    except subprocess.TimeoutExpired:
-        res = None
-    secs = time.perf_counter() - t0
     log = run_dir / "native.log"
-    log.write_text("" if res is None else res.stdout + res.stderr)
-    if res is not None and res.returncode != 0:
-        message = f"native run: {info['run'][0]} exited with {res.returncode}: {_tail(res)}; see {log}"
+    with open(log, "w") as log_file:
+        outcome = run_guarded([*info["run"], *plusargs], timeout_s=timeout_s, cwd=run_dir,
+                              env=subprocess_env(find(simulator)), stdout=log_file, stderr=subprocess.STDOUT)
+    stopped = outcome.timed_out or outcome.signal is not None
+    if stopped:
+        return _finish(_partial(capture, case), case, simulator, outcome.describe(), outcome)
+    if outcome.returncode != 0:
+        message = f"native run: {info['run'][0]} exited with {outcome.returncode}: {_log_tail(log)}; see {log}"
         if capture.is_file():  # keep what was captured before the failure
             _finish(read_capture(capture, case, read_fast_run(case)), case, simulator, message)
         raise ToolError(message)
     if not capture.is_file():
-        raise ToolError(f"native run: no capture file after {secs:.1f} s; see {log}")
-    note = None if res is not None else f"the native run passed its {timeout_s} s wall-clock limit; the capture is partial"
-    return _finish(read_capture(capture, case, read_fast_run(case)), case, simulator, note)
+        raise ToolError(f"native run: no capture file after {outcome.seconds:.1f} s; see {log}")
+    return _finish(read_capture(capture, case, read_fast_run(case)), case, simulator)
+
+
+def _partial(capture: Path, case: SimCase) -> Capture:
+    """The capture a stopped run left (up to its last flushed line), or an empty one."""
+    try:
+        return read_capture(capture, case, read_fast_run(case))
+    except VkitError:  # no file, or not even a header
+        return Capture()
+
+
+def _log_tail(log: Path) -> str:
+    return " | ".join(log.read_text(errors="replace").strip().splitlines()[-_LOG_TAIL_LINES:])

@@ -38,7 +38,11 @@ def _env() -> dict[str, str]:
 
 
 def _run(cmd: list[str], cwd: Path) -> subprocess.CompletedProcess[str]:
-    return subprocess.run(cmd, cwd=cwd, env=_env(), capture_output=True, text=True, timeout=1200, check=False)
+    env = _env()
+    # a build cache of this repo's own: the shared cache keys a build on file names and contents, and a
+    # GHDL build found there for a copy of these files in a deleted folder cannot load its entity
+    env["VKIT_CACHE_DIR"] = str(cwd / ".vkit-cache")
+    return subprocess.run(cmd, cwd=cwd, env=env, capture_output=True, text=True, timeout=1200, check=False)
 
 
 def _vkit(*args: str, cwd: Path) -> subprocess.CompletedProcess[str]:
@@ -107,13 +111,17 @@ def _verdicts(folder: Path) -> dict[str, tuple[str, str | None]]:
 
 
 def _three_flows(repo: Path, sims: list[str]) -> dict[str, dict[str, tuple[str, str | None]]]:
-    """Each flow's verdicts on ``sims``: vkit run, make (one run per simulator), the pytest plugin."""
-    _vkit("run", "vkit.toml", "--sim", *sims, "--out", "out-run", cwd=repo)
-    for sim in sims:
-        _run(["make", "-f", "Makefile.vkit", f"SIM={sim}"], repo)
+    """Each flow's verdicts on ``sims``: vkit run, make (one run per simulator), the pytest plugin.
+
+    Each flow's output tail is printed, so a flow that wrote no verdicts says why in the failure report.
+    """
+    procs = [_vkit("run", "vkit.toml", "--sim", *sims, "--out", "out-run", cwd=repo)]
+    procs += [_run(["make", "-f", "Makefile.vkit", f"SIM={sim}"], repo) for sim in sims]
     plugin = [sys.executable, "-m", "pytest", "-p", "vkit.pytest_plugin", "-p", "no:cacheprovider", "-q",
               "--vkit-out", "out-pytest", *[a for s in sims for a in ("--vkit-sim", s)], "vkit.toml"]
-    _run(plugin, repo)
+    procs.append(_run(plugin, repo))
+    for proc in procs:
+        print(" ".join(proc.args[-4:]), "-> exit", proc.returncode, proc.stdout[-1500:], proc.stderr[-1500:])
     return {"run": _verdicts(repo / "out-run"), "make": _verdicts(repo / "vkit-out" / "make"),
             "pytest": _verdicts(repo / "out-pytest")}
 

@@ -14,6 +14,7 @@ import pytest
 from vkit.run.config import expand_matrix, load_config
 from vkit.core.errors import ConfigError
 from vkit.sim.hdlports import Port, parse_ports
+from vkit.run.makeflow import write_make_vars
 from vkit.run.scaffold import guess_roles, parse_assignments, scaffold
 from vkit.sim.simulators import find
 
@@ -216,10 +217,14 @@ def test_scaffold_writes_a_config_the_loader_accepts(tmp_path: Path) -> None:
     assert {c.stalls.active for c in cases} == {False, True}
     assert all((c.width, c.height) == (32, 24) for c in cases)
     mk = result.makefile.read_text()
-    for needle in ("include $(shell cocotb-config --makefiles)/Makefile.sim", "COCOTB_TOPLEVEL ?= cam_filter_top",
-                   "COCOTB_TEST_MODULES ?= test_vkit_cam_filter_top", "$(VKIT_DIR)/rtl/cam_filter_top.v",
+    # the top level and the sources reach make through the variables made from the config
+    mk_vars = write_make_vars(result.config, "cam_filter_top", "icarus").read_text()
+    for needle in ("include $(shell cocotb-config --makefiles)/Makefile.sim", "COCOTB_TOPLEVEL ?= $(VKIT_TOPLEVEL)",
+                   "COCOTB_TEST_MODULES ?= test_vkit_cam_filter_top", "VERILOG_SOURCES += $(VKIT_SOURCES)",
                    "COCOTB_HDL_TIMEUNIT", "VERILATOR_ROOT"):
         assert needle in mk
+    for needle in ("VKIT_TOPLEVEL := cam_filter_top", str(repo / "rtl" / "cam_filter_top.v")):
+        assert needle in mk_vars
     compile(result.test_module.read_text(), str(result.test_module), "exec")
     assert "CONFIRM" in result.summary()
 
@@ -232,7 +237,10 @@ def test_scaffold_never_overwrites_without_force(tmp_path: Path) -> None:
     with pytest.raises(ConfigError, match="already exist.*nothing was written.*--force"):
         scaffold("cam_filter_top", _sources(repo), repo, spec="median")
     assert {p: p.read_text() for p in first.files} == before
-    again = scaffold("cam_filter_top", _sources(repo), repo, spec="median", force=True)
+    kept = scaffold("cam_filter_top", _sources(repo), repo, spec="median", force=True)
+    assert "# my edits" in kept.config.read_text() and kept.kept == [kept.config]  # --force keeps the config
+    assert f"kept {kept.config}" in kept.summary() and f"rewrote {kept.makefile}" in kept.summary()
+    again = scaffold("cam_filter_top", _sources(repo), repo, spec="median", force=True, rewrite_config=True)
     assert "# my edits" not in again.config.read_text()
     assert load_config(again.config).designs["cam_filter_top"].spec_preset == "median"
 
@@ -253,10 +261,13 @@ def test_scaffold_parameters_and_defines_reach_config_and_makefile(tmp_path: Pat
     result = scaffold("cam_filter_top", _sources(repo), repo, parameters={"PIX_W": 8}, defines={"BUG_BLUR_TRUNCATE": 1})
     design = load_config(result.config).designs["cam_filter_top"]
     assert design.parameters == {"PIX_W": 8} and design.defines == {"BUG_BLUR_TRUNCATE": 1}
-    mk = result.makefile.read_text()
-    assert "COMPILE_ARGS += -P$(COCOTB_TOPLEVEL).PIX_W=8" in mk  # iverilog -P (Icarus manual)
-    assert "COMPILE_ARGS += -GPIX_W=8" in mk  # verilator -G (Verilator manual)
-    assert mk.count("COMPILE_ARGS += -DBUG_BLUR_TRUNCATE=1") == 2
+    # the Makefile takes them from the config at make time, one variables file per simulator
+    icarus = write_make_vars(result.config, "cam_filter_top", "icarus").read_text()
+    verilator = write_make_vars(result.config, "cam_filter_top", "verilator").read_text()
+    assert "-Pcam_filter_top.PIX_W=8" in icarus  # iverilog -P<top>.<name>=<value> (Icarus manual)
+    assert "-GPIX_W=8" in verilator  # verilator -G<name>=<value> (Verilator manual)
+    assert (icarus + verilator).count("-DBUG_BLUR_TRUNCATE=1") == 2
+    assert "PIX_W" not in result.makefile.read_text()  # one copy: the config's
 
 
 def test_scaffold_stream_and_vhdl_designs(tmp_path: Path) -> None:
@@ -274,7 +285,8 @@ def test_scaffold_stream_and_vhdl_designs(tmp_path: Path) -> None:
     assert (d.language, d.pixel_format, d.spec_preset) == ("vhdl", "rgb888", "edge")
     assert cfg.run.simulators == ["ghdl"]
     mk = res.makefile.read_text()
-    assert "VHDL_SOURCES += " in mk and "TOPLEVEL_LANG ?= vhdl" in mk
+    mk_vars = write_make_vars(res.config, "edge_core", "ghdl").read_text()
+    assert "VHDL_SOURCES += " in mk and "TOPLEVEL_LANG ?= $(VKIT_LANGUAGE)" in mk and "VKIT_LANGUAGE := vhdl" in mk_vars
 
 
 # -- the kit running in the throw-away repo ---------------------------------------------------------------
@@ -331,7 +343,7 @@ def test_make_flow_on_icarus_passes_and_catches_a_seeded_bug(tmp_path: Path) -> 
         "vkit/conveyor-s1/tiny32x24/stall0.1m3": "pass",
     }
     # the same kit with the core's seeded rounding bug switched on must fail, in make and in vkit run
-    scaffold("cam_filter_top", _sources(repo), repo, defines={"BUG_BLUR_TRUNCATE": 1}, force=True)
+    scaffold("cam_filter_top", _sources(repo), repo, defines={"BUG_BLUR_TRUNCATE": 1}, force=True, rewrite_config=True)
     proc, root = _make(repo, "icarus", "conveyor-s1/tiny32x24/nostall")
     assert proc.returncode != 0
     assert root is not None and _testcases(root) == {"vkit/conveyor-s1/tiny32x24/nostall": "fail"}

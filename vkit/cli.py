@@ -245,8 +245,18 @@ def _cmd_init(args: argparse.Namespace) -> int:
         args.top, list(args.sources), args.out, args.family, spec=args.spec, pixel_format=args.pixel_format,
         simulators=args.sim, parameters=parse_assignments(args.param, "parameter"),
         defines=parse_assignments(args.define, "define"), design_name=args.name, force=args.force,
+        rewrite_config=args.rewrite_config,
     )
     print(result.summary())
+    return EXIT_PASS
+
+
+def _cmd_make_vars(args: argparse.Namespace) -> int:
+    from vkit.run.makeflow import write_make_vars
+
+    path = write_make_vars(args.config, args.design, args.sim, args.out)
+    if args.out is None:
+        print(path)
     return EXIT_PASS
 
 
@@ -379,7 +389,17 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
         _arg("-D", "--define", action="append", default=None, metavar="NAME[=VALUE]",
              help="Verilog define (repeatable)"),
         _arg("--name", default=None, help="the design's name in the config (default: the top)"),
-        _arg("--force", action="store_true", help="overwrite existing files"),
+        _arg("--force", action="store_true",
+             help="rewrite the Makefile and test module of an existing kit (its config is kept)"),
+        _arg("--rewrite-config", action="store_true", help="with --force, write a new config as well"),
+    )),
+    ("make-vars", "write one design's build on one simulator as make variables (Makefile.vkit runs this)",
+     _cmd_make_vars, (
+        _arg("config", help="config TOML"),
+        _arg("--design", required=True, help="the design's name in the config"),
+        _arg("--sim", required=True, help="simulator: icarus, verilator or ghdl"),
+        _arg("--out", default=None, help="file to write (default: .vkit-make/DESIGN-SIM.mk beside the config; "
+                                         "its path is printed)"),
     )),
     ("pattern", "write a verification pattern as PNG", _cmd_pattern, (
         _arg("name", help="pattern name (see vkit.video.patterns.PATTERNS)"),

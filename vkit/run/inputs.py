@@ -177,4 +177,5 @@ def make_sim_case(case: Case, sim_dir: Path, frames: np.ndarray) -> SimCase:
         blanking=case.blanking, blanking_value=case.blanking_value, seed=case.seed,
         clock_period_ns=d.clock_period_ns, reset_active_high=d.reset_active_high, reset_cycles=d.reset_cycles,
         timeout_clocks=d.timeout_clocks, simulator=case.simulator, label=case.id,
+        parameters=d.build_parameters(case.width, case.height),
     )

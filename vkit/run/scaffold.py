@@ -14,6 +14,7 @@ from typing import Any
 from vkit.core.errors import ConfigError
 from vkit.core.validate import fail, suggest
 from vkit.model.pipeline import PRESETS as SPEC_PRESETS
+from vkit.run.config import load_config
 from vkit.sim.hdlports import HdlDesign, Port, find_design, language_of, list_designs
 from vkit.sim.signals import FAMILY_ROLES
 from vkit.video.formats import PIXEL_FORMAT_BITS
@@ -360,6 +361,7 @@ class ScaffoldResult:
         spec: the pipeline preset written into the config.
         simulators: simulators written into the config.
         notes: every line the user should read, CONFIRM items first.
+        kept: files that existed and were left as they were (the config, when a kit is upgraded).
     """
 
     out_dir: Path
@@ -371,16 +373,23 @@ class ScaffoldResult:
     spec: str
     simulators: list[str]
     notes: list[str] = field(default_factory=list)
+    kept: list[Path] = field(default_factory=list)
 
     @property
     def files(self) -> list[Path]:
-        """The three files written."""
+        """The three files of the kit."""
         return [self.config, self.test_module, self.makefile]
+
+    @property
+    def written(self) -> list[Path]:
+        """The files written (the kit's files but the kept ones)."""
+        return [p for p in self.files if p not in self.kept]
 
     def summary(self) -> str:
         """A few lines for the terminal: the files, the signal map with confidences, the notes."""
         lines = [f"vkit init: {self.design.name} ({self.design.language}, family {self.guess.family}, spec {self.spec})"]
-        lines += [f"  wrote {p}" for p in self.files]
+        lines += [f"  kept {p} (as you left it)" for p in self.kept]
+        lines += [f"  {'rewrote' if self.kept else 'wrote'} {p}" for p in self.written]
         for role, port in self.guess.roles.items():
             lines.append(f"  {role:10s} -> {port:20s} ({self.guess.confidence.get(role, 'low')})")
         for role in self.guess.missing:
@@ -542,46 +551,16 @@ def _c(code: str, comment: str) -> str:
     return f"{code:34s} # {comment}"
 
 
-def _make_value(value: Any) -> str:
-    if isinstance(value, bool):
-        return "1" if value else "0"
-    if isinstance(value, int):
-        return str(value)
-    return "'\"" + str(value).replace("'", "") + "\"'"
-
-
-def _makefile_text(
-    design_name: str,
-    design: HdlDesign,
-    sources: Sequence[Path],
-    out_dir: Path,
-    test_module: str,
-    default_sim: str,
-    parameters: Mapping[str, Any],
-    defines: Mapping[str, Any],
-) -> str:
-    var = "VHDL_SOURCES" if design.language == "vhdl" else "VERILOG_SOURCES"
-    srcs = [f"$(VKIT_DIR)/{_rel(s, out_dir)}" for s in sources]
-    sources_block = f"{var} += " + " \\\n    ".join(srcs) + "\n"
-    icarus = "".join(f"COMPILE_ARGS += -P$(COCOTB_TOPLEVEL).{k}={_make_value(v)}\n" for k, v in parameters.items())
-    icarus += "".join(f"COMPILE_ARGS += -D{k}={_make_value(v)}\n" for k, v in defines.items())
-    verilator = "".join(f"COMPILE_ARGS += -G{k}={_make_value(v)}\n" for k, v in parameters.items())
-    verilator += "".join(f"COMPILE_ARGS += -D{k}={_make_value(v)}\n" for k, v in defines.items())
-    ghdl = "".join(f"SIM_ARGS += -g{k}={v if isinstance(v, int) else str(v)}\n" for k, v in parameters.items())
+def _makefile_text(design_name: str, language: str, test_module: str, default_sim: str) -> str:
+    """``Makefile.vkit``: cocotb's flow with every build input read from the config at make time."""
     return _render(
         _template("Makefile.vkit.tmpl"),
         {
-            "top": design.name,
             "design": design_name,
             "config_name": CONFIG_NAME,
             "test_module": test_module,
             "default_sim": default_sim,
-            "language": design.language,
-            "sources_block": sources_block,
-            "icarus_args": icarus,
-            "verilator_args": verilator,
-            "ghdl_args": ghdl,
-            "ghdl_hint": ", SIM=ghdl" if design.language == "vhdl" else "",
+            "ghdl_hint": ", SIM=ghdl" if language == "vhdl" else "",
         },
     )
 
@@ -661,20 +640,52 @@ def _choose_spec(spec: str | None, design: HdlDesign, all_designs: list[HdlDesig
     return spec, reason
 
 
-def _write_kit(kit: _Kit, targets: Mapping[str, Path]) -> ScaffoldResult:
-    """Write the config, the cocotb test module and the Makefile; what was written."""
+def _write_kit(kit: _Kit, targets: Mapping[str, Path], keep_config: bool) -> ScaffoldResult:
+    """Write the cocotb test module, the Makefile and (unless kept) the config; what was written and kept."""
     kit.out_dir.mkdir(parents=True, exist_ok=True)
     test_name = targets["test_module"].stem
-    targets["config"].write_text(_config_text(kit), encoding="utf-8")
+    if not keep_config:
+        targets["config"].write_text(_config_text(kit), encoding="utf-8")
     targets["test_module"].write_text(_test_module_text(kit.name, kit.design, kit.simulators[0]), encoding="utf-8")
-    targets["makefile"].write_text(
-        _makefile_text(kit.name, kit.design, kit.sources, kit.out_dir, test_name, kit.simulators[0], kit.parameters,
-                       kit.defines),
-        encoding="utf-8",
-    )
+    targets["makefile"].write_text(_makefile_text(kit.name, kit.design.language, test_name, kit.simulators[0]),
+                                   encoding="utf-8")
     return ScaffoldResult(out_dir=kit.out_dir, config=targets["config"], test_module=targets["test_module"],
                           makefile=targets["makefile"], design=kit.design, guess=kit.guess, spec=kit.spec,
-                          simulators=kit.simulators, notes=kit.notes)
+                          simulators=kit.simulators, notes=kit.notes,
+                          kept=[targets["config"]] if keep_config else [])
+
+
+def _kept_design(config_path: Path, design: HdlDesign, design_name: str | None) -> tuple[str, RoleGuess, str, list[str]]:
+    """The design of a kept config this kit is for: (name, its confirmed signal map, spec, simulators).
+
+    Raises:
+        ConfigError: the config cannot be read, or it has no design with this top level (or name).
+    """
+    config = load_config(config_path)
+    if design_name is not None:
+        found = [design_name] if design_name in config.designs else []
+    else:
+        found = [n for n, d in config.designs.items() if d.top.lower() == design.name.lower() and d.bug is None]
+    if not found:
+        raise ConfigError(f"vkit init --force: {config_path} has no design {design_name or 'with top ' + design.name}; "
+                          "pass --name with its design name, or --rewrite-config to write a new config")
+    d = config.designs[found[0]]
+    guess = RoleGuess(d.family, dict(d.ports), confidence={r: "kept" for r in d.ports},
+                      reset_active_high=d.reset_active_high, pixel_format=d.pixel_format)
+    spec = d.spec_preset or (d.spec_file.name if d.spec_file else "spec table")
+    sims = [s for s in (d.simulators or config.run.simulators) if design.language in LANGUAGES.get(s, ())]
+    return found[0], guess, spec, sims
+
+
+def _upgrade_kit(design: HdlDesign, sources: list[Path], out: Path, targets: Mapping[str, Path],
+                 design_name: str | None, simulators: list[str]) -> ScaffoldResult:
+    """Keep the config (the user's confirmed guesses); rewrite the Makefile and test module to read it."""
+    name, guess, spec, kept_sims = _kept_design(targets["config"], design, design_name)
+    notes = [f"kept {targets['config'].name}: its signal map, spec, parameters, defines and stimulus are as you "
+             f"left them; {targets['makefile'].name} and {targets['test_module'].name} were rewritten to read "
+             f"them from it (pass --rewrite-config to write a new config as well)"]
+    kit = _Kit(name, design, sources, out, guess, spec, "kept", kept_sims or simulators, {}, {}, notes)
+    return _write_kit(kit, targets, keep_config=True)
 
 
 def scaffold(
@@ -690,6 +701,7 @@ def scaffold(
     defines: Mapping[str, Any] | None = None,
     design_name: str | None = None,
     force: bool = False,
+    rewrite_config: bool = False,
 ) -> ScaffoldResult:
     """Write a starter kit for design ``top`` into ``out_dir`` (usually the root of the user's RTL repo).
 
@@ -715,6 +727,9 @@ def scaffold(
         defines: Verilog defines for the build.
         design_name: the design's name in the config; default ``top``.
         force: overwrite existing files (otherwise an existing file is a ConfigError and nothing is written).
+            An existing config is kept, with the signal map, spec and parameters confirmed in it: the
+            Makefile and the test module are rewritten for it (this upgrades a kit of an earlier release).
+        rewrite_config: with ``force``, write a new config too (the confirmed values in the old one are lost).
 
     Raises:
         ConfigError: a source is missing, ``top`` is not in the sources (the message lists what is),
@@ -730,13 +745,16 @@ def scaffold(
     sims = _simulators_for(design.language, simulators)
     out = Path(out_dir)
     targets = _targets(out, design, force)
+    if force and not rewrite_config and targets["config"].exists():
+        return _upgrade_kit(design, src_paths, out, targets, design_name, sims)
     guess = guess_roles(design.ports, family)
     notes = list(guess.notes)
     if pixel_format is not None and pixel_format != guess.pixel_format:
         notes.append(f"pixel_format: {pixel_format} as given (the data width suggested {guess.pixel_format})")
         guess.pixel_format = pixel_format
     spec_name, reason = _choose_spec(spec, design, all_designs, src_paths, guess, notes)
-    return _write_kit(_Kit(name, design, src_paths, out, guess, spec_name, reason, sims, params, defs, notes), targets)
+    kit = _Kit(name, design, src_paths, out, guess, spec_name, reason, sims, params, defs, notes)
+    return _write_kit(kit, targets, keep_config=False)
 
 
 def parse_assignments(items: Sequence[str] | None, what: str = "parameter") -> dict[str, int | str]:

@@ -77,6 +77,8 @@ class SimCase:
         waveform_end_clock: last clock of a waveform window, or None.
         simulator: simulator name recorded in the capture meta, or None.
         label: a free name for logs and reports.
+        parameters: parameter/generic values the design must have been built with; the per-clock test
+            compares the integer ones with what the simulator shows before it starts.
     """
 
     family: str
@@ -101,6 +103,7 @@ class SimCase:
     waveform_end_clock: int | None = None
     simulator: str | None = None
     label: str = ""
+    parameters: dict[str, Any] = field(default_factory=dict)
     _frames_cache: np.ndarray | None = field(default=None, init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:

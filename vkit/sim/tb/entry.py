@@ -42,6 +42,7 @@ from vkit.video.capture import Capture, RunFacts
 from vkit.core.errors import ConfigError
 from vkit.sim.case import CASE_ENV, SimCase, error_file_for
 from vkit.video.formats import pixel_bits
+from vkit.sim.tb.built import check_built_parameters
 from vkit.sim.tb.stream import StreamMonitor, StreamSink, StreamSource
 from vkit.sim.tb.video import VideoMonitor, VideoSource
 
@@ -136,7 +137,8 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
         The capture (``facts.timed_out`` is True when not every frame came out within the timeout).
 
     Raises:
-        ConfigError: the case does not fit the DUT (misnamed port, narrow data bus, bad frames file).
+        ConfigError: the case does not fit the DUT (misnamed port, narrow data bus, bad frames file), or
+            the DUT was built with other parameter values than ``case.parameters`` (checked first).
     """
     facts = RunFacts(family=case.family, simulator=case.simulator or cocotb.SIM_NAME,
                      clock_period_ns=case.clock_period_ns)
@@ -147,6 +149,8 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
     sink: StreamSink | None = None
     error: str | None = None
     try:
+        unseen = check_built_parameters(dut, case.parameters, f"design {dut._name}")
+        meta["notes"] += [f"parameter {name} is not visible in the simulator; not checked" for name in unseen]
         frames = case.load_frames()
         n_frames = int(frames.shape[0])
         facts.frames_sent = n_frames

@@ -17,7 +17,8 @@ import pytest
 
 from vkit.cli import build_parser, main
 
-SUBCOMMANDS = ("run", "demo", "export", "replay", "merge", "model", "widths", "strength", "lut", "init", "pattern")
+SUBCOMMANDS = ("run", "demo", "export", "replay", "merge", "model", "widths", "strength", "lut", "init", "pattern",
+               "make-vars")
 """What ``vkit --help`` lists; test_every_subcommand_is_covered keeps this in step with the parser."""
 
 
@@ -70,6 +71,12 @@ def _cases(j: dict[str, Path]) -> list[list[str]]:
         # widths
         ["widths", s["missing"]], ["widths", s["folder"]], ["widths", s["empty"]], ["widths", s["bytes"]],
         ["widths", "ëdge ✓"], ["widths", "edge", "--bogus"],
+        # make-vars
+        ["make-vars", s["missing"], "--design", "d", "--sim", "icarus"], ["make-vars", s["bytes"], "--design", "d", "--sim", "icarus"],
+        ["make-vars", s["folder"], "--design", "d", "--sim", "icarus"], ["make-vars", s["empty"], "--design", "d", "--sim", "icarus"],
+        ["make-vars", s["unicode"], "--design", "nosuch", "--sim", "icarus"],
+        ["make-vars", s["unicode"], "--design", "d", "--sim", "nosuchsim"], ["make-vars", s["unicode"]],
+        ["make-vars", s["unicode"], "--design", "d", "--sim", "icarus", "--out", str(j["file"] / "x.mk")],
         # strength
         ["strength", s["missing"]], ["strength", s["bytes"]], ["strength", "edge", s["bytes"]],
         ["strength", "edge", s["folder"]], ["strength", "edge", "nosuchpattern"], ["strength", "edge", "impulse:-1"],

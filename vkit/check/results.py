@@ -43,6 +43,7 @@ KINDS: tuple[str, ...] = (
     "xz",
     "missing",
     "scattered",
+    "variant",
 )
 """The fixed vocabulary of :attr:`Finding.kind`; other modules rely on these exact words."""
 

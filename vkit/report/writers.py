@@ -312,7 +312,7 @@ def _diagnosis(v: Mapping[str, Any]) -> dict[str, Any] | None:
 
 def _report_case(c: Mapping[str, Any]) -> dict[str, Any]:
     v = c["verdict"]
-    return {
+    row = {
         "id": c["id"],
         "simulator": c.get("simulator"),
         "status": v.get("status"),
@@ -333,6 +333,9 @@ def _report_case(c: Mapping[str, Any]) -> dict[str, Any]:
         "meta": c.get("meta", {}),
         "verdict": v,
     }
+    if c.get("diagnosis_by_mutant") is not None:
+        row["diagnosis_by_mutant"] = c["diagnosis_by_mutant"]
+    return row
 
 
 def _totals(cases: Sequence[Mapping[str, Any]]) -> dict[str, int]:

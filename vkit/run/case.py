@@ -18,6 +18,7 @@ from typing import Any
 
 import numpy as np
 
+from vkit.check.by_mutant import MutantDiagnosis, diagnose_by_mutants, expected_by_mutant
 from vkit.check.results import Finding
 from vkit.check.scoreboard import Verdict, score
 from vkit.core.errors import ToolError, VkitError
@@ -71,6 +72,7 @@ class _Judged:
     coverage: dict[str, Any]
     warnings: list[str]
     waves: dict[str, Any] | None
+    by_mutant: MutantDiagnosis | None = None
 
 
 def _kept_files(out: Path, sim_dir: Path) -> dict[str, Any]:
@@ -132,6 +134,8 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -
     if stop is not None:
         status = "timeout" if stop.kind == "timeout" else "error"
         verdict = replace(verdict, status=status, passed=False, findings=[stop, *verdict.findings])
+    by_mutant = _mutant_diagnosis(verdict, prep)
+    verdict = _named_by_mutant(verdict, by_mutant)
     coverage, warnings = stimulus_coverage(prep.spec, prep.frames, options.coverage_floor)
     waves: dict[str, Any] | None = None
     wanted = options.waves == "all" or (options.waves == "failing" and verdict.status in ("fail", "no_output"))
@@ -141,7 +145,37 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -
                                options.timeout_s)
         except VkitError as exc:  # the verdict stands; say why there is no wave file
             warnings.append(f"no waves: {exc}")
-    return _Judged(verdict, coverage, warnings, waves)
+    return _Judged(verdict, coverage, warnings, waves, by_mutant)
+
+
+_GUESSES = ("shift", "scattered")
+"""Finding kinds read off where the mismatches lie rather than what their values are: a spec mutant that
+reproduces the values is the better explanation and is reported first (a shift must survive that check)."""
+
+
+def _mutant_diagnosis(verdict: Verdict, prep: _Prepared) -> MutantDiagnosis | None:
+    """For a failing case with wrong pixel values: the spec mutant that reproduces the design's output."""
+    frames = [f for f in verdict.frames if f is not None]
+    if verdict.status != "fail" or not verdict.value_mismatches or not frames:
+        return None
+    shapes = {f.expected.shape for f in frames}
+    if len(shapes) != 1 or max(f.index for f in frames) >= len(prep.frames):
+        return None
+    inputs = prep.frames[[f.index for f in frames]]
+    checked = np.stack([f.valid & f.present & ~f.unknown for f in frames])
+    return diagnose_by_mutants(np.stack([f.expected for f in frames]), np.stack([f.actual for f in frames]),
+                               expected_by_mutant(prep.spec, inputs), checked)
+
+
+def _named_by_mutant(verdict: Verdict, found: MutantDiagnosis | None) -> Verdict:
+    """The verdict with the mutant's explanation first when the checks could only guess (:data:`_GUESSES`)."""
+    top = verdict.diagnosis
+    if found is None or found.best is None or top is None or top.kind not in _GUESSES:
+        return verdict
+    evidence = {"mutant": found.best.name, "explained_share": round(found.best.share, 4), "where": found.where,
+                "instead_of": top.kind}
+    return replace(verdict, findings=[Finding("variant", found.text, evidence, round(found.best.share, 4)),
+                                      *verdict.findings])
 
 
 def _report(case: Case, prep: _Prepared, outcome: BuildOutcome, capture: Capture, judged: _Judged,
@@ -159,6 +193,8 @@ def _report(case: Case, prep: _Prepared, outcome: BuildOutcome, capture: Capture
     coverage = {**judged.coverage, "warnings": list(judged.warnings)}  # report.json carries the words too
     entry = case_entry(case.id, verdict, simulator=case.simulator, seeds=case.seeds(), files=files,
                        coverage=coverage, meta=meta)
+    if judged.by_mutant is not None:
+        entry["diagnosis_by_mutant"] = judged.by_mutant.to_dict()
     diag = verdict.diagnosis
     return CaseResult(
         case.id, verdict.status, case.simulator, seconds, case.design.expect, case.design.expect_kind,

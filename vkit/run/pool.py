@@ -258,4 +258,5 @@ def run_cases(cases: list[Case], options: RunOptions, *, progress: bool = True,
         shown.close()
         ordered = [results[c.id] for c in cases]
         files = _write_reports(ordered, builds, options.out_dir)
-    return RunResult(options.out_dir, ordered, files, builds, time.monotonic() - t0, stop.signum, notes)
+    return RunResult(out_dir=options.out_dir, cases=ordered, report_files=files, builds=builds,
+                     wall_s=time.monotonic() - t0, stopped_by=stop.signum, notes=notes)

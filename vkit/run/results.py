@@ -64,12 +64,12 @@ class RunResult:
     report_files: dict[str, str]
     builds: list[dict[str, Any]]
     wall_s: float
-    exit_from: str = "verdicts"
-    """``"verdicts"`` or ``"expectations"`` (``[run] exit_code``)."""
     stopped_by: int | None = None
     """The signal (SIGINT, SIGTERM) that stopped the run before every case ended, or None."""
     notes: list[str] = field(default_factory=list)
     """Lines the run said besides the cases (``-j`` cut, output folder moved, ...)."""
+    exit_from: str = "verdicts"
+    """``"verdicts"`` or ``"expectations"`` (``[run] exit_code``)."""
 
     @property
     def exit_code(self) -> int:

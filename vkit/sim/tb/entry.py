@@ -150,7 +150,7 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
     error: str | None = None
     try:
         unseen = check_built_parameters(dut, case.parameters, f"design {dut._name}")
-        meta["notes"] += [f"parameter {name} is not visible in the simulator; not checked" for name in unseen]
+        facts.notes += [f"parameter {name} is not visible in the simulator; not checked" for name in unseen]
         frames = case.load_frames()
         n_frames = int(frames.shape[0])
         facts.frames_sent = n_frames

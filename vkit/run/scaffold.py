@@ -18,6 +18,7 @@ from vkit.run.config import load_config
 from vkit.sim.hdlports import HdlDesign, Port, find_design, language_of, list_designs
 from vkit.sim.signals import FAMILY_ROLES
 from vkit.video.formats import PIXEL_FORMAT_BITS
+from vkit.video.synthesis import SCAFFOLD_PATTERNS
 from vkit.sim.simulators import LANGUAGES, SIMULATORS
 
 __all__ = [
@@ -438,8 +439,9 @@ def _render(text: str, values: Mapping[str, str]) -> str:
 
 _VIDEO_STIMULUS = """\
 [stimulus]
-# verification patterns plus the conveyor-belt scene (vkit.video.patterns); add images = ["frames/*.png"] for your own
-patterns = ["impulse", "step_right", "checkerboard", "ramp_h", "noise", { name = "conveyor", seeds = [1, 2] }]
+# verification patterns, the conveyor-belt scene and frames that kill the spec's mutants (vkit strength);
+# add images = ["frames/*.png"] for your own
+{patterns_line}
 size = [32, 24]          # [width, height] pixels of the "tiny" timing
 timings = ["tiny"]       # add presets as you go: tiny64x48, vga640x480p60, hd1280x720p60, fhd1920x1080p60
 frames = 2
@@ -449,8 +451,9 @@ stalls = [0, { probability = 0.1, max_length = 3 }]   # in_valid low inside data
 
 _STREAM_STIMULUS = """\
 [stimulus]
-# verification patterns plus the conveyor-belt scene (vkit.video.patterns); add images = ["frames/*.png"] for your own
-patterns = ["impulse", "step_right", "checkerboard", "ramp_h", "noise", { name = "conveyor", seeds = [1, 2] }]
+# verification patterns, the conveyor-belt scene and frames that kill the spec's mutants (vkit strength);
+# add images = ["frames/*.png"] for your own
+{patterns_line}
 size = [32, 24]          # [width, height] pixels
 frames = 2
 seeds = [1]
@@ -542,8 +545,21 @@ def _config_text(kit: _Kit) -> str:
     ]
     design = _design_lines(kit, ports_by_name)
     ports = _port_lines(kit.name, kit.guess, ports_by_name)
-    stimulus = _VIDEO_STIMULUS if kit.guess.family == "video" else _STREAM_STIMULUS
+    stimulus = (_VIDEO_STIMULUS if kit.guess.family == "video" else _STREAM_STIMULUS).replace(
+        "{patterns_line}", _patterns_line())
     return "\n".join([*head, *design, "", *ports, "", stimulus])
+
+
+def _patterns_line(items: tuple[str, ...] = SCAFFOLD_PATTERNS) -> str:
+    """``patterns = [...]`` for ``name[:seed]`` items, seeds of one name gathered into one table."""
+    seeds: dict[str, list[int]] = {}
+    for item in items:
+        name, _, seed = item.partition(":")
+        seeds.setdefault(name, [])
+        if seed:
+            seeds[name].append(int(seed))
+    parts = [f'{{ name = "{n}", seeds = [{", ".join(map(str, s))}] }}' if s else f'"{n}"' for n, s in seeds.items()]
+    return f"patterns = [{', '.join(parts)}]"
 
 
 def _c(code: str, comment: str) -> str:

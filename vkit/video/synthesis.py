@@ -20,8 +20,10 @@ from vkit.video.patterns import PATTERNS, make_pattern
 
 __all__ = ["SCAFFOLD_PATTERNS", "KILLER_SEEDS", "stimulus_frames", "synthesize"]
 
-SCAFFOLD_PATTERNS = ("impulse", "step_right", "checkerboard", "ramp_h", "noise", "conveyor:1", "conveyor:2")
-"""The stimulus a freshly scaffolded config runs (``vkit init``), as ``name[:seed]``; 2 frames each."""
+SCAFFOLD_PATTERNS = ("impulse", "step_right", "checkerboard", "ramp_h", "noise", "conveyor:1", "conveyor:2",
+                     "killers:0", "killers:2")
+"""The stimulus a freshly scaffolded config runs (``vkit init`` writes it from this list), as ``name[:seed]``;
+2 frames each (``killers`` seeds 0 and 2 with 2 frames give each of its four parts once)."""
 
 KILLER_SEEDS = tuple(range(len(KILLER_PARTS)))
 """Seeds of the ``killers`` pattern that give each of its parts once."""

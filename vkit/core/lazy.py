@@ -8,12 +8,18 @@ from typing import Any, Callable, Mapping
 __all__ = ["lazy_facade"]
 
 
-def lazy_facade(package: str, home: Mapping[str, str]) -> tuple[Callable[[str], Any], Callable[[], list[str]]]:
-    """``__getattr__`` and ``__dir__`` for ``package`` whose public ``name`` lives in module ``home[name]``.
+def lazy_facade(package: str, homes: Mapping[str, str]
+                ) -> tuple[Callable[[str], Any], Callable[[], list[str]], list[str]]:
+    """``__getattr__``, ``__dir__`` and ``__all__`` for ``package``.
+
+    Args:
+        package: the package's ``__name__``.
+        homes: module -> its public names, white-space separated (``{"vkit.check.scoreboard": "score"}``).
 
     Lazy on purpose: a facade must not import the whole layer (the simulator side would pull in cocotb,
     the model side its tables) just because one name of it was asked for.
     """
+    home = {name: module for module, names in homes.items() for name in names.split()}
 
     def __getattr__(name: str) -> Any:
         if name in home:
@@ -23,4 +29,4 @@ def lazy_facade(package: str, home: Mapping[str, str]) -> tuple[Callable[[str], 
     def __dir__() -> list[str]:
         return sorted(home)
 
-    return __getattr__, __dir__
+    return __getattr__, __dir__, sorted(home)

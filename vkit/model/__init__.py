@@ -4,86 +4,43 @@ from __future__ import annotations
 
 from vkit.core.lazy import lazy_facade
 
-_HOME = {
-    "BORDERS": "vkit.model.window",
-    "BT601": "vkit.model.luma",
-    "BT709": "vkit.model.luma",
-    "FILTER_KINDS": "vkit.model.spec",
-    "FilterSpec": "vkit.model.spec",
-    "GRADIENT_KINDS": "vkit.model.spec",
-    "INPUTS": "vkit.model.spec",
-    "ImageQuality": "vkit.model.quality",
-    "ImageRun": "vkit.model.quality",
-    "KERNELS": "vkit.model.kernels",
-    "Kernel": "vkit.model.kernels",
-    "LumaSpec": "vkit.model.spec",
-    "LumaWeights": "vkit.model.luma",
-    "MAGNITUDE_METHODS": "vkit.model.spec",
-    "METHODS": "vkit.model.magnitude",
-    "MagnitudeSpec": "vkit.model.spec",
-    "ModelResult": "vkit.model.result",
-    "OPENCV": "vkit.model.luma",
-    "OPENCV_BORDERS": "vkit.model.window",
-    "ORDER_KINDS": "vkit.model.spec",
-    "OutputSpec": "vkit.model.spec",
-    "PRESETS": "vkit.model.luma",
-    "PipelineSpec": "vkit.model.spec",
-    "QualityReport": "vkit.model.quality",
-    "ROUNDING": "vkit.model.fixedpoint",
-    "SCIPY_MODES": "vkit.model.window",
-    "SPECS_DIR": "vkit.model.presets",
-    "Stage": "vkit.model.result",
-    "StageCoverage": "vkit.model.quality",
-    "StageWidth": "vkit.model.widths",
-    "WindowSpec": "vkit.model.spec",
-    "bits_for_range": "vkit.model.fixedpoint",
-    "check_border": "vkit.model.window",
-    "check_kernel": "vkit.model.kernels",
-    "check_rounding": "vkit.model.fixedpoint",
-    "compare": "vkit.model.quality",
-    "compare_runs": "vkit.model.quality",
-    "correlate3x3": "vkit.model.kernels",
-    "correlate_padded": "vkit.model.kernels",
-    "dtype_for_range": "vkit.model.widths",
-    "format_width_table": "vkit.model.widths",
-    "interior_mask": "vkit.model.window",
-    "isqrt": "vkit.model.magnitude",
-    "kernel_range": "vkit.model.kernels",
-    "luma": "vkit.model.luma",
-    "luma_float": "vkit.model.luma",
-    "luma_range": "vkit.model.luma",
-    "magnitude_abs_sum": "vkit.model.magnitude",
-    "magnitude_exact": "vkit.model.magnitude",
-    "magnitude_float": "vkit.model.magnitude",
-    "magnitude_max_min_half": "vkit.model.magnitude",
-    "magnitude_table": "vkit.model.magnitude",
-    "maximum3x3": "vkit.model.kernels",
-    "median3x3": "vkit.model.kernels",
-    "minimum3x3": "vkit.model.kernels",
-    "pad": "vkit.model.window",
-    "preset": "vkit.model.presets",
-    "psnr_db": "vkit.model.quality",
-    "read_readmemb": "vkit.model.lut",
-    "read_readmemh": "vkit.model.lut",
-    "root_table": "vkit.model.magnitude",
-    "run_float": "vkit.model.float_twin",
-    "run_model": "vkit.model.exact",
-    "run_model_frames": "vkit.model.exact",
-    "saturate": "vkit.model.fixedpoint",
-    "shift_round": "vkit.model.fixedpoint",
-    "stage_range_map": "vkit.model.widths",
-    "stage_ranges": "vkit.model.widths",
-    "sum_of_squares": "vkit.model.magnitude",
-    "table_address": "vkit.model.magnitude",
-    "table_dtype": "vkit.model.magnitude",
-    "table_from_function": "vkit.model.lut",
-    "taps": "vkit.model.window",
-    "taps_of_padded": "vkit.model.window",
-    "weights_from_coefficients": "vkit.model.luma",
-    "widths_to_dict": "vkit.model.widths",
-    "write_readmemb": "vkit.model.lut",
-    "write_readmemh": "vkit.model.lut",
-    "write_vhdl_package": "vkit.model.lut",
-}
-__all__ = sorted(_HOME)
-__getattr__, __dir__ = lazy_facade(__name__, _HOME)
+__getattr__, __dir__, __all__ = lazy_facade(__name__, {
+    "vkit.model.exact": "run_model run_model_frames",
+    "vkit.model.fixedpoint": "bits_for_range check_rounding ROUNDING saturate shift_round",
+    "vkit.model.float_twin": "run_float",
+    "vkit.model.kernels": (
+        "check_kernel correlate3x3 correlate_padded Kernel kernel_range KERNELS "
+        "maximum3x3 median3x3 minimum3x3"
+    ),
+    "vkit.model.luma": (
+        "BT601 BT709 luma luma_float luma_range LumaWeights OPENCV PRESETS "
+        "weights_from_coefficients"
+    ),
+    "vkit.model.lut": (
+        "read_readmemb read_readmemh table_from_function write_readmemb write_readmemh "
+        "write_vhdl_package"
+    ),
+    "vkit.model.magnitude": (
+        "isqrt magnitude_abs_sum magnitude_exact magnitude_float "
+        "magnitude_max_min_half magnitude_table METHODS root_table sum_of_squares "
+        "table_address table_dtype"
+    ),
+    "vkit.model.presets": "preset SPECS_DIR",
+    "vkit.model.quality": (
+        "compare compare_runs ImageQuality ImageRun psnr_db QualityReport "
+        "StageCoverage"
+    ),
+    "vkit.model.result": "ModelResult Stage",
+    "vkit.model.spec": (
+        "FILTER_KINDS FilterSpec GRADIENT_KINDS INPUTS LumaSpec MAGNITUDE_METHODS "
+        "MagnitudeSpec ORDER_KINDS OutputSpec PipelineSpec WindowSpec"
+    ),
+    "vkit.model.widths": (
+        "dtype_for_range format_width_table stage_range_map stage_ranges StageWidth "
+        "widths_to_dict"
+    ),
+    "vkit.model.window": (
+        "BORDERS check_border interior_mask OPENCV_BORDERS pad SCIPY_MODES taps "
+        "taps_of_padded"
+    ),
+})

@@ -4,19 +4,13 @@ from __future__ import annotations
 
 from vkit.core.lazy import lazy_facade
 
-_HOME = {
-    "MISSING_COLOUR": "vkit.report.writers",
-    "UNCHECKED_COLOUR": "vkit.report.writers",
-    "XZ_COLOUR": "vkit.report.writers",
-    "case_entry": "vkit.report.writers",
-    "case_folder": "vkit.report.writers",
-    "format_summary": "vkit.report.writers",
-    "merge_reports": "vkit.report.writers",
-    "read_images": "vkit.report.quality",
-    "safe_name": "vkit.report.writers",
-    "write_case_report": "vkit.report.writers",
-    "write_model_report": "vkit.report.quality",
-    "write_run_report": "vkit.report.writers",
-}
-__all__ = sorted(_HOME)
-__getattr__, __dir__ = lazy_facade(__name__, _HOME)
+__getattr__, __dir__, __all__ = lazy_facade(__name__, {
+    "vkit.report.page": "render_index render_model_page write_index write_model_page",
+    "vkit.report.progress": "Progress",
+    "vkit.report.schema": "check_report report_schema",
+    "vkit.report.quality": "read_images write_model_report",
+    "vkit.report.writers": (
+        "case_entry case_folder format_summary merge_reports MISSING_COLOUR "
+        "safe_name UNCHECKED_COLOUR write_case_report write_run_report XZ_COLOUR"
+    ),
+})

@@ -4,61 +4,32 @@ from __future__ import annotations
 
 from vkit.core.lazy import lazy_facade
 
-_HOME = {
-    "CONFIG_NAME": "vkit.run.scaffold",
-    "Case": "vkit.run.config",
-    "CaseResult": "vkit.run.results",
-    "Config": "vkit.run.config",
-    "DesignConfig": "vkit.run.config",
-    "ExportResult": "vkit.run.export",
-    "ExportedCase": "vkit.run.vectors",
-    "Flow": "vkit.run.config",
-    "MAKEFILE_NAME": "vkit.run.scaffold",
-    "PatternEntry": "vkit.run.config",
-    "RoleGuess": "vkit.run.scaffold",
-    "RunOptions": "vkit.run.options",
-    "RunResult": "vkit.run.results",
-    "RunSettings": "vkit.run.config",
-    "ScaffoldResult": "vkit.run.scaffold",
-    "StimulusConfig": "vkit.run.config",
-    "VkitCaseError": "vkit.run.pytest_plugin",
-    "VkitCaseFailed": "vkit.run.pytest_plugin",
-    "VkitCaseItem": "vkit.run.pytest_plugin",
-    "VkitConfigFile": "vkit.run.pytest_plugin",
-    "build_design": "vkit.run.builds",
-    "build_fast_design": "vkit.run.builds",
-    "build_request": "vkit.run.builds",
-    "capture_meta_for_case": "vkit.run.export",
-    "check_ports": "vkit.run.inputs",
-    "config_from_dict": "vkit.run.config",
-    "exit_code_for": "vkit.run.results",
-    "expand_matrix": "vkit.run.config",
-    "export_case": "vkit.run.export",
-    "export_vectors": "vkit.run.vectors",
-    "guess_roles": "vkit.run.scaffold",
-    "guess_spec": "vkit.run.scaffold",
-    "load_config": "vkit.run.config",
-    "make_frames": "vkit.run.inputs",
-    "make_sim_case": "vkit.run.inputs",
-    "merge": "vkit.run.runner",
-    "parse_assignments": "vkit.run.scaffold",
-    "parse_shard": "vkit.run.config",
-    "pytest_addoption": "vkit.run.pytest_plugin",
-    "pytest_collect_file": "vkit.run.pytest_plugin",
-    "pytest_configure": "vkit.run.pytest_plugin",
-    "pytest_sessionfinish": "vkit.run.pytest_plugin",
-    "read_capture": "vkit.run.export",
-    "read_toml": "vkit.run.config",
-    "replay": "vkit.run.vectors",
-    "rerun_command": "vkit.run.case",
-    "run": "vkit.run.runner",
-    "run_cases": "vkit.run.pool",
-    "run_one_case": "vkit.run.case",
-    "scaffold": "vkit.run.scaffold",
-    "score_capture_file": "vkit.run.export",
-    "select_cases": "vkit.run.config",
-    "shard_cases": "vkit.run.config",
-    "wave_window": "vkit.run.waves",
-}
-__all__ = sorted(_HOME)
-__getattr__, __dir__ = lazy_facade(__name__, _HOME)
+__getattr__, __dir__, __all__ = lazy_facade(__name__, {
+    "vkit.run.builds": "build_design build_fast_design build_request",
+    "vkit.run.case": "rerun_command run_one_case",
+    "vkit.run.config": (
+        "Case Config config_from_dict DesignConfig expand_matrix Flow load_config "
+        "parse_shard PatternEntry read_toml RunSettings select_cases shard_cases "
+        "StimulusConfig"
+    ),
+    "vkit.run.export": (
+        "capture_meta_for_case export_case ExportResult read_capture "
+        "score_capture_file"
+    ),
+    "vkit.run.inputs": "check_ports make_frames make_sim_case",
+    "vkit.run.options": "RunOptions",
+    "vkit.run.pool": "run_cases",
+    "vkit.run.pytest_plugin": (
+        "pytest_addoption pytest_collect_file pytest_configure "
+        "pytest_sessionfinish VkitCaseError VkitCaseFailed VkitCaseItem "
+        "VkitConfigFile"
+    ),
+    "vkit.run.results": "CaseResult exit_code_for RunResult",
+    "vkit.run.runner": "merge run",
+    "vkit.run.scaffold": (
+        "CONFIG_NAME guess_roles guess_spec MAKEFILE_NAME parse_assignments "
+        "RoleGuess scaffold ScaffoldResult"
+    ),
+    "vkit.run.vectors": "export_vectors ExportedCase replay",
+    "vkit.run.waves": "wave_window",
+})

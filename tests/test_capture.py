@@ -82,3 +82,22 @@ def test_meta_is_a_deprecated_read_only_copy() -> None:
         assert cap.meta["frames_sent"] == 2
     with pytest.raises(AttributeError):
         cap.meta = {}  # type: ignore[misc]
+
+
+def test_finished_lines_survive_a_kill_and_a_cut_record_is_dropped(tmp_path) -> None:
+    """What a per-clock monitor leaves when its simulator is killed: every line it finished, nothing more."""
+    from vkit.video.capture import CaptureBuilder, lines_file_for, read_lines_file
+
+    spill = lines_file_for(tmp_path / "capture.npz")
+    builder = CaptureBuilder()
+    builder.spill_to(spill)
+    for y in range(3):
+        builder.new_line()
+        for x in range(4):
+            builder.add(10 * y + x, clock=100 * y + x)
+    # the third line is still open when the "kill" comes: only two lines are on disk
+    left = read_lines_file(spill)
+    assert left.line.tolist() == [0] * 4 + [1] * 4 and left.values.tolist() == [0, 1, 2, 3, 10, 11, 12, 13]
+    with open(spill, "ab") as out:
+        out.write(b"\x01\x02\x03")  # a record cut short by the kill
+    assert len(read_lines_file(spill)) == 8

@@ -21,7 +21,7 @@ from vkit.sim.fast import fast_test_args, run_native
 from vkit.sim.fast.capture_file import read_capture
 from vkit.sim.fast.stimulus import fast_run_dir
 from vkit.sim.fast.wire import capture_file_name
-from vkit.video.capture import Capture, RunFacts
+from vkit.video.capture import Capture, RunFacts, lines_file_for, read_lines_file
 
 __all__ = ["TEST_MODULE", "GUARD_STATUS", "WaveDump", "simulate"]
 
@@ -86,13 +86,19 @@ def _time_limit(timeout_s: float, status_file: Path) -> Iterator[None]:
 
 
 def _left_behind(simcase: SimCase, language: str, drive: str, outcome: guard.GuardOutcome) -> Capture:
-    """What a stopped simulator left: the harness's own capture file (fast path, flushed per line) or nothing."""
+    """What a stopped simulator left: the harness's own capture file (fast path, flushed per line), the
+    lines the per-clock monitor finished (clock path), or nothing."""
     raw = fast_run_dir(simcase) / capture_file_name(language)
     if drive == "fast" and raw.is_file():
         try:
             return read_capture(raw, simcase)
         except VkitError:
             pass
+    lines = lines_file_for(simcase.capture_file)
+    if drive == "clock" and lines.is_file():
+        facts = RunFacts(family=simcase.family, simulator=simcase.simulator,
+                         notes=[f"{outcome.describe()}; the capture holds the output lines finished before that"])
+        return read_lines_file(lines, facts)
     return Capture(facts=RunFacts(notes=[f"{outcome.describe()}; it left no capture"]))
 
 

@@ -16,7 +16,8 @@ from typing import Any, Mapping
 
 import numpy as np
 
-__all__ = ["UNKNOWN", "MAX_EVENTS", "Capture", "CaptureBuilder", "FrameView", "RunFacts"]
+__all__ = ["UNKNOWN", "MAX_EVENTS", "Capture", "CaptureBuilder", "FrameView", "RunFacts", "lines_file_for",
+           "read_lines_file"]
 
 UNKNOWN = -1
 """Pixel value stored for a sample whose data bus carried X or Z."""
@@ -260,9 +261,26 @@ class CaptureBuilder:
         self._column = 0
         self._frame_has_pixels = False
         self._line_has_pixels = False
+        self._spill: Path | None = None
+        self._spilled = 0
+
+    def spill_to(self, path: str | Path) -> None:
+        """From now on append every finished line to ``path`` (raw int64 rows of value, clock, frame, line,
+        column), so a simulator killed mid-run still leaves the lines it finished (:func:`read_lines_file`)."""
+        self._spill = Path(path)
+        self._spill.write_bytes(b"")
+        self._spilled = 0
+
+    def _flush_lines(self) -> None:
+        if self._spill is None or self._spilled == len(self._rows):
+            return
+        with open(self._spill, "ab") as out:
+            np.asarray(self._rows[self._spilled:], np.int64).tofile(out)
+        self._spilled = len(self._rows)
 
     def new_frame(self) -> None:
         """Start a new frame, unless the current one is still empty."""
+        self._flush_lines()
         if self._frame_has_pixels:
             self._frame += 1
         self._line = 0
@@ -272,6 +290,7 @@ class CaptureBuilder:
 
     def new_line(self) -> None:
         """Start a new line, unless the current one is still empty."""
+        self._flush_lines()
         if self._line_has_pixels:
             self._line += 1
         self._column = 0
@@ -291,3 +310,16 @@ class CaptureBuilder:
         else:
             arr = np.zeros((0, 5), np.int64)
         return Capture(arr[:, 0], arr[:, 1], arr[:, 2], arr[:, 3], arr[:, 4], copy.copy(self.facts))
+
+
+def lines_file_for(capture_file: str | Path) -> Path:
+    """Where a per-clock monitor appends its finished lines while the capture file is not yet written."""
+    return Path(capture_file).with_suffix(".lines")
+
+
+def read_lines_file(path: str | Path, facts: RunFacts | None = None) -> Capture:
+    """The capture a killed simulator left in its lines file (:meth:`CaptureBuilder.spill_to`); a record cut
+    short by the kill is dropped."""
+    raw = np.fromfile(Path(path), dtype=np.int64)
+    rows = raw[: len(raw) // 5 * 5].reshape(-1, 5)
+    return Capture(rows[:, 0], rows[:, 1], rows[:, 2], rows[:, 3], rows[:, 4], facts or RunFacts())

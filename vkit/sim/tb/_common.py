@@ -278,6 +278,11 @@ class _FrameMonitor(_Component):
         if self._step is not None:
             ticker(self._clock).remove(self._step)
 
+    def spill_lines_to(self, path: str | Path) -> None:
+        """Append every finished output line to ``path`` as it completes (see
+        :meth:`vkit.video.capture.CaptureBuilder.spill_to`): what survives a killed simulator."""
+        self._builder.spill_to(path)
+
     def capture(self) -> Capture:
         """A :class:`~vkit.video.capture.Capture` of everything seen so far (partial while running)."""
         f = self.facts

@@ -38,7 +38,7 @@ from cocotb.clock import Clock
 from cocotb.triggers import ClockCycles, First, ReadWrite
 from cocotb.utils import get_sim_time
 
-from vkit.video.capture import Capture, RunFacts
+from vkit.video.capture import Capture, RunFacts, lines_file_for
 from vkit.core.errors import ConfigError
 from vkit.sim.case import CASE_ENV, SimCase, error_file_for
 from vkit.video.formats import pixel_bits
@@ -64,6 +64,7 @@ def _save(capture: Capture, case_capture_file: str | Path, error: str | None) ->
         capture.facts.error = error
         capture.facts.notes.append(error)
     capture.save(path)
+    lines_file_for(path).unlink(missing_ok=True)  # the whole capture is saved: the lines file has done its job
     if error:
         sidecar.write_text(error + "\n")
 
@@ -157,6 +158,8 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
         timeout = case.effective_timeout_clocks(n_frames)
         facts.timeout_clocks = timeout
         monitor, source, sink, clock, reset = _components(dut, case, facts)
+        if save:
+            monitor.spill_lines_to(lines_file_for(case.capture_file))
         await _clock_and_reset(case, clock, reset)
         # capture clock k is the (k+1)-th rising edge after this time (the runner's wave window needs it)
         monitor.facts.start_time_ps = int(get_sim_time("ps"))

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import subprocess
 import sys
 from pathlib import Path
@@ -82,3 +83,11 @@ def test_the_demo_shows_its_seeded_bugs_failing_and_exits_0(tmp_path: Path) -> N
     page = (out / "index.html").read_text()
     assert page.index('id="failures"') < page.index('id="table"'), "the page opens with the failures"
     assert "edge_core@stall_drop" in page and "blur_core@blur_truncate" in page
+    # as a person sees it: headless Chromium runs the page's script; one row per case, the failing pictures decoded
+    from test_page_browser import _browse, _Dom
+
+    report = json.loads((out / "report.json").read_text())
+    dom = _Dom(_browse((out / "index.html").as_uri(), tmp_path / "profile", "--dump-dom").stdout)
+    assert len(dom.rows) == len(report["cases"]) == 42
+    decoded = [i for i in dom.images if (i.get("alt") or "").endswith(("stall0.1m3",)) and i.get("data-decoded")]
+    assert any("edge_core@stall_drop" in (i.get("alt") or "") for i in decoded), "the failure's picture is shown"

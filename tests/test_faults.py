@@ -239,3 +239,20 @@ def test_a_full_disk_is_one_line_and_exit_2(tmp_path: Path, build_cache_dir: Pat
         assert "No space left on device" in run.stderr and len(run.stderr.strip().splitlines()) == 1, run.stderr
     finally:
         subprocess.run(["umount", str(mnt)], check=False)
+
+
+@pytest.mark.sim
+def test_the_time_limit_covers_stimulus_and_model_generation(tmp_path: Path, build_cache_dir: Path) -> None:
+    """A case whose frames and model alone take longer than timeout_s is a timeout before any simulator starts."""
+    simulator_available("icarus")
+    cfg = tmp_path / "vkit.toml"
+    cfg.write_text(f'[run]\nsimulators = ["icarus"]\nout_dir = "out"\ncache_dir = "{build_cache_dir}"\n'
+                   'timeout_s = 0.001\nwaves = "off"\n'
+                   f'[[import]]\nmanifest = "{REPO / "sample_rtl" / "designs.toml"}"\nuse = ["blur_core"]\n'
+                   '[stimulus]\npatterns = ["conveyor"]\ntimings = ["vga640x480p60"]\nframes = 2\n')
+    done = subprocess.run([sys.executable, "-m", "vkit", "run", str(cfg)], cwd=tmp_path, capture_output=True,
+                          text=True, timeout=300)
+    assert done.returncode == 1, done.stdout[-2000:] + done.stderr[-2000:]
+    (case,) = json.loads((tmp_path / "out" / "report.json").read_text())["cases"]
+    assert case["status"] == "timeout" and case["diagnosis"]["kind"] == "timeout", case["diagnosis"]
+    assert "sim.log" not in json.dumps(case["files"]), "no simulator may have started"

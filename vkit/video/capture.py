@@ -268,6 +268,7 @@ class CaptureBuilder:
         """From now on append every finished line to ``path`` (raw int64 rows of value, clock, frame, line,
         column), so a simulator killed mid-run still leaves the lines it finished (:func:`read_lines_file`)."""
         self._spill = Path(path)
+        self._spill.parent.mkdir(parents=True, exist_ok=True)  # the capture file's folder may come later
         self._spill.write_bytes(b"")
         self._spilled = 0
 

@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import importlib
 import json
-import os
 import shutil
 import subprocess
 import sys
@@ -20,7 +19,7 @@ from pathlib import Path
 
 import pytest
 
-from conftest import REPO, SAMPLE_RTL, simulator_available
+from conftest import REPO, SAMPLE_RTL, simulator_available, make_env
 from vkit._legacy import MOVED
 
 PREV_KIT = REPO / "tests" / "data" / "scaffold_prev"
@@ -86,15 +85,6 @@ def test_pytest_plugin_loads_by_its_public_name(tmp_path: Path) -> None:
     assert "--vkit-sim" in proc.stdout and "--vkit-out" in proc.stdout
 
 
-def _env() -> dict[str, str]:
-    env = dict(os.environ)
-    env["PATH"] = str(Path(sys.executable).parent) + os.pathsep + env.get("PATH", "")
-    for key in ("VERILATOR_ROOT", "PYTEST_CURRENT_TEST", "PYTEST_ADDOPTS", "COCOTB_TEST_MODULES", "COCOTB_TOPLEVEL",
-                "PYTHONWARNINGS"):
-        env.pop(key, None)
-    return env
-
-
 @pytest.mark.sim
 @pytest.mark.skipif(shutil.which("make") is None, reason="make not found: apt-get install make")
 def test_a_kit_written_by_the_previous_release_still_runs(tmp_path: Path) -> None:
@@ -104,7 +94,7 @@ def test_a_kit_written_by_the_previous_release_still_runs(tmp_path: Path) -> Non
     (kit / "rtl").mkdir()
     for name in ("window3x3.v", "blur_core.v"):
         shutil.copy(SAMPLE_RTL / name, kit / "rtl" / name)
-    proc = subprocess.run(["make", "-f", "Makefile.vkit", "SIM=icarus", "VKIT_ONLY=impulse"], cwd=kit, env=_env(),
+    proc = subprocess.run(["make", "-f", "Makefile.vkit", "SIM=icarus", "VKIT_ONLY=impulse"], cwd=kit, env=make_env(),
                           capture_output=True, text=True, timeout=900, check=False)
     assert proc.returncode == 0, proc.stdout[-3000:] + proc.stderr[-2000:]
     cases = {tc.get("name"): tc for tc in ET.parse(kit / "results.xml").getroot().iter("testcase")}

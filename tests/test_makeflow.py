@@ -8,7 +8,6 @@ same verdict and the same diagnosis kind for every case.
 from __future__ import annotations
 
 import json
-import os
 import re
 import shutil
 import subprocess
@@ -19,7 +18,7 @@ from pathlib import Path
 
 import pytest
 
-from conftest import REPO, SAMPLE_RTL
+from conftest import REPO, SAMPLE_RTL, make_env
 from vkit.run.makeflow import write_make_vars
 from vkit.run.scaffold import scaffold
 from vkit.sim.simulators import find
@@ -28,17 +27,8 @@ PREV_KIT = REPO / "tests" / "data" / "scaffold_prev"
 needs_make = pytest.mark.skipif(shutil.which("make") is None, reason="make not found: apt-get install make")
 
 
-def _env() -> dict[str, str]:
-    env = dict(os.environ)
-    env["PATH"] = str(Path(sys.executable).parent) + os.pathsep + env.get("PATH", "")
-    for key in ("VERILATOR_ROOT", "PYTEST_CURRENT_TEST", "PYTEST_ADDOPTS", "COCOTB_TEST_MODULES", "COCOTB_TOPLEVEL",
-                "PYTHONWARNINGS"):
-        env.pop(key, None)
-    return env
-
-
 def _run(cmd: list[str], cwd: Path) -> subprocess.CompletedProcess[str]:
-    env = _env()
+    env = make_env()
     # a build cache of this repo's own: the shared cache keys a build on file names and contents, and a
     # GHDL build found there for a copy of these files in a deleted folder cannot load its entity
     env["VKIT_CACHE_DIR"] = str(cwd / ".vkit-cache")

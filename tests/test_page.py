@@ -13,6 +13,8 @@ from pathlib import Path
 import html5lib
 import numpy as np
 import pytest
+
+from conftest import pack_capture
 from PIL import Image
 
 from vkit.check.scoreboard import score
@@ -23,7 +25,7 @@ from vkit.report import page
 from vkit.report.figures import mismatches_per_line
 from vkit.report.page import write_index, write_model_page
 from vkit.report.writers import case_entry, write_case_report, write_run_report
-from vkit.video.capture import UNKNOWN, CaptureBuilder, RunFacts
+from vkit.video.capture import UNKNOWN
 from vkit.video.patterns import box, checkerboard
 
 H, W = 24, 32
@@ -32,20 +34,6 @@ PASS_ID = 'blur_core/model/<b>checker</b> & "quotes"'  # must come out escaped, 
 
 # HTML void elements take no end tag (WHATWG HTML, "void elements"): common practice, no source needed.
 VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
-
-
-def _pack(frames, rows=None):
-    b = CaptureBuilder(RunFacts(frames_sent=len(frames), first_input_clock=0))
-    clk = 17
-    for f in frames:
-        b.new_frame()
-        for y, row in enumerate(np.asarray(f)):
-            b.new_line()
-            for v in (rows or {}).get(y, row):
-                b.add(int(v), clk)
-                clk += 1
-            clk += 5
-    return b.build()
 
 
 def _coverage(result):
@@ -70,14 +58,14 @@ def run_dir(tmp_path_factory):
     bad = r.output.copy()
     bad[10:14, 20:24] = (bad[10:14, 20:24] + 60) % 256  # a defect in one 4x4 block
     bad[2, 2] = UNKNOWN
-    cap = _pack([r.output, bad], rows={5: list(bad[5, :28])})  # line 5 of each frame loses 4 pixels
+    cap = pack_capture([r.output, bad], rows={5: list(bad[5, :28])})  # line 5 of each frame loses 4 pixels
     failing = score([r, r], cap)
     meta = {"design": "blur_core", "stimulus": "box", "timing": "32x24", "path": "model", "seconds": 1.25,
             "rerun": "vkit run cfg.toml --only 'blur_core/model/box/32x24'", "expect": "pass"}
     rp = run_model(spec, checkerboard(H, W))
-    passing = score([rp], _pack([rp.output]))
+    passing = score([rp], pack_capture([rp.output]))
     cases = [_case(out, FAIL_ID, failing, [r, r], cap, meta),
-             _case(out, PASS_ID, passing, [rp], _pack([rp.output]), {**meta, "stimulus": "checkerboard"})]
+             _case(out, PASS_ID, passing, [rp], pack_capture([rp.output]), {**meta, "stimulus": "checkerboard"})]
     write_run_report(cases, out)
     return out
 

@@ -8,6 +8,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+
+from conftest import pack_capture
 from PIL import Image
 
 from vkit.video.capture import UNKNOWN, CaptureBuilder, RunFacts
@@ -28,20 +30,6 @@ from vkit.check.scoreboard import score
 H, W = 24, 32
 
 
-def pack(frames, meta=None, rows=None):
-    b = CaptureBuilder(RunFacts(frames_sent=len(frames), first_input_clock=0, **(meta or {})))
-    clk = 17
-    for f in frames:
-        b.new_frame()
-        for y, row in enumerate(np.asarray(f)):
-            b.new_line()
-            for v in (rows or {}).get(y, row):
-                b.add(int(v), clk)
-                clk += 1
-            clk += 5
-    return b.build()
-
-
 @pytest.fixture(scope="module")
 def failing():
     spec = preset("blur")
@@ -50,7 +38,7 @@ def failing():
     out = r.output.copy()
     out[10:14, 20:24] = (out[10:14, 20:24] + 60) % 256  # a defect in one 4x4 block
     out[2, 2] = UNKNOWN
-    cap = pack([r.output, out], rows={5: list(out[5, :28])})
+    cap = pack_capture([r.output, out], rows={5: list(out[5, :28])})
     v = score([r, r], cap)
     return r, cap, v
 
@@ -81,8 +69,8 @@ def test_case_report_writes_valid_pngs_that_localise_the_defect(failing, tmp_pat
 def test_passing_case_writes_no_pictures(tmp_path) -> None:
     spec = preset("median")
     r = run_model(spec, np.full((4, 5), 9, np.uint8))
-    v = score([r], pack([r.output]))
-    paths = write_case_report("ok", v, [r], pack([r.output]), tmp_path)
+    v = score([r], pack_capture([r.output]))
+    paths = write_case_report("ok", v, [r], pack_capture([r.output]), tmp_path)
     assert paths["frames"] == {} and (tmp_path / paths["verdict"]).exists()
 
 
@@ -90,8 +78,8 @@ def test_passing_case_pictures_on_request(tmp_path) -> None:
     # pictures="all" (the demo's setting) shows every checked frame; a pass has an all-black diff
     spec = preset("median")
     r = run_model(spec, np.full((4, 5), 9, np.uint8))
-    v = score([r], pack([r.output]))
-    paths = write_case_report("ok", v, [r], pack([r.output]), tmp_path, pictures="all")
+    v = score([r], pack_capture([r.output]))
+    paths = write_case_report("ok", v, [r], pack_capture([r.output]), tmp_path, pictures="all")
     files = paths["frames"]["0"]
     assert set(files) == {"input", "expected", "actual", "diff", "composite"}
     diff = np.asarray(Image.open(tmp_path / files["diff"]).convert("RGB"))
@@ -118,7 +106,7 @@ def test_safe_names_do_not_collide() -> None:
 def test_run_report_json_junit_and_summary(failing, tmp_path) -> None:
     r, cap, v = failing
     files = write_case_report("blur-bad", v, [r, r], cap, tmp_path)
-    ok = score([r], pack([r.output]))
+    ok = score([r], pack_capture([r.output]))
     no_out = score([r], CaptureBuilder(RunFacts(timed_out=True, timeout_clocks=10)).build())
     cases = [
         case_entry("blur-bad", v, simulator="icarus", seeds={"image": 1}, files=files, coverage={"lines": 0.9}),
@@ -161,7 +149,7 @@ def test_merge_reports_rebases_paths(failing, tmp_path) -> None:
     shard_a, shard_b = tmp_path / "a", tmp_path / "b"
     fa = write_case_report("one", v, [r, r], cap, shard_a)
     write_run_report([case_entry("one", v, files=fa)], shard_a)
-    write_run_report([case_entry("two", score([r], pack([r.output])))], shard_b)
+    write_run_report([case_entry("two", score([r], pack_capture([r.output])))], shard_b)
     merged = merge_reports([shard_a / "report.json", shard_b], tmp_path / "all")
     assert [c["id"] for c in merged["cases"]] == ["one", "two"]
     assert merged["totals"]["passed"] == 1

@@ -22,8 +22,10 @@ __all__ = [
     "border_coverage",
 ]
 
-BORDER_POLICIES: tuple[str, ...] = ("replicate", "zero", "constant", "mirror")
-"""Border policies a design can implement (``unchecked`` is a checking choice, not a behaviour)."""
+BORDER_POLICIES: tuple[str, ...] = ("replicate", "zero", "constant", "mirror", "reflect", "passthrough")
+"""Border policies a design can implement (``unchecked`` is a checking choice, not a behaviour). A 3x3
+window reads the same under ``reflect`` as under ``replicate``, so the inference names it ``replicate``
+(the first of two policies that give the same outputs is kept)."""
 
 _MATCH_IF_ALIGNED = 0.99
 """Probability that a pixel matches under the right alignment (allows a few faulty pixels)."""

@@ -2,10 +2,48 @@
 
 from __future__ import annotations
 
-__all__ = ["PIXEL_FORMAT_BITS", "DRIVE_MODES", "WAVE_MODES", "VERILOG_SUFFIXES", "VHDL_SUFFIXES", "HDL_SUFFIXES"]
+__all__ = ["PIXEL_FORMAT_BITS", "SAMPLE_BITS_RANGE", "COMPONENT_ORDERS", "pixel_format_name", "sample_bits",
+           "components", "is_rgb", "DRIVE_MODES", "WAVE_MODES", "VERILOG_SUFFIXES", "VHDL_SUFFIXES", "HDL_SUFFIXES"]
 
-PIXEL_FORMAT_BITS: dict[str, int] = {"gray8": 8, "rgb888": 24}
-"""Pixel formats a design's data bus carries, with the bits of one pixel: 8-bit gray, 8:8:8 RGB."""
+SAMPLE_BITS_RANGE: tuple[int, int] = (1, 16)
+"""Fewest and most bits of one sample (one grey value, or one colour component)."""
+
+
+def pixel_format_name(kind: str, bits: int) -> str:
+    """The name of a pixel format: ``gray<bits>`` (``gray10``), or ``rgb`` and the bits three times
+    (``rgb888``, ``rgb101010``), as buses are commonly named (common practice, no source)."""
+    return f"gray{bits}" if kind == "gray" else f"rgb{bits}{bits}{bits}"
+
+
+PIXEL_FORMAT_BITS: dict[str, int] = {
+    pixel_format_name(kind, b): b * (1 if kind == "gray" else 3)
+    for kind in ("gray", "rgb") for b in range(SAMPLE_BITS_RANGE[0], SAMPLE_BITS_RANGE[1] + 1)
+}
+"""Pixel formats a design's data bus carries, with the bits of one pixel: ``gray1`` .. ``gray16`` and
+``rgb111`` .. ``rgb161616`` (``gray8`` and ``rgb888`` the common ones)."""
+
+_SAMPLE_BITS: dict[str, int] = {
+    pixel_format_name(kind, b): b for kind in ("gray", "rgb") for b in range(SAMPLE_BITS_RANGE[0], SAMPLE_BITS_RANGE[1] + 1)
+}
+
+COMPONENT_ORDERS: tuple[str, ...] = ("RGB", "RBG", "GRB", "GBR", "BRG", "BGR")
+"""Orders of the colour components in a data word, most significant first (``RGB``: R high, B low)."""
+
+
+def sample_bits(pixel_format: str) -> int:
+    """Bits of one sample of ``pixel_format`` (``gray10`` -> 10, ``rgb888`` -> 8); 8 for an unknown name
+    (the caller checks names against :data:`PIXEL_FORMAT_BITS`)."""
+    return _SAMPLE_BITS.get(pixel_format, 8)
+
+
+def is_rgb(pixel_format: str) -> bool:
+    """True for the RGB formats (three components a pixel)."""
+    return pixel_format.startswith("rgb")
+
+
+def components(pixel_format: str) -> int:
+    """Samples a pixel of ``pixel_format`` holds: 3 for RGB, 1 for grey."""
+    return 3 if is_rgb(pixel_format) else 1
 
 DRIVE_MODES: tuple[str, ...] = ("clock", "fast", "native")
 """How a case drives the design: ``clock`` (cocotb touches every clock), ``fast`` (the generated HDL

@@ -17,7 +17,7 @@ from vkit.model.luma import LumaWeights, luma
 from vkit.model.result import ModelResult, Stage
 from vkit.model.spec import PipelineSpec
 from vkit.model.widths import StageWidth, dtype_for_range, stage_range_map
-from vkit.model.window import interior_mask, pad
+from vkit.model.window import interior_mask, pad, ring_mask
 
 __all__ = [
     "ORDER_FILTERS", "Variation", "ModelPlan", "model_plan", "check_image", "new_stage", "output_levels", "run_model", "run_plan",
@@ -191,11 +191,31 @@ def run_plan(plan: ModelPlan, img: np.ndarray, *, keep_stages: bool = True, band
                 views[name][...] = band[name]
         for name in clamp_names:
             clamps[name][r0:r1] = band[f"{name}_clamped"]
+    if spec.window.border == "passthrough":
+        _pass_through(plan, img, arrays)
     stages: OrderedDict[str, Stage] = OrderedDict()
     stages["input"] = new_stage(plan, "input", img, None)
     for name in kept:
         stages[name] = new_stage(plan, name, arrays[name], clamps.get(name))
     return ModelResult(arrays["output"], interior_mask(height, width, spec.window.border), stages)
+
+
+def _pass_through(plan: ModelPlan, img: np.ndarray, arrays: dict[str, np.ndarray]) -> None:
+    """Border ``passthrough``: the output on the one-pixel frame is the filter's input sample (the grey
+    value, or the luma of an RGB pixel), through the output mapping or raw (``window.passthrough``)."""
+    ring = ring_mask(*img.shape[:2])
+    if "luma" in arrays:
+        sample = arrays["luma"][ring]
+    elif plan.spec.luma is not None:
+        sample = _limit(plan, "luma", _luma_rows(plan, img))[ring]
+    else:
+        sample = img[ring].astype(np.int64)
+    if plan.spec.window.passthrough == "raw":
+        arrays["output"][ring] = sample
+        return
+    out = plan.spec.output
+    v = np.right_shift(sample.astype(np.int64) * out.scale, out.shift)
+    arrays["output"][ring] = out.levels(np.clip(v, 0, out.max_value), out.max_value)
 
 
 def _run_band(plan: ModelPlan, img: np.ndarray, r0: int, r1: int, views: dict[str, np.ndarray]) -> dict[str, np.ndarray]:

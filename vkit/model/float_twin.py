@@ -12,7 +12,7 @@ from vkit.model.kernels import correlate3x3
 from vkit.model.luma import luma_float
 from vkit.model.result import ModelResult, Stage
 from vkit.model.spec import FilterSpec, MagnitudeSpec, OutputSpec, PipelineSpec
-from vkit.model.window import interior_mask
+from vkit.model.window import interior_mask, ring_mask
 
 __all__ = ["run_float"]
 
@@ -46,6 +46,10 @@ def run_float(spec: PipelineSpec, image: Any) -> ModelResult:
     else:
         value = arrays["filtered"]
     arrays["output"], clamped = _output(spec.output, value)
+    if spec.window.border == "passthrough":
+        ring = ring_mask(height, width)
+        sample = src[ring]
+        arrays["output"][ring] = sample if spec.window.passthrough == "raw" else _output(spec.output, sample)[0]
     stages: OrderedDict[str, Stage] = OrderedDict()
     stages["input"] = new_stage(plan, "input", img.astype(np.float64), None)
     for name in spec.stage_names()[1:]:

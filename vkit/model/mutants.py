@@ -23,7 +23,7 @@ from vkit.core.errors import ConfigError
 from vkit.model import magnitude as magmod
 from vkit.model.exact import ModelPlan, Variation, check_image, model_plan, output_levels, run_plan
 from vkit.model.spec import GRADIENT_KINDS, ORDER_KINDS, PipelineSpec
-from vkit.model.window import BORDERS
+from vkit.model.window import BORDERS, PAD_LIKE_REPLICATE
 
 __all__ = ["Mutant", "spec_mutants", "mutant_outputs", "NARROW_BITS"]
 
@@ -220,7 +220,7 @@ def _luma_mutants(base: ModelPlan, spec: PipelineSpec) -> Iterator[Mutant]:
 def _border_mutants(base: ModelPlan, spec: PipelineSpec) -> Iterator[Mutant]:
     now = spec.window.border
     for border in BORDERS:
-        if border in (now, "unchecked") or (now == "unchecked" and border == "replicate"):
+        if border in (now, "unchecked") or (now == "unchecked" and border in PAD_LIKE_REPLICATE):
             continue
         # a constant of 0 would repeat the zero policy: read the top of the filter's input instead
         top = base.widths["luma" if "luma" in base.widths else "input"].hi
@@ -230,20 +230,29 @@ def _border_mutants(base: ModelPlan, spec: PipelineSpec) -> Iterator[Mutant]:
             same = _pads_hidden(spec, now, spec.window.constant, top) and _pads_hidden(
                 spec, border, extra.get("constant", spec.window.constant), top)
             why = f"a {spec.filter.kind} filter never picks either pad value over a pixel inside the window" if same else ""
+            if _same_pad(now, border):
+                why = "a one-pixel pad of reflect repeats the edge sample, as replicate does: a 3x3 window reads the same"
             yield Mutant(f"window.{border}", "window", f"border policy {border} instead of {now}",
                          "edge pixels where the two policies read different values", plan, why)
-    if not spec.filter.is_order and now != "unchecked":
+    if not spec.filter.is_order and now not in ("unchecked", "passthrough"):
         yield Mutant("window.right_zero", "window", f"the right border reading 0 instead of {now}",
                      "a right edge that is not black", _wide(base, variation=Variation(right_border=0)))
+
+
+def _same_pad(one: str, other: str) -> bool:
+    """True when two windowed policies read the same pad (replicate and reflect; not pass-through, whose
+    frame outputs differ)."""
+    windowed = ("replicate", "reflect")
+    return one in windowed and other in windowed
 
 
 def _pads_hidden(spec: PipelineSpec, border: str, constant: int, top: int) -> bool:
     """True when a min or max filter's output cannot depend on what ``border`` pads with: the pad copies a
     pixel already in the window (replicate, mirror), or never wins the comparison (0 for max, the top for min)."""
     kind = spec.filter.kind
-    if kind not in ("min", "max"):
+    if kind not in ("min", "max") or border == "passthrough":
         return False
-    if border in ("replicate", "mirror", "unchecked"):
+    if border in ("replicate", "reflect", "mirror", "unchecked"):
         return True
     value = 0 if border == "zero" else constant
     return value <= 0 if kind == "max" else value >= top

@@ -10,7 +10,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from vkit.core.errors import ConfigError
-from vkit.core.vocab import PIXEL_FORMAT_BITS
+from vkit.core.vocab import PIXEL_FORMAT_BITS, sample_bits
 from vkit.core.validate import check_keys, fail, want_bool, want_choice, want_int, want_table
 from vkit.model.fixedpoint import ROUNDING
 from vkit.model.kernels import KERNELS
@@ -32,6 +32,7 @@ __all__ = [
     "MAGNITUDE_METHODS",
     "BORDERS",
     "ROUNDINGS",
+    "PASSTHROUGH_MAPPINGS",
     "WHERE",
     "LumaSpec",
     "WindowSpec",
@@ -57,6 +58,8 @@ ORDER_KINDS = ("median", "min", "max")
 MAGNITUDE_METHODS = METHODS
 """Values of ``magnitude.method`` (the methods of :mod:`vkit.model.magnitude`)."""
 ROUNDINGS = ROUNDING
+PASSTHROUGH_MAPPINGS = ("mapped", "raw")
+"""Values of ``window.passthrough``: the frame's input sample through the output mapping, or as it is."""
 """Rounding modes of a right shift (see :func:`vkit.model.fixedpoint.shift_round`)."""
 
 
@@ -128,22 +131,31 @@ class WindowSpec:
     """The 3x3 window and what it sees beyond the frame edge.
 
     Attributes:
-        border: ``replicate``, ``zero``, ``constant``, ``mirror`` or ``unchecked`` (the one-pixel ring
-            is not compared).
+        border: ``replicate``, ``zero``, ``constant``, ``mirror``, ``reflect``, ``passthrough`` (the
+            output on the one-pixel frame is the filter's input sample: the grey value, or the luma of
+            an RGB pixel) or ``unchecked`` (the one-pixel ring is not compared).
         constant: the value read outside the frame when ``border = "constant"``, on the scale of the
             filter's input (luma scale after a luma stage).
+        passthrough: for ``border = "passthrough"``, ``"mapped"`` (the input sample goes through the
+            output mapping: scale, shift, saturate, invert, threshold) or ``"raw"`` (the input sample
+            is the output as it is; it must fit ``output.bits``).
     """
 
     border: str = "replicate"
     constant: int = 0
+    passthrough: str = "mapped"
 
     def __post_init__(self) -> None:
         want_choice(WHERE, "window.border", self.border, BORDERS)
         object.__setattr__(self, "constant", want_int(WHERE, "window.constant", self.constant))
+        want_choice(WHERE, "window.passthrough", self.passthrough, PASSTHROUGH_MAPPINGS)
 
     def to_dict(self) -> dict[str, Any]:
-        """Plain-data form (the ``[window]`` table)."""
-        return {"border": self.border, "constant": self.constant}
+        """Plain-data form (the ``[window]`` table); ``passthrough`` only when it says something."""
+        out: dict[str, Any] = {"border": self.border, "constant": self.constant}
+        if self.border == "passthrough" or self.passthrough != "mapped":
+            out["passthrough"] = self.passthrough
+        return out
 
 
 @dataclass(frozen=True)
@@ -369,6 +381,22 @@ class PipelineSpec:
                 f"{WHERE}: [magnitude] needs a gradient filter (sobel, prewitt, scharr), not {self.filter.kind!r}; "
                 "remove [magnitude]"
             )
+        self._check_passthrough()
+
+    def _check_passthrough(self) -> None:
+        """A raw pass-through border must fit the filter's input sample into the output word."""
+        if self.window.border != "passthrough" or self.window.passthrough != "raw":
+            return
+        source_bits = self.luma.output_bits if self.luma is not None else self.input_bits
+        if source_bits > self.output.bits:
+            raise fail(WHERE, "window.passthrough", "raw",
+                       f"too narrow: the {source_bits}-bit input sample does not fit output.bits = {self.output.bits}",
+                       f'set output.bits >= {source_bits} or passthrough = "mapped"')
+
+    @property
+    def input_bits(self) -> int:
+        """Bits of one input sample (one component for RGB)."""
+        return sample_bits(self.input)
 
     # ---------------------------------------------------------------- construction and export
 

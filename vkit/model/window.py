@@ -8,21 +8,33 @@ import numpy as np
 
 from vkit.core.errors import ConfigError
 
-__all__ = ["BORDERS", "SCIPY_MODES", "OPENCV_BORDERS", "check_border", "pad", "interior_mask", "taps", "taps_of_padded"]
+__all__ = ["BORDERS", "PAD_LIKE_REPLICATE", "ring_mask", "SCIPY_MODES", "OPENCV_BORDERS", "check_border", "pad", "interior_mask", "taps", "taps_of_padded"]
 
-BORDERS = ("replicate", "zero", "constant", "mirror", "unchecked")
+BORDERS = ("replicate", "zero", "constant", "mirror", "reflect", "passthrough", "unchecked")
 """Border policies: what a 3x3 window sees beyond the image edge.
 
 ``replicate`` repeats the edge pixel; ``zero`` reads 0; ``constant`` reads a given value; ``mirror``
-reflects about the edge pixel without repeating it (d c b | a b c d | c b a); ``unchecked`` pads like
-``replicate`` but the outer 1-pixel ring is not compared (see :func:`interior_mask`).
+reflects about the edge pixel without repeating it (d c b | a b c d | c b a); ``reflect`` reflects
+about the edge itself, so the edge sample is repeated (c b a | a b c | c b a); with a one-pixel pad it
+reads exactly what ``replicate`` reads, so a 3x3 design cannot tell the two apart. ``passthrough``: the
+output on the one-pixel frame is the input sample itself (see :mod:`vkit.model.exact`); the window pads
+like ``replicate``, which only the frame's own outputs would see. ``unchecked`` pads like
+``replicate`` but the outer 1-pixel ring is not compared (see :func:`interior_mask`). ``unchecked``
+stays last.
 """
 
-SCIPY_MODES = {"replicate": "nearest", "zero": "constant", "constant": "constant", "mirror": "mirror", "unchecked": "nearest"}
-"""Border policy to the equivalent ``scipy.ndimage`` ``mode`` (``cval`` = 0 for zero, the constant for constant)."""
+PAD_LIKE_REPLICATE = ("replicate", "reflect", "passthrough", "unchecked")
+"""Policies whose one-pixel pad repeats the edge sample."""
 
-OPENCV_BORDERS = {"replicate": "BORDER_REPLICATE", "zero": "BORDER_CONSTANT", "constant": "BORDER_CONSTANT", "mirror": "BORDER_REFLECT_101", "unchecked": "BORDER_REPLICATE"}
-"""Border policy to the name of the equivalent OpenCV ``borderType`` constant."""
+SCIPY_MODES = {"replicate": "nearest", "zero": "constant", "constant": "constant", "mirror": "mirror",
+               "reflect": "reflect", "passthrough": "nearest", "unchecked": "nearest"}
+"""Border policy to the equivalent ``scipy.ndimage`` ``mode`` of its window pad (``cval`` = 0 for zero,
+the constant for constant). SciPy has no pass-through: its entry is the pad the window reads."""
+
+OPENCV_BORDERS = {"replicate": "BORDER_REPLICATE", "zero": "BORDER_CONSTANT", "constant": "BORDER_CONSTANT",
+                  "mirror": "BORDER_REFLECT_101", "reflect": "BORDER_REFLECT", "passthrough": "BORDER_REPLICATE",
+                  "unchecked": "BORDER_REPLICATE"}
+"""Border policy to the name of the equivalent OpenCV ``borderType`` constant of its window pad."""
 
 
 def check_border(border: str) -> str:
@@ -57,7 +69,8 @@ def pad(img: np.ndarray, border: str, constant: float = 0, dtype: Optional[Any] 
     Args:
         img: ``(H, W)`` integer or float image.
         border: one of :data:`BORDERS`. ``mirror`` matches ``scipy.ndimage`` mode ``"mirror"`` and
-            OpenCV ``BORDER_REFLECT_101``; ``replicate`` and ``unchecked`` match mode ``"nearest"`` and
+            OpenCV ``BORDER_REFLECT_101``; ``reflect`` matches mode ``"reflect"`` and ``BORDER_REFLECT``;
+            ``replicate``, ``passthrough`` and ``unchecked`` match mode ``"nearest"`` and
             ``BORDER_REPLICATE``; ``zero``/``constant`` match mode ``"constant"`` / ``BORDER_CONSTANT``.
         constant: the value read outside the image for ``constant`` (ignored otherwise).
         dtype: dtype of the result (default: the image's); converting here saves one pass.
@@ -88,6 +101,7 @@ def pad(img: np.ndarray, border: str, constant: float = 0, dtype: Optional[Any] 
         out[:, 0] = out[:, left]
         out[:, -1] = out[:, right]
         return out
+    # replicate, reflect, passthrough, unchecked: a one-pixel pad repeats the edge sample
     out[0, 1:-1] = arr[0]
     out[-1, 1:-1] = arr[-1]
     out[:, 0] = out[:, 1]
@@ -111,6 +125,14 @@ def interior_mask(height: int, width: int, border: str) -> np.ndarray:
         mask[:, 0] = False
         mask[:, -1] = False
     return mask
+
+
+def ring_mask(height: int, width: int) -> np.ndarray:
+    """The one-pixel frame of a ``(height, width)`` image: True on the first and last row and column."""
+    ring = np.zeros((height, width), dtype=bool)
+    ring[[0, -1], :] = True
+    ring[:, [0, -1]] = True
+    return ring
 
 
 def taps_of_padded(padded: np.ndarray) -> list[list[np.ndarray]]:

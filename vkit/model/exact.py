@@ -10,10 +10,11 @@ import numpy as np
 
 from vkit.core.errors import ConfigError
 from vkit.core.validate import want_int
+from vkit.core.vocab import is_rgb
 from vkit.model import magnitude as magmod
 from vkit.model.fixedpoint import shift_round
 from vkit.model.kernels import correlate_padded, maximum3x3, median3x3, minimum3x3
-from vkit.model.luma import LumaWeights, luma
+from vkit.model.luma import LumaWeights, luma, sample_dtype
 from vkit.model.result import ModelResult, Stage
 from vkit.model.spec import PipelineSpec
 from vkit.model.widths import StageWidth, dtype_for_range, stage_range_map
@@ -122,25 +123,35 @@ def model_plan(spec: PipelineSpec) -> ModelPlan:
 
 
 def check_image(spec: PipelineSpec, image: Any) -> np.ndarray:
-    """``image`` as an array of the shape and dtype ``spec.input`` takes; ConfigError naming the fix otherwise."""
+    """``image`` as an array of the shape and dtype ``spec.input`` takes; ConfigError naming the fix otherwise.
+
+    Samples of up to 8 bits come as uint8, wider ones as uint16; any integer array whose values fit
+    ``0 .. 2**bits - 1`` is taken and converted.
+    """
     arr = np.asarray(image)
-    if spec.input == "rgb888":
+    fmt, bits = spec.input, spec.input_bits
+    if is_rgb(fmt):
         if arr.ndim != 3 or arr.shape[2] != 3 or arr.shape[0] < 1 or arr.shape[1] < 1:
             raise ConfigError(
-                f"pipeline {spec.name!r} takes rgb888 input: expected a (height, width, 3) uint8 array, got shape "
-                f"{arr.shape}; convert a grey frame with np.repeat(img[..., None], 3, axis=2) or use a gray8 spec"
+                f"pipeline {spec.name!r} takes {fmt} input: expected a (height, width, 3) array, got shape "
+                f"{arr.shape}; convert a grey frame with np.repeat(img[..., None], 3, axis=2) or use a grey spec"
             )
     elif arr.ndim != 2 or arr.shape[0] < 1 or arr.shape[1] < 1:
         raise ConfigError(
-            f"pipeline {spec.name!r} takes gray8 input: expected a (height, width) uint8 array, got shape "
-            f"{arr.shape}; convert RGB first (e.g. vkit.model.luma.luma(rgb, vkit.model.luma.BT601)) or use an rgb888 spec"
+            f"pipeline {spec.name!r} takes {fmt} input: expected a (height, width) array, got shape "
+            f"{arr.shape}; convert RGB first (e.g. vkit.model.luma.luma(rgb, vkit.model.luma.BT601)) or use an RGB spec"
         )
-    if arr.dtype != np.uint8:
+    want = sample_dtype(bits)
+    if arr.dtype == want and bits in (8, 16):
+        return arr
+    top = (1 << bits) - 1
+    if arr.dtype.kind not in "iu" or (arr.size and (int(arr.min()) < 0 or int(arr.max()) > top)):
         raise ConfigError(
-            f"pipeline {spec.name!r} takes uint8 pixels, got dtype {arr.dtype}; "
-            "check the range is 0..255 and convert with image.astype(np.uint8)"
+            f"pipeline {spec.name!r} takes {bits}-bit samples (0..{top}) as {want}, got dtype {arr.dtype}"
+            + (f" with values {int(arr.min())}..{int(arr.max())}" if arr.dtype.kind in "iu" and arr.size else "")
+            + f"; check the range is 0..{top} and convert with image.astype(np.{want})"
         )
-    return arr
+    return arr if arr.dtype == want else arr.astype(want)
 
 
 def new_stage(plan: ModelPlan, name: str, array: np.ndarray, clamped: np.ndarray | None) -> Stage:
@@ -157,7 +168,8 @@ def run_model(spec: PipelineSpec, image: Any, *, keep_stages: bool = True, band_
 
     Args:
         spec: the pipeline.
-        image: ``(H, W, 3)`` uint8 RGB for ``rgb888`` input, ``(H, W)`` uint8 for ``gray8``.
+        image: ``(H, W, 3)`` RGB for an RGB input format, ``(H, W)`` for a grey one; uint8 samples
+            up to 8 bits, uint16 above (see :func:`check_image`).
         keep_stages: False keeps only the ``output`` stage (faster; ``stages`` then holds ``input`` and
             ``output`` only).
         band_rows: rows per band, >= 1.
@@ -302,7 +314,7 @@ def _luma_rows(plan: ModelPlan, img: np.ndarray) -> np.ndarray:
     spec = plan.spec
     assert spec.luma is not None and plan.weights is not None
     rgb = img if img.ndim == 3 else np.repeat(img[..., None], 3, axis=2)
-    return luma(rgb, plan.weights, spec.luma.output_bits, spec.luma.rounding)
+    return luma(rgb, plan.weights, spec.luma.output_bits, spec.luma.rounding, spec.input_bits)
 
 
 def _allocate(

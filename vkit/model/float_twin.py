@@ -38,7 +38,7 @@ def run_float(spec: PipelineSpec, image: Any) -> ModelResult:
     src = img.astype(np.float64)
     if spec.luma is not None:
         rgb = img if img.ndim == 3 else np.repeat(img[..., None], 3, axis=2)
-        src = arrays["luma"] = luma_float(rgb, spec.luma.coefficients(), spec.luma.output_bits)
+        src = arrays["luma"] = luma_float(rgb, spec.luma.coefficients(), spec.luma.output_bits, spec.input_bits)
     _filter(spec, src, arrays)
     if spec.filter.is_gradient:
         assert spec.magnitude is not None

@@ -22,6 +22,7 @@ __all__ = [
     "luma",
     "luma_float",
     "luma_range",
+    "sample_dtype",
 ]
 
 
@@ -112,36 +113,46 @@ def _check_output_bits(output_bits: int) -> int:
     return int(output_bits)
 
 
-def _check_rgb(rgb: np.ndarray) -> np.ndarray:
+def sample_dtype(input_bits: int) -> np.dtype:
+    """The unsigned dtype that holds one ``input_bits``-bit sample: uint8 up to 8 bits, uint16 up to 16."""
+    if isinstance(input_bits, bool) or not isinstance(input_bits, (int, np.integer)) or not 1 <= input_bits <= 16:
+        raise ConfigError(f"input_bits = {input_bits!r} is not a sample width; give an integer in 1..16")
+    return np.dtype(np.uint8 if input_bits <= 8 else np.uint16)
+
+
+def _check_rgb(rgb: np.ndarray, input_bits: int = 8) -> np.ndarray:
     arr = np.asarray(rgb)
     if arr.ndim != 3 or arr.shape[2] != 3:
         raise ConfigError(f"RGB image has shape {arr.shape}; expected (height, width, 3) in R, G, B order")
-    if arr.dtype != np.uint8:
-        raise ConfigError(f"RGB image has dtype {arr.dtype}; expected uint8 (0..255 per component)")
+    want = sample_dtype(input_bits)
+    if arr.dtype != want:
+        raise ConfigError(f"RGB image has dtype {arr.dtype}; expected {want} (0..{(1 << input_bits) - 1} per component)")
     return arr
 
 
-def luma_range(weights: LumaWeights, output_bits: int = 8, rounding: str = "half_up") -> tuple[int, int]:
-    """Lowest and highest value :func:`luma` can return for 8-bit RGB input."""
-    top = np.full((1, 1, 3), 255, dtype=np.uint8)
-    return 0, int(luma(top, weights, output_bits, rounding)[0, 0])
+def luma_range(weights: LumaWeights, output_bits: int = 8, rounding: str = "half_up", input_bits: int = 8) -> tuple[int, int]:
+    """Lowest and highest value :func:`luma` can return for ``input_bits``-bit RGB input."""
+    top = np.full((1, 1, 3), (1 << input_bits) - 1, dtype=sample_dtype(input_bits))
+    return 0, int(luma(top, weights, output_bits, rounding, input_bits)[0, 0])
 
 
 def luma(
-    rgb: np.ndarray, weights: LumaWeights, output_bits: int = 8, rounding: str = "half_up"
+    rgb: np.ndarray, weights: LumaWeights, output_bits: int = 8, rounding: str = "half_up", input_bits: int = 8
 ) -> np.ndarray:
-    """Integer luma of an 8-bit RGB image.
+    """Integer luma of an RGB image of ``input_bits`` bits per component.
 
-    ``Y = round((r*R + g*G + b*B) * 2**(output_bits-8) / 2**fraction_bits)``, computed exactly as a
-    right shift of the integer sum by ``fraction_bits - (output_bits - 8)`` bits (a left shift when
-    that is negative). With BT.601 weights and ``output_bits=12`` the result spans 0..4080, i.e. the
-    8-bit luma times 16 ("scaled luma").
+    ``Y = round((r*R + g*G + b*B) * 2**(output_bits-input_bits) / 2**fraction_bits)``, computed exactly
+    as a right shift of the integer sum by ``fraction_bits - (output_bits - input_bits)`` bits (a left
+    shift when that is negative). With 8-bit input, BT.601 weights and ``output_bits=12`` the result
+    spans 0..4080, i.e. the 8-bit luma times 16 ("scaled luma").
 
     Args:
-        rgb: ``(H, W, 3)`` uint8 image, components in R, G, B order, 0..255.
+        rgb: ``(H, W, 3)`` image, components in R, G, B order, 0..2**input_bits - 1; uint8 for up to 8
+            bits, uint16 for 9..16.
         weights: integer weights, e.g. :data:`BT601`.
-        output_bits: bits of the result, 1..24; 8 gives the usual 0..255 luma.
+        output_bits: bits of the result, 1..24; equal to ``input_bits`` gives luma on the input's scale.
         rounding: ``"half_up"`` (add half an LSB before the shift) or ``"truncate"``.
+        input_bits: bits of one component, 1..16.
 
     Returns:
         ``(H, W)`` int32 array.
@@ -149,12 +160,12 @@ def luma(
     References:
         ITU-R BT.601-7 and ITU-R BT.709-6, luma equation ``E'Y = Kr*E'R + (1-Kr-Kb)*E'G + Kb*E'B``.
     """
-    arr = _check_rgb(rgb)
+    arr = _check_rgb(rgb, input_bits)
     check_rounding(rounding)
     output_bits = _check_output_bits(output_bits)
-    shift = weights.fraction_bits - (output_bits - 8)
+    shift = weights.fraction_bits - (output_bits - input_bits)
     half = (1 << (shift - 1)) if (rounding == "half_up" and shift > 0) else 0
-    peak = weights.total * 255 + half
+    peak = weights.total * ((1 << input_bits) - 1) + half
     # uint16 halves the memory traffic when the sum fits (weights summing to 256 do: 65280 + 128).
     acc_type = np.uint16 if peak < (1 << 16) else (np.int32 if peak < (1 << 31) else np.int64)
     wr, wg, wb = (acc_type(w) for w in weights.as_tuple())
@@ -178,19 +189,21 @@ def luma(
 
 
 def luma_float(
-    rgb: np.ndarray, coefficients: Sequence[float] = (0.299, 0.587, 0.114), output_bits: int = 8
+    rgb: np.ndarray, coefficients: Sequence[float] = (0.299, 0.587, 0.114), output_bits: int = 8,
+    input_bits: int = 8,
 ) -> np.ndarray:
-    """Real-valued luma ``(kr*R + kg*G + kb*B) * 2**(output_bits-8)`` of an 8-bit RGB image (no rounding).
+    """Real-valued luma ``(kr*R + kg*G + kb*B) * 2**(output_bits-input_bits)`` of an RGB image (no rounding).
 
     Args:
-        rgb: ``(H, W, 3)`` uint8 image in R, G, B order.
+        rgb: ``(H, W, 3)`` image in R, G, B order (uint8 up to 8 bits a component, uint16 above).
         coefficients: ``(kr, kg, kb)``; the default is ITU-R BT.601.
-        output_bits: scale of the result (8 gives 0..255).
+        output_bits: scale of the result (``input_bits`` gives the input's own scale).
+        input_bits: bits of one component, 1..16.
 
     Returns:
         ``(H, W)`` float64 array.
     """
-    arr = _check_rgb(rgb)
+    arr = _check_rgb(rgb, input_bits)
     output_bits = _check_output_bits(output_bits)
     if len(coefficients) != 3:
         raise ConfigError(f"luma coefficients {tuple(coefficients)!r} must be three values (kr, kg, kb)")
@@ -198,6 +211,6 @@ def luma_float(
     y = kr * arr[..., 0].astype(np.float64)
     y += kg * arr[..., 1]
     y += kb * arr[..., 2]
-    if output_bits != 8:
-        y *= 2.0 ** (output_bits - 8)
+    if output_bits != input_bits:
+        y *= 2.0 ** (output_bits - input_bits)
     return y

@@ -9,6 +9,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from vkit.core.vocab import is_rgb
 from vkit.core.errors import ConfigError
 from vkit.model.exact import run_model
 from vkit.model.float_twin import run_float
@@ -171,7 +172,7 @@ class ImageRun:
 
 def _as_image_list(spec: PipelineSpec, images: Any) -> list[np.ndarray]:
     if isinstance(images, np.ndarray):
-        single = images.ndim == (3 if spec.input == "rgb888" else 2)
+        single = images.ndim == (3 if is_rgb(spec.input) else 2)
         return [images] if single else list(images)
     if isinstance(images, (str, PurePath)):
         images = [images]

@@ -10,7 +10,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from vkit.core.errors import ConfigError
-from vkit.core.vocab import PIXEL_FORMAT_BITS, sample_bits
+from vkit.core.vocab import PIXEL_FORMAT_BITS, is_rgb, sample_bits
 from vkit.core.validate import check_keys, fail, want_bool, want_choice, want_int, want_table
 from vkit.model.fixedpoint import ROUNDING
 from vkit.model.kernels import KERNELS
@@ -46,7 +46,7 @@ WHERE = "pipeline spec"
 """What a spec error names as the place to edit (the spec file, or the ``spec`` table of a design)."""
 
 INPUTS = tuple(PIXEL_FORMAT_BITS)
-"""Input formats: one 8-bit grey component, or 8-bit R, G, B."""
+"""Input formats: one grey sample or R, G, B samples of 1..16 bits each (``gray10``, ``rgb121212``)."""
 FILTER_KINDS = (
     "sobel", "prewitt", "scharr", "custom", "box", "gaussian", "sharpen", "laplacian", "median", "min", "max",
 )
@@ -348,9 +348,10 @@ _TOP_KEYS = ("name", "input", "luma", "window", "filter", "magnitude", "output")
 class PipelineSpec:
     """A whole pipeline: input format, optional luma, window border, filter, optional magnitude, output.
 
-    Build one with :func:`preset`, :meth:`from_dict` or :meth:`from_toml`. ``rgb888`` input always has a
-    luma stage (the default :class:`LumaSpec` when none is given); ``gray8`` input has one only when it
-    is given (the grey value then stands for R = G = B). Gradient kinds always have a magnitude stage
+    Build one with :func:`preset`, :meth:`from_dict` or :meth:`from_toml`. RGB input (``rgb888``,
+    ``rgb101010``, ...) always has a luma stage (the default :class:`LumaSpec` when none is given); grey
+    input (``gray8``, ``gray10``, ...) has one only when it is given (the grey value then stands for
+    R = G = B). The input's sample width (1..16 bits) sets every stage's range. Gradient kinds always have a magnitude stage
     (the default :class:`MagnitudeSpec` when none is given); other kinds must not have one.
     """
 
@@ -372,7 +373,7 @@ class PipelineSpec:
                 raise ConfigError(
                     f"{WHERE}: {key} is a {type(value).__name__}, not a {cls.__name__}; build it with PipelineSpec.from_dict"
                 )
-        if self.input == "rgb888" and self.luma is None:
+        if is_rgb(self.input) and self.luma is None:
             object.__setattr__(self, "luma", LumaSpec())
         if self.filter.is_gradient and self.magnitude is None:
             object.__setattr__(self, "magnitude", MagnitudeSpec())

@@ -7,6 +7,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from vkit.core.vocab import is_rgb
 from vkit.model.exact import check_image, run_model, run_plan
 from vkit.model.mutants import Mutant, mutant_outputs, spec_mutants
 from vkit.model.quality import StageCoverage
@@ -100,7 +101,7 @@ class StrengthReport:
 
 def _frames(spec: PipelineSpec, frames: Any) -> list[np.ndarray]:
     arr = np.asarray(frames)
-    one = arr.ndim == (3 if spec.input == "rgb888" else 2)
+    one = arr.ndim == (3 if is_rgb(spec.input) else 2)
     return [check_image(spec, f) for f in ([arr] if one else arr)]
 
 

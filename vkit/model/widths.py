@@ -8,6 +8,7 @@ from typing import Any
 
 import numpy as np
 
+from vkit.core.vocab import is_rgb
 from vkit.model import magnitude as mag
 from vkit.model.fixedpoint import bits_for_range, shift_round
 from vkit.model.kernels import kernel_range
@@ -82,13 +83,14 @@ def stage_ranges(spec: PipelineSpec) -> list[StageWidth]:
     Example (the ``edge`` preset): luma 0..4080 (12 bits), gx/gy -16320..16320 (15 bits signed),
     sum_sq 0..532684800 (29 bits), address 0..8191 (13 bits), magnitude 0..255 (8 bits).
     """
-    out: list[StageWidth] = [_width("input", 0, 255, "8 bits per component" if spec.input == "rgb888" else "8-bit grey")]
-    lo, hi = 0, 255
+    bits = spec.input_bits
+    lo, hi = 0, (1 << bits) - 1
+    out: list[StageWidth] = [_width("input", lo, hi, f"{bits} bits per component" if is_rgb(spec.input) else f"{bits}-bit grey")]
     if spec.luma is not None:
         weights = spec.luma.resolved()
-        lo, hi = luma_range(weights, spec.luma.output_bits, spec.luma.rounding)
+        lo, hi = luma_range(weights, spec.luma.output_bits, spec.luma.rounding, bits)
         r, g, b = weights.as_tuple()
-        shift = weights.fraction_bits - (spec.luma.output_bits - 8)
+        shift = weights.fraction_bits - (spec.luma.output_bits - bits)
         half = f" + {1 << (shift - 1)}" if spec.luma.rounding == "half_up" and shift > 0 else ""
         formula = f"({r}R + {g}G + {b}B{half}) >> {shift}" if shift >= 0 else f"({r}R + {g}G + {b}B) << {-shift}"
         out.append(_width("luma", lo, hi, formula))

@@ -11,6 +11,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from vkit.core.vocab import is_rgb
 from vkit.core.errors import ConfigError
 from vkit.model.quality import ImageQuality, ImageRun, QualityReport, StageCoverage, compare_runs, psnr_db
 from vkit.model.spec import PipelineSpec
@@ -46,7 +47,7 @@ def read_images(spec: PipelineSpec, images: Any, max_image_pixels: int = DEFAULT
         their PNG names stay apart), ``image<i>`` for an array.
     """
     if isinstance(images, np.ndarray):
-        single = images.ndim == (3 if spec.input == "rgb888" else 2)
+        single = images.ndim == (3 if is_rgb(spec.input) else 2)
         items: list[Any] = [images] if single else list(images)
     elif isinstance(images, (str, PurePath)):
         items = [images]

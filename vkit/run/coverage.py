@@ -6,6 +6,7 @@ from typing import Any
 
 import numpy as np
 
+from vkit.core.vocab import is_rgb
 from vkit.check.align import border_coverage
 from vkit.model.pipeline import PipelineSpec
 from vkit.model.quality import compare
@@ -20,7 +21,7 @@ per spec). Past it, the first frames that fit are used and the report says how m
 
 def _gray_on_rgb(spec: PipelineSpec, frames: np.ndarray) -> bool:
     """True when an RGB design is fed gray frames only (R = G = B everywhere)."""
-    return spec.input == "rgb888" and all(
+    return is_rgb(spec.input) and all(
         np.array_equal(f[..., 0], f[..., 1]) and np.array_equal(f[..., 1], f[..., 2]) for f in frames
     )
 

@@ -6,6 +6,8 @@ from pathlib import Path
 
 import numpy as np
 
+from vkit.core.vocab import is_rgb, sample_bits
+from vkit.model.luma import sample_dtype
 from vkit.core.errors import ConfigError
 from vkit.core.validate import closest, fail
 from vkit.run.config import IMAGE_PIXELS_SETTING, Case
@@ -41,21 +43,23 @@ def _image_frame(case: Case) -> np.ndarray:
 
 
 def make_frames(case: Case) -> np.ndarray:
-    """The case's input frames, uint8 ``(N, H, W)`` (gray8) or ``(N, H, W, 3)`` (rgb888).
+    """The case's input frames, ``(N, H, W)`` (grey) or ``(N, H, W, 3)`` (RGB), uint8 for samples of up
+    to 8 bits and uint16 above; patterns are drawn at the design's sample width.
 
     Frame ``k`` of a pattern uses seed ``case.seed + k`` (seeded patterns differ per frame). An image
     is read in the design's pixel format (conversions only with ``[stimulus] convert = true``) and
     centre-cropped to the case's size; every frame of an image case is that image.
     """
-    rgb = case.design.pixel_format == "rgb888"
+    fmt = case.design.pixel_format
+    rgb, bits = is_rgb(fmt), sample_bits(fmt)
     frames = []
     for k in range(case.frames):
         if case.stimulus == "pattern":
-            img = make_pattern(case.stimulus_name, case.height, case.width, seed=case.seed + k, rgb=rgb,
+            img = make_pattern(case.stimulus_name, case.height, case.width, seed=case.seed + k, rgb=rgb, bits=bits,
                                **dict(case.pattern_options))
         else:
             img = _image_frame(case)
-        frames.append(np.ascontiguousarray(img, dtype=np.uint8))
+        frames.append(np.ascontiguousarray(img, dtype=sample_dtype(bits)))
     return np.stack(frames)
 
 

@@ -10,6 +10,8 @@ from typing import Any
 
 import numpy as np
 
+from vkit.core.vocab import is_rgb, sample_bits
+from vkit.model.luma import sample_dtype
 from vkit.core.errors import ConfigError
 from vkit.core.validate import suggest
 from vkit.sim.signals import FAMILY_ROLES, SignalMap
@@ -172,10 +174,11 @@ class SimCase:
             raise ConfigError(f"frames file {str(path)!r} does not exist; write the frames with numpy.save first") from None
         except ValueError as exc:
             raise ConfigError(f"frames file {str(path)!r} is not a plain .npy array ({exc}); save it with numpy.save") from None
-        want = (self.height, self.width) + ((3,) if self.pixel_format == "rgb888" else ())
-        if arr.ndim != len(want) + 1 or tuple(arr.shape[1:]) != want or arr.dtype != np.uint8:
+        want = (self.height, self.width) + ((3,) if is_rgb(self.pixel_format) else ())
+        dtype = sample_dtype(sample_bits(self.pixel_format))
+        if arr.ndim != len(want) + 1 or tuple(arr.shape[1:]) != want or arr.dtype != dtype:
             raise ConfigError(
-                f"frames file {str(path)!r} holds {arr.dtype} {arr.shape}, expected uint8 (N, {', '.join(map(str, want))}) "
+                f"frames file {str(path)!r} holds {arr.dtype} {arr.shape}, expected {dtype} (N, {', '.join(map(str, want))}) "
                 f"for {self.pixel_format} {self.width}x{self.height}; re-save the frames"
             )
         self._frames_cache = arr

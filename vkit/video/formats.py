@@ -12,7 +12,7 @@ from typing import Any
 import numpy as np
 
 from vkit.core.errors import ConfigError
-from vkit.core.vocab import PIXEL_FORMAT_BITS
+from vkit.core.vocab import PIXEL_FORMAT_BITS, is_rgb, sample_bits
 from vkit.core.validate import suggest
 
 __all__ = ["PIXEL_FORMAT_BITS", "pixel_bits", "pack_rgb", "unpack_rgb", "pixel_words", "frames_array"]
@@ -64,39 +64,50 @@ def unpack_rgb(words: np.ndarray) -> np.ndarray:
 
 
 def pixel_words(frames: np.ndarray, pixel_format: str) -> np.ndarray:
-    """Data-bus words per pixel, int64 ``(N, H, W)``: gray8 as is, rgb888 packed by :func:`pack_rgb`."""
-    if pixel_format == "rgb888":
-        return np.asarray(pack_rgb(frames), dtype=np.int64)
-    return np.asarray(frames).astype(np.int64)
+    """Data-bus words per pixel, int64 ``(N, H, W)``: grey samples as they are, RGB packed R high, B low
+    (``rgb888``: as :func:`pack_rgb`). Another component order: :class:`vkit.video.bus.BusLayout`."""
+    pixel_bits(pixel_format)
+    arr = np.asarray(frames).astype(np.int64)
+    if not is_rgb(pixel_format):
+        return arr
+    bits = sample_bits(pixel_format)
+    return (arr[..., 0] << (2 * bits)) | (arr[..., 1] << bits) | arr[..., 2]
 
 
 def frames_array(frames: Any, pixel_format: str | None = None) -> tuple[np.ndarray, str]:
-    """Stack ``frames`` into ``(N, H, W)`` (gray8) or ``(N, H, W, 3)`` (rgb888) uint8 and name the format.
+    """Stack ``frames`` into ``(N, H, W)`` (grey) or ``(N, H, W, 3)`` (RGB) samples and name the format.
 
     Args:
-        frames: one frame or a sequence of frames, each uint8-valued ``(H, W)`` or ``(H, W, 3)``.
-        pixel_format: "gray8", "rgb888" or None to infer from the shape.
+        frames: one frame or a sequence of frames, each ``(H, W)`` or ``(H, W, 3)``.
+        pixel_format: a pixel format name, or None to infer ``gray8`` / ``rgb888`` from the shape.
+
+    Returns:
+        The frames as uint8 (samples of up to 8 bits) or uint16 (9..16 bits), and the format's name.
 
     Raises:
-        ConfigError: empty input, mixed shapes, values outside 0..255 or a shape/format mismatch.
+        ConfigError: empty input, mixed shapes, values outside the format's range or a shape/format mismatch.
     """
     arr = frames if isinstance(frames, np.ndarray) else np.asarray(frames)
-    # A single frame is (H, W) or (H, W, 3); a 3-D array ending in 3 is one RGB frame unless gray8 was asked.
-    if arr.ndim == 2 or (arr.ndim == 3 and arr.shape[-1] == 3 and pixel_format != "gray8"):
+    rgb = None if pixel_format is None else is_rgb(pixel_format)
+    # A single frame is (H, W) or (H, W, 3); a 3-D array ending in 3 is one RGB frame unless grey was asked.
+    if arr.ndim == 2 or (arr.ndim == 3 and arr.shape[-1] == 3 and rgb is not False):
         arr = arr[None]
     if arr.dtype == object or arr.size == 0:
         raise ConfigError("frames: got no frames or frames of different shapes; give equal-size (H, W) or (H, W, 3) arrays")
-    fmt = _format_of_shape(arr.shape)
-    if pixel_format is not None and pixel_format != fmt:
-        pixel_bits(pixel_format)
+    shape_rgb = _format_of_shape(arr.shape) == "rgb888"
+    fmt = pixel_format if pixel_format is not None else ("rgb888" if shape_rgb else "gray8")
+    pixel_bits(fmt)
+    if shape_rgb != is_rgb(fmt):
         raise ConfigError(
-            f"frames: shape {arr.shape} is {fmt} but pixel_format is {pixel_format!r}; "
-            f"give {'(N, H, W, 3)' if pixel_format == 'rgb888' else '(N, H, W)'} frames or change pixel_format"
+            f"frames: shape {arr.shape} is {'RGB' if shape_rgb else 'grey'} but pixel_format is {fmt!r}; "
+            f"give {'(N, H, W, 3)' if is_rgb(fmt) else '(N, H, W)'} frames or change pixel_format"
         )
-    if arr.dtype != np.uint8:
-        if not np.issubdtype(arr.dtype, np.integer) or arr.min() < 0 or arr.max() > 255:
-            raise ConfigError(f"frames: dtype {arr.dtype} with values outside 0..255; give uint8 frames")
-        arr = arr.astype(np.uint8)
+    bits = sample_bits(fmt)
+    dtype, top = np.dtype(np.uint8 if bits <= 8 else np.uint16), (1 << bits) - 1
+    if arr.dtype != dtype or bits not in (8, 16):
+        if not np.issubdtype(arr.dtype, np.integer) or arr.min() < 0 or arr.max() > top:
+            raise ConfigError(f"frames: dtype {arr.dtype} with values outside 0..{top}; give {bits}-bit samples ({dtype})")
+        arr = arr.astype(dtype)
     return arr, fmt
 
 

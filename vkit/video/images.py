@@ -1,16 +1,20 @@
-"""Load and save 8-bit gray or RGB images (PNG, PPM, PGM) with explicit mode checks and conversions."""
+"""Load and save gray or RGB images (PNG, PPM, PGM) with explicit mode checks and conversions; wider
+samples than 8 bits load at the design's width."""
 
 from __future__ import annotations
 
 import threading
 import warnings
 from pathlib import Path
-from typing import Literal
 
 import numpy as np
 from PIL import Image, UnidentifiedImageError
 
 from vkit.core.errors import ConfigError
+from vkit.core.validate import suggest
+from vkit.core.vocab import PIXEL_FORMAT_BITS, is_rgb, sample_bits
+from vkit.model.luma import sample_dtype
+from vkit.video.wideimages import WideImage, read_wide
 from vkit.video.formats import pack_rgb, unpack_rgb  # their home is formats; kept importable here
 
 __all__ = ["DEFAULT_MAX_PIXELS", "load_image", "save_image", "to_uint8", "pack_rgb", "unpack_rgb"]
@@ -18,7 +22,8 @@ __all__ = ["DEFAULT_MAX_PIXELS", "load_image", "save_image", "to_uint8", "pack_r
 DEFAULT_MAX_PIXELS = 40_000_000
 """Largest image (width * height) :func:`load_image` opens unless told otherwise."""
 
-Mode = Literal["auto", "gray8", "rgb888"]
+Mode = str
+"""``"auto"`` or a pixel format name (:data:`vkit.core.vocab.PIXEL_FORMAT_BITS`)."""
 
 _READ_FORMATS = {"PNG", "PPM"}  # Pillow's PPM plugin reads PPM, PGM and PBM
 _SAVE_FORMATS = {".png": "PNG", ".ppm": "PPM", ".pgm": "PPM"}
@@ -70,7 +75,11 @@ def load_image(
     Args:
         path: the file.
         mode: ``"auto"`` keeps gray as ``(H, W)`` and colour as ``(H, W, 3)``; ``"gray8"`` demands
-            ``(H, W)``; ``"rgb888"`` demands ``(H, W, 3)``.
+            ``(H, W)``; ``"rgb888"`` demands ``(H, W, 3)``. Another sample width (``"gray10"``,
+            ``"rgb121212"``) reads a 16-bit PNG or a PGM/PPM with maxval > 255 at its own width
+            (:mod:`vkit.video.wideimages`) and returns uint16 (uint8 up to 8 bits): as stored when
+            the file's maxval is ``2**bits - 1`` (for a 16-bit PNG: when every sample fits), scaled
+            only with ``convert`` (an 8-bit file too), otherwise a ConfigError naming both fixes.
         convert: allow explicit conversions, each lossy or a guess at intent, so none is silent:
             16-bit samples keep their top 8 bits (PNG as stored; PPM/PGM with a maxval other than
             255 are first rescaled to the full range by Pillow); RGBA/LA/PA drop alpha; palette
@@ -90,10 +99,12 @@ def load_image(
             ``convert=True``, or an image over ``max_pixels``. The message is one line.
     """
     p = Path(path)
-    if mode not in ("auto", "gray8", "rgb888"):
-        raise ConfigError(f"load_image: mode = {mode!r}; use 'auto', 'gray8' or 'rgb888'")
+    if mode != "auto" and mode not in PIXEL_FORMAT_BITS:
+        raise ConfigError(f"load_image: mode = {mode!r}; use 'auto' or a pixel format ({suggest(str(mode), list(PIXEL_FORMAT_BITS))})")
     if not p.is_file():
         raise _fail(p, "no such file", "check the path")
+    if mode != "auto" and sample_bits(mode) != 8:
+        return _load_at_width(p, mode, convert, max_pixels, setting)
     im = _open_guarded(p, max_pixels, setting)
     try:
         if im.format not in _READ_FORMATS:
@@ -102,6 +113,44 @@ def load_image(
     finally:
         im.close()
     return arr
+
+
+def _load_at_width(p: Path, mode: str, convert: bool, max_pixels: int, setting: str) -> np.ndarray:
+    """:func:`load_image` for a pixel format whose samples are not 8 bits wide."""
+    bits, rgb = sample_bits(mode), is_rgb(mode)
+    top = (1 << bits) - 1
+    wide = read_wide(p, max_pixels)
+    if wide is None:
+        arr = load_image(p, "rgb888" if rgb else "gray8", convert, max_pixels, setting)
+        if not convert:
+            raise _fail(p, f"has 8-bit samples but {mode} was asked",
+                        f"pass --convert / convert=True to scale 0..255 to 0..{top}, or re-save it with {bits}-bit samples")
+        arr = ((arr.astype(np.int64) * (2 * top) + 255) // 510)
+    else:
+        arr = _fit_width(p, wide, bits, convert).astype(np.int64)
+    if rgb and arr.ndim == 2:
+        if not convert:
+            raise _fail(p, f"is gray but {mode} was asked",
+                        "pass --convert / convert=True to copy gray into R, G and B, or use mode 'auto'")
+        arr = np.repeat(arr[:, :, None], 3, axis=2)
+    elif not rgb and arr.ndim == 3:
+        if not (np.array_equal(arr[..., 0], arr[..., 1]) and np.array_equal(arr[..., 0], arr[..., 2])):
+            raise _fail(p, f"is RGB but {mode} was asked", "load it as RGB and use vkit.model.luma, or re-save it as gray")
+        arr = arr[..., 0]
+    return np.ascontiguousarray(arr, dtype=sample_dtype(bits))
+
+
+def _fit_width(p: Path, wide: WideImage, bits: int, convert: bool) -> np.ndarray:
+    """Wide samples on a ``bits``-bit scale: as they are when the file's maxval is that scale (or, for a
+    16-bit PNG, when every sample fits it); scaled only with ``convert``."""
+    top = (1 << bits) - 1
+    peak = int(wide.pixels.max(initial=0))
+    if wide.maxval == top or (wide.container == "png" and peak <= top):
+        return wide.pixels
+    if convert:
+        return (wide.pixels.astype(np.int64) * (2 * top) + wide.maxval) // (2 * wide.maxval)
+    raise _fail(p, f"has samples up to {peak} on a scale of 0..{wide.maxval}, not the {bits}-bit 0..{top} asked",
+                f"pass --convert / convert=True to scale 0..{wide.maxval} to 0..{top}, or re-save it with maxval {top}")
 
 
 def _open_guarded(p: Path, max_pixels: int, setting: str = "max_pixels") -> Image.Image:

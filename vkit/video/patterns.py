@@ -8,6 +8,7 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from vkit.core.errors import ConfigError
+from vkit.model.luma import sample_dtype
 from vkit.video.killers import killers
 from vkit.video.limits import check_frame_size
 
@@ -26,6 +27,7 @@ __all__ = [
     "flat",
     "conveyor",
     "to_rgb",
+    "to_bits",
 ]
 
 
@@ -147,11 +149,22 @@ def rows(height: int, width: int, stripe: int = 1) -> np.ndarray:
     return np.ascontiguousarray(np.broadcast_to(_stripes(height, stripe)[:, None], (height, width)))
 
 
-def noise(height: int, width: int, seed: int = 0, rgb: bool = False) -> np.ndarray:
-    """Uniform random values 0..255 (numpy PCG64 seeded with ``seed``); RGB draws each channel."""
+def noise(height: int, width: int, seed: int = 0, rgb: bool = False, bits: int = 8) -> np.ndarray:
+    """Uniform random values ``0 .. 2**bits - 1`` (numpy PCG64 seeded with ``seed``); RGB draws each
+    channel. uint8 up to 8 bits, uint16 above."""
     _check_size(height, width)
     shape = (height, width, 3) if rgb else (height, width)
-    return np.random.default_rng(seed).integers(0, 256, size=shape, dtype=np.uint8)
+    return np.random.default_rng(seed).integers(0, 1 << bits, size=shape, dtype=sample_dtype(bits))
+
+
+def to_bits(img: np.ndarray, bits: int) -> np.ndarray:
+    """An 8-bit image on the scale of ``bits``-bit samples: ``floor(v * (2**bits - 1) / 255 + 1/2)``,
+    so black stays 0 and full scale stays full scale (uint8 up to 8 bits, uint16 above)."""
+    dtype = sample_dtype(bits)
+    if bits == 8:
+        return np.asarray(img, dtype=np.uint8)
+    top = (1 << bits) - 1
+    return ((np.asarray(img, dtype=np.int64) * (2 * top) + 255) // 510).astype(dtype)
 
 
 def flat(height: int, width: int, value: int | Sequence[int] = 128, rgb: bool = False) -> np.ndarray:
@@ -445,9 +458,12 @@ PATTERNS: dict[str, Callable[..., np.ndarray]] = {
 
 
 def make_pattern(
-    name: str, height: int, width: int, seed: int = 0, rgb: bool | None = None, **options: Any
+    name: str, height: int, width: int, seed: int = 0, rgb: bool | None = None, bits: int = 8, **options: Any
 ) -> np.ndarray:
-    """Make the pattern called ``name`` (a key of :data:`PATTERNS`).
+    """Make the pattern called ``name`` (a key of :data:`PATTERNS`) at a sample width of ``bits``.
+
+    ``noise`` draws at ``bits`` bits; every other pattern is drawn at 8 bits (its levels, like ``low``
+    and ``high``, on that scale) and scaled with :func:`to_bits`.
 
     Args:
         name: pattern name.
@@ -467,18 +483,20 @@ def make_pattern(
         raise ConfigError(f"pattern: unknown name {name!r}; known patterns are {', '.join(PATTERNS)}") from None
     params = inspect.signature(gen).parameters
     kwargs = dict(options)
-    unknown = [k for k in kwargs if k not in params or k in ("height", "width", "seed", "rgb")]
+    unknown = [k for k in kwargs if k not in params or k in ("height", "width", "seed", "rgb", "bits")]
     if unknown:
-        allowed = [k for k in params if k not in ("height", "width", "seed", "rgb")]
+        allowed = [k for k in params if k not in ("height", "width", "seed", "rgb", "bits")]
         raise ConfigError(
             f"pattern {name!r}: unknown option(s) {', '.join(unknown)}; it takes {', '.join(allowed) or 'no options'}"
         )
     check_frame_size(f"pattern {name!r}", "size", width, height)
     if "seed" in params:
         kwargs["seed"] = seed
+    if "bits" in params:
+        return gen(height, width, rgb=bool(rgb), bits=bits, **kwargs)
     if "rgb" in params:
         if rgb is not None:
             kwargs["rgb"] = rgb
-        return gen(height, width, **kwargs)
+        return to_bits(gen(height, width, **kwargs), bits)
     out = gen(height, width, **kwargs)
-    return to_rgb(out) if rgb else out
+    return to_bits(to_rgb(out) if rgb else out, bits)

@@ -8,6 +8,7 @@ from typing import Sequence
 
 import numpy as np
 
+from vkit.core.vocab import is_rgb
 from vkit.core.errors import ConfigError
 from vkit.core.validate import fail, want_int
 from vkit.video.limits import check_case_size
@@ -37,7 +38,7 @@ def stimulus_frames(spec: PipelineSpec, items: Sequence[str], width: int, height
                     seed: int = 1) -> np.ndarray:
     """Frames of ``items`` in ``spec``'s input format: a pattern name (``name`` or ``name:seed``, frame k
     with seed + k, as a case makes them) or an image file (centre-cropped to ``width`` x ``height``)."""
-    rgb = spec.input == "rgb888"
+    rgb = is_rgb(spec.input)
     want_int("vkit strength", "--frames", frames, 1)
     check_case_size("vkit strength", frames, width, height)
     out = []
@@ -63,7 +64,7 @@ def stimulus_frames(spec: PipelineSpec, items: Sequence[str], width: int, height
 
 
 def _candidates(spec: PipelineSpec, width: int, height: int) -> list[tuple[str, np.ndarray]]:
-    rgb = spec.input == "rgb888"
+    rgb = is_rgb(spec.input)
     seeds = range(len(KILLER_PARTS) * _CANDIDATE_SEEDS)
     out = [(f"killers:{s}", make_pattern("killers", height, width, seed=s, rgb=rgb)) for s in seeds]
     out += [(f"noise:{s}", make_pattern("noise", height, width, seed=s, rgb=rgb)) for s in range(_CANDIDATE_SEEDS)]

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from vkit.video.formats import pixel_bits, pixel_words
+from vkit.video.bus import BusLayout
 from vkit.video.timing import ClockSchedule, StallPattern
 
 __all__ = [
@@ -44,7 +44,7 @@ def _garbage(seed: int, bits: int, n: int) -> np.ndarray:
 def video_data_words(
     sched: ClockSchedule,
     frames: np.ndarray,
-    pixel_format: str,
+    bus: BusLayout | str,
     *,
     blanking: str = "random",
     blanking_value: int = 0,
@@ -53,9 +53,12 @@ def video_data_words(
     """The data-bus word of every clock of ``sched``.
 
     Args:
-        sched: the per-clock schedule (:func:`vkit.video.timing.schedule`) of ``frames``.
-        frames: uint8 ``(N, H, W)`` (gray8) or ``(N, H, W, 3)`` (rgb888) of the timing's active size.
-        pixel_format: "gray8" or "rgb888".
+        sched: the per-clock schedule (:func:`vkit.video.timing.schedule`) of ``frames``, on the timing
+            counted in bus clocks (:func:`vkit.video.bus.clock_timing`) when the bus carries several
+            pixels a clock.
+        frames: ``(N, H, W)`` (grey) or ``(N, H, W, 3)`` (RGB) samples of the active size in pixels.
+        bus: the word layout (:class:`vkit.video.bus.BusLayout`), or a pixel format name for one pixel a
+            clock in RGB order.
         blanking: "random": seeded random words on every clock that carries no pixel; "constant":
             ``blanking_value`` there, but still random words on stall clocks (data-enable high, valid low).
         blanking_value: the constant blanking word, >= 0.
@@ -64,7 +67,8 @@ def video_data_words(
     Returns:
         int64 array of length ``sched.n_clocks``.
     """
-    garbage = _garbage(seed, pixel_bits(pixel_format), sched.n_clocks)
+    layout = BusLayout.of(bus)
+    garbage = _garbage(seed, layout.word_bits, sched.n_clocks)
     if blanking == "random":
         words = garbage
     else:
@@ -72,7 +76,7 @@ def video_data_words(
         stall = sched.de & ~sched.valid
         words[stall] = garbage[stall]
     pix = sched.x >= 0
-    words[pix] = pixel_words(frames, pixel_format)[sched.frame[pix], sched.y[pix], sched.x[pix]]
+    words[pix] = layout.bus_words(frames)[sched.frame[pix], sched.y[pix], sched.x[pix]]
     return words
 
 
@@ -133,7 +137,7 @@ class StreamTransfers:
 
 def stream_transfers(
     frames: np.ndarray,
-    pixel_format: str,
+    bus: BusLayout | str,
     gaps: StallPattern | None = None,
     *,
     blanking: str = "random",
@@ -143,17 +147,20 @@ def stream_transfers(
     """The stream source's transfers: pixels in raster order with their markers, idle gaps and idle words.
 
     Args:
-        frames: uint8 ``(N, H, W)`` or ``(N, H, W, 3)``.
-        pixel_format: "gray8" or "rgb888".
+        frames: ``(N, H, W)`` or ``(N, H, W, 3)`` samples.
+        bus: the word layout, or a pixel format name (one pixel a transfer). With several pixels a
+            transfer, a transfer carries one group, and ``eol`` marks the group that ends a line.
         gaps: chance and longest length of an idle gap before each pixel (seeded), or None for none.
         blanking: "random" (seeded random idle words) or "constant" (``blanking_value``).
         blanking_value: the constant idle word.
         seed: seed of the random idle words (numpy PCG64).
     """
-    n, h, w = (int(v) for v in frames.shape[:3])
-    data = pixel_words(frames, pixel_format).reshape(-1)
+    layout = BusLayout.of(bus)
+    words = layout.bus_words(frames)
+    n, h, w = (int(v) for v in words.shape)
+    data = words.reshape(-1)
     gap_arr = gaps.draw(n, h, w) if gaps is not None else np.zeros((n, h, w), np.int64)
-    idle = _garbage(seed, pixel_bits(pixel_format), data.size)
+    idle = _garbage(seed, layout.word_bits, data.size)
     if blanking != "random":
         idle[:] = int(blanking_value)
     index = np.arange(data.size)

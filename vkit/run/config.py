@@ -47,7 +47,7 @@ from vkit.core.validate import (
     want_str_list,
     want_table,
 )
-from vkit.core.vocab import DRIVE_MODES, VERILOG_SUFFIXES, VHDL_SUFFIXES, WAVE_MODES
+from vkit.core.vocab import COMPONENT_ORDERS, DRIVE_MODES, VERILOG_SUFFIXES, VHDL_SUFFIXES, WAVE_MODES
 from vkit.model import pipeline
 from vkit.sim.signals import FAMILY_ROLES
 from vkit.video.formats import PIXEL_FORMAT_BITS
@@ -56,6 +56,7 @@ from vkit.sim.simulators import LANGUAGES, SIMULATORS
 from vkit.video.images import DEFAULT_MAX_PIXELS, load_image
 from vkit.video.limits import check_case_size, check_frame_size
 from vkit.video.patterns import PATTERNS
+from vkit.video.bus import LANE_COUNTS, LANE_ORDERS, BusLayout
 from vkit.video.timing import PRESETS as TIMING_PRESETS
 from vkit.video.timing import VideoTiming, tiny
 
@@ -99,11 +100,12 @@ _DESIGN_KEYS = (
     "frame_parameters", "defines", "spec", "spec_file", "ports", "reset_active_high", "reset_cycles",
     "clock_period_ns", "latency_clocks", "latency_timing", "pipeline_clocks", "tolerance_lsb",
     "simulators", "expect", "description", "include_dirs", "build_args", "align", "timeout_clocks",
+    "component_order", "pixels_per_clock", "lane_order",
 )
 _MANIFEST_DESIGN_KEYS = (
     "top", "sources", "language", "family", "spec", "pixel_format", "parameters", "file_parameters",
     "frame_parameters", "ports", "pipeline_clocks", "latency_clocks", "latency_timing", "simulators",
-    "bugs", "defines", "description",
+    "bugs", "defines", "description", "component_order", "pixels_per_clock", "lane_order",
 )
 _BUG_KEYS = ("define", "description", "expect", "needs")
 _IMPORT_KEYS = ("manifest", "use", "bugs", "set")
@@ -268,7 +270,11 @@ class DesignConfig:
         sources: absolute source paths in compile order.
         language: ``"verilog"`` or ``"vhdl"``.
         family: ``"video"`` or ``"stream"``.
-        pixel_format: input format, ``"gray8"`` or ``"rgb888"``.
+        pixel_format: input format: ``gray<bits>`` or ``rgb<bits><bits><bits>``, 1..16 bits a sample
+            (``gray8``, ``gray10``, ``rgb888``, ``rgb121212``).
+        component_order: order of R, G, B in a pixel's field of the data word, most significant first.
+        pixels_per_clock: pixels the data buses carry a clock (1, 2, 4, 8); timings stay in pixels.
+        lane_order: ``"first_low"`` (first pixel of a clock in the least significant lane) or ``"first_high"``.
         parameters: Verilog parameters / VHDL generics.
         file_parameters: string parameters naming a file (absolute path; quoted for Verilog at build).
         frame_parameters: ``"height"``/``"width"`` -> parameter that must follow the frame size.
@@ -323,6 +329,13 @@ class DesignConfig:
     build_args: list[str] = field(default_factory=list)
     align: str = "exact"
     timeout_clocks: int | None = None
+    component_order: str = "RGB"
+    pixels_per_clock: int = 1
+    lane_order: str = "first_low"
+
+    def bus_layout(self) -> BusLayout:
+        """How the design's data words hold pixels (:class:`vkit.video.bus.BusLayout`)."""
+        return BusLayout(self.pixel_format, self.component_order, self.pixels_per_clock, self.lane_order)
 
     def pipeline_spec(self) -> pipeline.PipelineSpec:
         """The :class:`vkit.model.pipeline.PipelineSpec` this design implements.
@@ -460,6 +473,14 @@ def _int_from(lo: int) -> _Reader:
 
 def _choice(choices: Sequence[str]) -> _Reader:
     return lambda where, key, value: want_choice(where, key, value, choices)
+
+
+def _lanes(where: str, key: str, value: Any) -> int:
+    """Pixels a clock: one of :data:`vkit.video.bus.LANE_COUNTS`."""
+    lanes = want_int(where, key, value, 1)
+    if lanes not in LANE_COUNTS:
+        raise fail(where, key, value, "not a lane count", f"use one of {', '.join(map(str, LANE_COUNTS))}")
+    return lanes
 
 
 def _positive(where: str, key: str, value: Any) -> float:
@@ -782,6 +803,9 @@ _DESIGN_FIELDS: dict[str, _Reader] = {
     "description": want_str,
     "build_args": want_str_list,
     "align": _choice(("exact", "auto")),
+    "component_order": lambda where, key, value: want_choice(where, key, str(value).upper(), COMPONENT_ORDERS),
+    "pixels_per_clock": lambda where, key, value: _lanes(where, key, value),
+    "lane_order": _choice(LANE_ORDERS),
 }
 """Design keys that are one checked value each (read the same in a design table and an import's ``set``)."""
 
@@ -813,6 +837,10 @@ def _parse_design(where: str, name: str, data: Mapping[str, Any], base: Path, *,
         d.supported, d.simulators = (sims, None) if manifest else (None, sims)
     if d.language == "vhdl" and d.defines:
         raise ConfigError(f"{where}: defines are Verilog only and this design is VHDL; use parameters (generics)")
+    try:
+        d.bus_layout()
+    except ConfigError as exc:
+        raise ConfigError(f"{where}: {exc}") from None
     return d
 
 

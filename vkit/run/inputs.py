@@ -14,7 +14,6 @@ from vkit.run.config import IMAGE_PIXELS_SETTING, Case
 from vkit.sim.case import SimCase
 from vkit.sim.hdlports import HdlDesign, Port, find_design
 from vkit.sim.signals import CONTROL_ROLES
-from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.images import load_image
 from vkit.video.patterns import make_pattern
 
@@ -150,17 +149,20 @@ def _check_data_width(case: Case, role: str, port: Port) -> None:
     """``in_data`` holds the pixel format; ``out_data`` is exactly as wide as the spec's output pixel."""
     d = case.design
     where = f"design {d.name}"
-    need = PIXEL_FORMAT_BITS.get(d.pixel_format)
-    if role == "in_data" and need is not None and port.width is not None and port.width < need:
+    bus = d.bus_layout()
+    need = bus.word_bits
+    lanes = f" x {bus.lanes} pixels a clock" if bus.lanes > 1 else ""
+    if role == "in_data" and port.width is not None and port.width < need:
         raise fail(where, "ports.in_data", port.name, f"{port.width} bits wide but pixel_format "
-                   f"{d.pixel_format} needs {need} bits", "widen the port or use a narrower pixel_format")
+                   f"{d.pixel_format}{lanes} needs {need} bits", "widen the port or use a narrower pixel_format")
     if role == "out_data" and port.width is not None:
-        bits = d.pipeline_spec().output.bits
+        bits = d.pipeline_spec().output.bits * bus.lanes
         if port.width != bits:
             side = "narrower" if port.width < bits else "wider"
             raise fail(where, "ports.out_data", port.name, f"{port.width} bits wide, {side} than the "
-                       f"{bits}-bit output pixel of spec {d.pipeline_spec().name}",
-                       f"make the port {bits} bits wide or set [output] bits = {port.width} in the spec")
+                       f"{bits}-bit output word ({d.pipeline_spec().output.bits}-bit pixel{lanes}) of spec "
+                       f"{d.pipeline_spec().name}",
+                       f"make the port {bits} bits wide or set [output] bits = {port.width // bus.lanes} in the spec")
 
 
 def make_sim_case(case: Case, sim_dir: Path, frames: np.ndarray) -> SimCase:
@@ -182,4 +184,5 @@ def make_sim_case(case: Case, sim_dir: Path, frames: np.ndarray) -> SimCase:
         clock_period_ns=d.clock_period_ns, reset_active_high=d.reset_active_high, reset_cycles=d.reset_cycles,
         timeout_clocks=d.timeout_clocks, simulator=case.simulator, label=case.id,
         parameters=d.build_parameters(case.width, case.height),
+        component_order=d.component_order, pixels_per_clock=d.pixels_per_clock, lane_order=d.lane_order,
     )

@@ -11,6 +11,7 @@ from typing import Any
 import numpy as np
 
 from vkit.core.vocab import is_rgb, sample_bits
+from vkit.video.bus import BusLayout, clock_timing
 from vkit.model.luma import sample_dtype
 from vkit.core.errors import ConfigError
 from vkit.core.validate import suggest
@@ -81,6 +82,11 @@ class SimCase:
         label: a free name for logs and reports.
         parameters: parameter/generic values the design must have been built with; the per-clock test
             compares the integer ones with what the simulator shows before it starts.
+        component_order: the colour components in a pixel field, most significant first ("RGB", "BGR", ...).
+        pixels_per_clock: pixels the data buses carry a clock (1, 2, 4, 8); width, height and ``timing``
+            stay in pixels.
+        lane_order: "first_low" (the first pixel of a clock's group in the least significant lane) or
+            "first_high".
     """
 
     family: str
@@ -106,6 +112,9 @@ class SimCase:
     simulator: str | None = None
     label: str = ""
     parameters: dict[str, Any] = field(default_factory=dict)
+    component_order: str = "RGB"
+    pixels_per_clock: int = 1
+    lane_order: str = "first_low"
     _frames_cache: np.ndarray | None = field(default=None, init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -131,8 +140,10 @@ class SimCase:
         self.stall_pattern()
         self.gap_pattern()
         self.backpressure_pattern()
+        self.bus_layout()
         if self.family == "video":
-            t = self.video_timing()
+            t = self.pixel_timing()
+            self.video_timing()
             if (t.h_active, t.v_active) != (self.width, self.height):
                 raise ConfigError(
                     f"case timing is {t.h_active}x{t.v_active} but width x height is {self.width}x{self.height}; "
@@ -145,11 +156,21 @@ class SimCase:
         """The signals as a :class:`SignalMap` of this family."""
         return SignalMap(dict(self.signals), self.family)
 
-    def video_timing(self) -> VideoTiming:
-        """The timing (``tiny(width, height)`` when none is given)."""
+    def pixel_timing(self) -> VideoTiming:
+        """The timing counted in pixels, as given (``tiny(width, height)`` when none is given)."""
         if self.timing is None:
             return tiny(self.width, self.height)
         return VideoTiming.from_dict(self.timing)
+
+    def video_timing(self) -> VideoTiming:
+        """The timing counted in bus clocks, the one the source plays (:func:`vkit.video.bus.clock_timing`);
+        the pixel timing itself at one pixel a clock."""
+        given = None if self.timing is None else VideoTiming.from_dict(self.timing)
+        return clock_timing(given, self.pixels_per_clock, self.width, self.height)
+
+    def bus_layout(self) -> BusLayout:
+        """How pixels sit in the data words (:class:`vkit.video.bus.BusLayout`)."""
+        return BusLayout(self.pixel_format, self.component_order, self.pixels_per_clock, self.lane_order)
 
     def stall_pattern(self) -> StallPattern | None:
         """Video stalls as a :class:`StallPattern`, or None."""

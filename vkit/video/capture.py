@@ -51,6 +51,10 @@ class RunFacts:
     """Clock of the first output pixel, clocks."""
     latency_clocks: int | None = None
     """First output pixel clock minus first input pixel clock, clocks."""
+    pixels_per_clock: int | None = None
+    """Pixels the data buses carried a clock (the capture holds one sample a pixel); None: one."""
+    out_data_bits: int | None = None
+    """Width of the output data word, bits (all lanes of it)."""
     clocks_run: int | None = None
     """Clocks the run lasted, clocks."""
     timed_out: bool = False
@@ -87,6 +91,11 @@ class RunFacts:
     ended by itself."""
     extra: dict[str, Any] = field(default_factory=dict)
     """Keys of a saved capture that are none of the fields above (kept so they are saved again)."""
+
+    @property
+    def latency_pixels(self) -> int | None:
+        """:attr:`latency_clocks` counted in pixels (clocks times pixels a clock), or None."""
+        return None if self.latency_clocks is None else self.latency_clocks * (self.pixels_per_clock or 1)
 
     @property
     def stop_clocks(self) -> int | None:

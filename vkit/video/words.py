@@ -98,15 +98,17 @@ def sync_counts(hsync_edges: np.ndarray, vsync_edges: np.ndarray) -> list[int]:
     return [int(b) for b in np.diff(np.concatenate(([0], bounds)))]
 
 
-def video_input_facts(sched: ClockSchedule) -> dict[str, object]:
-    """The Capture meta the video input side knows before the run: frames, first valid clock, stalls, syncs."""
+def video_input_facts(sched: ClockSchedule, lanes: int = 1) -> dict[str, object]:
+    """The Capture meta the video input side knows before the run: frames, first valid clock, stalls, syncs.
+
+    With ``lanes`` pixels a clock, a stalled clock's column is given in pixels (its group's first pixel)."""
     t = sched.timing
     vs_edges = leading_edges(sched.vsync, t.vsync_active_high)
     hs_edges = leading_edges(sched.hsync, t.hsync_active_high)
     return {
         "frames_sent": int(sched.frames),
         "first_input_clock": int(np.argmax(sched.valid)) if sched.valid.any() else None,
-        "stall_pixels": sched.stall_pixels.tolist(),
+        "stall_pixels": (sched.stall_pixels * np.array([1, 1, lanes])).tolist() if lanes > 1 else sched.stall_pixels.tolist(),
         "input_vsync_count": int(vs_edges.size),
         "input_hsync_per_frame": sync_counts(hs_edges, vs_edges),
     }

@@ -41,6 +41,7 @@ from vkit.core.errors import ConfigError, DutError
 from vkit.sim.case import SimCase
 from vkit.sim.fast.stimulus import StimulusFiles, write_stimulus
 from vkit.sim.fast.wire import CAPTURE_MAGIC, CAPTURE_ROLES, CAPTURE_VERSION, FAMILY_CODES, capture_data_words
+from vkit.video.bus import unpack_capture
 from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, RunFacts
 
 __all__ = [
@@ -98,7 +99,10 @@ def parse_capture_text(
     pos_p = np.flatnonzero(kind_a == ord("P"))
     clock_all = np.array(clocks, dtype=np.int64) if clocks else np.zeros(0, np.int64)
     values, xz_data = _hex_values(np.array(args, dtype="S")[pos_p] if pos_p.size else [])
-    return _build(family, clock_all, kind_a, lambda i: args[i], values, xz_data, height, split_on_height, facts)
+    cap = _build(family, clock_all, kind_a, lambda i: args[i], values, xz_data, height, split_on_height, facts)
+    if len(head) > 5 and head[5].isdigit():
+        cap.facts.out_data_bits = int(head[5])
+    return cap
 
 
 def parse_capture_binary(
@@ -149,7 +153,9 @@ def parse_capture_binary(
         c = int(code[i])
         return CAPTURE_ROLES[c] if 0 < c < len(CAPTURE_ROLES) else "-"
 
-    return _build(family, clock_all, kind_a, arg, values, int(xz.sum()), height, split_on_height, facts)
+    cap = _build(family, clock_all, kind_a, arg, values, int(xz.sum()), height, split_on_height, facts)
+    cap.facts.out_data_bits = width
+    return cap
 
 
 def is_binary_capture(head: bytes) -> bool:
@@ -465,4 +471,11 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
     )
     if cap.facts.timed_out and cap.facts.timeout_clocks is None:
         cap.facts.timeout_clocks = int(cap.facts.clocks_run or 0)
+    bus = case.bus_layout()
+    if bus.lanes > 1:
+        cap.facts.pixels_per_clock = bus.lanes
+        if cap.facts.out_data_bits is None:
+            raise ConfigError(f"capture file {str(path)!r} does not name its data width, which {bus.lanes} pixels a clock "
+                              "need to split the words; rebuild the harness with this vkit")
+        cap = unpack_capture(cap, bus, cap.facts.out_data_bits)
     return cap

@@ -29,7 +29,6 @@ from vkit.sim.fast.wire import (
     video_word_fields,
     word_bytes,
 )
-from vkit.video.formats import pixel_bits
 from vkit.video.timing import ClockSchedule, schedule
 from vkit.video.words import StreamTransfers, ready_levels, stream_transfers, video_data_words, video_input_facts
 
@@ -73,7 +72,7 @@ def stimulus_words_needed(case: SimCase) -> int:
     """Player memory words the case needs (video: clocks of all frames; stream: transfers)."""
     n = case.frame_count()
     if case.family != "video":
-        return n * case.width * case.height
+        return n * case.width * case.height // case.pixels_per_clock
     t = case.video_timing()
     stalls = case.stall_pattern()
     if stalls is None or stalls.probability == 0:
@@ -85,14 +84,14 @@ def video_schedule_and_words(case: SimCase) -> tuple[ClockSchedule, np.ndarray]:
     """The per-clock schedule and data-bus word of every clock, as the per-clock source drives them."""
     frames = case.load_frames()
     sched = schedule(case.video_timing(), int(frames.shape[0]), case.stall_pattern())
-    words = video_data_words(sched, frames, case.pixel_format, blanking=case.blanking,
+    words = video_data_words(sched, frames, case.bus_layout(), blanking=case.blanking,
                              blanking_value=case.blanking_value, seed=case.seed)
     return sched, words
 
 
 def stream_stimulus(case: SimCase) -> StreamTransfers:
     """The stream family's transfers (pixels, markers, gaps, idle words), as the per-clock source sends them."""
-    transfers = stream_transfers(case.load_frames(), case.pixel_format, case.gap_pattern(), blanking=case.blanking,
+    transfers = stream_transfers(case.load_frames(), case.bus_layout(), case.gap_pattern(), blanking=case.blanking,
                                  blanking_value=case.blanking_value, seed=case.seed)
     if transfers.gaps.max(initial=0) >= (1 << GAP_BITS):
         raise ConfigError(f"stream_gaps: a gap of {int(transfers.gaps.max())} clocks exceeds {(1 << GAP_BITS) - 1}; "
@@ -166,7 +165,7 @@ class StimulusFiles:
         ready_words: entries in ``ready`` (1 for video).
         drain: clocks captured after the stimulus.
         timeout: harness timeout in clocks from clock 0 (0 = none).
-        expect_pixels: output pixels expected (frames x width x height).
+        expect_pixels: output words expected (frames x width x height / pixels a clock).
         input_meta: Capture meta the input side knows (frames_sent, first_input_clock,
             stall_pixels, input_vsync_count, input_hsync_per_frame).
         ready_levels: stream ready pattern (bool array), for the back-pressure pixels; None for video.
@@ -223,12 +222,12 @@ def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout
         stim = write_hex(out / "stim.hex", pack_fields(fields), video_word_bits(in_width))
     else:
         stim = write_words(out / "stim.bin", fields)
-    meta = video_input_facts(sched)
+    meta = video_input_facts(sched, case.pixels_per_clock)
     first = meta["first_input_clock"]
     timeout = int(timeout_rel) + (first or 0) if timeout_rel else 0
     t = sched.timing
     return StimulusFiles(stim, None, int(sched.n_clocks), 1, drain_clocks(case), timeout,
-                         int(sched.frames) * case.width * case.height, meta, None, language,
+                         int(sched.frames) * case.width * case.height // case.pixels_per_clock, meta, None, language,
                          bool(t.hsync_active_high), bool(t.vsync_active_high))
 
 
@@ -236,7 +235,7 @@ def _write_stream(case: SimCase, out: Path, in_width: int, language: str, timeou
     """Stream: one word per transfer, and the sink's ready pattern."""
     if language != "verilog":
         raise ConfigError("stimulus: the stream family has a Verilog harness only; use a Verilog simulator")
-    bits = pixel_bits(case.pixel_format)
+    bits = case.bus_layout().word_bits
     if in_width != bits:
         raise ConfigError(f"stimulus: stream input bus is {in_width} bits but the pixel format has {bits}; "
                           "give a design whose input width matches the pixel format")
@@ -265,7 +264,7 @@ def write_stimulus(case: SimCase, out_dir: str | Path, in_width: int | None = No
         raise ConfigError(f"stimulus: language {language!r} is not known; use 'verilog' or 'vhdl'")
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
-    width = int(in_width or pixel_bits(case.pixel_format))
+    width = int(in_width or case.bus_layout().word_bits)
     write = _write_video if case.family == "video" else _write_stream
     return write(case, out, width, language, case.effective_timeout_clocks())
 

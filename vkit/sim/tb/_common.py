@@ -11,6 +11,7 @@ from cocotb.triggers import ClockCycles, Event, RisingEdge
 from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, CaptureBuilder, RunFacts
 from vkit.core.errors import ConfigError
 from vkit.sim.signals import SignalMap
+from vkit.video.bus import BusLayout
 from vkit.video.formats import pixel_bits
 from vkit.video.words import BLANKING_MODES
 
@@ -183,8 +184,10 @@ class _Component:
         await wait_reset_released(self._clock, self._reset, self.reset_active_high)
 
 
-def _in_data_bits(pixel_format: str | None) -> dict[str, int] | None:
-    """The ``data_bits`` a source resolves its map with: ``in_data`` of the format's width, or None to infer."""
+def _in_data_bits(pixel_format: str | None, bus: BusLayout | None = None) -> dict[str, int] | None:
+    """The ``data_bits`` a source resolves its map with: ``in_data`` of the bus word's width, or None to infer."""
+    if bus is not None:
+        return {"in_data": bus.word_bits}
     return {"in_data": pixel_bits(pixel_format)} if pixel_format else None
 
 
@@ -196,10 +199,14 @@ class _Source(_Component):
     """
 
     def _init_source(self, pixel_format: str | None, seed: int, stats: RunFacts | None,
-                     blanking: str = "random", blanking_value: int = 0) -> None:
+                     blanking: str = "random", blanking_value: int = 0, bus: BusLayout | None = None) -> None:
         if blanking not in BLANKING_MODES:
             raise ConfigError(f"blanking = {blanking!r}; use 'random' or 'constant'")
-        self.pixel_format = pixel_format
+        if bus is not None and pixel_format is not None and bus.pixel_format != pixel_format:
+            raise ConfigError(f"source: pixel_format {pixel_format!r} and bus {bus.pixel_format!r} disagree; give one of them")
+        self.bus = bus
+        """The word layout (component order, pixels a clock); None: one pixel a clock of the frames' format."""
+        self.pixel_format = pixel_format if bus is None else bus.pixel_format
         self.seed = int(seed)
         self.blanking = blanking
         self.blanking_value = int(blanking_value)
@@ -207,13 +214,18 @@ class _Source(_Component):
         self.clocks = 0
         """Rising edges seen by the last ``send`` so far."""
 
+    def _layout(self, fmt: str) -> BusLayout:
+        """The word layout of frames of format ``fmt``: the one given, or one pixel a clock."""
+        return self.bus if self.bus is not None else BusLayout(fmt)
+
     def _check_data_width(self, fmt: str) -> None:
-        """Raise ConfigError when the ``in_data`` port is narrower than pixel format ``fmt`` needs."""
+        """Raise ConfigError when the ``in_data`` port is narrower than the bus word of ``fmt`` needs."""
         width = len(self._h["in_data"])
-        if width < pixel_bits(fmt):
+        need = self._layout(fmt).word_bits
+        if width < need:
             raise ConfigError(
                 f"role 'in_data' -> port {self.signals.roles['in_data']!r} is {width} bits wide but the pixel "
-                f"format {fmt} needs {pixel_bits(fmt)} bits; widen the port or send gray8 frames"
+                f"format {fmt} needs {need} bits; widen the port or send gray8 frames"
             )
 
 
@@ -231,6 +243,11 @@ class _FrameMonitor(_Component):
 
     _EVENT_KEYS: tuple[str, ...] = ("xz_control",)
     """:class:`RunFacts` fields of the event lists bounded by :data:`MAX_EVENTS`."""
+
+    @property
+    def data_bits(self) -> int:
+        """Width of the ``out_data`` port, bits (a word of several pixels when the bus carries lanes)."""
+        return len(self._h["out_data"])
 
     def _init_monitor(
         self, expected_height: int | None, expected_width: int | None, facts: RunFacts | None, **family_keys: Any

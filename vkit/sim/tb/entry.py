@@ -41,7 +41,7 @@ from cocotb.utils import get_sim_time
 from vkit.video.capture import Capture, RunFacts, lines_file_for
 from vkit.core.errors import ConfigError
 from vkit.sim.case import CASE_ENV, SimCase, error_file_for
-from vkit.video.formats import pixel_bits
+from vkit.video.bus import unpack_capture
 from vkit.sim.tb.built import check_built_parameters
 from vkit.sim.tb.stream import StreamMonitor, StreamSink, StreamSource
 from vkit.sim.tb.video import VideoMonitor, VideoSource
@@ -72,11 +72,12 @@ def _save(capture: Capture, case_capture_file: str | Path, error: str | None) ->
 def _components(dut: Any, case: SimCase, facts: RunFacts) -> tuple[Any, Any, StreamSink | None, Any, Any]:
     """The monitor, source and (stream) sink of ``case`` on ``dut``, and the clock and reset handles."""
     smap = case.signal_map()
-    handles = smap.resolve(dut, {"in_data": pixel_bits(case.pixel_format)})
+    bus = case.bus_layout()
+    handles = smap.resolve(dut, {"in_data": bus.word_bits})
     clock, reset = handles["clock"], handles.get("reset")
     common = dict(expected_height=case.height, expected_width=case.width, reset_active_high=case.reset_active_high,
                   facts=facts)
-    source_options = dict(pixel_format=case.pixel_format, blanking=case.blanking, blanking_value=case.blanking_value,
+    source_options = dict(bus=bus, blanking=case.blanking, blanking_value=case.blanking_value,
                           seed=case.seed, reset_active_high=case.reset_active_high)
     if case.family == "video":
         timing = case.video_timing()
@@ -85,7 +86,8 @@ def _components(dut: Any, case: SimCase, facts: RunFacts) -> tuple[Any, Any, Str
             hsync_active_high=timing.hsync_active_high, **common,
         )
         source: VideoSource | StreamSource = VideoSource(
-            dut, smap, clock, reset, timing=timing, stalls=case.stall_pattern(), stats=monitor.facts, **source_options,
+            dut, smap, clock, reset, timing=case.pixel_timing(), stalls=case.stall_pattern(), stats=monitor.facts,
+            **source_options,
         )
         return monitor, source, None, clock, reset
     monitor = StreamMonitor(dut, smap, clock, reset, **common)
@@ -178,7 +180,12 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
             sink.stop()
         if monitor is not None:
             monitor.stop()
-        capture = monitor.capture() if monitor is not None else Capture(facts=facts)
+        capture = Capture(facts=facts)
+        if monitor is not None:
+            monitor.facts.out_data_bits = monitor.data_bits
+            if case.pixels_per_clock > 1:
+                monitor.facts.pixels_per_clock = case.pixels_per_clock
+            capture = unpack_capture(monitor.capture(), case.bus_layout(), monitor.data_bits)
         if save:
             _save(capture, case.capture_file, error)
     return capture

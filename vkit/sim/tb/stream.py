@@ -11,6 +11,7 @@ from cocotb.triggers import RisingEdge
 from vkit.sim.signals import SignalMap
 from vkit.sim.tb._common import _Component, _FrameMonitor, _in_data_bits, _Source, bit_reader, word_reader
 from vkit.video.capture import UNKNOWN, RunFacts
+from vkit.video.bus import BusLayout
 from vkit.video.formats import frames_array
 from vkit.video.timing import StallPattern
 from vkit.video.words import READY_CHUNK_CLOCKS, StreamTransfers, ready_chunk, stream_transfers
@@ -41,6 +42,7 @@ class StreamSource(_Source):
         stats: the :class:`~vkit.video.capture.RunFacts` the source writes into (``frames_sent``,
             ``first_input_clock``, ``stall_pixels`` = pixels that came right after a gap); pass the monitor's
             ``facts``.
+        bus: the word layout (component order, pixels a transfer); None: one pixel a transfer.
 
     Clock numbering: clock 0 is the first rising edge after :meth:`send` starts.
     """
@@ -61,10 +63,11 @@ class StreamSource(_Source):
         seed: int = 0,
         reset_active_high: bool = True,
         stats: RunFacts | None = None,
+        bus: BusLayout | None = None,
     ) -> None:
-        bits = _in_data_bits(pixel_format)
+        bits = _in_data_bits(pixel_format, bus)
         super().__init__(dut, signals, clock, reset, data_bits=bits, reset_active_high=reset_active_high)
-        self._init_source(pixel_format, seed, stats, blanking, blanking_value)
+        self._init_source(pixel_format, seed, stats, blanking, blanking_value, bus)
         self.gaps = gaps
         self.sent = 0
         """Words taken by the DUT so far."""
@@ -76,7 +79,7 @@ class StreamSource(_Source):
         """Every transfer of ``frames`` (pixels, markers, gaps, idle words); records the run facts in ``stats``."""
         arr, fmt = frames_array(frames, self.pixel_format)
         self._check_data_width(fmt)
-        t = stream_transfers(arr, fmt, self.gaps, blanking=self.blanking, blanking_value=self.blanking_value,
+        t = stream_transfers(arr, self._layout(fmt), self.gaps, blanking=self.blanking, blanking_value=self.blanking_value,
                              seed=self.seed)
         self.stats.stall_pixels = t.stall_pixels
         self.stats.frames_sent = t.frames

@@ -12,6 +12,7 @@ from vkit.core.errors import ConfigError
 from vkit.sim.signals import SignalMap
 from vkit.sim.tb._common import _FrameMonitor, _in_data_bits, _Source, bit_reader, ticker, word_reader
 from vkit.video.capture import UNKNOWN, RunFacts
+from vkit.video.bus import BusLayout, clock_timing
 from vkit.video.formats import frames_array
 from vkit.video.timing import ClockSchedule, StallPattern, VideoTiming, schedule
 from vkit.video.words import video_data_words, video_input_facts
@@ -34,7 +35,8 @@ class VideoSource(_Source):
             inactive.
         timing: the video timing (required).
         stalls: optional :class:`~vkit.video.timing.StallPattern` (needs ``in_valid``).
-        pixel_format: "gray8" (8 bits) or "rgb888" (24 bits); None infers it from the first frames sent.
+        pixel_format: a pixel format name (``gray8``, ``rgb101010``); None infers gray8 or rgb888 from the
+            first frames sent.
         blanking: "random" drives seeded random words on ``in_data`` outside active video; "constant" drives
             ``blanking_value``. Stall clocks always carry seeded random words (the design must ignore them).
         blanking_value: the constant blanking word, >= 0.
@@ -43,6 +45,8 @@ class VideoSource(_Source):
         stats: the :class:`~vkit.video.capture.RunFacts` the source writes its run facts into
             (``frames_sent``, ``first_input_clock``, ``stall_pixels``, ``input_vsync_count``,
             ``input_hsync_per_frame``); pass the monitor's :attr:`VideoMonitor.facts` so they land in its capture.
+        bus: the word layout (:class:`vkit.video.bus.BusLayout`: component order, pixels a clock); the
+            timing stays in pixels and is divided into clocks here. None: one pixel a clock.
 
     Clock numbering: clock 0 is the first rising edge after :meth:`send` starts; a value of schedule
     entry ``i`` is sampled by the design on clock ``i``.
@@ -65,12 +69,13 @@ class VideoSource(_Source):
         seed: int = 0,
         reset_active_high: bool = True,
         stats: RunFacts | None = None,
+        bus: BusLayout | None = None,
     ) -> None:
         if not isinstance(timing, VideoTiming):
             raise ConfigError("VideoSource: timing must be a vkit.video.timing.VideoTiming; build one with preset() or tiny()")
-        bits = _in_data_bits(pixel_format)
+        bits = _in_data_bits(pixel_format, bus)
         super().__init__(dut, signals, clock, reset, data_bits=bits, reset_active_high=reset_active_high)
-        self._init_source(pixel_format, seed, stats, blanking, blanking_value)
+        self._init_source(pixel_format, seed, stats, blanking, blanking_value, bus)
         if stalls is not None and stalls.probability > 0 and "in_valid" not in self._h:
             raise ConfigError(
                 "stalls need a pixel-valid input but role 'in_valid' is not mapped; map in_valid or drop the stalls"
@@ -105,8 +110,9 @@ class VideoSource(_Source):
                 f"frames are {arr.shape[2]}x{arr.shape[1]} but timing {t.name!r} is {t.h_active}x{t.v_active}; "
                 "give frames of the timing's active size or change the timing"
             )
-        sched = schedule(t, int(arr.shape[0]), self.stalls)
-        words = video_data_words(sched, arr, fmt, blanking=self.blanking, blanking_value=self.blanking_value,
+        bus = self._layout(fmt)
+        sched = schedule(clock_timing(t, bus.lanes, t.h_active, t.v_active), int(arr.shape[0]), self.stalls)
+        words = video_data_words(sched, arr, bus, blanking=self.blanking, blanking_value=self.blanking_value,
                                  seed=self.seed)
         return sched, words
 
@@ -119,7 +125,7 @@ class VideoSource(_Source):
         """
         sched, words = self.prepare(frames)
         self.schedule = sched
-        facts = video_input_facts(sched)
+        facts = video_input_facts(sched, self.bus.lanes if self.bus is not None else 1)
         first_valid = facts.pop("first_input_clock")
         self.stats.update(facts)
         await self._reset_released()

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass
 from typing import Any, Callable, Sequence
@@ -1084,6 +1085,39 @@ def _rounding_finding(frames: Sequence[FrameResult], tol: int) -> Finding | None
     return Finding("rounding", msg, ev, share * (1 - density) * _ROUNDING_CONFIDENCE)
 
 
+_LANE_ORDERS_TRIED = 24
+"""Lane orders tried at most (every order of up to 4 lanes; with 8, the first 24 in lexical order)."""
+
+
+def _lane_finding(frames: Sequence[FrameResult], lanes: int) -> Finding | None:
+    """The pixels of each clock's group come out in another lane order: the wrong values are the right
+    ones of another pixel of the same group (lanes swapped or reversed in the output word)."""
+    if lanes < 2:
+        return None
+    usable = [fr for fr in frames if fr.expected.shape[1] % lanes == 0 and fr.value_bad.any()]
+    total = sum(int(fr.value_bad.sum()) for fr in usable)
+    if total < _MIN_TELLING_PIXELS:
+        return None
+    best: tuple[int, tuple[int, ...]] = (0, tuple(range(lanes)))
+    for order in itertools.islice(itertools.permutations(range(lanes)), 1, _LANE_ORDERS_TRIED + 1):
+        explained = 0
+        for fr in usable:
+            h, w = fr.expected.shape
+            moved = fr.expected.reshape(h, w // lanes, lanes)[:, :, list(order)].reshape(h, w)
+            explained += int((fr.value_bad & (fr.actual == moved)).sum())
+        best = max(best, (explained, order))
+    share = best[0] / max(1, total)
+    if share < _EXPLAINED_SHARE:
+        return None
+    order = best[1]
+    wrong = ", ".join(f"lane {k} carries pixel {p}" for k, p in enumerate(order) if k != p)
+    msg = (f"{_pct(share)} of the wrong pixels are the right value of another pixel of the same {lanes}-pixel "
+           f"clock: {wrong} of its group; the output lanes are in another order than the input's "
+           "(lane 0 = the first pixel of a clock; check lane_order and the output word's packing)")
+    return Finding("lanes", msg, {"lanes": lanes, "order": list(order), "explained": best[0], "mismatches": total},
+                   share)
+
+
 def _scattered(frames: Sequence[FrameResult]) -> Finding:
     total = sum(int(fr.value_bad.sum()) for fr in frames)
     checked = sum(int(fr.valid.sum()) for fr in frames)
@@ -1158,7 +1192,8 @@ def diagnose(
     value_failures = sum(int(fr.value_bad.sum()) for fr in frames)
     if value_failures and not line_explained and (shift is None or applied_offset is not None):
         stall_named = cause is not None and cause.kind == "stall"
-        findings += _pixel_findings(frames, border, (stall, back), tolerance_lsb, stall_named)
+        findings += _pixel_findings(frames, border, (stall, back), tolerance_lsb, stall_named,
+                                    facts.pixels_per_clock or 1)
     findings.sort(key=lambda f: -f.confidence)
     return findings
 
@@ -1197,10 +1232,12 @@ def _pixel_findings(
     stalls: tuple[Sequence[Sequence[int]], Sequence[Sequence[int]]],
     tolerance_lsb: int,
     stall_named: bool,
+    lanes: int = 1,
 ) -> list[Finding]:
     """Patterns of the wrong values: border, overflow, stall region (unless a stall was named from the
     stream), rounding; 'scattered' when none fits well. ``stalls`` is ``(input stalls, back-pressure)``."""
     pixel = [
+        _lane_finding(frames, lanes),
         _border_finding(frames, border),
         _overflow_finding(frames),
         None if stall_named else _stall_finding(frames, *stalls),

@@ -44,6 +44,7 @@ KINDS: tuple[str, ...] = (
     "missing",
     "scattered",
     "variant",
+    "lanes",
 )
 """The fixed vocabulary of :attr:`Finding.kind`; other modules rely on these exact words."""
 

@@ -56,7 +56,7 @@ from vkit.sim.simulators import LANGUAGES, SIMULATORS
 from vkit.video.images import DEFAULT_MAX_PIXELS, load_image
 from vkit.video.limits import check_case_size, check_frame_size
 from vkit.video.patterns import PATTERNS
-from vkit.video.bus import LANE_COUNTS, LANE_ORDERS, BusLayout
+from vkit.video.bus import LANE_COUNTS, LANE_ORDERS, BusLayout, tiny_in_pixels
 from vkit.video.timing import PRESETS as TIMING_PRESETS
 from vkit.video.timing import VideoTiming, tiny
 
@@ -1068,13 +1068,15 @@ def dropped_designs(config: Config, simulators: list[str] | None) -> str | None:
     return f"note: --sim {' '.join(requested)} leaves out design(s) {'; '.join(left)}"
 
 
-def _frame_timings(s: _Stimulus, size: tuple[int, int], family: str) -> list[tuple[str, dict[str, Any] | None, int, int]]:
-    """``(timing label, timing dict or None, width, height)`` of each timing a stimulus runs on."""
+def _frame_timings(s: _Stimulus, size: tuple[int, int], family: str,
+                   lanes: int = 1) -> list[tuple[str, dict[str, Any] | None, int, int]]:
+    """``(timing label, timing dict or None, width, height)`` of each timing a stimulus runs on; ``tiny``
+    with ``lanes`` pixels a clock is the tiny timing of the clocks, counted in pixels."""
     out = []
     for label, timing in s.timings:
         width, height = s.size or size
         if timing is None:
-            timing, label = tiny(width, height).to_dict(), f"tiny{width}x{height}"
+            timing, label = tiny_in_pixels(width, height, lanes).to_dict(), f"tiny{width}x{height}"
         else:
             width, height = int(timing["h_active"]), int(timing["v_active"])
             if s.size is not None and (s.size[0] < width or s.size[1] < height):
@@ -1096,7 +1098,7 @@ def _flow_settings(s: _Stimulus, family: str) -> list[tuple[str, Flow, Flow, Flo
 def _design_cases(config: Config, d: DesignConfig, sim: str, s: _Stimulus) -> Iterator[Case]:
     st = config.stimulus
     for seed in s.seeds:
-        for tlabel, timing, width, height in _frame_timings(s, st.size, d.family):
+        for tlabel, timing, width, height in _frame_timings(s, st.size, d.family, d.pixels_per_clock):
             check_case_size(f"{config.path.name} [stimulus]", st.frames, width, height)
             for flabel, stall, gap, bp in _flow_settings(s, d.family):
                 yield Case(

@@ -17,6 +17,8 @@ from vkit.model.pipeline import PRESETS as SPEC_PRESETS
 from vkit.run.config import load_config
 from vkit.sim.hdlports import HdlDesign, Port, find_design, language_of, list_designs
 from vkit.sim.signals import FAMILY_ROLES
+from vkit.core.vocab import pixel_format_name
+from vkit.video.bus import LANE_COUNTS, BusLayout
 from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.synthesis import SCAFFOLD_PATTERNS
 from vkit.sim.simulators import LANGUAGES, SIMULATORS
@@ -155,8 +157,9 @@ class RoleGuess:
             name is), "low" (a partial match or picked as the only port left).
         reset_active_high: reset polarity read from the name (``_n``/``n``/``_b`` suffix = active low),
             None when no reset was found.
-        pixel_format: "gray8" or "rgb888" from the input data width.
+        pixel_format: the pixel format the input data width suggests (``gray8``, ``gray10``, ``rgb888``, ...).
         unmapped: ports that play no role.
+        pixels_per_clock: pixels a clock the input data width suggests (a 16-bit bus: two gray8 pixels).
     """
 
     family: str
@@ -166,6 +169,7 @@ class RoleGuess:
     reset_active_high: bool | None = None
     pixel_format: str = "gray8"
     unmapped: list[str] = field(default_factory=list)
+    pixels_per_clock: int = 1
 
     def __iter__(self):  # type: ignore[no-untyped-def]
         return iter((self.family, self.roles, self.notes))
@@ -255,20 +259,55 @@ def _infer_family(chosen: Mapping[str, _Pick], notes: list[str]) -> str:
     return family
 
 
-def _pixel_format(chosen: Mapping[str, _Pick], notes: list[str]) -> str:
-    """gray8 or rgb888 from the input data port's width (a note when the width is not 8 or 24)."""
+_SAMPLE_BITS_PREFERRED = (8, 10, 12, 16, 14, 9, 11, 13, 15, 7, 6, 5, 4, 3, 2, 1)
+"""Sample widths in the order a guess tries them: the common bus widths first (common practice, no source)."""
+
+
+def _layout_guesses(in_width: int, out_width: int | None) -> list[tuple[str, int]]:
+    """Every (pixel format, pixels a clock) whose word is ``in_width`` bits, likeliest first: common sample
+    widths first, then one pixel a clock before several; an output width that the lane count does not
+    divide rules that count out."""
+    found = []
+    for bits in _SAMPLE_BITS_PREFERRED:
+        for kind in ("gray", "rgb"):
+            fmt = pixel_format_name(kind, bits)
+            for lanes in LANE_COUNTS:
+                if PIXEL_FORMAT_BITS[fmt] * lanes == in_width and (out_width is None or out_width % lanes == 0):
+                    found.append((fmt, lanes))
+    return found
+
+
+def _pixel_format(chosen: Mapping[str, _Pick], notes: list[str]) -> tuple[str, int]:
+    """The pixel format and the pixels a clock the input data port's width suggests (a note says which and why)."""
     if "in_data" not in chosen:
-        return "gray8"
+        return "gray8", 1
     port = chosen["in_data"][1]
     w = port.width
     if w in (8, 24):
-        return "rgb888" if w == 24 else "gray8"
+        return ("rgb888" if w == 24 else "gray8"), 1
     if w is None:
         notes.append(f"in_data: width of {port.name} is {port.width_expr or 'unknown'}; assumed gray8 (8 bits); CONFIRM")
-        return "gray8"
-    pixel_format = "rgb888" if w > 24 else "gray8"
-    notes.append(f"in_data: {port.name} is {w} bits; vkit drives {pixel_format} in its low bits; CONFIRM")
-    return pixel_format
+        return "gray8", 1
+    out = chosen.get("out_data")
+    guesses = _layout_guesses(w, out[1].width if out is not None else None)
+    if not guesses:
+        pixel_format = "rgb888" if w > 24 else "gray8"
+        notes.append(f"in_data: {port.name} is {w} bits; vkit drives {pixel_format} in its low bits; CONFIRM")
+        return pixel_format, 1
+    fmt, lanes = guesses[0]
+    others = ", ".join(f"{f} x {n}" for f, n in guesses[1:4])
+    notes.append(f"in_data: {port.name} is {w} bits: guessed {BusLayout(fmt, lanes=lanes).describe()}"
+                 + (f" (it could also be {others})" if others else "") + "; CONFIRM")
+    return fmt, lanes
+
+
+def _lanes_for(design: HdlDesign, guess: RoleGuess, pixel_format: str) -> int:
+    """Pixels a clock when the input data port holds a whole number of ``pixel_format`` pixels, else 1."""
+    port = next((p for p in design.ports if p.name == guess.roles.get("in_data")), None)
+    bits = PIXEL_FORMAT_BITS[pixel_format]
+    if port is None or port.width is None or port.width % bits or port.width // bits not in LANE_COUNTS:
+        return 1
+    return port.width // bits
 
 
 def guess_roles(ports: Sequence[Port], family: str | None = None) -> RoleGuess:
@@ -310,8 +349,8 @@ def guess_roles(ports: Sequence[Port], family: str | None = None) -> RoleGuess:
     if "reset" in roles:
         reset_high = not chosen["reset"][2].active_low
         notes.append(f"reset: {roles['reset']} taken as active {'high' if reset_high else 'low'} from its name; CONFIRM")
-    pixel_format = _pixel_format(chosen, notes)
-    return RoleGuess(family, roles, notes, confidence, reset_high, pixel_format, [p.name for p in unmapped])
+    pixel_format, lanes = _pixel_format(chosen, notes)
+    return RoleGuess(family, roles, notes, confidence, reset_high, pixel_format, [p.name for p in unmapped], lanes)
 
 
 # -- which preset the design implements ------------------------------------------------------------
@@ -491,7 +530,11 @@ def _design_lines(kit: _Kit, ports_by_name: Mapping[str, Port]) -> list[str]:
     data = guess.roles.get("in_data")
     data_port = ports_by_name.get(data) if data else None
     why_fmt = f"from {data} ({data_port.width if data_port and data_port.width else '?'} bits)" if data else "no input data port found"
-    lines.append(_c(f"pixel_format = {_q(guess.pixel_format)}", f"guessed {why_fmt}: CONFIRM (gray8 or rgb888)"))
+    lines.append(_c(f"pixel_format = {_q(guess.pixel_format)}", f"guessed {why_fmt}: CONFIRM (gray8, gray10, rgb888, ...)"))
+    if guess.pixels_per_clock > 1:
+        layout = BusLayout(guess.pixel_format, lanes=guess.pixels_per_clock).describe()
+        lines.append(_c(f"pixels_per_clock = {guess.pixels_per_clock}", f"guessed {why_fmt}: {layout}; CONFIRM"))
+        lines.append(_c('lane_order = "first_low"', 'the first pixel of a clock in the low bits; "first_high" for the other order'))
     lines.append(_c(f"spec = {_q(kit.spec)}", f"guessed, {kit.spec_reason}: CONFIRM (presets: {', '.join(SPEC_PRESETS)}; or spec_file = \"my_spec.toml\")"))
     if guess.reset_active_high is not None:
         lines.append(_c(f"reset_active_high = {_toml_scalar(guess.reset_active_high)}", f"guessed from {guess.roles['reset']}: CONFIRM"))
@@ -768,6 +811,7 @@ def scaffold(
     if pixel_format is not None and pixel_format != guess.pixel_format:
         notes.append(f"pixel_format: {pixel_format} as given (the data width suggested {guess.pixel_format})")
         guess.pixel_format = pixel_format
+        guess.pixels_per_clock = _lanes_for(design, guess, pixel_format)
     spec_name, reason = _choose_spec(spec, design, all_designs, src_paths, guess, notes)
     kit = _Kit(name, design, src_paths, out, guess, spec_name, reason, sims, params, defs, notes)
     return _write_kit(kit, targets, keep_config=False)

@@ -28,7 +28,7 @@ from vkit.core.vocab import COMPONENT_ORDERS, PIXEL_FORMAT_BITS, is_rgb, sample_
 from vkit.video.capture import UNKNOWN, Capture
 from vkit.video.timing import VideoTiming, tiny
 
-__all__ = ["LANE_COUNTS", "LANE_ORDERS", "MAX_WORD_BITS", "BusLayout", "clock_timing", "unpack_capture"]
+__all__ = ["LANE_COUNTS", "LANE_ORDERS", "MAX_WORD_BITS", "BusLayout", "clock_timing", "tiny_in_pixels", "unpack_capture"]
 
 LANE_COUNTS: tuple[int, ...] = (1, 2, 4, 8)
 """Pixels a clock a bus may carry."""
@@ -163,6 +163,17 @@ def clock_timing(timing: VideoTiming | None, lanes: int, width: int, height: int
                 f"give a timing whose active width and porches divide by {lanes} (e.g. {value - value % lanes + lanes})"
             )
     return replace(timing, **{k: v // lanes for k, v in counts.items()})
+
+
+def tiny_in_pixels(width: int, height: int, lanes: int = 1) -> VideoTiming:
+    """The tiny timing of a bus carrying ``lanes`` pixels a clock, counted in pixels: ``tiny(width // lanes,
+    height)`` with every horizontal count times ``lanes``, named ``tiny{width}x{height}`` (so its porches
+    divide by ``lanes``). At one pixel a clock it is :func:`vkit.video.timing.tiny` itself."""
+    if lanes == 1 or width % lanes:
+        return tiny(width, height)
+    t = tiny(width // lanes, height)
+    return replace(t, h_active=width, h_front_porch=t.h_front_porch * lanes, h_sync=t.h_sync * lanes,
+                   h_back_porch=t.h_back_porch * lanes, name=f"tiny{width}x{height}")
 
 
 def unpack_capture(capture: Capture, layout: BusLayout, bus_bits: int) -> Capture:

@@ -471,6 +471,11 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
     )
     if cap.facts.timed_out and cap.facts.timeout_clocks is None:
         cap.facts.timeout_clocks = int(cap.facts.clocks_run or 0)
+    if case.family == "video":  # a sync output the design does not have is not counted
+        if "out_vsync" not in case.signals:
+            cap.facts.output_vsync_count = None
+        if "out_vsync" not in case.signals or "out_hsync" not in case.signals:
+            cap.facts.output_hsync_per_frame = None
     bus = case.bus_layout()
     if bus.lanes > 1:
         cap.facts.pixels_per_clock = bus.lanes

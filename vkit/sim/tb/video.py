@@ -247,8 +247,11 @@ class VideoMonitor(_FrameMonitor):
                 "video monitor: role 'out_vsync' is not mapped and expected_height is not given; "
                 "map out_vsync or give expected_height so frames can be split"
             )
+        # a sync output the design does not have is not counted (None), so it is not compared with the input's
         self._init_monitor(
-            expected_height, expected_width, facts, de_in_blanking=[], output_vsync_count=0, output_hsync_per_frame=[]
+            expected_height, expected_width, facts, de_in_blanking=[],
+            output_vsync_count=0 if "out_vsync" in self._h else None,
+            output_hsync_per_frame=[] if "out_vsync" in self._h and "out_hsync" in self._h else None,
         )
         self._split_by_height = "out_vsync" not in self._h
         self.vsync_active_high = vsync_active_high
@@ -266,7 +269,8 @@ class VideoMonitor(_FrameMonitor):
 
     def _on_vsync(self) -> None:
         self.facts.output_vsync_count += 1
-        self.facts.output_hsync_per_frame.append(self._hs_count)
+        if self.facts.output_hsync_per_frame is not None:
+            self.facts.output_hsync_per_frame.append(self._hs_count)
         self._hs_count = 0
         if self._lines_in_frame or self._line_pixels:
             self._line_pixels = 0

@@ -27,6 +27,8 @@ _SHOWN_BY = {
     "sobel_tap_sign": "conveyor",
     "stream_ready": "conveyor",
     "de_late": "conveyor",
+    "ring_from_filter": "conveyor",
+    "lanes_swapped": "conveyor",
 }
 
 _CONFIG = """

@@ -48,6 +48,8 @@ class Variation:
         output_overflow: ``"saturate"`` (the spec's) or ``"wrap"`` (the output keeps its low bits).
         output_top: the output's saturation bound, None for the spec's ``2**bits - 1``.
         right_border: None, or the value the window reads beyond the right edge (linear filters only).
+        input_keep_bits: None, or the top bits of each input sample kept (the low ones read as 0), as a
+            path narrower than the input keeps them.
     """
 
     limits: tuple[tuple[str, int, str], ...] = ()
@@ -55,6 +57,7 @@ class Variation:
     output_overflow: str = "saturate"
     output_top: int | None = None
     right_border: int | None = None
+    input_keep_bits: int | None = None
 
 
 NO_VARIATION = Variation()
@@ -187,6 +190,10 @@ def run_plan(plan: ModelPlan, img: np.ndarray, *, keep_stages: bool = True, band
     """:func:`run_model` on a worked-out plan (possibly a mutant's) and a checked image."""
     spec = plan.spec
     band_rows = want_int("run_model", "band_rows", band_rows, 1)
+    keep = plan.variation.input_keep_bits
+    if keep is not None and keep < spec.input_bits:
+        drop = spec.input_bits - keep
+        img = (img >> drop) << drop
     height, width = img.shape[:2]
     names = [n for n in spec.stage_names() if n != "input"]
     kept = names if keep_stages else ["output"]

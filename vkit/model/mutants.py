@@ -98,6 +98,22 @@ def _width_mutants(base: ModelPlan, spec: PipelineSpec) -> Iterator[Mutant]:
                              f"{label} saturating at {bits} bits gives the output a later clamp gives anyway" if same else "")
 
 
+_NARROW_PATH_BITS = 8
+"""The narrower path a wide input is most often squeezed through by mistake: 8-bit samples (common practice, no source)."""
+
+
+def _input_mutants(base: ModelPlan, spec: PipelineSpec) -> Iterator[Mutant]:
+    """Samples wider than 8 bits kept in an 8-bit path: the low bits lost on the way in."""
+    bits = spec.input_bits
+    if bits <= _NARROW_PATH_BITS:
+        return
+    drop = bits - _NARROW_PATH_BITS
+    yield Mutant(f"input.top{_NARROW_PATH_BITS}", "input",
+                 f"{bits}-bit input samples cut to their top {_NARROW_PATH_BITS} bits (low {drop} read as 0)",
+                 f"input samples whose low {drop} bits are not all 0",
+                 _wide(base, variation=Variation(input_keep_bits=_NARROW_PATH_BITS)))
+
+
 def _after(base: ModelPlan, stage: str, value: int) -> int:
     """The output when ``stage`` holds ``value`` (and the other gradient is 0); a monotone map of ``|value|``
     for the stages :func:`_saturation_hidden` asks about."""
@@ -319,7 +335,7 @@ def _filter_mutants(base: ModelPlan, spec: PipelineSpec) -> Iterator[Mutant]:
                              "any non-zero filter sum", plan)
 
 
-_FAMILIES = (_width_mutants, _rounding_mutants, _kernel_mutants, _luma_mutants, _border_mutants,
+_FAMILIES = (_input_mutants, _width_mutants, _rounding_mutants, _kernel_mutants, _luma_mutants, _border_mutants,
              _magnitude_mutants, _output_mutants, _filter_mutants)
 
 

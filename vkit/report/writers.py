@@ -310,6 +310,14 @@ def _diagnosis(v: Mapping[str, Any]) -> dict[str, Any] | None:
     return d
 
 
+
+def _latency_pixels(latency_clocks: int | None, meta: dict[str, Any]) -> int | None:
+    """The latency counted in pixels: clocks times the pixels a clock of the design's bus (one unless told)."""
+    if latency_clocks is None:
+        return None
+    return int(latency_clocks) * int((meta.get("bus") or {}).get("pixels_per_clock", 1))
+
+
 def _report_case(c: Mapping[str, Any]) -> dict[str, Any]:
     v = c["verdict"]
     row = {
@@ -326,6 +334,7 @@ def _report_case(c: Mapping[str, Any]) -> dict[str, Any]:
             "max_abs_error": v.get("max_abs_error", 0),
         },
         "latency_clocks": v.get("latency_clocks"),
+        "latency_pixels": _latency_pixels(v.get("latency_clocks"), c.get("meta", {})),
         "diagnosis": _diagnosis(v),
         "seeds": c.get("seeds", {}),
         "files": c.get("files", {}),

@@ -121,6 +121,9 @@ def case_meta(case: Case, seconds: float) -> dict[str, Any]:
     }
     if d.bug:
         meta.update({"bug": d.bug, "expect_kind": d.expect_kind, "description": d.description, "needs": d.needs})
+    bus = d.bus_layout()
+    if bus.lanes > 1 or bus.component_order != "RGB" or bus.sample_bits != 8:
+        meta["bus"] = bus.to_dict()
     return meta
 
 

@@ -184,12 +184,17 @@ def _cmd_model(args: argparse.Namespace) -> int:
 def _cmd_widths(args: argparse.Namespace) -> int:
     from vkit.model import widths
 
+    from vkit.video.bus import BusLayout
+
     spec = _spec(args.spec)
+    bus = BusLayout(spec.input, args.component_order, args.pixels_per_clock, args.lane_order)
     if args.json:
         ranges = widths.stage_ranges(spec)
         print(json.dumps(_plain(ranges), indent=2))
     else:
         print(widths.format_width_table(spec))
+        print(f"input bus: {bus.word_bits}-bit word, {bus.describe()}")
+        print(f"output bus: {bus.describe_output(spec.output.bits)}")
     return EXIT_PASS
 
 
@@ -354,9 +359,12 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
              help="decompression-bomb guard: refuse image files claiming more pixels (default: "
                   "vkit.video.images.DEFAULT_MAX_PIXELS)"),
     )),
-    ("widths", "print each stage's range and bits", _cmd_widths, (
+    ("widths", "print each stage's range and bits, and the lane layout of the data words", _cmd_widths, (
         _SPEC,
-        _arg("--json", action="store_true", help="print JSON instead of a table"),
+        _arg("--json", action="store_true", help="print JSON instead of a table (stage ranges only)"),
+        _arg("--pixels-per-clock", type=int, default=1, help="pixels the data words carry a clock: 1, 2, 4 or 8"),
+        _arg("--lane-order", default="first_low", help="first_low (first pixel in the low bits) or first_high"),
+        _arg("--component-order", default="RGB", help="R, G, B in a pixel's field, most significant first"),
     )),
     ("strength", "which spec mutants a stimulus kills, and why the rest survive (no simulator)", _cmd_strength, (
         _SPEC,

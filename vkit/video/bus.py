@@ -131,6 +131,12 @@ class BusLayout:
         return (f"{self.lanes} pixel{'s' if self.lanes > 1 else ''} a clock of {self.pixel_format}{comp}: "
                 + ", ".join(parts))
 
+    def describe_output(self, out_bits: int) -> str:
+        """The output word's layout in words: ``lanes`` fields of ``out_bits``, in the same lane order."""
+        parts = [f"pixel {lane} in bits {self.lane_shift(lane, out_bits) + out_bits - 1}..{self.lane_shift(lane, out_bits)}"
+                 for lane in range(self.lanes)]
+        return f"{self.lanes * out_bits}-bit output word of {self.lanes} x {out_bits}-bit pixels: " + ", ".join(parts)
+
     def to_dict(self) -> dict[str, Any]:
         """Plain-data form (the report's ``bus`` table)."""
         return {"pixel_format": self.pixel_format, "component_order": self.component_order,

@@ -35,12 +35,13 @@ __getattr__, __dir__, __all__ = lazy_facade(__name__, {
         "FILTER_KINDS FilterSpec GRADIENT_KINDS INPUTS LumaSpec MAGNITUDE_METHODS "
         "MagnitudeSpec ORDER_KINDS OutputSpec PipelineSpec WindowSpec"
     ),
+    "vkit.model.ycbcr": "rgb_to_ycbcr rgb_to_ycbcr_float YCbCrCoding ycbcr_to_rgb ycbcr_to_rgb_float",
     "vkit.model.widths": (
         "dtype_for_range format_width_table stage_range_map stage_ranges StageWidth "
         "widths_to_dict"
     ),
     "vkit.model.window": (
-        "BORDERS check_border interior_mask OPENCV_BORDERS pad SCIPY_MODES taps "
+        "BORDERS check_border interior_mask OPENCV_BORDERS pad ring_mask SCIPY_MODES taps "
         "taps_of_padded"
     ),
 })

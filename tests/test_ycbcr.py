@@ -1,0 +1,79 @@
+"""R'G'B' <-> Y'CbCr against OpenCV where it has the conversion, and the published levels elsewhere."""
+
+from __future__ import annotations
+
+import cv2
+import numpy as np
+import pytest
+
+from vkit.core.errors import ConfigError
+from vkit.model.ycbcr import YCbCrCoding, rgb_to_ycbcr, rgb_to_ycbcr_float, ycbcr_to_rgb, ycbcr_to_rgb_float
+
+
+def _rgb(seed: int = 1, top: int = 256) -> np.ndarray:
+    img = np.random.default_rng(seed).integers(0, top, (24, 32, 3)).astype(np.uint8 if top <= 256 else np.uint16)
+    img[0, :8] = [(0, 0, 0), (top - 1,) * 3, (top - 1, 0, 0), (0, top - 1, 0), (0, 0, top - 1),
+                  (top - 1, top - 1, 0), (0, top - 1, top - 1), (top - 1, 0, top - 1)]
+    return img
+
+
+def test_bt601_full_range_is_opencv_rgb2ycrcb() -> None:
+    rgb = _rgb()
+    ours = rgb_to_ycbcr(rgb, YCbCrCoding("bt601", "full", 8))
+    # Reference: OpenCV cv2.cvtColor COLOR_RGB2YCrCb (BT.601 coefficients, full range, delta 128);
+    # its channels are Y, Cr, Cb. OpenCV rounds Cr and Cb from its already-rounded Y: one LSB apart at most.
+    ycrcb = cv2.cvtColor(rgb, cv2.COLOR_RGB2YCrCb).astype(np.int64)
+    assert np.array_equal(ours[..., 0], ycrcb[..., 0])
+    assert np.abs(ours[..., 1] - ycrcb[..., 2]).max() <= 1 and np.abs(ours[..., 2] - ycrcb[..., 1]).max() <= 1
+
+
+def test_bt601_full_range_back_to_rgb_is_opencv_ycrcb2rgb() -> None:
+    ycc = rgb_to_ycbcr(_rgb(2), YCbCrCoding("bt601", "full", 8))
+    back = ycbcr_to_rgb(ycc, YCbCrCoding("bt601", "full", 8))
+    # Reference: OpenCV cv2.cvtColor COLOR_YCrCb2RGB on the same samples (Cr before Cb).
+    ref = cv2.cvtColor(ycc[..., [0, 2, 1]].astype(np.uint8), cv2.COLOR_YCrCb2RGB).astype(np.int64)
+    assert np.abs(back - ref).max() <= 1
+
+
+@pytest.mark.parametrize("standard, red", [("bt601", (81, 90, 240)), ("bt709", (63, 102, 240))])
+def test_limited_range_levels_of_the_published_colour_bars(standard: str, red: tuple[int, int, int]) -> None:
+    coding = YCbCrCoding(standard, "limited", 8)
+    bars = np.array([[[0, 0, 0], [255, 255, 255], [255, 0, 0]]], np.uint8)
+    out = rgb_to_ycbcr(bars, coding)
+    # Reference: ITU-R BT.601-7 / BT.709-6 8-bit quantisation: black Y 16, white Y 235, C 128 at grey;
+    # 100% red is (81, 90, 240) in BT.601 and (63, 102, 240) in BT.709 (the published colour-bar levels,
+    # from memory).
+    assert out[0, 0].tolist() == [16, 128, 128] and out[0, 1].tolist() == [235, 128, 128]
+    assert tuple(out[0, 2].tolist()) == red
+
+
+def test_ten_bit_limited_range_levels() -> None:
+    coding = YCbCrCoding("bt709", "limited", 10)
+    out = rgb_to_ycbcr(np.array([[[0, 0, 0], [1023, 1023, 1023], [0, 0, 1023]]], np.uint16), coding)
+    # Reference: ITU-R BT.709-6, 10-bit: black 64, nominal peak 940, colour difference 64..960 around 512.
+    assert out[0, 0].tolist() == [64, 512, 512] and out[0, 1].tolist() == [940, 512, 512]
+    assert out[0, 2, 1] == 960  # pure blue: Cb at its top, 512 + 448
+
+
+@pytest.mark.parametrize("standard", ["bt601", "bt709"])
+@pytest.mark.parametrize("rng", ["full", "limited"])
+@pytest.mark.parametrize("bits", [8, 10, 12])
+def test_integer_forms_track_the_real_matrices(standard: str, rng: str, bits: int) -> None:
+    coding = YCbCrCoding(standard, rng, bits)
+    rgb = _rgb(3, 1 << bits)
+    ycc = rgb_to_ycbcr(rgb, coding)
+    real = rgb_to_ycbcr_float(rgb, coding)
+    # The defining equations of ITU-R BT.601-7 / BT.709-6 in floats: the integers are their rounding,
+    # give or take the 14-fraction-bit coefficients (half a unit each, on three samples up to the top).
+    top = (1 << bits) - 1
+    assert np.abs(ycc - real).max() <= 0.5 + 1.5 * top / 2**14 + 1e-9
+    back = ycbcr_to_rgb(ycc, coding)
+    assert np.abs(back - rgb.astype(np.int64)).max() <= (2 if rng == "limited" else 1) << (bits - 8)
+    assert np.allclose(ycbcr_to_rgb_float(real, coding), rgb, atol=1e-6)
+
+
+def test_out_of_range_samples_are_refused() -> None:
+    with pytest.raises(ConfigError, match="0..255"):
+        rgb_to_ycbcr(np.full((1, 1, 3), 300), YCbCrCoding("bt601", "full", 8))
+    with pytest.raises(ConfigError, match="standard"):
+        YCbCrCoding("bt2020")

@@ -205,18 +205,22 @@ def first_frame_picture(frames_npy: str | Path, page_dir: str | Path, max_width:
     """The first frame of a case's ``frames.npy`` (what the design was fed) as an embedded picture.
 
     Args:
-        frames_npy: array ``(frames, height, width)`` or ``(frames, height, width, 3)``, uint8.
+        frames_npy: array ``(frames, height, width)`` or ``(frames, height, width, 3)``, uint8 (or
+            uint16 for samples wider than 8 bits, shown by their top 8 bits).
         page_dir: the folder of the page (``full`` links the .npy file).
         max_width: largest width, pixels.
 
     Returns:
-        None when the file is missing, unreadable or not 8-bit frames.
+        None when the file is missing, unreadable or not frames of 8- or 16-bit samples.
     """
     try:
         frames = np.load(frames_npy, allow_pickle=False)
     except (OSError, ValueError):
         return None
-    if frames.dtype != np.uint8 or frames.ndim not in (3, 4) or not len(frames):
+    if frames.dtype not in (np.uint8, np.uint16) or frames.ndim not in (3, 4) or not len(frames):
         return None
-    src, w, h = _encode(Image.fromarray(np.ascontiguousarray(frames[0])), max_width)
+    first = frames[0]
+    if first.dtype == np.uint16:
+        first = (first >> max(0, int(first.max(initial=0)).bit_length() - 8)).astype(np.uint8)
+    src, w, h = _encode(Image.fromarray(np.ascontiguousarray(first)), max_width)
     return Picture(src, w, h, _relative(frames_npy, page_dir))

@@ -13,6 +13,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from vkit.core.errors import ConfigError
 from vkit.sim.case import SimCase
 from vkit.sim.fast.build import VERILATOR_ARGS, define_args
 from vkit.sim.fast.stimulus import StimulusFiles, write_expected
@@ -63,6 +64,10 @@ def write_testbench(case: SimCase, out_dir: str | Path, stim: StimulusFiles, out
         mask: bool ``(H, W)`` or ``(F, H, W)``, False on unchecked pixels, or None.
         language: "verilog" or "vhdl".
     """
+    if case.pixels_per_clock > 1:
+        raise ConfigError(f"export: design carries pixels_per_clock = {case.pixels_per_clock}; the self-checking "
+                          "testbench compares one pixel a word, so it cannot be written for it yet; export with "
+                          "vectors only, or run the case with vkit run --path native")
     out = Path(out_dir)
     exp_path = write_expected(out / "expected.hex", expected, mask, out_width)
     n_expected = int(np.asarray(expected).size)

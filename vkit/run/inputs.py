@@ -156,12 +156,13 @@ def _check_data_width(case: Case, role: str, port: Port) -> None:
         raise fail(where, "ports.in_data", port.name, f"{port.width} bits wide but pixel_format "
                    f"{d.pixel_format}{lanes} needs {need} bits", "widen the port or use a narrower pixel_format")
     if role == "out_data" and port.width is not None:
-        bits = d.pipeline_spec().output.bits * bus.lanes
+        pixel = d.pipeline_spec().output.bits
+        bits = pixel * bus.lanes
         if port.width != bits:
             side = "narrower" if port.width < bits else "wider"
+            what = f"{bits}-bit output word ({pixel}-bit pixel{lanes})" if bus.lanes > 1 else f"{bits}-bit output pixel"
             raise fail(where, "ports.out_data", port.name, f"{port.width} bits wide, {side} than the "
-                       f"{bits}-bit output word ({d.pipeline_spec().output.bits}-bit pixel{lanes}) of spec "
-                       f"{d.pipeline_spec().name}",
+                       f"{what} of spec {d.pipeline_spec().name}",
                        f"make the port {bits} bits wide or set [output] bits = {port.width // bus.lanes} in the spec")
 
 

@@ -52,6 +52,32 @@ def test_border_mutant_differs_on_border_rings_as_scipy_says() -> None:
     assert (ref_true != ref_mirror).any()  # the ring pattern separates the two policies
 
 
+@pytest.mark.parametrize("row", [0, 1, 2])
+def test_window_row_read_late_is_a_shifted_kernel_row_in_scipy(row: int) -> None:
+    # A window row read one column late takes pixel x-1+c-1 for tap c: SciPy ndimage.correlate with a 3x5
+    # kernel whose row `row` sits one column to the left gives the same sums away from the frame's edges.
+    spec = preset("blur")
+    img = np.random.default_rng(row).integers(0, 256, (24, 32)).astype(np.uint8)
+    k = np.array([[1, 2, 1], [2, 4, 2], [1, 2, 1]])
+    wide = np.zeros((3, 5), np.int64)
+    wide[:, 1:4] = k
+    wide[row] = 0
+    wide[row, 0:3] = k[row]
+    ref = (ndimage.correlate(img.astype(np.int64), wide, mode="nearest") + 8) >> 4
+    got = run_plan(_mutant(spec, f"window.row{row}_late").plan, img).output
+    inner = (slice(1, -1), slice(2, -1))  # no frame edge in reach of the moved row
+    assert np.array_equal(got[inner], ref[inner])
+    assert (got[inner] != run_model(spec, img).output[inner]).any()
+    # read one column early: SciPy ndimage.median_filter over a 3x5 footprint with that row one column right
+    footprint = np.zeros((3, 5), bool)
+    footprint[:, 1:4] = True
+    footprint[row] = False
+    footprint[row, 2:5] = True
+    median = run_plan(_mutant(preset("median"), f"window.row{row}_early").plan, img).output
+    ref_median = ndimage.median_filter(img, footprint=footprint, mode="nearest")
+    assert np.array_equal(median[1:-1, 1:-2], ref_median[1:-1, 1:-2])
+
+
 def test_min_filter_border_equivalence_holds_in_scipy() -> None:
     # SciPy minimum_filter: modes "nearest" and "mirror" agree for a 3x3 minimum on any image
     img = np.random.default_rng(5).integers(0, 256, (24, 32))

@@ -17,6 +17,7 @@ from vkit.model.presets import PRESETS, SPECS_DIR, preset
 from vkit.model.spec import PipelineSpec
 from vkit.model.strength import stimulus_strength
 from vkit.video.killers import border_rings
+from vkit.video.patterns import make_pattern
 from vkit.video.synthesis import KILLER_SEEDS, SCAFFOLD_PATTERNS, stimulus_frames, synthesize
 
 KILL_TARGET = 0.95  # issue 11: a scaffolded config kills at least 95% of its spec's mutants at 32x24
@@ -144,3 +145,22 @@ def test_the_scaffolds_default_stimulus_kills_at_least_95_percent(name: str) -> 
     """The issue's measure: a freshly scaffolded config (its default patterns, 32x24, 2 frames each)."""
     spec = PRESETS[name]
     assert stimulus_strength(spec, stimulus_frames(spec, list(SCAFFOLD_PATTERNS), 32, 24)).kill_rate >= 0.95
+
+
+def test_coverage_figures_are_kept_per_stimulus(tmp_path, monkeypatch) -> None:
+    from vkit.run import coverage as cov
+
+    spec = preset("edge")
+    frames = np.stack([make_pattern("killers", 24, 32, seed=0, rgb=True)])
+    first = cov.stimulus_coverage(spec, frames, 0.5, tmp_path)
+    (entry,) = (tmp_path / cov.COVERAGE_CACHE).iterdir()
+    calls = []
+    monkeypatch.setattr(cov, "_measure", lambda *a: calls.append(a) or ({"again": True}, []))
+    assert cov.stimulus_coverage(spec, frames, 0.5, tmp_path) == tuple(json.loads(json.dumps(first)))  # kept: no rerun
+    assert not calls
+    other = frames.copy()
+    other[0, 5, 5] ^= 1
+    assert cov.stimulus_coverage(spec, other, 0.5, tmp_path) == ({"again": True}, [])  # another stimulus: measured
+    entry.write_text("{ damaged")
+    assert cov.stimulus_coverage(spec, frames, 0.5, tmp_path) == ({"again": True}, [])  # damaged: measured again
+    assert len(calls) == 2

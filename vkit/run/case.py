@@ -136,7 +136,8 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -
         verdict = replace(verdict, status=status, passed=False, findings=[stop, *verdict.findings])
     by_mutant = _mutant_diagnosis(verdict, prep)
     verdict = _named_by_mutant(verdict, by_mutant)
-    coverage, warnings = stimulus_coverage(prep.spec, prep.frames, options.coverage_floor)
+    coverage, warnings = stimulus_coverage(prep.spec, prep.frames, options.coverage_floor,
+                                           BuildCache(options.cache_dir).cache_dir)
     waves: dict[str, Any] | None = None
     wanted = options.waves == "all" or (options.waves == "failing" and verdict.status in ("fail", "no_output"))
     if wanted and stop is None:  # a stopped simulation would only stop again

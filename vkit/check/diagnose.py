@@ -862,7 +862,6 @@ def _line_stall_finding(frames: Sequence[FrameResult], stall: Sequence[Sequence[
     lines = [(f, y) for f, y, d in bad if counts.get((f, y + 1), 0)]
     f0, y0 = lines[0]
     xs = first_x[(f0, y0 + 1)]
-    n0 = next(d for f, y, d in bad if (f, y) == (f0, y0))
     line_txt = ", ".join(str(y) for _, y in lines[:_LINES_NAMED]) + (
         f" (+{len(lines) - _LINES_NAMED} more)" if len(lines) > _LINES_NAMED else ""
     )

@@ -29,6 +29,7 @@ _SHOWN_BY = {
     "de_late": "conveyor",
     "ring_from_filter": "conveyor",
     "lanes_swapped": "conveyor",
+    "chroma_slip_odd": "conveyor",
 }
 
 _CONFIG = """

@@ -1,5 +1,6 @@
-"""The sample designs that carry two pixels a clock and 10-bit samples with a pass-through border: the
-good designs pass and each seeded bug fails with its diagnosis kind, on every drive path and simulator."""
+"""The sample designs that carry two pixels a clock, 10-bit samples with a pass-through border, and Y'CbCr
+4:2:2 with its chroma passed through: the good designs pass and each seeded bug fails with its diagnosis
+kind, on every drive path and simulator."""
 
 from __future__ import annotations
 
@@ -16,7 +17,7 @@ from vkit.run.runner import run
 pytestmark = pytest.mark.sim
 
 MANIFEST = SAMPLE_RTL / "designs.toml"
-DESIGNS = ("belt_sharpen_x2", "belt_smooth10")
+DESIGNS = ("belt_sharpen_x2", "belt_smooth10", "belt_luma422")
 
 _CONFIG = """
 [run]
@@ -27,7 +28,7 @@ path = "{path}"
 
 [[import]]
 manifest = "{manifest}"
-use = ["belt_sharpen_x2", "belt_smooth10"]
+use = ["belt_sharpen_x2", "belt_smooth10", "belt_luma422"]
 bugs = true
 
 [stimulus]
@@ -71,7 +72,7 @@ def test_two_lane_report_gives_latency_in_clocks_and_pixels(tmp_path: Path, buil
     simulator_available("icarus")
     cfg = tmp_path / "lanes.toml"
     text = _CONFIG.format(sim="icarus", cache=build_cache_dir.as_posix(), path="native", manifest=MANIFEST.as_posix())
-    cfg.write_text(text.replace('use = ["belt_sharpen_x2", "belt_smooth10"]\nbugs = true',
+    cfg.write_text(text.replace('use = ["belt_sharpen_x2", "belt_smooth10", "belt_luma422"]\nbugs = true',
                                 'use = ["belt_sharpen_x2"]\nbugs = false').replace("stalls = [{ probability = 0.1, max_length = 3 }]", "stalls = [0]"))
     run(load_config(cfg), jobs=1, progress=False, out_dir=tmp_path / "out")
     (row,) = json.loads((tmp_path / "out" / "report.json").read_text())["cases"]

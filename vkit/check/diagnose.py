@@ -1124,6 +1124,52 @@ def _lane_finding(frames: Sequence[FrameResult], lanes: int) -> Finding | None:
                    share)
 
 
+_MAX_WORD_SHIFT = 48
+"""Largest Y' width looked for when the expected word carries passed-through chroma above it, bits."""
+
+
+def _chroma_shift(fr: FrameResult) -> int | None:
+    """Where a passed-through 4:2:2 colour difference sits in the expected word: the shift at which the
+    word's upper part is the input's C plane; None when the frame has no such chroma."""
+    st = (getattr(fr.model, "stages", {}) or {}).get("input")
+    arr = getattr(st, "array", None)
+    if arr is None or np.ndim(arr) != 3 or np.shape(arr)[2] != 2 or np.shape(arr)[:2] != fr.expected.shape:
+        return None
+    c = np.asarray(arr)[..., 1].astype(np.int64)
+    return next((k for k in range(1, _MAX_WORD_SHIFT) if np.array_equal(fr.expected >> k, c)), None)
+
+
+def _chroma_finding(frames: Sequence[FrameResult]) -> Finding | None:
+    """The colour differences passed through are wrong where Y' is right; named a phase slip when the
+    wrong C is a horizontal neighbour's (Cb and Cr change places), with the share on odd lines."""
+    total = wrong = slipped = odd = 0
+    for fr in frames:
+        shift = _chroma_shift(fr)
+        if shift is None:
+            continue
+        bad = fr.value_bad
+        total += int(bad.sum())
+        y_ok = (fr.actual & ((1 << shift) - 1)) == (fr.expected & ((1 << shift) - 1))
+        here = bad & y_ok
+        c_exp, c_act = fr.expected >> shift, fr.actual >> shift
+        near = np.zeros_like(here)
+        near[:, :-1] |= c_act[:, :-1] == c_exp[:, 1:]
+        near[:, 1:] |= c_act[:, 1:] == c_exp[:, :-1]
+        wrong += int(here.sum())
+        slipped += int((here & near).sum())
+        odd += int(here[1::2].sum())
+    if total < _MIN_TELLING_PIXELS or wrong / total < _EXPLAINED_SHARE:
+        return None
+    share, odd_share = wrong / total, odd / max(1, wrong)
+    lines = "odd lines" if odd_share >= _EXPLAINED_SHARE else ("even lines" if odd_share <= 1 - _EXPLAINED_SHARE else "all lines")
+    msg = f"{_pct(share)} of the wrong pixels have the right Y' and wrong chroma, on {lines} ({_pct(odd_share)} on odd lines)"
+    if slipped / max(1, wrong) >= _EXPLAINED_SHARE:
+        msg += ("; there the colour difference is a horizontal neighbour's, so Cb and Cr change places: the "
+                "4:2:2 chroma phase slipped (check which pixel the C of each pair is taken from)")
+    ev = {"mismatches": total, "chroma_only": wrong, "neighbour_chroma": slipped, "odd_line_share": odd_share}
+    return Finding("chroma", msg, ev, share)
+
+
 def _scattered(frames: Sequence[FrameResult]) -> Finding:
     total = sum(int(fr.value_bad.sum()) for fr in frames)
     checked = sum(int(fr.valid.sum()) for fr in frames)
@@ -1244,6 +1290,7 @@ def _pixel_findings(
     stream), rounding; 'scattered' when none fits well. ``stalls`` is ``(input stalls, back-pressure)``."""
     pixel = [
         _lane_finding(frames, lanes),
+        _chroma_finding(frames),
         _border_finding(frames, border),
         _overflow_finding(frames),
         None if stall_named else _stall_finding(frames, *stalls),

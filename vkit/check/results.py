@@ -45,6 +45,7 @@ KINDS: tuple[str, ...] = (
     "scattered",
     "variant",
     "lanes",
+    "chroma",
 )
 """The fixed vocabulary of :attr:`Finding.kind`; other modules rely on these exact words."""
 

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 __all__ = ["PIXEL_FORMAT_BITS", "SAMPLE_BITS_RANGE", "COMPONENT_ORDERS", "pixel_format_name", "sample_bits",
-           "components", "is_rgb", "DRIVE_MODES", "WAVE_MODES", "VERILOG_SUFFIXES", "VHDL_SUFFIXES", "HDL_SUFFIXES"]
+           "components", "is_rgb", "is_ycbcr", "DRIVE_MODES", "WAVE_MODES", "VERILOG_SUFFIXES", "VHDL_SUFFIXES", "HDL_SUFFIXES"]
 
 SAMPLE_BITS_RANGE: tuple[int, int] = (1, 16)
 """Fewest and most bits of one sample (one grey value, or one colour component)."""
@@ -11,19 +11,27 @@ SAMPLE_BITS_RANGE: tuple[int, int] = (1, 16)
 
 def pixel_format_name(kind: str, bits: int) -> str:
     """The name of a pixel format: ``gray<bits>`` (``gray10``), or ``rgb`` and the bits three times
-    (``rgb888``, ``rgb101010``), as buses are commonly named (common practice, no source)."""
+    (``rgb888``, ``rgb101010``), as buses are commonly named (common practice, no source); Y'CbCr as
+    ``ycbcr444_<bits>`` / ``ycbcr422_<bits>``."""
+    if kind.startswith("ycbcr"):
+        return f"{kind}_{bits}"
     return f"gray{bits}" if kind == "gray" else f"rgb{bits}{bits}{bits}"
 
 
+_KIND_SAMPLES = {"gray": 1, "rgb": 3, "ycbcr444": 3, "ycbcr422": 2}
+"""Samples a pixel carries on the bus, per kind of format (4:2:2: Y and one colour difference, Cb and Cr
+taking turns)."""
+
 PIXEL_FORMAT_BITS: dict[str, int] = {
-    pixel_format_name(kind, b): b * (1 if kind == "gray" else 3)
-    for kind in ("gray", "rgb") for b in range(SAMPLE_BITS_RANGE[0], SAMPLE_BITS_RANGE[1] + 1)
+    pixel_format_name(kind, b): b * n
+    for kind, n in _KIND_SAMPLES.items() for b in range(SAMPLE_BITS_RANGE[0], SAMPLE_BITS_RANGE[1] + 1)
 }
-"""Pixel formats a design's data bus carries, with the bits of one pixel: ``gray1`` .. ``gray16`` and
-``rgb111`` .. ``rgb161616`` (``gray8`` and ``rgb888`` the common ones)."""
+"""Pixel formats a design's data bus carries, with the bits of one pixel: ``gray1`` .. ``gray16``,
+``rgb111`` .. ``rgb161616`` (``gray8`` and ``rgb888`` the common ones), ``ycbcr444_8`` .. and
+``ycbcr422_8`` .. (Y'CbCr 4:4:4 and 4:2:2, ``_<bits>`` a sample)."""
 
 _SAMPLE_BITS: dict[str, int] = {
-    pixel_format_name(kind, b): b for kind in ("gray", "rgb") for b in range(SAMPLE_BITS_RANGE[0], SAMPLE_BITS_RANGE[1] + 1)
+    pixel_format_name(kind, b): b for kind in _KIND_SAMPLES for b in range(SAMPLE_BITS_RANGE[0], SAMPLE_BITS_RANGE[1] + 1)
 }
 
 COMPONENT_ORDERS: tuple[str, ...] = ("RGB", "RBG", "GRB", "GBR", "BRG", "BGR")
@@ -41,9 +49,17 @@ def is_rgb(pixel_format: str) -> bool:
     return pixel_format.startswith("rgb")
 
 
+def is_ycbcr(pixel_format: str) -> bool:
+    """True for the Y'CbCr formats (4:4:4 and 4:2:2)."""
+    return pixel_format.startswith("ycbcr")
+
+
 def components(pixel_format: str) -> int:
-    """Samples a pixel of ``pixel_format`` holds: 3 for RGB, 1 for grey."""
-    return 3 if is_rgb(pixel_format) else 1
+    """Samples a pixel of ``pixel_format`` carries: 3 for RGB and Y'CbCr 4:4:4, 2 for 4:2:2, 1 for grey."""
+    for kind, n in _KIND_SAMPLES.items():
+        if pixel_format.startswith(kind):
+            return n
+    return 1
 
 DRIVE_MODES: tuple[str, ...] = ("clock", "fast", "native")
 """How a case drives the design: ``clock`` (cocotb touches every clock), ``fast`` (the generated HDL

@@ -10,7 +10,7 @@ import numpy as np
 
 from vkit.core.errors import ConfigError
 from vkit.core.validate import want_int
-from vkit.core.vocab import is_rgb
+from vkit.core.vocab import components, is_rgb, is_ycbcr
 from vkit.model import magnitude as magmod
 from vkit.model.fixedpoint import shift_round
 from vkit.model.kernels import correlate_padded, maximum3x3, median3x3, minimum3x3
@@ -22,7 +22,7 @@ from vkit.model.window import interior_mask, pad, ring_mask, taps_of_padded
 
 __all__ = [
     "ORDER_FILTERS", "Variation", "ModelPlan", "model_plan", "check_image", "new_stage", "output_levels", "run_model", "run_plan",
-    "run_model_frames",
+    "run_model_frames", "chroma_word",
 ]
 
 ORDER_FILTERS: dict[str, Callable[..., np.ndarray]] = {"median": median3x3, "min": minimum3x3, "max": maximum3x3}
@@ -137,7 +137,15 @@ def check_image(spec: PipelineSpec, image: Any) -> np.ndarray:
     """
     arr = np.asarray(image)
     fmt, bits = spec.input, spec.input_bits
-    if is_rgb(fmt):
+    if is_ycbcr(fmt):
+        n = components(fmt)
+        if arr.ndim != 3 or arr.shape[2] != n or arr.shape[0] < 1 or arr.shape[1] < 1:
+            raise ConfigError(
+                f"pipeline {spec.name!r} takes {fmt} input: expected a (height, width, {n}) array of "
+                f"{'Y, C (Cb on even columns, Cr on odd)' if n == 2 else 'Y, Cb, Cr'}, got shape {arr.shape}; "
+                "convert RGB with vkit.model.ycbcr.rgb_to_ycbcr"
+            )
+    elif is_rgb(fmt):
         if arr.ndim != 3 or arr.shape[2] != 3 or arr.shape[0] < 1 or arr.shape[1] < 1:
             raise ConfigError(
                 f"pipeline {spec.name!r} takes {fmt} input: expected a (height, width, 3) array, got shape "
@@ -199,6 +207,7 @@ def run_plan(plan: ModelPlan, img: np.ndarray, *, keep_stages: bool = True, band
         drop = spec.input_bits - keep
         img = (img >> drop) << drop
     height, width = img.shape[:2]
+    source = img[..., 0] if is_ycbcr(spec.input) else img  # Y' of a Y'CbCr pixel is what the window sees
     if plan.variation.row_shifts:  # a line read late needs the line before it: one band
         band_rows = height
     names = [n for n in spec.stage_names() if n != "input"]
@@ -210,19 +219,31 @@ def run_plan(plan: ModelPlan, img: np.ndarray, *, keep_stages: bool = True, band
     for r0 in range(0, height, band_rows):
         r1 = min(height, r0 + band_rows)
         views = {name: arrays[name][r0:r1] for name in kept}
-        band = _run_band(plan, img, r0, r1, views)
+        band = _run_band(plan, source, r0, r1, views)
         for name in kept:
             if band[name] is not views[name]:
                 views[name][...] = band[name]
         for name in clamp_names:
             clamps[name][r0:r1] = band[f"{name}_clamped"]
     if spec.window.border == "passthrough":
-        _pass_through(plan, img, arrays)
+        _pass_through(plan, source, arrays)
+    if spec.chroma_bits:
+        arrays["output"] |= chroma_word(img, spec.output.bits, spec.input_bits)
     stages: OrderedDict[str, Stage] = OrderedDict()
     stages["input"] = new_stage(plan, "input", img, None)
     for name in kept:
         stages[name] = new_stage(plan, name, arrays[name], clamps.get(name))
     return ModelResult(arrays["output"], interior_mask(height, width, spec.window.border), stages)
+
+
+def chroma_word(img: np.ndarray, shift: int, bits: int) -> np.ndarray:
+    """The colour differences of a Y'CbCr frame ``(H, W, 2 | 3)`` of ``bits``-bit samples as they sit above
+    Y' in the output word: 4:2:2 ``C << shift``; 4:4:4 ``Cb << shift | Cr << (shift + bits)``; int64 ``(H, W)``."""
+    chroma = img[..., 1:].astype(np.int64)
+    out = np.zeros(img.shape[:2], np.int64)
+    for k in range(chroma.shape[-1]):
+        out |= chroma[..., k] << (shift + k * bits)
+    return out
 
 
 def _pass_through(plan: ModelPlan, img: np.ndarray, arrays: dict[str, np.ndarray]) -> None:

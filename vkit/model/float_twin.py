@@ -7,7 +7,7 @@ from typing import Any
 
 import numpy as np
 
-from vkit.model.exact import ORDER_FILTERS, check_image, model_plan, new_stage
+from vkit.model.exact import ORDER_FILTERS, check_image, chroma_word, model_plan, new_stage
 from vkit.model.kernels import correlate3x3
 from vkit.model.luma import luma_float
 from vkit.model.result import ModelResult, Stage
@@ -35,7 +35,7 @@ def run_float(spec: PipelineSpec, image: Any) -> ModelResult:
     plan = model_plan(spec)
     height, width = img.shape[:2]
     arrays: dict[str, np.ndarray] = {}
-    src = img.astype(np.float64)
+    src = (img[..., 0] if spec.chroma_bits or img.ndim == 3 and spec.luma is None else img).astype(np.float64)
     if spec.luma is not None:
         rgb = img if img.ndim == 3 else np.repeat(img[..., None], 3, axis=2)
         src = arrays["luma"] = luma_float(rgb, spec.luma.coefficients(), spec.luma.output_bits, spec.input_bits)
@@ -50,6 +50,8 @@ def run_float(spec: PipelineSpec, image: Any) -> ModelResult:
         ring = ring_mask(height, width)
         sample = src[ring]
         arrays["output"][ring] = sample if spec.window.passthrough == "raw" else _output(spec.output, sample)[0]
+    if spec.chroma_bits:
+        arrays["output"] = arrays["output"] + chroma_word(img, spec.output.bits, spec.input_bits)
     stages: OrderedDict[str, Stage] = OrderedDict()
     stages["input"] = new_stage(plan, "input", img.astype(np.float64), None)
     for name in spec.stage_names()[1:]:

@@ -10,7 +10,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from vkit.core.errors import ConfigError
-from vkit.core.vocab import PIXEL_FORMAT_BITS, is_rgb, sample_bits
+from vkit.core.vocab import PIXEL_FORMAT_BITS, components, is_rgb, is_ycbcr, sample_bits
 from vkit.core.validate import check_keys, fail, want_bool, want_choice, want_int, want_table
 from vkit.model.fixedpoint import ROUNDING
 from vkit.model.kernels import KERNELS
@@ -33,6 +33,7 @@ __all__ = [
     "BORDERS",
     "ROUNDINGS",
     "PASSTHROUGH_MAPPINGS",
+    "CHROMA_MODES",
     "WHERE",
     "LumaSpec",
     "WindowSpec",
@@ -341,7 +342,10 @@ _SECTIONS = {
     "magnitude": MagnitudeSpec,
     "output": OutputSpec,
 }
-_TOP_KEYS = ("name", "input", "luma", "window", "filter", "magnitude", "output")
+_TOP_KEYS = ("name", "input", "chroma", "luma", "window", "filter", "magnitude", "output")
+CHROMA_MODES = ("drop", "pass")
+"""Values of ``chroma`` for a Y'CbCr input: the colour differences are dropped (the output is Y' alone)
+or passed through, delayed with their pixel, above Y' in the output word."""
 
 
 @dataclass(frozen=True)
@@ -358,6 +362,7 @@ class PipelineSpec:
     name: str = "edge"
     input: str = "rgb888"
     luma: LumaSpec | None = None
+    chroma: str = "drop"
     window: WindowSpec = field(default_factory=WindowSpec)
     filter: FilterSpec = field(default_factory=FilterSpec)
     magnitude: MagnitudeSpec | None = None
@@ -383,6 +388,31 @@ class PipelineSpec:
                 "remove [magnitude]"
             )
         self._check_passthrough()
+        self._check_chroma()
+
+    def _check_chroma(self) -> None:
+        """Y'CbCr input: Y' is filtered (no luma stage); ``chroma`` says what becomes of Cb and Cr."""
+        want_choice(WHERE, "chroma", self.chroma, CHROMA_MODES)
+        if not is_ycbcr(self.input):
+            if self.chroma != "drop":
+                raise fail(WHERE, "chroma", self.chroma, f"only for a Y'CbCr input, not {self.input}",
+                           "remove it, or give input = \"ycbcr422_8\" (or another Y'CbCr format)")
+            return
+        if self.luma is not None:
+            raise fail(WHERE, "luma", "(a table)", f"not used with {self.input} input (Y' is filtered as it comes)",
+                       "remove [luma]")
+
+    @property
+    def chroma_bits(self) -> int:
+        """Bits the passed-through colour differences add above Y' in the output word (0 when dropped)."""
+        if self.chroma != "pass":
+            return 0
+        return self.input_bits * (components(self.input) - 1)
+
+    @property
+    def output_word_bits(self) -> int:
+        """Bits of the whole output word: ``output.bits`` of Y' (or the filter's result) plus the chroma passed."""
+        return self.output.bits + self.chroma_bits
 
     def _check_passthrough(self) -> None:
         """A raw pass-through border must fit the filter's input sample into the output word."""
@@ -414,6 +444,8 @@ class PipelineSpec:
             kwargs["name"] = data["name"]
         if "input" in data:
             kwargs["input"] = data["input"]
+        if "chroma" in data:
+            kwargs["chroma"] = data["chroma"]
         for key, sub in _SECTIONS.items():
             if key not in data or data[key] is None:
                 continue
@@ -459,6 +491,8 @@ class PipelineSpec:
     def to_dict(self) -> dict[str, Any]:
         """Plain-data form; ``PipelineSpec.from_dict(spec.to_dict()) == spec``."""
         out: dict[str, Any] = {"name": self.name, "input": self.input}
+        if self.chroma != "drop":
+            out["chroma"] = self.chroma
         for key in _SECTIONS:
             value = getattr(self, key)
             if value is not None:
@@ -469,6 +503,8 @@ class PipelineSpec:
         """TOML text; ``PipelineSpec.from_toml_text(spec.to_toml()) == spec``."""
         data = self.to_dict()
         lines = [f"name = {_toml_value(data.pop('name'))}", f"input = {_toml_value(data.pop('input'))}"]
+        if "chroma" in data:
+            lines.append(f"chroma = {_toml_value(data.pop('chroma'))}")
         for key, table in data.items():
             lines.append("")
             lines.append(f"[{key}]")

@@ -85,7 +85,9 @@ def stage_ranges(spec: PipelineSpec) -> list[StageWidth]:
     """
     bits = spec.input_bits
     lo, hi = 0, (1 << bits) - 1
-    out: list[StageWidth] = [_width("input", lo, hi, f"{bits} bits per component" if is_rgb(spec.input) else f"{bits}-bit grey")]
+    kind = f"{bits} bits per component" if is_rgb(spec.input) else (
+        f"{bits}-bit Y' of {spec.input}" if spec.input.startswith("ycbcr") else f"{bits}-bit grey")
+    out: list[StageWidth] = [_width("input", lo, hi, kind)]
     if spec.luma is not None:
         weights = spec.luma.resolved()
         lo, hi = luma_range(weights, spec.luma.output_bits, spec.luma.rounding, bits)
@@ -126,6 +128,11 @@ def stage_ranges(spec: PipelineSpec) -> list[StageWidth]:
         out.append(_width("filtered", flo, fhi, note))
         lo, hi = flo, fhi
     out.append(_output_range(spec, lo, hi))
+    if spec.chroma_bits:
+        y = out.pop()
+        top = (1 << spec.output_word_bits) - 1
+        out.append(_width("output", 0, top, f"Y' {y.lo}..{y.hi} ({y.note}) in bits {spec.output.bits - 1}..0, "
+                          f"the chroma passed through above it", y.can_clamp))
     return out
 
 

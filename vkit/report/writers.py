@@ -119,9 +119,14 @@ def _input_image(fr: Any) -> np.ndarray | None:
     """The frame the design was fed, as 8-bit RGB, when the model kept its input stage."""
     st = (getattr(fr.model, "stages", {}) or {}).get("input")
     arr = getattr(st, "array", None)
-    if arr is None or arr.shape[:2] != fr.expected.shape or arr.dtype != np.uint8 and arr.max(initial=0) > 255:
+    if arr is None or arr.shape[:2] != fr.expected.shape:
         return None
-    arr = np.asarray(arr).astype(np.uint8)
+    arr = np.asarray(arr)
+    if arr.ndim == 3 and arr.shape[2] != 3:  # Y'CbCr 4:2:2: the picture is its Y'
+        arr = arr[..., 0]
+    if arr.dtype != np.uint8:  # wider samples: their top 8 bits
+        arr = arr >> max(0, int(arr.max(initial=0)).bit_length() - 8)
+    arr = arr.astype(np.uint8)
     return np.ascontiguousarray(np.repeat(arr[..., None], 3, axis=2) if arr.ndim == 2 else arr)
 
 

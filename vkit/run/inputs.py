@@ -6,8 +6,9 @@ from pathlib import Path
 
 import numpy as np
 
-from vkit.core.vocab import is_rgb, sample_bits
+from vkit.core.vocab import is_rgb, is_ycbcr, sample_bits
 from vkit.model.luma import sample_dtype
+from vkit.video.patterns import ycbcr_frame
 from vkit.core.errors import ConfigError
 from vkit.core.validate import closest, fail
 from vkit.run.config import IMAGE_PIXELS_SETTING, Case
@@ -50,14 +51,19 @@ def make_frames(case: Case) -> np.ndarray:
     centre-cropped to the case's size; every frame of an image case is that image.
     """
     fmt = case.design.pixel_format
-    rgb, bits = is_rgb(fmt), sample_bits(fmt)
+    rgb, bits = is_rgb(fmt) or is_ycbcr(fmt), sample_bits(fmt)
     frames = []
     for k in range(case.frames):
         if case.stimulus == "pattern":
-            img = make_pattern(case.stimulus_name, case.height, case.width, seed=case.seed + k, rgb=rgb, bits=bits,
-                               **dict(case.pattern_options))
+            drawn_bits = max(8, bits) if is_ycbcr(fmt) else bits  # converted to Y'CbCr below, at 8 bits or more
+            img = make_pattern(case.stimulus_name, case.height, case.width, seed=case.seed + k, rgb=rgb,
+                               bits=drawn_bits, **dict(case.pattern_options))
+        elif is_ycbcr(fmt):
+            raise ConfigError(f"design {case.design.name}: images are not read for {fmt} designs yet; use patterns")
         else:
             img = _image_frame(case)
+        if is_ycbcr(fmt):
+            img = ycbcr_frame(img, fmt)
         frames.append(np.ascontiguousarray(img, dtype=sample_dtype(bits)))
     return np.stack(frames)
 
@@ -156,7 +162,7 @@ def _check_data_width(case: Case, role: str, port: Port) -> None:
         raise fail(where, "ports.in_data", port.name, f"{port.width} bits wide but pixel_format "
                    f"{d.pixel_format}{lanes} needs {need} bits", "widen the port or use a narrower pixel_format")
     if role == "out_data" and port.width is not None:
-        pixel = d.pipeline_spec().output.bits
+        pixel = d.pipeline_spec().output_word_bits
         bits = pixel * bus.lanes
         if port.width != bits:
             side = "narrower" if port.width < bits else "wider"

@@ -10,7 +10,7 @@ from typing import Any
 
 import numpy as np
 
-from vkit.core.vocab import is_rgb, sample_bits
+from vkit.core.vocab import components, is_rgb, sample_bits
 from vkit.video.bus import BusLayout, clock_timing
 from vkit.model.luma import sample_dtype
 from vkit.core.errors import ConfigError
@@ -195,7 +195,8 @@ class SimCase:
             raise ConfigError(f"frames file {str(path)!r} does not exist; write the frames with numpy.save first") from None
         except ValueError as exc:
             raise ConfigError(f"frames file {str(path)!r} is not a plain .npy array ({exc}); save it with numpy.save") from None
-        want = (self.height, self.width) + ((3,) if is_rgb(self.pixel_format) else ())
+        n = components(self.pixel_format)
+        want = (self.height, self.width) + ((n,) if n > 1 else ())
         dtype = sample_dtype(sample_bits(self.pixel_format))
         if arr.ndim != len(want) + 1 or tuple(arr.shape[1:]) != want or arr.dtype != dtype:
             raise ConfigError(

@@ -4,7 +4,9 @@ One word of a bus carrying ``lanes`` pixels a clock holds ``lanes`` pixel fields
 each. With ``lane_order = "first_low"`` (the default) the first pixel of the group (the leftmost on
 the line) sits in the least significant field; ``"first_high"`` puts it in the most significant one.
 Inside a pixel field an RGB pixel holds its three components in ``component_order``, most significant
-first (``"RGB"``: R in the top bits, B in the bottom ones; ``"BGR"`` the other way round).
+first (``"RGB"``: R in the top bits, B in the bottom ones; ``"BGR"`` the other way round). A Y'CbCr
+pixel holds Y' in its low field and the colour differences above it: ``C << bits | Y`` for 4:2:2 (Cb
+on even columns, Cr on odd), ``Cr << 2*bits | Cb << bits | Y`` for 4:4:4.
 
 The model never sees any of this: sources pack frames into words here, and the monitors' captures
 (one sample per bus word) are unpacked here into one sample per pixel.
@@ -24,7 +26,7 @@ import numpy as np
 
 from vkit.core.errors import ConfigError
 from vkit.core.validate import fail, suggest, want_choice
-from vkit.core.vocab import COMPONENT_ORDERS, PIXEL_FORMAT_BITS, is_rgb, sample_bits
+from vkit.core.vocab import COMPONENT_ORDERS, PIXEL_FORMAT_BITS, is_rgb, is_ycbcr, sample_bits
 from vkit.video.capture import UNKNOWN, Capture
 from vkit.video.timing import VideoTiming, tiny
 
@@ -101,6 +103,9 @@ class BusLayout:
         """The pixel field of every pixel, int64 ``(N, H, W)``: a grey sample as is, an RGB pixel's
         components packed in :attr:`component_order`."""
         arr = np.asarray(frames).astype(np.int64)
+        if is_ycbcr(self.pixel_format):  # Y' in the low field, the colour differences above it in order
+            bits = self.sample_bits
+            return sum((arr[..., k] << (bits * k) for k in range(arr.shape[-1])), np.zeros(arr.shape[:-1], np.int64))
         if not is_rgb(self.pixel_format):
             return arr
         bits = self.sample_bits

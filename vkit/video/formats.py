@@ -12,7 +12,7 @@ from typing import Any
 import numpy as np
 
 from vkit.core.errors import ConfigError
-from vkit.core.vocab import PIXEL_FORMAT_BITS, is_rgb, sample_bits
+from vkit.core.vocab import PIXEL_FORMAT_BITS, components, is_rgb, is_ycbcr, sample_bits
 from vkit.core.validate import suggest
 
 __all__ = ["PIXEL_FORMAT_BITS", "pixel_bits", "pack_rgb", "unpack_rgb", "pixel_words", "frames_array"]
@@ -88,6 +88,8 @@ def frames_array(frames: Any, pixel_format: str | None = None) -> tuple[np.ndarr
         ConfigError: empty input, mixed shapes, values outside the format's range or a shape/format mismatch.
     """
     arr = frames if isinstance(frames, np.ndarray) else np.asarray(frames)
+    if pixel_format is not None and is_ycbcr(pixel_format):
+        return _ycbcr_frames(arr, pixel_format), pixel_format
     rgb = None if pixel_format is None else is_rgb(pixel_format)
     # A single frame is (H, W) or (H, W, 3); a 3-D array ending in 3 is one RGB frame unless grey was asked.
     if arr.ndim == 2 or (arr.ndim == 3 and arr.shape[-1] == 3 and rgb is not False):
@@ -109,6 +111,20 @@ def frames_array(frames: Any, pixel_format: str | None = None) -> tuple[np.ndarr
             raise ConfigError(f"frames: dtype {arr.dtype} with values outside 0..{top}; give {bits}-bit samples ({dtype})")
         arr = arr.astype(dtype)
     return arr, fmt
+
+
+def _ycbcr_frames(arr: np.ndarray, pixel_format: str) -> np.ndarray:
+    """Y'CbCr frames ``(N, H, W, 2 | 3)`` (a single frame gets its N axis) in their sample dtype."""
+    n, bits = components(pixel_format), sample_bits(pixel_format)
+    if arr.ndim == 3:
+        arr = arr[None]
+    if arr.ndim != 4 or arr.shape[-1] != n or arr.size == 0:
+        raise ConfigError(f"frames: shape {arr.shape} is not (N, H, W, {n}) of {pixel_format}; "
+                          "give Y, C (4:2:2) or Y, Cb, Cr (4:4:4) samples a pixel")
+    top = (1 << bits) - 1
+    if not np.issubdtype(arr.dtype, np.integer) or arr.min() < 0 or arr.max() > top:
+        raise ConfigError(f"frames: values outside 0..{top}; give {bits}-bit samples")
+    return arr.astype(np.uint8 if bits <= 8 else np.uint16)
 
 
 def _format_of_shape(shape: tuple[int, ...]) -> str:

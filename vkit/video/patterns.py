@@ -8,7 +8,9 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from vkit.core.errors import ConfigError
+from vkit.core.vocab import components, sample_bits
 from vkit.model.luma import sample_dtype
+from vkit.model.ycbcr import YCbCrCoding, rgb_to_ycbcr
 from vkit.video.killers import killers
 from vkit.video.limits import check_frame_size
 
@@ -28,6 +30,7 @@ __all__ = [
     "conveyor",
     "to_rgb",
     "to_bits",
+    "ycbcr_frame",
 ]
 
 
@@ -155,6 +158,28 @@ def noise(height: int, width: int, seed: int = 0, rgb: bool = False, bits: int =
     _check_size(height, width)
     shape = (height, width, 3) if rgb else (height, width)
     return np.random.default_rng(seed).integers(0, 1 << bits, size=shape, dtype=sample_dtype(bits))
+
+
+PATTERN_CODING = "bt601"
+"""The Y'CbCr coding RGB patterns are converted with for a Y'CbCr design (full range): any coding gives
+valid frames; the model filters Y' as it comes and passes Cb, Cr through."""
+
+
+def ycbcr_frame(rgb: np.ndarray, pixel_format: str) -> np.ndarray:
+    """An RGB pattern ``(H, W, 3)`` as the samples of a Y'CbCr format: 4:4:4 ``(H, W, 3)`` Y, Cb, Cr, or
+    4:2:2 ``(H, W, 2)`` Y, C with C = Cb on even columns and Cr on odd ones, both taken from the even
+    (co-sited) pixel of each pair (ITU-R BT.601-7 4:2:2 sampling)."""
+    bits = sample_bits(pixel_format)
+    ycc = rgb_to_ycbcr(rgb, YCbCrCoding(PATTERN_CODING, "full", max(8, bits)))  # rgb drawn at max(8, bits)
+    if bits < 8:
+        ycc >>= 8 - bits
+    if components(pixel_format) == 3:
+        return ycc.astype(sample_dtype(bits))
+    width = ycc.shape[1]
+    c = np.empty(ycc.shape[:2], np.int64)
+    c[:, 0::2] = ycc[:, 0::2, 1]
+    c[:, 1::2] = ycc[:, 0:width - (width % 2):2, 2] if width % 2 == 0 else ycc[:, 0:width - 1:2, 2]
+    return np.stack([ycc[..., 0], c], axis=-1).astype(sample_dtype(bits))
 
 
 def to_bits(img: np.ndarray, bits: int) -> np.ndarray:

@@ -77,3 +77,60 @@ def test_out_of_range_samples_are_refused() -> None:
         rgb_to_ycbcr(np.full((1, 1, 3), 300), YCbCrCoding("bt601", "full", 8))
     with pytest.raises(ConfigError, match="standard"):
         YCbCrCoding("bt2020")
+
+
+# ------------------------------------------------------------------ Y'CbCr inputs of a pipeline spec
+
+def _ycc_spec(fmt: str, chroma: str, kind: str = "min") -> "PipelineSpec":
+    from vkit.model.spec import PipelineSpec
+
+    return PipelineSpec.from_dict({"name": "ycc", "input": fmt, "chroma": chroma, "filter": {"kind": kind},
+                                   "output": {"bits": 8}})
+
+
+def test_422_luma_is_filtered_and_chroma_passes_above_it() -> None:
+    import scipy.ndimage as ndi
+
+    from vkit.model.exact import run_model
+
+    img = np.random.default_rng(9).integers(0, 256, (12, 16, 2)).astype(np.uint8)
+    out = run_model(_ycc_spec("ycbcr422_8", "pass"), img).output.astype(np.int64)
+    # Reference: scipy.ndimage.minimum_filter, size 3, mode "nearest" (replicate), on Y' alone.
+    y = ndi.minimum_filter(img[..., 0], size=3, mode="nearest").astype(np.int64)
+    assert np.array_equal(out, y | (img[..., 1].astype(np.int64) << 8))
+    dropped = run_model(_ycc_spec("ycbcr422_8", "drop"), img).output
+    assert np.array_equal(dropped, y)
+
+
+def test_444_chroma_word_order() -> None:
+    from vkit.model.exact import run_model
+
+    img = np.random.default_rng(10).integers(0, 256, (6, 8, 3)).astype(np.uint8)
+    out = run_model(_ycc_spec("ycbcr444_8", "pass", "max"), img).output
+    # Reference: Python integers: Y' in bits 7..0, Cb in 15..8, Cr in 23..16.
+    y = int(out[2, 3]) & 0xFF
+    assert int(out[2, 3]) == y | (int(img[2, 3, 1]) << 8) | (int(img[2, 3, 2]) << 16)
+    assert _ycc_spec("ycbcr444_8", "pass").output_word_bits == 24
+
+
+def test_chroma_key_only_for_ycbcr_inputs() -> None:
+    from vkit.model.spec import PipelineSpec
+
+    with pytest.raises(ConfigError, match="chroma = 'pass' is only for a Y'CbCr input"):
+        PipelineSpec.from_dict({"name": "g", "input": "gray8", "chroma": "pass", "filter": {"kind": "min"}})
+    with pytest.raises(ConfigError, match="luma .* not used with ycbcr422_8"):
+        PipelineSpec.from_dict({"name": "g", "input": "ycbcr422_8", "luma": {}, "filter": {"kind": "min"}})
+
+
+def test_422_frames_take_cb_and_cr_from_the_even_pixel() -> None:
+    from vkit.video.bus import BusLayout
+    from vkit.video.patterns import ycbcr_frame
+
+    rgb = np.random.default_rng(11).integers(0, 256, (2, 6, 3)).astype(np.uint8)
+    full = rgb_to_ycbcr(rgb, YCbCrCoding("bt601", "full", 8))
+    f = ycbcr_frame(rgb, "ycbcr422_8")
+    # ITU-R BT.601-7 4:2:2: Cb and Cr co-sited with the even (first) luma sample of each pair.
+    assert np.array_equal(f[..., 0], full[..., 0])
+    assert np.array_equal(f[:, 0::2, 1], full[:, 0::2, 1]) and np.array_equal(f[:, 1::2, 1], full[:, 0::2, 2])
+    word = BusLayout("ycbcr422_8").pixel_words(f[None])[0]
+    assert int(word[1, 3]) == int.from_bytes(bytes([int(f[1, 3, 1]), int(f[1, 3, 0])]), "big")  # {C, Y}

@@ -173,3 +173,11 @@ def test_scaffold_guesses_the_lane_count_from_the_bus_width() -> None:
     assert _layout_guesses(20, 20)[0] == ("gray10", 2)
     assert _layout_guesses(48, 16)[0] == ("rgb888", 2)
     assert _layout_guesses(30, 10)[0] == ("rgb101010", 1)
+
+
+def test_scaffold_reads_ycbcr_from_the_port_name() -> None:
+    from vkit.run.scaffold import _ycbcr_guess
+
+    assert _ycbcr_guess("cam_ycc", 16) == "ycbcr422_8"
+    assert _ycbcr_guess("vid_yuv_i", 20) == "ycbcr422_10"
+    assert _ycbcr_guess("cam_px", 16) is None

@@ -277,6 +277,21 @@ def _layout_guesses(in_width: int, out_width: int | None) -> list[tuple[str, int
     return found
 
 
+_YCBCR_WORDS = ("ycc", "ycbcr", "yuv", "ycrcb", "yc")
+"""Words in a data port's name that say it carries Y'CbCr (common practice, no source)."""
+
+
+def _ycbcr_guess(name: str, width: int) -> str | None:
+    """``ycbcr422_<b>`` for a ``2b``-bit port (or ``ycbcr444_<b>`` for a ``3b``-bit one whose width is not
+    even) named like Y'CbCr; None otherwise."""
+    if not any(w in _YCBCR_WORDS for w in _words(name)):
+        return None
+    for kind, n in (("ycbcr422", 2), ("ycbcr444", 3)):
+        if width % n == 0 and 8 <= width // n <= 16:
+            return pixel_format_name(kind, width // n)
+    return None
+
+
 def _pixel_format(chosen: Mapping[str, _Pick], notes: list[str]) -> tuple[str, int]:
     """The pixel format and the pixels a clock the input data port's width suggests (a note says which and why)."""
     if "in_data" not in chosen:
@@ -289,6 +304,11 @@ def _pixel_format(chosen: Mapping[str, _Pick], notes: list[str]) -> tuple[str, i
         notes.append(f"in_data: width of {port.name} is {port.width_expr or 'unknown'}; assumed gray8 (8 bits); CONFIRM")
         return "gray8", 1
     out = chosen.get("out_data")
+    ycc = _ycbcr_guess(port.name, w)
+    if ycc is not None:
+        notes.append(f"in_data: {port.name} is {w} bits and its name says Y'CbCr: guessed {ycc} "
+                     "(Y in the low bits, the colour differences above); CONFIRM")
+        return ycc, 1
     guesses = _layout_guesses(w, out[1].width if out is not None else None)
     if not guesses:
         pixel_format = "rgb888" if w > 24 else "gray8"

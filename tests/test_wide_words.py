@@ -181,3 +181,12 @@ def test_scaffold_reads_ycbcr_from_the_port_name() -> None:
     assert _ycbcr_guess("cam_ycc", 16) == "ycbcr422_8"
     assert _ycbcr_guess("vid_yuv_i", 20) == "ycbcr422_10"
     assert _ycbcr_guess("cam_px", 16) is None
+
+
+def test_stream_transfers_carry_one_group_each() -> None:
+    from vkit.video.words import stream_transfers
+
+    frames = np.arange(3 * 8, dtype=np.uint8).reshape(1, 3, 8)
+    t = stream_transfers(frames, BusLayout("gray8", lanes=2))
+    assert t.data.size == 12 and t.eol.nonzero()[0].tolist() == [3, 7, 11] and t.sof.nonzero()[0].tolist() == [0]
+    assert int(t.data[1]) == (3 << 8) | 2  # Python integers: pixel 2 low, pixel 3 high

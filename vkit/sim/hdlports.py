@@ -14,6 +14,7 @@ import re
 import subprocess
 import tempfile
 from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import replace
 from pathlib import Path
 
 from vkit.core.errors import ConfigError
@@ -48,9 +49,27 @@ def _paths(paths: _Paths) -> list[Path]:
     return out
 
 
+_CACHE: dict[tuple[object, ...], list[HdlDesign]] = {}
+_CACHE_ENTRIES = 32
+"""Reads kept per process: the pre-run checks read the same top once per case, and GHDL takes a few
+tenths of a second; a source edited since (size or modification time) is read again."""
+
+
 def _read(paths: list[Path], top: str | None, parameters: Mapping[str, int | str] | None, defines: _Defines,
           include_dirs: Sequence[str | Path]) -> list[HdlDesign]:
     """Every module and entity of ``paths`` in file order; ``top`` (when given) elaborated with the overrides."""
+    stats = tuple((str(p.resolve()), p.stat().st_mtime_ns, p.stat().st_size) for p in paths)
+    key = (stats, top, tuple(sorted((parameters or {}).items())), tuple(sorted(_macro_map(defines).items())),
+           tuple(str(d) for d in include_dirs))
+    if key not in _CACHE:
+        if len(_CACHE) >= _CACHE_ENTRIES:
+            _CACHE.pop(next(iter(_CACHE)))
+        _CACHE[key] = _read_uncached(paths, top, parameters, defines, include_dirs)
+    return [replace(d, ports=list(d.ports), parameters=dict(d.parameters)) for d in _CACHE[key]]
+
+
+def _read_uncached(paths: list[Path], top: str | None, parameters: Mapping[str, int | str] | None,
+                   defines: _Defines, include_dirs: Sequence[str | Path]) -> list[HdlDesign]:
     verilog = [p for p in paths if language_of(p) == "verilog"]
     vhdl = [p for p in paths if language_of(p) == "vhdl"]
     designs: list[HdlDesign] = []

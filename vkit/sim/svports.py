@@ -17,6 +17,7 @@ import pyslang
 
 from vkit.core.errors import ConfigError
 from vkit.sim.hdldesign import INTERFACE, HdlDesign, Port
+from vkit.sim.simulators import TIMESCALE
 
 __all__ = ["read_verilog"]
 
@@ -44,6 +45,8 @@ def _bag(defines: Mapping[str, str], include_dirs: Sequence[Path], tops: Sequenc
     comp.paramOverrides = [f"{k}={_sv_value(v)}" for k, v in parameters.items()]
     # A top level with interface ports is what the scaffold's wrapper is for: let it elaborate.
     comp.flags = pyslang.ast.CompilationFlags.AllowTopLevelIfacePorts
+    # Builds give the simulators a default timescale, so a file without `timescale next to one with it is fine.
+    comp.defaultTimeScale = pyslang.TimeScale.fromString("/".join(TIMESCALE))
     return pyslang.Bag([pre, comp])
 
 
@@ -134,12 +137,18 @@ def _ports(body: object) -> list[Port]:
 
 
 def _parameters(body: object) -> dict[str, int | None]:
-    """Overridable parameters -> elaborated integer value (None for strings, reals)."""
+    """Overridable parameters -> elaborated integer value (None for strings, reals).
+
+    An untyped parameter whose default is a string literal (``parameter TABLE = "t.hex"``) elaborates to
+    the string's bits; it is a file name to the user, so it counts as not an integer.
+    """
     out: dict[str, int | None] = {}
     for prm in body.parameters:  # type: ignore[attr-defined]
         if prm.kind != pyslang.ast.SymbolKind.Parameter or prm.isLocalParam:
             continue
         value = prm.value.value
+        if prm.initializer is not None and prm.initializer.isImplicitString:
+            value = None
         out[prm.name] = int(value) if isinstance(value, pyslang.SVInt) and not value.hasUnknown else None
     return out
 

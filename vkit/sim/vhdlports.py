@@ -301,7 +301,7 @@ def _ghdl_elaborate(paths: list[Path], design: HdlDesign, integers: set[str], ov
         work = Path(tmp)
         (work / "vkit_probe.vhd").write_text(_probe_text(design, integers))
         common = ["--std=08", f"--workdir={work}"]  # as vkit builds VHDL
-        _ghdl_run(["ghdl", "-a", *common, *map(str, paths)], work, env, paths)
+        _ghdl_run(["ghdl", "-a", *common, *(str(p.resolve()) for p in paths)], work, env, paths)
         _ghdl_run(["ghdl", "-a", *common, str(work / "vkit_probe.vhd")], work, env, paths)
         known = {g.lower(): g for g in design.parameters}
         generics = [f"-g{known[k.lower()]}={int(v)}" for k, v in overrides.items() if k.lower() in known]

@@ -146,6 +146,9 @@ def _vlt_width(dtype: Mapping[str, object] | None, nodes: Mapping[str, Mapping[s
         return (abs(int(m.group(1)) - int(m.group(2))) + 1) * inner
     if kind in ("REFDTYPE", "TYPEDEF") and dtype.get("refDTypep"):
         return _vlt_width(nodes.get(str(dtype.get("refDTypep"))), nodes)
+    if kind == "STRUCTDTYPE" and dtype.get("packed"):
+        members = [_vlt_width(nodes.get(str(m.get("dtypep"))), nodes) for m in dtype.get("membersp", [])]  # type: ignore[union-attr]
+        return None if not members or None in members else sum(members)  # type: ignore[arg-type]
     return None
 
 

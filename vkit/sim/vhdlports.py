@@ -274,8 +274,12 @@ def _probe_text(design: HdlDesign, integers: set[str]) -> str:
     return f"architecture vkit_probe of {design.name} is\nbegin\n  process begin\n{body}\n    wait;\n  end process;\nend architecture;\n"
 
 
-def _ghdl_run(cmd: list[str], cwd: Path, env: Mapping[str, str], sources: list[Path]) -> str:
-    """Run one GHDL step; its first error becomes one ConfigError line naming file:line."""
+def _ghdl_run(cmd: list[str], cwd: Path, env: Mapping[str, str], sources: list[Path], strict: bool = True) -> str | None:
+    """Run one GHDL step; its output, or its first error as one ConfigError line naming file:line.
+
+    With ``strict`` False a failure outside the user's sources (in vkit's probe) returns None instead:
+    the light reader's view then stands.
+    """
     import subprocess
 
     proc = subprocess.run(cmd, capture_output=True, text=True, cwd=cwd, env=dict(env), timeout=120, check=False)
@@ -286,6 +290,8 @@ def _ghdl_run(cmd: list[str], cwd: Path, env: Mapping[str, str], sources: list[P
     names = {p.name for p in sources}
     if first is not None and Path(first["file"]).name in names:
         raise ConfigError(f"{Path(first['file']).name}:{first['line']}: {first['text']}; fix the source (GHDL rejects it)")
+    if not strict:
+        return None
     detail = first["text"] if first is not None else (lines[0] if lines else f"exit {proc.returncode}")
     raise ConfigError(f"GHDL could not read the VHDL sources ({detail}); fix the sources or the top name")
 
@@ -302,10 +308,14 @@ def _ghdl_elaborate(paths: list[Path], design: HdlDesign, integers: set[str], ov
         (work / "vkit_probe.vhd").write_text(_probe_text(design, integers))
         common = ["--std=08", f"--workdir={work}"]  # as vkit builds VHDL
         _ghdl_run(["ghdl", "-a", *common, *(str(p.resolve()) for p in paths)], work, env, paths)
-        _ghdl_run(["ghdl", "-a", *common, str(work / "vkit_probe.vhd")], work, env, paths)
         known = {g.lower(): g for g in design.parameters}
         generics = [f"-g{known[k.lower()]}={int(v)}" for k, v in overrides.items() if k.lower() in known]
-        out = _ghdl_run(["ghdl", "--elab-run", *common, design.name.lower(), "vkit_probe", *generics], work, env, paths)
+        out = _ghdl_run(["ghdl", "-a", *common, str(work / "vkit_probe.vhd")], work, env, paths, strict=False)
+        if out is not None:
+            out = _ghdl_run(["ghdl", "--elab-run", *common, design.name.lower(), "vkit_probe", *generics], work, env,
+                            paths, strict=False)
+    if out is None:  # vkit's probe did not fit this entity (a port type it misread): keep the light reader's view
+        return design
     found = {(m[1], m[2].lower()): int(m[3]) for m in re.finditer(rf"{_PROBE} (generic|port) (\w+) (-?\d+)", out)}
     parameters = {g: found.get(("generic", g.lower()), v) for g, v in design.parameters.items()}
     ports = [Port(p.name, p.direction, found.get(("port", p.name.lower()), p.width), p.signed, p.width_expr)

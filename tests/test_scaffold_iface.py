@@ -112,3 +112,18 @@ def test_scaffolded_interface_top_runs_green_on_verilator_and_catches_a_seeded_b
     assert _init(repo, "-D", "BUG_BLUR_TRUNCATE", "--force", "--rewrite-config").returncode == 0
     bad = _vkit(["run", "vkit.toml", "--only", "conveyor-s1/tiny32x24/nostall"], repo)
     assert bad.returncode == 1, bad.stdout[-2000:] + bad.stderr[-2000:]
+
+
+def test_init_reads_through_include_folders_and_writes_them_into_the_config(tmp_path: Path) -> None:
+    repo = _repo(tmp_path)
+    (repo / "inc").mkdir()
+    (repo / "inc" / "belt_line.svh").write_text("`define BELT_LINE_PIXELS 320\n")
+    top = repo / "rtl" / "belt_smooth_top.sv"
+    top.write_text('`include "belt_line.svh"\n' + top.read_text().replace(
+        "parameter int LINE_PIXELS = BELT_MAX_LINE", "parameter int LINE_PIXELS = `BELT_LINE_PIXELS"))
+    missing = _init(repo)
+    assert missing.returncode == 2 and "belt_smooth_top.sv:1: " in missing.stderr and "--include-dir" in missing.stderr
+    assert _init(repo, "-I", "inc").returncode == 0
+    config = load_config(repo / "vkit.toml")
+    assert config.designs["belt_smooth_top"].include_dirs == [(repo / "inc").resolve()]
+    assert "# parameters = { LINE_PIXELS = 320 }" in (repo / "vkit.toml").read_text()  # the elaborated default

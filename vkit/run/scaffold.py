@@ -391,7 +391,8 @@ class ScaffoldResult:
 
     def summary(self) -> str:
         """A few lines for the terminal: the files, the signal map with confidences, the notes."""
-        lines = [f"vkit init: {self.design.name} ({self.design.language}, family {self.guess.family}, spec {self.spec})"]
+        through = f", through {self.wrapper.name}" if self.wrapper is not None else ""
+        lines = [f"vkit init: {self.design.name} ({self.design.language}, family {self.guess.family}, spec {self.spec}{through})"]
         lines += [f"  kept {p} (as you left it)" for p in self.kept]
         lines += [f"  {'rewrote' if self.kept else 'wrote'} {p}" for p in self.written]
         for role, port in self.guess.roles.items():

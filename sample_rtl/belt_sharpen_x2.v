@@ -83,6 +83,6 @@ module belt_sharpen_x2 #(
     end
 
     /* verilator lint_off UNUSEDSIGNAL */
-    wire unused = &{1'b0, at_top, at_bottom, a_l, a_r[15:8], b_l, b_r[15:8], c_l[7:0], c_r[15:8]};
+    wire unused = &{1'b0, at_top, at_bottom, a_l, a_r, b_l, b_r, c_l[7:0], c_r[15:8]};
     /* verilator lint_on UNUSEDSIGNAL */
 endmodule

@@ -36,6 +36,9 @@ module belt_smooth10 #(
 );
 `ifdef BUG_PATH8
     wire [9:0] px_in = {cam_px[9:2], 2'b00};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire       low_bits_lost = &{1'b0, cam_px[1:0]};
+    /* verilator lint_on UNUSEDSIGNAL */
 `else
     wire [9:0] px_in = cam_px;
 `endif

@@ -68,9 +68,9 @@ module lane_rows #(
         end else if (replaying) begin
             f_valid  <= 1'b1;
             f_first  <= (replay_k == 0);
-            f_a      <= mem_old[replay_k];
-            f_c      <= mem_prev[replay_k];
-            f_b      <= mem_prev[replay_k];
+            f_a      <= mem_old[replay_k[$clog2(MAX_GROUPS)-1:0]];
+            f_c      <= mem_prev[replay_k[$clog2(MAX_GROUPS)-1:0]];
+            f_b      <= mem_prev[replay_k[$clog2(MAX_GROUPS)-1:0]];
             f_top    <= 1'b0;
             f_bottom <= 1'b1;
             if (replay_k + 1 == groups) begin

@@ -30,6 +30,7 @@ _SHOWN_BY = {
     "ring_from_filter": "conveyor",
     "lanes_swapped": "conveyor",
     "chroma_slip_odd": "conveyor",
+    "path8": "conveyor",
 }
 
 _CONFIG = """

@@ -84,7 +84,7 @@ def _assert_same_frames(cap: Capture, frames: np.ndarray) -> None:
 
 def test_capture_text_rebuilds_frames_lines_and_events() -> None:
     text = "\n".join([
-        "# vkit capture 1 video",
+        "# vkit capture 1 video 8",  # the harness names its output data width
         "3 P 0a", "4 P U", "5 L -", "6 X out_de", "7 P 0b", "8 L -",
         "9 H -", "10 F -", "10 B -", "11 P ff", "12 L -", "20 E -", "",
     ])
@@ -124,7 +124,7 @@ def test_binary_capture_gives_the_same_capture_as_text() -> None:
     from vkit.sim.fast.wire import CAPTURE_ROLES
 
     text = "\n".join([
-        "# vkit capture 1 video",
+        "# vkit capture 1 video 8",  # the harness names its output data width
         "3 P 0a", "4 P U", "5 L -", "6 X out_de", "7 P 0b", "8 L -",
         "9 H -", "10 F -", "10 B -", "11 P ff", "12 L -", "20 E -", "",
     ])
@@ -137,7 +137,7 @@ def test_binary_capture_gives_the_same_capture_as_text() -> None:
     # A 40-bit bus spans two data words; a cut-off last record is dropped, as a cut-off text line is.
     wide = _binary_records([(1, "F", 0, 0), (2, "P", 0, 0xAB_CDEF_0123), (3, "P", 0, 5)], 1, 40)
     c = parse_capture_binary(wide[:-3])
-    d = parse_capture_text("# vkit capture 1 stream\n1 F -\n2 P abcdef0123\n3 P")  # the text run cut mid-line
+    d = parse_capture_text("# vkit capture 1 stream 40\n1 F -\n2 P abcdef0123\n3 P")  # the text run cut mid-line
     _assert_same_capture(c, d)
     assert c.values.tolist() == [0xAB_CDEF_0123] and c.facts.timed_out is True
     with pytest.raises(ConfigError):
@@ -177,7 +177,7 @@ def test_stimulus_data_matches_the_per_clock_source(tmp_path: Path) -> None:
     sched, words = video_schedule_and_words(case)
     src = VideoSource.__new__(VideoSource)  # only prepare(), which needs no simulator
     src.pixel_format, src.timing, src.stalls = "gray8", case.video_timing(), case.stall_pattern()
-    src.blanking, src.blanking_value, src.seed = "random", 0, 9
+    src.blanking, src.blanking_value, src.seed, src.bus = "random", 0, 9, None
     ref_sched, ref_words = src.prepare(case.load_frames())
     np.testing.assert_array_equal(words, ref_words)
     np.testing.assert_array_equal(sched.valid, ref_sched.valid)
@@ -440,6 +440,17 @@ def _variants() -> list[tuple[str, str | None]]:
     return out
 
 
+def _scene_frames(pixel_format: str) -> np.ndarray:
+    """Two conveyor frames, 32x24, at ``pixel_format``'s sample width (Y'CbCr converted from RGB)."""
+    from vkit.core.vocab import is_rgb, is_ycbcr, sample_bits
+    from vkit.video.patterns import make_pattern, ycbcr_frame
+
+    bits, colour = sample_bits(pixel_format), is_rgb(pixel_format) or is_ycbcr(pixel_format)
+    out = [make_pattern("conveyor", 24, 32, seed=k + 1, rgb=colour, bits=max(8, bits) if is_ycbcr(pixel_format) else bits)
+           for k in range(2)]
+    return np.stack([ycbcr_frame(f, pixel_format) if is_ycbcr(pixel_format) else f for f in out])
+
+
 @pytest.mark.sim
 @pytest.mark.parametrize("design,bug", _variants(), ids=[f"{d}-{b or 'good'}" for d, b in _variants()])
 def test_fast_and_per_clock_paths_give_the_same_verdict(design: str, bug: str | None, tmp_path: Path) -> None:
@@ -447,6 +458,7 @@ def test_fast_and_per_clock_paths_give_the_same_verdict(design: str, bug: str | 
     _require("icarus")
     from vkit.video.patterns import box, to_rgb
     from vkit.model.pipeline import preset, run_model
+    from vkit.model.spec import PipelineSpec
     from vkit.check.scoreboard import score
 
     d = _sample_design(design)
@@ -468,7 +480,9 @@ def test_fast_and_per_clock_paths_give_the_same_verdict(design: str, bug: str | 
     if d["family"] == "stream" and "back-pressure" in needs:
         extra["backpressure"] = {"probability": 0.3, "max_length": 3, "seed": 2}
         extra["stream_gaps"] = {"probability": 0.2, "max_length": 2, "seed": 3}
-    spec = preset(d["spec"])
+    if d["pixel_format"] not in ("gray8", "rgb888"):  # wider samples, Y'CbCr: the conveyor scene at the design's format
+        frames = _scene_frames(d["pixel_format"])
+    spec = preset(d["spec"]) if isinstance(d["spec"], str) else PipelineSpec.from_dict(d["spec"])
     expected = [run_model(spec, f) for f in frames]
     verdicts = []
     for path in ("fast", "slow"):
@@ -476,7 +490,8 @@ def test_fast_and_per_clock_paths_give_the_same_verdict(design: str, bug: str | 
         work.mkdir()
         np.save(work / "frames.npy", frames)
         case = SimCase(d["family"], dict(d["ports"]), str(work / "frames.npy"), str(work / "out" / "cap.npz"), 32, 24,
-                       pixel_format=d["pixel_format"], seed=5, **extra)
+                       pixel_format=d["pixel_format"], seed=5, pixels_per_clock=d.get("pixels_per_clock", 1),
+                       **extra)
         run = run_fast if path == "fast" else _run_per_clock
         cap = run("icarus", case, d["top"], sources, work, parameters=params, defines=defines)
         verdicts.append(score(expected, cap))

@@ -11,7 +11,7 @@ from typing import Any
 import numpy as np
 
 from vkit.core.vocab import components, is_rgb, sample_bits
-from vkit.video.bus import BusLayout, clock_timing
+from vkit.video.bus import BusLayout, clock_timing, tiny_in_pixels
 from vkit.model.luma import sample_dtype
 from vkit.core.errors import ConfigError
 from vkit.core.validate import suggest
@@ -157,9 +157,10 @@ class SimCase:
         return SignalMap(dict(self.signals), self.family)
 
     def pixel_timing(self) -> VideoTiming:
-        """The timing counted in pixels, as given (``tiny(width, height)`` when none is given)."""
+        """The timing counted in pixels, as given (when none is given, the tiny timing of the clocks,
+        :func:`vkit.video.bus.tiny_in_pixels`, which is ``tiny(width, height)`` at one pixel a clock)."""
         if self.timing is None:
-            return tiny(self.width, self.height)
+            return tiny_in_pixels(self.width, self.height, self.pixels_per_clock)
         return VideoTiming.from_dict(self.timing)
 
     def video_timing(self) -> VideoTiming:

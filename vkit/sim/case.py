@@ -17,7 +17,7 @@ from vkit.core.errors import ConfigError
 from vkit.core.validate import suggest
 from vkit.sim.signals import FAMILY_ROLES, SignalMap
 from vkit.video.formats import PIXEL_FORMAT_BITS
-from vkit.video.timing import StallPattern, VideoTiming, tiny
+from vkit.video.timing import StallPattern, VideoTiming
 from vkit.video.words import BLANKING_MODES
 
 __all__ = ["SimCase", "CASE_ENV", "TIMEOUT_FACTOR", "TIMEOUT_MARGIN_CLOCKS", "error_file_for"]

@@ -317,9 +317,9 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
              help="keep case ids matching this glob or text (a whole case id selects exactly that case)"),
         _WAVES,
         _arg("--path", choices=DRIVE_MODES, default=None,
-             help="clock: cocotb drives every clock; fast: a generated HDL harness plays and captures "
-                  "whole runs; native: that harness as a plain executable, no cocotb (default: [run] path, "
-                  "'clock')"),
+             help="auto: per case the fastest path that can run it (native, else fast, else clock); clock: "
+                  "cocotb drives every clock; fast: a generated HDL harness plays and captures whole runs; "
+                  "native: that harness as a plain executable, no cocotb (default: [run] path, 'auto')"),
         _arg("--new-out", action="store_true",
              help="when another run is writing the report folder, write a sibling folder (OUT-2, ...) instead "
                   "of stopping"),
@@ -329,7 +329,8 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
         _arg("--sim", default=None, help="simulator (default: the demo's, verilator)"),
         _JOBS,
         _arg("--path", choices=DRIVE_MODES, default=None,
-             help="clock (the demo's default), fast (generated HDL harness) or native (no cocotb)"),
+             help="auto (the default: native on Verilog designs), clock (cocotb every clock), fast "
+                  "(generated HDL harness under cocotb) or native (that harness, no cocotb)"),
     )),
     ("export", "write one case as vectors and a self-checking plain-HDL testbench", _cmd_export, (
         _arg("config", help="config TOML"),

@@ -24,7 +24,7 @@ from vkit.check.scoreboard import Verdict, score
 from vkit.core.errors import ToolError, VkitError
 from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
 from vkit.report.writers import case_entry, case_folder, write_case_report
-from vkit.run.builds import build_for_drive
+from vkit.run.builds import build_for_drive, pick_drive
 from vkit.run.config import Case
 from vkit.run.coverage import stimulus_coverage
 from vkit.run.inputs import check_ports, make_frames
@@ -62,6 +62,8 @@ class _Prepared:
     spec: PipelineSpec
     frames: np.ndarray
     expected: list[ModelResult]
+    drive: str
+    """The drive path the case runs on (:func:`vkit.run.builds.pick_drive`)."""
 
 
 @dataclass(frozen=True)
@@ -85,20 +87,21 @@ def _strip_exc_name(text: str) -> str:
     return m.group(2) if m else text
 
 
-def _prepare(case: Case, out: Path) -> _Prepared:
-    """Check the spec and ports, make the frames and run the bit-exact model on them."""
-    sim_dir = case_folder(out, case.id, "sim")
+def _prepare(case: Case, options: RunOptions) -> _Prepared:
+    """Check the spec and ports, pick the drive path, make the frames and run the bit-exact model on them."""
+    sim_dir = case_folder(options.out_dir, case.id, "sim")
     spec = case.design.pipeline_spec()
     check_ports(case)
     frames = make_frames(case)
-    return _Prepared(sim_dir, spec, frames, [run_model(spec, f) for f in frames])
+    return _Prepared(sim_dir, spec, frames, [run_model(spec, f) for f in frames], pick_drive(case, options.drive))
 
 
 def _simulate(case: Case, prep: _Prepared, options: RunOptions, left_s: float) -> tuple[BuildOutcome, Capture]:
-    """Build (or reuse) and run the simulation (``left_s`` seconds at most); a missing capture becomes a
-    capture that says so."""
-    outcome = build_for_drive(case, BuildCache(options.cache_dir), options.drive)
-    capture_file = simulate(case, outcome.build_dir, prep.sim_dir, prep.frames, left_s, drive=options.drive)
+    """Build (or reuse) and run the simulation on the case's drive path (``left_s`` seconds at most); a
+    missing capture becomes a capture that says so."""
+    drive = prep.drive
+    outcome = build_for_drive(case, BuildCache(options.cache_dir), drive)
+    capture_file = simulate(case, outcome.build_dir, prep.sim_dir, prep.frames, left_s, drive=drive)
     if capture_file.exists():
         return outcome, Capture.load(capture_file)
     return outcome, Capture(facts=RunFacts(error=f"no capture was written; see {prep.sim_dir / 'sim.log'}"))
@@ -183,7 +186,7 @@ def _report(case: Case, prep: _Prepared, outcome: BuildOutcome, capture: Capture
     """Write the case's pictures and verdict.json; its report entry and result."""
     out, verdict, waves = options.out_dir, judged.verdict, judged.waves
     meta = {**case_meta(case, seconds), "build_dir": str(outcome.build_dir), "build_reused": outcome.reused,
-            "path": options.drive, "warnings": judged.warnings, "rerun": rerun}
+            "path": prep.drive, "asked_path": options.drive, "warnings": judged.warnings, "rerun": rerun}
     if waves is not None:
         meta["waves"] = waves
     files = write_case_report(case.id, verdict, prep.expected, capture, out, meta=meta, pictures=options.pictures)
@@ -192,7 +195,7 @@ def _report(case: Case, prep: _Prepared, outcome: BuildOutcome, capture: Capture
         files["waves"] = waves["file"]
     coverage = {**judged.coverage, "warnings": list(judged.warnings)}  # report.json carries the words too
     entry = case_entry(case.id, verdict, simulator=case.simulator, seeds=case.seeds(), files=files,
-                       coverage=coverage, meta=meta)
+                       coverage=coverage, meta=meta, drive=meta["path"])
     if judged.by_mutant is not None:
         entry["diagnosis_by_mutant"] = judged.by_mutant.to_dict()
     diag = verdict.diagnosis
@@ -242,7 +245,7 @@ def run_one_case(case: Case, options: RunOptions) -> CaseResult:
     sim_dir: Path | None = None
     in_simulation = False
     try:
-        prep = _prepare(case, out)
+        prep = _prepare(case, options)
         left_s = options.timeout_s - (time.monotonic() - t0)
         if left_s <= 0:  # the time limit covers the stimulus and the model too
             return _too_slow(case, options, time.monotonic() - t0, prep.sim_dir, rerun)

@@ -47,7 +47,7 @@ from vkit.core.validate import (
     want_str_list,
     want_table,
 )
-from vkit.core.vocab import DRIVE_MODES, VERILOG_SUFFIXES, VHDL_SUFFIXES, WAVE_MODES
+from vkit.core.vocab import DRIVE_DEFAULT, DRIVE_MODES, VERILOG_SUFFIXES, VHDL_SUFFIXES, WAVE_MODES
 from vkit.model import pipeline
 from vkit.sim.signals import FAMILY_ROLES
 from vkit.video.formats import PIXEL_FORMAT_BITS
@@ -194,9 +194,10 @@ class RunSettings:
             ``"all"`` or ``"off"``.
         exit_code: ``"verdicts"`` or ``"expectations"`` (:data:`EXIT_CODE_MODES`).
         pictures: ``"failing"`` (PNGs for failing frames only) or ``"all"`` (every frame, passing too).
-        drive: the drive mode, config key ``path``: ``"clock"`` (cocotb drives every clock), ``"fast"`` (a
-            generated HDL harness plays and captures whole runs; same verdicts, far fewer Python wake-ups)
-            or ``"native"`` (that harness as a plain executable without cocotb; Icarus and Verilator).
+        drive: the drive mode, config key ``path``: ``"auto"`` (the default: per case the fastest of the
+            three below that can run it), ``"clock"`` (cocotb drives every clock), ``"fast"`` (a generated
+            HDL harness plays and captures whole runs; same verdicts, far fewer Python wake-ups) or
+            ``"native"`` (that harness as a plain executable without cocotb; Icarus and Verilator).
     """
 
     out_dir: Path
@@ -209,7 +210,7 @@ class RunSettings:
     coverage_floor: float = 0.5
     waves: str = "failing"
     pictures: str = "failing"
-    drive: str = "clock"
+    drive: str = DRIVE_DEFAULT
     exit_code: str = "verdicts"
 
     @property

@@ -140,7 +140,7 @@ class VkitCaseItem(pytest.Item):
             pytest.skip(f"{self.case.simulator} is not usable here: {info.reason}")
         s = self.run_settings
         options = RunOptions.make(self.out_dir, cache_dir=s.cache_dir, timeout_s=s.timeout_s,
-                                  max_listed=s.max_listed, coverage_floor=s.coverage_floor)
+                                  max_listed=s.max_listed, coverage_floor=s.coverage_floor, drive=s.drive)
         res = run_one_case(self.case, options)
         self.result = res
         self.config.stash[_ENTRIES].setdefault(str(self.out_dir), []).append(res.entry)

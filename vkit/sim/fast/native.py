@@ -29,10 +29,25 @@ from vkit.sim.guard import GuardOutcome, run_guarded
 from vkit.sim.simulators import find, require, subprocess_env
 from vkit.video.capture import Capture
 
-__all__ = ["NATIVE_SIMULATORS", "NativeBuild", "native_build_plan", "native_build", "native_run_args", "run_native"]
+__all__ = ["NATIVE_SIMULATORS", "harness_drives", "NativeBuild", "native_build_plan", "native_build", "native_run_args", "run_native"]
 
 NATIVE_SIMULATORS = ("icarus", "verilator")
 """Simulators :func:`native_build_plan` builds a plain executable with (Verilog harness)."""
+
+_HARNESS_LANGUAGE = {"icarus": "verilog", "verilator": "verilog", "ghdl": "vhdl"}
+"""The harness language each simulator builds (the design's language must match it)."""
+
+
+def harness_drives(simulator: str, language: str) -> tuple[str, ...]:
+    """The harness drive paths ``simulator`` offers for a design in ``language``, fastest first.
+
+    ``("native", "fast")`` for a Verilog design on Icarus or Verilator, ``("fast",)`` for a VHDL design on
+    GHDL, ``()`` where no harness is made (the design then runs clock by clock).
+    """
+    if _HARNESS_LANGUAGE.get(simulator) != language:
+        return ()
+    return ("native", "fast") if simulator in NATIVE_SIMULATORS else ("fast",)
+
 
 _NATIVE_INFO = "vkit_native.json"
 _LOG_TAIL_LINES = 3

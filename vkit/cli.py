@@ -310,7 +310,9 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
     ("run", "run a regression config", _cmd_run, (
         _arg("config", help="config TOML (or a pyproject.toml with [tool.vkit])"),
         _JOBS,
-        _arg("--shard", default=None, help="K/N: run only shard K of N (case i goes to shard i %% N + 1)"),
+        _arg("--shard", default=None, help="K/N: run only shard K of N (case i goes to shard i %% N + 1); auto: K "
+             "and N from the array job or CI matrix (VKIT_SHARD, SLURM_ARRAY_TASK_ID/_COUNT, SGE_TASK_ID/_LAST, "
+             "CI_NODE_INDEX/_TOTAL, CIRCLE_NODE_INDEX/_TOTAL, BUILDKITE_PARALLEL_JOB/_COUNT)"),
         _arg("--out", default=None, help="report folder (default: [run] out_dir)"),
         _arg("--sim", nargs="+", default=None, help="simulators (replaces [run] simulators)"),
         _arg("--only", action="append", default=None,

@@ -43,6 +43,8 @@ __all__ = [
 
 TIMESCALE = ("1ns", "1ps")
 """Time unit and precision given to Icarus and Verilator builds (cocotb's clock needs a timescale)."""
+RUNTIME_FOLDER = "verilator-runtime"
+"""Folder of the build cache holding Verilator's runtime objects, compiled once for every native build."""
 WAVE_MODULE = "vkit_wave_window"
 """Name of the Verilog module that limits a waveform dump to a time window."""
 PARAMETER_WORDING: dict[str, tuple[str, ...]] = {
@@ -229,7 +231,7 @@ def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> Bu
 
     def builder(bdir: Path) -> None:
         if native:
-            native_build(plan, case.simulator, bdir, always=True)
+            native_build(plan, case.simulator, bdir, always=True, runtime_dir=cache.cache_dir / RUNTIME_FOLDER)
             return
         kwargs = plan.build_kwargs(case.simulator)
         kwargs["build_args"] = [*kwargs["build_args"], *d.build_args]

@@ -31,6 +31,7 @@ __getattr__, __dir__, __all__ = lazy_facade(__name__, {
         "video_schedule_and_words write_expected write_hex write_stimulus "
         "write_words"
     ),
+    "vkit.sim.fast.vlruntime": "compiler_cache make_with_shared_runtime RUNTIME_OBJECTS",
     "vkit.sim.fast.testbench": (
         "TESTBENCH testbench_commands verilog_testbench vhdl_testbench "
         "write_testbench"

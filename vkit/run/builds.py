@@ -21,7 +21,7 @@ from vkit.core.errors import ConfigError, ToolError
 from vkit.core.validate import want_choice
 from vkit.core.vocab import DRIVE_DEFAULT, DRIVE_MODES
 from vkit.run.config import Case
-from vkit.run.inputs import check_parameters
+from vkit.run.inputs import check_parameters, check_ports
 from vkit.sim.buildcache import BuildCache, BuildOutcome, BuildRequest
 from vkit.sim.fast import HarnessBuild, fast_build_plan, harness_drives, native_build, native_build_plan
 from vkit.sim.simulators import activate, require
@@ -215,6 +215,7 @@ def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> Bu
             ``native`` was asked of a simulator or language that has no native build.
     """
     check_parameters(case)
+    check_ports(case)  # the harness names every mapped port: a misnamed one is the config's error, said as such
     info = require(case.simulator)
     activate(info)
     d = case.design

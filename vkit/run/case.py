@@ -12,6 +12,7 @@ import re
 import shlex
 import time
 import traceback
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
@@ -120,7 +121,8 @@ def _sim_stop(capture: Capture, timeout_s: float) -> Finding | None:
     return Finding("timeout" if outcome.timed_out else "crash", f"{outcome.describe()}; {last}", evidence, 1.0)
 
 
-def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -> _Judged:
+def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions,
+           stimulus: Future[tuple[dict[str, Any], list[str]]]) -> _Judged:
     """Score the capture, measure the stimulus coverage, and dump waves when the options ask for them.
 
     A simulation stopped at the time limit or by a signal is scored up to where it stopped (what
@@ -139,7 +141,7 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -
         verdict = replace(verdict, status=status, passed=False, findings=[stop, *verdict.findings])
     by_mutant = _mutant_diagnosis(verdict, prep)
     verdict = _named_by_mutant(verdict, by_mutant)
-    coverage, warnings = stimulus_coverage(prep.spec, prep.frames, options.coverage_floor)
+    coverage, warnings = stimulus.result()
     waves: dict[str, Any] | None = None
     wanted = options.waves == "all" or (options.waves == "failing" and verdict.status in ("fail", "no_output"))
     if wanted and stop is None:  # a stopped simulation would only stop again
@@ -250,13 +252,16 @@ def run_one_case(case: Case, options: RunOptions) -> CaseResult:
         if left_s <= 0:  # the time limit covers the stimulus and the model too
             return _too_slow(case, options, time.monotonic() - t0, prep.sim_dir, rerun)
         sim_dir, in_simulation = prep.sim_dir, True
-        outcome, capture = _simulate(case, prep, options, left_s)
-        in_simulation = False
+        with ThreadPoolExecutor(1) as pool:
+            # what the stimulus covers depends on the spec and frames only: measured while the simulator runs
+            stimulus = pool.submit(stimulus_coverage, prep.spec, prep.frames, options.coverage_floor)
+            outcome, capture = _simulate(case, prep, options, left_s)
+            in_simulation = False
         if capture.facts.error and capture.facts.sim_outcome is None:
             # the cocotb side stopped (misnamed port, narrow bus, ...): one line, capture and log kept
             message = _strip_exc_name(" ".join(str(capture.facts.error).split()))
             return _error(case, options, message, False, time.monotonic() - t0, sim_dir, rerun)
-        judged = _judge(case, prep, capture, options)
+        judged = _judge(case, prep, capture, options, stimulus)
         return _report(case, prep, outcome, capture, judged, options, time.monotonic() - t0, rerun)
     except VkitError as exc:
         return _error(case, options, str(exc), in_simulation or isinstance(exc, ToolError), time.monotonic() - t0,

@@ -15,8 +15,6 @@ from importlib import resources
 from pathlib import Path
 from typing import Any, Iterator
 
-from cocotb_tools.runner import get_runner
-
 from vkit.core.errors import ConfigError, ToolError
 from vkit.core.validate import want_choice
 from vkit.core.vocab import DRIVE_DEFAULT, DRIVE_MODES
@@ -40,6 +38,14 @@ __all__ = [
     "PARAMETER_WORDING",
     "quiet_pytest_env",
 ]
+
+
+def get_runner(simulator: str) -> Any:
+    """cocotb's runner for ``simulator``, imported on first use: a run on the native path never needs cocotb
+    (importing it costs about a second in every ``vkit run``)."""
+    from cocotb_tools.runner import get_runner as cocotb_runner
+
+    return cocotb_runner(simulator)
 
 TIMESCALE = ("1ns", "1ps")
 """Time unit and precision given to Icarus and Verilator builds (cocotb's clock needs a timescale)."""

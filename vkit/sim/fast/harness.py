@@ -7,9 +7,9 @@ stimulus: one build runs any image, timing, stall pattern, seed or frame count. 
 ``vkit/sim/templates/harness*.j2``; word layouts and capture records in :mod:`vkit.sim.fast.wire`.
 
 Verilog player: one binary word per clock (video) or per transfer (stream) read with ``$fread`` as the
-run goes; the run plays until the file ends. VHDL player (video only): a hex text file read into a
+run goes; the run plays until the file ends. VHDL player: video, a hex text file read into a
 memory whose depth is the ``DEPTH`` generic, given at run time (GHDL elaborates at run time, so this
-is not a rebuild). Clock index 0 is the first rising edge with reset released; on edge ``k`` the
+is not a rebuild); stream, one hex line per transfer read as the run goes. Clock index 0 is the first rising edge with reset released; on edge ``k`` the
 design samples word ``k`` and the capture samples the design's outputs as they stood before that edge.
 The Verilog harness writes binary capture records (``capture.bin``; text lines with
 ``+vkit_capture_bin=0``), the VHDL harness text (``capture.txt``); :mod:`vkit.sim.fast.capture_file`

@@ -281,7 +281,7 @@ def write_stimulus(case: SimCase, out_dir: str | Path, in_width: int | None = No
         out_dir: folder for ``stim.bin`` (Verilog) or ``stim.hex`` (VHDL), and ``ready.hex`` for the
             stream family.
         in_width: input data bus bits (default: the pixel format's bits).
-        language: "verilog" or "vhdl" (video only): which harness reads the files.
+        language: "verilog" or "vhdl": which harness reads the files.
     """
     if language not in ("verilog", "vhdl"):
         raise ConfigError(f"stimulus: language {language!r} is not known; use 'verilog' or 'vhdl'")

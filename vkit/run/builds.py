@@ -22,7 +22,7 @@ from vkit.run.config import Case
 from vkit.run.inputs import check_parameters, check_ports
 from vkit.sim.buildcache import BuildCache, BuildOutcome, BuildRequest
 from vkit.sim.fast import HarnessBuild, fast_build_plan, harness_drives, native_build, native_build_plan
-from vkit.sim.simulators import activate, require
+from vkit.sim.simulators import TIMESCALE, activate, require
 
 __all__ = [
     "TIMESCALE",
@@ -40,6 +40,7 @@ __all__ = [
 ]
 
 
+
 def get_runner(simulator: str) -> Any:
     """cocotb's runner for ``simulator``, imported on first use: a run on the native path never needs cocotb
     (importing it costs about a second in every ``vkit run``)."""
@@ -47,8 +48,7 @@ def get_runner(simulator: str) -> Any:
 
     return cocotb_runner(simulator)
 
-TIMESCALE = ("1ns", "1ps")
-"""Time unit and precision given to Icarus and Verilator builds (cocotb's clock needs a timescale)."""
+
 RUNTIME_FOLDER = "verilator-runtime"
 """Folder of the build cache holding Verilator's runtime objects, compiled once for every native build."""
 WAVE_MODULE = "vkit_wave_window"
@@ -182,7 +182,7 @@ def _harness_plan(case: Case) -> HarnessBuild:
     d = case.design
     return fast_build_plan(
         d.top, d.sources, d.language, d.build_parameters(case.width, case.height), d.defines, d.family,
-        d.ports, reset_active_high=d.reset_active_high, pixel_format=d.pixel_format,
+        d.ports, reset_active_high=d.reset_active_high, pixel_format=d.pixel_format, include_dirs=d.include_dirs,
     )
 
 

@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 __all__ = ["PIXEL_FORMAT_BITS", "SAMPLE_BITS_RANGE", "COMPONENT_ORDERS", "pixel_format_name", "sample_bits",
-           "components", "is_rgb", "is_ycbcr", "DRIVE_MODES", "WAVE_MODES", "VERILOG_SUFFIXES", "VHDL_SUFFIXES", "HDL_SUFFIXES"]
+           "components", "is_rgb", "is_ycbcr", "DRIVE_MODES", "DRIVE_PATHS", "DRIVE_DEFAULT", "WAVE_MODES",
+           "VERILOG_SUFFIXES", "VHDL_SUFFIXES", "HDL_SUFFIXES"]
 
 SAMPLE_BITS_RANGE: tuple[int, int] = (1, 16)
 """Fewest and most bits of one sample (one grey value, or one colour component)."""
@@ -61,9 +62,15 @@ def components(pixel_format: str) -> int:
             return n
     return 1
 
-DRIVE_MODES: tuple[str, ...] = ("clock", "fast", "native")
-"""How a case drives the design: ``clock`` (cocotb touches every clock), ``fast`` (the generated HDL
+DRIVE_PATHS: tuple[str, ...] = ("clock", "fast", "native")
+"""The ways a case can drive the design: ``clock`` (cocotb touches every clock), ``fast`` (the generated HDL
 harness plays the stimulus under cocotb), ``native`` (the same harness as a plain executable)."""
+
+DRIVE_DEFAULT = "auto"
+"""The drive mode that picks, per case, the fastest of :data:`DRIVE_PATHS` that can run it."""
+
+DRIVE_MODES: tuple[str, ...] = (DRIVE_DEFAULT, *DRIVE_PATHS)
+"""What a config (``[run] path``), ``--path`` and ``RunOptions.drive`` accept: ``auto`` or one of :data:`DRIVE_PATHS`."""
 
 WAVE_MODES: tuple[str, ...] = ("failing", "all", "off")
 """Which cases leave a waveform dump."""

@@ -98,7 +98,7 @@ _DESIGN_KEYS = (
     "top", "sources", "language", "family", "pixel_format", "parameters", "file_parameters",
     "frame_parameters", "defines", "spec", "spec_file", "ports", "reset_active_high", "reset_cycles",
     "clock_period_ns", "latency_clocks", "latency_timing", "pipeline_clocks", "tolerance_lsb",
-    "simulators", "expect", "description", "include_dirs", "build_args", "align", "timeout_clocks",
+    "simulators", "expect", "description", "include_dirs", "build_args", "align", "timeout_clocks", "instance",
 )
 _MANIFEST_DESIGN_KEYS = (
     "top", "sources", "language", "family", "spec", "pixel_format", "parameters", "file_parameters",
@@ -289,6 +289,9 @@ class DesignConfig:
         include_dirs, build_args: extra build inputs.
         align: scoreboard alignment, ``"exact"`` or ``"auto"``.
         timeout_clocks: simulation timeout in clocks, or None for the default.
+        instance: hierarchical path of the design's instance inside a larger top (``u_isp.u_edge``), read by
+            the passive scoreboard (below the cocotb toplevel live, a scope of the dump offline); None: the
+            design is the top.
     """
 
     name: str
@@ -323,6 +326,7 @@ class DesignConfig:
     build_args: list[str] = field(default_factory=list)
     align: str = "exact"
     timeout_clocks: int | None = None
+    instance: str | None = None
 
     def pipeline_spec(self) -> pipeline.PipelineSpec:
         """The :class:`vkit.model.pipeline.PipelineSpec` this design implements.
@@ -782,6 +786,7 @@ _DESIGN_FIELDS: dict[str, _Reader] = {
     "description": want_str,
     "build_args": want_str_list,
     "align": _choice(("exact", "auto")),
+    "instance": want_str,
 }
 """Design keys that are one checked value each (read the same in a design table and an import's ``set``)."""
 

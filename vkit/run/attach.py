@@ -84,7 +84,8 @@ class Board:
         if not verdict.passed:
             d = verdict.diagnosis
             raise PassiveFailure(f"vkit passive: {verdict.status}: {d.kind + ': ' + d.message if d else ''} "
-                                 f"({board.summary()}); page: {files['index']}")
+                                 f"({board.frames_scored} frame(s) scored, {board.frames_failing} failing); "
+                                 f"page: {files['index']}")
         return self.outcome
 
     async def check(self) -> PassiveOutcome:
@@ -105,7 +106,7 @@ def attach(instance: Any, config: str | Path | Config, *, design: str | None = N
             config's ``instance`` key gives the path from there.
         config: the vkit config (path or loaded) naming the design's ports, spec and pixel format.
         design: the design's name in the config (default: its only design).
-        out_dir: report folder (default: ``vkit-passive`` beside the config).
+        out_dir: report folder (default: ``vkit-passive`` in the simulator's working folder).
         fail_fast: fail the test at the first failing frame (default: at :meth:`Board.check`).
         chunk_clocks: clocks sampled between two scoring steps.
 
@@ -114,6 +115,7 @@ def attach(instance: Any, config: str | Path | Config, *, design: str | None = N
     """
     cfg = config if isinstance(config, Config) else load_config(config)
     d = pick_design(cfg, design)
+    _LOG.setLevel(logging.INFO)  # the per-frame lines and the running summary reach the simulator's log
     handle = instance
     if d.instance and not _has_port(instance, d.ports["clock"]):
         handle = find_instance(instance, d.instance)
@@ -124,7 +126,7 @@ def attach(instance: Any, config: str | Path | Config, *, design: str | None = N
                         sides={side: tuple(sides[side]) for side in ("in", "out")},
                         reset_active_high=d.reset_active_high, chunk_clocks=chunk_clocks)
     path = getattr(handle, "_path", getattr(handle, "_name", "?"))
-    out = Path(out_dir) if out_dir is not None else cfg.base_dir / "vkit-passive"
+    out = Path(out_dir) if out_dir is not None else Path.cwd() / "vkit-passive"
     meta = {"design": d.name, "top": d.top, "instance": path, "simulator": _simulator()}
     return Board(sampler_args, new_scoreboard(d), case_id=f"{d.name}:passive:{path}", out_dir=out.resolve(),
                  meta=meta, fail_fast=fail_fast)

@@ -14,7 +14,9 @@ from typing import Any
 import numpy as np
 
 from vkit.sim.signals import SignalMap
-from vkit.sim.tb._common import bit_reader, resolve_component, ticker, wait_reset_released, word_reader
+from cocotb.triggers import RisingEdge
+
+from vkit.sim.tb._common import bit_reader, resolve_component, ticker, word_reader
 from vkit.video.observe import Levels
 
 __all__ = ["LevelSampler", "CHUNK_CLOCKS", "find_instance"]
@@ -51,7 +53,8 @@ class LevelSampler:
         family: "video" or "stream".
         sides: side ("in", "out") -> roles (without the side prefix) to sample.
         on_chunk: called with ``{"in": Levels, "out": Levels}`` for every chunk of clocks.
-        reset_active_high: reset polarity; sampling starts on the first edge with the reset inactive.
+        reset_active_high: reset polarity; sampling starts on the first edge with the reset inactive (a reset
+            still X/Z, not yet driven, counts as active).
         chunk_clocks: clocks per chunk.
     """
 
@@ -81,7 +84,11 @@ class LevelSampler:
             self._task = cocotb.start_soon(self._run())
 
     async def _run(self) -> None:
-        await wait_reset_released(self._clock, self._reset, self.reset_active_high)
+        if self._reset is not None:  # X/Z before the testbench drives the reset counts as in reset
+            inactive = 0 if self.reset_active_high else 1
+            read = bit_reader(self._reset)
+            while read() != inactive:
+                await RisingEdge(self._clock)
         self._step = self._make_step()
         ticker(self._clock).add(self._step)
 

@@ -176,7 +176,10 @@ class PassiveScoreboard:
                 if not (frame.closed and ((out is not None and out.closed) or dead)):
                     break
             else:
-                if not self._ended_whole(frame, len(out.line_lengths) if out is not None else height):
+                # a last input frame nothing closed: whole when its output came out with as many lines
+                lines_out = len(out.line_lengths) if out is not None and self._ended_whole(out, height) else None
+                if not frame.closed and not (frame.line_ended and (lines_out == len(frame.line_lengths) or
+                                                                   (out is None and self.outputs.frames_out == 0))):
                     break
                 if out is None and self.outputs.frames_out > 0:
                     break  # the run ended before this frame's output: named by finish()

@@ -27,11 +27,11 @@ CHUNK_CLOCKS = 1 << 20
 _SUFFIXES = (".vcd", ".fst", ".ghw")
 
 
-def _values(changes: list[tuple[int, Any]]) -> np.ndarray:
-    """The values of a signal's changes as int64; X/Z (a string from the reader) as :data:`UNKNOWN`."""
-    out = np.fromiter((v if type(v) is int else UNKNOWN for _, v in changes), np.int64, len(changes))
+def _values(values: list[Any]) -> np.ndarray:
+    """A signal's change values as int64; X/Z (a string from the reader) as :data:`UNKNOWN`."""
+    out = np.fromiter((v if type(v) is int else UNKNOWN for v in values), np.int64, len(values))
     for k in np.flatnonzero(out == UNKNOWN):  # weak levels (GHDL's H and L) resolve as a simulator would
-        text = str(changes[k][1]).upper()
+        text = str(values[k]).upper()
         if text and set(text) <= {"0", "1", "H", "L"}:
             out[k] = int(text.replace("H", "1").replace("L", "0"), 2)
     return out
@@ -115,9 +115,14 @@ class Dump:
         """Load signal ``name`` (a full name from :meth:`find`)."""
         var = self._vars[name]
         sig = var.signal
-        changes = [sig[i] for i in range(len(sig))]
-        times = np.fromiter((t for t, _ in changes), np.int64, len(changes))
-        return _Signal(name, int(var.bitwidth or 1), times, _values(changes))
+        changes = sig[0:len(sig)]  # a slice is built by the reader, several times faster than item by item
+        width = int(var.bitwidth or 1)
+        try:  # all values known: one C-level conversion of the (time, value) pairs
+            table = np.array(changes, np.int64).reshape(-1, 2)
+            return _Signal(name, width, table[:, 0].copy(), table[:, 1].copy())
+        except (TypeError, ValueError, OverflowError):
+            times = np.fromiter((t for t, _ in changes), np.int64, len(changes))
+            return _Signal(name, width, times, _values([v for _, v in changes]))
 
     def rising_edges(self, clock: str) -> np.ndarray:
         """Times of the clock's rising edges (0 or X/Z -> 1 counts only from a known 0)."""

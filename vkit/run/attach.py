@@ -117,7 +117,7 @@ def attach(instance: Any, config: str | Path | Config, *, design: str | None = N
     d = pick_design(cfg, design)
     _LOG.setLevel(logging.INFO)  # the per-frame lines and the running summary reach the simulator's log
     handle = instance
-    if d.instance and not _has_port(instance, d.ports["clock"]):
+    if d.instance and _has_child(instance, d.instance.split(".")[0]):  # a handle above the design
         handle = find_instance(instance, d.instance)
     sides = side_roles(d)
     roles = {"clock": sides["clock"]["clock"], **({"reset": sides["clock"]["reset"]} if "reset" in sides["clock"] else {}),
@@ -132,7 +132,7 @@ def attach(instance: Any, config: str | Path | Config, *, design: str | None = N
                  meta=meta, fail_fast=fail_fast)
 
 
-def _has_port(handle: Any, name: str) -> bool:
+def _has_child(handle: Any, name: str) -> bool:
     try:
         return (handle._get(name) if hasattr(handle, "_get") else getattr(handle, name, None)) is not None
     except Exception:  # a simulator that raises on an unknown name

@@ -36,7 +36,7 @@ from vkit.model.pipeline import preset as spec_preset
 from vkit.model.pipeline import run_model
 from vkit.run.config import load_config
 from vkit.run.passive import score_dump
-from vkit.sim.simulators import activate, find, subprocess_env
+from vkit.sim.simulators import find, subprocess_env
 from vkit.video.formats import pack_rgb
 from vkit.video.patterns import conveyor
 from vkit.video.timing import preset, schedule
@@ -53,15 +53,18 @@ OUT_DELAY_CLOCKS = 40
 
 def _live_once(sim: str, build: Path, frames: int, work: Path) -> dict[str, tuple[float, float]]:
     """One simulator run of both tests; test name -> (real seconds, simulated ns)."""
-    env = {**subprocess_env(), "PYTHONPATH": os.pathsep.join([str(HERE), str(HERE.parent)]), "BENCH_FRAMES": str(frames),
+    env = {**subprocess_env(find(sim)), "PYTHONPATH": os.pathsep.join([str(HERE), str(HERE.parent)]), "BENCH_FRAMES": str(frames),
            "BENCH_OUT": str(work / "vkit-passive")}
     script = (f"from cocotb_tools.runner import get_runner\nr = get_runner({sim!r})\n"
-              f"r.test(test_module='passive_cocotb', hdl_toplevel='belt_cam_top', build_dir={str(build)!r}, "
+              f"r.test(test_module='passive_cocotb', hdl_toplevel='belt_cam_top', hdl_toplevel_lang='verilog', build_dir={str(build)!r}, "
               f"test_dir={str(work)!r})\n")
     subprocess.run([sys.executable, "-c", script], env=env, cwd=work, capture_output=True, check=False, timeout=3600)
     out = {}
     for case in ET.parse(work / "results.xml").getroot().iter("testcase"):
-        out[case.get("name")] = (float(case.get("time")), float(case.get("sim_time_ns")))
+        if case.find("failure") is not None:
+            raise RuntimeError(f"{sim}: test {case.get('name')} failed: {case.find('failure').get('message')}")
+        props = {p.get("name"): p.get("value") for p in case.iter("property")}
+        out[case.get("name")] = (float(case.get("time")), float(props["sim_time_duration"]))
     return out
 
 
@@ -70,7 +73,7 @@ def _build(sim: str, build: Path, size: tuple[int, int]) -> None:
               f"r.build(sources={[str(s) for s in SOURCES]!r}, hdl_toplevel='belt_cam_top', build_dir={str(build)!r}, "
               f"parameters={{'H_ACT': {size[0]}, 'V_ACT': {size[1]}, 'ROOT_TABLE': '\"{RTL / 'edge_root_table.hex'}\"'}}, "
               f"timescale=('1ns', '1ps'), build_args={['-Wno-fatal'] if sim == 'verilator' else []!r})\n")
-    subprocess.run([sys.executable, "-c", script], env=subprocess_env(), check=True, capture_output=True, timeout=3600)
+    subprocess.run([sys.executable, "-c", script], env=subprocess_env(find(sim)), check=True, capture_output=True, timeout=3600)
 
 
 def bench_live(sims: list[str], frames: int, repeats: int, size: tuple[int, int]) -> None:
@@ -79,7 +82,6 @@ def bench_live(sims: list[str], frames: int, repeats: int, size: tuple[int, int]
         if not info.available:
             print(f"live {sim}: skipped ({info.reason})")
             continue
-        activate(info)
         with tempfile.TemporaryDirectory(prefix="vkit-bench-passive-") as tmp:
             build = Path(tmp) / "build"
             _build(sim, build, size)

@@ -28,7 +28,7 @@ module belt_cam_top #(
         .pix_valid(g_valid), .rgb(g_rgb), .frame_no(frames_made)
     );
 
-    edge_core #(.MAX_WIDTH(64), .ROOT_TABLE(ROOT_TABLE)) u_edge (
+    edge_core #(.MAX_WIDTH(1024), .ROOT_TABLE(ROOT_TABLE)) u_edge (
         .clk(cam_clk), .rst(!cam_rst_n),
         .in_vsync(g_vs), .in_hsync(g_hs), .in_de(g_de), .in_valid(g_valid), .in_data(g_rgb),
         .out_vsync(e_vs), .out_hsync(e_hs), .out_de(e_de), .out_valid(e_valid), .out_data(e_mag)

@@ -283,3 +283,15 @@ def test_live_attach_in_a_plain_cocotb_test(tmp_path, sim, bug):
     if bug:  # the same verdict offline, from a dump of the same chain
         offline = score_dump(load_config(BELT_CONFIG), _icarus_dump(tmp_path, bug), out_dir=tmp_path / "off")
         assert offline.verdict.status == verdict["status"] and offline.verdict.diagnosis.kind == kind
+
+
+@pytest.mark.sim
+def test_ghdl_dump_of_the_vhdl_chain_scored_offline(tmp_path):
+    simulator_available("ghdl")
+    vhdl = [SAMPLE_RTL / n for n in ("edge_root_table_pkg.vhd", "edge_core.vhd", "belt_cam.vhd")]
+    subprocess.run(["ghdl", "-a", "--std=08", *map(str, vhdl)], check=True, capture_output=True, cwd=tmp_path)
+    subprocess.run(["ghdl", "-e", "--std=08", "belt_cam_tb"], check=True, capture_output=True, cwd=tmp_path)
+    subprocess.run(["ghdl", "-r", "--std=08", "belt_cam_tb", "--vcd=belt.vcd"], check=True, capture_output=True,
+                   cwd=tmp_path, timeout=300)
+    done = score_dump(load_config(BELT_CONFIG), tmp_path / "belt.vcd", out_dir=tmp_path / "ghdl")
+    assert done.verdict.passed and done.verdict.frames_checked == 3 and not done.problems

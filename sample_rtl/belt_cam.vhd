@@ -9,7 +9,7 @@ use ieee.numeric_std.all;
 
 entity belt_pattern_gen_v is
     generic (H_ACT : natural := 32; H_FP : natural := 2; H_SW : natural := 2; H_BP : natural := 4;
-             V_ACT : natural := 24; V_FP : natural := 1; V_SW : natural := 1; V_BP : natural := 1);
+             V_ACT : natural := 24; V_FP : natural := 1; V_SW : natural := 2; V_BP : natural := 1);
     port (clk, rst_n, run : in std_logic;
           vs, hs, de, pix_valid : out std_logic;
           rgb : out std_logic_vector(23 downto 0);

@@ -8,13 +8,15 @@
 // clock on about 1 active clock in 8; the pixel is held and sent on the next clock.
 // Timing per line: H_ACT active, H_FP front porch, H_SW sync, H_BP back porch; per frame: V_SW sync
 // lines, V_BP back porch lines, V_ACT active lines, V_FP front porch lines. Gaps stretch a line.
+// Two sync lines by default: a line-buffered filter flushes the last line (as wide as the frame before)
+// inside the vsync pulse, so the pulse must outlast the widest line when the width changes.
 `timescale 1ns/1ps
 `default_nettype none
 
 module belt_pattern_gen #(
     parameter integer H_ACT = 32, parameter integer H_FP = 2, parameter integer H_SW = 2,
     parameter integer H_BP = 4, parameter integer V_ACT = 24, parameter integer V_FP = 1,
-    parameter integer V_SW = 1, parameter integer V_BP = 1, parameter integer ALT_WIDTH = 0,
+    parameter integer V_SW = 2, parameter integer V_BP = 1, parameter integer ALT_WIDTH = 0,
     parameter integer GAPS = 1
 ) (
     input  wire        clk,

@@ -227,6 +227,19 @@ def test_icarus_dump_scored_offline_like_a_driven_run(tmp_path, bug):
 
 
 @pytest.mark.sim
+def test_frame_width_changing_every_frame_is_followed(tmp_path):
+    simulator_available("icarus")
+    vvp, dump = tmp_path / "alt.vvp", tmp_path / "alt.vcd"
+    subprocess.run(["iverilog", "-g2012", "-Pbelt_cam_tb.ALT_WIDTH=24", "-Pbelt_cam_tb.FRAMES=4",
+                    f'-Pbelt_cam_tb.ROOT_TABLE="{SAMPLE_RTL / "edge_root_table.hex"}"', "-o", str(vvp),
+                    *map(str, BELT_SOURCES), str(SAMPLE_RTL / "belt_cam_tb.v")], check=True, capture_output=True)
+    subprocess.run(["vvp", "-n", str(vvp), f"+waves={dump}"], check=True, capture_output=True, cwd=tmp_path, timeout=120)
+    done = score_dump(load_config(BELT_CONFIG), dump, out_dir=tmp_path / "alt")
+    assert done.verdict.passed and not done.problems
+    assert [f["pixels_checked"] for f in done.verdict.per_frame] == [32 * 24, 24 * 24, 32 * 24, 24 * 24]
+
+
+@pytest.mark.sim
 def test_icarus_fst_dump_and_a_dump_missing_a_signal(tmp_path):
     dump = _icarus_dump(tmp_path, None, "fst")
     assert score_dump(load_config(BELT_CONFIG), dump, out_dir=tmp_path / "fst").verdict.passed

@@ -27,11 +27,12 @@ from vkit.video.formats import unpack_rgb
 __all__ = ["SIDE_ROLES", "Levels", "FramePixels", "FrameRebuilder"]
 
 SIDE_ROLES: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
-    "video": (("vsync", "de", "data"), ("hsync", "valid")),
+    "video": (("vsync", "de", "data"), ("valid",)),
     "stream": (("valid", "ready", "sof", "eol", "data"), ()),
 }
-"""Per family: (required, optional) roles of one side, without the ``in_`` / ``out_`` prefix. The video
-side needs vsync: with nothing but data-enable a passive watcher cannot tell where a frame ends."""
+"""Per family: (required, optional) roles of one side, without the ``in_`` / ``out_`` prefix: only what the
+rebuild reads (hsync is not sampled: a line ends with its data-enable run). The video side needs vsync:
+with nothing but data-enable a passive watcher cannot tell where a frame ends."""
 
 
 @dataclass

@@ -120,9 +120,7 @@ def attach(instance: Any, config: str | Path | Config, *, design: str | None = N
     if d.instance and _has_child(instance, d.instance.split(".")[0]):  # a handle above the design
         handle = find_instance(instance, d.instance)
     sides = side_roles(d)
-    roles = {"clock": sides["clock"]["clock"], **({"reset": sides["clock"]["reset"]} if "reset" in sides["clock"] else {}),
-             **{f"{side}_{r}": p for side in ("in", "out") for r, p in sides[side].items()}}
-    sampler_args = dict(instance=handle, signals=roles, family=d.family,
+    sampler_args = dict(instance=handle, signals=dict(d.ports), family=d.family,  # the whole map, checked as a driver's
                         sides={side: tuple(sides[side]) for side in ("in", "out")},
                         reset_active_high=d.reset_active_high, chunk_clocks=chunk_clocks)
     path = getattr(handle, "_path", getattr(handle, "_name", "?"))

@@ -329,3 +329,34 @@ def test_ghdl_dump_of_the_vhdl_chain_scored_offline(tmp_path):
                    cwd=tmp_path, timeout=300)
     done = score_dump(load_config(BELT_CONFIG), tmp_path / "belt.vcd", out_dir=tmp_path / "ghdl")
     assert done.verdict.passed and done.verdict.frames_checked == 3 and not done.problems
+
+
+_GHDL_WATCH = '''
+import cocotb
+import vkit.run.attach as vkit_attach
+
+
+@cocotb.test()
+async def watch(dut):
+    board = vkit_attach.attach(dut, config={config!r})  # the config's instance key: u_edge below the testbench
+    await dut.done.value_change  # the VHDL testbench drives everything and says when it is done
+    await board.check()
+'''
+
+
+@pytest.mark.sim
+def test_live_attach_on_ghdl_finds_the_filter_by_the_configs_instance_path(tmp_path):
+    simulator_available("ghdl")
+    (tmp_path / "ghdl_watch.py").write_text(_GHDL_WATCH.format(config=str(BELT_CONFIG)))
+    vhdl = [str(SAMPLE_RTL / n) for n in ("edge_root_table_pkg.vhd", "edge_core.vhd", "belt_cam.vhd")]
+    build = tmp_path / "build"
+    script = (f"from cocotb_tools.runner import get_runner\nr = get_runner('ghdl')\n"
+              f"r.build(sources={vhdl!r}, hdl_toplevel='belt_cam_tb', build_dir={str(build)!r}, build_args=['--std=08'])\n"
+              f"r.test(test_module='ghdl_watch', hdl_toplevel='belt_cam_tb', hdl_toplevel_lang='vhdl', "
+              f"build_dir={str(build)!r}, test_dir={str(tmp_path)!r}, test_args=['--std=08', '--workdir={build}'])\n")
+    done = subprocess.run([os.sys.executable, "-c", script], env={**make_env(), "PYTHONPATH": str(tmp_path)},
+                          cwd=tmp_path, capture_output=True, text=True, timeout=600)
+    report = tmp_path / "vkit-passive" / "report.json"
+    assert report.is_file(), (done.stdout + done.stderr)[-3000:]
+    verdict = json.loads(report.read_text())["cases"][0]["verdict"]
+    assert verdict["passed"] and verdict["frames_checked"] == 3

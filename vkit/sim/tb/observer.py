@@ -71,7 +71,7 @@ class LevelSampler:
         self.chunk_clocks = int(chunk_clocks)
         self.clocks = 0
         """Rising edges sampled so far."""
-        self._rows: list[tuple[int, ...]] = []
+        self._rows: list[list[int]] = []
         self._first = 0
         self._step: Callable[[], None] | None = None
         self._task: Any = None
@@ -99,7 +99,7 @@ class LevelSampler:
         chunk = self.chunk_clocks
 
         def step() -> None:
-            append(tuple(r() for r in readers))
+            append([r() for r in readers])
             if len(rows) >= chunk:
                 self.flush()
 

@@ -360,3 +360,20 @@ def test_live_attach_on_ghdl_finds_the_filter_by_the_configs_instance_path(tmp_p
     assert report.is_file(), (done.stdout + done.stderr)[-3000:]
     verdict = json.loads(report.read_text())["cases"][0]["verdict"]
     assert verdict["passed"] and verdict["frames_checked"] == 3
+
+
+@pytest.mark.sim
+def test_score_dump_command_on_a_dump_cut_mid_frame(tmp_path, capsys):
+    from vkit.cli import main
+
+    dump = _icarus_dump(tmp_path, None)
+    text = dump.read_text()
+    cut = tmp_path / "cut.vcd"
+    cut.write_text(text[: int(len(text) * 0.55)])  # the simulator stopped inside frame 1
+    code = main(["score-dump", str(BELT_CONFIG), str(cut), "--out", str(tmp_path / "cut")])
+    out, err = capsys.readouterr()
+    assert code == 2
+    assert err.strip().splitlines() == [err.strip()] and err.startswith("vkit: error: input frame 1:")
+    report = json.loads((tmp_path / "cut" / "report.json").read_text())
+    assert report["cases"][0]["verdict"]["frames_checked"] == 1 and report["cases"][0]["verdict"]["passed"]
+    assert "1 frame(s) scored, 0 failing" in out

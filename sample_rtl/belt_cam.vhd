@@ -39,8 +39,10 @@ begin
             p1 := (to_integer(fno(7 downto 0)) + 3) mod H_ACT;
             if x + 2 >= H_ACT then
                 scene := x"E0C020";
+            elsif x >= p1 + 3 and x < p1 + 7 and y >= 6 and y < 10 then
+                scene := x"FFFFFF";   -- the white shipping label
             elsif x >= p1 and x < p1 + 9 and y >= 4 and y < 12 then
-                scene := to_unsigned((150 + y) mod 256, 8) & to_unsigned(100, 8) & to_unsigned((40 + x) mod 256, 8);
+                scene := x"000000";   -- the black parcel
             elsif x + 5 >= 2 * to_integer(fno(5 downto 0)) and x < 2 * to_integer(fno(5 downto 0)) + 2 and y >= 14 and y < 21 then
                 scene := to_unsigned(30, 8) & to_unsigned((70 + x) mod 256, 8) & to_unsigned(200, 8);
             elsif bx mod 8 < 2 then

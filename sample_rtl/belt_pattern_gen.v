@@ -1,9 +1,10 @@
 // belt_pattern_gen: a procedural overhead view of a parcel conveyor, as a camera front end would
 // deliver it (RGB 8:8:8, syncs active high, pixel-valid gaps like a sensor FIFO running dry).
 //
-// Frame k: a grey belt whose dark cross stripes move 2 columns per frame, two parcels (brown and
-// blue boxes) riding along it, and a yellow side rail on the last two columns. With ALT_WIDTH set,
-// odd frames are ALT_WIDTH pixels wide instead of H_ACT (a sensor switching its window).
+// Frame k: a grey belt whose dark cross stripes move 2 columns per frame, two parcels (a black box
+// with a white shipping label, and a blue box) riding along it, and a yellow side rail on the last
+// two columns. With ALT_WIDTH set, odd frames are ALT_WIDTH pixels wide instead of H_ACT (a sensor
+// switching its window).
 // Gaps: when GAPS = 1 a 16-bit Fibonacci LFSR (x^16 + x^14 + x^13 + x^11 + 1) drops pix_valid for one
 // clock on about 1 active clock in 8; the pixel is held and sent on the next clock.
 // Timing per line: H_ACT active, H_FP front porch, H_SW sync, H_BP back porch; per frame: V_SW sync
@@ -47,12 +48,14 @@ module belt_pattern_gen #(
     wire        stripe  = (belt_x[2:0] < 3'd2);
     wire [11:0] p1_x    = {4'd0, frame_no[7:0]} + 12'd3;
     wire        parcel1 = (x_r >= p1_x % width_w) && (x_r < (p1_x % width_w) + 9) && (y_w >= 4) && (y_w < 12);
+    wire        label1  = parcel1 && (x_r >= (p1_x % width_w) + 3) && (x_r < (p1_x % width_w) + 7) && (y_w >= 6) && (y_w < 10);
     wire        parcel2 = (x_r + 12'd5 >= (frame_no[5:0] << 1)) && (x_r < (frame_no[5:0] << 1) + 2) && (y_w >= 14) && (y_w < 21);
     wire        rail    = (x_r + 2 >= width_w);
     reg  [23:0] scene;
     always @(*) begin
         if (rail)         scene = 24'hE0C020;
-        else if (parcel1) scene = {8'd150 + y_w[7:0], 8'd100, 8'd40 + x_r[7:0]};
+        else if (label1)  scene = 24'hFFFFFF;
+        else if (parcel1) scene = 24'h000000;
         else if (parcel2) scene = {8'd30, 8'd70 + x_r[7:0], 8'd200};
         else if (stripe)  scene = 24'h404448;
         else              scene = {8'd120 + y_w[7:0], 8'd124 + y_w[7:0], 8'd128 + y_w[7:0]};

@@ -1,4 +1,5 @@
-// belt_cam_tb: a plain Verilog testbench for belt_cam_top: runs FRAMES frames and dumps the waves.
+// belt_cam_tb: a plain Verilog testbench for belt_cam_top: runs FRAMES frames and dumps the waves
+// (SystemVerilog string for the file name: iverilog -g2012).
 // +waves=FILE picks the dump file (default belt_cam.vcd; Verilator writes FST when built with
 // --trace-fst). No checking here: the dump is judged afterwards.
 `timescale 1ns/1ps
@@ -13,7 +14,7 @@ module belt_cam_tb;
     reg run = 1'b0;
     wire mark_vs, mark_de, mark_bit;
     wire [15:0] marks_last, frames_made;
-    reg [1023:0] wave_file;
+    string wave_file;                      // SystemVerilog string: build with -g2012 (Icarus)
 
     belt_cam_top #(.ALT_WIDTH(ALT_WIDTH), .ROOT_TABLE(ROOT_TABLE)) dut (
         .cam_clk(clk), .cam_rst_n(rst_n), .cam_run(run), .mark_vs(mark_vs), .mark_de(mark_de),

@@ -9,7 +9,7 @@ import numpy as np
 
 from vkit.core.vocab import is_rgb
 from vkit.model.exact import check_image, run_model, run_plan
-from vkit.model.mutants import Mutant, mutant_outputs, spec_mutants
+from vkit.model.mutants import Mutant, spec_mutants
 from vkit.model.quality import StageCoverage
 from vkit.model.result import ModelResult
 from vkit.model.spec import PipelineSpec

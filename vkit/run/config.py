@@ -105,7 +105,7 @@ _DESIGN_KEYS = (
     "clock_period_ns", "latency_clocks", "latency_timing", "pipeline_clocks", "tolerance_lsb",
     "simulators", "expect", "description", "include_dirs", "build_args", "align", "timeout_clocks",
     "component_order", "pixels_per_clock", "lane_order",
-    "supported_simulators",
+    "supported_simulators", "instance",
 )
 _MANIFEST_DESIGN_KEYS = (
     "top", "sources", "language", "family", "spec", "pixel_format", "parameters", "file_parameters",
@@ -303,6 +303,9 @@ class DesignConfig:
         include_dirs, build_args: extra build inputs.
         align: scoreboard alignment, ``"exact"`` or ``"auto"``.
         timeout_clocks: simulation timeout in clocks, or None for the default.
+        instance: hierarchical path of the design's instance inside a larger top (``u_isp.u_edge``), read by
+            the passive scoreboard (below the cocotb toplevel live, a scope of the dump offline); None: the
+            design is the top.
     """
 
     name: str
@@ -338,6 +341,7 @@ class DesignConfig:
     build_args: list[str] = field(default_factory=list)
     align: str = "exact"
     timeout_clocks: int | None = None
+    instance: str | None = None
     component_order: str = "RGB"
     pixels_per_clock: int = 1
     lane_order: str = "first_low"
@@ -812,6 +816,7 @@ _DESIGN_FIELDS: dict[str, _Reader] = {
     "description": want_str,
     "build_args": want_str_list,
     "align": _choice(("exact", "auto")),
+    "instance": want_str,
     "component_order": lambda where, key, value: want_choice(where, key, str(value).upper(), COMPONENT_ORDERS),
     "pixels_per_clock": lambda where, key, value: _lanes(where, key, value),
     "lane_order": _choice(LANE_ORDERS),

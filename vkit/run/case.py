@@ -21,6 +21,7 @@ import numpy as np
 from vkit.check.by_mutant import MutantDiagnosis, diagnose_by_mutants, expected_by_mutant
 from vkit.check.results import Finding
 from vkit.check.scoreboard import Verdict, score
+from vkit.check.settle import ControlSettle
 from vkit.core.errors import ToolError, VkitError
 from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
 from vkit.report.writers import case_entry, case_folder, write_case_report
@@ -128,7 +129,8 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -
     verdict = score(
         prep.expected, capture, tolerance_lsb=d.tolerance_lsb,
         declared_latency_clocks=case.declared_latency_clocks(), align=d.align, max_listed=options.max_listed,
-        spec=prep.spec, images=list(prep.frames),
+        spec=prep.spec, images=list(prep.frames), settle=ControlSettle(d.settle_clocks, d.strict_controls),
+        declared_latency_samples=case.declared_latency_samples(),
     )
     stop = _sim_stop(capture, options.timeout_s)
     if stop is not None:
@@ -137,6 +139,7 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -
     by_mutant = _mutant_diagnosis(verdict, prep)
     verdict = _named_by_mutant(verdict, by_mutant)
     coverage, warnings = stimulus_coverage(prep.spec, prep.frames, options.coverage_floor)
+    warnings = [*verdict.warnings, *warnings]
     waves: dict[str, Any] | None = None
     wanted = options.waves == "all" or (options.waves == "failing" and verdict.status in ("fail", "no_output"))
     if wanted and stop is None:  # a stopped simulation would only stop again

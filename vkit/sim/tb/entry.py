@@ -45,6 +45,7 @@ from vkit.video.formats import pixel_bits
 from vkit.sim.tb.built import check_built_parameters
 from vkit.sim.tb.stream import StreamMonitor, StreamSink, StreamSource
 from vkit.sim.tb.video import VideoMonitor, VideoSource
+from vkit.video.words import INPUT_LEVEL_ROLES, samples_between
 
 __all__ = ["run_case", "vkit_case", "DRAIN_LINES"]
 
@@ -81,11 +82,13 @@ def _components(dut: Any, case: SimCase, facts: RunFacts) -> tuple[Any, Any, Str
     if case.family == "video":
         timing = case.video_timing()
         monitor: VideoMonitor | StreamMonitor = VideoMonitor(
-            dut, smap, clock, reset, vsync_active_high=timing.vsync_active_high,
-            hsync_active_high=timing.hsync_active_high, **common,
+            dut, smap, clock, reset, vsync_active_high=case.active_high("out_vsync"),
+            hsync_active_high=case.active_high("out_hsync"),
+            active_high=case.pin_polarity(("out_de", "out_valid", "out_enable")), **common,
         )
         source: VideoSource | StreamSource = VideoSource(
-            dut, smap, clock, reset, timing=timing, stalls=case.stall_pattern(), stats=monitor.facts, **source_options,
+            dut, smap, clock, reset, timing=timing, stalls=case.stall_pattern(), stats=monitor.facts,
+            enable=case.enable_pattern(), active_high=case.pin_polarity(INPUT_LEVEL_ROLES), **source_options,
         )
         return monitor, source, None, clock, reset
     monitor = StreamMonitor(dut, smap, clock, reset, **common)
@@ -146,6 +149,7 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
     if save:
         error_file_for(case.capture_file).unlink(missing_ok=True)
     monitor: VideoMonitor | StreamMonitor | None = None
+    source: VideoSource | StreamSource | None = None
     send_task = None
     sink: StreamSink | None = None
     error: str | None = None
@@ -179,6 +183,10 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
         if monitor is not None:
             monitor.stop()
         capture = monitor.capture() if monitor is not None else Capture(facts=facts)
+        sched = getattr(source, "schedule", None) if monitor is not None else None
+        if sched is not None:
+            capture.facts.latency_samples = samples_between(sched.enable, capture.facts.first_input_clock,
+                                                            capture.facts.first_output_clock)
         if save:
             _save(capture, case.capture_file, error)
     return capture

@@ -1201,10 +1201,12 @@ def _frame_timings(s: _Stimulus, size: tuple[int, int], family: str) -> list[tup
     return out
 
 
-def _flow_settings(s: _Stimulus, family: str) -> list[tuple[str, Flow, Flow, Flow]]:
-    """``(flow label, stalls, gaps, back-pressure)``: stalls for video, gaps x back-pressure for stream."""
-    if family == "video":
-        return [(f.label("stall"), f, Flow(), Flow()) for f in s.stalls]
+def _flow_settings(s: _Stimulus, d: DesignConfig) -> list[tuple[str, Flow, Flow, Flow]]:
+    """``(flow label, stalls, gaps, back-pressure)``: stalls for video (none for a design without a pixel-valid
+    input: it cannot take one), gaps x back-pressure for stream."""
+    if d.family == "video":
+        stalls = s.stalls if "in_valid" in d.ports else (Flow(),)
+        return [(f.label("stall"), f, Flow(), Flow()) for f in stalls]
     return [(f"{g.label('gap')}-{b.label('bp')}", Flow(), g, b) for g in s.gaps for b in s.backpressure]
 
 
@@ -1225,7 +1227,7 @@ def _design_cases(config: Config, d: DesignConfig, sim: str, s: _Stimulus) -> It
         for (tlabel, timing, width, height), (elabel, enable) in itertools.product(
                 _frame_timings(s, st.size, d.family), _enable_settings(config, d, seed + config.run.seed)):
             check_case_size(f"{config.path.name} [stimulus]", st.frames, width, height)
-            for flabel, stall, gap, bp in _flow_settings(s, d.family):
+            for flabel, stall, gap, bp in _flow_settings(s, d):
                 yield Case(
                     id=f"{d.name}/{sim}/{s.label}-s{seed}/{tlabel}/{flabel}{elabel}", design=d, simulator=sim,
                     stimulus=s.kind, stimulus_name=s.name, stimulus_label=s.label, pattern_options=s.options,

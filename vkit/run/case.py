@@ -21,7 +21,6 @@ import numpy as np
 from vkit.check.by_mutant import MutantDiagnosis, diagnose_by_mutants, expected_by_mutant
 from vkit.check.results import Finding
 from vkit.check.scoreboard import Verdict, score
-from vkit.check.settle import ControlSettle
 from vkit.core.errors import ToolError, VkitError
 from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
 from vkit.report.writers import case_entry, case_folder, write_case_report
@@ -125,13 +124,8 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -
     arrived is compared, the rest counts as missing) and takes the status ``timeout`` (the design's
     fault, as a hung design is the usual cause) or ``error`` (a crash is the tool's), with that first.
     """
-    d = case.design
-    verdict = score(
-        prep.expected, capture, tolerance_lsb=d.tolerance_lsb,
-        declared_latency_clocks=case.declared_latency_clocks(), align=d.align, max_listed=options.max_listed,
-        spec=prep.spec, images=list(prep.frames), settle=ControlSettle(d.settle_clocks, d.strict_controls),
-        declared_latency_samples=case.declared_latency_samples(),
-    )
+    verdict = score(prep.expected, capture, max_listed=options.max_listed, spec=prep.spec, images=list(prep.frames),
+                    **case.score_settings())
     stop = _sim_stop(capture, options.timeout_s)
     if stop is not None:
         status = "timeout" if stop.kind == "timeout" else "error"

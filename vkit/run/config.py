@@ -34,6 +34,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Callable, Iterator, Mapping, Sequence
 
+from vkit.check.settle import ControlSettle
 from vkit.core.errors import ConfigError
 from vkit.core.validate import (
     check_keys,
@@ -493,6 +494,14 @@ class Case:
         if not self.steady or d.latency_samples is None:
             return None
         return d.latency_samples if d.latency_timing in (None, self.timing_label) else None
+
+    def score_settings(self) -> dict[str, Any]:
+        """The keyword arguments of :func:`vkit.check.scoreboard.score` this case's design asks for: tolerance,
+        declared latencies, alignment and from when output controls are judged (reset fill)."""
+        d = self.design
+        return {"tolerance_lsb": d.tolerance_lsb, "declared_latency_clocks": self.declared_latency_clocks(),
+                "declared_latency_samples": self.declared_latency_samples(), "align": d.align,
+                "settle": ControlSettle(d.settle_clocks, d.strict_controls)}
 
     def seeds(self) -> dict[str, int]:
         """Seeds that reproduce this case (name -> value)."""

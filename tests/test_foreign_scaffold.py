@@ -87,3 +87,33 @@ def test_scaffolded_kit_passes_every_good_case(tmp_path: Path, build_cache_dir: 
     assert result.cases and {c.simulator for c in result.cases} == set(sims)
     bad = {c.id: c.diagnosis for c in result.cases if c.status != "pass"}
     assert not bad, bad
+
+
+@pytest.mark.parametrize("names, roles", [
+    (("ce", "dout_ce"), ("in_enable", "out_enable")),
+    (("vid_ce", "vid_ce_o"), ("in_enable", "out_enable")),
+    (("clk_en", "o_en"), ("in_enable", "out_enable")),
+    (("pix_en", "pix_en_o"), ("in_enable", "out_enable")),
+    (("en_i", "en_o"), ("in_enable", "out_enable")),
+])
+def test_enable_names_are_read_as_clock_enables(names: tuple[str, str], roles: tuple[str, str]) -> None:
+    # enable spellings RTL teams use (common practice, no source)
+    from vkit.run.scaffold import guess_roles
+    from vkit.sim.hdlports import Port
+
+    ports = [Port("clk", "input", 1), Port("rst", "input", 1), Port("vs", "input", 1), Port("hs", "input", 1),
+             Port("de", "input", 1), Port("din", "input", 8), Port("de_o", "output", 1), Port("dout", "output", 8),
+             Port(names[0], "input", 1), Port(names[1], "output", 1)]
+    guess = guess_roles(ports)
+    assert guess.roles[roles[0]] == names[0] and guess.roles[roles[1]] == names[1], guess.roles
+
+
+@pytest.mark.parametrize("name, low", [
+    ("vsync_n", True), ("hs_b", True), ("de_l", True), ("n_vsync", True), ("vs_neg", True), ("den_n_i", True),
+    ("rstn", True), ("vsync", False), ("hs_i", False), ("den", False),
+])
+def test_active_low_marks(name: str, low: bool) -> None:
+    # the usual active-low marks (common practice, no source)
+    from vkit.run.conventions import active_low_mark
+
+    assert (active_low_mark(name) is not None) == low

@@ -85,10 +85,11 @@ def test_same_verdicts_on_every_drive_path(by_path: dict[str, dict]) -> None:
         for cid, c in other.items():
             assert cid in clock
             assert c.status == clock[cid].status, (drive, cid, c.diagnosis, clock[cid].diagnosis)
+            if "@" in cid:
+                continue  # a broken design's output right after reset may differ by the first clock's race
             a, b = c.entry.get("verdict", {}), clock[cid].entry.get("verdict", {})
             for key in ("latency_clocks", "latency_samples", "mismatches"):
-                if key in a or key in b:
-                    assert a.get(key) == b.get(key), (drive, cid, key)
+                assert a.get(key) == b.get(key), (drive, cid, key)
 
 
 def test_clock_enabled_design_reports_latency_in_samples(by_path: dict[str, dict]) -> None:

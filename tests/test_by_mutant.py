@@ -3,14 +3,15 @@
 from __future__ import annotations
 
 import json
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 import pytest
 
 from conftest import SAMPLE_RTL, simulator_available
-from vkit.check.by_mutant import diagnose_by_mutants, expected_by_mutant, localise
-from vkit.model.exact import run_model
+from vkit.check.by_mutant import diagnose_by_mutants, diagnose_with_pairs, expected_by_mutant, localise
+from vkit.model.exact import model_plan, run_model, run_plan
 from vkit.model.presets import preset
 from vkit.run.config import load_config
 from vkit.run.runner import run
@@ -24,6 +25,7 @@ MODELLED = {
     "addr_wrap": ("edge_core", "edge", "box", "address.wrap"),
     "gradient_narrow": ("edge_core", "edge", "box", "gx+gy.wrap14"),
     "luma_rb_swap": ("edge_core", "edge", "conveyor", "luma.perm_BGR"),
+    "linebuf_off_by_one": ("median_core", "median", "conveyor", "window.row0_late"),
     "sobel_tap_sign": ("edge_core", "edge", "conveyor", "gx.tap10"),
     "sumsq_narrow": ("edge_core", "edge", "box", "sum_sq.wrap28"),
     "sharpen_wrap": ("stream_core", "sharpen", "box", "output.wrap"),
@@ -94,3 +96,32 @@ def test_seeded_bug_is_named_by_its_mutant(bug_run: Path, bug: str) -> None:
     dg = _diagnose(case_dir, spec_name)
     assert dg.best is not None and dg.best.name == mutant, dg.text
     assert json.loads(json.dumps(dg.to_dict()))["mutant"]["mutant"] == mutant
+
+
+def test_two_faults_are_named_as_a_pair() -> None:
+    # A design with two departures at once: truncation in the luma and tap [1][0] of gx with the wrong sign,
+    # built here from the spec and the kernel by hand (not through mutant_pair).
+    spec = preset("edge")
+    two = replace(spec, luma=replace(spec.luma, rounding="truncate"))
+    plan = model_plan(two)
+    gx = [list(row) for row in plan.kernels["gx"]]
+    gx[1][0] = -gx[1][0]
+    plan = replace(plan, kernels={**plan.kernels, "gx": tuple(tuple(r) for r in gx)})
+    frames = np.stack([make_pattern("conveyor", 24, 32, seed=1, rgb=True), make_pattern("killers", 24, 32, seed=0, rgb=True)])
+    exp = np.stack([run_model(spec, f).output for f in frames])
+    act = np.stack([run_plan(plan, f).output for f in frames])
+    single = diagnose_by_mutants(exp, act, expected_by_mutant(spec, frames))
+    assert single.best is None or not single.best.exact  # no one mutant is both faults
+    dg = diagnose_with_pairs(spec, frames, exp, act)
+    assert dg.best is not None and dg.best.exact, dg.text
+    assert set(dg.best.name.split("+", 1)) == {"luma.truncate", "gx.tap10"}
+    assert "truncation instead of rounding half up in the luma" in dg.text and "tap [1][0]" in dg.text
+
+
+def test_a_single_fault_is_not_reported_as_a_pair() -> None:
+    spec = preset("edge")
+    frames = np.stack([make_pattern("killers", 24, 32, seed=0, rgb=True)])
+    outs = expected_by_mutant(spec, frames)
+    exp = np.stack([run_model(spec, f).output for f in frames])
+    dg = diagnose_with_pairs(spec, frames, exp, outs["gx.tap10"][1])
+    assert dg.best is not None and dg.best.name == "gx.tap10"

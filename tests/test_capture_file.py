@@ -8,7 +8,6 @@ text, a header line ``# vkit capture VERSION FAMILY`` then ``CLOCK KIND ARG`` li
 from __future__ import annotations
 
 import struct
-from pathlib import Path
 
 import pytest
 

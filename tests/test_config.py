@@ -150,3 +150,18 @@ def test_bundled_configs_load():
     assert all(c.design.bug for c in bugs)
     full = expand_matrix(load_config(root / "full.toml"))
     assert {c.simulator for c in full if c.design.name == "edge_core_vhdl"} == {"ghdl"}
+
+
+def test_a_ghdl_build_belongs_to_its_source_path(tmp_path):
+    # GHDL (mcode) reads the analysed files again at elaboration (checked with GHDL 2.0: `ghdl -a` in one
+    # folder, the source folder deleted, then `ghdl -r` says "cannot load entity"); Icarus and Verilator
+    # builds are self-contained, so a copy of the same files elsewhere reuses theirs.
+    from vkit.sim.buildcache import BuildRequest, build_key
+
+    a, b = tmp_path / "a" / "belt.vhd", tmp_path / "b" / "belt.vhd"
+    for p in (a, b):
+        p.parent.mkdir()
+        p.write_text("entity belt is end;\n")
+    for sim, same in (("ghdl", False), ("icarus", True)):
+        ka, kb = (build_key(BuildRequest(sim, "v1", "belt", (p,), "vhdl")) for p in (a, b))
+        assert (ka == kb) is same, sim

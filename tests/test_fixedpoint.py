@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from fractions import Fraction
+
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -50,6 +52,18 @@ def test_shift_round_matches_python_ints(values: list[int], shift: int) -> None:
     # Python integers are arbitrary precision: the reference cannot overflow.
     assert shift_round(arr, shift).tolist() == [v >> shift for v in values]
     assert shift_round(arr, shift, "half_up").tolist() == [(v + half) >> shift for v in values]
+    # Python's round() of an exact Fraction sends ties to the even neighbour (Python language reference,
+    # built-in round(): "rounding is done toward the even choice").
+    assert shift_round(arr, shift, "half_even").tolist() == [round(Fraction(v, 1 << shift)) for v in values]
+    assert [shift_round(v, shift, "half_even") for v in values] == [round(Fraction(v, 1 << shift)) for v in values]
+
+
+def test_half_even_ties_go_to_the_even_neighbour() -> None:
+    # ties at shift 2 are the multiples of 2 that are not multiples of 4: 2/4 -> 0, 6/4 -> 2, -2/4 -> 0, -6/4 -> -2;
+    # NumPy's np.round is half-to-even as well (NumPy reference, numpy.around)
+    values = np.arange(-64, 65, dtype=np.int32)
+    assert shift_round(values, 2, "half_even").tolist() == np.round(values / 4).astype(int).tolist()
+    assert shift_round(np.array([2, 6, -2, -6, 10]), 2, "half_even").tolist() == [0, 2, 0, -2, 2]
 
 
 def test_bad_shift_and_rounding_are_config_errors() -> None:

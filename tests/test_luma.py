@@ -81,6 +81,8 @@ def test_rounding_modes_against_python_ints() -> None:
     # Python/NumPy integer floor division is the reference for both rounding modes.
     assert np.array_equal(luma(rgb, BT601, rounding="truncate"), total // 256)
     assert np.array_equal(luma(rgb, BT601, rounding="half_up"), (total + 128) // 256)
+    # np.round is half-to-even (NumPy reference, numpy.around); total / 256 is exact in a double
+    assert np.array_equal(luma(rgb, BT601, rounding="half_even"), np.round(total / 256).astype(np.int64))
     assert np.array_equal(luma(rgb, BT601, output_bits=10), (total + 32) // 64)
     # More output bits than weight fraction bits: an exact left shift.
     assert np.array_equal(luma(rgb, LumaWeights(1, 2, 1, 2), output_bits=12), (r + 2 * g + b) << 2)

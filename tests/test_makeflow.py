@@ -29,9 +29,7 @@ needs_make = pytest.mark.skipif(shutil.which("make") is None, reason="make not f
 
 def _run(cmd: list[str], cwd: Path) -> subprocess.CompletedProcess[str]:
     env = make_env()
-    # a build cache of this repo's own: the shared cache keys a build on file names and contents, and a
-    # GHDL build found there for a copy of these files in a deleted folder cannot load its entity
-    env["VKIT_CACHE_DIR"] = str(cwd / ".vkit-cache")
+    env["VKIT_CACHE_DIR"] = str(cwd / ".vkit-cache")  # the throw-away repo's own: tests leave ~/.cache alone
     return subprocess.run(cmd, cwd=cwd, env=env, capture_output=True, text=True, timeout=1200, check=False)
 
 

@@ -17,6 +17,7 @@ from vkit.model.presets import PRESETS, SPECS_DIR, preset
 from vkit.model.spec import PipelineSpec
 from vkit.model.strength import stimulus_strength
 from vkit.video.killers import border_rings
+from vkit.video.patterns import make_pattern
 from vkit.video.synthesis import KILLER_SEEDS, SCAFFOLD_PATTERNS, stimulus_frames, synthesize
 
 KILL_TARGET = 0.95  # issue 11: a scaffolded config kills at least 95% of its spec's mutants at 32x24
@@ -50,6 +51,32 @@ def test_border_mutant_differs_on_border_rings_as_scipy_says() -> None:
     mirror = run_plan(_mutant(spec, "window.mirror").plan, img).output
     assert np.array_equal(true, ref_true) and np.array_equal(mirror, ref_mirror)
     assert (ref_true != ref_mirror).any()  # the ring pattern separates the two policies
+
+
+@pytest.mark.parametrize("row", [0, 1, 2])
+def test_window_row_read_late_is_a_shifted_kernel_row_in_scipy(row: int) -> None:
+    # A window row read one column late takes pixel x-1+c-1 for tap c: SciPy ndimage.correlate with a 3x5
+    # kernel whose row `row` sits one column to the left gives the same sums away from the frame's edges.
+    spec = preset("blur")
+    img = np.random.default_rng(row).integers(0, 256, (24, 32)).astype(np.uint8)
+    k = np.array([[1, 2, 1], [2, 4, 2], [1, 2, 1]])
+    wide = np.zeros((3, 5), np.int64)
+    wide[:, 1:4] = k
+    wide[row] = 0
+    wide[row, 0:3] = k[row]
+    ref = (ndimage.correlate(img.astype(np.int64), wide, mode="nearest") + 8) >> 4
+    got = run_plan(_mutant(spec, f"window.row{row}_late").plan, img).output
+    inner = (slice(1, -1), slice(2, -1))  # no frame edge in reach of the moved row
+    assert np.array_equal(got[inner], ref[inner])
+    assert (got[inner] != run_model(spec, img).output[inner]).any()
+    # read one column early: SciPy ndimage.median_filter over a 3x5 footprint with that row one column right
+    footprint = np.zeros((3, 5), bool)
+    footprint[:, 1:4] = True
+    footprint[row] = False
+    footprint[row, 2:5] = True
+    median = run_plan(_mutant(preset("median"), f"window.row{row}_early").plan, img).output
+    ref_median = ndimage.median_filter(img, footprint=footprint, mode="nearest")
+    assert np.array_equal(median[1:-1, 1:-2], ref_median[1:-1, 1:-2])
 
 
 def test_min_filter_border_equivalence_holds_in_scipy() -> None:
@@ -118,3 +145,22 @@ def test_the_scaffolds_default_stimulus_kills_at_least_95_percent(name: str) -> 
     """The issue's measure: a freshly scaffolded config (its default patterns, 32x24, 2 frames each)."""
     spec = PRESETS[name]
     assert stimulus_strength(spec, stimulus_frames(spec, list(SCAFFOLD_PATTERNS), 32, 24)).kill_rate >= 0.95
+
+
+def test_coverage_figures_are_kept_per_stimulus(tmp_path, monkeypatch) -> None:
+    from vkit.run import coverage as cov
+
+    spec = preset("edge")
+    frames = np.stack([make_pattern("killers", 24, 32, seed=0, rgb=True)])
+    first = cov.stimulus_coverage(spec, frames, 0.5, tmp_path)
+    (entry,) = (tmp_path / cov.COVERAGE_CACHE).iterdir()
+    calls = []
+    monkeypatch.setattr(cov, "_measure", lambda *a: calls.append(a) or ({"again": True}, []))
+    assert cov.stimulus_coverage(spec, frames, 0.5, tmp_path) == tuple(json.loads(json.dumps(first)))  # kept: no rerun
+    assert not calls
+    other = frames.copy()
+    other[0, 5, 5] ^= 1
+    assert cov.stimulus_coverage(spec, other, 0.5, tmp_path) == ({"again": True}, [])  # another stimulus: measured
+    entry.write_text("{ damaged")
+    assert cov.stimulus_coverage(spec, frames, 0.5, tmp_path) == ({"again": True}, [])  # damaged: measured again
+    assert len(calls) == 2

@@ -11,7 +11,6 @@ from PIL import Image
 
 from conftest import SAMPLE_RTL
 from vkit.cli import main
-from vkit.core.errors import ConfigError
 from vkit.run.config import dropped_designs, expand_matrix, load_config
 
 PORTS = ", ".join(f'{r} = "{p}"' for r, p in (

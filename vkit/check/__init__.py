@@ -9,7 +9,7 @@ __getattr__, __dir__, __all__ = lazy_facade(__name__, {
         "border_coverage BORDER_POLICIES infer_border latency_clocks measure_offset "
         "shift_back"
     ),
-    "vkit.check.by_mutant": "diagnose_by_mutants expected_by_mutant localise MutantDiagnosis MutantMatch",
+    "vkit.check.by_mutant": "diagnose_by_mutants diagnose_with_pairs expected_by_mutant localise MutantDiagnosis MutantMatch",
     "vkit.check.diagnose": "diagnose slip_events SlipEvent",
     "vkit.check.results": (
         "BorderInference BorderSpec ExpectedFrame Finding FrameResult KINDS Offset "

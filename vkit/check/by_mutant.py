@@ -8,16 +8,20 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
-from vkit.model.mutants import Mutant, mutant_outputs, spec_mutants
+from vkit.model.mutants import Mutant, mutant_outputs, mutant_pair, spec_mutants
 from vkit.model.spec import PipelineSpec
 
-__all__ = ["MutantMatch", "MutantDiagnosis", "diagnose_by_mutants", "expected_by_mutant", "localise"]
+__all__ = ["MutantMatch", "MutantDiagnosis", "diagnose_by_mutants", "diagnose_with_pairs", "expected_by_mutant", "localise"]
 
 NEARLY_ALL = 0.9
 """A mutant "explains" a failure when it gives the design's value at this share of the mismatching pixels
 and predicts wrong values at fewer than (1 - this) of them: one stray region in ten may be another cause."""
 _LOCAL_SHARE = 0.25
 """Mismatches confined to at most this share of the columns (or rows) are named as a stripe of them."""
+PAIR_CANDIDATES = 5
+"""When no single mutant reproduces the output, pairs are tried among this many mutants that reproduce the
+most mismatching pixels, and this many that depart from the spec most where the design does (a fault that
+only shows through another one reproduces no pixel on its own, yet it departs where the design departs)."""
 _PERIODS = range(2, 9)
 """Column and row periods searched (window and pixel-packing faults repeat with small periods)."""
 
@@ -150,3 +154,44 @@ def diagnose_by_mutants(expected: np.ndarray, actual: np.ndarray, by_mutant: Map
     ranked.sort(key=lambda m: (m.explained - m.false, -m.false), reverse=True)
     best = ranked[0] if ranked and n_bad and ranked[0].explains else None
     return MutantDiagnosis(best, ranked, localise(bad))
+
+
+def diagnose_with_pairs(spec: PipelineSpec, frames: Any, expected: np.ndarray, actual: np.ndarray,
+                        checked: np.ndarray | None = None, mutants: Sequence[Mutant] | None = None) -> MutantDiagnosis:
+    """:func:`diagnose_by_mutants` over every single mutant of ``spec``; when none reproduces the design's
+    output exactly, again with the likeliest pairs (:func:`_pair_candidates`; a design may hold two faults). At an equal score a single mutant ranks before a pair: the simpler explanation first."""
+    pool = [m for m in (spec_mutants(spec) if mutants is None else mutants) if not m.equivalent]
+    singles = expected_by_mutant(spec, frames, pool)
+    first = diagnose_by_mutants(expected, actual, singles, checked)
+    if (first.best is not None and first.best.exact) or not first.ranked or not first.ranked[0].mismatches:
+        return first
+    by_name = {m.name: m for m in pool}
+    pairs: dict[str, tuple[str, np.ndarray]] = {}
+    for a, b in _pair_candidates(first, singles, expected, actual, checked):
+        both = mutant_pair(spec, by_name[a], by_name[b])
+        if both is not None:
+            pairs[both.name] = (both.description, mutant_outputs(both, frames, spec))
+    if not pairs:
+        return first
+    return diagnose_by_mutants(expected, actual, {**singles, **pairs}, checked)
+
+
+def _pair_candidates(first: MutantDiagnosis, singles: Mapping[str, tuple[str, np.ndarray]], expected: np.ndarray,
+                     actual: np.ndarray, checked: np.ndarray | None) -> list[tuple[str, str]]:
+    """The pairs of single mutants worth trying: any two of the likeliest by value (see :data:`PAIR_CANDIDATES`), and
+    those that depart from the spec where the likeliest leaves mismatches unexplained and nowhere the design
+    is right (a fault seen only through another one reproduces few pixels on its own)."""
+    exp, act = np.asarray(expected, np.int64), np.asarray(actual, np.int64)
+    mask = np.ones(exp.shape, bool) if checked is None else np.broadcast_to(np.asarray(checked, bool), exp.shape)
+    bad = (exp != act) & mask
+    by_value = [m.name for m in first.ranked if m.explained > 0][:PAIR_CANDIDATES]
+    departs = {name: (np.asarray(out) != exp) & mask for name, (_, out) in singles.items()}
+    wrong_where_right = {name: int(np.count_nonzero(d & ~bad)) for name, d in departs.items()}
+    pairs = [(a, b) for i, a in enumerate(by_value) for b in by_value[i + 1:]]
+    for lead in by_value:
+        rest = bad & (np.asarray(singles[lead][1]) != act)
+        seen = {n: int(np.count_nonzero(d & rest)) for n, d in departs.items() if n != lead}
+        # consistent first (departs nowhere the design is right), then by the unexplained pixels it touches
+        order = sorted((n for n in seen if seen[n] > wrong_where_right[n]), key=lambda n: (wrong_where_right[n], -seen[n]))
+        pairs += [(lead, n) for n in order[:2 * PAIR_CANDIDATES] if n not in by_value]
+    return pairs

@@ -369,7 +369,7 @@ def _shift_findings(
         )
     if offset is None or offset.is_zero or offset.match_share < _MATCH_SHARE:
         return None
-    before = after = 0
+    before = after = telling = agree = 0
     for fr in frames:
         if not fr.value_bad.any():
             continue
@@ -378,12 +378,19 @@ def _shift_findings(
         a, p = shift_back(raw_a, raw_p, offset)
         ok = p & fr.valid & (a != UNKNOWN)
         after += int(np.count_nonzero(ok & (a != fr.expected)))
-    if before == 0:
+        # the value check: where the expected image differs from itself moved by the offset, the shifted
+        # output must give the expected value, not the unshifted one (flat or periodic frames match any shift)
+        moved, _ = shift_back(fr.expected, np.ones_like(raw_p), offset)
+        tells = ok & (moved != fr.expected)
+        telling += int(np.count_nonzero(tells))
+        agree += int(np.count_nonzero(tells & (a == fr.expected)))
+    if before == 0 or telling < _MIN_TELLING_PIXELS or agree < _MATCH_SHARE * telling:
         return None
     explained = max(0.0, 1.0 - after / before)
     ev = offset.to_dict()
     ev["mismatches_before"] = before
     ev["mismatches_after"] = after
+    ev["telling_pixels"], ev["telling_agree"] = telling, agree
     conf = explained * offset.match_share * offset.confidence
     if conf < _SHIFT_MIN_CONFIDENCE:
         return None
@@ -855,7 +862,6 @@ def _line_stall_finding(frames: Sequence[FrameResult], stall: Sequence[Sequence[
     lines = [(f, y) for f, y, d in bad if counts.get((f, y + 1), 0)]
     f0, y0 = lines[0]
     xs = first_x[(f0, y0 + 1)]
-    n0 = next(d for f, y, d in bad if (f, y) == (f0, y0))
     line_txt = ", ".join(str(y) for _, y in lines[:_LINES_NAMED]) + (
         f" (+{len(lines) - _LINES_NAMED} more)" if len(lines) > _LINES_NAMED else ""
     )

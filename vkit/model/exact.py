@@ -17,7 +17,7 @@ from vkit.model.luma import LumaWeights, luma
 from vkit.model.result import ModelResult, Stage
 from vkit.model.spec import PipelineSpec
 from vkit.model.widths import StageWidth, dtype_for_range, stage_range_map
-from vkit.model.window import interior_mask, pad
+from vkit.model.window import interior_mask, pad, taps_of_padded
 
 __all__ = [
     "ORDER_FILTERS", "Variation", "ModelPlan", "model_plan", "check_image", "new_stage", "output_levels", "run_model", "run_plan",
@@ -47,6 +47,9 @@ class Variation:
         output_overflow: ``"saturate"`` (the spec's) or ``"wrap"`` (the output keeps its low bits).
         output_top: the output's saturation bound, None for the spec's ``2**bits - 1``.
         right_border: None, or the value the window reads beyond the right edge (linear filters only).
+        row_shifts: ``(row, columns)``: window row 0 (top) .. 2 (bottom) read ``columns`` late (> 0, the
+            pixel that many columns to the left) or early (< 0), in raster order (the first pixel of a
+            line read late is the last of the line before): a line buffer's address off by one.
     """
 
     limits: tuple[tuple[str, int, str], ...] = ()
@@ -54,6 +57,7 @@ class Variation:
     output_overflow: str = "saturate"
     output_top: int | None = None
     right_border: int | None = None
+    row_shifts: tuple[tuple[int, int], ...] = ()
 
 
 NO_VARIATION = Variation()
@@ -176,6 +180,8 @@ def run_plan(plan: ModelPlan, img: np.ndarray, *, keep_stages: bool = True, band
     spec = plan.spec
     band_rows = want_int("run_model", "band_rows", band_rows, 1)
     height, width = img.shape[:2]
+    if plan.variation.row_shifts:  # a line read late needs the line before it: one band
+        band_rows = height
     names = [n for n in spec.stage_names() if n != "input"]
     kept = names if keep_stages else ["output"]
     clamp_names = [n for n in kept if plan.widths[n].can_clamp]
@@ -220,6 +226,8 @@ def _filter_band(plan: ModelPlan, src: np.ndarray, top: int, rows: int) -> dict[
     if spec.luma is not None:
         src = _limit(plan, "luma", _luma_rows(plan, src))
         band["luma"] = src[top : top + rows]
+    if plan.variation.row_shifts:
+        return _moved_window_band(plan, src, top, rows, band)
     if filt.is_order:
         band["filtered"] = _limit(plan, "filtered", ORDER_FILTERS[filt.kind](src, border, constant)[top : top + rows])
         return band
@@ -230,11 +238,53 @@ def _filter_band(plan: ModelPlan, src: np.ndarray, top: int, rows: int) -> dict[
         acc = correlate_padded(padded, k)
         if filt.absolute:
             acc = np.abs(acc, out=acc)
-        if filt.kind == "box":
-            acc = np.floor_divide(acc + 4, 9) if filt.rounding == "half_up" else np.floor_divide(acc, 9)
-        else:
-            acc = shift_round(acc, filt.shift, filt.rounding)
-        band[name] = _limit(plan, name, acc)
+        band[name] = _limit(plan, name, _scaled(filt, acc))
+    return band
+
+
+def _scaled(filt: Any, acc: np.ndarray) -> np.ndarray:
+    """The filter's sum scaled back: box divides by 9, the others shift right, each with its rounding."""
+    if filt.kind == "box":  # n / 9 is never a tie, so half_even is half_up here
+        return np.floor_divide(acc + 4, 9) if filt.rounding != "truncate" else np.floor_divide(acc, 9)
+    return shift_round(acc, filt.shift, filt.rounding)
+
+
+def _moved_raster(src: np.ndarray, columns: int) -> np.ndarray:
+    """``src`` with every pixel replaced by the one ``columns`` earlier (> 0) or later in raster order: a
+    line read late takes its first pixel from the end of the line before (0, a register's reset value,
+    at the frame's first), as a stored line read one address off does."""
+    flat = src.reshape(-1)
+    out = np.zeros_like(flat)
+    if columns > 0:
+        out[columns:] = flat[:-columns]
+    else:
+        out[:columns] = flat[-columns:]
+    return out.reshape(src.shape)
+
+
+def _moved_window_band(plan: ModelPlan, src: np.ndarray, top: int, rows: int, band: dict[str, np.ndarray]
+                       ) -> dict[str, np.ndarray]:
+    """:func:`_filter_band`'s filter for a plan whose window rows are read late or early (``row_shifts``):
+    the nine taps summed (or sorted) one by one, in int64."""
+    spec, filt = plan.spec, plan.spec.filter
+    border, constant = spec.window.border, spec.window.constant
+    padded = pad(src, border, constant, dtype=np.int64)[top : top + rows + 2]
+    if plan.variation.right_border is not None:
+        padded[:, -1] = plan.variation.right_border
+    grid = taps_of_padded(padded)
+    for row, columns in plan.variation.row_shifts:
+        moved = pad(_moved_raster(src, columns), border, constant, dtype=np.int64)[top : top + rows + 2]
+        moved[[0, -1]] = padded[[0, -1]]  # the lines above and below the frame come from the border, not a buffer
+        grid[row] = taps_of_padded(moved)[row]
+    if filt.is_order:
+        stack = np.sort(np.stack([t for line in grid for t in line]), axis=0)
+        band["filtered"] = _limit(plan, "filtered", stack[{"min": 0, "median": 4, "max": 8}[filt.kind]])
+        return band
+    for name, k in plan.kernels.items():
+        acc = sum((int(k[r][c]) * grid[r][c] for r in range(3) for c in range(3) if k[r][c]), np.zeros_like(grid[0][0]))
+        if filt.absolute:
+            acc = np.abs(acc)
+        band[name] = _limit(plan, name, _scaled(filt, acc))
     return band
 
 

@@ -10,8 +10,9 @@ from vkit.core.errors import ConfigError
 
 __all__ = ["ROUNDING", "shift_round", "saturate", "bits_for_range", "check_rounding"]
 
-ROUNDING = ("truncate", "half_up")
-"""Rounding modes of a right shift: ``truncate`` floors (``>>>`` on a signed value), ``half_up`` adds half an LSB first."""
+ROUNDING = ("truncate", "half_up", "half_even")
+"""Rounding modes of a right shift: ``truncate`` floors (``>>>`` on a signed value), ``half_up`` adds half an LSB
+first, ``half_even`` rounds halves to the even neighbour (convergent rounding)."""
 
 IntLike = Union[int, np.integer, np.ndarray]
 
@@ -36,7 +37,8 @@ def shift_round(x: IntLike, shift: int, rounding: str = "truncate") -> Any:
         x: a Python int, NumPy integer or integer array (signed or unsigned).
         shift: bits to drop, >= 0. A shift of 0 returns ``x`` unchanged.
         rounding: ``"truncate"`` floors (what a signed ``>>>`` does, so -3 >> 1 == -2);
-            ``"half_up"`` adds ``2**(shift-1)`` and then floors, so halves round towards +infinity.
+            ``"half_up"`` adds ``2**(shift-1)`` and then floors, so halves round towards +infinity;
+            ``"half_even"`` adds ``2**(shift-1) - 1`` plus the kept LSB, so exact halves go to the even result.
 
     Returns:
         The shifted value, of the same kind as ``x`` (int for an int, array of the same dtype for an
@@ -48,16 +50,27 @@ def shift_round(x: IntLike, shift: int, rounding: str = "truncate") -> Any:
         return x
     if isinstance(x, (int, np.integer)) and not isinstance(x, bool):
         value = int(x)
-        if rounding == "half_up":
-            value += 1 << (shift - 1)
+        value += _round_constant(value, shift, rounding)
         return value >> shift
     arr = np.asarray(x)
     if arr.dtype.kind not in "iu":
         raise ConfigError(f"shift_round needs integers, got dtype {arr.dtype}; convert with astype(np.int32) first")
-    if rounding == "half_up":
-        arr = arr + arr.dtype.type(1 << (shift - 1))
-        return np.right_shift(arr, shift, out=arr)
-    return np.right_shift(arr, shift)
+    if rounding == "truncate":
+        return np.right_shift(arr, shift)
+    kept_lsb = np.right_shift(arr, shift) & 1 if rounding == "half_even" else None
+    arr = arr + arr.dtype.type(1 << (shift - 1))
+    if kept_lsb is not None:  # half less one, plus the kept LSB: an exact half carries only onto an odd result
+        arr -= arr.dtype.type(1)
+        arr += kept_lsb
+    return np.right_shift(arr, shift, out=arr)
+
+
+def _round_constant(value: int, shift: int, rounding: str) -> int:
+    """What to add to ``value`` before a floor shift by ``shift`` (>= 1) bits for the given rounding."""
+    if rounding == "truncate":
+        return 0
+    half = 1 << (shift - 1)
+    return half if rounding == "half_up" else half - 1 + ((value >> shift) & 1)
 
 
 def saturate(x: IntLike, lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:

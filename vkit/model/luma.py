@@ -141,7 +141,7 @@ def luma(
         rgb: ``(H, W, 3)`` uint8 image, components in R, G, B order, 0..255.
         weights: integer weights, e.g. :data:`BT601`.
         output_bits: bits of the result, 1..24; 8 gives the usual 0..255 luma.
-        rounding: ``"half_up"`` (add half an LSB before the shift) or ``"truncate"``.
+        rounding: ``"half_up"`` (add half an LSB before the shift), ``"half_even"`` (ties to even) or ``"truncate"``.
 
     Returns:
         ``(H, W)`` int32 array.
@@ -153,7 +153,7 @@ def luma(
     check_rounding(rounding)
     output_bits = _check_output_bits(output_bits)
     shift = weights.fraction_bits - (output_bits - 8)
-    half = (1 << (shift - 1)) if (rounding == "half_up" and shift > 0) else 0
+    half = (1 << (shift - 1)) if (rounding != "truncate" and shift > 0) else 0
     peak = weights.total * 255 + half
     # uint16 halves the memory traffic when the sum fits (weights summing to 256 do: 65280 + 128).
     acc_type = np.uint16 if peak < (1 << 16) else (np.int32 if peak < (1 << 31) else np.int64)
@@ -165,7 +165,11 @@ def luma(
     acc += tmp
     if shift > 0:
         if half:
+            kept_lsb = (acc >> acc_type(shift)) & acc_type(1) if rounding == "half_even" else None
             acc += acc_type(half)
+            if kept_lsb is not None:  # half less one plus the kept LSB: ties go to the even result
+                acc -= acc_type(1)
+                acc += kept_lsb
         acc >>= acc_type(shift)
     out = acc.astype(np.int32, copy=False) if acc_type != np.int64 else acc
     if shift < 0:

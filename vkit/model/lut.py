@@ -54,6 +54,8 @@ def _round_real(value: Any, rounding: str, address: int) -> int:
         exact = Fraction(value)
     if exact < 0:
         raise ConfigError(f"table function returned {value!r} at address {address}; table words are unsigned (>= 0)")
+    if rounding == "half_even":
+        return round(exact)  # Fraction.__round__ sends ties to even (Python language reference)
     if rounding == "half_up":
         exact = exact + Fraction(1, 2)
     return math.floor(exact)

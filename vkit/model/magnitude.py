@@ -136,7 +136,7 @@ def root_table(address_bits: int, data_bits: int, scale: int = 1, rounding: str 
         raise ConfigError(f"root table scale={scale} with {address_bits} address bits overflows 62 bits; lower the scale")
     radicand = np.arange(1 << address_bits, dtype=np.int64) * int(scale)
     if rounding == "truncate":
-        roots = isqrt(radicand)
+        roots = isqrt(radicand)  # half_even below equals half_up: the root of an integer is never k + 1/2
     else:
         roots = (isqrt(4 * radicand) + 1) // 2
     np.minimum(roots, (1 << data_bits) - 1, out=roots)

@@ -3,7 +3,8 @@
 A mutant is the bit-exact model with one departure: a stage word narrowed (wrapping or saturating), a
 rounding swapped, a kernel tap, row or column with the wrong sign, gx and gy swapped, luma weights
 permuted or off by one, another border policy, a clamp bound one bit short, a table built or addressed
-differently, the output inverted or shifted, another order filter. A stimulus "kills" a mutant when
+differently, the output inverted or shifted, another order filter, a window row read a column late or
+early (a line buffer address off by one). A stimulus "kills" a mutant when
 the mutant's output differs from the spec's on some checked pixel; a mutant no stimulus can kill (the
 magnitude does not see the sign of gy) is marked equivalent, with the reason.
 
@@ -13,7 +14,7 @@ IEEE Computer 11(4), 1978) applied to the spec rather than to the RTL text.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, fields, is_dataclass, replace
 from itertools import permutations
 from typing import Any, Iterator
 
@@ -21,11 +22,12 @@ import numpy as np
 
 from vkit.core.errors import ConfigError
 from vkit.model import magnitude as magmod
+from vkit.model.fixedpoint import ROUNDING
 from vkit.model.exact import ModelPlan, Variation, check_image, model_plan, output_levels, run_plan
 from vkit.model.spec import GRADIENT_KINDS, ORDER_KINDS, PipelineSpec
 from vkit.model.window import BORDERS
 
-__all__ = ["Mutant", "spec_mutants", "mutant_outputs", "NARROW_BITS"]
+__all__ = ["Mutant", "spec_mutants", "mutant_outputs", "mutant_pair", "NARROW_BITS"]
 
 NARROW_BITS = 2
 """Stage words are narrowed by 1 .. this many bits: one bit short is the usual slip, two covers a
@@ -131,22 +133,30 @@ def _saturation_hidden(base: ModelPlan, stage: str, bits: int) -> bool:
     return lo and int(output_levels(base, np.array([[w.hi]])).max()) == int(output_levels(base, np.array([[pos]])).max())
 
 
+_ROUNDING_WORDS = {"truncate": "truncation", "half_up": "rounding half up", "half_even": "rounding half to even"}
+
+
 def _rounding_mutants(base: ModelPlan, spec: PipelineSpec) -> Iterator[Mutant]:
-    words = {"truncate": "truncation", "half_up": "rounding half up"}
-    other = {"truncate": "half_up", "half_up": "truncate"}
     sections = []
     if spec.luma is not None:
-        sections.append(("luma", "luma", "the luma"))
+        sections.append(("luma", "luma", "the luma", True))
     if spec.filter.shift or spec.filter.kind == "box":
-        sections.append(("filter", "filtered" if "filtered" in base.widths else "gx", f"the {spec.filter.kind}"))
+        stage = "filtered" if "filtered" in base.widths else "gx"
+        sections.append(("filter", stage, f"the {spec.filter.kind}", spec.filter.kind != "box"))
     if spec.magnitude is not None and spec.magnitude.method == "table":
-        sections.append(("magnitude", "magnitude", "the root table"))
-    for section, stage, where in sections:
+        sections.append(("magnitude", "magnitude", "the root table", False))
+    for section, stage, where, has_ties in sections:
         now = getattr(spec, section).rounding
-        plan = _respec(spec, section, rounding=other[now])
-        if plan is not None:
-            yield Mutant(f"{section}.{other[now]}", stage, f"{words[other[now]]} instead of {words[now]} in {where}",
-                         f"a {stage} value whose dropped bits are one half or more", plan)
+        for other in ROUNDING:
+            # n / 9 and the root of an integer are never exact halves: half_even there equals half_up
+            if other == now or (not has_ties and (other == "half_even" or "truncate" not in (now, other))):
+                continue
+            plan = _respec(spec, section, rounding=other)
+            if plan is not None:
+                words = _ROUNDING_WORDS
+                reason = (f"a {stage} value whose dropped bits are exactly one half" if "truncate" not in (now, other)
+                          else f"a {stage} value whose dropped bits are one half or more")
+                yield Mutant(f"{section}.{other}", stage, f"{words[other]} instead of {words[now]} in {where}", reason, plan)
 
 
 def _flips(k: tuple[tuple[int, ...], ...]) -> Iterator[tuple[str, str, np.ndarray]]:
@@ -237,6 +247,15 @@ def _border_mutants(base: ModelPlan, spec: PipelineSpec) -> Iterator[Mutant]:
                      "a right edge that is not black", _wide(base, variation=Variation(right_border=0)))
 
 
+def _line_buffer_mutants(base: ModelPlan, spec: PipelineSpec) -> Iterator[Mutant]:
+    names = ("top", "middle", "bottom")
+    for row in range(3):
+        for columns, word in ((1, "late"), (-1, "early")):
+            yield Mutant(f"window.row{row}_{word}", "window",
+                         f"window row {row} ({names[row]}) read one column {word} (a line buffer address off by one)",
+                         "neighbouring pixels of one line that differ", _wide(base, variation=Variation(row_shifts=((row, columns),))))
+
+
 def _pads_hidden(spec: PipelineSpec, border: str, constant: int, top: int) -> bool:
     """True when a min or max filter's output cannot depend on what ``border`` pads with: the pad copies a
     pixel already in the window (replicate, mirror), or never wins the comparison (0 for max, the top for min)."""
@@ -310,7 +329,7 @@ def _filter_mutants(base: ModelPlan, spec: PipelineSpec) -> Iterator[Mutant]:
                              "any non-zero filter sum", plan)
 
 
-_FAMILIES = (_width_mutants, _rounding_mutants, _kernel_mutants, _luma_mutants, _border_mutants,
+_FAMILIES = (_width_mutants, _rounding_mutants, _kernel_mutants, _luma_mutants, _border_mutants, _line_buffer_mutants,
              _magnitude_mutants, _output_mutants, _filter_mutants)
 
 
@@ -329,3 +348,65 @@ def mutant_outputs(mutant: Mutant, frames: Any, spec: PipelineSpec) -> np.ndarra
     in ``spec``'s input format."""
     return np.stack([run_plan(mutant.plan, check_image(spec, f), keep_stages=False).output.astype(np.int64)
                      for f in frames])
+
+
+def _merged(base: Any, a: Any, b: Any) -> tuple[bool, Any]:
+    """(ok, value) for one field that two mutants may each have changed from ``base``: the changed one,
+    or for two changed dataclasses their fields merged; not ok when both changed the same thing."""
+    if a == base:
+        return True, b
+    if b == base:
+        return True, a
+    if a is None or b is None or base is None or not is_dataclass(a) or isinstance(a, type):
+        return False, None
+    out = {}
+    for f in fields(a):
+        ok, value = _merged(getattr(base, f.name), getattr(a, f.name), getattr(b, f.name))
+        if not ok:
+            return False, None
+        out[f.name] = value
+    return True, replace(a, **out)
+
+
+def _overrides(mutant: Mutant) -> dict[str, Any]:
+    """What the mutant's plan sets beyond what its own spec gives: weights, kernels, table, variation."""
+    own = model_plan(mutant.plan.spec)
+    out: dict[str, Any] = {}
+    for name in ("weights", "kernels"):
+        if getattr(mutant.plan, name) != getattr(own, name):
+            out[name] = getattr(mutant.plan, name)
+    if mutant.plan.table is not None and not np.array_equal(mutant.plan.table, own.table):
+        out["table"] = mutant.plan.table
+    if mutant.plan.variation != Variation():
+        out["variation"] = mutant.plan.variation
+    return out
+
+
+def mutant_pair(spec: PipelineSpec, a: Mutant, b: Mutant) -> Mutant | None:
+    """Both departures of ``a`` and ``b`` at once (a design can hold two faults); None when they change the
+    same field, or the two together make no valid spec."""
+    if a.name == b.name:
+        return None
+    try:
+        ok, merged = _merged(spec, a.plan.spec, b.plan.spec)
+    except ConfigError:  # the two changes together break a rule of the spec
+        return None
+    if not ok:
+        return None
+    over_a, over_b = _overrides(a), _overrides(b)
+    if (set(over_a) & set(over_b)) - {"variation"}:
+        return None
+    if "variation" in over_a and "variation" in over_b:
+        va, vb = over_a["variation"], over_b["variation"]
+        limits = (*va.limits, *vb.limits)
+        ok, both = _merged(Variation(), replace(va, limits=()), replace(vb, limits=()))
+        if not ok:
+            return None
+        over_a["variation"] = replace(both, limits=limits)
+        del over_b["variation"]
+    try:
+        plan = _wide(replace(model_plan(merged), **{**over_b, **over_a}))
+    except ConfigError:
+        return None
+    return Mutant(f"{a.name}+{b.name}", a.stage, f"{a.description} and {b.description}",
+                  f"{a.needs}, and {b.needs}", plan)

@@ -70,7 +70,7 @@ class LumaSpec:
             the preset's own (8 for bt601/bt709, 15 for opencv); another value re-quantises the
             preset's real coefficients to that many bits. Required with integer weights.
         output_bits: bits of the luma value, 1..24 (12 gives 0..4080 for 8-bit RGB and BT.601).
-        rounding: rounding of the final right shift, ``"truncate"`` or ``"half_up"``.
+        rounding: rounding of the final right shift, ``"truncate"``, ``"half_up"`` or ``"half_even"``.
     """
 
     weights: str | tuple[int, int, int] = "bt601"
@@ -156,7 +156,7 @@ class FilterSpec:
             not convolution: ``taps[0][0]`` weighs the upper-left neighbour).
         shift: right shift applied to the weighted sum (to ``gx``/``gy`` for gradient kinds), bits >= 0.
             Not used by order filters, and must stay 0 for ``box`` (which divides by 9).
-        rounding: rounding of that shift (and of box's divide by 9), ``"truncate"`` or ``"half_up"``.
+        rounding: rounding of that shift (and of box's divide by 9), ``"truncate"``, ``"half_up"`` or ``"half_even"``.
         absolute: take the absolute value of the weighted sum before the shift (linear non-gradient kinds).
     """
 

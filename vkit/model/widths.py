@@ -68,7 +68,7 @@ def _square_range(lo: int, hi: int) -> tuple[int, int]:
 
 
 def _div9(value: int, rounding: str) -> int:
-    return (value + 4) // 9 if rounding == "half_up" else value // 9
+    return (value + 4) // 9 if rounding != "truncate" else value // 9  # n / 9 is never a tie: half_even == half_up
 
 
 def stage_ranges(spec: PipelineSpec) -> list[StageWidth]:
@@ -89,7 +89,7 @@ def stage_ranges(spec: PipelineSpec) -> list[StageWidth]:
         lo, hi = luma_range(weights, spec.luma.output_bits, spec.luma.rounding)
         r, g, b = weights.as_tuple()
         shift = weights.fraction_bits - (spec.luma.output_bits - 8)
-        half = f" + {1 << (shift - 1)}" if spec.luma.rounding == "half_up" and shift > 0 else ""
+        half = f" + {1 << (shift - 1)}" if spec.luma.rounding != "truncate" and shift > 0 else ""
         formula = f"({r}R + {g}G + {b}B{half}) >> {shift}" if shift >= 0 else f"({r}R + {g}G + {b}B) << {-shift}"
         out.append(_width("luma", lo, hi, formula))
     filt = spec.filter

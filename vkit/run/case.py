@@ -18,7 +18,7 @@ from typing import Any
 
 import numpy as np
 
-from vkit.check.by_mutant import MutantDiagnosis, diagnose_by_mutants, expected_by_mutant
+from vkit.check.by_mutant import MutantDiagnosis, diagnose_with_pairs
 from vkit.check.results import Finding
 from vkit.check.scoreboard import Verdict, score
 from vkit.core.errors import ToolError, VkitError
@@ -132,7 +132,8 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -
         verdict = replace(verdict, status=status, passed=False, findings=[stop, *verdict.findings])
     by_mutant = _mutant_diagnosis(verdict, prep)
     verdict = _named_by_mutant(verdict, by_mutant)
-    coverage, warnings = stimulus_coverage(prep.spec, prep.frames, options.coverage_floor)
+    coverage, warnings = stimulus_coverage(prep.spec, prep.frames, options.coverage_floor,
+                                           BuildCache(options.cache_dir).cache_dir)
     warnings = [*verdict.warnings, *warnings]
     waves: dict[str, Any] | None = None
     wanted = options.waves == "all" or (options.waves == "failing" and verdict.status in ("fail", "no_output"))
@@ -148,6 +149,9 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -
 _GUESSES = ("shift", "scattered")
 """Finding kinds read off where the mismatches lie rather than what their values are: a spec mutant that
 reproduces the values is the better explanation and is reported first (a shift must survive that check)."""
+_EXACT_BEATS = (*_GUESSES, "stall")
+"""Finding kinds a spec mutant replaces when it reproduces every checked pixel exactly: a pixel that looks
+repeated or skipped is then what a line buffer read one address off gives, not a handshake fault."""
 
 
 def _mutant_diagnosis(verdict: Verdict, prep: _Prepared) -> MutantDiagnosis | None:
@@ -160,14 +164,16 @@ def _mutant_diagnosis(verdict: Verdict, prep: _Prepared) -> MutantDiagnosis | No
         return None
     inputs = prep.frames[[f.index for f in frames]]
     checked = np.stack([f.valid & f.present & ~f.unknown for f in frames])
-    return diagnose_by_mutants(np.stack([f.expected for f in frames]), np.stack([f.actual for f in frames]),
-                               expected_by_mutant(prep.spec, inputs), checked)
+    return diagnose_with_pairs(prep.spec, inputs, np.stack([f.expected for f in frames]),
+                               np.stack([f.actual for f in frames]), checked)
 
 
 def _named_by_mutant(verdict: Verdict, found: MutantDiagnosis | None) -> Verdict:
     """The verdict with the mutant's explanation first when the checks could only guess (:data:`_GUESSES`)."""
     top = verdict.diagnosis
-    if found is None or found.best is None or top is None or top.kind not in _GUESSES:
+    if found is None or found.best is None or top is None:
+        return verdict
+    if top.kind not in (_EXACT_BEATS if found.best.exact else _GUESSES):
         return verdict
     evidence = {"mutant": found.best.name, "explained_share": round(found.best.share, 4), "where": found.where,
                 "instead_of": top.kind}

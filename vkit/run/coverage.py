@@ -2,6 +2,11 @@
 
 from __future__ import annotations
 
+import hashlib
+import importlib
+import json
+import os
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -11,7 +16,15 @@ from vkit.model.pipeline import PipelineSpec
 from vkit.model.quality import compare
 from vkit.model.strength import stimulus_strength
 
-__all__ = ["stimulus_coverage", "STRENGTH_MAX_PIXELS"]
+__all__ = ["stimulus_coverage", "STRENGTH_MAX_PIXELS", "COVERAGE_CACHE"]
+
+COVERAGE_CACHE = "coverage"
+"""Folder under the build cache that keeps each stimulus's coverage figures: the same frames on another
+simulator, drive path or stall setting (or the next run) reuse them instead of rerunning every mutant."""
+_CODE = ("vkit.model.fixedpoint", "vkit.model.luma", "vkit.model.window", "vkit.model.kernels", "vkit.model.magnitude",
+         "vkit.model.widths", "vkit.model.exact", "vkit.model.float_twin", "vkit.model.quality", "vkit.model.mutants",
+         "vkit.model.strength", "vkit.check.align", __name__)
+"""Modules whose code the figures depend on: their source is part of the cache key."""
 
 STRENGTH_MAX_PIXELS = 4_000_000
 """Input pixels of a case the mutant strength is measured on (every mutant is a model run: about 60 runs
@@ -25,18 +38,55 @@ def _gray_on_rgb(spec: PipelineSpec, frames: np.ndarray) -> bool:
     )
 
 
-def stimulus_coverage(spec: PipelineSpec, frames: np.ndarray, floor: float) -> tuple[dict[str, Any], list[str]]:
+def stimulus_coverage(spec: PipelineSpec, frames: np.ndarray, floor: float,
+                      cache_dir: Path | None = None) -> tuple[dict[str, Any], list[str]]:
     """The coverage figures report.json keeps for a case, and the warnings in words.
 
     Args:
         spec: the design's pipeline spec.
         frames: the case's input frames.
         floor: a stage whose seen range is below this share of its theoretical range gets a warning, 0..1.
+        cache_dir: the build cache; the figures are kept in its :data:`COVERAGE_CACHE` folder, keyed on
+            the spec, the frames, the floor and the code that measures them. None measures afresh.
 
     Returns:
-        ``({"stages", "clamp_shares", "border_share", "floor"}, warnings)``; ``border_share`` is None
-        when the spec leaves borders unchecked.
+        ``({"mutants", "stages", "clamp_shares", "border_share", "floor"}, warnings)``; ``border_share``
+        is None when the spec leaves borders unchecked.
     """
+    path = None if cache_dir is None else Path(cache_dir) / COVERAGE_CACHE / f"{_key(spec, frames, floor)}.json"
+    if path is not None and path.is_file():
+        try:
+            kept = json.loads(path.read_text())
+            return kept["figures"], kept["warnings"]
+        except (OSError, ValueError, KeyError):
+            pass  # a damaged entry is measured again and rewritten
+    figures, warnings = _measure(spec, frames, floor)
+    if path is not None:
+        _keep(path, {"figures": figures, "warnings": warnings})
+    return figures, warnings
+
+
+def _key(spec: PipelineSpec, frames: np.ndarray, floor: float) -> str:
+    digest = hashlib.sha256(f"{spec!r}|{floor!r}|{frames.shape}|{frames.dtype}".encode())
+    for name in _CODE:
+        digest.update(Path(importlib.import_module(name).__file__ or "").read_bytes())
+    digest.update(np.ascontiguousarray(frames).data)
+    return digest.hexdigest()[:32]
+
+
+def _keep(path: Path, value: dict[str, Any]) -> None:
+    """Write ``value`` to ``path`` atomically; a cache that cannot be written only costs time."""
+    tmp = path.with_name(f"{path.name}.{os.getpid()}.tmp")
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        tmp.write_text(json.dumps(value))
+        os.replace(tmp, path)
+    except OSError:
+        tmp.unlink(missing_ok=True)
+
+
+def _measure(spec: PipelineSpec, frames: np.ndarray, floor: float) -> tuple[dict[str, Any], list[str]]:
+    """:func:`stimulus_coverage` without the cache."""
     report = compare(spec, list(frames))
     warnings = [
         f"stage {c.name} reached {100 * c.share:.0f}% of its range "

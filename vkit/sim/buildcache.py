@@ -109,8 +109,11 @@ def build_key(request: BuildRequest) -> str:
     put("top", request.top)
     put("language", request.language)
     for src in request.sources:
-        # the file NAME matters to some tools (error lines, VHDL libraries); its contents decide the build
-        put("source", f"{src.name}={_file_digest(src)}")
+        # the file NAME matters to some tools (error lines, VHDL libraries); its contents decide the build.
+        # GHDL (mcode) reads the analysed files again when it elaborates, so its build also keeps the PATH:
+        # a copy of the sources elsewhere (a fresh clone, a deleted checkout) gets a build of its own.
+        name = str(src.resolve()) if request.simulator == "ghdl" else src.name
+        put("source", f"{name}={_file_digest(src)}")
     for k, v in request.parameters:
         put("param", f"{k}={v}")
     for k, v in request.defines:

@@ -177,3 +177,16 @@ def test_foreign_keys_are_checked_in_the_one_message_shape(tmp_path: Path, desig
     with pytest.raises(ConfigError) as err:
         config_from_dict(_config(tmp_path, **design), tmp_path / "v.toml")
     assert words in str(err.value) and str(err.value).startswith("v.toml [designs.rowmax]: ")
+
+
+def test_bundled_bug_regression_holds_every_foreign_bug_where_it_shows() -> None:
+    from vkit.run.config import load_config
+
+    cases = expand_matrix(load_config(SAMPLE.parent / "sim" / "bugs.toml"))
+    ids = [c.id for c in cases]
+    for bug in ("smooth_ce@enable_ignored_in_blanking", "smooth_ce@latency_in_clocks",
+                "nsync_sharpen@den_polarity_slip", "rowmax_htotal@fixed_second_line"):
+        assert any(i.startswith(bug + "/") for i in ids), bug
+    # the latency bug shows only under an uneven enable; the line-length bug only off tiny32x24
+    assert any(i.startswith("smooth_ce@latency_in_clocks/ghdl/") and i.endswith("-en0.5g3") for i in ids)
+    assert any(i.startswith("rowmax_htotal@fixed_second_line/") and "/tiny64x48/" in i for i in ids)

@@ -54,14 +54,19 @@ module nsync_sharpen #(
     wire [10:0] now_s  = {vsync_n, hsync_n, den_n, pix};
     wire [10:0] fill_s = {1'b0, 1'b0, 1'b1, 8'd0};  // syncs at their reset value, data-enable inactive
     wire [10:0] mid_s  = ok_now ? line_a[rd] : fill_s;
+    /* verilator lint_off UNUSEDSIGNAL */  // the line above is read for its data-enable and pixel, not its syncs
     wire [10:0] up_s   = ok_now ? line_b[rd] : fill_s;
+    /* verilator lint_on UNUSEDSIGNAL */
 
     // window columns: {de, top, mid, bottom} with the vertical border resolved
     wire        col_de  = ~mid_s[8];
     wire [7:0]  col_mid = mid_s[7:0];
     wire [7:0]  col_top = up_s[8] ? col_mid : up_s[7:0];
     wire [7:0]  col_bot = den_n ? col_mid : pix;
-    reg  [24:0] c_new, c_cur, c_old;  // column x-1, x-2, x-3 after an edge: {de, top, mid, bottom}
+    reg  [24:0] c_new, c_cur;         // column x-1, x-2 after an edge: {de, top, mid, bottom}
+    /* verilator lint_off UNUSEDSIGNAL */  // sharpen reads only the centre row of the left column
+    reg  [24:0] c_old;                // column x-3
+    /* verilator lint_on UNUSEDSIGNAL */
     reg  [1:0]  sync_a, sync_b;       // {vsync_n, hsync_n} of the centre line, aligned with c_cur
     reg         den_a, den_b;
 

@@ -245,7 +245,7 @@ def _cmd_init(args: argparse.Namespace) -> int:
         args.top, list(args.sources), args.out, args.family, spec=args.spec, pixel_format=args.pixel_format,
         simulators=args.sim, parameters=parse_assignments(args.param, "parameter"),
         defines=parse_assignments(args.define, "define"), design_name=args.name, force=args.force,
-        rewrite_config=args.rewrite_config,
+        rewrite_config=args.rewrite_config, include_dirs=args.include_dir or (),
     )
     print(result.summary())
     return EXIT_PASS
@@ -388,6 +388,8 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
              help="parameter / generic value (repeatable)"),
         _arg("-D", "--define", action="append", default=None, metavar="NAME[=VALUE]",
              help="Verilog define (repeatable)"),
+        _arg("-I", "--include-dir", action="append", default=None, metavar="DIR",
+             help="folder `include searches (repeatable)"),
         _arg("--name", default=None, help="the design's name in the config (default: the top)"),
         _arg("--force", action="store_true",
              help="rewrite the Makefile and test module of an existing kit (its config is kept)"),

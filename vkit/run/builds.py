@@ -24,7 +24,7 @@ from vkit.run.config import Case
 from vkit.run.inputs import check_parameters
 from vkit.sim.buildcache import BuildCache, BuildOutcome, BuildRequest
 from vkit.sim.fast import fast_build_plan, native_build, native_build_plan
-from vkit.sim.simulators import activate, require
+from vkit.sim.simulators import TIMESCALE, activate, require
 
 __all__ = [
     "TIMESCALE",
@@ -40,8 +40,6 @@ __all__ = [
     "quiet_pytest_env",
 ]
 
-TIMESCALE = ("1ns", "1ps")
-"""Time unit and precision given to Icarus and Verilator builds (cocotb's clock needs a timescale)."""
 WAVE_MODULE = "vkit_wave_window"
 """Name of the Verilog module that limits a waveform dump to a time window."""
 PARAMETER_WORDING: dict[str, tuple[str, ...]] = {
@@ -185,7 +183,7 @@ def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> Bu
     d = case.design
     plan = fast_build_plan(
         d.top, d.sources, d.language, case.build_parameters(), d.defines, d.family,
-        d.ports, reset_active_high=d.reset_active_high, pixel_format=d.pixel_format,
+        d.ports, reset_active_high=d.reset_active_high, pixel_format=d.pixel_format, include_dirs=d.include_dirs,
         out_active_high={r: d.port_polarity.get(r, True) for r in ("out_de", "out_valid", "out_enable")},
     )  # harness files land in a folder named after their content, so parallel workers never clash
     if native:

@@ -27,6 +27,7 @@ import fnmatch
 import glob
 import itertools
 import importlib.resources
+import json
 import os
 import re
 import sys
@@ -106,7 +107,7 @@ _DESIGN_KEYS = (
     "frame_parameters", "defines", "spec", "spec_file", "ports", "reset_active_high", "reset_cycles",
     "clock_period_ns", "latency_clocks", "latency_timing", "pipeline_clocks", "tolerance_lsb",
     "simulators", "expect", "description", "include_dirs", "build_args", "align", "timeout_clocks",
-    *_FOREIGN_KEYS,
+    "supported_simulators", *_FOREIGN_KEYS,
 )
 _MANIFEST_DESIGN_KEYS = (
     "top", "sources", "language", "family", "spec", "pixel_format", "parameters", "file_parameters",
@@ -301,7 +302,9 @@ class DesignConfig:
         pipeline_clocks: pipeline depth, used to derive the declared latency on other timings.
         tolerance_lsb: accepted ``|actual - expected|``, LSB.
         simulators: simulators named by the config for this design (override of ``[run]``), or None.
-        supported: simulators a manifest says the design runs on (a filter), or None.
+        supported: simulators a manifest says the design runs on (a filter), or the design's own
+            ``supported_simulators`` (a limit: asking for another is a ConfigError), or None.
+        supported_declared: True when ``supported`` is the design's own ``supported_simulators``.
         expect: ``"pass"`` or ``"fail"`` (reported only; the verdict is always the design's own).
         expect_kind: failure class a seeded bug should be diagnosed as, or None.
         description, needs, bug: what the variant is, what stimulus shows it, the bug's name.
@@ -341,6 +344,7 @@ class DesignConfig:
     tolerance_lsb: int = 0
     simulators: list[str] | None = None
     supported: list[str] | None = None
+    supported_declared: bool = False
     expect: str = "pass"
     expect_kind: str | None = None
     description: str = ""
@@ -910,6 +914,9 @@ def _parse_design(where: str, name: str, data: Mapping[str, Any], base: Path, *,
     if "simulators" in data:
         sims = _simulator_list(where, "simulators", data["simulators"])
         d.supported, d.simulators = (sims, None) if manifest else (None, sims)
+    if "supported_simulators" in data:  # e.g. a top with SystemVerilog interface ports: not Icarus
+        d.supported = _simulator_list(where, "supported_simulators", data["supported_simulators"])
+        d.supported_declared = True
     if d.language == "vhdl" and d.defines:
         raise ConfigError(f"{where}: defines are Verilog only and this design is VHDL; use parameters (generics)")
     _set_foreign(where, data, base, d)
@@ -1168,8 +1175,19 @@ def _stimuli(st: StimulusConfig) -> list[_Stimulus]:
 
 def _design_simulators(d: DesignConfig, requested: list[str], command_line: bool = False) -> list[str]:
     """The simulators a design runs on: its own list (an override of ``[run]``) unless the command line
-    names simulators, which win; always only those of its language and, when imported, its manifest's."""
+    names simulators, which win; always only those of its language and, when imported, its manifest's.
+
+    Raises:
+        ConfigError: the design declares ``supported_simulators`` and a simulator outside them is asked for.
+    """
     wanted = requested if command_line or d.simulators is None else d.simulators
+    if d.supported_declared and d.supported is not None:
+        refused = [s for s in wanted if d.language in LANGUAGES[s] and s not in d.supported]
+        if refused:
+            raise ConfigError(
+                f"design {d.name}: {', '.join(refused)} cannot take it (its supported_simulators = "
+                f"{', '.join(d.supported)}); run it with --sim {d.supported[0]} or set its simulators = "
+                f"{json.dumps(d.supported)}")
     return [s for s in wanted if d.language in LANGUAGES[s] and (d.supported is None or s in d.supported)]
 
 

@@ -60,18 +60,19 @@ def make_frames(case: Case) -> np.ndarray:
 
 
 def _top_design(case: Case) -> HdlDesign | None:
-    """The top level as the light HDL reader sees it; None when it cannot read it."""
+    """The top level as the HDL front end reads it; None when it cannot read it."""
     d = case.design
     ints = {k: v for k, v in case.build_parameters().items()
             if isinstance(v, int) and not isinstance(v, bool)}
     try:
-        return find_design(d.sources, d.top, parameters=ints, defines={k: str(v) for k, v in d.defines.items()})
+        return find_design(d.sources, d.top, parameters=ints, defines={k: str(v) for k, v in d.defines.items()},
+                           include_dirs=d.include_dirs)
     except Exception:  # noqa: BLE001 - the reader is a pre-check only; the simulator has the last word
         return None
 
 
 def _top_ports(case: Case) -> list[Port]:
-    """The top level's ports as the light HDL reader sees them; empty when it cannot read them."""
+    """The top level's ports as the HDL front end reads them; empty when it cannot read them."""
     design = _top_design(case)
     return list(design.ports) if design is not None else []
 

@@ -16,11 +16,12 @@ from vkit.core.validate import fail, suggest
 from vkit.model.pipeline import PRESETS as SPEC_PRESETS
 from vkit.run.config import load_config
 from vkit.sim.hdlports import HdlDesign, Port, find_design, language_of, list_designs
+from vkit.sim.ifwrap import FlatWrapper, flat_wrapper
 from vkit.sim.signals import CONTROL_ROLES, FAMILY_ROLES
 from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.synthesis import SCAFFOLD_PATTERNS
 from vkit.run.conventions import LOW_SUFFIXES, Guess, pin_polarity, reset_style, timing_parameters
-from vkit.sim.simulators import LANGUAGES, SIMULATORS
+from vkit.sim.simulators import INTERFACE_SIMULATORS, LANGUAGES, SIMULATORS
 
 __all__ = [
     "RoleGuess",
@@ -386,6 +387,7 @@ class ScaffoldResult:
         simulators: simulators written into the config.
         notes: every line the user should read, CONFIRM items first.
         kept: files that existed and were left as they were (the config, when a kit is upgraded).
+        wrapper: the plain-port wrapper written for a top with SystemVerilog interface ports, or None.
     """
 
     out_dir: Path
@@ -398,12 +400,13 @@ class ScaffoldResult:
     simulators: list[str]
     notes: list[str] = field(default_factory=list)
     kept: list[Path] = field(default_factory=list)
+    wrapper: Path | None = None
     guesses: list[Guess] = field(default_factory=list)
 
     @property
     def files(self) -> list[Path]:
-        """The three files of the kit."""
-        return [self.config, self.test_module, self.makefile]
+        """The files of the kit: config, test module, Makefile (and the interface wrapper when there is one)."""
+        return [self.config, self.test_module, self.makefile, *([self.wrapper] if self.wrapper else [])]
 
     @property
     def written(self) -> list[Path]:
@@ -412,7 +415,8 @@ class ScaffoldResult:
 
     def summary(self) -> str:
         """A few lines for the terminal: the files, the signal map with confidences, the notes."""
-        lines = [f"vkit init: {self.design.name} ({self.design.language}, family {self.guess.family}, spec {self.spec})"]
+        through = f", through {self.wrapper.name}" if self.wrapper is not None else ""
+        lines = [f"vkit init: {self.design.name} ({self.design.language}, family {self.guess.family}, spec {self.spec}{through})"]
         lines += [f"  kept {p} (as you left it)" for p in self.kept]
         lines += [f"  {'rewrote' if self.kept else 'wrote'} {p}" for p in self.written]
         for role, port in self.guess.roles.items():
@@ -504,9 +508,21 @@ class _Kit:
     parameters: dict[str, Any]
     defines: dict[str, Any]
     notes: list[str]
+    include_dirs: list[Path] = field(default_factory=list)
+    wrapper: FlatWrapper | None = None
     polarity: dict[str, bool] = field(default_factory=dict)
     timing_parameters: dict[str, str] = field(default_factory=dict)
     guesses: list[Guess] = field(default_factory=list)
+
+    @property
+    def wrapper_path(self) -> Path | None:
+        """Where the interface wrapper goes (beside the config), or None without one."""
+        return self.out_dir / f"{self.wrapper.name}.sv" if self.wrapper is not None else None
+
+    @property
+    def all_sources(self) -> list[Path]:
+        """The user's sources, then the interface wrapper when there is one."""
+        return [*self.sources, *([self.wrapper_path] if self.wrapper_path is not None else [])]
 
 
 def _design_lines(kit: _Kit, ports_by_name: Mapping[str, Port]) -> list[str]:
@@ -515,7 +531,7 @@ def _design_lines(kit: _Kit, ports_by_name: Mapping[str, Port]) -> list[str]:
     lines = [
         f"[designs.{kit.name}]",
         f"top = {_q(design.name)}",
-        f"sources = [{', '.join(_q(_rel(s, kit.out_dir)) for s in kit.sources)}]",
+        f"sources = [{', '.join(_q(_rel(s, kit.out_dir)) for s in kit.all_sources)}]",
         _c(f"family = {_q(guess.family)}", "guessed: CONFIRM (video: syncs + data-enable; stream: valid/ready + sof/eol)"),
     ]
     data = guess.roles.get("in_data")
@@ -547,6 +563,11 @@ def _design_lines(kit: _Kit, ports_by_name: Mapping[str, Port]) -> list[str]:
         lines.append(f"# parameters = {_inline_table(params)}   # defaults read from the source")
     if kit.defines:
         lines.append(f"defines = {_inline_table(kit.defines)}")
+    if kit.include_dirs:
+        lines.append(f"include_dirs = [{', '.join(_q(_rel(d, kit.out_dir)) for d in kit.include_dirs)}]")
+    if kit.wrapper is not None:
+        lines.append(_c(f"supported_simulators = [{', '.join(_q(s) for s in _interface_simulators())}]",
+                        INTERFACE_SIMULATORS["icarus"].split(" (")[0]))
     return lines
 
 
@@ -653,13 +674,13 @@ def _test_module_text(design_name: str, design: HdlDesign, default_sim: str) -> 
     )
 
 
-def _read_top(top: str, sources: list[Path], parameters: Mapping[str, Any],
-              defines: Mapping[str, Any]) -> tuple[HdlDesign, list[HdlDesign]]:
+def _read_top(top: str, sources: list[Path], parameters: Mapping[str, Any], defines: Mapping[str, Any],
+              include_dirs: Sequence[Path] = ()) -> tuple[HdlDesign, list[HdlDesign]]:
     """The top level and every design in the sources, which must all be in one language."""
-    ints = {k: v for k, v in parameters.items() if isinstance(v, int)}
+    values = {k: v for k, v in parameters.items() if isinstance(v, (int, str)) and not isinstance(v, bool)}
     texts = {k: str(v) for k, v in defines.items()}
-    design = find_design(sources, top, parameters=ints, defines=texts)
-    all_designs = list_designs(sources, parameters=ints, defines=texts)
+    design = find_design(sources, top, parameters=values, defines=texts, include_dirs=include_dirs)
+    all_designs = list_designs(sources, parameters=values, defines=texts, include_dirs=include_dirs)
     languages = {d.language for d in all_designs} | {design.language} | {language_of(p) for p in sources}
     if len(languages) > 1:
         raise ConfigError(
@@ -669,14 +690,38 @@ def _read_top(top: str, sources: list[Path], parameters: Mapping[str, Any],
     return design, all_designs
 
 
-def _simulators_for(language: str, simulators: Sequence[str] | None) -> list[str]:
-    """The simulators to write into the config: as given (each must compile ``language``), else all that do."""
-    able = [s for s in SIMULATORS if language in LANGUAGES[s]]
+def _interface_simulators() -> list[str]:
+    """The simulators that take a top with SystemVerilog interface ports (behind the wrapper)."""
+    return [s for s, why in INTERFACE_SIMULATORS.items() if not why]
+
+
+def _wrap_interfaces(design: HdlDesign, notes: list[str]) -> tuple[HdlDesign, FlatWrapper | None]:
+    """The design vkit drives: ``design`` itself, or its plain-port wrapper when its top has interface ports."""
+    if not design.interface_ports:
+        return design, None
+    wrapper = flat_wrapper(design)
+    ports = ", ".join(f"{p.name} ({p.width_expr})" for p in design.interface_ports)
+    notes.append(f"interface ports {ports}: {wrapper.name}.sv wraps {design.name} and shows each modport signal as "
+                 f"a plain port <port>_<signal>; the config's top is {wrapper.name}")
+    refused = "; ".join(f"{s}: {why}" for s, why in INTERFACE_SIMULATORS.items() if why)
+    notes.append(f"simulators: {', '.join(_interface_simulators())} only (supported_simulators in the config); {refused}")
+    if wrapper.skipped_parameters:
+        notes.append(f"parameters {', '.join(wrapper.skipped_parameters)} are not integers; {wrapper.name}.sv keeps "
+                     f"{design.name}'s defaults for them; edit the wrapper to pass them on")
+    return wrapper.design, wrapper
+
+
+def _simulators_for(language: str, simulators: Sequence[str] | None, interfaces: bool = False) -> list[str]:
+    """The simulators to write into the config: as given (each must compile ``language``, and take
+    interface ports when the top has them), else all that do."""
+    able = [s for s in SIMULATORS if language in LANGUAGES[s] and (not interfaces or s in _interface_simulators())]
     if simulators is None:
         return [s for s in ("icarus", "verilator", "ghdl") if s in able]
     for s in simulators:
         if s not in SIMULATORS:
             raise fail("vkit init", "simulators", s, "not a simulator vkit drives", suggest(s, SIMULATORS))
+        if interfaces and INTERFACE_SIMULATORS.get(s):
+            raise ConfigError(f"vkit init: {s} cannot take this top ({INTERFACE_SIMULATORS[s]}); pick {', '.join(able)}")
         if s not in able:
             raise ConfigError(f"vkit init: {s} does not compile {language}; pick one of {', '.join(able)}")
     if not simulators:
@@ -725,6 +770,8 @@ def _write_kit(kit: _Kit, targets: Mapping[str, Path], keep_config: bool) -> Sca
     """Write the cocotb test module, the Makefile and (unless kept) the config; what was written and kept."""
     kit.out_dir.mkdir(parents=True, exist_ok=True)
     test_name = targets["test_module"].stem
+    if kit.wrapper is not None and kit.wrapper_path is not None:
+        kit.wrapper_path.write_text(kit.wrapper.text, encoding="utf-8")
     if not keep_config:
         targets["config"].write_text(_config_text(kit), encoding="utf-8")
     targets["test_module"].write_text(_test_module_text(kit.name, kit.design, kit.simulators[0]), encoding="utf-8")
@@ -733,7 +780,8 @@ def _write_kit(kit: _Kit, targets: Mapping[str, Path], keep_config: bool) -> Sca
     return ScaffoldResult(out_dir=kit.out_dir, config=targets["config"], test_module=targets["test_module"],
                           makefile=targets["makefile"], design=kit.design, guess=kit.guess, spec=kit.spec,
                           simulators=kit.simulators, notes=kit.notes,
-                          kept=[targets["config"]] if keep_config else [], guesses=list(kit.guesses))
+                          kept=[targets["config"]] if keep_config else [], wrapper=kit.wrapper_path,
+                          guesses=list(kit.guesses))
 
 
 def _kept_design(config_path: Path, design: HdlDesign, design_name: str | None) -> tuple[str, RoleGuess, str, list[str]]:
@@ -759,13 +807,13 @@ def _kept_design(config_path: Path, design: HdlDesign, design_name: str | None) 
 
 
 def _upgrade_kit(design: HdlDesign, sources: list[Path], out: Path, targets: Mapping[str, Path],
-                 design_name: str | None, simulators: list[str]) -> ScaffoldResult:
+                 design_name: str | None, simulators: list[str], wrapper: FlatWrapper | None = None) -> ScaffoldResult:
     """Keep the config (the user's confirmed guesses); rewrite the Makefile and test module to read it."""
     name, guess, spec, kept_sims = _kept_design(targets["config"], design, design_name)
     notes = [f"kept {targets['config'].name}: its signal map, spec, parameters, defines and stimulus are as you "
              f"left them; {targets['makefile'].name} and {targets['test_module'].name} were rewritten to read "
              f"them from it (pass --rewrite-config to write a new config as well)"]
-    kit = _Kit(name, design, sources, out, guess, spec, "kept", kept_sims or simulators, {}, {}, notes)
+    kit = _Kit(name, design, sources, out, guess, spec, "kept", kept_sims or simulators, {}, {}, notes, wrapper=wrapper)
     return _write_kit(kit, targets, keep_config=True)
 
 
@@ -783,6 +831,7 @@ def scaffold(
     design_name: str | None = None,
     force: bool = False,
     rewrite_config: bool = False,
+    include_dirs: Sequence[str | Path] = (),
 ) -> ScaffoldResult:
     """Write a starter kit for design ``top`` into ``out_dir`` (usually the root of the user's RTL repo).
 
@@ -811,6 +860,11 @@ def scaffold(
             An existing config is kept, with the signal map, spec and parameters confirmed in it: the
             Makefile and the test module are rewritten for it (this upgrades a kit of an earlier release).
         rewrite_config: with ``force``, write a new config too (the confirmed values in the old one are lost).
+        include_dirs: folders the sources' `include lines search (written into the config).
+
+    A top with SystemVerilog interface ports (``iface.modport``) gets a fourth file, ``<top>_flat.sv``:
+    a wrapper that shows each modport signal as a plain port; the config's top is the wrapper and its
+    ``supported_simulators`` names the simulators that can take interfaces (not Icarus 11).
 
     Raises:
         ConfigError: a source is missing, ``top`` is not in the sources (the message lists what is),
@@ -820,21 +874,24 @@ def scaffold(
         raise ConfigError("vkit init: no sources given; list the HDL files of the design, in compile order")
     src_paths = [Path(s) for s in sources]
     params, defs = dict(parameters or {}), dict(defines or {})
-    design, all_designs = _read_top(top, src_paths, params, defs)
+    dirs = [Path(d) for d in include_dirs]
+    design, all_designs = _read_top(top, src_paths, params, defs, dirs)
     name = design_name or re.sub(r"\W", "_", design.name)
     _check_choices(name, spec, pixel_format)
-    sims = _simulators_for(design.language, simulators)
+    wrap_notes: list[str] = []
+    driven, wrapper = _wrap_interfaces(design, wrap_notes)
+    sims = _simulators_for(design.language, simulators, interfaces=wrapper is not None)
     out = Path(out_dir)
     targets = _targets(out, design, force)
     if force and not rewrite_config and targets["config"].exists():
-        return _upgrade_kit(design, src_paths, out, targets, design_name, sims)
-    guess = guess_roles(design.ports, family)
-    notes = list(guess.notes)
+        return _upgrade_kit(driven, src_paths, out, targets, design_name, sims, wrapper)
+    guess = guess_roles(driven.ports, family)
+    notes = wrap_notes + list(guess.notes)
     if pixel_format is not None and pixel_format != guess.pixel_format:
         notes.append(f"pixel_format: {pixel_format} as given (the data width suggested {guess.pixel_format})")
         guess.pixel_format = pixel_format
     spec_name, reason = _choose_spec(spec, design, all_designs, src_paths, guess, notes)
-    kit = _Kit(name, design, src_paths, out, guess, spec_name, reason, sims, params, defs, notes)
+    kit = _Kit(name, driven, src_paths, out, guess, spec_name, reason, sims, params, defs, notes, dirs, wrapper)
     _read_conventions(kit, params)
     return _write_kit(kit, targets, keep_config=False)
 

@@ -14,9 +14,10 @@ __getattr__, __dir__, __all__ = lazy_facade(__name__, {
     ),
     "vkit.sim.case": "CASE_ENV error_file_for SimCase TIMEOUT_FACTOR TIMEOUT_MARGIN_CLOCKS",
     "vkit.sim.hdlports": (
-        "eval_int find_design HdlDesign language_of list_designs parse_ports Port "
+        "eval_int find_design HdlDesign INTERFACE language_of list_designs parse_ports Port "
         "ports_from_verilator"
     ),
+    "vkit.sim.ifwrap": "FlatWrapper flat_wrapper",
     "vkit.sim.signals": "CONTROL_ROLES dut_port_names FAMILY_ROLES SignalMap",
     "vkit.sim.simulators": (
         "activate find LANGUAGES MIN_VERILATOR require SimulatorInfo "

@@ -17,7 +17,9 @@ from vkit.core.validate import suggest
 __all__ = [
     "SIMULATORS",
     "LANGUAGES",
+    "INTERFACE_SIMULATORS",
     "MIN_VERILATOR",
+    "TIMESCALE",
     "SimulatorInfo",
     "find",
     "require",
@@ -34,6 +36,17 @@ LANGUAGES: dict[str, tuple[str, ...]] = {
     "ghdl": ("vhdl",),
 }
 """HDL languages each simulator compiles."""
+
+INTERFACE_SIMULATORS: dict[str, str] = {
+    "verilator": "",
+    "icarus": "Icarus 11 cannot parse SystemVerilog interface ports (iverilog -g2012 stops with 'syntax error' "
+              "at an iface.modport port; seen on Icarus 11.0)",
+}
+"""Verilog simulators -> why one cannot take a design whose top has SystemVerilog interface ports (``""``: it can)."""
+
+TIMESCALE: tuple[str, str] = ("1ns", "1ps")
+"""Time unit and precision given to Icarus and Verilator builds (cocotb's clock needs a timescale), and the
+default of modules without a `timescale when the port reader elaborates them."""
 
 MIN_VERILATOR: tuple[int, int] = (5, 36)
 """Oldest Verilator release that works with cocotb 2.x (older ones, such as Debian's 5.006, do not)."""

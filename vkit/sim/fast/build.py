@@ -37,6 +37,7 @@ from vkit.sim.fast.harness import HarnessSpec, verilog_harness, vhdl_harness
 from vkit.sim.fast.stimulus import fast_run_dir, prepare_fast_run
 from vkit.sim.fast.wire import HARNESS, TOPLEVEL, capture_file_name
 from vkit.sim.hdlports import find_design
+from vkit.sim.simulators import TIMESCALE
 from vkit.video.formats import pixel_bits
 
 __all__ = [
@@ -101,7 +102,7 @@ class HarnessBuild:
         if self.defines:
             kw["defines"] = dict(self.defines)
         if simulator == "icarus":
-            kw["timescale"] = ("1ns", "1ps")
+            kw["timescale"] = TIMESCALE
         return kw
 
 
@@ -132,11 +133,12 @@ def _int_parameters(parameters: Mapping[str, Any]) -> dict[str, int]:
 
 def _bus_widths(dut_top: str, sources: Sequence[Path], roles: Mapping[str, str], parameters: Mapping[str, Any],
                 defines: Mapping[str, Any], in_width: int | None, out_width: int | None,
-                pixel_format: str | None) -> tuple[int, int]:
+                pixel_format: str | None, include_dirs: Sequence[Path] = ()) -> tuple[int, int]:
     """The input and output data bus bits: as given, else read from the design's port list."""
     widths: dict[str, int | None] = {}
     if in_width is None or out_width is None:
-        design = find_design(sources, dut_top, parameters=_int_parameters(parameters), defines=dict(defines))
+        design = find_design(sources, dut_top, parameters=_int_parameters(parameters),
+                             defines={k: str(v) for k, v in defines.items()}, include_dirs=include_dirs)
         widths = {p.name: p.width for p in design.ports}
     if in_width is None:
         in_width = widths.get(roles.get("in_data", "")) or (pixel_bits(pixel_format) if pixel_format else None)
@@ -196,6 +198,7 @@ def fast_build_plan(
     reset_active_high: bool = True,
     pixel_format: str | None = None,
     out_active_high: Mapping[str, bool] | None = None,
+    include_dirs: Sequence[str | Path] = (),
 ) -> HarnessBuild:
     """Write the fast-path harness for a design and describe the one build every case runs on.
 
@@ -218,6 +221,7 @@ def fast_build_plan(
         reset_active_high: polarity of the design's reset.
         pixel_format: "gray8" or "rgb888", only used when ``in_width`` cannot be read.
         out_active_high: polarity of the ``out_de``, ``out_valid``, ``out_enable`` pins (left out: active high).
+        include_dirs: folders the design's `include lines search (to read its port widths).
 
     Raises:
         ConfigError: a width cannot be worked out, or a bad family/language/name.
@@ -230,7 +234,8 @@ def fast_build_plan(
     for src in srcs:
         if not src.is_file():
             raise ConfigError(f"fast path: design source {str(src)!r} does not exist; give the design's HDL files")
-    iw, ow = _bus_widths(dut_top, srcs, roles, params, defs, in_width, out_width, pixel_format)
+    iw, ow = _bus_widths(dut_top, srcs, roles, params, defs, in_width, out_width, pixel_format,
+                         [Path(p) for p in include_dirs])
     spec = HarnessSpec(family=family, dut_top=dut_top, roles=roles, in_width=iw, out_width=ow,
                        reset_active_high=bool(reset_active_high), parameters=params,
                        out_active_high=dict(out_active_high or {}))

@@ -139,21 +139,29 @@ def test_x_on_outputs(tmp_path, build_cache_dir, capsys):
 
 
 @pytest.mark.sim
-def test_silent_design_times_out_and_keeps_the_partial_capture(tmp_path, build_cache_dir, capsys):
+@pytest.mark.parametrize("path", ["clock", "native"])
+def test_silent_design_times_out_and_keeps_the_partial_capture(tmp_path, build_cache_dir, capsys, path):
+    # clock by clock the monitor waits for the frame until timeout_clocks; the harness (the default, native)
+    # stops once the stimulus has played and drained: the same verdict, each saying how its run ended
     simulator_available("icarus")
     cfg = _config(tmp_path, _mangle(2, extra="timeout_clocks = 3000\n"), cache=build_cache_dir, run='waves = "off"\n')
-    code, problems, _ = _run(capsys, str(cfg))
+    code, problems, _ = _run(capsys, str(cfg), "--path", path)
     assert code == 1
+    ended = "the run timed out after 3000 clocks" if path == "clock" else "the run ended"
     assert problems == [
-        f"FAIL mangle2/icarus/{CASE}: missing: no output: 0 of 768 pixels arrived (the run timed out after 3000 "
-        "clocks); check output data-enable/valid and reset; 0 of 768 pixels arrived"
+        f"FAIL mangle2/icarus/{CASE}: missing: no output: 0 of 768 pixels arrived ({ended}); check output "
+        "data-enable/valid and reset; 0 of 768 pixels arrived"
     ]
     (case,) = _report(tmp_path)["cases"]
-    assert case["status"] == "no_output"
+    assert case["status"] == "no_output" and case["drive"] == path
     from vkit.video.capture import Capture
 
     cap = Capture.load(tmp_path / "out" / case["files"]["capture"])
-    assert cap.facts.timed_out and cap.facts.clocks_run >= 3000 and len(cap) == 0
+    assert len(cap) == 0
+    if path == "clock":
+        assert cap.facts.timed_out and cap.facts.clocks_run >= 3000
+    else:
+        assert not cap.facts.timed_out and 0 < cap.facts.clocks_run < 3000
     assert "waves" not in case["files"]  # waves = "off"
 
 
@@ -547,9 +555,11 @@ def test_data_enable_held_high_is_named_first(tmp_path, build_cache_dir, capsys)
     code, problems, _ = _run(capsys, str(_config(tmp_path, _mangle(8), cache=build_cache_dir)), "--no-waves")
     assert code == 1
     (line,) = problems
-    assert line.startswith(f"FAIL mangle8/icarus/{CASE}: timing: frame 0: data-enable never goes low between lines: "
-                           "line 0 is 1039 pixels long, expected 32; drive data-enable low in horizontal blanking, "
-                           "between the lines; "), line
+    # 1039 clock by clock, 1038 on the harness (the default): the design raises data-enable on its first clock
+    # out of reset, and cocotb's reset release on Icarus reaches the design one edge before the harness's does
+    assert re.match(f"FAIL mangle8/icarus/{re.escape(CASE)}: timing: frame 0: data-enable never goes low between "
+                    "lines: line 0 is 103[89] pixels long, expected 32; drive data-enable low in horizontal blanking, "
+                    "between the lines; ", line), line
     assert "flushed" not in line
 
 

@@ -74,7 +74,7 @@ def test_exit_code_from_verdicts_or_expectations() -> None:
 def test_the_demo_shows_its_seeded_bugs_failing_and_exits_0(tmp_path: Path) -> None:
     simulator_available("icarus")
     out = tmp_path / "demo"
-    done = subprocess.run([sys.executable, "-m", "vkit", "demo", "--sim", "icarus", "--path", "native", "--out",
+    done = subprocess.run([sys.executable, "-m", "vkit", "demo", "--sim", "icarus", "--out",
                            str(out)], capture_output=True, text=True, timeout=600, cwd=tmp_path)
     assert done.returncode == 0, done.stdout[-3000:] + done.stderr[-3000:]
     lines = done.stdout.strip().splitlines()
@@ -88,6 +88,6 @@ def test_the_demo_shows_its_seeded_bugs_failing_and_exits_0(tmp_path: Path) -> N
 
     report = json.loads((out / "report.json").read_text())
     dom = _Dom(_browse((out / "index.html").as_uri(), tmp_path / "profile", "--dump-dom").stdout)
-    assert len(dom.rows) == len(report["cases"]) == 42
+    assert len(dom.rows) == len(report["cases"]) == 41
     decoded = [i for i in dom.images if (i.get("alt") or "").endswith(("stall0.1m3",)) and i.get("data-decoded")]
     assert any("edge_core@stall_drop" in (i.get("alt") or "") for i in decoded), "the failure's picture is shown"

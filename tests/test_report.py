@@ -132,9 +132,10 @@ def test_run_report_json_junit_and_summary(failing, tmp_path) -> None:
     assert root.find("testsuite").get("failures") == "2"
     summary = Path(out["summary"]).read_text()
     lines = summary.splitlines()
-    assert lines[0].split() == ["case", "simulator", "verdict", "mismatches", "diagnosis"]
+    assert lines[0].split() == ["case", "simulator", "path", "verdict", "mismatches", "diagnosis"]
     col = lines[0].index("verdict")
     assert [ln[col : col + 9].strip() for ln in lines[2:5]] == ["fail", "pass", "no_output"]
+    assert lines[-1] == "drive paths: - 3"  # entries made without a drive path say so
     assert summary == format_summary(cases)
 
 

@@ -310,16 +310,18 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
     ("run", "run a regression config", _cmd_run, (
         _arg("config", help="config TOML (or a pyproject.toml with [tool.vkit])"),
         _JOBS,
-        _arg("--shard", default=None, help="K/N: run only shard K of N (case i goes to shard i %% N + 1)"),
+        _arg("--shard", default=None, help="K/N: run only shard K of N (case i goes to shard i %% N + 1); auto: K "
+             "and N from the array job or CI matrix (VKIT_SHARD, SLURM_ARRAY_TASK_ID/_COUNT, SGE_TASK_ID/_LAST, "
+             "CI_NODE_INDEX/_TOTAL, CIRCLE_NODE_INDEX/_TOTAL, BUILDKITE_PARALLEL_JOB/_COUNT)"),
         _arg("--out", default=None, help="report folder (default: [run] out_dir)"),
         _arg("--sim", nargs="+", default=None, help="simulators (replaces [run] simulators)"),
         _arg("--only", action="append", default=None,
              help="keep case ids matching this glob or text (a whole case id selects exactly that case)"),
         _WAVES,
         _arg("--path", choices=DRIVE_MODES, default=None,
-             help="clock: cocotb drives every clock; fast: a generated HDL harness plays and captures "
-                  "whole runs; native: that harness as a plain executable, no cocotb (default: [run] path, "
-                  "'clock')"),
+             help="auto: per case the fastest path that can run it (native, else fast, else clock); clock: "
+                  "cocotb drives every clock; fast: a generated HDL harness plays and captures whole runs; "
+                  "native: that harness as a plain executable, no cocotb (default: [run] path, 'auto')"),
         _arg("--new-out", action="store_true",
              help="when another run is writing the report folder, write a sibling folder (OUT-2, ...) instead "
                   "of stopping"),
@@ -329,7 +331,8 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
         _arg("--sim", default=None, help="simulator (default: the demo's, verilator)"),
         _JOBS,
         _arg("--path", choices=DRIVE_MODES, default=None,
-             help="clock (the demo's default), fast (generated HDL harness) or native (no cocotb)"),
+             help="auto (the default: native on Verilog designs), clock (cocotb every clock), fast "
+                  "(generated HDL harness under cocotb) or native (that harness, no cocotb)"),
     )),
     ("export", "write one case as vectors and a self-checking plain-HDL testbench", _cmd_export, (
         _arg("config", help="config TOML"),

@@ -21,7 +21,7 @@ from vkit.model.window import interior_mask, pad, taps_of_padded
 
 __all__ = [
     "ORDER_FILTERS", "Variation", "ModelPlan", "model_plan", "check_image", "new_stage", "output_levels", "run_model", "run_plan",
-    "run_model_frames",
+    "run_model_frames", "StagesOnDemand",
 ]
 
 ORDER_FILTERS: dict[str, Callable[..., np.ndarray]] = {"median": median3x3, "min": minimum3x3, "max": maximum3x3}
@@ -385,3 +385,27 @@ def _magnitude_band(plan: ModelPlan, band: dict[str, np.ndarray], views: dict[st
 def run_model_frames(spec: PipelineSpec, frames: Iterable[Any], *, keep_stages: bool = True) -> list[ModelResult]:
     """:func:`run_model` on each frame of a sequence, in order."""
     return [run_model(spec, frame, keep_stages=keep_stages) for frame in frames]
+
+
+class StagesOnDemand:
+    """A frame's model result that keeps only the output and the checked-pixel mask; the stage arrays are
+    computed on first use of :attr:`stages` and kept from then on.
+
+    For long runs of big frames: a scoreboard reads the stages of failing frames only (the stage values
+    of a mismatch), so passing frames never hold their ~8 stage arrays. Same attributes as
+    :class:`~vkit.model.result.ModelResult` (``output``, ``valid_mask``, ``stages``).
+    """
+
+    def __init__(self, spec: PipelineSpec, image: Any) -> None:
+        lean = run_model(spec, image, keep_stages=False)
+        self.output: np.ndarray = lean.output
+        self.valid_mask: np.ndarray = lean.valid_mask
+        self._spec, self._image = spec, image
+        self._stages: OrderedDict[str, Stage] | None = None
+
+    @property
+    def stages(self) -> OrderedDict[str, Stage]:
+        """Every stage of the frame (run on first use)."""
+        if self._stages is None:
+            self._stages = run_model(self._spec, self._image).stages
+        return self._stages

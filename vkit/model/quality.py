@@ -241,15 +241,17 @@ def compare(spec: PipelineSpec, images: Any, labels: Sequence[str] | None = None
         labels: a name per image; default ``image<i>``.
 
     Returns:
-        A :class:`QualityReport` with per-image and pooled figures.
+        A :class:`QualityReport` with per-image and pooled figures. Each image's model runs are dropped
+        once measured, so memory does not grow with the number of images.
     """
-    return compare_runs(spec, images, labels)[0]
+    return compare_runs(spec, images, labels, keep_runs=False)[0]
 
 
 def compare_runs(
-    spec: PipelineSpec, images: Any, labels: Sequence[str] | None = None
+    spec: PipelineSpec, images: Any, labels: Sequence[str] | None = None, *, keep_runs: bool = True
 ) -> tuple[QualityReport, list[ImageRun]]:
-    """:func:`compare`, also handing back both models' results per image (for pictures of the error)."""
+    """:func:`compare`, also handing back both models' results per image (for pictures of the error);
+    ``keep_runs=False`` hands back the last image's only."""
     arrays = _as_image_list(spec, images)
     if not arrays:
         raise ConfigError("compare: no images given; pass at least one image array")
@@ -263,7 +265,7 @@ def compare_runs(
     for label, img in zip(labels, arrays):
         run = ImageRun(str(label), run_model(spec, img), run_float(spec, img))
         per_image.append(_quality_of(run.label, spec, run.fixed, run.real, pool))
-        runs.append(run)
+        runs = [*runs, run] if keep_runs else [run]
     order = [(n, s.lo, s.hi) for n, s in runs[0].fixed.stages.items()]
     return QualityReport(spec.name, spec.output.bits, per_image, _pooled(spec, pool, order)), runs
 

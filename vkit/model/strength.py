@@ -168,24 +168,41 @@ def _table_share(spec: PipelineSpec, runs: list[ModelResult]) -> float | None:
     return len(seen) / (1 << spec.magnitude.address_bits)
 
 
+def _killed_pixels(m: Mutant, spec: PipelineSpec, imgs: list[np.ndarray], runs: list[ModelResult],
+                   first_kill: bool) -> int:
+    """Checked pixels where mutant ``m`` differs from the spec; with ``first_kill``, counted up to the first
+    frame where it differs (the frames after it are not run)."""
+    pixels = 0
+    for img, run in zip(imgs, runs):
+        out = run_plan(m.plan, img, keep_stages=False).output
+        pixels += int(np.count_nonzero((out != run.output) & run.valid_mask))
+        if pixels and first_kill:
+            break
+    return pixels
+
+
 def stimulus_strength(spec: PipelineSpec, frames: Any, mutants: Sequence[Mutant] | None = None,
-                      outputs: Mapping[str, tuple[str, np.ndarray]] | None = None) -> StrengthReport:
+                      outputs: Mapping[str, tuple[str, np.ndarray]] | None = None, *,
+                      first_kill: bool = False) -> StrengthReport:
     """Run every mutant of ``spec`` on ``frames`` (``(N, H, W[, 3])`` or one frame, uint8) and say which
     the frames kill, why the others survive, the stages' range coverage and the table-address share.
 
     ``outputs`` (mutant name -> (description, ``(N, H, W)`` output), as the diagnosis by mutants makes
-    them) saves running the mutants a second time."""
+    them) saves running the mutants a second time. ``first_kill=True`` runs a mutant frame by frame and
+    stops at the first frame that kills it: the same killed/survived verdicts, with ``pixels`` counting
+    the frames run only (a regression case needs the verdicts, not the counts)."""
     mutants = list(spec_mutants(spec) if mutants is None else mutants)
     imgs = _frames(spec, frames)
     runs = [run_model(spec, img) for img in imgs]
-    truth = np.stack([r.output for r in runs])
-    checked = np.stack([r.valid_mask for r in runs])
     verdicts = []
     for m in mutants:
         if m.equivalent:
             verdicts.append(MutantVerdict(m, False, 0, m.equivalent))
             continue
-        out = outputs[m.name][1] if outputs is not None and m.name in outputs else mutant_outputs(m, imgs, spec)
-        pixels = int(np.count_nonzero((out != truth) & checked))
+        if outputs is not None and m.name in outputs:
+            out = outputs[m.name][1]
+            pixels = sum(int(np.count_nonzero((o != r.output) & r.valid_mask)) for o, r in zip(out, runs))
+        else:
+            pixels = _killed_pixels(m, spec, imgs, runs, first_kill)
         verdicts.append(MutantVerdict(m, pixels > 0, pixels, "" if pixels else _reason(m, spec, imgs, runs)))
     return StrengthReport(spec.name, len(imgs), verdicts, _coverage(runs), _table_share(spec, runs))

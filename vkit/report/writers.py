@@ -264,6 +264,7 @@ def case_entry(
     files: Mapping[str, Any] | None = None,
     coverage: Mapping[str, Any] | None = None,
     meta: Mapping[str, Any] | None = None,
+    drive: str | None = None,
 ) -> dict[str, Any]:
     """One case for :func:`write_run_report`, in the shape report.json stores.
 
@@ -275,11 +276,13 @@ def case_entry(
         files: paths from :func:`write_case_report` (relative to the run's report folder).
         coverage: coverage figures, if collected.
         meta: anything else worth keeping.
+        drive: the drive path the case ran on (``"clock"``, ``"fast"`` or ``"native"``), None when none ran.
     """
     v = verdict.to_dict() if hasattr(verdict, "to_dict") else dict(verdict)
     return {
         "id": str(case_id),
         "simulator": simulator,
+        "drive": drive,
         "verdict": v,
         "seeds": dict(seeds or {}),
         "files": dict(files or {}),
@@ -297,6 +300,7 @@ def _norm(case: Mapping[str, Any]) -> dict[str, Any]:
     v = c["verdict"]
     c["verdict"] = v.to_dict() if hasattr(v, "to_dict") else dict(v)
     c.setdefault("simulator", None)
+    c.setdefault("drive", (c.get("meta") or {}).get("path"))  # entries written before the field kept it in meta
     c.setdefault("seeds", {})
     c.setdefault("files", {})
     c.setdefault("coverage", None)
@@ -315,6 +319,7 @@ def _report_case(c: Mapping[str, Any]) -> dict[str, Any]:
     row = {
         "id": c["id"],
         "simulator": c.get("simulator"),
+        "drive": c.get("drive"),
         "status": v.get("status"),
         "passed": bool(v.get("passed")),
         "counts": {
@@ -352,26 +357,31 @@ def _totals(cases: Sequence[Mapping[str, Any]]) -> dict[str, int]:
 
 
 def format_summary(cases: Sequence[Mapping[str, Any]]) -> str:
-    """An aligned text table: case, simulator, verdict, mismatches, diagnosis (one row per case)."""
-    rows = [("case", "simulator", "verdict", "mismatches", "diagnosis")]
+    """An aligned text table: case, simulator, drive path, verdict, mismatches, diagnosis (one row per case),
+    then the totals and how many cases ran on each drive path."""
+    rows = [("case", "simulator", "path", "verdict", "mismatches", "diagnosis")]
+    paths: dict[str, int] = {}
     for c in (_norm(c) for c in cases):
         v = c["verdict"]
         d = _diagnosis(v)
         diag = f"{d['kind']}: {d['message']}" if d else "-"
         if len(diag) > 100:
             diag = diag[:97] + "..."
-        rows.append((str(c["id"]), str(c.get("simulator") or "-"), str(v.get("status", "?")),
+        drive = str(c.get("drive") or "-")
+        paths[drive] = paths.get(drive, 0) + 1
+        rows.append((str(c["id"]), str(c.get("simulator") or "-"), drive, str(v.get("status", "?")),
                      str(v.get("mismatches", 0)), diag))
-    widths = [max(len(r[i]) for r in rows) for i in range(4)]
+    widths = [max(len(r[i]) for r in rows) for i in range(5)]
     lines = []
     for k, r in enumerate(rows):
-        lines.append("  ".join([r[0].ljust(widths[0]), r[1].ljust(widths[1]), r[2].ljust(widths[2]),
-                                r[3].rjust(widths[3]), r[4]]).rstrip())
+        cells = [r[i].ljust(widths[i]) for i in range(4)] + [r[4].rjust(widths[4]), r[5]]
+        lines.append("  ".join(cells).rstrip())
         if k == 0:
             lines.append("  ".join("-" * w for w in widths) + "  " + "-" * 9)
     t = _totals([_norm(c) for c in cases])
     lines.append("")
     lines.append(f"{t['cases']} cases: {t['passed']} passed, {t['failed']} failed, {t['errors']} errors")
+    lines.append("drive paths: " + ", ".join(f"{p} {n}" for p, n in sorted(paths.items())))
     return "\n".join(lines) + "\n"
 
 

@@ -15,15 +15,13 @@ from importlib import resources
 from pathlib import Path
 from typing import Any, Iterator
 
-from cocotb_tools.runner import get_runner
-
 from vkit.core.errors import ConfigError, ToolError
 from vkit.core.validate import want_choice
-from vkit.core.vocab import DRIVE_MODES
+from vkit.core.vocab import DRIVE_DEFAULT, DRIVE_MODES
 from vkit.run.config import Case
-from vkit.run.inputs import check_parameters
+from vkit.run.inputs import check_parameters, check_ports
 from vkit.sim.buildcache import BuildCache, BuildOutcome, BuildRequest
-from vkit.sim.fast import fast_build_plan, native_build, native_build_plan
+from vkit.sim.fast import HarnessBuild, fast_build_plan, harness_drives, native_build, native_build_plan
 from vkit.sim.simulators import TIMESCALE, activate, require
 
 __all__ = [
@@ -34,12 +32,25 @@ __all__ = [
     "build_fast_design",
     "build_wave_design",
     "build_for_drive",
+    "pick_drive",
     "first_error_line",
     "parameter_error_line",
     "PARAMETER_WORDING",
     "quiet_pytest_env",
 ]
 
+
+
+def get_runner(simulator: str) -> Any:
+    """cocotb's runner for ``simulator``, imported on first use: a run on the native path never needs cocotb
+    (importing it costs about a second in every ``vkit run``)."""
+    from cocotb_tools.runner import get_runner as cocotb_runner
+
+    return cocotb_runner(simulator)
+
+
+RUNTIME_FOLDER = "verilator-runtime"
+"""Folder of the build cache holding Verilator's runtime objects, compiled once for every native build."""
 WAVE_MODULE = "vkit_wave_window"
 """Name of the Verilog module that limits a waveform dump to a time window."""
 PARAMETER_WORDING: dict[str, tuple[str, ...]] = {
@@ -165,6 +176,39 @@ def build_design(case: Case, cache: BuildCache) -> BuildOutcome:
     return cache.ensure(request, builder)
 
 
+def _harness_plan(case: Case) -> HarnessBuild:
+    """The fast-path harness of ``case``'s design (written to a folder named after its content, so
+    parallel workers never clash)."""
+    d = case.design
+    return fast_build_plan(
+        d.top, d.sources, d.language, case.build_parameters(), d.defines, d.family,
+        d.ports, reset_active_high=d.reset_active_high, pixel_format=d.pixel_format, include_dirs=d.include_dirs,
+        out_active_high={r: d.port_polarity.get(r, True) for r in ("out_de", "out_valid", "out_enable")},
+    )
+
+
+def pick_drive(case: Case, drive: str = DRIVE_DEFAULT) -> str:
+    """The drive path ``case`` runs on: ``drive`` itself when it names one, else (``"auto"``) the fastest
+    that can run the case.
+
+    ``auto`` takes ``native`` where the simulator builds the harness as a plain executable (a Verilog
+    design on Icarus or Verilator), ``fast`` where it builds the harness under cocotb only (a VHDL design
+    on GHDL), and ``clock`` where no harness can be made for the design (e.g. a port width that cannot
+    be read from its sources, or an input bus wider than the player's words).
+    """
+    want_choice("run options", "drive", drive, DRIVE_MODES)
+    if drive != DRIVE_DEFAULT:
+        return drive
+    paths = harness_drives(case.simulator, case.design.language)
+    if not paths:
+        return "clock"
+    try:
+        _harness_plan(case)
+    except ConfigError:  # the harness cannot wrap this design: cocotb drives it clock by clock
+        return "clock"
+    return paths[0]
+
+
 def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> BuildOutcome:
     """Build (or reuse) the fast-path harness (:mod:`vkit.sim.fast`) around ``case``'s design.
 
@@ -178,14 +222,11 @@ def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> Bu
             ``native`` was asked of a simulator or language that has no native build.
     """
     check_parameters(case)
+    check_ports(case)  # the harness names every mapped port: a misnamed one is the config's error, said as such
     info = require(case.simulator)
     activate(info)
     d = case.design
-    plan = fast_build_plan(
-        d.top, d.sources, d.language, case.build_parameters(), d.defines, d.family,
-        d.ports, reset_active_high=d.reset_active_high, pixel_format=d.pixel_format, include_dirs=d.include_dirs,
-        out_active_high={r: d.port_polarity.get(r, True) for r in ("out_de", "out_valid", "out_enable")},
-    )  # harness files land in a folder named after their content, so parallel workers never clash
+    plan = _harness_plan(case)
     if native:
         commands = native_build_plan(plan, case.simulator, cache.cache_dir).commands
         build_args = ["native", *[a for cmd in commands for a in cmd if a.startswith("-")]]
@@ -198,7 +239,7 @@ def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> Bu
 
     def builder(bdir: Path) -> None:
         if native:
-            native_build(plan, case.simulator, bdir, always=True)
+            native_build(plan, case.simulator, bdir, always=True, runtime_dir=cache.cache_dir / RUNTIME_FOLDER)
             return
         kwargs = plan.build_kwargs(case.simulator)
         kwargs["build_args"] = [*kwargs["build_args"], *d.build_args]
@@ -248,8 +289,9 @@ def build_wave_design(case: Case, cache: BuildCache) -> BuildOutcome:
 
 
 def build_for_drive(case: Case, cache: BuildCache, drive: str) -> BuildOutcome:
-    """The build a case driven by ``drive`` runs on: the design itself, or the harness around it."""
-    want_choice("run options", "drive", drive, DRIVE_MODES)
+    """The build a case driven by ``drive`` runs on: the design itself, or the harness around it
+    (``"auto"``: the build of :func:`pick_drive`'s path)."""
+    drive = pick_drive(case, drive)
     if drive == "clock":
         return build_design(case, cache)
     return build_fast_design(case, cache, native=drive == "native")

@@ -12,6 +12,7 @@ import re
 import shlex
 import time
 import traceback
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
@@ -22,9 +23,10 @@ from vkit.check.by_mutant import MutantDiagnosis, diagnose_with_pairs
 from vkit.check.results import Finding
 from vkit.check.scoreboard import Verdict, score
 from vkit.core.errors import ToolError, VkitError
-from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
+from vkit.model.exact import StagesOnDemand
+from vkit.model.pipeline import ModelResult, PipelineSpec
 from vkit.report.writers import case_entry, case_folder, write_case_report
-from vkit.run.builds import build_for_drive
+from vkit.run.builds import build_for_drive, pick_drive
 from vkit.run.config import Case
 from vkit.run.coverage import stimulus_coverage
 from vkit.run.inputs import check_ports, make_frames
@@ -62,6 +64,8 @@ class _Prepared:
     spec: PipelineSpec
     frames: np.ndarray
     expected: list[ModelResult]
+    drive: str
+    """The drive path the case runs on (:func:`vkit.run.builds.pick_drive`)."""
 
 
 @dataclass(frozen=True)
@@ -85,20 +89,23 @@ def _strip_exc_name(text: str) -> str:
     return m.group(2) if m else text
 
 
-def _prepare(case: Case, out: Path) -> _Prepared:
-    """Check the spec and ports, make the frames and run the bit-exact model on them."""
-    sim_dir = case_folder(out, case.id, "sim")
+def _prepare(case: Case, options: RunOptions) -> _Prepared:
+    """Check the spec and ports, pick the drive path, make the frames and run the bit-exact model on them."""
+    sim_dir = case_folder(options.out_dir, case.id, "sim")
     spec = case.design.pipeline_spec()
     check_ports(case)
     frames = make_frames(case)
-    return _Prepared(sim_dir, spec, frames, [run_model(spec, f) for f in frames])
+    # stage arrays are made only for the frames that need them (failing ones): big frames stay in bounds
+    expected = [StagesOnDemand(spec, f) for f in frames]
+    return _Prepared(sim_dir, spec, frames, expected, pick_drive(case, options.drive))  # type: ignore[arg-type]
 
 
 def _simulate(case: Case, prep: _Prepared, options: RunOptions, left_s: float) -> tuple[BuildOutcome, Capture]:
-    """Build (or reuse) and run the simulation (``left_s`` seconds at most); a missing capture becomes a
-    capture that says so."""
-    outcome = build_for_drive(case, BuildCache(options.cache_dir), options.drive)
-    capture_file = simulate(case, outcome.build_dir, prep.sim_dir, prep.frames, left_s, drive=options.drive)
+    """Build (or reuse) and run the simulation on the case's drive path (``left_s`` seconds at most); a
+    missing capture becomes a capture that says so."""
+    drive = prep.drive
+    outcome = build_for_drive(case, BuildCache(options.cache_dir), drive)
+    capture_file = simulate(case, outcome.build_dir, prep.sim_dir, prep.frames, left_s, drive=drive)
     if capture_file.exists():
         return outcome, Capture.load(capture_file)
     return outcome, Capture(facts=RunFacts(error=f"no capture was written; see {prep.sim_dir / 'sim.log'}"))
@@ -117,7 +124,8 @@ def _sim_stop(capture: Capture, timeout_s: float) -> Finding | None:
     return Finding("timeout" if outcome.timed_out else "crash", f"{outcome.describe()}; {last}", evidence, 1.0)
 
 
-def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -> _Judged:
+def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions,
+           stimulus: Future[tuple[dict[str, Any], list[str]]]) -> _Judged:
     """Score the capture, measure the stimulus coverage, and dump waves when the options ask for them.
 
     A simulation stopped at the time limit or by a signal is scored up to where it stopped (what
@@ -132,8 +140,7 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions) -
         verdict = replace(verdict, status=status, passed=False, findings=[stop, *verdict.findings])
     by_mutant = _mutant_diagnosis(verdict, prep)
     verdict = _named_by_mutant(verdict, by_mutant)
-    coverage, warnings = stimulus_coverage(prep.spec, prep.frames, options.coverage_floor,
-                                           BuildCache(options.cache_dir).cache_dir)
+    coverage, warnings = stimulus.result()
     warnings = [*verdict.warnings, *warnings]
     waves: dict[str, Any] | None = None
     wanted = options.waves == "all" or (options.waves == "failing" and verdict.status in ("fail", "no_output"))
@@ -186,7 +193,7 @@ def _report(case: Case, prep: _Prepared, outcome: BuildOutcome, capture: Capture
     """Write the case's pictures and verdict.json; its report entry and result."""
     out, verdict, waves = options.out_dir, judged.verdict, judged.waves
     meta = {**case_meta(case, seconds), "build_dir": str(outcome.build_dir), "build_reused": outcome.reused,
-            "path": options.drive, "warnings": judged.warnings, "rerun": rerun}
+            "path": prep.drive, "asked_path": options.drive, "warnings": judged.warnings, "rerun": rerun}
     if waves is not None:
         meta["waves"] = waves
     files = write_case_report(case.id, verdict, prep.expected, capture, out, meta=meta, pictures=options.pictures)
@@ -195,7 +202,7 @@ def _report(case: Case, prep: _Prepared, outcome: BuildOutcome, capture: Capture
         files["waves"] = waves["file"]
     coverage = {**judged.coverage, "warnings": list(judged.warnings)}  # report.json carries the words too
     entry = case_entry(case.id, verdict, simulator=case.simulator, seeds=case.seeds(), files=files,
-                       coverage=coverage, meta=meta)
+                       coverage=coverage, meta=meta, drive=meta["path"])
     if judged.by_mutant is not None:
         entry["diagnosis_by_mutant"] = judged.by_mutant.to_dict()
     diag = verdict.diagnosis
@@ -245,18 +252,22 @@ def run_one_case(case: Case, options: RunOptions) -> CaseResult:
     sim_dir: Path | None = None
     in_simulation = False
     try:
-        prep = _prepare(case, out)
+        prep = _prepare(case, options)
         left_s = options.timeout_s - (time.monotonic() - t0)
         if left_s <= 0:  # the time limit covers the stimulus and the model too
             return _too_slow(case, options, time.monotonic() - t0, prep.sim_dir, rerun)
         sim_dir, in_simulation = prep.sim_dir, True
-        outcome, capture = _simulate(case, prep, options, left_s)
-        in_simulation = False
+        with ThreadPoolExecutor(1) as pool:
+            # what the stimulus covers depends on the spec and frames only: measured while the simulator runs
+            stimulus = pool.submit(stimulus_coverage, prep.spec, prep.frames, options.coverage_floor,
+                                   BuildCache(options.cache_dir).cache_dir)
+            outcome, capture = _simulate(case, prep, options, left_s)
+            in_simulation = False
         if capture.facts.error and capture.facts.sim_outcome is None:
             # the cocotb side stopped (misnamed port, narrow bus, ...): one line, capture and log kept
             message = _strip_exc_name(" ".join(str(capture.facts.error).split()))
             return _error(case, options, message, False, time.monotonic() - t0, sim_dir, rerun)
-        judged = _judge(case, prep, capture, options)
+        judged = _judge(case, prep, capture, options, stimulus)
         return _report(case, prep, outcome, capture, judged, options, time.monotonic() - t0, rerun)
     except VkitError as exc:
         return _error(case, options, str(exc), in_simulation or isinstance(exc, ToolError), time.monotonic() - t0,

@@ -50,7 +50,7 @@ from vkit.core.validate import (
     want_str_list,
     want_table,
 )
-from vkit.core.vocab import DRIVE_MODES, VERILOG_SUFFIXES, VHDL_SUFFIXES, WAVE_MODES
+from vkit.core.vocab import DRIVE_DEFAULT, DRIVE_MODES, VERILOG_SUFFIXES, VHDL_SUFFIXES, WAVE_MODES
 from vkit.model import pipeline
 from vkit.sim.signals import FAMILY_ROLES, POLARITY_GROUPS
 from vkit.video.enables import EnablePattern
@@ -82,6 +82,9 @@ __all__ = [
     "dropped_designs",
     "select_cases",
     "shard_cases",
+    "shard_from_environment",
+    "SHARD_AUTO",
+    "SHARD_VARIABLES",
     "parse_shard",
     "read_toml",
     "PICTURE_MODES",
@@ -210,9 +213,10 @@ class RunSettings:
             ``"all"`` or ``"off"``.
         exit_code: ``"verdicts"`` or ``"expectations"`` (:data:`EXIT_CODE_MODES`).
         pictures: ``"failing"`` (PNGs for failing frames only) or ``"all"`` (every frame, passing too).
-        drive: the drive mode, config key ``path``: ``"clock"`` (cocotb drives every clock), ``"fast"`` (a
-            generated HDL harness plays and captures whole runs; same verdicts, far fewer Python wake-ups)
-            or ``"native"`` (that harness as a plain executable without cocotb; Icarus and Verilator).
+        drive: the drive mode, config key ``path``: ``"auto"`` (the default: per case the fastest of the
+            three below that can run it), ``"clock"`` (cocotb drives every clock), ``"fast"`` (a generated
+            HDL harness plays and captures whole runs; same verdicts, far fewer Python wake-ups) or
+            ``"native"`` (that harness as a plain executable without cocotb; Icarus and Verilator).
     """
 
     out_dir: Path
@@ -225,7 +229,7 @@ class RunSettings:
     coverage_floor: float = 0.5
     waves: str = "failing"
     pictures: str = "failing"
-    drive: str = "clock"
+    drive: str = DRIVE_DEFAULT
     exit_code: str = "verdicts"
 
     @property
@@ -1324,10 +1328,81 @@ def parse_shard(text: str) -> tuple[int, int]:
     return int(m.group(1)), int(m.group(2))
 
 
+SHARD_AUTO = "auto"
+"""The ``--shard`` value that reads the shard from the array-job variables of :data:`SHARD_VARIABLES`."""
+
+SHARD_VARIABLES: tuple[tuple[str, str, str, str], ...] = (
+    ("vkit", "VKIT_SHARD", "", "K/N as for --shard (set it yourself, e.g. in a CI matrix)"),
+    ("Slurm job array", "SLURM_ARRAY_TASK_ID", "SLURM_ARRAY_TASK_COUNT",
+     "index from SLURM_ARRAY_TASK_MIN in steps of SLURM_ARRAY_TASK_STEP (default 1)"),
+    ("Grid Engine array job", "SGE_TASK_ID", "SGE_TASK_LAST",
+     "index from SGE_TASK_FIRST to SGE_TASK_LAST in steps of SGE_TASK_STEPSIZE (default 1)"),
+    ("GitLab CI parallel job", "CI_NODE_INDEX", "CI_NODE_TOTAL", "index 1..total"),
+    ("CircleCI parallelism", "CIRCLE_NODE_INDEX", "CIRCLE_NODE_TOTAL", "index 0..total-1"),
+    ("Buildkite parallel job", "BUILDKITE_PARALLEL_JOB", "BUILDKITE_PARALLEL_JOB_COUNT", "index 0..count-1"),
+)
+"""Where ``--shard auto`` looks, first match wins: (scheduler, index variable, count variable, meaning).
+The variable names and their numbering are from memory of each scheduler's documentation."""
+
+
+def _env_int(env: Mapping[str, str], name: str, default: int | None = None) -> int:
+    text = env.get(name, "")
+    if not text.strip():
+        if default is None:
+            raise ConfigError(f"shard auto: {name} is not set; the array job sets it, or give --shard K/N")
+        return default
+    try:
+        return int(text)
+    except ValueError:
+        raise ConfigError(f"shard auto: {name} = {text!r} is not a whole number; give --shard K/N") from None
+
+
+def _slot(index: int, first: int, step: int, count: int, where: str) -> tuple[int, int]:
+    """``(K, N)`` of array element ``index`` among ``count`` elements ``first, first + step, ...``."""
+    k, rest = divmod(index - first, max(1, step))
+    if rest or not 0 <= k < count:
+        raise ConfigError(f"shard auto: {where} does not fall on the array's steps; give --shard K/N")
+    return k + 1, count
+
+
+def shard_from_environment(env: Mapping[str, str] | None = None) -> tuple[tuple[int, int], str]:
+    """The shard ``(K, N)`` an array job or CI matrix gives this process, and the scheduler it came from.
+
+    Reads the first scheduler of :data:`SHARD_VARIABLES` whose index variable is set in ``env``
+    (default ``os.environ``).
+
+    Raises:
+        ConfigError: none is set, or the values do not make a shard (named, with the fix).
+    """
+    env = os.environ if env is None else env
+    for name, index_var, count_var, _ in SHARD_VARIABLES:
+        if not env.get(index_var, "").strip():
+            continue
+        if index_var == "VKIT_SHARD":
+            return parse_shard(env[index_var]), name
+        i = _env_int(env, index_var)
+        where = f"{index_var} = {i}"
+        if index_var == "SLURM_ARRAY_TASK_ID":
+            shard = _slot(i, _env_int(env, "SLURM_ARRAY_TASK_MIN", 0), _env_int(env, "SLURM_ARRAY_TASK_STEP", 1),
+                          _env_int(env, count_var), where)
+        elif index_var == "SGE_TASK_ID":
+            first, step = _env_int(env, "SGE_TASK_FIRST", 1), _env_int(env, "SGE_TASK_STEPSIZE", 1)
+            shard = _slot(i, first, step, (_env_int(env, count_var) - first) // max(1, step) + 1, where)
+        else:
+            shard = _slot(i, 1 if index_var == "CI_NODE_INDEX" else 0, 1, _env_int(env, count_var), where)
+        return shard, name
+    looked = ", ".join(index for _, index, _, _ in SHARD_VARIABLES)
+    raise ConfigError(f"shard auto: no array-job index is set (looked for {looked}); run inside an array job "
+                      "or CI matrix, or give --shard K/N")
+
+
 def shard_cases(cases: list[Case], shard: tuple[int, int] | str | None) -> list[Case]:
-    """The cases of shard ``K/N``: case ``i`` of the sorted list goes to shard ``i % N + 1``."""
+    """The cases of shard ``K/N``: case ``i`` of the sorted list goes to shard ``i % N + 1``. ``"auto"``
+    takes K and N from the array job's environment (:func:`shard_from_environment`)."""
     if shard is None:
         return list(cases)
+    if shard == SHARD_AUTO:
+        shard = shard_from_environment()[0]
     k, n = parse_shard(shard) if isinstance(shard, str) else shard
     if not 1 <= k <= n:
         raise ConfigError(f"shard {k}/{n}: give K/N with 1 <= K <= N")

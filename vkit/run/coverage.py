@@ -119,7 +119,7 @@ def _strength(spec: PipelineSpec, frames: np.ndarray) -> tuple[dict[str, Any], s
     compact form report.json keeps, and a warning in words when some survive."""
     per_frame = max(1, int(np.prod(frames.shape[1:3])))
     used = max(1, min(len(frames), STRENGTH_MAX_PIXELS // per_frame))
-    full = stimulus_strength(spec, frames[:used]).to_dict()
+    full = stimulus_strength(spec, frames[:used], first_kill=True).to_dict()
     survivors = [{"mutant": s["name"], "description": s["description"], "reason": s["reason"]}
                  for s in full["survivors"]]
     compact = {"killed": full["killed"], "mutants": full["mutants"], "kill_rate": full["kill_rate"],

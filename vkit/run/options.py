@@ -6,7 +6,7 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 from vkit.core.validate import want_choice, want_int, want_number
-from vkit.core.vocab import DRIVE_MODES, WAVE_MODES
+from vkit.core.vocab import DRIVE_DEFAULT, DRIVE_MODES, WAVE_MODES
 from vkit.run.config import PICTURE_MODES, RunSettings
 from vkit.sim.buildcache import check_cache_dir, default_cache_dir
 
@@ -26,7 +26,9 @@ class RunOptions:
         coverage_floor: share of a stage's range below which a case gets a coverage warning, 0..1.
         waves: ``"failing"``, ``"all"`` or ``"off"`` (:data:`vkit.core.vocab.WAVE_MODES`).
         pictures: ``"failing"`` or ``"all"``.
-        drive: ``"clock"``, ``"fast"`` or ``"native"`` (:data:`vkit.core.vocab.DRIVE_MODES`).
+        drive: ``"auto"`` (the default: per case, the fastest path that can run it, see
+            :func:`vkit.run.builds.pick_drive`), ``"clock"``, ``"fast"`` or ``"native"``
+            (:data:`vkit.core.vocab.DRIVE_MODES`).
         config_path: the config the cases came from (absolute), for the rerun command; None for none.
     """
 
@@ -38,7 +40,7 @@ class RunOptions:
     coverage_floor: float = 0.5
     waves: str = "failing"
     pictures: str = "failing"
-    drive: str = "clock"
+    drive: str = DRIVE_DEFAULT
     config_path: Path | None = None
 
     def __post_init__(self) -> None:

@@ -12,7 +12,7 @@ case of the config's matrix becomes one item ``vkit.toml::<case id>`` marked ``s
 message is the scoreboard's first finding and the report path. Cases a config expects to fail (seeded
 bugs) are strict xfails. Reports go to ``<out_dir>/pytest`` of the config unless ``--vkit-out`` says
 otherwise; ``report.json``, ``junit.xml`` and ``summary.txt`` are written there at the end of the
-session (not under pytest-xdist, where each case still writes its own ``verdict.json``).
+session (under pytest-xdist too: each worker hands its cases' entries to the controller, which writes them).
 
 Options: ``--vkit-sim NAME`` (repeatable; replaces ``[run] simulators``), ``--vkit-out DIR``; ini
 ``vkit_configs`` (paths relative to the ini file), ``vkit_simulators``.
@@ -23,6 +23,7 @@ vkit cases are data run by vkit's runner in a simulator subprocess, so this plug
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 from typing import Any
 
@@ -39,6 +40,7 @@ __all__ = [
     "pytest_configure",
     "pytest_collect_file",
     "pytest_sessionfinish",
+    "pytest_testnodedown",
 ]
 
 _ENTRIES = pytest.StashKey[dict[str, list[dict[str, Any]]]]()
@@ -140,7 +142,7 @@ class VkitCaseItem(pytest.Item):
             pytest.skip(f"{self.case.simulator} is not usable here: {info.reason}")
         s = self.run_settings
         options = RunOptions.make(self.out_dir, cache_dir=s.cache_dir, timeout_s=s.timeout_s,
-                                  max_listed=s.max_listed, coverage_floor=s.coverage_floor)
+                                  max_listed=s.max_listed, coverage_floor=s.coverage_floor, drive=s.drive)
         res = run_one_case(self.case, options)
         self.result = res
         self.config.stash[_ENTRIES].setdefault(str(self.out_dir), []).append(res.entry)
@@ -168,11 +170,28 @@ class VkitCaseItem(pytest.Item):
         return self.path, None, f"vkit case {self.case.id}"
 
 
-def pytest_sessionfinish(session: pytest.Session, exitstatus: int) -> None:
-    """Write report.json, junit.xml and summary.txt for the cases this process ran."""
-    if hasattr(session.config, "workerinput"):
+_WORKER_KEY = "vkit_entries"
+"""Key of a pytest-xdist worker's ``workeroutput`` that carries its report entries to the controller."""
+
+
+@pytest.hookimpl(optionalhook=True)
+def pytest_testnodedown(node: Any, error: Any) -> None:
+    """pytest-xdist controller: take the report entries of a worker that finished."""
+    sent = getattr(node, "workeroutput", {}).get(_WORKER_KEY)
+    if not sent:
         return
+    mine = node.config.stash.setdefault(_ENTRIES, {})
+    for out_dir, cases in json.loads(sent).items():
+        mine.setdefault(out_dir, []).extend(cases)
+
+
+def pytest_sessionfinish(session: pytest.Session, exitstatus: int) -> None:
+    """Write report.json, junit.xml and summary.txt for the cases run (under pytest-xdist: each worker sends its
+    entries to the controller, which writes the reports)."""
     entries = session.config.stash.get(_ENTRIES, {})
+    if hasattr(session.config, "workerinput"):
+        session.config.workeroutput[_WORKER_KEY] = json.dumps(entries, default=str)  # type: ignore[attr-defined]
+        return
     if not entries:
         return
     from vkit.report.writers import write_run_report

@@ -29,7 +29,8 @@ from vkit.report.page import write_index
 from vkit.report.writers import merge_reports
 from vkit.run.builds import build_design, build_fast_design, build_request, build_wave_design
 from vkit.run.case import rerun_command, run_one_case
-from vkit.run.config import Config, dropped_designs, expand_matrix, load_config, select_cases, shard_cases
+from vkit.run.config import (SHARD_AUTO, Config, dropped_designs, expand_matrix, load_config, select_cases,
+                             shard_cases, shard_from_environment)
 from vkit.run.inputs import check_ports, make_frames, make_sim_case
 from vkit.run.options import RunOptions
 from vkit.run.pool import run_cases
@@ -74,7 +75,8 @@ def run(config: Config, jobs: int | None = None, shard: tuple[int, int] | str | 
         config: a loaded config.
         jobs: cases run at once, each in a process of its own (default: ``[run] jobs``; >= 1, cut to the
             number of cases and to :data:`vkit.run.pool.JOBS_PER_CPU` per CPU).
-        shard: ``(K, N)`` or ``"K/N"``: run only case ``i`` with ``i % N + 1 == K`` of the sorted matrix.
+        shard: ``(K, N)`` or ``"K/N"``: run only case ``i`` with ``i % N + 1 == K`` of the sorted matrix;
+            ``"auto"``: K and N from the array job or CI matrix (:func:`vkit.run.config.shard_from_environment`).
         only: keep cases whose id matches (glob or substring; a list = any).
         progress: print a line per build and per case (``[3/12] id pass 1.2 s``).
         out_dir: report folder (default ``[run] out_dir``).
@@ -97,6 +99,10 @@ def run(config: Config, jobs: int | None = None, shard: tuple[int, int] | str | 
     """
     if jobs is not None:
         want_int("command line", "--jobs", jobs, 1)
+    if shard == SHARD_AUTO:
+        shard, source = shard_from_environment()
+        if progress:
+            print(f"shard {shard[0]}/{shard[1]} from the {source} variables", file=stream or sys.stdout)
     cases = shard_cases(select_cases(expand_matrix(config, simulators), only), shard)
     note = dropped_designs(config, simulators)
     if note is not None and progress:

@@ -600,6 +600,7 @@ def _config_text(kit: _Kit) -> str:
         "[run]",
         'out_dir = "vkit-out"',
         f"simulators = [{', '.join(_q(s) for s in kit.simulators)}]",
+        _c('path = "auto"', "native harness where the simulator builds one, else fast, else clock by clock"),
         "",
     ]
     design = _design_lines(kit, ports_by_name)

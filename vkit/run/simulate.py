@@ -9,10 +9,8 @@ from dataclasses import asdict
 from typing import Any, Iterator, NamedTuple
 
 import numpy as np
-from cocotb_tools.runner import get_runner
-
 from vkit.core.errors import ToolError, VkitError
-from vkit.run.builds import TIMESCALE, first_error_line, quiet_pytest_env
+from vkit.run.builds import TIMESCALE, first_error_line, get_runner, quiet_pytest_env
 from vkit.run.config import Case
 from vkit.run.inputs import make_sim_case
 from vkit.sim.case import CASE_ENV, SimCase
@@ -24,6 +22,7 @@ from vkit.sim.fast.wire import capture_file_name
 from vkit.video.capture import Capture, RunFacts, lines_file_for, read_lines_file
 
 __all__ = ["TEST_MODULE", "GUARD_STATUS", "WaveDump", "simulate"]
+
 
 TEST_MODULE = "vkit.sim.tb.entry"
 """The cocotb test module that plays a SimCase clock by clock."""

@@ -15,6 +15,7 @@ from vkit.run.builds import build_design, build_wave_design
 from vkit.run.config import Case
 from vkit.run.simulate import WaveDump, simulate
 from vkit.sim.buildcache import BuildCache
+from vkit.sim.case import per_clock_start_ps
 from vkit.sim.simulators import find
 from vkit.sim.vcd import cut_vcd
 
@@ -77,17 +78,15 @@ def wave_rerun(case: Case, out: Path, cache: BuildCache, frames: np.ndarray, cap
     """Rerun the case on a wave build with a dump limited to its window; returns the report's wave facts.
 
     Raises:
-        ToolError: the capture has no start time, or the simulator wrote no wave file.
+        ToolError: the simulator wrote no wave file.
     """
     if case.simulator != "icarus" and case.design.language == "verilog" and find("icarus").available:
         # Windowed dumps are made on Icarus: the same stimulus replays clock for clock there (the
         # simulators agree on every capture, a tested fact), so the window found here still holds.
         case = dataclasses.replace(case, simulator="icarus")
     anchor, first, last = wave_window(case, capture, verdict)
-    start_ps = capture.facts.start_time_ps
-    if start_ps is None:
-        raise ToolError("waves: the capture holds no start_time_ps, so clocks cannot be turned into times; "
-                        "rerun with the current vkit.sim.tb.entry")
+    # the rerun drives clock by clock whatever path made the capture: its clocks start where that path's do
+    start_ps = per_clock_start_ps(case.design.clock_period_ns, case.design.reset_cycles)
     period_ps = int(round(case.design.clock_period_ns * 1000))
     # clock k of the capture is the (k+1)-th rising edge after the monitor started (vkit.sim.tb.entry)
     from_ps = int(start_ps) + first * period_ps

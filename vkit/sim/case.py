@@ -18,7 +18,7 @@ from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.timing import StallPattern, VideoTiming, tiny
 from vkit.video.words import BLANKING_MODES
 
-__all__ = ["SimCase", "CASE_ENV", "TIMEOUT_FACTOR", "TIMEOUT_MARGIN_CLOCKS", "error_file_for"]
+__all__ = ["SimCase", "CASE_ENV", "TIMEOUT_FACTOR", "TIMEOUT_MARGIN_CLOCKS", "error_file_for", "per_clock_start_ps"]
 
 CASE_ENV = "VKIT_CASE"
 """Environment variable holding the path of the case JSON that :mod:`vkit.sim.tb.entry` runs."""
@@ -34,6 +34,18 @@ def error_file_for(capture_file: str | Path) -> Path:
     """The sidecar text file next to a capture that holds the one-line error of a failed run."""
     p = Path(capture_file)
     return p.with_name(p.stem + ".error.txt")
+
+
+def per_clock_start_ps(clock_period_ns: float, reset_cycles: int) -> int:
+    """Simulation time (ps) at which capture clock 0 starts on the per-clock path (:mod:`vkit.sim.tb.entry`).
+
+    cocotb's clock rises at time 0 and that edge is the first of the ``reset_cycles`` reset edges, so the
+    monitor starts on edge ``reset_cycles - 1``; capture clock ``k`` is the ``k + 1``-th rising edge after
+    it. Every drive path numbers clocks the same way, so a wave rerun (always per clock) turns any
+    capture's clocks into times with this. ``tests/test_waves_native.py`` holds it to what the
+    simulator reports.
+    """
+    return int(round(clock_period_ns * 1000)) * (int(reset_cycles) - 1)
 
 
 def _pattern(value: Any, what: str) -> StallPattern | None:

@@ -22,15 +22,16 @@ __getattr__, __dir__, __all__ = lazy_facade(__name__, {
     ),
     "vkit.sim.fast.harness": "HarnessSpec verilog_harness vhdl_harness",
     "vkit.sim.fast.native": (
-        "native_build native_build_plan native_run_args NATIVE_SIMULATORS "
+        "harness_drives native_build native_build_plan native_run_args NATIVE_SIMULATORS "
         "NativeBuild run_native"
     ),
     "vkit.sim.fast.stimulus": (
-        "drain_clocks expected_words fast_run_dir prepare_fast_run "
+        "drain_clocks expected_words fast_run_dir prepare_fast_run write_words_hex "
         "read_fast_run stimulus_words_needed StimulusFiles stream_stimulus "
         "video_schedule_and_words write_expected write_hex write_stimulus "
         "write_words"
     ),
+    "vkit.sim.fast.vlruntime": "compiler_cache make_with_shared_runtime RUNTIME_OBJECTS",
     "vkit.sim.fast.testbench": (
         "TESTBENCH testbench_commands verilog_testbench vhdl_testbench "
         "write_testbench"

@@ -7,9 +7,9 @@ stimulus: one build runs any image, timing, stall pattern, seed or frame count. 
 ``vkit/sim/templates/harness*.j2``; word layouts and capture records in :mod:`vkit.sim.fast.wire`.
 
 Verilog player: one binary word per clock (video) or per transfer (stream) read with ``$fread`` as the
-run goes; the run plays until the file ends. VHDL player (video only): a hex text file read into a
+run goes; the run plays until the file ends. VHDL player: video, a hex text file read into a
 memory whose depth is the ``DEPTH`` generic, given at run time (GHDL elaborates at run time, so this
-is not a rebuild). Clock index 0 is the first rising edge with reset released; on edge ``k`` the
+is not a rebuild); stream, one hex line per transfer read as the run goes. Clock index 0 is the first rising edge with reset released; on edge ``k`` the
 design samples word ``k`` and the capture samples the design's outputs as they stood before that edge.
 The Verilog harness writes binary capture records (``capture.bin``; text lines with
 ``+vkit_capture_bin=0``), the VHDL harness text (``capture.txt``); :mod:`vkit.sim.fast.capture_file`
@@ -250,39 +250,44 @@ def _vhdl_ports(spec: HarnessSpec) -> tuple[list[str], list[tuple[str, str]], li
     conns = [f"{r['clock']} => clk"] + ([f"{r['reset']} => dut_rst"] if "reset" in r else [])
     width = {"in_data": spec.in_width, "out_data": spec.out_width}
     sigs = []
-    for role in _VIDEO_IN + _VIDEO_OUT:
+    for role in (_VIDEO_IN + _VIDEO_OUT if spec.video else _STREAM_IN + _STREAM_OUT):
         sigs.append((role, f"std_logic_vector({width[role] - 1} downto 0)" if role in width else "std_logic"))
         if role in r:
             conns.append(f"{r[role]} => d_{role}")
-    level = {role: "'1'" if spec.out_level(role) else "'0'" for role in _OUT_LEVEL_ROLES}
-    ties = [(role, value) for role, value in (("out_valid", level["out_valid"]), ("out_enable", level["out_enable"]),
-                                              ("out_vsync", "not vs_on"), ("out_hsync", "not hs_on"))
-            if role not in r]
+    ties = []
+    if spec.video:
+        level = {role: "'1'" if spec.out_level(role) else "'0'" for role in _OUT_LEVEL_ROLES}
+        ties = [(role, value) for role, value in (("out_valid", level["out_valid"]), ("out_enable", level["out_enable"]),
+                                                  ("out_vsync", "not vs_on"), ("out_hsync", "not hs_on"))
+                if role not in r]
     return conns, sigs, ties
 
 
 def vhdl_harness(spec: HarnessSpec) -> str:
-    """Return the VHDL-2008 text of entities ``vkit_harness`` and ``vkit_fast_top`` for ``spec`` (video only).
+    """Return the VHDL-2008 text of entities ``vkit_harness`` and ``vkit_fast_top`` for ``spec``.
 
-    Same ports as the Verilog harness. The stimulus is a hex text file (one word per line, the
-    video word of :func:`verilog_harness`) read into a memory of ``DEPTH`` words; file names, word
-    counts, depth, drain, timeout and sync polarity are generics (``STIM_FILE``, ``CAPTURE_FILE``,
-    ``WORDS``, ``DEPTH``, ``DRAIN``, ``TIMEOUT``, ``HS_HIGH``, ``VS_HIGH``) that GHDL takes at run
-    time (``-gNAME=VALUE``), so a new stimulus needs no new build. ``vkit_fast_top`` adds
-    ``HALF_PS`` (half clock period, ps) and ``RESET_CYCLES`` and makes clock, load and reset itself.
+    Same ports as the Verilog harness, and clock for clock the same run. Video: the stimulus is a hex
+    text file (one word per line, the video word of :func:`verilog_harness`) read into a memory of
+    ``DEPTH`` words; file names, word counts, depth, drain, timeout and sync polarity are generics
+    (``STIM_FILE``, ``CAPTURE_FILE``, ``WORDS``, ``DEPTH``, ``DRAIN``, ``TIMEOUT``, ``HS_HIGH``,
+    ``VS_HIGH``). Stream: one hex line per transfer (the stream word of :func:`verilog_harness`, padded to
+    whole bytes), read as the run goes, and the sink's ready pattern (``READY_FILE``, ``RWORDS``) with
+    ``WORDS``, ``DRAIN``, ``TIMEOUT`` and ``EXPECT``. GHDL takes generics at run time (``-gNAME=VALUE``),
+    so a new stimulus needs no new build. ``vkit_fast_top`` adds ``HALF_PS`` (half clock period, ps) and
+    ``RESET_CYCLES`` and makes clock, load and reset itself.
     """
-    if not spec.video:
-        raise ConfigError("VHDL harness: only the video family is generated for VHDL; use a Verilog harness for stream")
     iw, ow = spec.in_width, spec.out_width
-    sw = video_word_bits(iw)
     conns, sigs, ties = _vhdl_ports(spec)
     gmap = ""
     if spec.parameters:
         gmap = ("\n        generic map (\n            "
                 + ",\n            ".join(f"{k} => {_vhdl_value(v)}" for k, v in spec.parameters.items()) + "\n        )")
-    return render(
-        "harness.vhd.j2", dut_top=spec.dut_top, harness=HARNESS, toplevel=TOPLEVEL, iw=iw, ow=ow, sw=sw,
-        hexw=4 * ((sw + 3) // 4), oh=4 * ((ow + 3) // 4), sigs=sigs, ties=ties, conns=conns, gmap=gmap,
-        reset_active_high=spec.reset_active_high, bit=_word_bits(spec), version=CAPTURE_VERSION,
-        on={role: "'1'" if spec.out_level(role) else "'0'" for role in _OUT_LEVEL_ROLES},
-    )
+    common = dict(dut_top=spec.dut_top, harness=HARNESS, toplevel=TOPLEVEL, iw=iw, ow=ow, oh=4 * ((ow + 3) // 4),
+                  sigs=sigs, conns=conns, gmap=gmap, reset_active_high=spec.reset_active_high, bit=_word_bits(spec),
+                  version=CAPTURE_VERSION)
+    if not spec.video:
+        return render("harness_stream.vhd.j2", sw=8 * word_bytes(stream_word_bits(iw)), ready_words=READY_WORDS,
+                      stream_tail=STREAM_TAIL_CLOCKS, **common)
+    sw = video_word_bits(iw)
+    return render("harness.vhd.j2", sw=sw, hexw=4 * ((sw + 3) // 4), ties=ties,
+                  on={role: "'1'" if spec.out_level(role) else "'0'" for role in _OUT_LEVEL_ROLES}, **common)

@@ -16,7 +16,7 @@ from __future__ import annotations
 import hashlib
 import json
 import subprocess
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
 from vkit.core.errors import ConfigError, ToolError, VkitError
@@ -24,15 +24,31 @@ from vkit.sim.case import SimCase
 from vkit.sim.fast.build import VERILATOR_ARGS, HarnessBuild, define_args
 from vkit.sim.fast.capture_file import read_capture
 from vkit.sim.fast.stimulus import fast_run_dir, prepare_fast_run, read_fast_run
+from vkit.sim.fast.vlruntime import make_with_shared_runtime
 from vkit.sim.fast.wire import CAPTURE_BIN_NAME, TOPLEVEL
 from vkit.sim.guard import GuardOutcome, run_guarded
 from vkit.sim.simulators import find, require, subprocess_env
 from vkit.video.capture import Capture
 
-__all__ = ["NATIVE_SIMULATORS", "NativeBuild", "native_build_plan", "native_build", "native_run_args", "run_native"]
+__all__ = ["NATIVE_SIMULATORS", "harness_drives", "NativeBuild", "native_build_plan", "native_build", "native_run_args", "run_native"]
 
 NATIVE_SIMULATORS = ("icarus", "verilator")
 """Simulators :func:`native_build_plan` builds a plain executable with (Verilog harness)."""
+
+_HARNESS_LANGUAGE = {"icarus": "verilog", "verilator": "verilog", "ghdl": "vhdl"}
+"""The harness language each simulator builds (the design's language must match it)."""
+
+
+def harness_drives(simulator: str, language: str) -> tuple[str, ...]:
+    """The harness drive paths ``simulator`` offers for a design in ``language``, fastest first.
+
+    ``("native", "fast")`` for a Verilog design on Icarus or Verilator, ``("fast",)`` for a VHDL design on
+    GHDL, ``()`` where no harness is made (the design then runs clock by clock).
+    """
+    if _HARNESS_LANGUAGE.get(simulator) != language:
+        return ()
+    return ("native", "fast") if simulator in NATIVE_SIMULATORS else ("fast",)
+
 
 _NATIVE_INFO = "vkit_native.json"
 _LOG_TAIL_LINES = 3
@@ -49,6 +65,8 @@ class NativeBuild:
         commands: argument lists run in ``build_dir`` in order (each one a subprocess).
         run: the argument list that runs one case (add the plusargs of :func:`native_run_args`).
         key: the harness build's key plus the simulator: equal keys mean an equal executable.
+        make: Verilator: ``[Mdir, makefile, executable]`` that ``make`` builds after ``commands`` (with the
+            runtime objects shared between builds, :mod:`vkit.sim.fast.vlruntime`); empty for Icarus.
     """
 
     simulator: str
@@ -56,6 +74,7 @@ class NativeBuild:
     commands: list[list[str]]
     run: list[str]
     key: str
+    make: list[str] = field(default_factory=list)
 
 
 def _tail(res: subprocess.CompletedProcess[str]) -> str:
@@ -81,21 +100,29 @@ def native_build_plan(plan: HarnessBuild, simulator: str, build_dir: str | Path)
     out = Path(build_dir).resolve()
     srcs = [str(Path(p).resolve()) for p in plan.sources]
     defs = define_args(plan.defines)
+    make: list[str] = []
     if simulator == "icarus":
         vvp = out / f"{TOPLEVEL}.vvp"
         commands = [["iverilog", "-g2012", *defs, "-s", TOPLEVEL, "-o", str(vvp), *srcs]]
         run = ["vvp", "-n", str(vvp)]
     else:
         mdir = out / "obj_native"
-        commands = [["verilator", "--binary", *VERILATOR_ARGS, "-j", "2", *defs, "--top-module", TOPLEVEL,
+        # what --binary does, with the build step left to make_with_shared_runtime
+        commands = [["verilator", "--cc", "--exe", "--main", *VERILATOR_ARGS, *defs, "--top-module", TOPLEVEL,
                      "--Mdir", str(mdir), "-o", f"V{TOPLEVEL}", *srcs]]
         run = [str(mdir / f"V{TOPLEVEL}")]
+        make = [str(mdir), f"V{TOPLEVEL}.mk", f"V{TOPLEVEL}"]
     key = hashlib.sha256(f"{plan.key}\0{simulator}\0native".encode()).hexdigest()
-    return NativeBuild(simulator, out, commands, run, key)
+    return NativeBuild(simulator, out, commands, run, key, make)
 
 
-def native_build(plan: HarnessBuild, simulator: str, build_dir: str | Path, *, always: bool = False) -> NativeBuild:
+def native_build(plan: HarnessBuild, simulator: str, build_dir: str | Path, *, always: bool = False,
+                 runtime_dir: str | Path | None = None) -> NativeBuild:
     """Run :func:`native_build_plan`'s commands unless ``build_dir`` already holds the same build; record it there.
+
+    ``runtime_dir``: a folder where Verilator's runtime objects are compiled once and taken from by every
+    later build (:mod:`vkit.sim.fast.vlruntime`; the build cache passes one of its folders); None compiles
+    them in each build.
 
     Raises:
         ToolError: the simulator is not installed, or a build command failed (its last output lines are given).
@@ -111,6 +138,11 @@ def native_build(plan: HarnessBuild, simulator: str, build_dir: str | Path, *, a
         res = subprocess.run(cmd, cwd=nb.build_dir, env=env, capture_output=True, text=True)
         if res.returncode != 0:
             raise ToolError(f"native build: {cmd[0]} exited with {res.returncode}: {_tail(res)}; fix the design or its sources")
+    if nb.make:
+        mdir, makefile, target = nb.make
+        res = make_with_shared_runtime(Path(mdir), makefile, target, env, Path(runtime_dir) if runtime_dir else None)
+        if res.returncode != 0:
+            raise ToolError(f"native build: make exited with {res.returncode}: {_tail(res)}; see {mdir}")
     info_file.write_text(json.dumps({"key": nb.key, "simulator": simulator, "run": nb.run}) + "\n")
     return nb
 

@@ -48,6 +48,7 @@ __all__ = [
     "video_schedule_and_words",
     "stream_stimulus",
     "write_hex",
+    "write_words_hex",
     "write_words",
     "write_stimulus",
     "expected_words",
@@ -147,6 +148,26 @@ def write_words(path: str | Path, fields: list[tuple[np.ndarray, int]], nbytes: 
     """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_bytes(_packed_bytes(fields, nbytes).tobytes())
+    return path
+
+
+def write_words_hex(path: str | Path, fields: list[tuple[np.ndarray, int]], nbytes: int | None = None) -> Path:
+    """Write the records of :func:`write_words` as hex text instead, one record per line (``2 * nbytes``
+    digits, most significant first), for a VHDL ``hread`` of ``8 * nbytes`` bits."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    raw = _packed_bytes(fields, nbytes)
+    chars = np.empty((raw.shape[0], 2 * raw.shape[1] + 1), np.uint8)
+    chars[:, 0:-1:2] = _HEX[raw >> 4]
+    chars[:, 1:-1:2] = _HEX[raw & 15]
+    chars[:, -1] = ord("\n")
+    path.write_bytes(chars.tobytes())
+    return path
+
+
+def _packed_bytes(fields: list[tuple[np.ndarray, int]], nbytes: int | None) -> np.ndarray:
+    """The records of :func:`write_words` as an ``(n, nbytes)`` uint8 array, most significant byte first."""
     nbytes = int(nbytes or word_bytes(sum(b for _, b in fields)))
     n = int(np.asarray(fields[0][0]).size) if fields else 0
     out = np.zeros((n, nbytes), np.uint8)
@@ -160,8 +181,7 @@ def write_words(path: str | Path, fields: list[tuple[np.ndarray, int]], nbytes: 
             part = v >> np.uint64(lo - offset) if lo >= offset else v << np.uint64(offset - lo)
             out[:, nbytes - 1 - byte] |= (part & np.uint64(0xFF)).astype(np.uint8)
         offset += bits
-    path.write_bytes(out.tobytes())
-    return path
+    return out
 
 
 @dataclass
@@ -211,9 +231,12 @@ class StimulusFiles:
 
     def generics(self, capture: str | Path) -> dict[str, Any]:
         """VHDL generics for ``vkit_harness`` / ``vkit_fast_top`` (GHDL ``-gNAME=VALUE``, given at run time)."""
-        return {"STIM_FILE": str(self.stim), "CAPTURE_FILE": str(capture), "WORDS": self.words,
-                "DEPTH": max(1, self.words), "DRAIN": self.drain, "TIMEOUT": self.timeout,
-                "HS_HIGH": int(self.hsync_active_high), "VS_HIGH": int(self.vsync_active_high), "IDLE": self.idle}
+        common = {"STIM_FILE": str(self.stim), "CAPTURE_FILE": str(capture), "WORDS": self.words,
+                  "DRAIN": self.drain, "TIMEOUT": self.timeout}
+        if self.ready is not None:  # stream
+            return {**common, "READY_FILE": str(self.ready), "RWORDS": self.ready_words, "EXPECT": self.expect_pixels}
+        return {**common, "DEPTH": max(1, self.words), "HS_HIGH": int(self.hsync_active_high),
+                "VS_HIGH": int(self.vsync_active_high), "IDLE": self.idle}
 
     def to_json(self, key: str) -> str:
         """The description :func:`read_fast_run` reads back, for the case fingerprint ``key``."""
@@ -249,14 +272,13 @@ def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout
 
 def _write_stream(case: SimCase, out: Path, in_width: int, language: str, timeout_rel: int | None) -> StimulusFiles:
     """Stream: one word per transfer, and the sink's ready pattern."""
-    if language != "verilog":
-        raise ConfigError("stimulus: the stream family has a Verilog harness only; use a Verilog simulator")
     bits = pixel_bits(case.pixel_format)
     if in_width != bits:
         raise ConfigError(f"stimulus: stream input bus is {in_width} bits but the pixel format has {bits}; "
                           "give a design whose input width matches the pixel format")
     s = stream_stimulus(case)
-    stim = write_words(out / "stim.bin", stream_word_fields(s, in_width), word_bytes(stream_word_bits(in_width)))
+    write, name = (write_words_hex, "stim.hex") if language == "vhdl" else (write_words, "stim.bin")
+    stim = write(out / name, stream_word_fields(s, in_width), word_bytes(stream_word_bits(in_width)))
     levels = ready_levels(case.backpressure_pattern(), READY_WORDS)
     ready = write_hex(out / "ready.hex", levels.astype(np.uint64), 1)
     meta = {"frames_sent": s.frames, "first_input_clock": None, "stall_pixels": s.stall_pixels,
@@ -274,7 +296,7 @@ def write_stimulus(case: SimCase, out_dir: str | Path, in_width: int | None = No
         out_dir: folder for ``stim.bin`` (Verilog) or ``stim.hex`` (VHDL), and ``ready.hex`` for the
             stream family.
         in_width: input data bus bits (default: the pixel format's bits).
-        language: "verilog" or "vhdl" (video only): which harness reads the files.
+        language: "verilog" or "vhdl": which harness reads the files.
     """
     if language not in ("verilog", "vhdl"):
         raise ConfigError(f"stimulus: language {language!r} is not known; use 'verilog' or 'vhdl'")

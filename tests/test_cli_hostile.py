@@ -17,8 +17,11 @@ import pytest
 
 from vkit.cli import build_parser, main
 
+_BELT = str(Path(__file__).resolve().parents[1] / "sample_rtl" / "belt_cam.toml")
+"""A real config (the conveyor camera sample) for the commands that need one before they read a dump."""
+
 SUBCOMMANDS = ("run", "demo", "export", "replay", "merge", "model", "widths", "strength", "lut", "init", "pattern",
-               "make-vars")
+               "make-vars", "score-dump")
 """What ``vkit --help`` lists; test_every_subcommand_is_covered keeps this in step with the parser."""
 
 
@@ -33,6 +36,8 @@ def junk(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
         "missing": base / "nowhere" / "missing.toml",
         "unicode": base / "über frames ✓" / "vkit.toml",
         "file": base / "plain file.txt",
+        "wave": base / "random wave.vcd",
+        "empty_wave": base / "empty wave.fst",
     }
     paths["empty"].write_bytes(b"")
     paths["bytes"].write_bytes(bytes((i * 193 + 71) % 256 for i in range(4096)))  # fixed junk, no NULs spared
@@ -40,6 +45,8 @@ def junk(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
     paths["unicode"].parent.mkdir()
     paths["unicode"].write_text("[run]\nsimulators = [\"icarus\"]\n", encoding="utf-8")
     paths["file"].write_text("a file where a folder should be\n")
+    paths["wave"].write_bytes(paths["bytes"].read_bytes())
+    paths["empty_wave"].write_bytes(b"")
     return paths
 
 
@@ -102,6 +109,12 @@ def _cases(j: dict[str, Path]) -> list[list[str]]:
         ["pattern", "ramp_h", "--size", "1e9x1", "-o", str(j["folder"] / "p.png")],
         ["pattern", "ramp_h", "--seed", "-1", "--size", "99999999999999999999x1", "-o", str(j["folder"] / "p.png")],
         ["pattern", "ramp_h", "-o", str(j["file"] / "p.png")], ["pattern", "ramp_h", "--bogus", "-o", "x.png"],
+        # score-dump
+        ["score-dump"], ["score-dump", s["missing"], s["wave"]], ["score-dump", s["bytes"], s["wave"]],
+        ["score-dump", _BELT, s["missing"]], ["score-dump", _BELT, s["folder"]], ["score-dump", _BELT, s["bytes"]],
+        ["score-dump", _BELT, s["wave"]], ["score-dump", _BELT, s["empty_wave"]],
+        ["score-dump", _BELT, s["wave"], "--design", "nosuch"], ["score-dump", _BELT, s["wave"], "--signal", "in_de"],
+        ["score-dump", _BELT, s["wave"], "--signal", "bogus_role=a.b"], ["score-dump", s["unicode"], s["wave"]],
     ]
 
 
@@ -112,7 +125,8 @@ def test_every_subcommand_is_covered(junk):
 
 
 @pytest.mark.parametrize("index", range(len(_cases({k: Path(k) for k in
-                                                    ("empty", "bytes", "folder", "missing", "unicode", "file")}))))
+                                                    ("empty", "bytes", "folder", "missing", "unicode", "file",
+                                                     "wave", "empty_wave")}))))
 def test_hostile_arguments_exit_2_with_one_line(junk, capsys, index, monkeypatch, tmp_path):
     monkeypatch.chdir(tmp_path)
     argv = _cases(junk)[index]

@@ -156,6 +156,35 @@ def _cmd_replay(args: argparse.Namespace) -> int:
     return EXIT_PASS if verdict.passed else (EXIT_CONFIG if verdict.status == "error" else EXIT_DUT)
 
 
+def _signal_overrides(items: list[str] | None) -> dict[str, str]:
+    out: dict[str, str] = {}
+    for item in items or []:
+        role, sep, path = item.partition("=")
+        if not sep or not role.strip() or not path.strip():
+            raise ConfigError(f"--signal {item!r}: give ROLE=PATH, e.g. --signal in_de=tb.dut.u_edge.in_de")
+        out[role.strip()] = path.strip()
+    return out
+
+
+def _cmd_score_dump(args: argparse.Namespace) -> int:
+    from vkit.run.config import load_config
+    from vkit.run.passive import score_dump
+
+    done = score_dump(load_config(args.config), args.dump, design=args.design, scope=args.scope,
+                      signals=_signal_overrides(args.signal), out_dir=args.out)
+    print(Path(done.files["summary"]).read_text(), end="")
+    verdict = done.verdict
+    if verdict.diagnosis is not None:
+        print(f"{verdict.diagnosis.kind}: {verdict.diagnosis.message}")
+    print(f"scored: {done.summary}")
+    print(f"open this page: {done.files['index']}")
+    for line in done.problems:
+        print(f"vkit: error: {line}", file=sys.stderr)
+    if not verdict.passed:
+        return EXIT_DUT
+    return EXIT_CONFIG if done.problems else EXIT_PASS
+
+
 def _cmd_merge(args: argparse.Namespace) -> int:
     from vkit.run.runner import merge
 
@@ -344,6 +373,18 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
         _arg("export_dir", help="folder written by `vkit export`"),
         _arg("--capture", default=None, help="capture file (default: capture.bin/.txt in the folder)"),
         _arg("--out", default=None, help="report folder (default: EXPORT_DIR/report)"),
+    )),
+    ("score-dump", "score a waveform dump (VCD, FST) of a run: rebuild the input frames, model, score the output",
+     _cmd_score_dump, (
+        _arg("config", help="config TOML naming the design (spec, ports, reset polarity)"),
+        _arg("dump", help="the waveform dump: .vcd, .fst or .ghw"),
+        _arg("--design", default=None, help="the design's name in the config (default: its only design)"),
+        _arg("--scope", default=None,
+             help="hierarchical path of the design's instance in the dump, e.g. belt_cam_tb.dut.u_edge "
+                  "(default: the design's instance key; a unique port name is found anywhere)"),
+        _arg("--signal", action="append", default=None, metavar="ROLE=PATH",
+             help="dump path of one role whose signal is not SCOPE.PORT (repeatable)"),
+        _arg("--out", default=None, help="report folder (default: DUMP-STEM-vkit beside the dump)"),
     )),
     ("merge", "merge shard report.json files", _cmd_merge, (
         _arg("out", help="folder for the merged report.json, junit.xml and summary.txt"),

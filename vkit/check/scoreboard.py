@@ -543,7 +543,7 @@ def _score_frames(
         border = infer_border(options.spec, options.images, capture, run_model=options.run_model)
     details = {
         "first_mismatches": _first_mismatches(frames, options.max_listed),
-        "findings": _diagnosis(frames, capture, issues, offset, border, options),
+        "findings": _diagnosis(frames, capture, issues, offset, border, options) if failing else [],  # kept only then
         "implemented": _implemented(failing, options.latency[1], border),
     }
     return _final_verdict(frames, issues, extra, offset, details, base)

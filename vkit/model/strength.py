@@ -8,7 +8,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from vkit.model.exact import check_image, run_model, run_plan
-from vkit.model.mutants import Mutant, mutant_outputs, spec_mutants
+from vkit.model.mutants import Mutant, spec_mutants
 from vkit.model.quality import StageCoverage
 from vkit.model.result import ModelResult
 from vkit.model.spec import PipelineSpec

@@ -38,7 +38,7 @@ from vkit.sim.buildcache import BuildCache, BuildOutcome
 from vkit.sim.guard import GuardOutcome
 from vkit.video.capture import Capture, RunFacts
 
-__all__ = ["run_one_case", "rerun_command"]
+__all__ = ["run_one_case", "rerun_command", "mutant_diagnosis", "named_by_mutant"]
 
 _KEPT_FILES = (("case_json", "case.json"), ("frames_npy", "frames.npy"), ("capture", "capture.npz"),
                ("capture_error", "capture.error.txt"), ("sim_log", "sim.log"))
@@ -138,8 +138,8 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions,
     if stop is not None:
         status = "timeout" if stop.kind == "timeout" else "error"
         verdict = replace(verdict, status=status, passed=False, findings=[stop, *verdict.findings])
-    by_mutant = _mutant_diagnosis(verdict, prep)
-    verdict = _named_by_mutant(verdict, by_mutant)
+    by_mutant = mutant_diagnosis(verdict, prep.spec, prep.frames)
+    verdict = named_by_mutant(verdict, by_mutant)
     coverage, warnings = stimulus.result()
     warnings = [*verdict.warnings, *warnings]
     waves: dict[str, Any] | None = None
@@ -161,21 +161,25 @@ _EXACT_BEATS = (*_GUESSES, "stall")
 repeated or skipped is then what a line buffer read one address off gives, not a handshake fault."""
 
 
-def _mutant_diagnosis(verdict: Verdict, prep: _Prepared) -> MutantDiagnosis | None:
-    """For a failing case with wrong pixel values: the spec mutant that reproduces the design's output."""
+def mutant_diagnosis(verdict: Verdict, spec: PipelineSpec, images: Any) -> MutantDiagnosis | None:
+    """For a failing case with wrong pixel values: the spec mutant that reproduces the design's output.
+
+    ``images`` gives each frame's input image by frame number (an ``(N, H, W[, 3])`` array, or a dict).
+    """
     frames = [f for f in verdict.frames if f is not None]
     if verdict.status != "fail" or not verdict.value_mismatches or not frames:
         return None
     shapes = {f.expected.shape for f in frames}
-    if len(shapes) != 1 or max(f.index for f in frames) >= len(prep.frames):
+    known = images.keys() if isinstance(images, dict) else range(len(images))
+    if len(shapes) != 1 or any(f.index not in known for f in frames):
         return None
-    inputs = prep.frames[[f.index for f in frames]]
+    inputs = np.stack([images[f.index] for f in frames])
     checked = np.stack([f.valid & f.present & ~f.unknown for f in frames])
-    return diagnose_with_pairs(prep.spec, inputs, np.stack([f.expected for f in frames]),
+    return diagnose_with_pairs(spec, inputs, np.stack([f.expected for f in frames]),
                                np.stack([f.actual for f in frames]), checked)
 
 
-def _named_by_mutant(verdict: Verdict, found: MutantDiagnosis | None) -> Verdict:
+def named_by_mutant(verdict: Verdict, found: MutantDiagnosis | None) -> Verdict:
     """The verdict with the mutant's explanation first when the checks could only guess (:data:`_GUESSES`)."""
     top = verdict.diagnosis
     if found is None or found.best is None or top is None:

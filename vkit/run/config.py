@@ -110,7 +110,7 @@ _DESIGN_KEYS = (
     "frame_parameters", "defines", "spec", "spec_file", "ports", "reset_active_high", "reset_cycles",
     "clock_period_ns", "latency_clocks", "latency_timing", "pipeline_clocks", "tolerance_lsb",
     "simulators", "expect", "description", "include_dirs", "build_args", "align", "timeout_clocks",
-    "supported_simulators", *_FOREIGN_KEYS,
+    "supported_simulators", "instance", *_FOREIGN_KEYS,
 )
 _MANIFEST_DESIGN_KEYS = (
     "top", "sources", "language", "family", "spec", "pixel_format", "parameters", "file_parameters",
@@ -315,6 +315,9 @@ class DesignConfig:
         include_dirs, build_args: extra build inputs.
         align: scoreboard alignment, ``"exact"`` or ``"auto"``.
         timeout_clocks: simulation timeout in clocks, or None for the default.
+        instance: hierarchical path of the design's instance inside a larger top (``u_isp.u_edge``), read by
+            the passive scoreboard (below the cocotb toplevel live, a scope of the dump offline); None: the
+            design is the top.
         port_polarity: role -> True when the design's pin is active high (config key ``port_polarity``,
             ``"high"``/``"low"`` per role or group word; the reset's lands in ``reset_active_high``). Syncs left
             out follow the timing's sync polarity; every other pin left out is active high.
@@ -358,6 +361,7 @@ class DesignConfig:
     build_args: list[str] = field(default_factory=list)
     align: str = "exact"
     timeout_clocks: int | None = None
+    instance: str | None = None
     port_polarity: dict[str, bool] = field(default_factory=dict)
     enables: list[dict[str, Any]] | None = None
     settle_clocks: int | None = None
@@ -889,6 +893,7 @@ _DESIGN_FIELDS: dict[str, _Reader] = {
     "description": want_str,
     "build_args": want_str_list,
     "align": _choice(("exact", "auto")),
+    "instance": want_str,
 }
 """Design keys that are one checked value each (read the same in a design table and an import's ``set``)."""
 

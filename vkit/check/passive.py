@@ -1,0 +1,290 @@
+"""The passive scoreboard: frames rebuilt from a design's observed input and output, scored as they complete.
+
+Nothing is driven: the input frames are whatever the testbench (a camera model, the previous stage of a
+pipeline, an old waveform dump) sent. Each input frame is run through the bit-exact model as soon as it is
+closed, paired with the output frame of the same number, scored by :func:`~vkit.check.scoreboard.score`,
+and dropped: a run of hundreds of frames holds one or two frames at a time, plus the arrays of the first
+few failing frames for the report.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field, replace
+from typing import Any
+
+import numpy as np
+
+from vkit.check.results import Finding, Verdict
+from vkit.check.scoreboard import score
+from vkit.core.errors import ConfigError
+from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
+from vkit.video.capture import RunFacts
+from vkit.video.observe import FramePixels, FrameRebuilder, Levels
+
+__all__ = ["PassiveOptions", "FrameScore", "PassiveScoreboard"]
+
+
+@dataclass(frozen=True)
+class PassiveOptions:
+    """How the passive scoreboard judges.
+
+    Attributes:
+        tolerance_lsb: largest accepted ``|actual - expected|``, LSB.
+        align: ``"exact"`` or ``"auto"`` (as :func:`~vkit.check.scoreboard.score`).
+        max_listed: failing pixels listed in the verdict.
+        keep_failing: failing frames whose arrays are kept for the pictures (the rest keep their counts).
+        vsync_active_high: polarity of the input and output vsync (video family).
+    """
+
+    tolerance_lsb: int = 0
+    align: str = "exact"
+    max_listed: int = 20
+    keep_failing: int = 4
+    vsync_active_high: bool = True
+
+
+@dataclass
+class FrameScore:
+    """The verdict of one frame, numbered as it arrived."""
+
+    index: int
+    shape: tuple[int, int]
+    verdict: Verdict
+    image: np.ndarray
+    expected: ModelResult
+
+    @property
+    def passed(self) -> bool:
+        """True when the frame matched the model and its timing was clean."""
+        return self.verdict.passed
+
+
+def _renumber(value: Any, index: int) -> Any:
+    """A per-frame verdict's text and evidence with frame 0 read as frame ``index``."""
+    if isinstance(value, str):
+        return re.sub(r"\bframe 0\b", f"frame {index}", value)
+    if isinstance(value, dict):
+        return {k: (index if k == "frame" and v == 0 else _renumber(v, index)) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_renumber(v, index) for v in value]
+    return value
+
+
+def _renumbered(v: Verdict, index: int) -> Verdict:
+    """Verdict ``v`` of a frame scored alone (as frame 0) with its frame number put back."""
+    if index == 0:
+        return v
+    for fr in v.frames:
+        fr.index = index
+    return replace(
+        v, first_mismatches=_renumber(v.first_mismatches, index), timing_errors=_renumber(v.timing_errors, index),
+        findings=[Finding(f.kind, _renumber(f.message, index), _renumber(f.evidence, index), f.confidence)
+                  for f in v.findings],
+        per_frame=_renumber(v.per_frame, index),
+    )
+
+
+@dataclass
+class _Totals:
+    """What the run's verdict adds up over every frame scored (bounded lists)."""
+
+    scores: list[FrameScore] = field(default_factory=list)
+    """The failing frames kept with their arrays (at most ``keep_failing``)."""
+    first: Verdict | None = None
+    first_failing: Verdict | None = None
+    frames: int = 0
+    failing: int = 0
+    per_frame: list[dict[str, int]] = field(default_factory=list)
+    counts: dict[str, int] = field(default_factory=dict)
+    max_abs_error: int = 0
+    first_mismatches: list[dict[str, Any]] = field(default_factory=list)
+    timing_errors: list[str] = field(default_factory=list)
+
+
+_MAX_PENDING = 4
+"""Closed input frames held while no output frame has come out at all; past that a dead design's frames are
+scored as missing rather than held (memory stays flat)."""
+
+_SUMMED = ("pixels_checked", "mismatches", "value_mismatches", "xz_pixels", "missing_pixels", "extra_pixels",
+           "pixels_arrived", "pixels_expected", "frames_out")
+
+
+class PassiveScoreboard:
+    """Pairs observed input and output frames, runs the model on each input frame and scores the pair.
+
+    Args:
+        spec: the pipeline spec the design implements.
+        family: "video" or "stream".
+        pixel_format: the input bus's pixel format ("gray8" or "rgb888").
+        options: :class:`PassiveOptions`.
+    """
+
+    def __init__(self, spec: PipelineSpec, family: str, pixel_format: str, options: PassiveOptions | None = None) -> None:
+        self.spec = spec
+        self.family = family
+        self.pixel_format = pixel_format
+        self.options = options or PassiveOptions()
+        high = self.options.vsync_active_high
+        self.inputs = FrameRebuilder(family, output=False, vsync_active_high=high)
+        self.outputs = FrameRebuilder(family, output=True, vsync_active_high=high)
+        self._in: list[FramePixels] = []
+        self._out: list[FramePixels] = []
+        self._t = _Totals()
+        self.problems: list[str] = []
+        """One line per frame that could not be scored (an input frame with ragged lines, a run that ended
+        mid-frame)."""
+
+    # -- feeding --------------------------------------------------------------------------------------
+
+    def feed(self, inputs: Levels, outputs: Levels) -> list[FrameScore]:
+        """Take the next chunk of input and output levels (the same clocks); the frames it completed, scored."""
+        self._in.extend(self.inputs.feed(inputs))
+        self._out.extend(self.outputs.feed(outputs))
+        return self._pair()
+
+    def finish(self) -> list[FrameScore]:
+        """The run ended: score what is complete of the frames still open; name the rest in :attr:`problems`."""
+        for rebuilder, queue in ((self.inputs, self._in), (self.outputs, self._out)):
+            last = rebuilder.finish()
+            if last is not None:
+                queue.append(last)
+        done = self._pair(final=True)
+        if self._in:
+            frame = self._in[0]
+            self.problems.append(f"input frame {frame.index}: the run ended before it was complete "
+                                 f"({len(frame.line_lengths)} line(s) in, {len(self._in)} frame(s) not scored)")
+        elif self._t.frames == 0 and not self.problems:
+            self.problems.append("no complete input frame was seen; check the input signal paths, the clock and "
+                                 "the reset polarity")
+        return done
+
+    @staticmethod
+    def _ended_whole(frame: FramePixels, height: int | None) -> bool:
+        """A frame still open when the run ended is whole when its last line ended and it has ``height`` lines."""
+        return bool(frame.closed or (height and frame.line_ended and len(frame.line_lengths) >= height))
+
+    def _pair(self, final: bool = False) -> list[FrameScore]:
+        """Score every input frame whose output frame is complete (at the end: whatever is whole)."""
+        done: list[FrameScore] = []
+        while self._in:
+            frame = self._in[0]
+            out = self._out[0] if self._out else None
+            height = frame.shape[0] if frame.shape else None
+            if not final:
+                dead = out is None and self.outputs.frames_out == 0 and len(self._in) > _MAX_PENDING
+                if not (frame.closed and ((out is not None and out.closed) or dead)):
+                    break
+            else:
+                # a last input frame nothing closed: whole when its output came out with as many lines
+                lines_out = len(out.line_lengths) if out is not None and self._ended_whole(out, height) else None
+                if not frame.closed and not (frame.line_ended and (lines_out == len(frame.line_lengths) or
+                                                                   (out is None and self.outputs.frames_out == 0))):
+                    break
+                if out is None and self.outputs.frames_out > 0:
+                    break  # the run ended before this frame's output: named by finish()
+                if out is not None and not self._ended_whole(out, height):
+                    self.problems.append(f"output frame {out.index}: the run ended mid-frame "
+                                         f"({len(out.line_lengths)} line(s) out); it is not scored")
+                    del self._in[0], self._out[0]
+                    continue
+            del self._in[0]
+            if out is not None:
+                del self._out[0]
+            scored = self._score(frame, out)
+            if scored is not None:
+                done.append(scored)
+        return done
+
+    # -- scoring --------------------------------------------------------------------------------------
+
+    def _facts(self, frame: FramePixels, out: FramePixels | None) -> RunFacts:
+        facts = RunFacts(family=self.family, frames_sent=1, first_input_clock=int(frame.clocks[0]))
+        facts.stall_pixels = [[0, y, x] for y, x in frame.held]
+        if out is not None:
+            facts.first_output_clock = int(out.clocks[0])
+            facts.backpressure_pixels = [[0, y, x] for y, x in out.held]
+            facts.xz_control = [list(e) for e in out.events.get("xz_control", [])]
+            facts.de_in_blanking = list(out.events.get("de_in_blanking", []))
+            facts.notes.append("passive: input frames rebuilt from the observed input interface")
+        return facts
+
+    def _score(self, frame: FramePixels, out: FramePixels | None) -> FrameScore | None:
+        """Score one input frame against its output frame (None: nothing came out)."""
+        try:
+            image = frame.image(self.pixel_format)
+        except ConfigError as exc:
+            self.problems.append(str(exc))
+            return None
+        expected = run_model(self.spec, image)
+        facts = self._facts(frame, out)
+        empty = FramePixels(0, *(np.zeros(0, np.int64) for _ in range(4)), closed=True, line_ended=True)
+        capture = (out or empty).capture(facts)
+        o = self.options
+        verdict = score([expected], capture, tolerance_lsb=o.tolerance_lsb, align=o.align, max_listed=o.max_listed,
+                        spec=self.spec, images=[image])
+        result = FrameScore(frame.index, image.shape[:2], _renumbered(verdict, frame.index), image, expected)
+        self._add(result)
+        return result
+
+    def _add(self, fs: FrameScore) -> None:
+        t, v = self._t, fs.verdict
+        t.frames += 1
+        t.first = t.first or v
+        for key in _SUMMED:
+            t.counts[key] = t.counts.get(key, 0) + int(getattr(v, key))
+        t.max_abs_error = max(t.max_abs_error, v.max_abs_error)
+        t.per_frame.extend(v.per_frame)
+        if v.passed:
+            return
+        t.failing += 1
+        t.first_failing = t.first_failing or v
+        room = self.options.max_listed - len(t.first_mismatches)
+        t.first_mismatches.extend(v.first_mismatches[:max(0, room)])
+        t.timing_errors.extend(v.timing_errors[:max(0, self.options.max_listed - len(t.timing_errors))])
+        if len(t.scores) < self.options.keep_failing:
+            t.scores.append(fs)
+
+    # -- the run ----------------------------------------------------------------------------------------
+
+    @property
+    def frames_scored(self) -> int:
+        """Frames scored so far."""
+        return self._t.frames
+
+    @property
+    def frames_failing(self) -> int:
+        """Frames that failed so far."""
+        return self._t.failing
+
+    @property
+    def kept(self) -> list[FrameScore]:
+        """The failing frames kept with their arrays (the first ``keep_failing``)."""
+        return list(self._t.scores)
+
+    def summary(self) -> str:
+        """One line: frames scored, failing, and the first failure's diagnosis."""
+        t = self._t
+        text = f"{t.frames} frame(s) scored, {t.failing} failing"
+        if t.first_failing is not None and t.first_failing.diagnosis is not None:
+            d = t.first_failing.diagnosis
+            text += f"; first failure: {d.kind}: {d.message}"
+        return text
+
+    def verdict(self) -> Verdict:
+        """The run's verdict over every frame scored: counts added up, the first failing frame's diagnosis."""
+        t = self._t
+        if t.frames == 0:
+            reason = "; ".join(self.problems) or "no frame was complete on both sides"
+            return Verdict(passed=False, status="error", timing_errors=[f"nothing was scored: {reason}"],
+                           findings=[Finding("timing", f"nothing was scored: {reason}", {}, 1.0)])
+        head = t.first_failing or t.first
+        assert head is not None
+        failing = t.first_failing is not None
+        return replace(
+            head, passed=not failing, status=head.status if failing else "pass", frames_checked=t.frames,
+            frames_expected=t.frames, max_abs_error=t.max_abs_error, first_mismatches=list(t.first_mismatches),
+            timing_errors=list(t.timing_errors), per_frame=list(t.per_frame),
+            frames=[fr for s in t.scores for fr in s.verdict.frames], latency_clocks=t.first.latency_clocks,
+            **t.counts,
+        )

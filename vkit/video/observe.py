@@ -1,0 +1,316 @@
+"""Frames rebuilt from an interface watched clock by clock: what a passive scoreboard sees.
+
+A passive scoreboard has no schedule of its own: it samples a design's input and output on every rising
+clock edge (live in a simulator, or read back from a waveform dump) and rebuilds the frames from the
+levels it saw. Both sides are rebuilt by the same :class:`FrameRebuilder`, fed per-clock levels in chunks
+of any length; a frame comes out as soon as a delimiter closes it, so a long run holds at most the frame
+being received. The rules are the per-clock monitors' (:mod:`vkit.sim.tb.video`, :mod:`vkit.sim.tb.stream`):
+
+- video: a pixel is a clock with data-enable high (and pixel-valid high when mapped); a line ends when a
+  data-enable run ends; a frame starts at the leading edge of vsync.
+- stream: a pixel is a clock with valid and ready high; start-of-frame on a pixel starts a new frame
+  before it, end-of-line ends the line after it.
+
+Numbers only: no signals, no simulator, no filters.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from vkit.core.errors import ConfigError
+from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, RunFacts
+from vkit.video.formats import unpack_rgb
+
+__all__ = ["SIDE_ROLES", "Levels", "FramePixels", "FrameRebuilder"]
+
+SIDE_ROLES: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
+    "video": (("vsync", "de", "data"), ("valid",)),
+    "stream": (("valid", "ready", "sof", "eol", "data"), ()),
+}
+"""Per family: (required, optional) roles of one side, without the ``in_`` / ``out_`` prefix: only what the
+rebuild reads (hsync is not sampled: a line ends with its data-enable run). The video side needs vsync:
+with nothing but data-enable a passive watcher cannot tell where a frame ends."""
+
+
+@dataclass
+class Levels:
+    """Per-clock samples of one side of an interface, in clock order (one chunk of a run).
+
+    Attributes:
+        first_clock: clock index of entry 0, counted from the first watched clock.
+        roles: role without its side prefix (``"de"``, ``"data"``, ...) -> int64 array, one entry per clock;
+            a 1-bit role holds 0, 1 or -1 for X/Z, ``data`` holds the word or
+            :data:`~vkit.video.capture.UNKNOWN` for X/Z.
+    """
+
+    first_clock: int
+    roles: dict[str, np.ndarray]
+
+    def __len__(self) -> int:
+        return int(next(iter(self.roles.values())).size) if self.roles else 0
+
+
+@dataclass
+class FramePixels:
+    """One rebuilt frame as it arrived: every pixel with its clock, line and column.
+
+    Attributes:
+        index: frame number, from 0, in arrival order.
+        values: pixel words, int64 (:data:`UNKNOWN` for X/Z).
+        clocks: clock of each pixel.
+        lines: line of each pixel inside the frame.
+        columns: column of each pixel inside its line.
+        closed: True when a frame delimiter after it was seen (the next vsync or start-of-frame).
+        line_ended: True when its last line was ended (data-enable fell, end-of-line).
+        held: ``[y, x]`` of pixels that came right after a stall (input side: data-enable high with
+            pixel-valid low, or valid low on a stream) or waited on ready (stream output side).
+        events: ``name -> [clock, role]`` or clocks of what went wrong around the frame (``xz_control``,
+            ``de_in_blanking``), at most :data:`~vkit.video.capture.MAX_EVENTS` each.
+    """
+
+    index: int
+    values: np.ndarray
+    clocks: np.ndarray
+    lines: np.ndarray
+    columns: np.ndarray
+    closed: bool
+    line_ended: bool
+    held: list[list[int]] = field(default_factory=list)
+    events: dict[str, list] = field(default_factory=dict)
+
+    @property
+    def line_lengths(self) -> list[int]:
+        """Pixels on each line, in order."""
+        return np.bincount(self.lines).tolist() if self.lines.size else []
+
+    @property
+    def shape(self) -> tuple[int, int] | None:
+        """``(height, width)`` when every line carries the same number of pixels, else None."""
+        lengths = self.line_lengths
+        if not lengths or min(lengths) != max(lengths):
+            return None
+        return len(lengths), lengths[0]
+
+    def image(self, pixel_format: str) -> np.ndarray:
+        """The frame as an input image: uint8 ``(H, W)`` (gray8) or ``(H, W, 3)`` (rgb888).
+
+        Raises:
+            ConfigError: the lines are not all the same length, or a pixel carried X/Z.
+        """
+        shape = self.shape
+        if shape is None:
+            lengths = self.line_lengths
+            raise ConfigError(
+                f"input frame {self.index}: lines of {min(lengths or [0])} to {max(lengths or [0])} pixels; a frame "
+                "needs lines of one length: check the input data-enable / end-of-line and the signal paths")
+        if (self.values == UNKNOWN).any():
+            y = int(self.lines[np.argmax(self.values == UNKNOWN)])
+            raise ConfigError(f"input frame {self.index}: X/Z on the data bus in line {y}; the design's input "
+                              "must carry known pixels (check the upstream stage's reset)")
+        grid = self.values.reshape(shape)
+        if pixel_format == "rgb888":
+            return unpack_rgb(grid)
+        if grid.max(initial=0) > 255:
+            raise ConfigError(f"input frame {self.index}: words above 255 on a gray8 bus; set pixel_format = "
+                              "'rgb888' or map the 8-bit luma bus")
+        return grid.astype(np.uint8)
+
+    def capture(self, facts: RunFacts) -> Capture:
+        """The frame as a one-frame :class:`~vkit.video.capture.Capture` (frame number 0) with ``facts``."""
+        zeros = np.zeros(self.values.size, np.int64)
+        return Capture(self.values, self.clocks, zeros, self.lines, self.columns, facts)
+
+
+@dataclass
+class _Carry:
+    """What one chunk hands to the next: the last levels for edge detection and the numbering so far."""
+
+    de: bool = False
+    vsync: bool = False
+    stalled: bool = False
+    line_pending: bool = False
+    frame_pending: bool = False
+    started: bool = False
+    frame: int = 0
+    global_line: int = 0
+    frame_first_line: int = 0
+    column: int = -1
+
+
+class FrameRebuilder:
+    """Rebuilds the frames of one side of an interface from per-clock levels fed in chunks.
+
+    Args:
+        family: "video" or "stream".
+        output: True for the design's output side (X/Z control events and data-enable in vertical blanking
+            are recorded; a stream's ``held`` lists back-pressure), False for its input side (``held``
+            lists the pixels right after a stall).
+        vsync_active_high: polarity of vsync (video).
+    """
+
+    def __init__(self, family: str, output: bool, *, vsync_active_high: bool = True) -> None:
+        if family not in SIDE_ROLES:
+            raise ConfigError(f"family {family!r} is not known; use one of {', '.join(SIDE_ROLES)}")
+        self.family = family
+        self.output = output
+        self.vsync_level = 1 if vsync_active_high else 0
+        self._c = _Carry()
+        self._blocks: list[tuple[np.ndarray, ...]] = []
+        self._events: dict[str, list] = {"xz_control": [], "de_in_blanking": []}
+        self.event_totals: dict[str, int] = {"xz_control": 0, "de_in_blanking": 0}
+        """Events seen over the whole run (the lists kept per frame are bounded)."""
+        self.frames_out = 0
+        """Frames handed out so far (closed ones by :meth:`feed`, the last by :meth:`finish`)."""
+        self.clocks_seen = 0
+        """Clocks fed so far."""
+
+    # -- public ---------------------------------------------------------------------------------------
+
+    def feed(self, levels: Levels) -> list[FramePixels]:
+        """Take the next chunk of levels; return the frames it closed, in order."""
+        n = len(levels)
+        if n == 0:
+            return []
+        self.clocks_seen += n
+        if self.family == "video":
+            pix, line_b, frame_b, held, vs_after = self._video(levels)
+        else:
+            pix, line_b, frame_b, held, vs_after = self._stream(levels)
+        values = levels.roles["data"][pix]
+        clocks = np.flatnonzero(pix) + levels.first_clock
+        closed = self._number(values, clocks, line_b, frame_b, held)
+        if vs_after and self._blocks:  # a vsync after the last pixel closes the frame being received
+            closed.append(self._emit(closed_by_delimiter=True))
+        return closed
+
+    def finish(self) -> FramePixels | None:
+        """The frame still being received when the run ended (``closed`` False), or None."""
+        if not self._blocks:
+            return None
+        return self._emit(closed_by_delimiter=False)
+
+    # -- one chunk, per family ------------------------------------------------------------------------
+
+    def _bit(self, levels: Levels, role: str, where: np.ndarray | None = None) -> np.ndarray:
+        """Role ``role`` as bool (X/Z read as low, and listed on the output side where ``where`` holds)."""
+        raw = levels.roles[role]
+        bad = raw < 0
+        if self.output and bad.any():
+            if where is not None:
+                bad = bad & where
+            prefix = "out_"
+            self._event("xz_control", [[int(c) + levels.first_clock, prefix + role] for c in np.flatnonzero(bad)])
+        return raw == 1
+
+    def _video(self, lv: Levels) -> tuple[np.ndarray, ...]:
+        c = self._c
+        de = self._bit(lv, "de")
+        pix = de & self._bit(lv, "valid", de) if "valid" in lv.roles else de.copy()
+        vs_raw = lv.roles["vsync"]
+        if self.output and (vs_raw < 0).any():
+            self._event("xz_control", [[int(k) + lv.first_clock, "out_vsync"] for k in np.flatnonzero(vs_raw < 0)])
+        vs = vs_raw == self.vsync_level
+        de_prev = np.concatenate(([c.de], de[:-1]))
+        vs_prev = np.concatenate(([c.vsync], vs[:-1]))
+        vs_rise = vs & ~vs_prev
+        line_ev = np.cumsum((de_prev & ~de) | vs_rise)
+        frame_ev = np.cumsum(vs_rise)
+        if self.output:
+            self._event("de_in_blanking", [int(k) + lv.first_clock for k in np.flatnonzero(vs & de)])
+        stalled = de & ~pix
+        stalled_prev = np.concatenate(([c.stalled], stalled[:-1]))
+        at = np.flatnonzero(pix)
+        held = stalled_prev[at] if not self.output else np.zeros(at.size, bool)
+        line_b = np.diff(np.concatenate(([0], line_ev[at]))) > 0
+        frame_b = np.diff(np.concatenate(([0], frame_ev[at]))) > 0
+        last_l = line_ev[at[-1]] if at.size else 0
+        last_f = frame_ev[at[-1]] if at.size else 0
+        if line_b.size:
+            line_b[0] |= c.line_pending
+            frame_b[0] |= c.frame_pending
+        vs_after = bool(frame_ev[-1] > last_f)
+        c.line_pending = bool(line_ev[-1] > last_l) or (c.line_pending and not at.size)
+        c.frame_pending = vs_after or (c.frame_pending and not at.size)
+        c.de, c.vsync, c.stalled = bool(de[-1]), bool(vs[-1]), bool(stalled[-1])
+        return pix, line_b | frame_b, frame_b, held, vs_after
+
+    def _stream(self, lv: Levels) -> tuple[np.ndarray, ...]:
+        c = self._c
+        valid = self._bit(lv, "valid")
+        ready = self._bit(lv, "ready", valid)
+        pix = valid & ready
+        sof = self._bit(lv, "sof", pix)
+        eol = self._bit(lv, "eol", pix)
+        at = np.flatnonzero(pix)
+        # input: valid low on the clock before (a gap); output: valid high and ready low (back-pressure)
+        before = ~valid if not self.output else valid & ~ready
+        prev = np.concatenate(([c.stalled], before[:-1]))
+        held = prev[at]
+        frame_b = sof[at]
+        eol_at = eol[at]
+        line_b = np.concatenate(([c.line_pending], eol_at[:-1])) if at.size else np.zeros(0, bool)
+        if at.size:
+            c.line_pending = bool(eol_at[-1])
+        c.stalled = bool(before[-1])
+        return pix, line_b | frame_b, frame_b, held, False
+
+    # -- numbering (shared) ---------------------------------------------------------------------------
+
+    def _number(self, values: np.ndarray, clocks: np.ndarray, line_b: np.ndarray, frame_b: np.ndarray,
+                held: np.ndarray) -> list[FramePixels]:
+        """Give each pixel its frame, line and column (the rules of CaptureBuilder), keep the open frame's
+        pixels, and return the frames a later pixel closed."""
+        c = self._c
+        n = values.size
+        if n == 0:
+            return []
+        if not c.started:  # nothing to end before the first pixel
+            line_b[0] = frame_b[0] = False
+            c.started = True
+        frame = c.frame + np.cumsum(frame_b)
+        gline = c.global_line + np.cumsum(line_b)
+        first_line = np.maximum.accumulate(np.where(frame_b, gline, c.frame_first_line))
+        idx = np.arange(n)
+        start = np.maximum.accumulate(np.where(line_b, idx, -1))
+        column = np.where(start < 0, c.column + 1 + idx, idx - start)
+        lines = gline - first_line
+        c.frame, c.global_line = int(frame[-1]), int(gline[-1])
+        c.frame_first_line, c.column = int(first_line[-1]), int(column[-1])
+        closed: list[FramePixels] = []
+        cuts = np.flatnonzero(np.diff(frame)) + 1
+        for lo, hi in zip(np.concatenate(([0], cuts)), np.concatenate((cuts, [n]))):
+            if lo > 0 or (frame_b[0] and self._blocks):
+                if self._blocks:
+                    closed.append(self._emit(closed_by_delimiter=True, until_clock=int(clocks[lo])))
+            self._blocks.append((values[lo:hi], clocks[lo:hi], lines[lo:hi], column[lo:hi], held[lo:hi]))
+        return closed
+
+    def _emit(self, closed_by_delimiter: bool, until_clock: int | None = None) -> FramePixels:
+        """Hand out the frame being received and forget its pixels."""
+        values, clocks, lines, columns, held = (np.concatenate(parts) for parts in zip(*self._blocks))
+        self._blocks = []
+        events = {}
+        for key, items in self._events.items():
+            clock_of = (lambda e: e[0]) if key == "xz_control" else (lambda e: e)
+            mine = [e for e in items if until_clock is None or clock_of(e) < until_clock]
+            self._events[key] = [e for e in items if until_clock is not None and clock_of(e) >= until_clock]
+            events[key] = mine[:MAX_EVENTS]
+        line_ended = self._c.line_pending or self._c.frame_pending or until_clock is not None
+        at = np.flatnonzero(held)
+        frame = FramePixels(
+            index=self.frames_out, values=values, clocks=clocks, lines=lines, columns=columns,
+            closed=closed_by_delimiter, line_ended=bool(line_ended),
+            held=[[int(lines[k]), int(columns[k])] for k in at], events=events,
+        )
+        self.frames_out += 1
+        return frame
+
+    def _event(self, key: str, items: list) -> None:
+        """Keep events until their frame is handed out (bounded: a stuck signal must not fill memory)."""
+        self.event_totals[key] += len(items)
+        room = MAX_EVENTS - len(self._events[key])
+        if room > 0:
+            self._events[key].extend(items[:room])

@@ -164,8 +164,8 @@ def test_signal_map_rejects_missing_and_unknown_roles() -> None:
     partial = {k: v for k, v in VIDEO_SIGNALS.items() if k != "in_de"}
     with pytest.raises(ConfigError, match="missing required role.*in_de"):
         SignalMap(partial, "video")
-    with pytest.raises(ConfigError, match="unknown role.*in_enable"):
-        SignalMap({**VIDEO_SIGNALS, "in_enable": "x"}, "video")
+    with pytest.raises(ConfigError, match="unknown role.*in_strobe"):
+        SignalMap({**VIDEO_SIGNALS, "in_strobe": "x"}, "video")
     with pytest.raises(ConfigError, match="family 'axi'"):
         SignalMap(VIDEO_SIGNALS, "axi")
 

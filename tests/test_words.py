@@ -72,7 +72,7 @@ def test_video_word_layout() -> None:
     sched = schedule(t, 1)
     data = video_data_words(sched, _frames(1, 24, 32), "gray8")
     packed = pack_fields(video_word_fields(sched, data, 8))
-    assert video_word_bits(8) == 13
+    assert video_word_bits(8) == 14
     np.testing.assert_array_equal(packed & 0xFF, data.astype(np.uint64))
     for flag, level in (("valid", sched.valid), ("de", sched.de), ("vsync", sched.vsync), ("hsync", sched.hsync)):
         np.testing.assert_array_equal((packed >> np.uint64(video_bit(flag, 8))) & np.uint64(1), level.astype(np.uint64))

@@ -16,4 +16,5 @@ __getattr__, __dir__, __all__ = lazy_facade(__name__, {
         "StageValues STATUSES TimingIssue Verdict"
     ),
     "vkit.check.scoreboard": "score",
+    "vkit.check.settle": "ControlSettle settled_facts",
 })

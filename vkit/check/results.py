@@ -313,6 +313,9 @@ class Verdict:
         tolerance_lsb: the tolerance used.
         align: ``"exact"`` or ``"auto"``.
         per_frame: per-frame counts.
+        latency_samples: measured latency in input samples (enabled input clocks), or None.
+        declared_latency_samples: latency in samples the design claims, or None.
+        warnings: remarks that do not fail the run (e.g. output sync activity left out as reset fill).
         implemented: on a failing run, what the design really does: ``latency_clocks`` (measured) and,
             when ``spec`` and ``images`` were given, ``border`` (the inferred policy with its share and
             confidence, :meth:`BorderInference.to_dict`).
@@ -344,6 +347,9 @@ class Verdict:
     align: str = "exact"
     per_frame: list[dict[str, int]] = field(default_factory=list)
     implemented: dict[str, Any] = field(default_factory=dict)
+    latency_samples: int | None = None
+    declared_latency_samples: int | None = None
+    warnings: list[str] = field(default_factory=list)
     frames: list[FrameResult] = field(default_factory=list, repr=False)
 
     @property
@@ -367,6 +373,9 @@ class Verdict:
             "first_mismatches": [dict(m) for m in self.first_mismatches],
             "latency_clocks": self.latency_clocks,
             "declared_latency_clocks": self.declared_latency_clocks,
+            "latency_samples": self.latency_samples,
+            "declared_latency_samples": self.declared_latency_samples,
+            "warnings": list(self.warnings),
             "offset": list(self.offset),
             "offset_detail": self.offset_detail.to_dict() if self.offset_detail else None,
             "timing_errors": list(self.timing_errors),

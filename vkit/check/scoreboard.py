@@ -2,11 +2,14 @@
 
 from __future__ import annotations
 
+import dataclasses
+
 from dataclasses import dataclass
 from typing import Any, Sequence
 
 import numpy as np
 
+from vkit.check.settle import ControlSettle, settled_facts
 from vkit.check.align import ModelRunner, infer_border, latency_clocks, measure_offset, shift_back
 from vkit.check.diagnose import diagnose
 from vkit.check.results import (
@@ -209,6 +212,18 @@ def _latency_issue(declared: int | None, measured: int | None, tolerance: int) -
             {"declared": declared, "measured": measured, "tolerance": tolerance},
         )
     return None
+
+
+def _sample_latency_issue(declared: int | None, measured: int | None) -> TimingIssue | None:
+    """The latency declared in input samples against the measured one (exact: samples are counted, not timed)."""
+    if declared is None or measured == declared:
+        return None
+    return TimingIssue(
+        "latency",
+        f"latency: declared {declared} samples, measured {measured if measured is not None else '?'} samples "
+        "(input samples = enabled input clocks)",
+        {"declared_samples": declared, "measured_samples": measured},
+    )
 
 
 def _timing_issues(
@@ -427,6 +442,8 @@ def score(
     spec: BorderSpec | None = None,
     images: Sequence[np.ndarray] | None = None,
     run_model: ModelRunner | None = None,
+    settle: ControlSettle | None = None,
+    declared_latency_samples: int | None = None,
 ) -> Verdict:
     """Score one run: every checked pixel of every frame, the output timing, the latency.
 
@@ -447,17 +464,27 @@ def score(
             design implements (optional).
         images: the input images, one per frame (optional, see ``spec``).
         run_model: model runner for the border inference; :func:`vkit.model.exact.run_model` by default.
+        settle: from when output controls are judged (:class:`~vkit.check.settle.ControlSettle`); None: from
+            the first output pixel, output sync activity the input cannot have caused before it is reset fill
+            (left out of the pulse counts, with a warning).
+        declared_latency_samples: latency the design claims in input samples (enabled input clocks); checked
+            exactly against ``capture.facts.latency_samples``.
 
     Returns:
         A :class:`Verdict`.
     """
     _check_options(align, tolerance_lsb, latency_tolerance_clocks)
     shapes = _check_expected(expected)
+    judged, warning = settled_facts(capture.facts, settle)
+    if judged is not capture.facts:
+        capture = dataclasses.replace(capture, facts=judged)
     measured_latency = latency_clocks(capture)
     base = dict(
         frames_expected=len(shapes), frames_out=capture.frame_count, pixels_arrived=len(capture),
         pixels_expected=int(sum(h * w for h, w in shapes)), latency_clocks=measured_latency,
         declared_latency_clocks=declared_latency_clocks, tolerance_lsb=tolerance_lsb, align=align,
+        latency_samples=capture.facts.latency_samples, declared_latency_samples=declared_latency_samples,
+        warnings=[warning] if warning else [],
     )
     early = _early_verdict(expected, capture, base["pixels_expected"], base)
     if early is not None:
@@ -497,6 +524,9 @@ def _score_frames(
     by_shape = {s: capture.frames(*s) for s in set(shapes)}
     views = [by_shape[s][i] if i < len(by_shape[s]) else None for i, s in enumerate(shapes)]
     issues, extra = _timing_issues(capture, views, shapes, options.latency)
+    sample_issue = _sample_latency_issue(base["declared_latency_samples"], base["latency_samples"])
+    if sample_issue is not None:
+        issues.append(sample_issue)
     offset = _auto_offset(expected, views) if options.align == "auto" else None
     frames = [_compare(i, expected[i], views[i], shapes[i], options.tolerance_lsb, offset) for i in range(len(shapes))]
     if options.align == "exact":

@@ -80,7 +80,7 @@ def build_request(case: Case, tool_version: str) -> BuildRequest:
     d = case.design
     return BuildRequest.make(
         case.simulator, tool_version, d.top, d.sources, d.language,
-        parameters=d.build_parameters(case.width, case.height),
+        parameters=case.build_parameters(),
         defines=d.defines,
         build_args=[*_default_build_args(case.simulator), *d.build_args],
         data_files=list(d.file_parameters.values()),
@@ -151,7 +151,7 @@ def _design_build_kwargs(case: Case, build_args: list[str]) -> dict[str, Any]:
     kwargs: dict[str, Any] = dict(hdl_toplevel=d.top, build_args=build_args, always=True,
                                   includes=[str(p) for p in d.include_dirs])
     if case.simulator != "ghdl":
-        kwargs.update(parameters=d.build_parameters(case.width, case.height), defines=dict(d.defines),
+        kwargs.update(parameters=case.build_parameters(), defines=dict(d.defines),
                       timescale=TIMESCALE)
     return kwargs
 
@@ -181,8 +181,9 @@ def _harness_plan(case: Case) -> HarnessBuild:
     parallel workers never clash)."""
     d = case.design
     return fast_build_plan(
-        d.top, d.sources, d.language, d.build_parameters(case.width, case.height), d.defines, d.family,
+        d.top, d.sources, d.language, case.build_parameters(), d.defines, d.family,
         d.ports, reset_active_high=d.reset_active_high, pixel_format=d.pixel_format, include_dirs=d.include_dirs,
+        out_active_high={r: d.port_polarity.get(r, True) for r in ("out_de", "out_valid", "out_enable")},
     )
 
 
@@ -274,7 +275,7 @@ def build_wave_design(case: Case, cache: BuildCache) -> BuildOutcome:
     build_args = [*base.build_args, "-s", WAVE_MODULE]
     request = BuildRequest.make(
         base.simulator, base.tool_version, base.top, base.sources, base.language,
-        parameters=d.build_parameters(case.width, case.height), defines=d.defines,
+        parameters=case.build_parameters(), defines=d.defines,
         build_args=build_args, data_files=base.data_files, include_dirs=base.include_dirs,
     )
 

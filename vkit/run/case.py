@@ -132,12 +132,8 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions,
     arrived is compared, the rest counts as missing) and takes the status ``timeout`` (the design's
     fault, as a hung design is the usual cause) or ``error`` (a crash is the tool's), with that first.
     """
-    d = case.design
-    verdict = score(
-        prep.expected, capture, tolerance_lsb=d.tolerance_lsb,
-        declared_latency_clocks=case.declared_latency_clocks(), align=d.align, max_listed=options.max_listed,
-        spec=prep.spec, images=list(prep.frames),
-    )
+    verdict = score(prep.expected, capture, max_listed=options.max_listed, spec=prep.spec, images=list(prep.frames),
+                    **case.score_settings())
     stop = _sim_stop(capture, options.timeout_s)
     if stop is not None:
         status = "timeout" if stop.kind == "timeout" else "error"
@@ -145,6 +141,7 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions,
     by_mutant = mutant_diagnosis(verdict, prep.spec, prep.frames)
     verdict = named_by_mutant(verdict, by_mutant)
     coverage, warnings = stimulus.result()
+    warnings = [*verdict.warnings, *warnings]
     waves: dict[str, Any] | None = None
     wanted = options.waves == "all" or (options.waves == "failing" and verdict.status in ("fail", "no_output"))
     if wanted and stop is None:  # a stopped simulation would only stop again

@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import fnmatch
 import glob
+import itertools
 import importlib.resources
 import json
 import os
@@ -34,6 +35,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Callable, Iterator, Mapping, Sequence
 
+from vkit.check.settle import ControlSettle
 from vkit.core.errors import ConfigError
 from vkit.core.validate import (
     check_keys,
@@ -50,7 +52,8 @@ from vkit.core.validate import (
 )
 from vkit.core.vocab import COMPONENT_ORDERS, DRIVE_DEFAULT, DRIVE_MODES, VERILOG_SUFFIXES, VHDL_SUFFIXES, WAVE_MODES
 from vkit.model import pipeline
-from vkit.sim.signals import FAMILY_ROLES
+from vkit.sim.signals import FAMILY_ROLES, POLARITY_GROUPS
+from vkit.video.enables import EnablePattern
 from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.words import BLANKING_MODES
 from vkit.sim.simulators import LANGUAGES, SIMULATORS
@@ -97,22 +100,34 @@ PICTURE_MODES: tuple[str, ...] = ("failing", "all")
 """``[run] pictures``: PNGs for failing frames only, or for every frame."""
 _STIMULUS_KEYS = (
     "images", "patterns", "size", "frames", "timings", "stalls", "backpressure", "gaps", "blanking",
-    "blanking_value", "seeds", "convert", "designs", "max_image_pixels",
+    "blanking_value", "seeds", "convert", "designs", "max_image_pixels", "enables",
 )
+_FOREIGN_KEYS = ("port_polarity", "enables", "settle_clocks", "strict_controls", "latency_samples",
+                 "timing_parameters")
+"""Design keys for the conventions of other people's RTL: pin polarity, clock enables, reset fill, parameters
+that follow the timing."""
 _DESIGN_KEYS = (
     "top", "sources", "language", "family", "pixel_format", "parameters", "file_parameters",
     "frame_parameters", "defines", "spec", "spec_file", "ports", "reset_active_high", "reset_cycles",
     "clock_period_ns", "latency_clocks", "latency_timing", "pipeline_clocks", "tolerance_lsb",
     "simulators", "expect", "description", "include_dirs", "build_args", "align", "timeout_clocks",
     "component_order", "pixels_per_clock", "lane_order",
-    "supported_simulators", "instance",
+    "supported_simulators", "instance", *_FOREIGN_KEYS,
 )
 _MANIFEST_DESIGN_KEYS = (
     "top", "sources", "language", "family", "spec", "pixel_format", "parameters", "file_parameters",
     "frame_parameters", "ports", "pipeline_clocks", "latency_clocks", "latency_timing", "simulators",
-    "bugs", "defines", "description", "component_order", "pixels_per_clock", "lane_order",
+    "bugs", "defines", "description", "reset_active_high", "component_order", "pixels_per_clock", "lane_order",
+    *_FOREIGN_KEYS,
 )
-_BUG_KEYS = ("define", "description", "expect", "needs")
+TIMING_PARAMETER_FIELDS: tuple[str, ...] = (
+    "h_active", "h_front_porch", "h_sync", "h_back_porch", "h_blank", "h_total",
+    "v_active", "v_front_porch", "v_sync", "v_back_porch", "v_blank", "v_total",
+    "width", "height", "pixel_bits",
+)
+"""What a ``timing_parameters`` entry may follow: a timing field (clocks per line, lines per frame), the frame
+size, or the bits of one input pixel of the design's pixel format."""
+_BUG_KEYS = ("define", "parameter", "description", "expect", "needs")
 _IMPORT_KEYS = ("manifest", "use", "bugs", "set")
 _TOP_KEYS = ("run", "designs", "stimulus", "import")
 _LANGUAGES = ("verilog", "vhdl")
@@ -248,6 +263,9 @@ class StimulusConfig:
             alpha dropped, colour to luma, gray to RGB); False (default) makes each an error.
         max_image_pixels: decompression-bomb guard: an image file claiming more pixels (width x height)
             is refused before it is decoded (default :data:`vkit.video.images.DEFAULT_MAX_PIXELS`).
+        enables: input clock-enable patterns (tables of :class:`vkit.video.enables.EnablePattern`, file paths
+            resolved), an axis for the designs that map ``in_enable`` (the others ignore it); the seed of a
+            random pattern is the case seed unless the table gives one. Default: every clock.
     """
 
     images: list[Path] = field(default_factory=list)
@@ -264,6 +282,7 @@ class StimulusConfig:
     convert: bool = False
     designs: list[str] = field(default_factory=lambda: ["*"])
     max_image_pixels: int = DEFAULT_MAX_PIXELS
+    enables: list[dict[str, Any]] = field(default_factory=lambda: [{"every": 1}])
 
 
 @dataclass
@@ -306,6 +325,14 @@ class DesignConfig:
         instance: hierarchical path of the design's instance inside a larger top (``u_isp.u_edge``), read by
             the passive scoreboard (below the cocotb toplevel live, a scope of the dump offline); None: the
             design is the top.
+        port_polarity: role -> True when the design's pin is active high (config key ``port_polarity``,
+            ``"high"``/``"low"`` per role or group word; the reset's lands in ``reset_active_high``). Syncs left
+            out follow the timing's sync polarity; every other pin left out is active high.
+        enables: the input clock-enable patterns this design runs with (replaces ``[stimulus] enables``), or None.
+        settle_clocks: output controls are judged from this clock on (None: from the first output pixel).
+        strict_controls: judge output controls from the first clock after reset (reset fill counts).
+        latency_samples: latency the design declares in input samples (enabled clocks), or None.
+        timing_parameters: parameter -> the timing field it follows (:data:`TIMING_PARAMETER_FIELDS`).
     """
 
     name: str
@@ -345,6 +372,12 @@ class DesignConfig:
     component_order: str = "RGB"
     pixels_per_clock: int = 1
     lane_order: str = "first_low"
+    port_polarity: dict[str, bool] = field(default_factory=dict)
+    enables: list[dict[str, Any]] | None = None
+    settle_clocks: int | None = None
+    strict_controls: bool = False
+    latency_samples: int | None = None
+    timing_parameters: dict[str, str] = field(default_factory=dict)
 
     def bus_layout(self) -> BusLayout:
         """How the design's data words hold pixels (:class:`vkit.video.bus.BusLayout`)."""
@@ -367,13 +400,21 @@ class DesignConfig:
                               f"pixel_format is {self.pixel_format}; make them agree")
         return spec
 
-    def build_parameters(self, width: int, height: int) -> dict[str, Any]:
-        """Parameters for a build at this frame size, file parameters as the language wants them."""
+    def build_parameters(self, width: int, height: int, timing: Mapping[str, Any] | None = None) -> dict[str, Any]:
+        """Parameters for a build at this frame size and timing, file parameters as the language wants them.
+
+        ``timing`` is the case's timing dict (None: ``tiny(width, height)``); ``timing_parameters`` take
+        their values from it.
+        """
         params = dict(self.parameters)
         for key, path in self.file_parameters.items():
             params[key] = f'"{path}"' if self.language == "verilog" else str(path)
         for what, pname in self.frame_parameters.items():
             params[pname] = height if what == "height" else width
+        if self.timing_parameters:
+            t = VideoTiming.from_dict(timing) if timing is not None else tiny(width, height)
+            for pname, what in self.timing_parameters.items():
+                params[pname] = _timing_value(t, what, self.pixel_format)
         return params
 
 
@@ -410,6 +451,8 @@ class Case:
         timing: video timing dict (video family), or None.
         timing_label: the timing part of the id.
         stalls, gaps, backpressure: the flow settings (inactive ones have probability 0).
+        enable: the input clock-enable pattern (a table of :class:`vkit.video.enables.EnablePattern`, seed
+            filled in), or None for a design without ``in_enable``.
         blanking, blanking_value: blanking data.
         index: position in the sorted full matrix (0-based), the basis of sharding.
         convert: image conversions allowed (``[stimulus] convert``).
@@ -437,6 +480,11 @@ class Case:
     index: int = 0
     convert: bool = False
     max_image_pixels: int = DEFAULT_MAX_PIXELS
+    enable: dict[str, Any] | None = None
+
+    def build_parameters(self) -> dict[str, Any]:
+        """The design's parameters for a build of this case (frame size and timing applied)."""
+        return self.design.build_parameters(self.width, self.height, self.timing)
 
     @property
     def steady(self) -> bool:
@@ -452,8 +500,8 @@ class Case:
         ``width + 2 + pipeline_clocks`` (stream).
         """
         d = self.design
-        if not self.steady:
-            return None
+        if not self.steady or (self.enable is not None and self.enable != {"every": 1}):
+            return None  # behind a clock enable the design declares its latency in samples
         here = self.timing_label if self.design.family == "video" else f"tiny{self.width}x{self.height}"
         if d.latency_clocks is not None and (d.latency_timing is None or d.latency_timing == here):
             return d.latency_clocks
@@ -465,6 +513,22 @@ class Case:
             return self.width + 2 + d.pipeline_clocks
         return None
 
+    def declared_latency_samples(self) -> int | None:
+        """The latency the design declares in input samples (``latency_samples``), on steady cases of its
+        ``latency_timing`` (every timing when that is not given)."""
+        d = self.design
+        if not self.steady or d.latency_samples is None:
+            return None
+        return d.latency_samples if d.latency_timing in (None, self.timing_label) else None
+
+    def score_settings(self) -> dict[str, Any]:
+        """The keyword arguments of :func:`vkit.check.scoreboard.score` this case's design asks for: tolerance,
+        declared latencies, alignment and from when output controls are judged (reset fill)."""
+        d = self.design
+        return {"tolerance_lsb": d.tolerance_lsb, "declared_latency_clocks": self.declared_latency_clocks(),
+                "declared_latency_samples": self.declared_latency_samples(), "align": d.align,
+                "settle": ControlSettle(d.settle_clocks, d.strict_controls)}
+
     def seeds(self) -> dict[str, int]:
         """Seeds that reproduce this case (name -> value)."""
         out = {"case": self.seed}
@@ -474,6 +538,15 @@ class Case:
 
 
 # ---------------------------------------------------------------------------------------------- helpers
+
+
+def _timing_value(t: VideoTiming, what: str, pixel_format: str) -> int:
+    """The value of a ``timing_parameters`` entry: a timing field, the frame size or the pixel bits."""
+    if what == "pixel_bits":
+        return PIXEL_FORMAT_BITS[pixel_format]
+    if what in ("width", "height"):
+        return int(t.h_active if what == "width" else t.v_active)
+    return int(getattr(t, what))
 
 
 _Reader = Callable[[str, str, Any], Any]
@@ -732,7 +805,33 @@ def _parse_stimulus(where: str, data: Mapping[str, Any], base: Path) -> Stimulus
     if not st.images and not st.patterns:
         raise ConfigError(f"{where}: no stimulus; give images = [...] or patterns = [...]")
     _set_fields(where, data, st, _STIMULUS_FIELDS)
+    if "enables" in data:
+        st.enables = _parse_enables(where, "enables", data["enables"], base)
     return st
+
+
+def _parse_enables(where: str, key: str, value: Any, base: Path) -> list[dict[str, Any]]:
+    """Clock-enable patterns: a table or a list of tables (``{ every = 2 }``, ``{ duty = 0.5, max_gap = 3 }``,
+    ``{ file = "enable.txt" }``); a lone integer N means every Nth clock."""
+    items = value if isinstance(value, list) else [value]
+    if not items:
+        raise fail(where, key, value, "empty", "give at least one pattern, e.g. [{ every = 2 }]")
+    out: list[dict[str, Any]] = []
+    for item in items:
+        if isinstance(item, int) and not isinstance(item, bool):
+            item = {"every": item}
+        table = dict(want_table(where, key, item))
+        if "file" in table:
+            table["file"] = str(_existing_file(where, f"{key}.file", table["file"], base))
+        try:
+            pattern = EnablePattern.from_dict(table, f"{where} {key}")
+        except ConfigError as exc:
+            raise ConfigError(f"{exc}".replace("enable pattern:", f"{where} {key}:")) from None
+        entry = pattern.to_dict()
+        if "duty" in entry and "seed" not in table:
+            entry.pop("seed")  # the case seed fills it in
+        out.append(entry)
+    return out
 
 
 # ---------------------------------------------------------------------------------------------- [designs.NAME]
@@ -854,11 +953,62 @@ def _parse_design(where: str, name: str, data: Mapping[str, Any], base: Path, *,
         d.supported_declared = True
     if d.language == "vhdl" and d.defines:
         raise ConfigError(f"{where}: defines are Verilog only and this design is VHDL; use parameters (generics)")
+    _set_foreign(where, data, base, d)
     try:
         d.bus_layout()
     except ConfigError as exc:
         raise ConfigError(f"{where}: {exc}") from None
     return d
+
+
+_LEVEL_WORDS = {"high": True, "low": False}
+
+
+def _port_polarity(where: str, value: Any) -> dict[str, bool]:
+    """``port_polarity``: role or group word -> "high"/"low", as role -> active high (groups expanded)."""
+    table = want_table(where, "port_polarity", value)
+    roles = {r for group in POLARITY_GROUPS.values() for r in group}
+    out: dict[str, bool] = {}
+    for name, level in table.items():
+        if name not in POLARITY_GROUPS and name not in roles:
+            raise fail(where, "port_polarity", name, "not a control role or group",
+                       suggest(name, [*POLARITY_GROUPS, *sorted(roles)]))
+        high = _LEVEL_WORDS[want_choice(where, f"port_polarity.{name}", level, tuple(_LEVEL_WORDS))]
+        for role in POLARITY_GROUPS.get(name, (name,)):
+            out[role] = high
+    return out
+
+
+def _timing_parameters(where: str, value: Any) -> dict[str, str]:
+    table = want_table(where, "timing_parameters", value)
+    return {name: want_choice(where, f"timing_parameters.{name}", what, TIMING_PARAMETER_FIELDS)
+            for name, what in table.items()}
+
+
+def _set_foreign(where: str, data: Mapping[str, Any], base: Path, d: DesignConfig) -> None:
+    """The keys of :data:`_FOREIGN_KEYS`: pin polarity, clock enables, reset fill, timing parameters."""
+    if "port_polarity" in data:
+        polarity = _port_polarity(where, data["port_polarity"])
+        if "reset" in polarity:
+            high = polarity.pop("reset")
+            if "reset_active_high" in data and bool(data["reset_active_high"]) != high:
+                raise fail(where, "port_polarity.reset", "high" if high else "low",
+                           "against reset_active_high", "keep one of the two")
+            d.reset_active_high = high
+        d.port_polarity = polarity
+    if "enables" in data:
+        d.enables = _parse_enables(where, "enables", data["enables"], base)
+    if "settle_clocks" in data:
+        d.settle_clocks = want_int(where, "settle_clocks", data["settle_clocks"], 0)
+    if "strict_controls" in data:
+        d.strict_controls = want_bool(where, "strict_controls", data["strict_controls"])
+    if "latency_samples" in data:
+        d.latency_samples = want_int(where, "latency_samples", data["latency_samples"], 0)
+    if "timing_parameters" in data:
+        d.timing_parameters = _timing_parameters(where, data["timing_parameters"])
+    if d.enables is not None and "in_enable" not in d.ports:
+        raise fail(where, "enables", d.enables, "given but the design maps no in_enable port",
+                   "map ports.in_enable to the design's clock-enable input, or drop enables")
 
 
 # ---------------------------------------------------------------------------------------------- [[import]]
@@ -869,13 +1019,15 @@ def _bug_variants(where: str, good: DesignConfig, bugs: Mapping[str, Any]) -> li
     for bug, body in bugs.items():
         w = f"{where}.bugs.{bug}"
         check_keys(w, want_table(w, "bug", body), _BUG_KEYS)
-        if "define" not in body:
-            raise ConfigError(f"{w}: missing key 'define'; name the Verilog define that enables the bug")
-        define = want_str(w, "define", body["define"])
+        if ("define" in body) == ("parameter" in body):
+            raise ConfigError(f"{w}: give one of 'define' (the Verilog define that enables the bug) or 'parameter' "
+                              "(the parameter or VHDL generic set to 1 to enable it)")
+        switch = {"defines": {**good.defines, want_str(w, "define", body["define"]): 1}} if "define" in body else \
+            {"parameters": {**good.parameters, want_str(w, "parameter", body["parameter"]): 1}}
         out.append(replace(
             good,
             name=f"{good.name}@{bug}",
-            defines={**good.defines, define: 1},
+            **switch,
             expect="fail",
             expect_kind=body.get("expect"),
             description=str(body.get("description", "")),
@@ -1120,25 +1272,40 @@ def _frame_timings(s: _Stimulus, size: tuple[int, int], family: str,
     return out
 
 
-def _flow_settings(s: _Stimulus, family: str) -> list[tuple[str, Flow, Flow, Flow]]:
-    """``(flow label, stalls, gaps, back-pressure)``: stalls for video, gaps x back-pressure for stream."""
-    if family == "video":
-        return [(f.label("stall"), f, Flow(), Flow()) for f in s.stalls]
+def _flow_settings(s: _Stimulus, d: DesignConfig) -> list[tuple[str, Flow, Flow, Flow]]:
+    """``(flow label, stalls, gaps, back-pressure)``: stalls for video (none for a design without a pixel-valid
+    input: it cannot take one), gaps x back-pressure for stream."""
+    if d.family == "video":
+        stalls = s.stalls if "in_valid" in d.ports else (Flow(),)
+        return [(f.label("stall"), f, Flow(), Flow()) for f in stalls]
     return [(f"{g.label('gap')}-{b.label('bp')}", Flow(), g, b) for g in s.gaps for b in s.backpressure]
+
+
+def _enable_settings(config: Config, d: DesignConfig, seed: int) -> list[tuple[str, dict[str, Any] | None]]:
+    """``(id suffix, enable pattern)`` of each enable setting: none for a design without ``in_enable``."""
+    if d.family != "video" or "in_enable" not in d.ports:
+        return [("", None)]
+    out = []
+    for entry in d.enables if d.enables is not None else config.stimulus.enables:
+        full = {**entry, "seed": seed} if "duty" in entry and "seed" not in entry else dict(entry)
+        out.append((f"-{EnablePattern.from_dict(full).label()}", full))
+    return out
 
 
 def _design_cases(config: Config, d: DesignConfig, sim: str, s: _Stimulus) -> Iterator[Case]:
     st = config.stimulus
     for seed in s.seeds:
-        for tlabel, timing, width, height in _frame_timings(s, st.size, d.family, d.pixels_per_clock):
+        for (tlabel, timing, width, height), (elabel, enable) in itertools.product(
+                _frame_timings(s, st.size, d.family, d.pixels_per_clock), _enable_settings(config, d, seed + config.run.seed)):
             check_case_size(f"{config.path.name} [stimulus]", st.frames, width, height)
-            for flabel, stall, gap, bp in _flow_settings(s, d.family):
+            for flabel, stall, gap, bp in _flow_settings(s, d):
                 yield Case(
-                    id=f"{d.name}/{sim}/{s.label}-s{seed}/{tlabel}/{flabel}", design=d, simulator=sim,
+                    id=f"{d.name}/{sim}/{s.label}-s{seed}/{tlabel}/{flabel}{elabel}", design=d, simulator=sim,
                     stimulus=s.kind, stimulus_name=s.name, stimulus_label=s.label, pattern_options=s.options,
                     seed=seed + config.run.seed, frames=st.frames, width=width, height=height, timing=timing,
                     timing_label=tlabel, stalls=stall, gaps=gap, backpressure=bp, blanking=st.blanking,
                     blanking_value=st.blanking_value, convert=st.convert, max_image_pixels=st.max_image_pixels,
+                    enable=enable,
                 )
 
 

@@ -71,7 +71,7 @@ def make_frames(case: Case) -> np.ndarray:
 def _top_design(case: Case) -> HdlDesign | None:
     """The top level as the HDL front end reads it; None when it cannot read it."""
     d = case.design
-    ints = {k: v for k, v in d.build_parameters(case.width, case.height).items()
+    ints = {k: v for k, v in case.build_parameters().items()
             if isinstance(v, int) and not isinstance(v, bool)}
     try:
         return find_design(d.sources, d.top, parameters=ints, defines={k: str(v) for k, v in d.defines.items()},
@@ -92,6 +92,7 @@ def _parameter_keys(case: Case) -> list[tuple[str, str, object]]:
     keys = [(f"parameters.{k}", k, v) for k, v in d.parameters.items()]
     keys += [(f"file_parameters.{k}", k, str(v)) for k, v in d.file_parameters.items()]
     keys += [(f"frame_parameters.{what}", k, k) for what, k in d.frame_parameters.items()]
+    keys += [(f"timing_parameters.{k}", k, what) for k, what in d.timing_parameters.items()]
     return keys
 
 
@@ -191,6 +192,6 @@ def make_sim_case(case: Case, sim_dir: Path, frames: np.ndarray) -> SimCase:
         blanking=case.blanking, blanking_value=case.blanking_value, seed=case.seed,
         clock_period_ns=d.clock_period_ns, reset_active_high=d.reset_active_high, reset_cycles=d.reset_cycles,
         timeout_clocks=d.timeout_clocks, simulator=case.simulator, label=case.id,
-        parameters=d.build_parameters(case.width, case.height),
+        parameters=case.build_parameters(), enable=case.enable, polarity=dict(d.port_polarity),
         component_order=d.component_order, pixels_per_clock=d.pixels_per_clock, lane_order=d.lane_order,
     )

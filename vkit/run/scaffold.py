@@ -17,11 +17,12 @@ from vkit.model.pipeline import PRESETS as SPEC_PRESETS
 from vkit.run.config import load_config
 from vkit.sim.hdlports import HdlDesign, Port, find_design, language_of, list_designs
 from vkit.sim.ifwrap import FlatWrapper, flat_wrapper
-from vkit.sim.signals import FAMILY_ROLES
+from vkit.sim.signals import CONTROL_ROLES, FAMILY_ROLES
 from vkit.core.vocab import pixel_format_name
 from vkit.video.bus import LANE_COUNTS, BusLayout
 from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.synthesis import SCAFFOLD_PATTERNS
+from vkit.run.conventions import LOW_SUFFIXES, Guess, pin_polarity, reset_style, timing_parameters
 from vkit.sim.simulators import INTERFACE_SIMULATORS, LANGUAGES, SIMULATORS
 
 __all__ = [
@@ -67,6 +68,12 @@ _KINDS: dict[str, tuple[frozenset[str], tuple[str, ...], tuple[str, ...]]] = {
     "eol": (frozenset({"eol", "tlast", "last", "eop", "lineend", "endofline", "linelast"}), (), ("eol", "last")),
     "vsync": (frozenset({"vsync", "vs", "vsyn", "vsy", "fsync", "fs", "vertsync", "verticalsync"}), ("vsync",), ("vsync", "vs")),
     "hsync": (frozenset({"hsync", "hs", "hsyn", "hsy", "lsync", "horizsync", "horizontalsync"}), ("hsync",), ("hsync", "hs")),
+    "enable": (
+        frozenset({"ce", "en", "ena", "enable", "clken", "clkena", "clkenable", "cken", "pixen", "pixce", "pce",
+                   "clockenable", "pixelenable", "pixclken", "sampleen", "smpen", "cei", "ceo"}),
+        ("clken",),
+        ("clken",),
+    ),
     "de": (frozenset({"de", "den", "dataen", "dataenable", "active", "activevideo", "vde", "act", "dispen", "displayen", "videoactive", "vidactive"}), (), ("de", "den")),
     "data": (
         frozenset({"data", "pixel", "pix", "px", "rgb", "tdata", "y", "luma", "d", "din", "dout", "q", "video", "vid", "gray", "grey", "pixdata", "pixeldata", "vdata", "viddata", "videodata"}),
@@ -74,7 +81,7 @@ _KINDS: dict[str, tuple[frozenset[str], tuple[str, ...], tuple[str, ...]]] = {
         ("data", "pix", "pixel", "rgb"),
     ),
 }
-_KIND_ORDER = ("clock", "reset", "ready", "valid", "sof", "eol", "vsync", "hsync", "de", "data")
+_KIND_ORDER = ("enable", "clock", "reset", "ready", "valid", "sof", "eol", "vsync", "hsync", "de", "data")
 _ACTIVE_LOW_WORDS = {"rstn", "resetn", "arstn", "aresetn", "nrst", "nreset", "rstb", "resetb"}
 _SCORE_WORDS = {3: "high", 2: "medium", 1: "low"}
 
@@ -107,8 +114,11 @@ def _read_name(name: str) -> _Reading:
         last = words.pop()
         side = side or ("in" if last in _IN_SUFFIX or last == "ni" else "out")
         low = last in ("ni", "no")
-    if len(words) > 1 and words[-1] in ("n", "b"):
+    if len(words) > 1 and words[-1] in LOW_SUFFIXES:
         words.pop()
+        low = True
+    if len(words) > 1 and words[0] == "n":
+        words = words[1:]
         low = True
     joined = "".join(words)
     if joined in _ACTIVE_LOW_WORDS:
@@ -161,6 +171,7 @@ class RoleGuess:
         pixel_format: the pixel format the input data width suggests (``gray8``, ``gray10``, ``rgb888``, ...).
         unmapped: ports that play no role.
         pixels_per_clock: pixels a clock the input data width suggests (a 16-bit bus: two gray8 pixels).
+        reasons: role -> why that port was taken (the name words read, the direction).
     """
 
     family: str
@@ -171,6 +182,7 @@ class RoleGuess:
     pixel_format: str = "gray8"
     unmapped: list[str] = field(default_factory=list)
     pixels_per_clock: int = 1
+    reasons: dict[str, str] = field(default_factory=dict)
 
     def __iter__(self):  # type: ignore[no-untyped-def]
         return iter((self.family, self.roles, self.notes))
@@ -371,7 +383,19 @@ def guess_roles(ports: Sequence[Port], family: str | None = None) -> RoleGuess:
         reset_high = not chosen["reset"][2].active_low
         notes.append(f"reset: {roles['reset']} taken as active {'high' if reset_high else 'low'} from its name; CONFIRM")
     pixel_format, lanes = _pixel_format(chosen, notes)
-    return RoleGuess(family, roles, notes, confidence, reset_high, pixel_format, [p.name for p in unmapped], lanes)
+    reasons = {role: _role_reason(role, score, port, reading) for role, (score, port, reading) in picked}
+    return RoleGuess(family, roles, notes, confidence, reset_high, pixel_format, [p.name for p in unmapped],
+                     pixels_per_clock=lanes, reasons=reasons)
+
+
+def _role_reason(role: str, score: int, port: Port, reading: _Reading) -> str:
+    """Why ``port`` was taken for ``role``: the words of its name that matched, its direction and width."""
+    words = "_".join(reading.core) or port.name
+    kind = role.split("_", 1)[-1]
+    how = {3: f"is a usual name for {kind}", 2: f"has a word that is a usual name for {kind}",
+           1: f"partly matches {kind}"}.get(min(3, score), "is the widest port left")
+    side = f", name side '{reading.side}'" if reading.side else ""
+    return f"'{words}' {how}; {port.direction}{side}, {port.width or '?'} bit(s)"
 
 
 # -- which preset the design implements ------------------------------------------------------------
@@ -437,6 +461,7 @@ class ScaffoldResult:
     notes: list[str] = field(default_factory=list)
     kept: list[Path] = field(default_factory=list)
     wrapper: Path | None = None
+    guesses: list[Guess] = field(default_factory=list)
 
     @property
     def files(self) -> list[Path]:
@@ -455,9 +480,12 @@ class ScaffoldResult:
         lines += [f"  kept {p} (as you left it)" for p in self.kept]
         lines += [f"  {'rewrote' if self.kept else 'wrote'} {p}" for p in self.written]
         for role, port in self.guess.roles.items():
-            lines.append(f"  {role:10s} -> {port:20s} ({self.guess.confidence.get(role, 'low')})")
+            why = self.guess.reasons.get(role)
+            lines.append(f"  {role:10s} -> {port:20s} ({self.guess.confidence.get(role, 'low')}"
+                         f"{': ' + why if why else ''})")
         for role in self.guess.missing:
             lines.append(f"  {role:10s} -> MISSING (map it by hand in {self.config.name})")
+        lines += [f"  guess: {g.line()}" for g in self.guesses]
         lines += [f"  note: {n}" for n in self.notes]
         lines.append(f"  next: check the CONFIRM lines in {self.config.name}, then `vkit run {self.config.name}` "
                      f"or `make -f {self.makefile.name} SIM={self.simulators[0]}`")
@@ -542,6 +570,9 @@ class _Kit:
     notes: list[str]
     include_dirs: list[Path] = field(default_factory=list)
     wrapper: FlatWrapper | None = None
+    polarity: dict[str, bool] = field(default_factory=dict)
+    timing_parameters: dict[str, str] = field(default_factory=dict)
+    guesses: list[Guess] = field(default_factory=list)
 
     @property
     def wrapper_path(self) -> Path | None:
@@ -574,6 +605,14 @@ def _design_lines(kit: _Kit, ports_by_name: Mapping[str, Port]) -> list[str]:
     lines.append(_c(f"spec = {_q(kit.spec)}", f"guessed, {kit.spec_reason}: CONFIRM (presets: {', '.join(SPEC_PRESETS)}; or spec_file = \"my_spec.toml\")"))
     if guess.reset_active_high is not None:
         lines.append(_c(f"reset_active_high = {_toml_scalar(guess.reset_active_high)}", f"guessed from {guess.roles['reset']}: CONFIRM"))
+    if kit.polarity:
+        table = {role: "high" if high else "low" for role, high in kit.polarity.items()}
+        lines.append(_c(f"port_polarity = {_inline_table(table)}",
+                        "guessed from the active-low marks in the port names: CONFIRM"))
+    lines.append("# port_polarity: pins not listed are active high; syncs not listed follow the timing's polarity")
+    if kit.timing_parameters:
+        lines.append(_c(f"timing_parameters = {_inline_table(kit.timing_parameters)}",
+                        "guessed from the parameter names: CONFIRM (set per timing at build)"))
     lines += [
         "reset_cycles = 4",
         "clock_period_ns = 10.0",
@@ -630,9 +669,36 @@ def _config_text(kit: _Kit) -> str:
     ]
     design = _design_lines(kit, ports_by_name)
     ports = _port_lines(kit.name, kit.guess, ports_by_name)
-    stimulus = (_VIDEO_STIMULUS if kit.guess.family == "video" else _STREAM_STIMULUS).replace(
+    stimulus = (_video_stimulus(kit.guess) if kit.guess.family == "video" else _STREAM_STIMULUS).replace(
         "{patterns_line}", _patterns_line())
     return "\n".join([*head, *design, "", *ports, "", stimulus])
+
+
+_NO_STALLS = "stalls = [0]                       # no in_valid port: the design cannot take a stall\n"
+_ENABLES = ("enables = [{ every = 2 }, { duty = 0.5, max_gap = 3 }]   # in_enable: one clock in two, and random\n")
+
+
+def _video_stimulus(guess: RoleGuess) -> str:
+    """The video ``[stimulus]``: stalls only for a design with a pixel-valid input; enable patterns for a
+    design with a clock-enable input."""
+    text = _VIDEO_STIMULUS
+    if "in_valid" not in guess.roles:
+        text = re.sub(r"stalls = .*\n", _NO_STALLS, text)
+    if "in_enable" in guess.roles:
+        text += _ENABLES
+    return text
+
+
+def _flow_guesses(guess: RoleGuess) -> list[Guess]:
+    """Which stall and enable cases the starter stimulus holds, and why."""
+    if guess.family != "video":
+        return []
+    out = [Guess("stall cases written", "in_valid is mapped") if "in_valid" in guess.roles else
+           Guess("no stall cases", "no in_valid port: a stall would be data the design takes")]
+    if "in_enable" in guess.roles:
+        out.append(Guess("enable patterns every 2nd clock and random (duty 0.5, gaps <= 3)",
+                         f"{guess.roles['in_enable']} is a clock enable: every raster sample waits for it"))
+    return out
 
 
 def _patterns_line(items: tuple[str, ...] = SCAFFOLD_PATTERNS) -> str:
@@ -779,7 +845,8 @@ def _write_kit(kit: _Kit, targets: Mapping[str, Path], keep_config: bool) -> Sca
     return ScaffoldResult(out_dir=kit.out_dir, config=targets["config"], test_module=targets["test_module"],
                           makefile=targets["makefile"], design=kit.design, guess=kit.guess, spec=kit.spec,
                           simulators=kit.simulators, notes=kit.notes,
-                          kept=[targets["config"]] if keep_config else [], wrapper=kit.wrapper_path)
+                          kept=[targets["config"]] if keep_config else [], wrapper=kit.wrapper_path,
+                          guesses=list(kit.guesses))
 
 
 def _kept_design(config_path: Path, design: HdlDesign, design_name: str | None) -> tuple[str, RoleGuess, str, list[str]]:
@@ -891,7 +958,27 @@ def scaffold(
         guess.pixels_per_clock = _lanes_for(design, guess, pixel_format)
     spec_name, reason = _choose_spec(spec, design, all_designs, src_paths, guess, notes)
     kit = _Kit(name, driven, src_paths, out, guess, spec_name, reason, sims, params, defs, notes, dirs, wrapper)
+    _read_conventions(kit, params)
     return _write_kit(kit, targets, keep_config=False)
+
+
+def _read_conventions(kit: _Kit, given: Mapping[str, Any]) -> None:
+    """Pin polarity, reset style, timing parameters and the flows the stimulus may hold, with reasons."""
+    guess = kit.guess
+    controls = [r for r in (*FAMILY_ROLES[guess.family][0], *FAMILY_ROLES[guess.family][1])
+                if r in CONTROL_ROLES and r not in ("clock", "reset")]
+    kit.polarity, kit.guesses = pin_polarity(guess.roles, controls)
+    if guess.reset_active_high is not None:
+        rst = guess.roles["reset"]
+        kit.guesses.append(Guess(f"reset {rst} active {'high' if guess.reset_active_high else 'low'}",
+                                 "its name has an active-low mark" if not guess.reset_active_high else
+                                 "no active-low mark in its name"))
+    style = reset_style(kit.sources, guess.roles.get("reset"), kit.design.language)
+    if style is not None:
+        kit.guesses.append(style)
+    free = {k: v for k, v in kit.design.parameters.items() if k not in given}
+    kit.timing_parameters, timing_guesses = timing_parameters(free)
+    kit.guesses += timing_guesses + _flow_guesses(guess)
 
 
 def parse_assignments(items: Sequence[str] | None, what: str = "parameter") -> dict[str, int | str]:

@@ -55,7 +55,7 @@ def _test_kwargs(case: Case, simcase: SimCase, case_json: Path, build_dir: Path,
         fast["test_dir"] = fast["test_dir"] or str(build_dir)
         kwargs.update(fast)
     elif case.simulator == "ghdl":
-        kwargs["parameters"] = d.build_parameters(case.width, case.height)
+        kwargs["parameters"] = case.build_parameters()
         kwargs["test_args"] = ["--std=08", f"--workdir={build_dir}"]
         kwargs["timescale"] = TIMESCALE
     if wave is not None and case.simulator == "ghdl":

@@ -74,7 +74,7 @@ def export_vectors(case: Case, out_dir: str | Path) -> ExportedCase:
     (out / "spec.toml").write_text(spec.to_toml())
     result = export_case(
         simcase, out, d.top, d.sources, expected, language=d.language,
-        parameters=d.build_parameters(case.width, case.height), defines=d.defines,
+        parameters=case.build_parameters(), defines=d.defines,
     )
     info = {
         "case": case.id, "design": d.name, "simulator": case.simulator, "tolerance_lsb": d.tolerance_lsb,

@@ -10,12 +10,13 @@ from typing import Any
 
 import numpy as np
 
-from vkit.core.vocab import components, is_rgb, sample_bits
+from vkit.core.vocab import components, sample_bits
 from vkit.video.bus import BusLayout, clock_timing, tiny_in_pixels
 from vkit.model.luma import sample_dtype
 from vkit.core.errors import ConfigError
 from vkit.core.validate import suggest
-from vkit.sim.signals import FAMILY_ROLES, SignalMap
+from vkit.sim.signals import FAMILY_ROLES, SYNC_ROLES, SignalMap
+from vkit.video.enables import EnablePattern
 from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.timing import StallPattern, VideoTiming
 from vkit.video.words import BLANKING_MODES
@@ -99,6 +100,10 @@ class SimCase:
             stay in pixels.
         lane_order: "first_low" (the first pixel of a clock's group in the least significant lane) or
             "first_high".
+        enable: the input clock-enable pattern (:meth:`EnablePattern.to_dict`), or None: every clock is a
+            sample. Needs the ``in_enable`` role; video family only.
+        polarity: role -> True when that pin is active high, for the pins whose polarity is given; the
+            others are active high, except syncs, which follow the timing (:meth:`active_high`).
     """
 
     family: str
@@ -127,6 +132,8 @@ class SimCase:
     component_order: str = "RGB"
     pixels_per_clock: int = 1
     lane_order: str = "first_low"
+    enable: dict[str, Any] | None = None
+    polarity: dict[str, bool] = field(default_factory=dict)
     _frames_cache: np.ndarray | None = field(default=None, init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -149,6 +156,10 @@ class SimCase:
         if self.family != "stream" and (self.stream_gaps or self.backpressure):
             raise ConfigError("case stream_gaps/backpressure apply to the stream family; use stalls for video")
         SignalMap(dict(self.signals), self.family)
+        if self.enable is not None and (self.family != "video" or "in_enable" not in self.signals):
+            raise ConfigError("case enable: an input enable pattern needs the video family and the 'in_enable' "
+                              "role; map in_enable to the design's clock-enable port or drop the pattern")
+        self.enable_pattern()
         self.stall_pattern()
         self.gap_pattern()
         self.backpressure_pattern()
@@ -188,6 +199,28 @@ class SimCase:
     def stall_pattern(self) -> StallPattern | None:
         """Video stalls as a :class:`StallPattern`, or None."""
         return _pattern(self.stalls, "case stalls")
+
+    def enable_pattern(self) -> EnablePattern | None:
+        """The input clock-enable pattern, or None (every clock takes a sample)."""
+        if self.enable is None:
+            return None
+        return EnablePattern.from_dict(self.enable, "case enable")
+
+    def active_high(self, role: str) -> bool:
+        """True when the pin of ``role`` is active high: as given in :attr:`polarity`; else the reset as
+        :attr:`reset_active_high` says, the syncs as the video timing says, every other pin active high."""
+        if role == "reset":
+            return bool(self.reset_active_high)
+        if role in self.polarity:
+            return bool(self.polarity[role])
+        if role in SYNC_ROLES and self.family == "video":
+            t = self.video_timing()
+            return bool(t.hsync_active_high if role.endswith("hsync") else t.vsync_active_high)
+        return True
+
+    def pin_polarity(self, roles: tuple[str, ...]) -> dict[str, bool]:
+        """role -> :meth:`active_high` for each of ``roles``."""
+        return {role: self.active_high(role) for role in roles}
 
     def gap_pattern(self) -> StallPattern | None:
         """Stream source gaps as a :class:`StallPattern`, or None."""
@@ -234,7 +267,9 @@ class SimCase:
             extra = 0.0
             if stall is not None:
                 extra = n * t.active_pixels * stall.probability * (stall.max_length + 1) / 2
-            return int(base + extra)
+            enable = self.enable_pattern()
+            per_sample = enable.mean_clocks_per_sample() if enable is not None else 1.0
+            return int((base + extra) * per_sample)
         pixels = n * self.width * self.height
         factor = 1.0
         for pat in (self.gap_pattern(), self.backpressure_pattern()):

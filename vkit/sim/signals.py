@@ -13,6 +13,8 @@ from vkit.video.formats import PIXEL_FORMAT_BITS, pixel_bits
 __all__ = [
     "FAMILY_ROLES",
     "CONTROL_ROLES",
+    "POLARITY_GROUPS",
+    "SYNC_ROLES",
     "PIXEL_FORMAT_BITS",
     "SignalMap",
     "dut_port_names",
@@ -22,7 +24,7 @@ __all__ = [
 FAMILY_ROLES: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
     "video": (
         ("clock", "in_vsync", "in_hsync", "in_de", "in_data", "out_de", "out_data"),
-        ("reset", "in_valid", "out_valid", "out_vsync", "out_hsync"),
+        ("reset", "in_valid", "out_valid", "out_vsync", "out_hsync", "in_enable", "out_enable"),
     ),
     "stream": (
         (
@@ -61,9 +63,25 @@ CONTROL_ROLES = frozenset(
         "out_ready",
         "out_sof",
         "out_eol",
+        "in_enable",
+        "out_enable",
     }
 )
 """Roles that must be 1-bit ports."""
+
+SYNC_ROLES: tuple[str, ...] = ("in_hsync", "in_vsync", "out_hsync", "out_vsync")
+"""Sync pins: unless their polarity is given, they follow the video timing's sync polarity."""
+
+POLARITY_GROUPS: dict[str, tuple[str, ...]] = {
+    "syncs": SYNC_ROLES,
+    "in_syncs": ("in_hsync", "in_vsync"),
+    "out_syncs": ("out_hsync", "out_vsync"),
+    "de": ("in_de", "out_de"),
+    "valid": ("in_valid", "out_valid"),
+    "enable": ("in_enable", "out_enable"),
+    "reset": ("reset",),
+}
+"""Words of a design's ``port_polarity`` table that name several pins at once (each role name works too)."""
 
 def _is_value_handle(handle: Any) -> bool:
     """True for handles that carry a value (nets, regs, ports), False for scopes and instances."""

@@ -55,6 +55,9 @@ class RunFacts:
     """Pixels the data buses carried a clock (the capture holds one sample a pixel); None: one."""
     out_data_bits: int | None = None
     """Width of the output data word, bits (all lanes of it)."""
+    latency_samples: int | None = None
+    """Input samples (enabled input clocks) from the first input pixel to the first output pixel, samples;
+    equals ``latency_clocks`` for a design without a clock enable."""
     clocks_run: int | None = None
     """Clocks the run lasted, clocks."""
     timed_out: bool = False
@@ -75,8 +78,16 @@ class RunFacts:
     """Vsync pulses the design emitted, pulses."""
     input_hsync_per_frame: list[int] | None = None
     """Hsync pulses the source drove in each frame, pulses."""
+    input_first_vsync_clock: int | None = None
+    """Clock of the source's first vsync leading edge, clocks."""
+    input_first_hsync_clock: int | None = None
+    """Clock of the source's first hsync leading edge, clocks."""
     output_hsync_per_frame: list[int] | None = None
     """Hsync pulses the design emitted in each frame, pulses."""
+    output_vsync_clocks: list[int] | None = None
+    """Clock of every output vsync leading edge, clocks (None: not recorded, an older capture)."""
+    output_hsync_clocks: list[int] | None = None
+    """Clock of every output hsync leading edge, clocks (None: not recorded, an older capture)."""
     stall_pixels: list[list[int]] = field(default_factory=list)
     """``[frame, y, x]`` of each input pixel that came right after a stall."""
     backpressure_pixels: list[list[int]] = field(default_factory=list)

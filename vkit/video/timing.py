@@ -9,6 +9,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from vkit.core.errors import ConfigError
+from vkit.video.enables import EnablePattern
 
 __all__ = [
     "VideoTiming",
@@ -311,6 +312,10 @@ class ClockSchedule:
         n_clocks: number of clocks.
         stall_pixels: ``(n, 3)`` int32 rows of (frame, y, x) of the pixels that came right after a
             stall, in transfer order; empty without stalls.
+        enable: the input clock enable of every clock, bool; None when every clock takes a sample (no
+            enable pattern). With a pattern, the clocks before each enabled clock repeat that sample's
+            levels (syncs, data-enable, valid) and carry ``x = y = -1``: the sample is taken on its
+            enabled clock only.
     """
 
     timing: VideoTiming
@@ -324,13 +329,25 @@ class ClockSchedule:
     frame: np.ndarray
     n_clocks: int
     stall_pixels: np.ndarray
+    enable: np.ndarray | None = None
+
+    @property
+    def enabled(self) -> np.ndarray:
+        """The input enable of every clock (all True without an enable pattern), bool."""
+        return self.enable if self.enable is not None else np.ones(self.n_clocks, bool)
+
+    @property
+    def taken(self) -> np.ndarray:
+        """Clocks on which the design takes a pixel: an enabled clock with a pixel on the bus, bool."""
+        return self.x >= 0
 
     def frame_starts(self) -> np.ndarray:
         """Index of the first clock of each frame, int64 array of length ``frames``."""
         return np.flatnonzero(np.diff(self.frame, prepend=-1) != 0)
 
 
-def schedule(timing: VideoTiming, frames: int = 1, stalls: StallPattern | None = None) -> ClockSchedule:
+def schedule(timing: VideoTiming, frames: int = 1, stalls: StallPattern | None = None,
+             enable: EnablePattern | None = None) -> ClockSchedule:
     """Build the per-clock drive schedule for ``frames`` frames of ``timing``.
 
     Frames follow each other with no gap; each starts at its first active line (back porch lines
@@ -341,6 +358,9 @@ def schedule(timing: VideoTiming, frames: int = 1, stalls: StallPattern | None =
         timing: the video timing.
         frames: number of frames, >= 1.
         stalls: optional stall pattern; None or probability 0 gives ``valid == de``.
+        enable: optional clock-enable pattern (:class:`~vkit.video.enables.EnablePattern`): every raster
+            sample (blanking included, stall clocks included) is held for its gap of disabled clocks and
+            taken on the enabled clock that ends it.
 
     Returns:
         The :class:`ClockSchedule`.
@@ -355,6 +375,9 @@ def schedule(timing: VideoTiming, frames: int = 1, stalls: StallPattern | None =
         lv = _stretch(lv, lengths)
         f_idx, y_idx, x_idx = np.nonzero(lengths)
         stall_pixels = np.stack([f_idx, y_idx, x_idx], axis=1).astype(np.int32)
+    ce = None
+    if enable is not None:
+        lv, ce = _hold_for_enable(lv, enable.gaps(int(lv["de"].size)))
     hs = lv["hs"] if t.hsync_active_high else ~lv["hs"]
     vs = lv["vs"] if t.vsync_active_high else ~lv["vs"]
     return ClockSchedule(
@@ -369,6 +392,7 @@ def schedule(timing: VideoTiming, frames: int = 1, stalls: StallPattern | None =
         frame=lv["fr"],
         n_clocks=int(lv["de"].size),
         stall_pixels=stall_pixels,
+        enable=ce,
     )
 
 
@@ -412,3 +436,17 @@ def _stretch(lv: dict[str, np.ndarray], lengths: np.ndarray) -> dict[str, np.nda
         out[k] = np.full(src.size, -1, dtype=np.int32)
         out[k][ends - 1] = lv[k]
     return out
+
+
+def _hold_for_enable(lv: dict[str, np.ndarray], gaps: np.ndarray) -> tuple[dict[str, np.ndarray], np.ndarray]:
+    """Hold each sample for ``gaps[i]`` disabled clocks before its enabled clock; returns (levels, enable)."""
+    counts = 1 + gaps.astype(np.int64)
+    src = np.repeat(np.arange(counts.size, dtype=np.int64), counts)
+    ends = np.cumsum(counts) - 1
+    out = {k: lv[k][src] for k in ("de", "hs", "vs", "fr", "valid")}
+    ce = np.zeros(src.size, dtype=bool)
+    ce[ends] = True
+    for k in ("x", "y"):
+        out[k] = np.full(src.size, -1, dtype=np.int32)
+        out[k][ends] = lv[k]
+    return out, ce

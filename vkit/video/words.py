@@ -23,6 +23,10 @@ __all__ = [
     "leading_edges",
     "sync_counts",
     "video_input_facts",
+    "INPUT_LEVEL_ROLES",
+    "input_levels",
+    "idle_levels",
+    "samples_between",
     "StreamTransfers",
     "stream_transfers",
     "ready_chunk",
@@ -77,7 +81,66 @@ def video_data_words(
         words[stall] = garbage[stall]
     pix = sched.x >= 0
     words[pix] = layout.bus_words(frames)[sched.frame[pix], sched.y[pix], sched.x[pix]]
+    if sched.enable is not None:
+        # a clock-enabled source holds each sample from the clock after the previous enable to its own
+        words = words[_next_enabled(sched.enable)]
     return words
+
+
+def _next_enabled(enable: np.ndarray) -> np.ndarray:
+    """For every clock, the index of the first enabled clock at or after it (the last clock is enabled)."""
+    on = np.flatnonzero(enable)
+    return on[np.searchsorted(on, np.arange(enable.size))]
+
+
+INPUT_LEVEL_ROLES: tuple[str, ...] = ("in_hsync", "in_vsync", "in_de", "in_valid", "in_enable")
+"""The input control roles whose pin levels :func:`input_levels` gives."""
+
+
+def input_levels(sched: ClockSchedule, active_high: dict[str, bool]) -> dict[str, np.ndarray]:
+    """The level on each input control pin on every clock, with the pin's own polarity.
+
+    The schedule's syncs carry the timing's polarity (what the video standard puts on the wire); a pin
+    that is active high is high during the pulse whatever the timing says, an active-low pin low.
+
+    Args:
+        sched: the schedule.
+        active_high: role -> True when the pin is active high, for every role of :data:`INPUT_LEVEL_ROLES`.
+
+    Returns:
+        role -> bool level array of length ``sched.n_clocks``.
+    """
+    t = sched.timing
+    asserted = {
+        "in_hsync": sched.hsync == t.hsync_active_high,
+        "in_vsync": sched.vsync == t.vsync_active_high,
+        "in_de": sched.de,
+        "in_valid": sched.valid,
+        "in_enable": sched.enabled,
+    }
+    return {role: on if active_high[role] else ~on for role, on in asserted.items()}
+
+
+def idle_levels(active_high: dict[str, bool]) -> dict[str, bool]:
+    """The input pins' levels while no schedule plays (reset, drain): syncs, data-enable and valid
+    inactive, the enable active (a clock-enabled design keeps flushing its pipeline)."""
+    return {role: (role == "in_enable") == active_high[role] for role in INPUT_LEVEL_ROLES}
+
+
+def samples_between(enable: np.ndarray | None, first: int | None, last: int | None) -> int | None:
+    """Enabled input clocks in ``[first, last)``: a latency in samples; None when either end is unknown.
+
+    Without an enable pattern (``enable`` None) every clock is a sample and this is ``last - first``; past
+    the end of the schedule the enable stays high (the source leaves it on while the design drains).
+    """
+    if first is None or last is None:
+        return None
+    first, last = int(first), int(last)
+    if enable is None:
+        return last - first
+    lo, hi = max(0, first), max(0, last)
+    inside = int(np.count_nonzero(enable[lo:min(hi, enable.size)]))
+    return inside + max(0, hi - max(lo, enable.size))
 
 
 def leading_edges(level: np.ndarray, active: bool) -> np.ndarray:
@@ -94,7 +157,7 @@ def sync_counts(hsync_edges: np.ndarray, vsync_edges: np.ndarray) -> list[int]:
     ``k = 0``) and before vsync leading edge ``k``; hsync pulses after the last vsync are not listed. The
     monitor counts its output the same way, so input and output lists compare entry by entry.
     """
-    bounds = np.searchsorted(hsync_edges, vsync_edges, side="left")
+    bounds = np.searchsorted(np.asarray(hsync_edges, np.int64), np.asarray(vsync_edges, np.int64), side="left")
     return [int(b) for b in np.diff(np.concatenate(([0], bounds)))]
 
 
@@ -107,10 +170,12 @@ def video_input_facts(sched: ClockSchedule, lanes: int = 1) -> dict[str, object]
     hs_edges = leading_edges(sched.hsync, t.hsync_active_high)
     return {
         "frames_sent": int(sched.frames),
-        "first_input_clock": int(np.argmax(sched.valid)) if sched.valid.any() else None,
+        "first_input_clock": int(np.argmax(sched.taken)) if sched.taken.any() else None,
         "stall_pixels": (sched.stall_pixels * np.array([1, 1, lanes])).tolist() if lanes > 1 else sched.stall_pixels.tolist(),
         "input_vsync_count": int(vs_edges.size),
         "input_hsync_per_frame": sync_counts(hs_edges, vs_edges),
+        "input_first_vsync_clock": int(vs_edges[0]) if vs_edges.size else None,
+        "input_first_hsync_clock": int(hs_edges[0]) if hs_edges.size else None,
     }
 
 

@@ -197,6 +197,7 @@ def fast_build_plan(
     out_dir: str | Path | None = None,
     reset_active_high: bool = True,
     pixel_format: str | None = None,
+    out_active_high: Mapping[str, bool] | None = None,
     include_dirs: Sequence[str | Path] = (),
 ) -> HarnessBuild:
     """Write the fast-path harness for a design and describe the one build every case runs on.
@@ -219,6 +220,7 @@ def fast_build_plan(
             under the system temp folder.
         reset_active_high: polarity of the design's reset.
         pixel_format: "gray8" or "rgb888", only used when ``in_width`` cannot be read.
+        out_active_high: polarity of the ``out_de``, ``out_valid``, ``out_enable`` pins (left out: active high).
         include_dirs: folders the design's `include lines search (to read its port widths).
 
     Raises:
@@ -235,7 +237,8 @@ def fast_build_plan(
     iw, ow = _bus_widths(dut_top, srcs, roles, params, defs, in_width, out_width, pixel_format,
                          [Path(p) for p in include_dirs])
     spec = HarnessSpec(family=family, dut_top=dut_top, roles=roles, in_width=iw, out_width=ow,
-                       reset_active_high=bool(reset_active_high), parameters=params)
+                       reset_active_high=bool(reset_active_high), parameters=params,
+                       out_active_high=dict(out_active_high or {}))
     text = vhdl_harness(spec) if language == "vhdl" else verilog_harness(spec)
     build_args, test_args = _simulator_args(language, defs)
     key = _build_key(text, defs, build_args, srcs)
@@ -268,6 +271,7 @@ def harness_sources(
     return fast_build_plan(
         dut_top, sources, language, parameters, defines, case.family, case.signals, in_width, out_width,
         out_dir=out_dir, reset_active_high=case.reset_active_high, pixel_format=case.pixel_format,
+        out_active_high={r: case.active_high(r) for r in ("out_de", "out_valid", "out_enable")},
     )
 
 

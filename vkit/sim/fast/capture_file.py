@@ -43,6 +43,8 @@ from vkit.sim.fast.stimulus import StimulusFiles, write_stimulus
 from vkit.sim.fast.wire import CAPTURE_MAGIC, CAPTURE_ROLES, CAPTURE_VERSION, FAMILY_CODES, capture_data_words
 from vkit.video.bus import unpack_capture
 from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, RunFacts
+from vkit.video.timing import schedule
+from vkit.video.words import samples_between
 
 __all__ = [
     "TEXT_HEADER",
@@ -231,6 +233,8 @@ class _Events:
     xz_control: list[list[Any]] = field(default_factory=list)
     de_in_blanking: list[int] = field(default_factory=list)
     hsync_per_frame: list[int] = field(default_factory=list)
+    vsync_clocks: list[int] = field(default_factory=list)
+    hsync_clocks: list[int] = field(default_factory=list)
     counts: dict[str, int] = field(default_factory=lambda: {"xz_control": 0, "de_in_blanking": 0})
     vsync_count: int = 0
     hs_count: int = 0
@@ -254,10 +258,12 @@ def _scan_events(family: str, clock_all: np.ndarray, kind_a: np.ndarray, pos_p: 
         kind = chr(kind_a[i])
         if kind == "F" and family == "video":
             ev.vsync_count += 1
+            ev.vsync_clocks.append(int(clock_all[i]))
             ev.hsync_per_frame.append(ev.hs_count)
             ev.hs_count = 0
         elif kind == "H":
             ev.hs_count += 1
+            ev.hsync_clocks.append(int(clock_all[i]))
         elif kind == "B":
             ev.bounded("de_in_blanking", int(clock_all[i]))
         elif kind == "X":
@@ -301,6 +307,8 @@ def _fill_facts(cap: Capture, family: str, ev: _Events, xz_data: int, clock_all:
         f.de_in_blanking = ev.de_in_blanking
         f.output_vsync_count = ev.vsync_count
         f.output_hsync_per_frame = ev.hsync_per_frame
+        f.output_vsync_clocks = ev.vsync_clocks
+        f.output_hsync_clocks = ev.hsync_clocks
     if family == "stream":
         f.backpressure_pixels = [[int(cap.frame[i]), int(cap.line[i]), int(cap.column[i])]
                                  for i in ev.waited_next if i < k]
@@ -483,4 +491,10 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
             raise ConfigError(f"capture file {str(path)!r} does not name its data width, which {bus.lanes} pixels a clock "
                               "need to split the words; rebuild the harness with this vkit")
         cap = unpack_capture(cap, bus, cap.facts.out_data_bits)
+    if case.family == "video":
+        pattern = case.enable_pattern()
+        enable = None
+        if pattern is not None:
+            enable = schedule(case.video_timing(), case.frame_count(), case.stall_pattern(), pattern).enable
+        cap.facts.latency_samples = samples_between(enable, cap.facts.first_input_clock, cap.facts.first_output_clock)
     return cap

@@ -46,8 +46,10 @@ __all__ = ["HarnessSpec", "verilog_harness", "vhdl_harness"]
 
 _IDENT = r"[A-Za-z_][A-Za-z0-9_$]*"
 
-_VIDEO_IN = ("in_hsync", "in_vsync", "in_de", "in_valid", "in_data")
-_VIDEO_OUT = ("out_vsync", "out_hsync", "out_de", "out_valid", "out_data")
+_VIDEO_IN = ("in_hsync", "in_vsync", "in_de", "in_valid", "in_enable", "in_data")
+_VIDEO_OUT = ("out_vsync", "out_hsync", "out_de", "out_valid", "out_enable", "out_data")
+_OUT_LEVEL_ROLES = ("out_de", "out_valid", "out_enable")
+"""Output pins whose polarity is built into the harness text (the syncs' polarity is given at run time)."""
 _STREAM_IN = ("in_valid", "in_data", "in_sof", "in_eol", "out_ready")
 _STREAM_OUT = ("in_ready", "out_valid", "out_data", "out_sof", "out_eol")
 
@@ -69,6 +71,8 @@ class HarnessSpec:
         reset_active_high: polarity of the design's reset port.
         parameters: design parameter/generic overrides, name -> value (int, or a string: a
             Verilog string literal with its own quotes, or a bare string that gets quoted).
+        out_active_high: polarity of the ``out_de``, ``out_valid`` and ``out_enable`` pins (left out: active
+            high). The input pins' levels come with the stimulus, the output syncs' polarity at run time.
     """
 
     family: str
@@ -78,6 +82,7 @@ class HarnessSpec:
     out_width: int
     reset_active_high: bool = True
     parameters: dict[str, Any] = field(default_factory=dict)
+    out_active_high: dict[str, bool] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         if self.family not in FAMILY_CODES:
@@ -100,6 +105,10 @@ class HarnessSpec:
     def video(self) -> bool:
         """True for the video family."""
         return self.family == "video"
+
+    def out_level(self, role: str) -> bool:
+        """The asserted level of output pin ``role`` (True = high)."""
+        return bool(self.out_active_high.get(role, True))
 
 
 # ----------------------------------------------------------------------------------------------
@@ -161,16 +170,21 @@ def _verilog_ports(spec: HarnessSpec) -> tuple[list[str], list[dict[str, Any]], 
         decl.append({"role": role, "is_in": role in ins, "range": f"[{w - 1}:0] " if w > 1 or role.endswith("data") else ""})
     tie = []
     if spec.video:
-        tie = [(role, value) for role, value in (("out_valid", "1'b1"), ("out_vsync", "~vs_on"), ("out_hsync", "~hs_on"))
-               if role not in r]
+        ties = (("out_valid", _v_bit(spec.out_level("out_valid"))), ("out_enable", _v_bit(spec.out_level("out_enable"))),
+                ("out_vsync", "~vs_on"), ("out_hsync", "~hs_on"))
+        tie = [(role, value) for role, value in ties if role not in r]
     return conns, decl, tie
+
+
+def _v_bit(level: bool) -> str:
+    return "1'b1" if level else "1'b0"
 
 
 def _word_bits(spec: HarnessSpec) -> dict[str, int]:
     """Bit positions in the stimulus word that the player reads (from :mod:`vkit.sim.fast.wire`)."""
     iw = spec.in_width
     if spec.video:
-        return {flag: video_bit(flag, iw) for flag in ("valid", "de", "vsync", "hsync", "frame_mark")}
+        return {flag: video_bit(flag, iw) for flag in ("valid", "de", "vsync", "hsync", "frame_mark", "enable")}
     return {"eol": iw, "sof": iw + 1, "gap_lo": iw + 2, "gap_hi": iw + 1 + GAP_BITS,
             "idle_lo": iw + 2 + GAP_BITS, "idle_hi": 2 * iw + 1 + GAP_BITS}
 
@@ -208,6 +222,7 @@ def verilog_harness(spec: HarnessSpec) -> str:
         reset_active_high=spec.reset_active_high, decl=decl, tie=tie, params=params, conns=conns,
         magic=CAPTURE_MAGIC, version=CAPTURE_VERSION, family_code=FAMILY_CODES[spec.family], gap_bits=GAP_BITS,
         stream_tail=STREAM_TAIL_CLOCKS, bit=_word_bits(spec), ev=_event_writer(capture_data_words(ow), ow), vx=_v_x,
+        on={role: _v_bit(spec.out_level(role)) for role in _OUT_LEVEL_ROLES},
     )
 
 
@@ -241,8 +256,10 @@ def _vhdl_ports(spec: HarnessSpec) -> tuple[list[str], list[tuple[str, str]], li
             conns.append(f"{r[role]} => d_{role}")
     ties = []
     if spec.video:
-        ties = [(role, value) for role, value in (("out_valid", "'1'"), ("out_vsync", "not vs_on"),
-                                                  ("out_hsync", "not hs_on")) if role not in r]
+        level = {role: "'1'" if spec.out_level(role) else "'0'" for role in _OUT_LEVEL_ROLES}
+        ties = [(role, value) for role, value in (("out_valid", level["out_valid"]), ("out_enable", level["out_enable"]),
+                                                  ("out_vsync", "not vs_on"), ("out_hsync", "not hs_on"))
+                if role not in r]
     return conns, sigs, ties
 
 
@@ -272,4 +289,5 @@ def vhdl_harness(spec: HarnessSpec) -> str:
         return render("harness_stream.vhd.j2", sw=8 * word_bytes(stream_word_bits(iw)), ready_words=READY_WORDS,
                       stream_tail=STREAM_TAIL_CLOCKS, **common)
     sw = video_word_bits(iw)
-    return render("harness.vhd.j2", sw=sw, hexw=4 * ((sw + 3) // 4), ties=ties, **common)
+    return render("harness.vhd.j2", sw=sw, hexw=4 * ((sw + 3) // 4), ties=ties,
+                  on={role: "'1'" if spec.out_level(role) else "'0'" for role in _OUT_LEVEL_ROLES}, **common)

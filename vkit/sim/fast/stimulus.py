@@ -30,7 +30,15 @@ from vkit.sim.fast.wire import (
     word_bytes,
 )
 from vkit.video.timing import ClockSchedule, schedule
-from vkit.video.words import StreamTransfers, ready_levels, stream_transfers, video_data_words, video_input_facts
+from vkit.video.words import (
+    INPUT_LEVEL_ROLES,
+    StreamTransfers,
+    idle_levels,
+    ready_levels,
+    stream_transfers,
+    video_data_words,
+    video_input_facts,
+)
 
 __all__ = [
     "StimulusFiles",
@@ -76,15 +84,16 @@ def stimulus_words_needed(case: SimCase) -> int:
         return n * case.width * case.height // case.pixels_per_clock
     t = case.video_timing()
     stalls = case.stall_pattern()
-    if stalls is None or stalls.probability == 0:
+    enable = case.enable_pattern()
+    if (stalls is None or stalls.probability == 0) and enable is None:
         return n * t.clocks_per_frame
-    return schedule(t, n, stalls).n_clocks
+    return schedule(t, n, stalls, enable).n_clocks
 
 
 def video_schedule_and_words(case: SimCase) -> tuple[ClockSchedule, np.ndarray]:
     """The per-clock schedule and data-bus word of every clock, as the per-clock source drives them."""
     frames = case.load_frames()
-    sched = schedule(case.video_timing(), int(frames.shape[0]), case.stall_pattern())
+    sched = schedule(case.video_timing(), int(frames.shape[0]), case.stall_pattern(), case.enable_pattern())
     words = video_data_words(sched, frames, case.bus_layout(), blanking=case.blanking,
                              blanking_value=case.blanking_value, seed=case.seed)
     return sched, words
@@ -190,7 +199,9 @@ class StimulusFiles:
             stall_pixels, input_vsync_count, input_hsync_per_frame).
         ready_levels: stream ready pattern (bool array), for the back-pressure pixels; None for video.
         language: "verilog" (binary stimulus) or "vhdl" (hex stimulus).
-        hsync_active_high / vsync_active_high: sync polarity of the timing (video).
+        hsync_active_high / vsync_active_high: polarity of the output sync pins (video).
+        idle: the input pins' levels while nothing plays, as a bit mask (bit 0 hsync, 1 vsync, 2 data-enable,
+            3 valid, 4 enable; :func:`vkit.video.words.idle_levels`), video.
     """
 
     stim: Path
@@ -205,12 +216,14 @@ class StimulusFiles:
     language: str = "verilog"
     hsync_active_high: bool = True
     vsync_active_high: bool = True
+    idle: int = 0b10000
 
     def plusargs(self, capture: str | Path) -> list[str]:
         """Verilog plusargs for ``vkit_harness`` (capture file path included)."""
         args = [f"+vkit_stim={self.stim}", f"+vkit_capture={capture}", f"+vkit_drain={self.drain}",
                 f"+vkit_timeout={self.timeout}", f"+vkit_expect={self.expect_pixels}",
-                f"+vkit_hs_high={int(self.hsync_active_high)}", f"+vkit_vs_high={int(self.vsync_active_high)}"]
+                f"+vkit_hs_high={int(self.hsync_active_high)}", f"+vkit_vs_high={int(self.vsync_active_high)}",
+                f"+vkit_idle={self.idle}"]
         if self.ready is not None:
             args += [f"+vkit_ready={self.ready}", f"+vkit_ready_words={self.ready_words}"]
         return args
@@ -222,7 +235,7 @@ class StimulusFiles:
         if self.ready is not None:  # stream
             return {**common, "READY_FILE": str(self.ready), "RWORDS": self.ready_words, "EXPECT": self.expect_pixels}
         return {**common, "DEPTH": max(1, self.words), "HS_HIGH": int(self.hsync_active_high),
-                "VS_HIGH": int(self.vsync_active_high)}
+                "VS_HIGH": int(self.vsync_active_high), "IDLE": self.idle}
 
     def to_json(self, key: str) -> str:
         """The description :func:`read_fast_run` reads back, for the case fingerprint ``key``."""
@@ -231,7 +244,7 @@ class StimulusFiles:
             "paths": {"stim": str(self.stim), "ready": str(self.ready) if self.ready else None},
             "words": self.words, "ready_words": self.ready_words, "drain": self.drain, "timeout": self.timeout,
             "expect_pixels": self.expect_pixels, "input_meta": self.input_meta, "language": self.language,
-            "hs_high": self.hsync_active_high, "vs_high": self.vsync_active_high,
+            "hs_high": self.hsync_active_high, "vs_high": self.vsync_active_high, "idle": self.idle,
         })
 
 
@@ -240,7 +253,8 @@ def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout
     if in_width > MAX_IN_WIDTH:
         raise ConfigError(f"stimulus: input data width {in_width} bits is too wide for the player (max {MAX_IN_WIDTH})")
     sched, data = video_schedule_and_words(case)
-    fields = video_word_fields(sched, data, in_width)
+    pins = case.pin_polarity(INPUT_LEVEL_ROLES)
+    fields = video_word_fields(sched, data, in_width, pins)
     if language == "vhdl":
         stim = write_hex(out / "stim.hex", pack_fields(fields), video_word_bits(in_width))
     else:
@@ -248,10 +262,11 @@ def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout
     meta = video_input_facts(sched, case.pixels_per_clock)
     first = meta["first_input_clock"]
     timeout = int(timeout_rel) + (first or 0) if timeout_rel else 0
-    t = sched.timing
+    idle = idle_levels(pins)
     return StimulusFiles(stim, None, int(sched.n_clocks), 1, drain_clocks(case), timeout,
                          int(sched.frames) * case.width * case.height // case.pixels_per_clock, meta, None, language,
-                         bool(t.hsync_active_high), bool(t.vsync_active_high))
+                         case.active_high("out_hsync"), case.active_high("out_vsync"),
+                         sum(int(idle[r]) << i for i, r in enumerate(INPUT_LEVEL_ROLES)))
 
 
 def _write_stream(case: SimCase, out: Path, in_width: int, language: str, timeout_rel: int | None) -> StimulusFiles:
@@ -357,11 +372,12 @@ def read_fast_run(case: SimCase, key: str | None = None) -> StimulusFiles | None
     paths = {k: Path(v) if v else None for k, v in data["paths"].items()}
     return StimulusFiles(paths["stim"], paths["ready"], data["words"], data["ready_words"], data["drain"],
                          data["timeout"], data["expect_pixels"], data["input_meta"], ready, data["language"],
-                         data["hs_high"], data["vs_high"])
+                         data["hs_high"], data["vs_high"], data.get("idle", 0b10000))
 
 
 _KEY_FIELDS = ("family", "frames_file", "width", "height", "pixel_format", "timing", "stalls", "stream_gaps",
-               "backpressure", "blanking", "blanking_value", "seed", "timeout_clocks")
+               "backpressure", "blanking", "blanking_value", "seed", "timeout_clocks", "enable", "polarity",
+               "reset_active_high")
 """The case fields that shape the stimulus."""
 
 

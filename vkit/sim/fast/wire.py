@@ -3,8 +3,9 @@
 The bottom of the fast path: the stimulus writer, the HDL generators and the capture reader all take
 their bit positions and sizes from here.
 
-Video stimulus word, MSB first: ``{frame_mark, hsync, vsync, de, valid, data[IW-1:0]}`` (one per clock;
-``frame_mark`` is 1 on the first clock of each frame and only drives the harness's ``frame_pulse``).
+Video stimulus word, MSB first: ``{enable, frame_mark, hsync, vsync, de, valid, data[IW-1:0]}`` (one per
+clock; the control bits are pin levels, each pin's polarity applied; ``frame_mark`` is 1 on the first clock
+of each frame and only drives the harness's ``frame_pulse``).
 Stream stimulus word, MSB first: ``{idle_data[IW-1:0], gap[GAP_BITS-1:0], sof, eol, data[IW-1:0]}`` (one
 per transfer: ``gap`` idle clocks driving ``idle_data`` before the transfer). Binary stimulus files hold
 big-endian words of :func:`word_bytes` bytes (``$fread``); hex files one word per line (``$readmemh``).
@@ -21,7 +22,7 @@ from __future__ import annotations
 import numpy as np
 
 from vkit.video.timing import ClockSchedule
-from vkit.video.words import StreamTransfers
+from vkit.video.words import StreamTransfers, input_levels
 
 __all__ = [
     "HARNESS",
@@ -55,7 +56,7 @@ TOPLEVEL = "vkit_fast_top"
 """Name of the self-clocked wrapper around :data:`HARNESS`: the simulation toplevel on the fast path."""
 
 MAX_IN_WIDTH = 58
-"""Widest input data bus the player takes: a video word (data + 5 flag bits) must fit 64 bits (numpy uint64)."""
+"""Widest input data bus the player takes: a video word (data + 6 flag bits) must fit 64 bits (numpy uint64)."""
 
 GAP_BITS = 16
 """Bits of the idle-gap count in a stream word (longest gap: 65535 clocks)."""
@@ -72,7 +73,7 @@ CAPTURE_MAGIC = 0x42434B56
 CAPTURE_VERSION = 1
 """Binary capture format version (second header word)."""
 
-CAPTURE_ROLES = ("", "out_de", "out_valid", "out_vsync", "out_hsync", "in_ready", "out_sof", "out_eol")
+CAPTURE_ROLES = ("", "out_de", "out_valid", "out_vsync", "out_hsync", "in_ready", "out_sof", "out_eol", "out_enable")
 """Role names of the X events in a binary capture, by code (record byte 5)."""
 
 CAPTURE_BIN_NAME = "capture.bin"
@@ -84,17 +85,17 @@ CAPTURE_TEXT_NAME = "capture.txt"
 FAMILY_CODES = {"video": 0, "stream": 1}
 """Family code in the third word of a binary capture header."""
 
-_VIDEO_FLAGS = ("valid", "de", "vsync", "hsync", "frame_mark")
+_VIDEO_FLAGS = ("valid", "de", "vsync", "hsync", "frame_mark", "enable")
 """The flag bits above the data in a video word, least significant first."""
 
 
 def video_bit(flag: str, in_width: int) -> int:
-    """Bit position of ``flag`` ("valid", "de", "vsync", "hsync", "frame_mark") in a video word."""
+    """Bit position of ``flag`` ("valid", "de", "vsync", "hsync", "frame_mark", "enable") in a video word."""
     return in_width + _VIDEO_FLAGS.index(flag)
 
 
 def video_word_bits(in_width: int) -> int:
-    """Bits of one video stimulus word: data plus valid, de, vsync, hsync and the frame mark."""
+    """Bits of one video stimulus word: data plus valid, de, vsync, hsync, the frame mark and the enable."""
     return in_width + len(_VIDEO_FLAGS)
 
 
@@ -123,11 +124,21 @@ def capture_file_name(language: str) -> str:
     return CAPTURE_TEXT_NAME if language == "vhdl" else CAPTURE_BIN_NAME
 
 
-def video_word_fields(sched: ClockSchedule, data: np.ndarray, in_width: int) -> list[tuple[np.ndarray, int]]:
-    """The video word of every clock as ``(values, bits)`` fields, least significant first."""
+def video_word_fields(sched: ClockSchedule, data: np.ndarray, in_width: int,
+                      active_high: dict[str, bool] | None = None) -> list[tuple[np.ndarray, int]]:
+    """The video word of every clock as ``(values, bits)`` fields, least significant first.
+
+    ``active_high`` gives the input pins' polarity (:func:`vkit.video.words.input_levels`); None: syncs as
+    the timing says, the rest active high.
+    """
     mark = np.zeros(sched.n_clocks, bool)
     mark[sched.frame_starts()] = True
-    flags = {"valid": sched.valid, "de": sched.de, "vsync": sched.vsync, "hsync": sched.hsync, "frame_mark": mark}
+    t = sched.timing
+    polarity = active_high or {"in_hsync": t.hsync_active_high, "in_vsync": t.vsync_active_high, "in_de": True,
+                               "in_valid": True, "in_enable": True}
+    pins = input_levels(sched, polarity)
+    flags = {"valid": pins["in_valid"], "de": pins["in_de"], "vsync": pins["in_vsync"], "hsync": pins["in_hsync"],
+             "frame_mark": mark, "enable": pins["in_enable"]}
     return [(data, in_width), *((flags[name], 1) for name in _VIDEO_FLAGS)]
 
 

@@ -45,6 +45,7 @@ from vkit.video.bus import unpack_capture
 from vkit.sim.tb.built import check_built_parameters
 from vkit.sim.tb.stream import StreamMonitor, StreamSink, StreamSource
 from vkit.sim.tb.video import VideoMonitor, VideoSource
+from vkit.video.words import INPUT_LEVEL_ROLES, samples_between
 
 __all__ = ["run_case", "vkit_case", "DRAIN_LINES"]
 
@@ -80,14 +81,14 @@ def _components(dut: Any, case: SimCase, facts: RunFacts) -> tuple[Any, Any, Str
     source_options = dict(bus=bus, blanking=case.blanking, blanking_value=case.blanking_value,
                           seed=case.seed, reset_active_high=case.reset_active_high)
     if case.family == "video":
-        timing = case.video_timing()
         monitor: VideoMonitor | StreamMonitor = VideoMonitor(
-            dut, smap, clock, reset, vsync_active_high=timing.vsync_active_high,
-            hsync_active_high=timing.hsync_active_high, **common,
+            dut, smap, clock, reset, vsync_active_high=case.active_high("out_vsync"),
+            hsync_active_high=case.active_high("out_hsync"),
+            active_high=case.pin_polarity(("out_de", "out_valid", "out_enable")), **common,
         )
         source: VideoSource | StreamSource = VideoSource(
             dut, smap, clock, reset, timing=case.pixel_timing(), stalls=case.stall_pattern(), stats=monitor.facts,
-            **source_options,
+            enable=case.enable_pattern(), active_high=case.pin_polarity(INPUT_LEVEL_ROLES), **source_options,
         )
         return monitor, source, None, clock, reset
     monitor = StreamMonitor(dut, smap, clock, reset, **common)
@@ -148,6 +149,7 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
     if save:
         error_file_for(case.capture_file).unlink(missing_ok=True)
     monitor: VideoMonitor | StreamMonitor | None = None
+    source: VideoSource | StreamSource | None = None
     send_task = None
     sink: StreamSink | None = None
     error: str | None = None
@@ -186,6 +188,10 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
             if case.pixels_per_clock > 1:
                 monitor.facts.pixels_per_clock = case.pixels_per_clock
             capture = unpack_capture(monitor.capture(), case.bus_layout(), monitor.data_bits)
+        sched = getattr(source, "schedule", None) if monitor is not None else None
+        if sched is not None:
+            capture.facts.latency_samples = samples_between(sched.enable, capture.facts.first_input_clock,
+                                                            capture.facts.first_output_clock)
         if save:
             _save(capture, case.capture_file, error)
     return capture

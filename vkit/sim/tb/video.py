@@ -14,8 +14,9 @@ from vkit.sim.tb._common import _FrameMonitor, _in_data_bits, _Source, bit_reade
 from vkit.video.capture import UNKNOWN, RunFacts
 from vkit.video.bus import BusLayout, clock_timing
 from vkit.video.formats import frames_array
+from vkit.video.enables import EnablePattern
 from vkit.video.timing import ClockSchedule, StallPattern, VideoTiming, schedule
-from vkit.video.words import video_data_words, video_input_facts
+from vkit.video.words import INPUT_LEVEL_ROLES, idle_levels, input_levels, video_data_words, video_input_facts
 
 __all__ = ["VideoSource", "VideoMonitor"]
 
@@ -47,12 +48,18 @@ class VideoSource(_Source):
             ``input_hsync_per_frame``); pass the monitor's :attr:`VideoMonitor.facts` so they land in its capture.
         bus: the word layout (:class:`vkit.video.bus.BusLayout`: component order, pixels a clock); the
             timing stays in pixels and is divided into clocks here. None: one pixel a clock.
+        enable: optional :class:`~vkit.video.enables.EnablePattern` driven on ``in_enable`` (needs that role):
+            every raster sample, blanking included, is held until its enabled clock.
+        active_high: role -> pin polarity for ``in_hsync``, ``in_vsync``, ``in_de``, ``in_valid``, ``in_enable``
+            (True = active high); roles left out are active high, syncs left out follow the timing.
 
     Clock numbering: clock 0 is the first rising edge after :meth:`send` starts; a value of schedule
     entry ``i`` is sampled by the design on clock ``i``.
     """
 
     family = "video"
+    enable: EnablePattern | None = None
+    """The input clock-enable pattern, or None (every clock takes a sample)."""
 
     def __init__(
         self,
@@ -70,6 +77,8 @@ class VideoSource(_Source):
         reset_active_high: bool = True,
         stats: RunFacts | None = None,
         bus: BusLayout | None = None,
+        enable: EnablePattern | None = None,
+        active_high: Mapping[str, bool] | None = None,
     ) -> None:
         if not isinstance(timing, VideoTiming):
             raise ConfigError("VideoSource: timing must be a vkit.video.timing.VideoTiming; build one with preset() or tiny()")
@@ -80,19 +89,24 @@ class VideoSource(_Source):
             raise ConfigError(
                 "stalls need a pixel-valid input but role 'in_valid' is not mapped; map in_valid or drop the stalls"
             )
+        if enable is not None and "in_enable" not in self._h:
+            raise ConfigError("an enable pattern needs a clock-enable input but role 'in_enable' is not mapped; "
+                              "map in_enable or drop the pattern")
         self.timing = timing
         self.stalls = stalls
+        self.enable = enable
+        given = dict(active_high or {})
+        sync_default = {"in_hsync": timing.hsync_active_high, "in_vsync": timing.vsync_active_high}
+        self.active_high = {r: bool(given.get(r, sync_default.get(r, True))) for r in INPUT_LEVEL_ROLES}
         self.schedule: ClockSchedule | None = None
         self._idle()
 
     def _idle(self) -> None:
-        """Drive the blanking state: syncs inactive, data-enable and valid low, data at the blanking value."""
-        t = self.timing
-        self._h["in_vsync"].value = 0 if t.vsync_active_high else 1
-        self._h["in_hsync"].value = 0 if t.hsync_active_high else 1
-        self._h["in_de"].value = 0
-        if "in_valid" in self._h:
-            self._h["in_valid"].value = 0
+        """Drive the blanking state: syncs inactive, data-enable and valid inactive, the enable active,
+        data at the blanking value."""
+        for role, level in idle_levels(self.active_high).items():
+            if role in self._h:
+                self._h[role].value = int(level)
         self._h["in_data"].value = self.blanking_value if self.blanking == "constant" else 0
 
     def prepare(self, frames: Any) -> tuple[ClockSchedule, np.ndarray]:
@@ -111,7 +125,7 @@ class VideoSource(_Source):
                 "give frames of the timing's active size or change the timing"
             )
         bus = self._layout(fmt)
-        sched = schedule(clock_timing(t, bus.lanes, t.h_active, t.v_active), int(arr.shape[0]), self.stalls)
+        sched = schedule(clock_timing(t, bus.lanes, t.h_active, t.v_active), int(arr.shape[0]), self.stalls, self.enable)
         words = video_data_words(sched, arr, bus, blanking=self.blanking, blanking_value=self.blanking_value,
                                  seed=self.seed)
         return sched, words
@@ -144,12 +158,10 @@ class VideoSource(_Source):
     def _control_changes(self, sched: ClockSchedule) -> tuple[list[Any], list[int], list[tuple[int, ...]]]:
         """The control handles, the clocks where any of their levels changes, and the levels from there on."""
         h = self._h
-        ctrl = [h["in_vsync"], h["in_hsync"], h["in_de"]]
-        levels = [sched.vsync, sched.hsync, sched.de]
-        if "in_valid" in h:
-            ctrl.append(h["in_valid"])
-            levels.append(sched.valid)
-        lv = np.stack(levels).astype(np.int8)
+        pins = input_levels(sched, self.active_high)
+        roles = [r for r in INPUT_LEVEL_ROLES if r in h]
+        ctrl = [h[r] for r in roles]
+        lv = np.stack([pins[r] for r in roles]).astype(np.int8)
         prev = np.concatenate((np.full((lv.shape[0], 1), -1, np.int8), lv[:, :-1]), axis=1)
         change_at = np.flatnonzero((lv != prev).any(axis=0)).tolist()
         change_vals = [tuple(int(v) for v in col) for col in lv[:, change_at].T]
@@ -189,9 +201,10 @@ class VideoSource(_Source):
                 drive(i)
             else:
                 # Leave the bus idle (the schedule ends in vertical back porch; only data-enable needs care).
-                h["in_de"].value = 0
-                if "in_valid" in h:
-                    h["in_valid"].value = 0
+                idle = idle_levels(self.active_high)
+                for role in ("in_de", "in_valid", "in_enable"):
+                    if role in h:
+                        h[role].value = int(idle[role])
                 ticker(self._clock).remove(step)
                 done.set()
 
@@ -203,23 +216,27 @@ class VideoMonitor(_FrameMonitor):
 
     A line ends when an ``out_de`` run ends; a frame starts at each leading edge of ``out_vsync`` (when
     ``out_vsync`` is not mapped, after ``expected_height`` lines). A pixel is a clock with ``out_de`` high
-    (and ``out_valid`` high when mapped). X/Z on ``out_data`` stores :data:`~vkit.video.capture.UNKNOWN` and is
-    counted; X/Z on a control output is listed in ``xz_control`` as ``[clock, role]`` and read as low.
+    (and ``out_valid`` high when mapped). With ``out_enable`` mapped, the outputs are sampled only on the
+    clocks the output enable is active: the other clocks hold no sample. X/Z on ``out_data`` stores
+    :data:`~vkit.video.capture.UNKNOWN` and is counted; X/Z on a control output is listed in ``xz_control`` as
+    ``[clock, role]`` and read as inactive. The clocks of the output sync leading edges are kept in the run
+    facts (``output_vsync_clocks``, ``output_hsync_clocks``) so the scoreboard can tell reset fill from frames.
 
     Args:
         dut: the cocotb top-level handle.
         signals: role -> DUT port (``SignalMap`` or dict, family "video"); uses ``out_de``, ``out_data`` and
-            ``out_valid``, ``out_vsync``, ``out_hsync`` when mapped.
+            ``out_valid``, ``out_vsync``, ``out_hsync``, ``out_enable`` when mapped.
         clock: the clock handle, or None for the map's ``clock`` role.
         reset: the reset handle, or None for the map's ``reset`` role; :meth:`start` waits until it is
             inactive.
         expected_height: active lines per output frame, or None; needed when ``out_vsync`` is not mapped.
         expected_width: pixels per output line (recorded only), or None.
-        vsync_active_high: polarity of ``out_vsync``.
-        hsync_active_high: polarity of ``out_hsync``.
+        vsync_active_high: polarity of the ``out_vsync`` pin.
+        hsync_active_high: polarity of the ``out_hsync`` pin.
         reset_active_high: reset polarity.
         facts: the capture's run facts to start from (kept, not copied); sources write into :attr:`facts`
             through their ``stats``.
+        active_high: role -> pin polarity of ``out_de``, ``out_valid``, ``out_enable`` (left out: active high).
 
     Clock numbering: clock 0 is the first rising edge after :meth:`start`; values are sampled on the edge.
     """
@@ -240,6 +257,7 @@ class VideoMonitor(_FrameMonitor):
         hsync_active_high: bool = True,
         reset_active_high: bool = True,
         facts: RunFacts | None = None,
+        active_high: Mapping[str, bool] | None = None,
     ) -> None:
         super().__init__(dut, signals, clock, reset, reset_active_high=reset_active_high)
         if "out_vsync" not in self._h and not expected_height:
@@ -252,10 +270,13 @@ class VideoMonitor(_FrameMonitor):
             expected_height, expected_width, facts, de_in_blanking=[],
             output_vsync_count=0 if "out_vsync" in self._h else None,
             output_hsync_per_frame=[] if "out_vsync" in self._h and "out_hsync" in self._h else None,
+            output_vsync_clocks=[], output_hsync_clocks=[],
         )
         self._split_by_height = "out_vsync" not in self._h
         self.vsync_active_high = vsync_active_high
         self.hsync_active_high = hsync_active_high
+        given = dict(active_high or {})
+        self.active_high = {r: bool(given.get(r, True)) for r in ("out_de", "out_valid", "out_enable")}
         self._line_pixels = 0
         self._hs_count = 0
 
@@ -267,8 +288,9 @@ class VideoMonitor(_FrameMonitor):
             self._line_pixels = 0
             self._count_line()
 
-    def _on_vsync(self) -> None:
+    def _on_vsync(self, clock: int) -> None:
         self.facts.output_vsync_count += 1
+        self.facts.output_vsync_clocks.append(clock)
         if self.facts.output_hsync_per_frame is not None:
             self.facts.output_hsync_per_frame.append(self._hs_count)
         self._hs_count = 0
@@ -276,23 +298,28 @@ class VideoMonitor(_FrameMonitor):
             self._line_pixels = 0
             self._close_frame()
 
-    def _make_step(self) -> Callable[[], None]:
-        """The per-edge sampling function (closures keep the hot path on local variables)."""
-        h = self._h
-        read_de = bit_reader(h["out_de"])
-        read_valid = bit_reader(h["out_valid"]) if "out_valid" in h else None
-        read_vs = bit_reader(h["out_vsync"]) if "out_vsync" in h else None
-        read_hs = bit_reader(h["out_hsync"]) if "out_hsync" in h else None
-        read_data = word_reader(h["out_data"])
+    def _level_reader(self, role: str, high: bool) -> Callable[[], int] | None:
+        """A reader of ``role``'s asserted state: 1 asserted, 0 not, -1 X/Z; None when the role is not mapped."""
+        if role not in self._h:
+            return None
+        read = bit_reader(self._h[role])
+        if high:
+            return read
+        return lambda: 1 - v if (v := read()) >= 0 else v
+
+    def _make_sample(self) -> Callable[[int], None]:
+        """The function that samples the outputs on one (enabled) clock ``c``."""
+        read_de = self._level_reader("out_de", self.active_high["out_de"])
+        read_valid = self._level_reader("out_valid", self.active_high["out_valid"])
+        read_vs = self._level_reader("out_vsync", self.vsync_active_high)
+        read_hs = self._level_reader("out_hsync", self.hsync_active_high)
+        read_data = word_reader(self._h["out_data"])
         add = self._builder.add
         facts = self.facts
         event_at = self._event_at
-        vs_on_level = 1 if self.vsync_active_high else 0
-        hs_on_level = 1 if self.hsync_active_high else 0
         prev = {"de": 0, "vs": False, "hs": False}
 
-        def step() -> None:
-            c = self.clocks
+        def sample(c: int) -> None:
             de = read_de()
             if de < 0:
                 event_at("xz_control", c, "out_de")
@@ -310,9 +337,9 @@ class VideoMonitor(_FrameMonitor):
                 vs = read_vs()
                 if vs < 0:
                     event_at("xz_control", c, "out_vsync")
-                vs_on = vs == vs_on_level
+                vs_on = vs == 1
                 if vs_on and not prev["vs"]:
-                    self._on_vsync()
+                    self._on_vsync(c)
                 if vs_on and de:
                     event_at("de_in_blanking", c)
                 prev["vs"] = vs_on
@@ -320,9 +347,10 @@ class VideoMonitor(_FrameMonitor):
                 hs = read_hs()
                 if hs < 0:
                     event_at("xz_control", c, "out_hsync")
-                hs_on = hs == hs_on_level
+                hs_on = hs == 1
                 if hs_on and not prev["hs"]:
                     self._hs_count += 1
+                    facts.output_hsync_clocks.append(c)
                 prev["hs"] = hs_on
             if pix:
                 value = read_data()
@@ -333,6 +361,21 @@ class VideoMonitor(_FrameMonitor):
                 add(value, c)
                 self._line_pixels += 1
             prev["de"] = de
+
+        return sample
+
+    def _make_step(self) -> Callable[[], None]:
+        """The per-edge function: samples on clocks the output enable allows, then advances the clock count."""
+        sample = self._make_sample()
+        read_en = self._level_reader("out_enable", self.active_high["out_enable"])
+
+        def step() -> None:
+            c = self.clocks
+            en = 1 if read_en is None else read_en()
+            if en == 1:
+                sample(c)
+            elif en < 0:
+                self._event_at("xz_control", c, "out_enable")
             c += 1
             self.clocks = c
             if c == self._deadline:

@@ -669,7 +669,8 @@ def _config_text(kit: _Kit) -> str:
     ]
     design = _design_lines(kit, ports_by_name)
     ports = _port_lines(kit.name, kit.guess, ports_by_name)
-    stimulus = (_video_stimulus(kit.guess) if kit.guess.family == "video" else _STREAM_STIMULUS).replace(
+    stimulus = (_video_stimulus(kit.guess, kit.timing_parameters) if kit.guess.family == "video"
+                else _STREAM_STIMULUS).replace(
         "{patterns_line}", _patterns_line())
     return "\n".join([*head, *design, "", *ports, "", stimulus])
 
@@ -678,10 +679,17 @@ _NO_STALLS = "stalls = [0]                       # no in_valid port: the design 
 _ENABLES = ("enables = [{ every = 2 }, { duty = 0.5, max_gap = 3 }]   # in_enable: one clock in two, and random\n")
 
 
-def _video_stimulus(guess: RoleGuess) -> str:
+_TWO_TIMINGS = ('timings = ["tiny", "tiny64x48"]   # two line lengths: parameters follow the timing '
+                '(timing_parameters); add presets as you go\n')
+
+
+def _video_stimulus(guess: RoleGuess, timing_parameters: Mapping[str, str] | None = None) -> str:
     """The video ``[stimulus]``: stalls only for a design with a pixel-valid input; enable patterns for a
-    design with a clock-enable input."""
+    design with a clock-enable input; two frame sizes for a design sized by its timing, so a size taken
+    from one timing instead of the parameter shows."""
     text = _VIDEO_STIMULUS
+    if timing_parameters:
+        text = re.sub(r"timings = .*\n", _TWO_TIMINGS, text)
     if "in_valid" not in guess.roles:
         text = re.sub(r"stalls = .*\n", _NO_STALLS, text)
     if "in_enable" in guess.roles:
@@ -979,6 +987,9 @@ def _read_conventions(kit: _Kit, given: Mapping[str, Any]) -> None:
     free = {k: v for k, v in kit.design.parameters.items() if k not in given}
     kit.timing_parameters, timing_guesses = timing_parameters(free)
     kit.guesses += timing_guesses + _flow_guesses(guess)
+    if kit.timing_parameters:
+        kit.guesses.append(Guess("timings tiny (32x24) and tiny64x48 written",
+                                 "parameters follow the timing: one frame size cannot show a size fixed in the RTL"))
 
 
 def parse_assignments(items: Sequence[str] | None, what: str = "parameter") -> dict[str, int | str]:

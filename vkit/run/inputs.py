@@ -6,9 +6,8 @@ from pathlib import Path
 
 import numpy as np
 
-from vkit.core.vocab import is_rgb, is_ycbcr, sample_bits
+from vkit.core.vocab import is_ycbcr, sample_bits
 from vkit.model.luma import sample_dtype
-from vkit.video.patterns import ycbcr_frame
 from vkit.core.errors import ConfigError
 from vkit.core.validate import closest, fail
 from vkit.run.config import IMAGE_PIXELS_SETTING, Case
@@ -16,7 +15,7 @@ from vkit.sim.case import SimCase
 from vkit.sim.hdlports import HdlDesign, Port, find_design
 from vkit.sim.signals import CONTROL_ROLES
 from vkit.video.images import load_image
-from vkit.video.patterns import make_pattern
+from vkit.video.patterns import pattern_in_format
 
 __all__ = ["make_frames", "check_ports", "check_parameters", "make_sim_case", "BACKPRESSURE_SEED_OFFSET"]
 
@@ -51,19 +50,16 @@ def make_frames(case: Case) -> np.ndarray:
     centre-cropped to the case's size; every frame of an image case is that image.
     """
     fmt = case.design.pixel_format
-    rgb, bits = is_rgb(fmt) or is_ycbcr(fmt), sample_bits(fmt)
+    bits = sample_bits(fmt)
     frames = []
     for k in range(case.frames):
         if case.stimulus == "pattern":
-            drawn_bits = max(8, bits) if is_ycbcr(fmt) else bits  # converted to Y'CbCr below, at 8 bits or more
-            img = make_pattern(case.stimulus_name, case.height, case.width, seed=case.seed + k, rgb=rgb,
-                               bits=drawn_bits, **dict(case.pattern_options))
+            img = pattern_in_format(case.stimulus_name, case.height, case.width, fmt, seed=case.seed + k,
+                                    **dict(case.pattern_options))
         elif is_ycbcr(fmt):
             raise ConfigError(f"design {case.design.name}: images are not read for {fmt} designs yet; use patterns")
         else:
             img = _image_frame(case)
-        if is_ycbcr(fmt):
-            img = ycbcr_frame(img, fmt)
         frames.append(np.ascontiguousarray(img, dtype=sample_dtype(bits)))
     return np.stack(frames)
 

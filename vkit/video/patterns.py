@@ -8,7 +8,7 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from vkit.core.errors import ConfigError
-from vkit.core.vocab import components, sample_bits
+from vkit.core.vocab import components, is_rgb, is_ycbcr, sample_bits
 from vkit.model.luma import sample_dtype
 from vkit.model.ycbcr import YCbCrCoding, rgb_to_ycbcr
 from vkit.video.killers import killers
@@ -31,6 +31,7 @@ __all__ = [
     "to_rgb",
     "to_bits",
     "ycbcr_frame",
+    "pattern_in_format",
 ]
 
 
@@ -525,3 +526,16 @@ def make_pattern(
         return to_bits(gen(height, width, **kwargs), bits)
     out = gen(height, width, **kwargs)
     return to_bits(to_rgb(out) if rgb else out, bits)
+
+
+def pattern_in_format(name: str, height: int, width: int, pixel_format: str, seed: int = 0,
+                      **options: Any) -> np.ndarray:
+    """Pattern ``name`` as a design in ``pixel_format`` takes it: gray or RGB at the format's sample width,
+    or Y'CbCr converted from RGB drawn at 8 bits or more (:func:`ycbcr_frame`); the format's sample dtype."""
+    bits = sample_bits(pixel_format)
+    ycc = is_ycbcr(pixel_format)
+    img = make_pattern(name, height, width, seed=seed, rgb=is_rgb(pixel_format) or ycc,
+                       bits=max(8, bits) if ycc else bits, **options)
+    if ycc:
+        img = ycbcr_frame(img, pixel_format)
+    return np.ascontiguousarray(img, dtype=sample_dtype(bits))

@@ -8,7 +8,6 @@ from typing import Sequence
 
 import numpy as np
 
-from vkit.core.vocab import is_rgb
 from vkit.core.errors import ConfigError
 from vkit.core.validate import fail, want_int
 from vkit.video.limits import check_case_size
@@ -17,7 +16,7 @@ from vkit.model.spec import PipelineSpec
 from vkit.model.strength import kill_sets
 from vkit.video.images import load_image
 from vkit.video.killers import KILLER_PARTS
-from vkit.video.patterns import PATTERNS, make_pattern
+from vkit.video.patterns import PATTERNS, pattern_in_format
 
 __all__ = ["SCAFFOLD_PATTERNS", "KILLER_SEEDS", "stimulus_frames", "synthesize"]
 
@@ -37,8 +36,8 @@ border or colour frame when one is not enough; measured on the sample specs)."""
 def stimulus_frames(spec: PipelineSpec, items: Sequence[str], width: int, height: int, frames: int = 2,
                     seed: int = 1) -> np.ndarray:
     """Frames of ``items`` in ``spec``'s input format: a pattern name (``name`` or ``name:seed``, frame k
-    with seed + k, as a case makes them) or an image file (centre-cropped to ``width`` x ``height``)."""
-    rgb = is_rgb(spec.input)
+    with seed + k, as a case makes them, at the spec's sample width and format) or an image file
+    (centre-cropped to ``width`` x ``height``)."""
     want_int("vkit strength", "--frames", frames, 1)
     check_case_size("vkit strength", frames, width, height)
     out = []
@@ -48,7 +47,7 @@ def stimulus_frames(spec: PipelineSpec, items: Sequence[str], width: int, height
             base = want_int("vkit strength", f"seed of {name}", int(own), 0) if own.lstrip("-").isdigit() else seed
             if own and not own.lstrip("-").isdigit():
                 raise fail("vkit strength", "stimulus", item, "not NAME or NAME:SEED", "give the seed as a whole number >= 0")
-            out += [make_pattern(name, height, width, seed=base + k, rgb=rgb) for k in range(frames)]
+            out += [pattern_in_format(name, height, width, spec.input, seed=base + k) for k in range(frames)]
             continue
         if not Path(item).is_file():
             raise ConfigError(f"stimulus {item!r} is neither a pattern ({', '.join(PATTERNS)}) nor an image file; "
@@ -60,14 +59,13 @@ def stimulus_frames(spec: PipelineSpec, items: Sequence[str], width: int, height
     if len(shapes) != 1:
         raise ConfigError(f"stimulus frames have different sizes {sorted(shapes)}; give images of at least "
                           f"{width}x{height} pixels")
-    return np.stack(out).astype(np.uint8)
+    return np.stack(out)
 
 
 def _candidates(spec: PipelineSpec, width: int, height: int) -> list[tuple[str, np.ndarray]]:
-    rgb = is_rgb(spec.input)
     seeds = range(len(KILLER_PARTS) * _CANDIDATE_SEEDS)
-    out = [(f"killers:{s}", make_pattern("killers", height, width, seed=s, rgb=rgb)) for s in seeds]
-    out += [(f"noise:{s}", make_pattern("noise", height, width, seed=s, rgb=rgb)) for s in range(_CANDIDATE_SEEDS)]
+    out = [(f"killers:{s}", pattern_in_format("killers", height, width, spec.input, seed=s)) for s in seeds]
+    out += [(f"noise:{s}", pattern_in_format("noise", height, width, spec.input, seed=s)) for s in range(_CANDIDATE_SEEDS)]
     return out
 
 

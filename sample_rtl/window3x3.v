@@ -81,7 +81,9 @@ module window3x3 #(
         end
     endfunction
 
-    localparam integer AW = clog2(MAX_WIDTH);
+    // counters reach W itself (a line of exactly MAX_WIDTH pixels must still end), addresses W - 1 at most
+    localparam integer AW = clog2(MAX_WIDTH + 1);
+    localparam integer MW = clog2(MAX_WIDTH);   // line-buffer address
     localparam integer PB = PIXEL_BITS;
     localparam [AW-1:0] ONE = {{(AW-1){1'b0}}, 1'b1};
 
@@ -181,7 +183,7 @@ module window3x3 #(
 
     reg           s1_px, s1_end, s1_take, s1_emit, s1_first_row, s1_last_row, s1_first_col;
     reg           s1_vs, s1_hs;
-    reg  [AW-1:0] s1_addr;
+    reg  [MW-1:0] s1_addr;
     reg  [PB-1:0] s1_pix;
 `ifdef BUG_LINEBUF_OFF_BY_ONE
     reg  [PB-1:0] lb1_q_prev;
@@ -197,8 +199,8 @@ module window3x3 #(
     always @(posedge clk) begin
         if (ce) begin
             if (px0) begin
-                lb1_q <= lb1[addr0];
-                lb2_q <= lb2[addr0];
+                lb1_q <= lb1[addr0[MW-1:0]];
+                lb2_q <= lb2[addr0[MW-1:0]];
             end
             if (s1_take) begin
                 lb1[s1_addr] <= s1_pix;
@@ -218,7 +220,7 @@ module window3x3 #(
             s1_first_col <= 1'b0;
             s1_vs <= 1'b0;
             s1_hs <= 1'b0;
-            s1_addr <= {AW{1'b0}};
+            s1_addr <= {MW{1'b0}};
             s1_pix <= {PB{1'b0}};
         end else if (ce) begin
             s1_px <= px0;
@@ -230,7 +232,7 @@ module window3x3 #(
             s1_first_col <= first_col0;
             s1_vs <= vs_eff0;
             s1_hs <= in_hsync;
-            s1_addr <= addr0;
+            s1_addr <= addr0[MW-1:0];
             s1_pix <= in_data;
         end
     end

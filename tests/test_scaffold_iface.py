@@ -107,7 +107,9 @@ def test_scaffolded_interface_top_runs_green_on_verilator_and_catches_a_seeded_b
     only = ["--only", "conveyor-s1", "--only", "impulse"]
     run = _vkit(["run", "vkit.toml", *only], repo)
     assert run.returncode == 0, run.stdout[-2000:] + run.stderr[-2000:]
-    assert "4 cases: 4 passed" in run.stdout
+    # LINE_PIXELS follows the line length (timing_parameters), so the kit runs two frame sizes, each with and
+    # without stalls; the line buffer then holds exactly one line
+    assert "8 cases: 8 passed" in run.stdout
     # the same kit with blur_core's seeded rounding bug on must fail: the filter inside is really checked
     assert _init(repo, "-D", "BUG_BLUR_TRUNCATE", "--force", "--rewrite-config").returncode == 0
     bad = _vkit(["run", "vkit.toml", "--only", "conveyor-s1/tiny32x24/nostall"], repo)

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import os
 import shutil
 import subprocess
 import sys
@@ -10,6 +9,8 @@ import xml.etree.ElementTree as ET
 from pathlib import Path
 
 import pytest
+
+from conftest import make_env
 
 from vkit.run.config import expand_matrix, load_config
 from vkit.core.errors import ConfigError
@@ -20,7 +21,6 @@ from vkit.sim.simulators import find
 
 ROOT = Path(__file__).resolve().parent.parent
 SAMPLE = ROOT / "sample_rtl"
-VENV_BIN = str(Path(sys.executable).parent)
 
 # A team's own top level around the sample blur core: port names unlike vkit's roles, an active-low
 # asynchronous-style reset name, and a configuration input that plays no video role.
@@ -70,13 +70,6 @@ def _repo(tmp_path: Path) -> Path:
 def _sources(repo: Path) -> list[Path]:
     return [repo / "rtl" / n for n in ("window3x3.v", "blur_core.v", "cam_filter_top.v")]
 
-
-def _env() -> dict[str, str]:
-    env = dict(os.environ)
-    env["PATH"] = VENV_BIN + os.pathsep + env.get("PATH", "")
-    for key in ("VERILATOR_ROOT", "PYTEST_CURRENT_TEST", "PYTEST_ADDOPTS", "COCOTB_TEST_MODULES", "COCOTB_TOPLEVEL"):
-        env.pop(key, None)
-    return env
 
 
 # -- the guesser -----------------------------------------------------------------------------------------
@@ -299,13 +292,13 @@ needs_make = pytest.mark.skipif(shutil.which("make") is None, reason="make not f
 
 def _vkit(args: list[str], cwd: Path) -> subprocess.CompletedProcess[str]:
     cmd = [sys.executable, "-c", "import sys; from vkit.cli import main; sys.exit(main(sys.argv[1:]))", *args]
-    return subprocess.run(cmd, cwd=cwd, env=_env(), capture_output=True, text=True, timeout=900, check=False)
+    return subprocess.run(cmd, cwd=cwd, env=make_env(), capture_output=True, text=True, timeout=900, check=False)
 
 
 def _make(repo: Path, sim: str, only: str) -> tuple[subprocess.CompletedProcess[str], ET.Element | None]:
     results = repo / "results.xml"
     results.unlink(missing_ok=True)
-    proc = subprocess.run(["make", "-f", "Makefile.vkit", f"SIM={sim}", f"VKIT_ONLY={only}"], cwd=repo, env=_env(),
+    proc = subprocess.run(["make", "-f", "Makefile.vkit", f"SIM={sim}", f"VKIT_ONLY={only}"], cwd=repo, env=make_env(),
                           capture_output=True, text=True, timeout=900, check=False)
     return proc, (ET.parse(results).getroot() if results.exists() else None)
 
@@ -374,7 +367,7 @@ def test_pytest_plugin_collects_and_runs_the_cases(tmp_path: Path) -> None:
     (repo / "pytest.ini").write_text("[pytest]\nvkit_simulators = icarus\n")
     (repo / "test_own.py").write_text("def test_users_own_check():\n    assert 1 + 1 == 2\n")
     pytest_cmd = [sys.executable, "-m", "pytest", "-p", "no:cacheprovider", "-q", "-rA"]
-    collect = subprocess.run([*pytest_cmd, "--collect-only"], cwd=repo, env=_env(), capture_output=True, text=True,
+    collect = subprocess.run([*pytest_cmd, "--collect-only"], cwd=repo, env=make_env(), capture_output=True, text=True,
                              timeout=300, check=False)
     assert collect.returncode == 0, collect.stdout[-2000:]
     cfg = load_config(repo / "vkit.toml")
@@ -383,14 +376,14 @@ def test_pytest_plugin_collects_and_runs_the_cases(tmp_path: Path) -> None:
         assert f"vkit.toml::{cid}" in collect.stdout
     assert "test_own.py::test_users_own_check" in collect.stdout
     run = subprocess.run([*pytest_cmd, "-k", "conveyor-s1 or users_own", "--junitxml", "junit.xml"], cwd=repo,
-                         env=_env(), capture_output=True, text=True, timeout=600, check=False)
+                         env=make_env(), capture_output=True, text=True, timeout=600, check=False)
     assert run.returncode == 0, run.stdout[-3000:]
     assert "3 passed" in run.stdout
     assert (repo / "vkit-out" / "pytest" / "report.json").is_file()
     # a failing case: the message is the first finding and the report path
     text = (repo / "vkit.toml").read_text().replace("tolerance_lsb = 0", "defines = { BUG_BLUR_TRUNCATE = 1 }\ntolerance_lsb = 0", 1)
     (repo / "vkit.toml").write_text(text)
-    bad = subprocess.run([*pytest_cmd, "-k", "conveyor-s1 and nostall"], cwd=repo, env=_env(), capture_output=True,
+    bad = subprocess.run([*pytest_cmd, "-k", "conveyor-s1 and nostall"], cwd=repo, env=make_env(), capture_output=True,
                          text=True, timeout=600, check=False)
     assert bad.returncode == 1, bad.stdout[-3000:]
     assert "1 failed" in bad.stdout

@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
-import os
 import shutil
 import subprocess
 import sys
 from pathlib import Path
 
 import pytest
+
+from conftest import make_env
 
 from vkit.core.errors import ConfigError
 from vkit.run.config import expand_matrix, load_config
@@ -17,7 +18,6 @@ from vkit.sim.simulators import find
 
 SAMPLE = Path(__file__).resolve().parent.parent / "sample_rtl"
 FILES = ("window3x3.v", "blur_core.v", "belt_pkg.sv", "belt_video_if.sv", "belt_smooth_top.sv")
-VENV_BIN = str(Path(sys.executable).parent)
 _VERILATOR = find("verilator")
 
 # belt_smooth_top's links as its interface and modports declare them (sample_rtl/belt_video_if.sv):
@@ -29,17 +29,10 @@ EXPECTED_ROLES = {
 }
 
 
-def _env() -> dict[str, str]:
-    env = dict(os.environ)
-    env["PATH"] = VENV_BIN + os.pathsep + env.get("PATH", "")
-    for key in ("VERILATOR_ROOT", "PYTEST_CURRENT_TEST", "PYTEST_ADDOPTS", "COCOTB_TEST_MODULES", "COCOTB_TOPLEVEL"):
-        env.pop(key, None)
-    return env
-
 
 def _vkit(args: list[str], cwd: Path) -> subprocess.CompletedProcess[str]:
     cmd = [sys.executable, "-c", "import sys; from vkit.cli import main; sys.exit(main(sys.argv[1:]))", *args]
-    return subprocess.run(cmd, cwd=cwd, env=_env(), capture_output=True, text=True, timeout=900, check=False)
+    return subprocess.run(cmd, cwd=cwd, env=make_env(), capture_output=True, text=True, timeout=900, check=False)
 
 
 def _repo(tmp_path: Path) -> Path:

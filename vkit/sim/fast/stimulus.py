@@ -22,7 +22,6 @@ from vkit.sim.fast.wire import (
     GAP_BITS,
     MAX_IN_WIDTH,
     READY_WORDS,
-    pack_fields,
     stream_word_bits,
     stream_word_fields,
     video_word_bits,
@@ -151,9 +150,11 @@ def write_words(path: str | Path, fields: list[tuple[np.ndarray, int]], nbytes: 
     return path
 
 
-def write_words_hex(path: str | Path, fields: list[tuple[np.ndarray, int]], nbytes: int | None = None) -> Path:
+def write_words_hex(path: str | Path, fields: list[tuple[np.ndarray, int]], nbytes: int | None = None,
+                    digits: int | None = None) -> Path:
     """Write the records of :func:`write_words` as hex text instead, one record per line (``2 * nbytes``
-    digits, most significant first), for a VHDL ``hread`` of ``8 * nbytes`` bits."""
+    digits, most significant first), for a VHDL ``hread`` of ``8 * nbytes`` bits; ``digits``: only the
+    last that many digits of each record (a ``hread`` of ``4 * digits`` bits; the fields must fit them)."""
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     raw = _packed_bytes(fields, nbytes)
@@ -161,7 +162,9 @@ def write_words_hex(path: str | Path, fields: list[tuple[np.ndarray, int]], nbyt
     chars[:, 0:-1:2] = _HEX[raw >> 4]
     chars[:, 1:-1:2] = _HEX[raw & 15]
     chars[:, -1] = ord("\n")
-    path.write_bytes(chars.tobytes())
+    if digits is not None:
+        chars = chars[:, chars.shape[1] - 1 - int(digits):]
+    path.write_bytes(np.ascontiguousarray(chars).tobytes())
     return path
 
 
@@ -254,9 +257,9 @@ def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout
         raise ConfigError(f"stimulus: input data width {in_width} bits is too wide for the player (max {MAX_IN_WIDTH})")
     sched, data = video_schedule_and_words(case)
     pins = case.pin_polarity(INPUT_LEVEL_ROLES)
-    fields = video_word_fields(sched, data, in_width, pins)
+    fields = video_word_fields(sched, data, in_width, pins, case.bus_layout())
     if language == "vhdl":
-        stim = write_hex(out / "stim.hex", pack_fields(fields), video_word_bits(in_width))
+        stim = write_words_hex(out / "stim.hex", fields, digits=(video_word_bits(in_width) + 3) // 4)
     else:
         stim = write_words(out / "stim.bin", fields)
     meta = video_input_facts(sched, case.pixels_per_clock)
@@ -277,14 +280,15 @@ def _write_stream(case: SimCase, out: Path, in_width: int, language: str, timeou
                           "give a design whose input width matches the pixel format")
     s = stream_stimulus(case)
     write, name = (write_words_hex, "stim.hex") if language == "vhdl" else (write_words, "stim.bin")
-    stim = write(out / name, stream_word_fields(s, in_width), word_bytes(stream_word_bits(in_width)))
+    stim = write(out / name, stream_word_fields(s, in_width, case.bus_layout()), word_bytes(stream_word_bits(in_width)))
     levels = ready_levels(case.backpressure_pattern(), READY_WORDS)
     ready = write_hex(out / "ready.hex", levels.astype(np.uint64), 1)
     meta = {"frames_sent": s.frames, "first_input_clock": None, "stall_pixels": s.stall_pixels,
             "first_gap_clocks": int(s.gaps[0]) if s.gaps.size else 0}
     timeout = int(timeout_rel) if timeout_rel else 0
-    return StimulusFiles(stim, ready, int(s.data.size), int(levels.size), drain_clocks(case), timeout,
-                         int(s.data.size), meta, levels, language)
+    transfers = int(s.data.shape[0])
+    return StimulusFiles(stim, ready, transfers, int(levels.size), drain_clocks(case), timeout,
+                         transfers, meta, levels, language)
 
 
 def write_stimulus(case: SimCase, out_dir: str | Path, in_width: int | None = None, language: str = "verilog") -> StimulusFiles:

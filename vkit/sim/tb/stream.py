@@ -86,10 +86,15 @@ class StreamSource(_Source):
         self.stats.first_input_clock = None
         return t
 
+    def _ints(self, words: np.ndarray) -> list[int]:
+        """Words as Python ints; a wide word comes as pixel fields, joined by the bus layout."""
+        return self.bus.word_list(words) if words.ndim > 1 and self.bus is not None else words.tolist()
+
     async def send(self, frames: Any) -> None:
         """Send every pixel of ``frames``; returns once the DUT took the last word (valid then drops)."""
         t = self.prepare(frames)
-        words, gap, garbage = t.data.tolist(), t.gaps.tolist(), t.idle.tolist()
+        words, garbage = self._ints(t.data), self._ints(t.idle)
+        gap = t.gaps.tolist()
         sof, eol = t.sof.astype(int).tolist(), t.eol.astype(int).tolist()
         await self._reset_released()
         h = self._h

@@ -113,7 +113,8 @@ class VideoSource(_Source):
         """Build the schedule and the data word of every clock for ``frames`` (no simulation needed).
 
         Returns:
-            (schedule, words): ``words`` is an int64 array of length ``schedule.n_clocks``.
+            (schedule, words): ``words`` is an int64 array of length ``schedule.n_clocks`` (or its pixel
+            fields, ``(n_clocks, lanes)``, for a word wider than 62 bits; :attr:`BusLayout.wide`).
         """
         arr, fmt = frames_array(frames, self.pixel_format)
         if self.pixel_format is None:
@@ -145,7 +146,8 @@ class VideoSource(_Source):
         await self._reset_released()
         self.stats.first_input_clock = first_valid
         done = Event()
-        step = self._make_player(sched, words, done)
+        # a wide word comes as pixel fields, only from a bus layout that says how to join them
+        step = self._make_player(sched, self.bus.word_list(words) if words.ndim > 1 else words.tolist(), done)
         self.clocks = 0
         step(first=True)
         tick = ticker(self._clock)
@@ -167,12 +169,11 @@ class VideoSource(_Source):
         change_vals = [tuple(int(v) for v in col) for col in lv[:, change_at].T]
         return ctrl, change_at, change_vals
 
-    def _make_player(self, sched: ClockSchedule, words: np.ndarray, done: Event) -> Callable[..., None]:
+    def _make_player(self, sched: ClockSchedule, word_list: list[int], done: Event) -> Callable[..., None]:
         """The per-edge function that drives schedule entry ``i`` (sampled by the design on clock ``i``)."""
         h = self._h
         ctrl, change_at, change_vals = self._control_changes(sched)
         data = h["in_data"]
-        word_list = words.tolist()
         n = sched.n_clocks
         change_at.append(n)  # sentinel
         state = {"i": 0, "k": 0, "next": change_at[0], "last": -1}

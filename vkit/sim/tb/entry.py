@@ -41,7 +41,7 @@ from cocotb.utils import get_sim_time
 from vkit.video.capture import Capture, RunFacts, lines_file_for
 from vkit.core.errors import ConfigError
 from vkit.sim.case import CASE_ENV, SimCase, error_file_for
-from vkit.video.bus import unpack_capture
+from vkit.video.bus import MAX_WORD_BITS, unpack_capture
 from vkit.sim.tb.built import check_built_parameters
 from vkit.sim.tb.stream import StreamMonitor, StreamSink, StreamSource
 from vkit.sim.tb.video import VideoMonitor, VideoSource
@@ -86,15 +86,24 @@ def _components(dut: Any, case: SimCase, facts: RunFacts) -> tuple[Any, Any, Str
             hsync_active_high=case.active_high("out_hsync"),
             active_high=case.pin_polarity(("out_de", "out_valid", "out_enable")), **common,
         )
+        _check_output_width(monitor)
         source: VideoSource | StreamSource = VideoSource(
             dut, smap, clock, reset, timing=case.pixel_timing(), stalls=case.stall_pattern(), stats=monitor.facts,
             enable=case.enable_pattern(), active_high=case.pin_polarity(INPUT_LEVEL_ROLES), **source_options,
         )
         return monitor, source, None, clock, reset
     monitor = StreamMonitor(dut, smap, clock, reset, **common)
+    _check_output_width(monitor)
     source = StreamSource(dut, smap, clock, reset, gaps=case.gap_pattern(), stats=monitor.facts, **source_options)
     sink = StreamSink(dut, smap, clock, reset, backpressure=case.backpressure_pattern())
     return monitor, source, sink, clock, reset
+
+
+def _check_output_width(monitor: VideoMonitor | StreamMonitor) -> None:
+    """Refuse an output word the per-clock monitor cannot hold as one sample (the harness splits it into lanes)."""
+    if monitor.data_bits > MAX_WORD_BITS:
+        raise ConfigError(f"role 'out_data' is {monitor.data_bits} bits: the per-clock monitor holds output words of "
+                          f"up to {MAX_WORD_BITS} bits; run this design on the native or fast path (path = \"native\")")
 
 
 async def _clock_and_reset(case: SimCase, clock: Any, reset: Any) -> None:

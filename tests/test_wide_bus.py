@@ -1,0 +1,204 @@
+"""Data words wider than 62 bits (4 RGB888 pixels a clock = 96 bits, 8 gray8 pixels = 64 bits): packed by the
+bus layout, written by the stimulus writers, split back by the capture reader, and driven end to end
+through a design on every drive path.
+
+Every word is checked against Python's own arbitrary-size integers (the reference: a word is the sum of
+its pixel fields shifted to their lanes, as the layout's docstring states); the sample designs are
+scored against the model, whose luma is checked against ITU-R BT.601 in test_luma.py and whose 3x3
+maximum is checked against SciPy in test_window_kernels.py.
+"""
+
+from __future__ import annotations
+
+import tempfile
+import tomllib
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from conftest import SAMPLE_RTL, simulator_available
+from vkit.core.errors import ConfigError
+from vkit.run.config import load_config
+from vkit.run.runner import run
+from vkit.sim.fast.capture_file import parse_capture_binary, parse_capture_text
+from vkit.sim.fast.stimulus import write_words, write_words_hex
+from vkit.sim.fast.wire import CAPTURE_MAGIC, CAPTURE_VERSION, FAMILY_CODES, video_bit, video_word_fields
+from vkit.video.bus import BusLayout
+from vkit.video.capture import UNKNOWN
+from vkit.video.timing import schedule, tiny
+from vkit.video.words import stream_transfers, video_data_words
+
+
+def _reference_word(pixels: list[tuple[int, int, int]], lane_order: str) -> int:
+    """A 4-lane RGB888 word as a Python integer: R in the pixel's top byte, the first pixel lowest (first_low)
+    or highest (first_high)."""
+    fields = [(r << 16) | (g << 8) | b for r, g, b in pixels]
+    if lane_order == "first_high":
+        fields = fields[::-1]
+    return sum(f << (24 * k) for k, f in enumerate(fields))
+
+
+@pytest.mark.parametrize("lane_order", ["first_low", "first_high"])
+def test_96_bit_words_are_the_python_integer_of_their_pixels(lane_order: str) -> None:
+    frames = np.random.default_rng(4).integers(0, 256, (1, 2, 8, 3)).astype(np.uint8)
+    bus = BusLayout("rgb888", lanes=4, lane_order=lane_order)
+    assert bus.wide and bus.word_bits == 96
+    words = bus.bus_words(frames)
+    assert words.shape == (1, 2, 2, 4)  # (frames, lines, clocks a line, pixel fields)
+    got = bus.word_list(words.reshape(-1, 4))
+    want = [_reference_word([tuple(int(c) for c in frames[0, y, 4 * g + k]) for k in range(4)], lane_order)
+            for y in range(2) for g in range(2)]
+    assert got == want
+
+
+def test_schedule_words_and_stream_transfers_carry_wide_words() -> None:
+    frames = np.random.default_rng(5).integers(0, 256, (2, 3, 8, 3)).astype(np.uint8)
+    bus = BusLayout("rgb888", lanes=4, lane_order="first_high")
+    sched = schedule(tiny(2, 3), 2, None)
+    words = video_data_words(sched, frames, bus, blanking="constant", blanking_value=(1 << 90) | 5)
+    ints = bus.word_list(words)
+    pix = np.flatnonzero(sched.x >= 0)
+    ref = bus.word_list(bus.bus_words(frames).reshape(-1, 4))
+    assert [ints[i] for i in pix] == ref  # every active clock carries its group, in raster order
+    blank = int(np.flatnonzero(sched.x < 0)[0])
+    assert ints[blank] == (1 << 90) | 5  # blanking: the constant word, all 96 bits of it
+    t = stream_transfers(frames, bus, blanking="random", seed=3)
+    assert bus.word_list(t.data) == ref
+    assert max(bus.word_list(t.idle)) >= 1 << 62  # random idle words use the whole 96 bits
+
+
+def test_stimulus_records_hold_the_whole_word() -> None:
+    frames = np.random.default_rng(6).integers(0, 256, (1, 2, 8, 3)).astype(np.uint8)
+    bus = BusLayout("rgb888", lanes=4)
+    sched = schedule(tiny(2, 2), 1, None)
+    words = video_data_words(sched, frames, bus, seed=9)
+    fields = video_word_fields(sched, words, 96, None, bus)
+    with tempfile.TemporaryDirectory() as tmp:
+        nbytes = (96 + 6 + 7) // 8
+        raw = write_words(Path(tmp) / "stim.bin", fields).read_bytes()
+        hex_lines = write_words_hex(Path(tmp) / "stim.hex", fields, digits=(96 + 6 + 3) // 4).read_text().split()
+    # Reference: Python's int.from_bytes of each big-endian record (what $fread fills a reg with).
+    records = [int.from_bytes(raw[i:i + nbytes], "big") for i in range(0, len(raw), nbytes)]
+    assert [r & ((1 << 96) - 1) for r in records] == bus.word_list(words)
+    assert [(r >> video_bit("de", 96)) & 1 for r in records] == sched.de.astype(int).tolist()
+    assert [int(h, 16) for h in hex_lines] == records and len(hex_lines[0]) == 26
+
+
+def _binary_capture(width: int, words: list[int | None]) -> bytes:
+    """A binary capture file as the Verilog harness writes it: one pixel record per word (None: X/Z), then the end."""
+    nw = (width + 31) // 32
+    out = [CAPTURE_MAGIC, CAPTURE_VERSION, FAMILY_CODES["stream"], width]
+    for clock, w in enumerate(words):
+        out += [clock, ord("P") | ((1 if w is None else 0) << 8)]
+        out += [((w or 0) >> (32 * j)) & 0xFFFFFFFF for j in range(nw)]
+    out += [len(words), ord("E")] + [0] * nw
+    return np.array(out, "<u4").tobytes()
+
+
+def test_capture_of_a_64_bit_output_bus_splits_into_eight_lanes() -> None:
+    rng = np.random.default_rng(7)
+    px = rng.integers(0, 256, (3, 8)).tolist()
+    px[1][7] = 255  # the top bit of the word set: a negative int64 if the word were kept whole
+    bus = BusLayout("gray8", lanes=8, lane_order="first_high")
+    # Reference: Python integers, first pixel in bits 63..56.
+    words = [sum(v << (8 * (7 - k)) for k, v in enumerate(row)) for row in px]
+    want = [v for row in px for v in row] + [UNKNOWN] * 8
+    cap = parse_capture_binary(_binary_capture(64, words + [None]), bus=bus)
+    assert cap.values.tolist() == want and cap.column.tolist()[:9] == list(range(9))
+    text = "# vkit capture 1 stream 64\n" + "".join(f"{i} P {w:x}\n" for i, w in enumerate(words)) + "3 P U\n4 E -\n"
+    assert parse_capture_text(text, bus=bus).values.tolist() == want
+    with pytest.raises(ConfigError, match="64 bits, wider than the 62 bits one sample holds; give pixels_per_clock"):
+        parse_capture_binary(_binary_capture(64, words))
+
+
+# ------------------------------------------------------------------------------------------------ simulations
+
+MANIFEST = SAMPLE_RTL / "designs.toml"
+
+_SORTCAM = """
+[run]
+simulators = ["{sim}"]
+jobs = 2
+cache_dir = "{cache}"
+path = "{path}"
+waves = "off"
+
+[[import]]
+manifest = "{manifest}"
+use = ["sortcam_dilate_q4"]
+bugs = true
+
+[stimulus]
+patterns = [{{ name = "conveyor", seeds = [1] }}]
+timings = ["tiny32x24"]
+backpressure = [{{ probability = 0.2, max_length = 3 }}]
+gaps = [{{ probability = 0.1, max_length = 2 }}]
+seeds = [1]
+"""
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("sim, path", [("icarus", "clock"), ("icarus", "fast"), ("icarus", "native"),
+                                       ("verilator", "native")])
+def test_four_rgb_pixels_a_beat_pass_and_the_reversed_lanes_are_named(tmp_path: Path, build_cache_dir: Path,
+                                                                      sim: str, path: str) -> None:
+    simulator_available(sim)
+    cfg = tmp_path / "sortcam.toml"
+    cfg.write_text(_SORTCAM.format(sim=sim, cache=build_cache_dir.as_posix(), path=path, manifest=MANIFEST.as_posix()))
+    result = run(load_config(cfg), jobs=2, progress=False, out_dir=tmp_path / "out")
+    by_name = {c.id.split("/")[0]: c for c in result.cases}
+    bugs = tomllib.loads(MANIFEST.read_text())["designs"]["sortcam_dilate_q4"]["bugs"]
+    assert set(by_name) == {"sortcam_dilate_q4"} | {f"sortcam_dilate_q4@{b}" for b in bugs}
+    assert by_name["sortcam_dilate_q4"].status == "pass", by_name["sortcam_dilate_q4"].diagnosis
+    for bug, body in bugs.items():
+        case = by_name[f"sortcam_dilate_q4@{bug}"]
+        assert case.status == "fail" and case.diagnosis_kind == body["expect"], (bug, case.diagnosis)
+
+
+_PASSTHROUGH = """
+[run]
+simulators = ["{sim}"]
+jobs = 1
+cache_dir = "{cache}"
+path = "{path}"
+waves = "off"
+
+[designs.wide8]
+top = "video_passthrough"
+sources = ["{source}"]
+pixel_format = "gray8"
+pixels_per_clock = 8
+lane_order = "{order}"
+parameters = {{ WIDTH = 64 }}
+
+[designs.wide8.spec]
+name = "centre_tap"
+input = "gray8"
+filter = {{ kind = "custom", taps = [[0, 0, 0], [0, 1, 0], [0, 0, 0]] }}
+
+[designs.wide8.ports]
+clock = "clk"
+reset = "rst"
+{ports}
+[stimulus]
+patterns = ["noise", "ramp_h"]
+size = [64, 8]
+frames = 2
+seeds = [1]
+"""
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("sim, order", [("icarus", "first_low"), ("verilator", "first_high")])
+def test_eight_gray_pixels_a_clock_come_back_through_a_64_bit_output(tmp_path: Path, build_cache_dir: Path,
+                                                                     sim: str, order: str) -> None:
+    simulator_available(sim)
+    ports = "".join(f'{r} = "{r}"\n' for r in ("in_vsync", "in_hsync", "in_de", "in_valid", "in_data", "out_vsync",
+                                              "out_hsync", "out_de", "out_valid", "out_data"))
+    cfg = tmp_path / "wide8.toml"
+    source = Path(__file__).parent / "hdl" / "video_passthrough.v"
+    cfg.write_text(_PASSTHROUGH.format(sim=sim, cache=build_cache_dir.as_posix(), path="native", order=order,
+                                       source=source.as_posix(), ports=ports))
+    result = run(load_config(cfg), jobs=1, progress=False, out_dir=tmp_path / "out")
+    assert [c.status for c in result.cases] == ["pass", "pass"], [c.diagnosis for c in result.cases]

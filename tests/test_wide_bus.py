@@ -10,6 +10,7 @@ maximum is checked against SciPy in test_window_kernels.py.
 
 from __future__ import annotations
 
+import json
 import tempfile
 import tomllib
 from pathlib import Path
@@ -202,3 +203,15 @@ def test_eight_gray_pixels_a_clock_come_back_through_a_64_bit_output(tmp_path: P
                                        source=source.as_posix(), ports=ports))
     result = run(load_config(cfg), jobs=1, progress=False, out_dir=tmp_path / "out")
     assert [c.status for c in result.cases] == ["pass", "pass"], [c.diagnosis for c in result.cases]
+
+
+def test_widths_json_gives_the_lane_layout(capsys: pytest.CaptureFixture[str]) -> None:
+    from vkit.cli import main
+
+    assert main(["widths", "edge", "--json", "--pixels-per-clock", "4", "--lane-order", "first_high"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    bus = out["bus"]
+    # 4 RGB888 pixels: 4 x 3 x 8 = 96 bits, the first pixel in the top 24 (bits 95..72) with first_high.
+    assert (bus["pixels_per_clock"], bus["lane_order"], bus["word_bits"], bus["sample_bits"]) == (4, "first_high", 96, 8)
+    assert bus["component_order"] == "RGB" and "pixel 0 in bits 95..72" in bus["layout"]
+    assert bus["output_word_bits"] == 32 and [s["name"] for s in out["stages"]][0] == "input"

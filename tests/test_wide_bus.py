@@ -191,15 +191,16 @@ seeds = [1]
 
 
 @pytest.mark.sim
-@pytest.mark.parametrize("sim, order", [("icarus", "first_low"), ("verilator", "first_high")])
+@pytest.mark.parametrize("sim, path, order", [("icarus", "clock", "first_high"), ("icarus", "native", "first_low"),
+                                              ("verilator", "native", "first_high")])
 def test_eight_gray_pixels_a_clock_come_back_through_a_64_bit_output(tmp_path: Path, build_cache_dir: Path,
-                                                                     sim: str, order: str) -> None:
+                                                                     sim: str, path: str, order: str) -> None:
     simulator_available(sim)
     ports = "".join(f'{r} = "{r}"\n' for r in ("in_vsync", "in_hsync", "in_de", "in_valid", "in_data", "out_vsync",
                                               "out_hsync", "out_de", "out_valid", "out_data"))
     cfg = tmp_path / "wide8.toml"
     source = Path(__file__).parent / "hdl" / "video_passthrough.v"
-    cfg.write_text(_PASSTHROUGH.format(sim=sim, cache=build_cache_dir.as_posix(), path="native", order=order,
+    cfg.write_text(_PASSTHROUGH.format(sim=sim, cache=build_cache_dir.as_posix(), path=path, order=order,
                                        source=source.as_posix(), ports=ports))
     result = run(load_config(cfg), jobs=1, progress=False, out_dir=tmp_path / "out")
     assert [c.status for c in result.cases] == ["pass", "pass"], [c.diagnosis for c in result.cases]

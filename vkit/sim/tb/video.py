@@ -238,6 +238,8 @@ class VideoMonitor(_FrameMonitor):
         facts: the capture's run facts to start from (kept, not copied); sources write into :attr:`facts`
             through their ``stats``.
         active_high: role -> pin polarity of ``out_de``, ``out_valid``, ``out_enable`` (left out: active high).
+        bus: the lane layout of ``out_data``; needed when the word is over 62 bits (each lane is then
+            recorded as a pixel as it is sampled, :attr:`splits_lanes`).
 
     Clock numbering: clock 0 is the first rising edge after :meth:`start`; values are sampled on the edge.
     """
@@ -259,8 +261,11 @@ class VideoMonitor(_FrameMonitor):
         reset_active_high: bool = True,
         facts: RunFacts | None = None,
         active_high: Mapping[str, bool] | None = None,
+        bus: BusLayout | None = None,
     ) -> None:
         super().__init__(dut, signals, clock, reset, reset_active_high=reset_active_high)
+        self.bus = bus
+        """The lane layout of ``out_data`` (needed for a word over 62 bits, split into pixels as sampled)."""
         if "out_vsync" not in self._h and not expected_height:
             raise ConfigError(
                 "video monitor: role 'out_vsync' is not mapped and expected_height is not given; "
@@ -315,7 +320,7 @@ class VideoMonitor(_FrameMonitor):
         read_vs = self._level_reader("out_vsync", self.vsync_active_high)
         read_hs = self._level_reader("out_hsync", self.hsync_active_high)
         read_data = word_reader(self._h["out_data"])
-        add = self._builder.add
+        add = self._adder()
         facts = self.facts
         event_at = self._event_at
         prev = {"de": 0, "vs": False, "hs": False}

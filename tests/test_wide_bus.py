@@ -216,3 +216,33 @@ def test_widths_json_gives_the_lane_layout(capsys: pytest.CaptureFixture[str]) -
     assert (bus["pixels_per_clock"], bus["lane_order"], bus["word_bits"], bus["sample_bits"]) == (4, "first_high", 96, 8)
     assert bus["component_order"] == "RGB" and "pixel 0 in bits 95..72" in bus["layout"]
     assert bus["output_word_bits"] == 32 and [s["name"] for s in out["stages"]][0] == "input"
+
+
+@pytest.mark.sim
+def test_export_of_the_four_pixel_design_runs_without_python_and_replays(tmp_path: Path, capsys) -> None:
+    import subprocess
+
+    from vkit.cli import main
+    from vkit.sim.simulators import find, subprocess_env
+
+    simulator_available("icarus")
+    cfg = tmp_path / "sortcam.toml"
+    cfg.write_text(_SORTCAM.format(sim="icarus", cache=(tmp_path / "cache").as_posix(), path="native",
+                                   manifest=MANIFEST.as_posix()).replace("gaps = [", "# gaps = ["))
+    for name, verdict in (("sortcam_dilate_q4", "vkit: PASS"), ("sortcam_dilate_q4@out_first_low", "vkit: FAIL")):
+        out = tmp_path / name
+        assert main(["export", str(cfg), f"{name}/icarus/conveyor-s1/32x24/nogap-bp0.2m3", "--out", str(out)]) == 0
+        log = ""
+        for cmd in ("iverilog -g2012 -s tb_vkit -o tb_vkit.vvp tb_vkit.v vkit_harness.v".split()
+                    + [str(SAMPLE_RTL / "sortcam_dilate_q4.v")] + (["-DSORTCAM_OUT_FIRST_LOW=1"] if "@" in name else []),
+                    ["vvp", "-n", "tb_vkit.vvp"]):
+            res = subprocess.run(cmd, cwd=out, env=subprocess_env(find("icarus")), capture_output=True, text=True)
+            log += res.stdout + res.stderr
+        assert verdict in log, log[-1500:]
+        capsys.readouterr()
+        code = main(["replay", str(out)])
+        printed = capsys.readouterr().out
+        if "@" in name:
+            assert code != 0 and "lanes:" in printed and "lane 0 carries pixel 3" in printed, printed
+        else:
+            assert code == 0, printed

@@ -28,6 +28,7 @@ from vkit.sim.fast.wire import (
     video_word_fields,
     word_bytes,
 )
+from vkit.video.bus import BusLayout
 from vkit.video.timing import ClockSchedule, schedule
 from vkit.video.words import (
     INPUT_LEVEL_ROLES,
@@ -50,6 +51,7 @@ __all__ = [
     "write_words",
     "write_stimulus",
     "expected_words",
+    "expected_lane_fields",
     "write_expected",
     "fast_run_dir",
     "prepare_fast_run",
@@ -310,14 +312,8 @@ def write_stimulus(case: SimCase, out_dir: str | Path, in_width: int | None = No
     return write(case, out, width, language, case.effective_timeout_clocks())
 
 
-def expected_words(expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> np.ndarray:
-    """Expected-output words ``{check, value[out_width-1:0]}`` per output pixel in output (raster) order.
-
-    Args:
-        expected: ``(F, H, W)`` or ``(H, W)`` non-negative integer model output.
-        mask: bool, ``(H, W)`` or ``(F, H, W)``; False where the pixel is not checked (border). None = all.
-        out_width: output data bus bits.
-    """
+def _expected_frames(expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> tuple[np.ndarray, np.ndarray]:
+    """The expected output as ``(F, H, W)`` int64 values and its check mask, both checked."""
     e = np.asarray(expected)
     if e.ndim == 2:
         e = e[None]
@@ -329,12 +325,51 @@ def expected_words(expected: np.ndarray, mask: np.ndarray | None, out_width: int
             "give the right out_width"
         )
     m = np.ones(e.shape, bool) if mask is None else np.broadcast_to(np.asarray(mask, bool), e.shape)
+    return e.astype(np.int64), m
+
+
+def expected_words(expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> np.ndarray:
+    """Expected-output words ``{check, value[out_width-1:0]}`` per output pixel in output (raster) order.
+
+    Args:
+        expected: ``(F, H, W)`` or ``(H, W)`` non-negative integer model output.
+        mask: bool, ``(H, W)`` or ``(F, H, W)``; False where the pixel is not checked (border). None = all.
+        out_width: output data bus bits.
+    """
+    e, m = _expected_frames(expected, mask, out_width)
     return e.astype(np.uint64).reshape(-1) | (m.reshape(-1).astype(np.uint64) << np.uint64(out_width))
 
 
-def write_expected(path: str | Path, expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> Path:
-    """Write :func:`expected_words` as a ``$readmemh`` file (``out_width + 1`` bits per line)."""
-    return write_hex(path, expected_words(expected, mask, out_width), out_width + 1)
+def expected_lane_fields(expected: np.ndarray, mask: np.ndarray | None, out_width: int,
+                         bus: BusLayout) -> list[tuple[np.ndarray, int]]:
+    """Expected-output words of a bus carrying ``bus.lanes`` pixels a word, as bit fields (least significant
+    first): ``{check[lanes-1:0], value[out_width-1:0]}`` per output word in output order, where field ``j``
+    (bits ``j * f .. j * f + f - 1``, ``f = out_width // lanes``) holds the pixel the lane order puts there and
+    check bit ``j`` says whether that pixel is checked.
+    """
+    lanes = bus.lanes
+    if out_width % lanes:
+        raise ConfigError(f"expected output: the {out_width}-bit output bus does not split into {lanes} equal "
+                          "lanes; give an output bus of pixels_per_clock equal fields")
+    e, m = _expected_frames(expected, mask, out_width // lanes)
+    if e.shape[-1] % lanes:
+        raise ConfigError(f"expected output: width {e.shape[-1]} is not a multiple of {lanes} pixels a clock")
+    field = out_width // lanes
+    groups = e.reshape(-1, lanes)
+    checks = m.reshape(-1, lanes)
+    # field j of the word holds the pixel whose lane shift is j * field
+    order = [next(k for k in range(lanes) if bus.lane_shift(k, field) == j * field) for j in range(lanes)]
+    return [(groups[:, k], field) for k in order] + [(checks[:, k], 1) for k in order]
+
+
+def write_expected(path: str | Path, expected: np.ndarray, mask: np.ndarray | None, out_width: int,
+                   bus: BusLayout | None = None) -> Path:
+    """Write the expected output as a ``$readmemh`` file: :func:`expected_words` (``out_width + 1`` bits a line),
+    or with several pixels a word :func:`expected_lane_fields` (``out_width + lanes`` bits a line)."""
+    if bus is None or bus.lanes == 1:
+        return write_hex(path, expected_words(expected, mask, out_width), out_width + 1)
+    fields = expected_lane_fields(expected, mask, out_width, bus)
+    return write_words_hex(path, fields, digits=(out_width + bus.lanes + 3) // 4)
 
 
 def fast_run_dir(case: SimCase) -> Path:

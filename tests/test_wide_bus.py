@@ -166,12 +166,13 @@ path = "{path}"
 waves = "off"
 
 [designs.wide8]
-top = "video_passthrough"
+top = "{top}"
 sources = ["{source}"]
+family = "{family}"
 pixel_format = "gray8"
 pixels_per_clock = 8
 lane_order = "{order}"
-parameters = {{ WIDTH = 64 }}
+parameters = {{ {width} = 64 }}
 
 [designs.wide8.spec]
 name = "centre_tap"
@@ -179,8 +180,6 @@ input = "gray8"
 filter = {{ kind = "custom", taps = [[0, 0, 0], [0, 1, 0], [0, 0, 0]] }}
 
 [designs.wide8.ports]
-clock = "clk"
-reset = "rst"
 {ports}
 [stimulus]
 patterns = ["noise", "ramp_h"]
@@ -189,19 +188,35 @@ frames = 2
 seeds = [1]
 """
 
+_VIDEO_PORTS = {"clock": "clk", "reset": "rst", **{r: r for r in (
+    "in_vsync", "in_hsync", "in_de", "in_valid", "in_data", "out_vsync", "out_hsync", "out_de", "out_valid", "out_data")}}
+_STREAM_PORTS = {"clock": "clk_i", "reset": "rst_i", "in_valid": "din_vld", "in_ready": "din_rdy", "in_data": "din_pix",
+                 "in_sof": "din_first", "in_eol": "din_last", "out_valid": "dout_vld", "out_ready": "dout_rdy",
+                 "out_data": "dout_pix", "out_sof": "dout_first", "out_eol": "dout_last"}
+_PASS_DESIGNS = {  # family, language -> top, source, width parameter, ports
+    ("video", "verilog"): ("video_passthrough", Path(__file__).parent / "hdl" / "video_passthrough.v", "WIDTH",
+                           _VIDEO_PORTS),
+    ("video", "vhdl"): ("fast_video_pass_vhd", Path(__file__).parent / "hdl_fast" / "fast_video_pass.vhd", "WIDTH",
+                        _VIDEO_PORTS),
+    ("stream", "vhdl"): ("fast_stream_pass_vhd", Path(__file__).parent / "hdl_fast" / "fast_stream_pass.vhd",
+                         "PIX_BITS", _STREAM_PORTS),
+}
+
 
 @pytest.mark.sim
-@pytest.mark.parametrize("sim, path, order", [("icarus", "clock", "first_high"), ("icarus", "native", "first_low"),
-                                              ("verilator", "native", "first_high")])
-def test_eight_gray_pixels_a_clock_come_back_through_a_64_bit_output(tmp_path: Path, build_cache_dir: Path,
-                                                                     sim: str, path: str, order: str) -> None:
+@pytest.mark.parametrize("sim, path, family, order", [
+    ("icarus", "clock", "video", "first_high"), ("icarus", "native", "video", "first_low"),
+    ("verilator", "native", "video", "first_high"), ("ghdl", "fast", "video", "first_low"),
+    ("ghdl", "fast", "stream", "first_high")])
+def test_eight_gray_pixels_a_clock_come_back_through_a_64_bit_output(tmp_path: Path, build_cache_dir: Path, sim: str,
+                                                                     path: str, family: str, order: str) -> None:
+    # A pass-through design behind the centre-tap filter: 64-bit words in and out on every drive path.
     simulator_available(sim)
-    ports = "".join(f'{r} = "{r}"\n' for r in ("in_vsync", "in_hsync", "in_de", "in_valid", "in_data", "out_vsync",
-                                              "out_hsync", "out_de", "out_valid", "out_data"))
+    top, source, width, ports = _PASS_DESIGNS[(family, "vhdl" if sim == "ghdl" else "verilog")]
     cfg = tmp_path / "wide8.toml"
-    source = Path(__file__).parent / "hdl" / "video_passthrough.v"
-    cfg.write_text(_PASSTHROUGH.format(sim=sim, cache=build_cache_dir.as_posix(), path=path, order=order,
-                                       source=source.as_posix(), ports=ports))
+    cfg.write_text(_PASSTHROUGH.format(sim=sim, cache=build_cache_dir.as_posix(), path=path, order=order, top=top,
+                                       source=source.as_posix(), family=family, width=width,
+                                       ports="".join(f'{r} = "{p}"\n' for r, p in ports.items())))
     result = run(load_config(cfg), jobs=1, progress=False, out_dir=tmp_path / "out")
     assert [c.status for c in result.cases] == ["pass", "pass"], [c.diagnosis for c in result.cases]
 

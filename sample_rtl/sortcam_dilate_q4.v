@@ -43,6 +43,7 @@ module sortcam_dilate_q4 #(
 );
     localparam integer BEATS = MAX_COLS / 4;
     localparam integer BW = $clog2(BEATS + 1);
+    localparam integer AW = (BEATS > 1) ? $clog2(BEATS) : 1;  // line store address
     localparam integer RW = $clog2(ROWS + 1);
 
     // phases: TAKE input beats; CLOSE one clock after a line (its last output beat); DRAIN the
@@ -60,24 +61,28 @@ module sortcam_dilate_q4 #(
     wire close = adv & (phase == CLOSE);             // the line's right edge: no new column
 
     // ---- luma of the four incoming pixels, lane 0 = first pixel (top of the input word)
+    // the sum is at most 256 * 255 + 128 = 65408: 16 bits; the low byte is the fraction dropped
+    /* verilator lint_off UNUSEDSIGNAL */
     function [7:0] luma8(input [23:0] rgb);
-        reg [16:0] acc;
+        reg [15:0] acc;
         begin
-            acc = 17'd77 * rgb[23:16] + 17'd150 * rgb[15:8] + 17'd29 * rgb[7:0] + 17'd128;
+            acc = 16'd77 * rgb[23:16] + 16'd150 * rgb[15:8] + 16'd29 * rgb[7:0] + 16'd128;
             luma8 = acc[15:8];
         end
     endfunction
+    /* verilator lint_on UNUSEDSIGNAL */
     wire [31:0] y_in = {luma8(s_axis_tdata[23:0]), luma8(s_axis_tdata[47:24]),
                         luma8(s_axis_tdata[71:48]), luma8(s_axis_tdata[95:72])};  // lane k in [8k+7:8k]
 
     // ---- two line stores of luma beats: up1 = the row above the incoming one, up2 = two above
     reg [31:0] up1 [0:BEATS-1];
     reg [31:0] up2 [0:BEATS-1];
-    wire [31:0] a1 = up1[beat];
-    wire [31:0] a2 = up2[beat];
+    wire [AW-1:0] addr = beat[AW-1:0];                   // beat < BEATS inside a line
+    wire [31:0] a1 = up1[addr];
+    wire [31:0] a2 = up2[addr];
     always @(posedge aclk) if (take) begin
-        up2[beat] <= a1;
-        up1[beat] <= y_in;
+        up2[addr] <= a1;
+        up1[addr] <= y_in;
     end
 
     // the output row is the one above the incoming row (DRAIN: the last row itself)
@@ -87,11 +92,12 @@ module sortcam_dilate_q4 #(
     wire [31:0] n_top = out_row0 ? a1 : a2;
     wire [31:0] n_bot = (phase == DRAIN) ? a1 : y_in;
 
-    // ---- the last two columns of the window (p = two beats back, q = the previous beat)
-    reg [31:0] p_top, p_mid, p_bot, q_top, q_mid, q_bot;
+    // ---- the window's columns: q = the previous beat, p = the last pixel of the beat before it
+    reg [7:0]  p_top, p_mid, p_bot;
+    reg [31:0] q_top, q_mid, q_bot;
     reg        q_first;                                  // q is beat 0 of its line
     always @(posedge aclk) if (step) begin
-        p_top <= q_top; p_mid <= q_mid; p_bot <= q_bot;
+        p_top <= q_top[31:24]; p_mid <= q_mid[31:24]; p_bot <= q_bot[31:24];
         q_top <= n_top; q_mid <= n_mid; q_bot <= n_bot;
         q_first <= (beat == {BW{1'b0}});
     end
@@ -104,11 +110,12 @@ module sortcam_dilate_q4 #(
             max3 = (m > z) ? m : z;
         end
     endfunction
-    function [31:0] row_max(input [31:0] l, input [31:0] c, input [31:0] r, input has_l, input has_r);
+    // l_px: the last pixel of the beat on the left, r_px: the first of the beat on the right
+    function [31:0] row_max(input [7:0] l_px, input [31:0] c, input [7:0] r_px, input has_l, input has_r);
         reg [7:0] west, east;
         begin
-            west = has_l ? l[31:24] : c[7:0];
-            east = has_r ? r[7:0] : c[31:24];
+            west = has_l ? l_px : c[7:0];
+            east = has_r ? r_px : c[31:24];
             row_max = {max3(c[23:16], c[31:24], east), max3(c[15:8], c[23:16], c[31:24]),
                        max3(c[7:0], c[15:8], c[23:16]), max3(west, c[7:0], c[15:8])};
         end
@@ -121,9 +128,9 @@ module sortcam_dilate_q4 #(
         end
     endfunction
     wire has_r = step;                                   // on close the right neighbour is missing
-    wire [31:0] res = max_rows(row_max(p_top, q_top, n_top, ~q_first, has_r),
-                               row_max(p_mid, q_mid, n_mid, ~q_first, has_r),
-                               row_max(p_bot, q_bot, n_bot, ~q_first, has_r));
+    wire [31:0] res = max_rows(row_max(p_top, q_top, n_top[7:0], ~q_first, has_r),
+                               row_max(p_mid, q_mid, n_mid[7:0], ~q_first, has_r),
+                               row_max(p_bot, q_bot, n_bot[7:0], ~q_first, has_r));
     // q is a real column of this line once beat >= 1 (step) or at the line's close
     wire out_now = emits & ((step & (beat != {BW{1'b0}})) | close);
 

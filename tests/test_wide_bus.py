@@ -261,3 +261,16 @@ def test_export_of_the_four_pixel_design_runs_without_python_and_replays(tmp_pat
             assert code != 0 and "lanes:" in printed and "lane 0 carries pixel 3" in printed, printed
         else:
             assert code == 0, printed
+
+
+def test_scaffold_reads_the_96_bit_stream_as_four_rgb_pixels(tmp_path: Path) -> None:
+    # vkit init on the sample as a user would run it: the stream family from the AXI4-Stream names, the
+    # active-low reset from its name, and 4 pixels a clock of rgb888 from the 96-bit data port.
+    from vkit.run.scaffold import scaffold
+
+    scaffold("sortcam_dilate_q4", [SAMPLE_RTL / "sortcam_dilate_q4.v"], tmp_path / "kit", simulators=["icarus"])
+    design = tomllib.loads((tmp_path / "kit" / "vkit.toml").read_text())["designs"]["sortcam_dilate_q4"]
+    assert (design["family"], design["pixel_format"], design["pixels_per_clock"]) == ("stream", "rgb888", 4)
+    assert design["reset_active_high"] is False and design["ports"]["in_data"] == "s_axis_tdata"
+    # the lane order cannot be read from ports: the scaffold writes the default and the user sets first_high
+    assert design["lane_order"] == "first_low"

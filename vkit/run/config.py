@@ -52,7 +52,7 @@ from vkit.core.validate import (
 )
 from vkit.core.vocab import COMPONENT_ORDERS, DRIVE_DEFAULT, DRIVE_MODES, VERILOG_SUFFIXES, VHDL_SUFFIXES, WAVE_MODES
 from vkit.model import pipeline
-from vkit.sim.signals import FAMILY_ROLES, POLARITY_GROUPS
+from vkit.sim.signals import FAMILY_ROLES, KEEP_ROLES, POLARITY_GROUPS
 from vkit.video.enables import EnablePattern
 from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.words import BLANKING_MODES
@@ -1298,6 +1298,8 @@ def _design_cases(config: Config, d: DesignConfig, sim: str, s: _Stimulus) -> It
         for (tlabel, timing, width, height), (elabel, enable) in itertools.product(
                 _frame_timings(s, st.size, d.family, d.pixels_per_clock), _enable_settings(config, d, seed + config.run.seed)):
             check_case_size(f"{config.path.name} [stimulus]", st.frames, width, height)
+            if d.family == "stream":  # a partly filled last beat needs the per-lane valid masks
+                d.bus_layout().check_width(width, keep=all(r in d.ports for r in KEEP_ROLES))
             for flabel, stall, gap, bp in _flow_settings(s, d):
                 yield Case(
                     id=f"{d.name}/{sim}/{s.label}-s{seed}/{tlabel}/{flabel}{elabel}", design=d, simulator=sim,

@@ -66,6 +66,8 @@ _KINDS: dict[str, tuple[frozenset[str], tuple[str, ...], tuple[str, ...]]] = {
     "valid": (frozenset({"valid", "vld", "tvalid", "val", "dv", "dvalid", "datavalid", "pvld", "pvalid", "pixvalid", "pixvld"}), (), ("valid", "vld")),
     "sof": (frozenset({"sof", "tuser", "user", "sop", "framestart", "start", "startofframe"}), (), ("sof",)),
     "eol": (frozenset({"eol", "tlast", "last", "eop", "lineend", "endofline", "linelast"}), (), ("eol", "last")),
+    # a per-lane valid mask (AXI4-Stream TKEEP); not TSTRB, which marks position bytes, not absent ones
+    "keep": (frozenset({"keep", "tkeep", "lanekeep", "lanevalid", "lanesvalid", "pixkeep"}), (), ("keep",)),
     "vsync": (frozenset({"vsync", "vs", "vsyn", "vsy", "fsync", "fs", "vertsync", "verticalsync"}), ("vsync",), ("vsync", "vs")),
     "hsync": (frozenset({"hsync", "hs", "hsyn", "hsy", "lsync", "horizsync", "horizontalsync"}), ("hsync",), ("hsync", "hs")),
     "enable": (
@@ -81,7 +83,7 @@ _KINDS: dict[str, tuple[frozenset[str], tuple[str, ...], tuple[str, ...]]] = {
         ("data", "pix", "pixel", "rgb"),
     ),
 }
-_KIND_ORDER = ("enable", "clock", "reset", "ready", "valid", "sof", "eol", "vsync", "hsync", "de", "data")
+_KIND_ORDER = ("enable", "clock", "reset", "ready", "valid", "sof", "eol", "keep", "vsync", "hsync", "de", "data")
 _ACTIVE_LOW_WORDS = {"rstn", "resetn", "arstn", "aresetn", "nrst", "nreset", "rstb", "resetb"}
 _SCORE_WORDS = {3: "high", 2: "medium", 1: "low"}
 
@@ -149,7 +151,7 @@ def _role_for(kind: str, direction: str) -> str | None:
 
 
 def _fits(kind: str, port: Port) -> bool:
-    if kind == "data":
+    if kind in ("data", "keep"):
         return port.width is None or port.width > 1
     return port.width in (1, None)
 
@@ -323,6 +325,11 @@ def _pixel_format(chosen: Mapping[str, _Pick], notes: list[str]) -> tuple[str, i
                      "(Y in the low bits, the colour differences above); CONFIRM")
         return ycc, 1
     guesses = _layout_guesses(w, out[1].width if out is not None else None)
+    keep = chosen.get("in_keep")
+    if keep is not None and keep[1].width:  # a mask of one bit a lane says the lane count
+        guesses = sorted(guesses, key=lambda g: g[1] != keep[1].width)
+        notes.append(f"in_keep: {keep[1].name} ({keep[1].width} bits) is a per-lane valid mask, one bit a lane: "
+                     f"a line may end in a partly filled beat whose mask marks the lanes holding pixels; CONFIRM")
     if not guesses:
         pixel_format = "rgb888" if w > 24 else "gray8"
         notes.append(f"in_data: {port.name} is {w} bits; vkit drives {pixel_format} in its low bits; CONFIRM")

@@ -15,7 +15,7 @@ from vkit.video.bus import BusLayout, clock_timing, tiny_in_pixels
 from vkit.model.luma import sample_dtype
 from vkit.core.errors import ConfigError
 from vkit.core.validate import suggest
-from vkit.sim.signals import FAMILY_ROLES, SYNC_ROLES, SignalMap
+from vkit.sim.signals import FAMILY_ROLES, KEEP_ROLES, SYNC_ROLES, SignalMap
 from vkit.video.enables import EnablePattern
 from vkit.video.formats import PIXEL_FORMAT_BITS
 from vkit.video.timing import StallPattern, VideoTiming
@@ -164,6 +164,8 @@ class SimCase:
         self.gap_pattern()
         self.backpressure_pattern()
         self.bus_layout()
+        if self.family == "stream":
+            self.bus_layout().check_width(self.width, keep=all(r in self.signals for r in KEEP_ROLES))
         if self.family == "video":
             t = self.pixel_timing()
             self.video_timing()

@@ -12,6 +12,7 @@ from vkit.video.formats import PIXEL_FORMAT_BITS, pixel_bits
 
 __all__ = [
     "FAMILY_ROLES",
+    "KEEP_ROLES",
     "CONTROL_ROLES",
     "POLARITY_GROUPS",
     "SYNC_ROLES",
@@ -40,10 +41,17 @@ FAMILY_ROLES: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
             "out_sof",
             "out_eol",
         ),
-        ("reset",),
+        ("reset", "in_keep", "out_keep"),
     ),
 }
-"""Per family: (required roles, optional roles). Optional roles are used only when mapped, never guessed."""
+"""Per family: (required roles, optional roles). Optional roles are used only when mapped, never guessed.
+
+``in_keep`` / ``out_keep`` (stream family) are per-lane valid masks, one bit a lane (AXI4-Stream's TKEEP):
+bit ``k`` sits beside lane ``k`` of the data word under the same lane order, and a set bit marks a lane that
+holds a pixel. With them a line need not be a whole number of beats (:mod:`vkit.video.bus`)."""
+
+KEEP_ROLES: tuple[str, ...] = ("in_keep", "out_keep")
+"""The per-lane valid masks of the stream family (one bit a lane of the data word)."""
 
 CONTROL_ROLES = frozenset(
     {

@@ -123,20 +123,62 @@ class BusLayout:
             out |= arr[..., "RGB".index(letter)] << (bits * (2 - rank))
         return out
 
-    def bus_words(self, frames: np.ndarray) -> np.ndarray:
+    def bus_words(self, frames: np.ndarray, fill_seed: int | None = None) -> np.ndarray:
         """The bus word of every clock of active video, int64 ``(N, H, W // lanes)``; a :attr:`wide` word as
-        its pixel fields, ``(N, H, W // lanes, lanes)``."""
+        its pixel fields, ``(N, H, W // lanes, lanes)``.
+
+        Args:
+            frames: ``(N, H, W)`` or ``(N, H, W, 3)`` samples.
+            fill_seed: None: ``W`` must be a multiple of the lanes. A seed: a line may end in a partly filled
+                beat (a bus with a per-lane valid mask, :meth:`line_keeps`); its empty lanes carry seeded
+                random pixel fields (numpy PCG64), which nobody may take.
+        """
         pix = self.pixel_words(frames)
         width = pix.shape[-1]
+        self.check_width(width, keep=fill_seed is not None)
         if width % self.lanes:
-            raise fail(WHERE, "pixels_per_clock", self.lanes, f"not a divisor of the active width {width} pixels",
-                       "give a width that is a multiple of the pixels a clock")
+            rng = np.random.default_rng(int(fill_seed))
+            extra = rng.integers(0, 1 << self.pixel_bits, size=pix.shape[:-1] + (self.padded_width(width) - width,),
+                                 dtype=np.int64)
+            pix = np.concatenate([pix, extra], axis=-1)
+            width = pix.shape[-1]
         groups = pix.reshape(pix.shape[:-1] + (width // self.lanes, self.lanes))
         if self.wide:  # fields in bit order: the first pixel lowest for first_low, highest for first_high
             return np.ascontiguousarray(groups if self.lane_order == "first_low" else groups[..., ::-1])
         out = np.zeros(groups.shape[:-1], np.int64)
         for lane in range(self.lanes):
             out |= groups[..., lane] << self.lane_shift(lane)
+        return out
+
+    def check_width(self, width: int, keep: bool = False) -> None:
+        """Raise ConfigError when a line of ``width`` pixels is not a whole number of beats and the bus has no
+        per-lane valid mask (``keep``) to mark the partly filled last beat."""
+        if int(width) % self.lanes and not keep:
+            raise fail(WHERE, "pixels_per_clock", self.lanes, f"not a divisor of the active width {width} pixels",
+                       "give a width that is a multiple of the pixels a clock, or map the stream's per-lane "
+                       "valid masks (in_keep and out_keep) so a line may end in a partly filled beat")
+
+    def keep_mask(self, pixels: int) -> int:
+        """The per-lane valid mask of a beat whose first ``pixels`` lanes (in pixel order) hold pixels: bit
+        ``k`` of the mask sits beside lane ``k`` of the word, so it follows :attr:`lane_order` as the lanes do
+        (``first_low``: 4 lanes, 2 pixels -> ``0b0011``; ``first_high`` -> ``0b1100``)."""
+        return sum(1 << self.lane_shift(lane, 1) for lane in range(min(max(int(pixels), 0), self.lanes)))
+
+    def kept_lanes(self, mask: int) -> list[int]:
+        """The lanes (pixel order, 0 = first pixel) whose bit is set in the valid mask ``mask``."""
+        return [lane for lane in range(self.lanes) if (int(mask) >> self.lane_shift(lane, 1)) & 1]
+
+    def padded_width(self, width: int) -> int:
+        """``width`` pixels rounded up to whole beats: the lanes a line fills when its last beat is partly filled."""
+        return -(-int(width) // self.lanes) * self.lanes
+
+    def line_keeps(self, width: int) -> np.ndarray:
+        """The valid mask of every beat of a line of ``width`` pixels, int64 ``(ceil(width / lanes),)``:
+        every lane kept, but the last beat keeps the ``width % lanes`` remaining pixels (when any)."""
+        beats = self.padded_width(width) // self.lanes
+        out = np.full(beats, self.keep_mask(self.lanes), np.int64)
+        if width % self.lanes:
+            out[-1] = self.keep_mask(width % self.lanes)
         return out
 
     def random_words(self, rng: np.random.Generator, n: int) -> np.ndarray:

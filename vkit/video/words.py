@@ -193,6 +193,8 @@ class StreamTransfers:
         idle: the data word driven during those idle clocks (int64, or fields as ``data``).
         stall_pixels: ``[frame, line, column]`` of every pixel that came right after a gap.
         frames: frames in the run.
+        keep: the per-lane valid mask of every transfer (int64, :meth:`BusLayout.line_keeps`), or None for a
+            bus without one.
     """
 
     data: np.ndarray
@@ -202,6 +204,7 @@ class StreamTransfers:
     idle: np.ndarray
     stall_pixels: list[list[int]]
     frames: int
+    keep: np.ndarray | None = None
 
 
 def stream_transfers(
@@ -212,6 +215,7 @@ def stream_transfers(
     blanking: str = "random",
     blanking_value: int = 0,
     seed: int = 0,
+    keep: bool = False,
 ) -> StreamTransfers:
     """The stream source's transfers: pixels in raster order with their markers, idle gaps and idle words.
 
@@ -223,9 +227,12 @@ def stream_transfers(
         blanking: "random" (seeded random idle words) or "constant" (``blanking_value``).
         blanking_value: the constant idle word.
         seed: seed of the random idle words (numpy PCG64).
+        keep: the bus has a per-lane valid mask: a line may end in a partly filled beat (its empty lanes carry
+            seeded random fields) and :attr:`StreamTransfers.keep` holds each transfer's mask. Gaps are then
+            drawn a beat (``gaps.draw`` over the beats of a line).
     """
     layout = BusLayout.of(bus)
-    words = layout.bus_words(frames)
+    words = layout.bus_words(frames, fill_seed=seed + 1 if keep else None)
     n, h, w = (int(v) for v in words.shape[:3])
     data = words.reshape((n * h * w,) + words.shape[3:])
     gap_arr = gaps.draw(n, h, w) if gaps is not None else np.zeros((n, h, w), np.int64)
@@ -241,6 +248,7 @@ def stream_transfers(
         idle=idle,
         stall_pixels=np.argwhere(gap_arr > 0).astype(int).tolist(),
         frames=n,
+        keep=np.tile(layout.line_keeps(int(np.asarray(frames).shape[2])), n * h) if keep else None,
     )
 
 

@@ -38,6 +38,7 @@ from vkit.sim.fast.stimulus import fast_run_dir, prepare_fast_run
 from vkit.sim.fast.wire import HARNESS, TOPLEVEL, capture_file_name
 from vkit.sim.hdlports import find_design
 from vkit.sim.simulators import TIMESCALE
+from vkit.sim.signals import KEEP_ROLES
 from vkit.video.formats import pixel_bits
 
 __all__ = [
@@ -224,13 +225,19 @@ def fast_build_plan(
         include_dirs: folders the design's `include lines search (to read its port widths).
 
     Raises:
-        ConfigError: a width cannot be worked out, or a bad family/language/name.
+        ConfigError: a width cannot be worked out, a bad family/language/name, or a per-lane valid mask is
+            mapped (``in_keep`` / ``out_keep``: only the per-clock path drives and reads it).
     """
     srcs = [Path(s) for s in sources]
     language = _language_of(srcs, language)
     params = dict(parameters or {})
     defs = dict(defines or {})
     roles = dict(getattr(signals, "roles", signals) or {})
+    keeps = [r for r in KEEP_ROLES if r in roles]
+    if keeps:  # the harness players carry no mask: driving it would send padded lanes as pixels
+        raise ConfigError(f"fast path: design {dut_top} maps the per-lane valid mask(s) {', '.join(keeps)}, which the "
+                          "fast and native harnesses do not drive or read yet; run it with drive = 'clock' "
+                          "(drive = 'auto' picks it)")
     for src in srcs:
         if not src.is_file():
             raise ConfigError(f"fast path: design source {str(src)!r} does not exist; give the design's HDL files")

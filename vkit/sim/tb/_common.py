@@ -254,7 +254,30 @@ class _FrameMonitor(_Component):
     def splits_lanes(self) -> bool:
         """True when the capture holds one sample a pixel already: an output word over
         :data:`~vkit.video.bus.MAX_WORD_BITS` bits is split into its lanes as it is sampled (no sample holds it)."""
-        return self.bus is not None and self.bus.lanes > 1 and self.data_bits > MAX_WORD_BITS
+        return self.bus is not None and self.bus.lanes > 1 and (self.data_bits > MAX_WORD_BITS or self.keeps_lanes)
+
+    @property
+    def keeps_lanes(self) -> bool:
+        """True when the output carries a per-lane valid mask (``out_keep`` mapped): only the marked lanes
+        of a word are pixels, so words are split into lanes as they are sampled."""
+        return "out_keep" in self._h
+
+    def _kept_adder(self) -> Callable[[int, int, int], None]:
+        """What records a sampled word with its per-lane valid mask: each marked lane as a pixel, in pixel
+        order (a mask that held X or Z keeps every lane)."""
+        add = self._builder.add
+        assert self.bus is not None
+        bus = self.bus
+        field = self.data_bits // bus.lanes
+        shifts = [bus.lane_shift(k, field) for k in range(bus.lanes)]
+        mask = (1 << field) - 1
+        kept = {m: [shifts[k] for k in bus.kept_lanes(m)] for m in range(1 << bus.lanes)}
+
+        def add_kept(value: int, clock: int, keep: int) -> None:
+            for shift in kept.get(keep & ((1 << bus.lanes) - 1), shifts) if keep >= 0 else shifts:
+                add(UNKNOWN if value == UNKNOWN else (value >> shift) & mask, clock)
+
+        return add_kept
 
     def _adder(self) -> Callable[[int, int], None]:
         """What records a sampled word: the builder's ``add``, or one that adds each lane as a pixel (:attr:`splits_lanes`)."""

@@ -10,6 +10,7 @@ from cocotb.triggers import RisingEdge
 
 from vkit.sim.signals import SignalMap
 from vkit.sim.tb._common import _Component, _FrameMonitor, _in_data_bits, _Source, bit_reader, word_reader
+from vkit.core.errors import ConfigError
 from vkit.video.capture import UNKNOWN, RunFacts
 from vkit.video.bus import BusLayout
 from vkit.video.formats import frames_array
@@ -22,7 +23,9 @@ __all__ = ["StreamSource", "StreamSink", "StreamMonitor"]
 class StreamSource(_Source):
     """Sends frames into a stream-family DUT: one word per transfer (``in_valid && in_ready`` on a rising edge).
 
-    ``in_sof`` marks the first pixel of a frame, ``in_eol`` the last pixel of each line. Seeded random idle
+    ``in_sof`` marks the first pixel of a frame, ``in_eol`` the last pixel of each line. With ``in_keep``
+    mapped (a per-lane valid mask, one bit a lane) a line may end in a partly filled beat: the mask marks
+    the lanes that hold pixels, the empty lanes carry seeded random fields. Seeded random idle
     gaps (valid low, garbage data) come before a pixel with the gap pattern's probability. While valid is
     high and ready is low nothing changes: the word is held until it is taken.
 
@@ -71,7 +74,12 @@ class StreamSource(_Source):
         self.gaps = gaps
         self.sent = 0
         """Words taken by the DUT so far."""
-        for role in ("in_valid", "in_sof", "in_eol"):
+        self.keep = "in_keep" in self._h
+        """True when the DUT takes a per-lane valid mask (``in_keep`` mapped)."""
+        if self.keep and len(self._h["in_keep"]) < self._layout(self.pixel_format or "gray8").lanes:
+            raise ConfigError(f"role 'in_keep' -> port {self.signals.roles['in_keep']!r} is {len(self._h['in_keep'])} "
+                              f"bits wide; a per-lane valid mask needs one bit a lane; map a port of pixels_per_clock bits")
+        for role in ("in_valid", "in_sof", "in_eol") + (("in_keep",) if self.keep else ()):
             self._h[role].value = 0
         self._h["in_data"].value = 0
 
@@ -80,7 +88,7 @@ class StreamSource(_Source):
         arr, fmt = frames_array(frames, self.pixel_format)
         self._check_data_width(fmt)
         t = stream_transfers(arr, self._layout(fmt), self.gaps, blanking=self.blanking, blanking_value=self.blanking_value,
-                             seed=self.seed)
+                             seed=self.seed, keep=self.keep)
         self.stats.stall_pixels = t.stall_pixels
         self.stats.frames_sent = t.frames
         self.stats.first_input_clock = None
@@ -96,6 +104,7 @@ class StreamSource(_Source):
         words, garbage = self._ints(t.data), self._ints(t.idle)
         gap = t.gaps.tolist()
         sof, eol = t.sof.astype(int).tolist(), t.eol.astype(int).tolist()
+        keeps = t.keep.tolist() if t.keep is not None else None
         await self._reset_released()
         h = self._h
         valid, data, s_sof, s_eol = h["in_valid"], h["in_data"], h["in_sof"], h["in_eol"]
@@ -106,6 +115,8 @@ class StreamSource(_Source):
         self.sent = 0
         valid_level = 0
         last_sof = last_eol = 0
+        last_keep = -1
+        s_keep = h.get("in_keep")
         for i, word in enumerate(words):
             g = gap[i]
             if g:
@@ -125,6 +136,8 @@ class StreamSource(_Source):
                 s_sof.value = last_sof = sof[i]
             if eol[i] != last_eol:
                 s_eol.value = last_eol = eol[i]
+            if keeps is not None and keeps[i] != last_keep:
+                s_keep.value = last_keep = keeps[i]
             while True:
                 await edge
                 c += 1
@@ -137,6 +150,8 @@ class StreamSource(_Source):
         valid.value = 0
         s_sof.value = 0
         s_eol.value = 0
+        if s_keep is not None:
+            s_keep.value = 0
 
 
 class StreamSink(_Component):
@@ -216,7 +231,8 @@ class StreamMonitor(_FrameMonitor):
     A transfer is a rising edge with ``out_valid`` and ``out_ready`` high. ``out_sof`` starts a new frame
     (before the pixel), ``out_eol`` ends the line (after the pixel). X/Z handling as in the video monitor.
     A transfer whose word waited at least one clock with valid high and ready low is listed in
-    ``backpressure_pixels`` as ``[frame, line, column]``.
+    ``backpressure_pixels`` as ``[frame, line, column]``. With ``out_keep`` mapped (a per-lane valid mask,
+    one bit a lane beside its lane) only the marked lanes of a word are recorded, as pixels in lane order.
 
     Args:
         dut: the cocotb top-level handle.
@@ -280,7 +296,13 @@ class StreamMonitor(_FrameMonitor):
         read_sof = bit_reader(h["out_sof"])
         read_eol = bit_reader(h["out_eol"])
         read_data = word_reader(h["out_data"])
-        add = self._adder()
+        keeping = self.keeps_lanes
+        if keeping and (self.bus is None or len(h["out_keep"]) < self.bus.lanes):
+            raise ConfigError("monitor: out_keep is mapped but the bus layout has more lanes than out_keep has bits "
+                              "(or none was given); give bus=BusLayout(..., lanes=N) and an N-bit out_keep port")
+        read_keep = word_reader(h["out_keep"]) if keeping else None
+        add_kept = self._kept_adder() if keeping else None
+        add = self._adder() if not keeping else None
         facts = self.facts
         bp_pixels = facts.backpressure_pixels
         event_at = self._event_at
@@ -314,7 +336,14 @@ class StreamMonitor(_FrameMonitor):
                         facts.first_output_clock = c
                     if held:
                         bp_pixels.append([self._frame, self._line, self._column])
-                    add(value, c)
+                    if add_kept is not None:
+                        keep = read_keep()
+                        if keep == UNKNOWN:
+                            event_at("xz_control", c, "out_keep")
+                            keep = -1
+                        add_kept(value, c, keep)
+                    else:
+                        add(value, c)
                     self._frame_pixels += 1
                     self._column += 1
                     held = False

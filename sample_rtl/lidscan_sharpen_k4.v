@@ -13,8 +13,9 @@
 // sends it when four are in or the core's end-of-line arrives (then tkeep marks the bytes
 // gathered). A beat waits in the output register while m_axis_tready is low.
 //
-// Latency: input beat to output beat about 2 + stream_core's 4 pipeline advances per pixel,
-// plus the core's one-line delay (output line y-1 leaves while input line y arrives).
+// Latency (no gaps, no back-pressure): first output beat W + 19 clocks after the first input
+// beat for a line of W pixels (51 at W = 32, 49 at W = 30): the core sees one pixel a clock, so
+// its one-line delay counts pixels; each input beat costs one clock more than its kept bytes.
 //
 // Exact integer formula (p = 3x3 window, row 0 above, replicate border), per pixel:
 //   out = min(max(5*p[1][1] - p[0][1] - p[1][0] - p[1][2] - p[2][1], 0), 255)

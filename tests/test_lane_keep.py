@@ -134,13 +134,38 @@ def test_a_30_pixel_line_without_the_masks_is_refused_before_any_simulation(tmp_
     assert len(expand_matrix(load_config(_config(tmp_path)))) == 1
 
 
-def test_the_harness_paths_refuse_a_mask_and_auto_drives_it_clock_by_clock(tmp_path: Path) -> None:
-    from vkit.run.builds import _harness_plan, pick_drive
+def test_auto_drive_takes_the_native_harness_and_the_vhdl_harness_refuses_a_mask(tmp_path: Path) -> None:
+    from vkit.run.builds import pick_drive
+    from vkit.sim.fast.build import fast_build_plan
 
     case = expand_matrix(load_config(_config(tmp_path)))[0]
-    with pytest.raises(ConfigError, match="in_keep, out_keep, which the fast and native harnesses do not drive"):
-        _harness_plan(case)
-    assert pick_drive(case, "auto") == "clock"
+    assert pick_drive(case, "auto") == "native"
+    roles = dict(case.design.ports)
+    with pytest.raises(ConfigError, match="the VHDL harness \\(GHDL\\) does not drive or read it yet; run it with drive = 'clock'"):
+        fast_build_plan("lidscan", [tmp_path / "lidscan.vhd"], "vhdl", None, None, "stream", roles, 32, 32, lanes=4)
+    # a caller that cannot carry the mask (the exported testbench checks whole words) is refused too
+    with pytest.raises(ConfigError, match="an exported testbench checks whole words"):
+        fast_build_plan("lidscan", [tmp_path / "lidscan.v"], "verilog", None, None, "stream", roles, 32, 32)
+    del roles["out_keep"]
+    with pytest.raises(ConfigError, match="both in_keep and out_keep must be mapped"):
+        fast_build_plan("lidscan", [tmp_path / "lidscan.v"], "verilog", None, None, "stream", roles, 32, 32, lanes=4)
+
+
+def test_harness_capture_keeps_only_the_marked_lanes() -> None:
+    # a capture as the Verilog harness writes it: a P record per output word, then an M record with its mask
+    from vkit.sim.fast.capture_file import parse_capture_binary
+    from vkit.sim.fast.wire import CAPTURE_MAGIC, CAPTURE_VERSION, FAMILY_CODES
+
+    words = [0x04030201, 0x00000605, 0x0C0B0A09]  # line 0: pixels 1..6 (last beat keeps 2); line 1 starts 9
+    masks = [_tkeep(4), _tkeep(2), _tkeep(4)]
+    rec = [CAPTURE_MAGIC, CAPTURE_VERSION, FAMILY_CODES["stream"], 32]
+    for clock, (w, m) in enumerate(zip(words, masks)):
+        rec += [clock, ord("P"), w, clock, ord("M"), m]
+        if clock == 1:
+            rec += [clock, ord("L"), 0]
+    cap = parse_capture_binary(np.array(rec, "<u4").tobytes(), family="stream", height=2, bus=BusLayout("gray8", lanes=4))
+    assert cap.values.tolist() == [1, 2, 3, 4, 5, 6, 9, 10, 11, 12]
+    assert cap.line.tolist() == [0] * 6 + [1] * 4 and cap.column.tolist() == [0, 1, 2, 3, 4, 5, 0, 1, 2, 3]
 
 
 def test_scaffold_maps_tkeep_ports_as_the_lane_masks_and_says_so(tmp_path: Path) -> None:
@@ -154,9 +179,10 @@ def test_scaffold_maps_tkeep_ports_as_the_lane_masks_and_says_so(tmp_path: Path)
 
 
 @pytest.mark.sim
-@pytest.mark.parametrize("sim", ["icarus", "verilator"])
+@pytest.mark.parametrize("sim, path", [("icarus", "clock"), ("verilator", "clock"), ("icarus", "native"),
+                                       ("verilator", "native"), ("icarus", "fast")])
 def test_30_pixel_lines_pass_and_the_all_lanes_kept_bug_is_caught(tmp_path: Path, build_cache_dir: Path,
-                                                                    sim: str) -> None:
+                                                                    sim: str, path: str) -> None:
     simulator_available(sim)
     cfg = tmp_path / "bugs.toml"
     cfg.write_text(f"""
@@ -165,6 +191,7 @@ simulators = ["{sim}"]
 jobs = 2
 cache_dir = "{build_cache_dir.as_posix()}"
 waves = "off"
+path = "{path}"
 
 [[import]]
 manifest = "{MANIFEST.as_posix()}"
@@ -182,7 +209,7 @@ seeds = [1]
     good = [c for c in result.cases if c.id.startswith("lidscan_sharpen_k4/")]
     bad = [c for c in result.cases if c.id.startswith("lidscan_sharpen_k4@tkeep_all/")]
     assert len(good) == len(bad) == 4
-    assert all(c.status == "pass" and c.entry.get("drive") == "clock" for c in good), [c.diagnosis for c in good]
+    assert all(c.status == "pass" and c.entry.get("drive") == path for c in good), [c.diagnosis for c in good]
     want = tomllib.loads(MANIFEST.read_text())["designs"]["lidscan_sharpen_k4"]["bugs"]["tkeep_all"]["expect"]
     for c in bad:
         # every line of 30 pixels comes out as 32: the two null lanes of each last beat were taken as pixels
@@ -190,10 +217,3 @@ seeds = [1]
         assert "do not carry 30 pixels" in c.diagnosis and "line 0: 32" in c.diagnosis
 
 
-@pytest.mark.sim
-def test_explicit_native_drive_of_a_masked_design_is_a_clear_error(tmp_path: Path, build_cache_dir: Path) -> None:
-    simulator_available("icarus")
-    result = run(load_config(_config(tmp_path, path="native", cache=build_cache_dir)), jobs=1, progress=False,
-                 out_dir=tmp_path / "out")
-    (case,) = result.cases
-    assert case.status == "error" and "do not drive or read yet; run it with drive = 'clock'" in (case.diagnosis or "")

@@ -184,6 +184,7 @@ def _harness_plan(case: Case) -> HarnessBuild:
         d.top, d.sources, d.language, case.build_parameters(), d.defines, d.family,
         d.ports, reset_active_high=d.reset_active_high, pixel_format=d.pixel_format, include_dirs=d.include_dirs,
         out_active_high={r: d.port_polarity.get(r, True) for r in ("out_de", "out_valid", "out_enable")},
+        lanes=d.pixels_per_clock,
     )
 
 

@@ -37,7 +37,7 @@ from vkit.video.capture import UNKNOWN, Capture
 from vkit.video.timing import VideoTiming, tiny
 
 __all__ = ["LANE_COUNTS", "LANE_ORDERS", "MAX_WORD_BITS", "BusLayout", "clock_timing", "tiny_in_pixels", "unpack_capture",
-           "split_lanes", "spread_lanes"]
+           "split_lanes", "spread_kept_lanes", "spread_lanes"]
 
 LANE_COUNTS: tuple[int, ...] = (1, 2, 4, 8)
 """Pixels a clock a bus may carry."""
@@ -329,6 +329,20 @@ def spread_lanes(capture: Capture, lane_values: np.ndarray) -> Capture:
     rep = [np.repeat(a, lanes) for a in (capture.clock, capture.frame, capture.line)]
     return Capture(lane_values.reshape(-1).astype(np.int64), rep[0], rep[1], rep[2], column.astype(np.int64),
                    capture.facts)
+
+
+def spread_kept_lanes(capture: Capture, lane_values: np.ndarray, masks: np.ndarray, layout: BusLayout) -> Capture:
+    """As :func:`spread_lanes`, keeping only the lanes each word's per-lane valid mask marks (``masks``, one a
+    word, bit ``k`` beside lane ``k``, :meth:`BusLayout.keep_mask`); columns count the kept pixels of a line."""
+    full = spread_lanes(capture, lane_values)
+    bits = np.array([layout.lane_shift(k, 1) for k in range(layout.lanes)], np.int64)
+    kept = ((np.asarray(masks, np.int64)[:, None] >> bits[None, :]) & 1).astype(bool).reshape(-1)
+    frame, line = full.frame[kept], full.line[kept]
+    starts = np.ones(frame.size, bool)
+    starts[1:] = (frame[1:] != frame[:-1]) | (line[1:] != line[:-1])
+    index = np.arange(frame.size)
+    column = index - np.maximum.accumulate(np.where(starts, index, 0))
+    return Capture(full.values[kept], full.clock[kept], frame, line, column.astype(np.int64), capture.facts)
 
 
 def unpack_capture(capture: Capture, layout: BusLayout, bus_bits: int) -> Capture:

@@ -200,6 +200,7 @@ def fast_build_plan(
     pixel_format: str | None = None,
     out_active_high: Mapping[str, bool] | None = None,
     include_dirs: Sequence[str | Path] = (),
+    lanes: int | None = None,
 ) -> HarnessBuild:
     """Write the fast-path harness for a design and describe the one build every case runs on.
 
@@ -223,21 +224,19 @@ def fast_build_plan(
         pixel_format: "gray8" or "rgb888", only used when ``in_width`` cannot be read.
         out_active_high: polarity of the ``out_de``, ``out_valid``, ``out_enable`` pins (left out: active high).
         include_dirs: folders the design's `include lines search (to read its port widths).
+        lanes: pixels a beat, the width of the per-lane valid masks (``in_keep`` / ``out_keep``); None: the
+            caller cannot carry a mask (a mapped one is then refused).
 
     Raises:
-        ConfigError: a width cannot be worked out, a bad family/language/name, or a per-lane valid mask is
-            mapped (``in_keep`` / ``out_keep``: only the per-clock path drives and reads it).
+        ConfigError: a width cannot be worked out, a bad family/language/name, or a per-lane valid mask the
+            harness cannot carry (:func:`_check_keeps`).
     """
     srcs = [Path(s) for s in sources]
     language = _language_of(srcs, language)
     params = dict(parameters or {})
     defs = dict(defines or {})
     roles = dict(getattr(signals, "roles", signals) or {})
-    keeps = [r for r in KEEP_ROLES if r in roles]
-    if keeps:  # the harness players carry no mask: driving it would send padded lanes as pixels
-        raise ConfigError(f"fast path: design {dut_top} maps the per-lane valid mask(s) {', '.join(keeps)}, which the "
-                          "fast and native harnesses do not drive or read yet; run it with drive = 'clock' "
-                          "(drive = 'auto' picks it)")
+    _check_keeps(dut_top, roles, language, lanes)
     for src in srcs:
         if not src.is_file():
             raise ConfigError(f"fast path: design source {str(src)!r} does not exist; give the design's HDL files")
@@ -245,7 +244,7 @@ def fast_build_plan(
                          [Path(p) for p in include_dirs])
     spec = HarnessSpec(family=family, dut_top=dut_top, roles=roles, in_width=iw, out_width=ow,
                        reset_active_high=bool(reset_active_high), parameters=params,
-                       out_active_high=dict(out_active_high or {}))
+                       out_active_high=dict(out_active_high or {}), lanes=int(lanes or 1))
     text = vhdl_harness(spec) if language == "vhdl" else verilog_harness(spec)
     build_args, test_args = _simulator_args(language, defs)
     key = _build_key(text, defs, build_args, srcs)
@@ -256,6 +255,20 @@ def fast_build_plan(
     ordered = [*srcs, path] if language == "vhdl" else [path, *srcs]
     return HarnessBuild(files=[path], toplevel=TOPLEVEL, language=language, spec=spec, sources=ordered,
                         defines=defs, build_args=build_args, test_args=test_args, key=key)
+
+
+def _check_keeps(dut_top: str, roles: Mapping[str, str], language: str, lanes: int | None) -> None:
+    """Refuse a mapped per-lane valid mask where the harness cannot carry it: the VHDL harness, and callers
+    that give no lane count (the exported testbench, which checks whole words)."""
+    keeps = [r for r in KEEP_ROLES if r in roles]
+    if not keeps:
+        return
+    if language == "vhdl" or lanes is None or set(keeps) != set(KEEP_ROLES):
+        why = ("the VHDL harness (GHDL) does not drive or read it yet" if language == "vhdl" else
+               "both in_keep and out_keep must be mapped" if set(keeps) != set(KEEP_ROLES) else
+               "an exported testbench checks whole words and does not read it yet")
+        raise ConfigError(f"fast path: design {dut_top} maps the per-lane valid mask(s) {', '.join(keeps)}; {why}; "
+                          "run it with drive = 'clock' (drive = 'auto' picks it)")
 
 
 def harness_sources(

@@ -41,7 +41,7 @@ from vkit.core.errors import ConfigError, DutError
 from vkit.sim.case import SimCase
 from vkit.sim.fast.stimulus import StimulusFiles, write_stimulus
 from vkit.sim.fast.wire import CAPTURE_MAGIC, CAPTURE_ROLES, CAPTURE_VERSION, FAMILY_CODES, capture_data_words
-from vkit.video.bus import MAX_WORD_BITS, BusLayout, split_lanes, spread_lanes, unpack_capture
+from vkit.video.bus import MAX_WORD_BITS, BusLayout, split_lanes, spread_kept_lanes, spread_lanes, unpack_capture
 from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, RunFacts
 from vkit.video.timing import schedule
 from vkit.video.words import samples_between
@@ -171,6 +171,11 @@ def parse_capture_binary(
 
     cap = _build(family, clock_all, kind_a, arg, values, int(xz.sum()), height, split_on_height, facts)
     cap.facts.out_data_bits = width
+    masks = words[kind_a == ord("M"), 2].astype(np.int64)
+    if masks.size and bus is not None and bus.lanes > 1:  # an output lane mask: keep the marked lanes only
+        if masks.size != pos_p.size:
+            raise ConfigError(f"capture file: {masks.size} lane masks for {pos_p.size} output words; rerun the case")
+        return spread_kept_lanes(cap, lanes if lanes is not None else split_lanes(values, bus, width), masks, bus)
     return cap if lanes is None else spread_lanes(cap, lanes)
 
 
@@ -532,7 +537,7 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
         if cap.facts.out_data_bits is None:
             raise ConfigError(f"capture file {str(path)!r} does not name its data width, which {bus.lanes} pixels a clock "
                               "need to split the words; rebuild the harness with this vkit")
-        if cap.facts.out_data_bits <= MAX_WORD_BITS:  # a wider bus was split as it was read
+        if cap.facts.out_data_bits <= MAX_WORD_BITS and "out_keep" not in case.signals:  # split as it was read
             cap = unpack_capture(cap, bus, cap.facts.out_data_bits)
     if case.family == "video":
         pattern = case.enable_pattern()

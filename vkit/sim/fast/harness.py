@@ -50,8 +50,8 @@ _VIDEO_IN = ("in_hsync", "in_vsync", "in_de", "in_valid", "in_enable", "in_data"
 _VIDEO_OUT = ("out_vsync", "out_hsync", "out_de", "out_valid", "out_enable", "out_data")
 _OUT_LEVEL_ROLES = ("out_de", "out_valid", "out_enable")
 """Output pins whose polarity is built into the harness text (the syncs' polarity is given at run time)."""
-_STREAM_IN = ("in_valid", "in_data", "in_sof", "in_eol", "out_ready")
-_STREAM_OUT = ("in_ready", "out_valid", "out_data", "out_sof", "out_eol")
+_STREAM_IN = ("in_valid", "in_data", "in_sof", "in_eol", "out_ready", "in_keep")
+_STREAM_OUT = ("in_ready", "out_valid", "out_data", "out_sof", "out_eol", "out_keep")
 
 _LINT = ("WIDTHEXPAND", "WIDTHTRUNC", "UNUSEDSIGNAL", "UNUSEDPARAM", "BLKSEQ", "UNDRIVEN", "MULTIDRIVEN", "INITIALDLY",
          "ZERODLY")
@@ -73,6 +73,7 @@ class HarnessSpec:
             Verilog string literal with its own quotes, or a bare string that gets quoted).
         out_active_high: polarity of the ``out_de``, ``out_valid`` and ``out_enable`` pins (left out: active
             high). The input pins' levels come with the stimulus, the output syncs' polarity at run time.
+        lanes: pixels a beat; the width of the per-lane valid masks ``in_keep`` / ``out_keep`` when mapped.
     """
 
     family: str
@@ -83,6 +84,7 @@ class HarnessSpec:
     reset_active_high: bool = True
     parameters: dict[str, Any] = field(default_factory=dict)
     out_active_high: dict[str, bool] = field(default_factory=dict)
+    lanes: int = 1
 
     def __post_init__(self) -> None:
         if self.family not in FAMILY_CODES:
@@ -100,6 +102,11 @@ class HarnessSpec:
         for name in self.parameters:
             if not re.fullmatch(_IDENT, str(name)):
                 raise ConfigError(f"harness: parameter name {name!r} is not an HDL identifier; give the design's parameter name")
+
+    @property
+    def keep_bits(self) -> int:
+        """Bits of the per-lane valid mask the player drives (0 without ``in_keep``)."""
+        return self.lanes if "in_keep" in self.roles else 0
 
     @property
     def video(self) -> bool:
@@ -163,11 +170,14 @@ def _verilog_ports(spec: HarnessSpec) -> tuple[list[str], list[dict[str, Any]], 
     ins, outs = (_VIDEO_IN, _VIDEO_OUT) if spec.video else (_STREAM_IN, _STREAM_OUT)
     conns = [f".{r['clock']}(clk)"] + ([f".{r['reset']}(dut_rst)"] if "reset" in r else [])
     conns += [f".{r[role]}(d_{role})" for role in ins + outs if role in r]
-    width = {"in_data": spec.in_width, "out_data": spec.out_width}
+    width = {"in_data": spec.in_width, "out_data": spec.out_width, "in_keep": spec.lanes, "out_keep": spec.lanes}
     decl = []
     for role in ins + outs:
+        if role in ("in_keep", "out_keep") and role not in r:
+            continue
         w = width.get(role, 1)
-        decl.append({"role": role, "is_in": role in ins, "range": f"[{w - 1}:0] " if w > 1 or role.endswith("data") else ""})
+        wide = w > 1 or role.endswith(("data", "keep"))
+        decl.append({"role": role, "is_in": role in ins, "range": f"[{w - 1}:0] " if wide else ""})
     tie = []
     if spec.video:
         ties = (("out_valid", _v_bit(spec.out_level("out_valid"))), ("out_enable", _v_bit(spec.out_level("out_enable"))),
@@ -186,7 +196,8 @@ def _word_bits(spec: HarnessSpec) -> dict[str, int]:
     if spec.video:
         return {flag: video_bit(flag, iw) for flag in ("valid", "de", "vsync", "hsync", "frame_mark", "enable")}
     return {"eol": iw, "sof": iw + 1, "gap_lo": iw + 2, "gap_hi": iw + 1 + GAP_BITS,
-            "idle_lo": iw + 2 + GAP_BITS, "idle_hi": 2 * iw + 1 + GAP_BITS}
+            "idle_lo": iw + 2 + GAP_BITS, "idle_hi": 2 * iw + 1 + GAP_BITS,
+            "keep_lo": 2 * iw + 2 + GAP_BITS, "keep_hi": 2 * iw + 1 + GAP_BITS + spec.keep_bits}
 
 
 def verilog_harness(spec: HarnessSpec) -> str:
@@ -215,7 +226,7 @@ def verilog_harness(spec: HarnessSpec) -> str:
     if spec.parameters:
         items = [f".{k}({_v_value(v)})" for k, v in spec.parameters.items()]
         params = " #(\n        " + ",\n        ".join(items) + "\n    )"
-    nbits = video_word_bits(iw) if spec.video else stream_word_bits(iw)
+    nbits = video_word_bits(iw) if spec.video else stream_word_bits(iw, spec.keep_bits)
     return render(
         "harness.v.j2", dut_top=spec.dut_top, family=spec.family, video=spec.video, iw=iw, ow=ow,
         nb=word_bytes(nbits), ready_words=READY_WORDS, harness=HARNESS, toplevel=TOPLEVEL, lint=_LINT,
@@ -223,6 +234,8 @@ def verilog_harness(spec: HarnessSpec) -> str:
         magic=CAPTURE_MAGIC, version=CAPTURE_VERSION, family_code=FAMILY_CODES[spec.family], gap_bits=GAP_BITS,
         stream_tail=STREAM_TAIL_CLOCKS, bit=_word_bits(spec), ev=_event_writer(capture_data_words(ow), ow), vx=_v_x,
         on={role: _v_bit(spec.out_level(role)) for role in _OUT_LEVEL_ROLES},
+        keep_in="in_keep" in spec.roles, keep_out="out_keep" in spec.roles, lanes=spec.lanes,
+        keep_value="d_out_keep" if ow <= spec.lanes else f"{{{ow - spec.lanes}'d0, d_out_keep}}",
     )
 
 
@@ -251,6 +264,8 @@ def _vhdl_ports(spec: HarnessSpec) -> tuple[list[str], list[tuple[str, str]], li
     width = {"in_data": spec.in_width, "out_data": spec.out_width}
     sigs = []
     for role in (_VIDEO_IN + _VIDEO_OUT if spec.video else _STREAM_IN + _STREAM_OUT):
+        if role in ("in_keep", "out_keep"):  # refused for VHDL (vkit.sim.fast.build); never declared
+            continue
         sigs.append((role, f"std_logic_vector({width[role] - 1} downto 0)" if role in width else "std_logic"))
         if role in r:
             conns.append(f"{r[role]} => d_{role}")

@@ -103,7 +103,7 @@ def video_schedule_and_words(case: SimCase) -> tuple[ClockSchedule, np.ndarray]:
 def stream_stimulus(case: SimCase) -> StreamTransfers:
     """The stream family's transfers (pixels, markers, gaps, idle words), as the per-clock source sends them."""
     transfers = stream_transfers(case.load_frames(), case.bus_layout(), case.gap_pattern(), blanking=case.blanking,
-                                 blanking_value=case.blanking_value, seed=case.seed)
+                                 blanking_value=case.blanking_value, seed=case.seed, keep="in_keep" in case.signals)
     if transfers.gaps.max(initial=0) >= (1 << GAP_BITS):
         raise ConfigError(f"stream_gaps: a gap of {int(transfers.gaps.max())} clocks exceeds {(1 << GAP_BITS) - 1}; "
                           "lower max_length")
@@ -282,7 +282,9 @@ def _write_stream(case: SimCase, out: Path, in_width: int, language: str, timeou
                           "give a design whose input width matches the pixel format")
     s = stream_stimulus(case)
     write, name = (write_words_hex, "stim.hex") if language == "vhdl" else (write_words, "stim.bin")
-    stim = write(out / name, stream_word_fields(s, in_width, case.bus_layout()), word_bytes(stream_word_bits(in_width)))
+    keep_bits = case.bus_layout().lanes if s.keep is not None else 0
+    stim = write(out / name, stream_word_fields(s, in_width, case.bus_layout()),
+                 word_bytes(stream_word_bits(in_width, keep_bits)))
     levels = ready_levels(case.backpressure_pattern(), READY_WORDS)
     ready = write_hex(out / "ready.hex", levels.astype(np.uint64), 1)
     meta = {"frames_sent": s.frames, "first_input_clock": None, "stall_pixels": s.stall_pixels,

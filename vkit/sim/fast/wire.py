@@ -7,14 +7,16 @@ Video stimulus word, MSB first: ``{enable, frame_mark, hsync, vsync, de, valid, 
 clock; the control bits are pin levels, each pin's polarity applied; ``frame_mark`` is 1 on the first clock
 of each frame and only drives the harness's ``frame_pulse``).
 Stream stimulus word, MSB first: ``{idle_data[IW-1:0], gap[GAP_BITS-1:0], sof, eol, data[IW-1:0]}`` (one
-per transfer: ``gap`` idle clocks driving ``idle_data`` before the transfer). Binary stimulus files hold
+per transfer: ``gap`` idle clocks driving ``idle_data`` before the transfer); a design with per-lane valid
+masks (``in_keep``) has ``keep[LANES-1:0]`` on top of that. Binary stimulus files hold
 big-endian words of :func:`word_bytes` bytes (``$fread``); hex files one word per line (``$readmemh``).
 
 Binary capture file (little-endian 32-bit words, as Verilog ``%u`` writes them): a header of four words,
 :data:`CAPTURE_MAGIC`, :data:`CAPTURE_VERSION`, the family (0 video, 1 stream) and the output data width
 in bits; then one record of :func:`capture_record_bytes` bytes per event: the clock, ``kind | code << 8``
 (kind an ASCII letter; code 1 on a ``P`` record means X/Z data, on an ``X`` record it indexes
-:data:`CAPTURE_ROLES`) and :func:`capture_data_words` data words, least significant first.
+:data:`CAPTURE_ROLES`) and :func:`capture_data_words` data words, least significant first. With an output
+lane mask (``out_keep``) every ``P`` record is followed by an ``M`` record whose data is the word's mask.
 """
 
 from __future__ import annotations
@@ -101,9 +103,10 @@ def video_word_bits(in_width: int) -> int:
     return in_width + len(_VIDEO_FLAGS)
 
 
-def stream_word_bits(in_width: int) -> int:
-    """Bits of one stream stimulus word: data, eol, sof, the gap count and the idle data."""
-    return 2 * in_width + GAP_BITS + 2
+def stream_word_bits(in_width: int, keep_bits: int = 0) -> int:
+    """Bits of one stream stimulus word: data, eol, sof, the gap count and the idle data (and ``keep_bits``
+    of per-lane valid mask on top, for a design that takes one)."""
+    return 2 * in_width + GAP_BITS + 2 + keep_bits
 
 
 def word_bytes(bits: int) -> int:
@@ -158,8 +161,9 @@ def stream_word_fields(transfers: StreamTransfers, in_width: int,
                        bus: BusLayout | None = None) -> list[tuple[np.ndarray, int]]:
     """The stream word of every transfer as ``(values, bits)`` fields, least significant first (``bus`` as in
     :func:`video_word_fields`)."""
+    keep = [] if transfers.keep is None or bus is None else [(transfers.keep, bus.lanes)]
     return [*_data_fields(transfers.data, in_width, bus), (transfers.eol, 1), (transfers.sof, 1),
-            (transfers.gaps, GAP_BITS), *_data_fields(transfers.idle, in_width, bus)]
+            (transfers.gaps, GAP_BITS), *_data_fields(transfers.idle, in_width, bus), *keep]
 
 
 def pack_fields(fields: list[tuple[np.ndarray, int]]) -> np.ndarray:

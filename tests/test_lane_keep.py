@@ -215,5 +215,6 @@ seeds = [1]
         # every line of 30 pixels comes out as 32: the two null lanes of each last beat were taken as pixels
         assert c.status == "fail" and c.diagnosis_kind == want, c.diagnosis
         assert "do not carry 30 pixels" in c.diagnosis and "line 0: 32" in c.diagnosis
+        assert "rounded up to whole beats of 4: the last beat's per-lane valid mask (out_keep) marks 2" in c.diagnosis
 
 

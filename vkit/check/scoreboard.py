@@ -105,8 +105,19 @@ def _stuck_delimiter_issue(i: int, lengths: Sequence[int], w: int, family: str |
     )
 
 
+def _whole_beats_note(bad: list[tuple[int, int]], width: int, lanes: int | None) -> str:
+    """A note when every wrong line is the line rounded up to whole beats (a lane mask that marks empty lanes)."""
+    if not lanes or lanes < 2 or width % lanes == 0:
+        return ""
+    beats = -(-width // lanes) * lanes
+    if any(n != beats for _, n in bad):
+        return ""
+    return (f"; every one is {beats} pixels, the line rounded up to whole beats of {lanes}: the last beat's "
+            f"per-lane valid mask (out_keep) marks {beats - width} lane(s) that hold no pixel")
+
+
 def _line_issues(views: list[FrameView | None], shapes: list[tuple[int, int]],
-                 family: str | None = None) -> tuple[list[TimingIssue], int]:
+                 family: str | None = None, lanes: int | None = None) -> tuple[list[TimingIssue], int]:
     """Lines of the wrong length and frames with the wrong line count; pixels past the grid."""
     issues: list[TimingIssue] = []
     extra = 0
@@ -125,7 +136,8 @@ def _line_issues(views: list[FrameView | None], shapes: list[tuple[int, int]],
             more = f" (+{len(bad) - _LINES_LISTED} more)" if len(bad) > _LINES_LISTED else ""
             issues.append(TimingIssue(
                 "line_length",
-                f"frame {i}: {len(bad)} line(s) do not carry {w} pixels ({listed}{more})",
+                f"frame {i}: {len(bad)} line(s) do not carry {w} pixels ({listed}{more})"
+                + _whole_beats_note(bad, w, lanes),
                 {"frame": i, "width": w, "lines": [[y, n] for y, n in bad[:EVIDENCE_ITEMS]]},
             ))
         if len(lengths) != h:
@@ -237,7 +249,7 @@ def _timing_issues(
     ``latency`` is ``(declared, measured, tolerance)`` in clocks.
     """
     facts = capture.facts
-    issues, extra = _line_issues(views, shapes, facts.family)
+    issues, extra = _line_issues(views, shapes, facts.family, facts.pixels_per_clock)
     extra += int(np.count_nonzero(capture.frame >= len(shapes))) if len(capture) else 0
     issues.append(_frame_count_issue(capture, len(shapes)))
     issues.extend(_sync_issues(facts))

@@ -31,6 +31,7 @@ _SHOWN_BY = {
     "lanes_swapped": "conveyor",
     "chroma_slip_odd": "conveyor",
     "path8": "conveyor",
+    "tkeep_all": "box30",  # a line that ends in a partly filled beat: 30 pixels at 4 a beat
 }
 
 _CONFIG = """
@@ -48,7 +49,8 @@ manifest = "{manifest}"
 use = ["edge_core"]
 
 [stimulus]
-patterns = [{{ name = "conveyor", seeds = [1] }}, "box"]
+patterns = [{{ name = "conveyor", seeds = [1] }}, "box",
+            {{ name = "box", label = "box30", size = [30, 24], designs = ["lidscan_sharpen_k4@*"] }}]
 timings = ["tiny32x24"]
 stalls = [{{ probability = 0.1, max_length = 3 }}]
 backpressure = [{{ probability = 0.2, max_length = 3 }}]

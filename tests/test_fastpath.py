@@ -62,7 +62,7 @@ def run_fast(sim: str, case: SimCase, top: str, sources: list[Path], work: Path,
     language = "vhdl" if sim == "ghdl" else "verilog"
     plan = fast_build_plan(top, sources, language, parameters, defines, case.family, case.signals,
                            out_dir=work / "harness", pixel_format=case.pixel_format,
-                           reset_active_high=case.reset_active_high)
+                           reset_active_high=case.reset_active_high, lanes=case.pixels_per_clock)
     runner = get_runner(sim)
     if build_dir is None:
         build_dir = work / f"build_{sim}"

@@ -282,16 +282,19 @@ def harness_sources(
     out_width: int | None = None,
     parameters: Mapping[str, Any] | None = None,
     defines: Mapping[str, Any] | None = None,
+    carry_keep: bool = True,
 ) -> HarnessBuild:
     """:func:`fast_build_plan` with the family, signals, reset polarity and pixel format taken from ``case``.
 
     Only the case's design-side fields are used, so every case of the same design gives the same build.
-    The other arguments are those of :func:`fast_build_plan`.
+    The other arguments are those of :func:`fast_build_plan`; ``carry_keep=False`` (a caller that checks
+    whole words, the exported testbench) refuses a mapped per-lane valid mask.
     """
     return fast_build_plan(
         dut_top, sources, language, parameters, defines, case.family, case.signals, in_width, out_width,
         out_dir=out_dir, reset_active_high=case.reset_active_high, pixel_format=case.pixel_format,
         out_active_high={r: case.active_high(r) for r in ("out_de", "out_valid", "out_enable")},
+        lanes=case.pixels_per_clock if carry_keep else None,
     )
 
 

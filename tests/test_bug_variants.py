@@ -50,7 +50,7 @@ use = ["edge_core"]
 
 [stimulus]
 patterns = [{{ name = "conveyor", seeds = [1] }}, "box",
-            {{ name = "box", label = "box30", size = [30, 24], designs = ["lidscan_sharpen_k4@*"] }}]
+            {{ name = "box", label = "box30", designs = ["lidscan_sharpen_k4@*"], timings = [{{ name = "tiny30x24", h_active = 30, h_front_porch = 2, h_sync = 3, h_back_porch = 3, v_active = 24, v_front_porch = 1, v_sync = 1, v_back_porch = 1 }}] }}]
 timings = ["tiny32x24"]
 stalls = [{{ probability = 0.1, max_length = 3 }}]
 backpressure = [{{ probability = 0.2, max_length = 3 }}]

@@ -224,9 +224,11 @@ def write_case_report(
     # timeout / error: a simulation stopped at its time limit or by a signal, scored up to where it stopped
     failing = not getattr(verdict, "passed", False) and status in ("fail", "no_output", "timeout", "error")
     if failing or (pictures == "all" and status != "error"):
-        for fr in _rebuild_frames(verdict, expected, capture):
-            if fr.failed or pictures == "all":
-                paths["frames"][str(fr.index)] = _frame_pictures(fr, case_dir, out)
+        frames = list(_rebuild_frames(verdict, expected, capture))
+        # a case that failed on its framing only (every checked pixel right) still shows its frames
+        shown = [fr for fr in frames if fr.failed or pictures == "all"] or (frames if failing else [])
+        for fr in shown:
+            paths["frames"][str(fr.index)] = _frame_pictures(fr, case_dir, out)
     vpath = case_dir / "verdict.json"
     body = {"id": str(case_id), "verdict": verdict.to_dict(), "meta": dict(meta or {})}
     vpath.write_text(json.dumps(body, indent=2, default=_json_default))

@@ -19,8 +19,10 @@ from vkit.check.results import Finding, Verdict
 from vkit.check.scoreboard import score
 from vkit.core.errors import ConfigError
 from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
+from vkit.video.bus import BusLayout, unpack_capture
 from vkit.video.capture import RunFacts
 from vkit.video.observe import FramePixels, FrameRebuilder, Levels
+from vkit.video.words import sync_counts
 
 __all__ = ["PassiveOptions", "FrameScore", "PassiveScoreboard"]
 
@@ -34,7 +36,11 @@ class PassiveOptions:
         align: ``"exact"`` or ``"auto"`` (as :func:`~vkit.check.scoreboard.score`).
         max_listed: failing pixels listed in the verdict.
         keep_failing: failing frames whose arrays are kept for the pictures (the rest keep their counts).
-        vsync_active_high: polarity of the input and output vsync (video family).
+        vsync_active_high: polarity of the input and output vsync (video family) when ``active_high`` does not
+            name them.
+        active_high: side role (``"in_de"``, ``"out_vsync"``, ...) -> True when the design's pin is active high
+            (the config's ``port_polarity``); roles left out are active high.
+        out_data_bits: width of the output data word, bits (needed to split it into lanes).
     """
 
     tolerance_lsb: int = 0
@@ -42,6 +48,15 @@ class PassiveOptions:
     max_listed: int = 20
     keep_failing: int = 4
     vsync_active_high: bool = True
+    active_high: tuple[tuple[str, bool], ...] = ()
+    out_data_bits: int | None = None
+
+    def side_polarity(self, side: str) -> dict[str, bool]:
+        """Role (without the side prefix) -> active high, for ``side`` ("in" or "out")."""
+        given = dict(self.active_high)
+        out = {"vsync": self.vsync_active_high, "hsync": self.vsync_active_high}
+        out.update({role.split("_", 1)[1]: high for role, high in given.items() if role.startswith(side + "_")})
+        return out
 
 
 @dataclass
@@ -102,6 +117,22 @@ class _Totals:
     timing_errors: list[str] = field(default_factory=list)
 
 
+def _sync_facts(side: str, frame: FramePixels) -> dict[str, Any]:
+    """The sync facts of one side of one frame, named as the driven run names them (``input_vsync_count``,
+    ``output_hsync_per_frame``, ...): the leading edges of the frame's span, counted by
+    :func:`~vkit.video.words.sync_counts` as the monitors count them."""
+    vs, hs = frame.vsync_clocks, frame.hsync_clocks
+    out: dict[str, Any] = {f"{side}_vsync_count": len(vs)}
+    if hs is not None:
+        out[f"{side}_hsync_per_frame"] = sync_counts(np.asarray(hs, np.int64), np.asarray(vs, np.int64))
+    if side == "input":
+        out["input_first_vsync_clock"] = vs[0] if vs else None
+        out["input_first_hsync_clock"] = hs[0] if hs else None
+    else:
+        out["output_vsync_clocks"], out["output_hsync_clocks"] = list(vs), list(hs or [])
+    return out
+
+
 _MAX_PENDING = 4
 """Closed input frames held while no output frame has come out at all; past that a dead design's frames are
 scored as missing rather than held (memory stays flat)."""
@@ -116,21 +147,24 @@ class PassiveScoreboard:
     Args:
         spec: the pipeline spec the design implements.
         family: "video" or "stream".
-        pixel_format: the input bus's pixel format ("gray8" or "rgb888").
+        bus: the input bus's layout (:class:`~vkit.video.bus.BusLayout`: pixel format, component order,
+            pixels a clock, lane order), or a pixel format name for one pixel a clock.
         options: :class:`PassiveOptions`.
     """
 
-    def __init__(self, spec: PipelineSpec, family: str, pixel_format: str, options: PassiveOptions | None = None) -> None:
+    def __init__(self, spec: PipelineSpec, family: str, bus: BusLayout | str, options: PassiveOptions | None = None) -> None:
         self.spec = spec
         self.family = family
-        self.pixel_format = pixel_format
+        self.bus = BusLayout.of(bus)
+        self.pixel_format = self.bus.pixel_format
         self.options = options or PassiveOptions()
-        high = self.options.vsync_active_high
-        self.inputs = FrameRebuilder(family, output=False, vsync_active_high=high)
-        self.outputs = FrameRebuilder(family, output=True, vsync_active_high=high)
+        self._polarity = {side: self.options.side_polarity(side) for side in ("in", "out")}
+        self.inputs = FrameRebuilder(family, output=False)
+        self.outputs = FrameRebuilder(family, output=True)
         self._in: list[FramePixels] = []
         self._out: list[FramePixels] = []
         self._t = _Totals()
+        self._last_shape: tuple[int, int] | None = None
         self.problems: list[str] = []
         """One line per frame that could not be scored (an input frame with ragged lines, a run that ended
         mid-frame)."""
@@ -139,8 +173,8 @@ class PassiveScoreboard:
 
     def feed(self, inputs: Levels, outputs: Levels) -> list[FrameScore]:
         """Take the next chunk of input and output levels (the same clocks); the frames it completed, scored."""
-        self._in.extend(self.inputs.feed(inputs))
-        self._out.extend(self.outputs.feed(outputs))
+        self._in.extend(self.inputs.feed(inputs.asserted(self._polarity["in"])))
+        self._out.extend(self.outputs.feed(outputs.asserted(self._polarity["out"])))
         return self._pair()
 
     def finish(self) -> list[FrameScore]:
@@ -199,27 +233,44 @@ class PassiveScoreboard:
     # -- scoring --------------------------------------------------------------------------------------
 
     def _facts(self, frame: FramePixels, out: FramePixels | None) -> RunFacts:
-        facts = RunFacts(family=self.family, frames_sent=1, first_input_clock=int(frame.clocks[0]))
-        facts.stall_pixels = [[0, y, x] for y, x in frame.held]
+        """The run facts of one frame, as a driven run records them for its frames: first clocks, stalls,
+        sync leading edges and counts, X/Z controls, data-enable in blanking."""
+        lanes = self.bus.lanes
+        facts = RunFacts(family=self.family, frames_sent=1, first_input_clock=int(frame.clocks[0]),
+                         pixels_per_clock=lanes if lanes > 1 else None, out_data_bits=self.options.out_data_bits)
+        facts.stall_pixels = [[0, y, x * lanes] for y, x in frame.held]
+        if self.family == "video":
+            facts.update(_sync_facts("input", frame))
         if out is not None:
             facts.first_output_clock = int(out.clocks[0])
+            facts.latency_clocks = facts.first_output_clock - facts.first_input_clock
             facts.backpressure_pixels = [[0, y, x] for y, x in out.held]
             facts.xz_control = [list(e) for e in out.events.get("xz_control", [])]
             facts.de_in_blanking = list(out.events.get("de_in_blanking", []))
+            if self.family == "video":
+                facts.update(_sync_facts("output", out))
+            if frame.shape != self._last_shape:
+                # hsync counts per vsync period are compared from the second frame of one size on: after a size
+                # change (or at the start of a run watched from any point, maybe inside vertical blanking) a
+                # design's sync delays settle, and an hsync pulse near the vsync edge may fall on either side
+                facts.input_hsync_per_frame = facts.output_hsync_per_frame = None
             facts.notes.append("passive: input frames rebuilt from the observed input interface")
         return facts
 
     def _score(self, frame: FramePixels, out: FramePixels | None) -> FrameScore | None:
         """Score one input frame against its output frame (None: nothing came out)."""
         try:
-            image = frame.image(self.pixel_format)
+            image = frame.image(self.bus)
         except ConfigError as exc:
             self.problems.append(str(exc))
             return None
         expected = run_model(self.spec, image)
         facts = self._facts(frame, out)
+        self._last_shape = frame.shape
         empty = FramePixels(0, *(np.zeros(0, np.int64) for _ in range(4)), closed=True, line_ended=True)
         capture = (out or empty).capture(facts)
+        if self.bus.lanes > 1 and self.options.out_data_bits:
+            capture = unpack_capture(capture, self.bus, self.options.out_data_bits)
         o = self.options
         verdict = score([expected], capture, tolerance_lsb=o.tolerance_lsb, align=o.align, max_listed=o.max_listed,
                         spec=self.spec, images=[image])

@@ -126,8 +126,17 @@ def attach(instance: Any, config: str | Path | Config, *, design: str | None = N
     path = getattr(handle, "_path", getattr(handle, "_name", "?"))
     out = Path(out_dir) if out_dir is not None else Path.cwd() / "vkit-passive"
     meta = {"design": d.name, "top": d.top, "instance": path, "simulator": _simulator()}
-    return Board(sampler_args, new_scoreboard(d), case_id=f"{d.name}:passive:{path}", out_dir=out.resolve(),
+    board = new_scoreboard(d, out_data_bits=_width(handle, d.ports["out_data"]))
+    return Board(sampler_args, board, case_id=f"{d.name}:passive:{path}", out_dir=out.resolve(),
                  meta=meta, fail_fast=fail_fast)
+
+
+def _width(handle: Any, port: str) -> int | None:
+    """Bits of port ``port`` of ``handle`` (None when the simulator does not say)."""
+    try:
+        return int(len(handle._get(port) if hasattr(handle, "_get") else getattr(handle, port)))
+    except Exception:  # a handle without a length: the word is then taken as one pixel
+        return None
 
 
 def _has_child(handle: Any, name: str) -> bool:

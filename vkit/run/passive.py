@@ -80,10 +80,19 @@ def side_roles(design: DesignConfig) -> dict[str, dict[str, str]]:
     return sides
 
 
-def new_scoreboard(design: DesignConfig, *, max_listed: int = 20) -> PassiveScoreboard:
-    """A passive scoreboard for ``design`` (its spec, family, pixel format, tolerance and alignment)."""
-    options = PassiveOptions(tolerance_lsb=design.tolerance_lsb, align=design.align, max_listed=max_listed)
-    return PassiveScoreboard(design.pipeline_spec(), design.family, design.pixel_format, options)
+def new_scoreboard(design: DesignConfig, *, max_listed: int = 20, out_data_bits: int | None = None) -> PassiveScoreboard:
+    """A passive scoreboard for ``design``: its spec, family, bus layout (pixel format, component order, pixels a
+    clock, lane order), pin polarity, tolerance and alignment, as the driven flow reads them from the config.
+
+    Args:
+        design: the design's config entry.
+        max_listed: failing pixels listed in the verdict.
+        out_data_bits: width of the output data word, bits (read off the simulator or the dump; splits a word
+            of several pixels into its lanes).
+    """
+    options = PassiveOptions(tolerance_lsb=design.tolerance_lsb, align=design.align, max_listed=max_listed,
+                             active_high=tuple(sorted(design.port_polarity.items())), out_data_bits=out_data_bits)
+    return PassiveScoreboard(design.pipeline_spec(), design.family, design.bus_layout(), options)
 
 
 def write_passive_report(case_id: str, board: PassiveScoreboard, out_dir: str | Path,
@@ -150,7 +159,7 @@ def score_dump(config: Config, dump: str | Path, *, design: str | None = None, s
     clock = found["clock"]["clock"]
     reset = found["clock"].get("reset")
     start = (reset, 1 if d.reset_active_high else 0) if reset else None
-    board = new_scoreboard(d)
+    board = new_scoreboard(d, out_data_bits=wave.width(found["out"]["data"]))
     for chunk in wave.levels(clock, {"in": found["in"], "out": found["out"]}, start_after=start):
         board.feed(chunk["in"], chunk["out"])
     board.finish()

@@ -111,6 +111,10 @@ class Dump:
         raise ConfigError(f"{what}: signal {path!r} is not in {self.path.name}; {hint}; fix the path (or the "
                           "scope) or dump that signal")
 
+    def width(self, name: str) -> int:
+        """Bits of signal ``name`` (a full name from :meth:`find`)."""
+        return int(self._vars[name].bitwidth or 1)
+
     def signal(self, name: str) -> _Signal:
         """Load signal ``name`` (a full name from :meth:`find`)."""
         var = self._vars[name]

@@ -1,7 +1,7 @@
 """Offline passive scoring reaches the verdict of a vkit-driven run of the same frames, on every sample design.
 
-For each sample design the passive scoreboard can read (its output has a vsync, or it is a stream) and each
-of its seeded-bug variants, every case of a small matrix (the conveyor scene and the box pattern, 32x24,
+For each sample design (video and stream, one or two pixels a clock, 8- and 10-bit grey, RGB and Y'CbCr
+4:2:2, active-low pins, a clock enable, an output without vsync) and each of its seeded-bug variants, every case of a small matrix (the conveyor scene and the box pattern, 32x24,
 stalls or back-pressure on) runs twice: once as ``vkit run`` runs it (the driven verdict), once clock by
 clock with the whole run dumped to a waveform file (FST from Icarus, VCD from GHDL), which
 ``vkit score-dump`` then scores knowing nothing of the stimulus. Both must agree on the status and on
@@ -38,15 +38,13 @@ MANIFEST = SAMPLE_RTL / "designs.toml"
 FOREIGN = SAMPLE_RTL / "foreign" / "designs.toml"
 
 DESIGNS = [
-    (MANIFEST, "edge_core", "icarus"), (MANIFEST, "blur_core", "icarus"), (MANIFEST, "median_core", "icarus"),
-    (MANIFEST, "stream_core", "icarus"), (FOREIGN, "nsync_sharpen", "icarus"), (FOREIGN, "rowmax_htotal", "icarus"),
-    (FOREIGN, "smooth_ce", "ghdl"),
+    (MANIFEST, "edge_core", "icarus"), (MANIFEST, "edge_core_vhdl", "ghdl"), (MANIFEST, "blur_core", "icarus"),
+    (MANIFEST, "median_core", "icarus"), (MANIFEST, "stream_core", "icarus"), (MANIFEST, "belt_sharpen_x2", "icarus"),
+    (MANIFEST, "belt_smooth10", "icarus"), (MANIFEST, "belt_luma422", "icarus"),
+    (FOREIGN, "nsync_sharpen", "icarus"), (FOREIGN, "rowmax_htotal", "icarus"), (FOREIGN, "smooth_ce", "ghdl"),
 ]
-"""(manifest, design, simulator) of every sample design with an output vsync (or a stream) and seeded bugs."""
-
-NOT_READ = ("belt_sharpen_x2", "belt_smooth10", "belt_luma422")
-"""Sample designs without an output vsync: the driven monitor splits their output by the expected height, which
-a passive watcher does not know beforehand (not covered yet)."""
+"""(manifest, design, simulator) of every sample design of both manifests (the SystemVerilog top with interface
+ports, belt_smooth_top.sv, runs on Verilator only and is not in a manifest)."""
 
 KNOWN_KIND_DIFFERS = {
     "blur_core@blur_truncate/icarus/conveyor-s1": (
@@ -125,3 +123,67 @@ def test_offline_passive_verdict_equals_the_driven_run(tmp_path, build_cache_dir
     bugs = {c.design.name for c in cases if c.design.bug}
     manifest_bugs = tomllib.loads(manifest.read_text())["designs"][design].get("bugs", {})
     assert len(bugs) == len(manifest_bugs)  # every seeded bug of the design was compared
+
+
+# -- live: the board attached inside the same simulation that vkit's per-clock source drives ----------------
+
+_WATCH = '''
+import os
+
+import cocotb
+
+from vkit.run.attach import PassiveFailure, attach
+from vkit.sim.case import CASE_ENV, SimCase
+from vkit.sim.tb.entry import run_case
+
+
+@cocotb.test()
+async def driven_and_watched(dut):
+    """vkit's own source and monitor play the case; a passive board watches the same ports and drives nothing."""
+    board = attach(dut, config=os.environ["WATCH_CONFIG"], design=os.environ["WATCH_DESIGN"],
+                   out_dir=os.environ["WATCH_OUT"])
+    await run_case(dut, SimCase.from_json(os.environ[CASE_ENV]))
+    try:
+        await board.check()
+    except PassiveFailure:
+        pass  # the verdict is read from the board's report.json
+'''
+
+LIVE = [
+    ("icarus", MANIFEST, "edge_core", ("edge_core/", "edge_core@de_late/", "edge_core@stall_repeat/")),
+    ("icarus", MANIFEST, "stream_core", ("stream_core@sharpen_wrap/",)),
+    ("verilator", MANIFEST, "edge_core", ("edge_core@sobel_tap_sign/", "edge_core@vsync_not_held/")),
+    ("verilator", MANIFEST, "belt_sharpen_x2", ("belt_sharpen_x2@lanes_swapped/",)),
+    ("verilator", FOREIGN, "nsync_sharpen", ("nsync_sharpen@den_polarity_slip/",)),
+    ("ghdl", MANIFEST, "edge_core_vhdl", ("edge_core_vhdl/",)),
+    ("ghdl", FOREIGN, "smooth_ce", ("smooth_ce@enable_ignored_in_blanking/",)),
+]
+"""(simulator, manifest, design, case id prefixes): a subset per simulator, good designs and seeded bugs of each
+kind of check (values, timing, stalls, lanes, pin polarity, clock enable)."""
+
+
+@pytest.mark.parametrize("sim,manifest,design,prefixes", LIVE, ids=[f"{s}-{d}" for s, _, d, _ in LIVE])
+def test_live_passive_verdict_equals_the_driven_run(tmp_path, build_cache_dir, sim, manifest, design, prefixes):
+    simulator_available(sim)
+    config = _config(tmp_path, manifest, design, sim)
+    options = RunOptions.make(tmp_path / "driven", cache_dir=build_cache_dir, waves="off")
+    cache = BuildCache(build_cache_dir)
+    cases = [c for c in expand_matrix(config) if c.id.startswith(prefixes) and "conveyor" in c.id]
+    assert cases
+    differ = []
+    for case in cases:
+        driven = run_one_case(case, options).entry["verdict"]
+        folder = tmp_path / "live" / str(case.index)
+        folder.mkdir(parents=True)
+        (folder / "watch_tb.py").write_text(_WATCH)  # the simulator's working folder is on its module path
+        env = {"WATCH_CONFIG": str(config.path), "WATCH_DESIGN": case.design.name,
+               "WATCH_OUT": str(folder / "passive")}
+        simulate(case, build_design(case, cache).build_dir, folder, make_frames(case), 300.0, test_module="watch_tb",
+                 extra_env=env)
+        report = folder / "passive" / "report.json"
+        assert report.is_file(), (folder / "sim.log").read_text()[-3000:]
+        live = __import__("json").loads(report.read_text())["cases"][0]["verdict"]
+        assert live["frames_checked"] == case.frames
+        if (live["status"], _kind(live)) != (driven["status"], _kind(driven)):
+            differ.append(f"{case.id}: driven {(driven['status'], _kind(driven))}, live {(live['status'], _kind(live))}")
+    assert not differ, "\n".join(differ)

@@ -122,6 +122,8 @@ def _sync_facts(side: str, frame: FramePixels) -> dict[str, Any]:
     ``output_hsync_per_frame``, ...): the leading edges of the frame's span, counted by
     :func:`~vkit.video.words.sync_counts` as the monitors count them."""
     vs, hs = frame.vsync_clocks, frame.hsync_clocks
+    if vs is None:  # a side without vsync: nothing counted, as the monitor counts nothing there
+        return {}
     out: dict[str, Any] = {f"{side}_vsync_count": len(vs)}
     if hs is not None:
         out[f"{side}_hsync_per_frame"] = sync_counts(np.asarray(hs, np.int64), np.asarray(vs, np.int64))
@@ -160,7 +162,9 @@ class PassiveScoreboard:
         self.options = options or PassiveOptions()
         self._polarity = {side: self.options.side_polarity(side) for side in ("in", "out")}
         self.inputs = FrameRebuilder(family, output=False)
-        self.outputs = FrameRebuilder(family, output=True)
+        self._heights: dict[int, int] = {}
+        """Lines of each input frame not yet paired: where an output without vsync ends its frames."""
+        self.outputs = FrameRebuilder(family, output=True, lines_per_frame=self._heights.get)
         self._in: list[FramePixels] = []
         self._out: list[FramePixels] = []
         self._t = _Totals()
@@ -173,7 +177,12 @@ class PassiveScoreboard:
 
     def feed(self, inputs: Levels, outputs: Levels) -> list[FrameScore]:
         """Take the next chunk of input and output levels (the same clocks); the frames it completed, scored."""
-        self._in.extend(self.inputs.feed(inputs.asserted(self._polarity["in"])))
+        closed = self.inputs.feed(inputs.asserted(self._polarity["in"]))
+        self._in.extend(closed)
+        for frame in closed:
+            self._heights[frame.index] = len(frame.line_lengths)
+        for old in [k for k in self._heights if k < self.outputs.frames_out - 1]:
+            del self._heights[old]
         self._out.extend(self.outputs.feed(outputs.asserted(self._polarity["out"])))
         return self._pair()
 

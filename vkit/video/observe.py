@@ -18,6 +18,7 @@ Numbers only: no signals, no simulator, no filters.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -84,7 +85,7 @@ class FramePixels:
         events: ``name -> [clock, role]`` or clocks of what went wrong around the frame (``xz_control``,
             ``de_in_blanking``), at most :data:`~vkit.video.capture.MAX_EVENTS` each.
         vsync_clocks: clocks of the vsync leading edges from the one that closed the frame before up to the one
-            that closed this frame (video; empty on a stream).
+            that closed this frame (video; empty on a stream; None when the side has no vsync).
         hsync_clocks: clocks of the hsync leading edges in the same span, before the closing vsync edge (video,
             hsync mapped), else None.
     """
@@ -98,7 +99,7 @@ class FramePixels:
     line_ended: bool
     held: list[list[int]] = field(default_factory=list)
     events: dict[str, list] = field(default_factory=dict)
-    vsync_clocks: list[int] = field(default_factory=list)
+    vsync_clocks: list[int] | None = field(default_factory=list)
     hsync_clocks: list[int] | None = None
 
     @property
@@ -158,6 +159,7 @@ class _Carry:
     global_line: int = 0
     frame_first_line: int = 0
     column: int = -1
+    frame_lines: int = 0
 
 
 class FrameRebuilder:
@@ -171,18 +173,23 @@ class FrameRebuilder:
             are recorded; a stream's ``held`` lists back-pressure), False for its input side (``held``
             lists the pixels right after a stall).
         vsync_active_high: polarity of vsync and hsync (video) when the levels were not made asserted.
+        lines_per_frame: for a video output without vsync: frame number -> its lines (the input frame of that
+            number; None while not known). A frame then ends after that many lines, as the per-clock monitor
+            ends one after the expected height.
     """
 
-    def __init__(self, family: str, output: bool, *, vsync_active_high: bool = True) -> None:
+    def __init__(self, family: str, output: bool, *, vsync_active_high: bool = True,
+                 lines_per_frame: Callable[[int], int | None] | None = None) -> None:
         if family not in SIDE_ROLES:
             raise ConfigError(f"family {family!r} is not known; use one of {', '.join(SIDE_ROLES)}")
         self.family = family
         self.output = output
         self.vsync_level = 1 if vsync_active_high else 0
+        self.lines_per_frame = lines_per_frame
         self._c = _Carry()
         self._blocks: list[tuple[np.ndarray, ...]] = []
         self._events: dict[str, list] = {"xz_control": [], "de_in_blanking": []}
-        self._vs_edges: list[np.ndarray] = []
+        self._vs_edges: list[np.ndarray] | None = []
         self._hs_edges: list[np.ndarray] | None = None
         self.event_totals: dict[str, int] = {"xz_control": 0, "de_in_blanking": 0}
         """Events seen over the whole run (the lists kept per frame are bounded)."""
@@ -246,7 +253,10 @@ class FrameRebuilder:
 
     def _sync_edges(self, lv: Levels, at_clock: np.ndarray, vs: np.ndarray, vs_rise: np.ndarray) -> None:
         """Keep the clocks of the vsync and hsync leading edges of the chunk (the monitor's counting)."""
-        self._vs_edges.append(at_clock[vs_rise])
+        if lv.roles["vsync"].size and lv.roles["vsync"][0] == -2:
+            self._vs_edges = None  # no vsync: nothing to count
+        else:
+            self._vs_edges.append(at_clock[vs_rise])
         if "hsync" not in lv.roles:
             return
         hs_raw = lv.roles["hsync"]
@@ -263,9 +273,13 @@ class FrameRebuilder:
         c = self._c
         de = self._bit(lv, "de", at_clock)
         pix = de & self._bit(lv, "valid", at_clock, de) if "valid" in lv.roles else de.copy()
+        if "vsync" not in lv.roles:
+            if self.lines_per_frame is None:
+                raise ConfigError("a video side without vsync needs the lines of each frame; map its vsync")
+            lv = Levels(lv.first_clock, {**lv.roles, "vsync": np.zeros(len(lv), np.int64) - 2})  # never asserted
         vs_raw = lv.roles["vsync"]
-        if self.output and (vs_raw < 0).any():
-            self._event("xz_control", [[int(k), "out_vsync"] for k in at_clock[vs_raw < 0]])
+        if self.output and (vs_raw == -1).any():
+            self._event("xz_control", [[int(k), "out_vsync"] for k in at_clock[vs_raw == -1]])
         vs = vs_raw == self.vsync_level
         de_prev = np.concatenate(([c.de], de[:-1]))
         vs_prev = np.concatenate(([c.vsync], vs[:-1]))
@@ -322,9 +336,12 @@ class FrameRebuilder:
         n = values.size
         if n == 0:
             return []
+        first_ever = not c.started
         if not c.started:  # nothing to end before the first pixel
             line_b[0] = frame_b[0] = False
             c.started = True
+        if self.lines_per_frame is not None and self.family == "video" and self._vs_edges is None:
+            frame_b = self._split_by_lines(line_b, first_ever)
         frame = c.frame + np.cumsum(frame_b)
         gline = c.global_line + np.cumsum(line_b)
         first_line = np.maximum.accumulate(np.where(frame_b, gline, c.frame_first_line))
@@ -342,6 +359,25 @@ class FrameRebuilder:
                     closed.append(self._emit(closed_by_delimiter=True, until_clock=int(clocks[lo])))
             self._blocks.append((values[lo:hi], clocks[lo:hi], lines[lo:hi], column[lo:hi], held[lo:hi]))
         return closed
+
+    def _split_by_lines(self, line_b: np.ndarray, first_ever: bool) -> np.ndarray:
+        """Frame starts of a side without vsync: a line that starts once the frame holds its input frame's lines
+        starts the next frame (one step a line, not a clock)."""
+        c = self._c
+        frame_b = np.zeros(line_b.size, bool)
+        starts = np.flatnonzero(line_b).tolist()
+        if first_ever:
+            c.frame_lines = 1
+        frame = c.frame
+        for i in starts:
+            height = self.lines_per_frame(frame)
+            if height is not None and c.frame_lines >= height:
+                frame_b[i] = True
+                frame += 1
+                c.frame_lines = 1
+            else:
+                c.frame_lines += 1
+        return frame_b
 
     def _emit(self, closed_by_delimiter: bool, until_clock: int | None = None) -> FramePixels:
         """Hand out the frame being received and forget its pixels."""
@@ -364,9 +400,11 @@ class FrameRebuilder:
         self.frames_out += 1
         return frame
 
-    def _take_sync_edges(self, last_pixel_clock: int, closed: bool) -> tuple[list[int], list[int] | None]:
+    def _take_sync_edges(self, last_pixel_clock: int, closed: bool) -> tuple[list[int] | None, list[int] | None]:
         """The sync leading edges of the frame being handed out: every vsync edge up to the first one after its
         last pixel (the edge that closed it) and the hsync edges before that one; later edges stay."""
+        if self._vs_edges is None:
+            return None, None
         vs = np.concatenate(self._vs_edges) if self._vs_edges else np.zeros(0, np.int64)
         after = np.flatnonzero(vs > last_pixel_clock)
         cut = int(after[0]) + 1 if (closed and after.size) else vs.size

@@ -46,14 +46,6 @@ DESIGNS = [
 """(manifest, design, simulator) of every sample design of both manifests (the SystemVerilog top with interface
 ports, belt_smooth_top.sv, runs on Verilator only and is not in a manifest)."""
 
-KNOWN_KIND_DIFFERS = {
-    "blur_core@blur_truncate/icarus/conveyor-s1": (
-        "the rounding detector's density limit (half the checked pixels) falls between one frame (49.7 %) and "
-        "the two frames of the driven run (51 %): passive says 'rounding', driven 'variant' (the truncation mutant); "
-        "both failing"),
-}
-"""Cases whose failure class differs, with the reason (the status still agrees)."""
-
 _CONFIG = """\
 [run]
 simulators = ["{sim}"]
@@ -115,9 +107,7 @@ def test_offline_passive_verdict_equals_the_driven_run(tmp_path, build_cache_dir
         assert not passive.problems or driven["status"] != "pass", (case.id, passive.problems)
         got = (passive.verdict.status, passive.verdict.diagnosis.kind if passive.verdict.diagnosis else None)
         want = (driven["status"], _kind(driven))
-        if got[0] != want[0]:
-            differ.append(f"{case.id}: driven {want}, passive {got}")
-        elif got[1] != want[1] and not any(case.id.startswith(k) for k in KNOWN_KIND_DIFFERS):
+        if got != want:
             differ.append(f"{case.id}: driven {want}, passive {got}")
     assert not differ, "\n".join(differ)
     bugs = {c.design.name for c in cases if c.design.bug}

@@ -20,7 +20,7 @@ from vkit.check.scoreboard import score
 from vkit.core.errors import ConfigError
 from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
 from vkit.video.bus import BusLayout, unpack_capture
-from vkit.video.capture import RunFacts
+from vkit.video.capture import MAX_EVENTS, Capture, RunFacts
 from vkit.video.observe import FramePixels, FrameRebuilder, Levels
 from vkit.video.words import sync_counts
 
@@ -108,6 +108,7 @@ class _Totals:
     """The failing frames kept with their arrays (at most ``keep_failing``)."""
     first: Verdict | None = None
     first_failing: Verdict | None = None
+    first_failing_index: int | None = None
     frames: int = 0
     failing: int = 0
     per_frame: list[dict[str, int]] = field(default_factory=list)
@@ -133,6 +134,38 @@ def _sync_facts(side: str, frame: FramePixels) -> dict[str, Any]:
     else:
         out["output_vsync_clocks"], out["output_hsync_clocks"] = list(vs), list(hs or [])
     return out
+
+
+@dataclass
+class _Opening:
+    """The first frames of the run, kept whole (input image, model result, output capture, facts) so the run's
+    diagnosis can score them together, as a driven run of those frames scores them."""
+
+    images: list[np.ndarray] = field(default_factory=list)
+    expected: list[ModelResult] = field(default_factory=list)
+    captures: list[Capture] = field(default_factory=list)
+    facts: list[RunFacts] = field(default_factory=list)
+    verdict: Verdict | None = None
+
+
+def _joint_facts(parts: list[RunFacts]) -> RunFacts:
+    """The facts of several frames scored as one run: the first frame's clocks, frame-numbered stalls, sync
+    counts added up, per-frame lists joined (hsync counts only when every frame compares them)."""
+    first = parts[0]
+    facts = replace(first, frames_sent=len(parts), notes=list(first.notes))
+    facts.stall_pixels = [[k, y, x] for k, f in enumerate(parts) for _, y, x in f.stall_pixels]
+    facts.backpressure_pixels = [[k, y, x] for k, f in enumerate(parts) for _, y, x in f.backpressure_pixels]
+    facts.xz_control = [e for f in parts for e in f.xz_control][:MAX_EVENTS]
+    facts.de_in_blanking = [c for f in parts for c in f.de_in_blanking][:MAX_EVENTS]
+    for side in ("input", "output"):
+        counts = [getattr(f, f"{side}_vsync_count") for f in parts]
+        setattr(facts, f"{side}_vsync_count", None if None in counts else sum(counts))
+        per_frame = [getattr(f, f"{side}_hsync_per_frame") for f in parts]
+        setattr(facts, f"{side}_hsync_per_frame", None if None in per_frame else [n for p in per_frame for n in p])
+    for key in ("output_vsync_clocks", "output_hsync_clocks"):
+        lists = [getattr(f, key) for f in parts]
+        setattr(facts, key, None if None in lists else [c for p in lists for c in p])
+    return facts
 
 
 _MAX_PENDING = 4
@@ -169,6 +202,7 @@ class PassiveScoreboard:
         self._out: list[FramePixels] = []
         self._t = _Totals()
         self._last_shape: tuple[int, int] | None = None
+        self._opening = _Opening()
         self.problems: list[str] = []
         """One line per frame that could not be scored (an input frame with ragged lines, a run that ended
         mid-frame)."""
@@ -284,8 +318,36 @@ class PassiveScoreboard:
         verdict = score([expected], capture, tolerance_lsb=o.tolerance_lsb, align=o.align, max_listed=o.max_listed,
                         spec=self.spec, images=[image])
         result = FrameScore(frame.index, image.shape[:2], _renumbered(verdict, frame.index), image, expected)
+        self._keep_opening(frame.index, image, expected, capture, facts, out is not None)
         self._add(result)
         return result
+
+    def _keep_opening(self, index: int, image: np.ndarray, expected: ModelResult, capture: Capture, facts: RunFacts,
+                      has_output: bool) -> None:
+        """Keep the run's first frames whole (``keep_failing`` at most, numbered from 0 without a gap)."""
+        o = self._opening
+        if index != len(o.images) or len(o.images) >= self.options.keep_failing or not has_output:
+            return
+        o.images.append(image)
+        o.expected.append(expected)
+        o.captures.append(capture)
+        o.facts.append(facts)
+
+    def _opening_verdict(self) -> Verdict | None:
+        """The first frames scored together as one run, when they hold the first failing frame (else None)."""
+        o, at = self._opening, self._t.first_failing_index
+        if at is None or at >= len(o.images):
+            return None
+        if o.verdict is None:
+            parts = o.captures
+            capture = Capture(*(np.concatenate([getattr(c, key) for c in parts]) for key in ("values", "clock")),
+                              np.concatenate([np.full(len(c), k, np.int64) for k, c in enumerate(parts)]),
+                              *(np.concatenate([getattr(c, key) for c in parts]) for key in ("line", "column")),
+                              _joint_facts(o.facts))
+            opt = self.options
+            o.verdict = score(o.expected, capture, tolerance_lsb=opt.tolerance_lsb, align=opt.align,
+                              max_listed=opt.max_listed, spec=self.spec, images=o.images)
+        return o.verdict
 
     def _add(self, fs: FrameScore) -> None:
         t, v = self._t, fs.verdict
@@ -298,7 +360,8 @@ class PassiveScoreboard:
         if v.passed:
             return
         t.failing += 1
-        t.first_failing = t.first_failing or v
+        if t.first_failing is None:
+            t.first_failing, t.first_failing_index = v, fs.index
         room = self.options.max_listed - len(t.first_mismatches)
         t.first_mismatches.extend(v.first_mismatches[:max(0, room)])
         t.timing_errors.extend(v.timing_errors[:max(0, self.options.max_listed - len(t.timing_errors))])
@@ -338,8 +401,8 @@ class PassiveScoreboard:
             reason = "; ".join(self.problems) or "no frame was complete on both sides"
             return Verdict(passed=False, status="error", timing_errors=[f"nothing was scored: {reason}"],
                            findings=[Finding("timing", f"nothing was scored: {reason}", {}, 1.0)])
-        head = t.first_failing or t.first
-        assert head is not None
+        head = self._opening_verdict() or t.first_failing or t.first
+        assert head is not None and t.first is not None
         failing = t.first_failing is not None
         return replace(
             head, passed=not failing, status=head.status if failing else "pass", frames_checked=t.frames,

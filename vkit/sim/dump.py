@@ -7,6 +7,7 @@ a value that changes at the edge itself belongs to the next clock.
 
 from __future__ import annotations
 
+import itertools
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -121,9 +122,9 @@ class Dump:
         sig = var.signal
         changes = sig[0:len(sig)]  # a slice is built by the reader, several times faster than item by item
         width = int(var.bitwidth or 1)
-        try:  # all values known: one C-level conversion of the (time, value) pairs
-            table = np.array(changes, np.int64).reshape(-1, 2)
-            return _Signal(name, width, table[:, 0].copy(), table[:, 1].copy())
+        try:  # all values known: the (time, value) pairs flattened straight into one array (no tuple per row)
+            flat = np.fromiter(itertools.chain.from_iterable(changes), np.int64, 2 * len(changes))
+            return _Signal(name, width, flat[0::2].copy(), flat[1::2].copy())
         except (TypeError, ValueError, OverflowError):
             times = np.fromiter((t for t, _ in changes), np.int64, len(changes))
             return _Signal(name, width, times, _values([v for _, v in changes]))

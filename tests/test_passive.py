@@ -30,6 +30,7 @@ from vkit.run.config import load_config
 from vkit.run.passive import score_dump
 from vkit.video.observe import FrameRebuilder, Levels
 from vkit.video.timing import StallPattern, schedule, tiny
+from vkit.video.timing import preset as tiny_preset
 from vkit.video.words import stream_transfers, video_data_words
 
 BELT_CONFIG = SAMPLE_RTL / "belt_cam.toml"
@@ -402,3 +403,44 @@ def test_score_dump_command_on_a_dump_cut_mid_frame(tmp_path, capsys):
     report = json.loads((tmp_path / "cut" / "report.json").read_text())
     assert report["cases"][0]["verdict"]["frames_checked"] == 1 and report["cases"][0]["verdict"]["passed"]
     assert "1 frame(s) scored, 0 failing" in out
+
+
+# -- the run against a given timing --------------------------------------------------------------------------
+
+
+def test_a_given_timing_checks_frame_sizes_and_hsync_pulses_of_every_vsync_period():
+    # one hsync pulse a line, v_total lines a vsync period: common practice, no source (tiny32x24 is vkit's own)
+    spec = preset("blur")
+    sent = np.random.default_rng(11).integers(0, 256, (3, 24, 32), dtype=np.uint8)
+    inputs, sched = _video_levels(sent)
+    outputs = _output_levels([run_model(spec, f).output for f in sent], 30)
+    line = tiny(32, 24).h_total
+    lost = outputs.roles["hsync"].copy()
+    k = int(np.flatnonzero(np.diff(lost, prepend=0) == 1)[2 * 27 + 5])  # one output hsync pulse of frame 2
+    lost[k:k + line // 4] = 0
+    cases = ((outputs.roles["hsync"], "tiny32x24", []), (lost, "tiny32x24", ["timing_lines"]),
+             (outputs.roles["hsync"], "tiny64x48", ["timing_lines", "timing_size"]))
+    for hsync, timing, broken in cases:
+        board = PassiveScoreboard(spec, "video", "gray8", PassiveOptions(timing=tiny_preset(timing)))
+        out = Levels(0, {**outputs.roles, "hsync": hsync})
+        board.feed(inputs, out)
+        board.finish()
+        v = board.verdict()
+        assert v.passed is (not broken), v.timing_errors
+        assert sorted({f.evidence.get("category") for f in v.findings} & {"timing_lines", "timing_size"}) == broken
+        if hsync is lost:
+            assert v.timing_errors == ["frame 2: 26 output hsync pulses, 27 input hsync pulses",  # as a driven run
+                                       "frame 2: 26 output hsync pulses in the vsync period, the timing tiny32x24 has "
+                                       "27 lines"]
+
+
+@pytest.mark.sim
+def test_score_dump_with_a_timing_the_generator_does_not_follow(tmp_path, capsys):
+    from vkit.cli import main
+
+    dump = _icarus_dump(tmp_path, None)  # the generator runs 28 lines a frame (1 + 2 + 1 blanking lines)
+    assert main(["score-dump", str(BELT_CONFIG), str(dump), "--out", str(tmp_path / "ok")]) == 0
+    code = main(["score-dump", str(BELT_CONFIG), str(dump), "--timing", "tiny32x24", "--out", str(tmp_path / "t")])
+    out = capsys.readouterr().out
+    assert code == 1
+    assert "frame 1: 28 input hsync pulses in the vsync period, the timing tiny32x24 has 27 lines" in out

@@ -22,6 +22,7 @@ from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
 from vkit.video.bus import BusLayout, unpack_capture
 from vkit.video.capture import MAX_EVENTS, Capture, RunFacts
 from vkit.video.observe import FramePixels, FrameRebuilder, Levels
+from vkit.video.timing import VideoTiming
 from vkit.video.words import sync_counts
 
 __all__ = ["PassiveOptions", "FrameScore", "PassiveScoreboard"]
@@ -41,6 +42,8 @@ class PassiveOptions:
         active_high: side role (``"in_de"``, ``"out_vsync"``, ...) -> True when the design's pin is active high
             (the config's ``port_polarity``); roles left out are active high.
         out_data_bits: width of the output data word, bits (needed to split it into lanes).
+        timing: the video timing the run should follow (in pixels), or None: each input frame's active size and
+            the hsync pulses of every vsync period on both sides (from the second frame on) are checked against it.
     """
 
     tolerance_lsb: int = 0
@@ -50,6 +53,7 @@ class PassiveOptions:
     vsync_active_high: bool = True
     active_high: tuple[tuple[str, bool], ...] = ()
     out_data_bits: int | None = None
+    timing: VideoTiming | None = None
 
     def side_polarity(self, side: str) -> dict[str, bool]:
         """Role (without the side prefix) -> active high, for ``side`` ("in" or "out")."""
@@ -118,6 +122,42 @@ class _Totals:
     timing_errors: list[str] = field(default_factory=list)
 
 
+_TIMING_CONFIDENCE = 0.9
+"""Confidence of a finding that the observed syncs or frame size break the given timing (a measured fact, ranked
+with the scoreboard's own sync-count findings)."""
+
+
+def _against_timing(t: VideoTiming, frame: FramePixels, out: FramePixels | None, first: bool) -> list[Finding]:
+    """What one frame breaks of timing ``t``: the input's active size; the hsync pulses of its vsync period on
+    each side (``v_total`` lines), skipped on the first frame, whose period began before watching did."""
+    found: list[Finding] = []
+    if frame.shape is not None and frame.shape != (t.v_active, t.h_active):
+        found.append(Finding("timing", f"frame 0: input frame is {frame.shape[1]}x{frame.shape[0]}, the timing "
+                             f"{t.name or ''} is {t.h_active}x{t.v_active}: check the stimulus or the timing given",
+                             {"category": "timing_size", "seen": list(frame.shape[::-1]),
+                              "expected": [t.h_active, t.v_active]}, _TIMING_CONFIDENCE))
+    for side, fp in (("input", frame), ("output", out)):
+        if first or fp is None or fp.hsync_clocks is None or not fp.vsync_clocks:
+            continue
+        lines = sync_counts(np.asarray(fp.hsync_clocks, np.int64), np.asarray(fp.vsync_clocks, np.int64))[-1]
+        if lines != t.v_total:
+            found.append(Finding("timing", f"frame 0: {lines} {side} hsync pulses in the vsync period, the timing "
+                                 f"{t.name or ''} has {t.v_total} lines: {side} hsync must pulse once a line",
+                                 {"category": "timing_lines", "side": side, "seen": lines, "expected": t.v_total},
+                                 _TIMING_CONFIDENCE))
+    return found
+
+
+def _with_timing_findings(verdict: Verdict, found: list[Finding]) -> Verdict:
+    """``verdict`` failed by the timing findings ``found`` (unchanged when there are none)."""
+    if not found:
+        return verdict
+    findings = sorted([*found, *verdict.findings], key=lambda f: -f.confidence)
+    return replace(verdict, passed=False, status="fail" if verdict.passed else verdict.status,
+                   timing_errors=[*verdict.timing_errors, *(f.message.rsplit(": ", 1)[0] for f in found)],
+                   findings=findings)
+
+
 def _sync_facts(side: str, frame: FramePixels) -> dict[str, Any]:
     """The sync facts of one side of one frame, named as the driven run names them (``input_vsync_count``,
     ``output_hsync_per_frame``, ...): the leading edges of the frame's span, counted by
@@ -145,6 +185,8 @@ class _Opening:
     expected: list[ModelResult] = field(default_factory=list)
     captures: list[Capture] = field(default_factory=list)
     facts: list[RunFacts] = field(default_factory=list)
+    broken: list[Finding] = field(default_factory=list)
+    """What those frames break of the given timing (found per frame, added to the joint verdict)."""
     verdict: Verdict | None = None
 
 
@@ -317,8 +359,15 @@ class PassiveScoreboard:
         o = self.options
         verdict = score([expected], capture, tolerance_lsb=o.tolerance_lsb, align=o.align, max_listed=o.max_listed,
                         spec=self.spec, images=[image])
+        broken: list[Finding] = []
+        if o.timing is not None and self.family == "video":
+            broken = _against_timing(o.timing, frame, out, frame.index == 0)
+            verdict = _with_timing_findings(verdict, broken)
         result = FrameScore(frame.index, image.shape[:2], _renumbered(verdict, frame.index), image, expected)
         self._keep_opening(frame.index, image, expected, capture, facts, out is not None)
+        if frame.index < len(self._opening.images):
+            self._opening.broken.extend(Finding(f.kind, _renumber(f.message, frame.index), f.evidence, f.confidence)
+                                        for f in broken)
         self._add(result)
         return result
 
@@ -345,8 +394,9 @@ class PassiveScoreboard:
                               *(np.concatenate([getattr(c, key) for c in parts]) for key in ("line", "column")),
                               _joint_facts(o.facts))
             opt = self.options
-            o.verdict = score(o.expected, capture, tolerance_lsb=opt.tolerance_lsb, align=opt.align,
-                              max_listed=opt.max_listed, spec=self.spec, images=o.images)
+            o.verdict = _with_timing_findings(
+                score(o.expected, capture, tolerance_lsb=opt.tolerance_lsb, align=opt.align, max_listed=opt.max_listed,
+                      spec=self.spec, images=o.images), o.broken)
         return o.verdict
 
     def _add(self, fs: FrameScore) -> None:

@@ -193,15 +193,6 @@ _NEED_STALLS = {b for b, need in ((b["define"].removeprefix("BUG_"), b.get("need
                 tomllib.loads((SAMPLE_RTL / "designs.toml").read_text())["designs"]["edge_core"]["bugs"].values())
                 if need == "stalls"}
 """Seeded bugs that only show with stalls: their driven run gets vkit's seeded stalls."""
-_DRIVEN_KIND_DIFFERS = {
-    "STALL_DROP": "vkit's seeded stalls fall elsewhere than the generator's gaps, so the lines break differently "
-                  "(driven: line lengths, 'timing'; passive: 'stall', both failing)",
-    "VSYNC_NOT_HELD": "the driven run diagnoses its two frames together (a missing last line reads as a 1-line shift); "
-                      "the passive scoreboard one frame at a time ('timing', 23 lines), both failing",
-}
-"""Bugs whose failure class differs between the driven run of one generated frame and the passive verdict."""
-
-
 def _driven_verdict(tmp: Path, image: np.ndarray, bug: str | None) -> dict:
     """``vkit run`` of one frame on the same edge_core (and seeded bug), clock path, Icarus: its report case."""
     from vkit.cli import main
@@ -243,8 +234,7 @@ def test_icarus_dump_scored_offline_like_a_driven_run(tmp_path, bug):
     image = rb.feed(chunk["in"])[0].image("rgb888")
     driven = _driven_verdict(tmp_path, image, bug)
     assert driven["verdict"]["status"] == done.verdict.status
-    if bug not in _DRIVEN_KIND_DIFFERS:
-        assert (driven["verdict"]["findings"][0]["kind"] if driven["verdict"]["findings"] else None) == kind
+    assert (driven["verdict"]["findings"][0]["kind"] if driven["verdict"]["findings"] else None) == kind
 
 
 @pytest.mark.sim

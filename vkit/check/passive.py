@@ -188,6 +188,8 @@ class _Opening:
     broken: list[Finding] = field(default_factory=list)
     """What those frames break of the given timing (found per frame, added to the joint verdict)."""
     verdict: Verdict | None = None
+    released: bool = False
+    """True once the opening frames all passed: nothing is kept from then on (memory stays flat)."""
 
 
 def _joint_facts(parts: list[RunFacts]) -> RunFacts:
@@ -208,6 +210,15 @@ def _joint_facts(parts: list[RunFacts]) -> RunFacts:
         lists = [getattr(f, key) for f in parts]
         setattr(facts, key, None if None in lists else [c for p in lists for c in p])
     return facts
+
+
+def _joint_capture(parts: list[Capture], facts: RunFacts) -> Capture:
+    """One-frame captures joined into one run's capture, part ``k`` as frame ``k``."""
+    def joined(key: str) -> np.ndarray:
+        return np.concatenate([getattr(c, key) for c in parts])
+
+    frames = np.concatenate([np.full(len(c), k, np.int64) for k, c in enumerate(parts)])
+    return Capture(joined("values"), joined("clock"), frames, joined("line"), joined("column"), facts)
 
 
 _MAX_PENDING = 4
@@ -369,13 +380,15 @@ class PassiveScoreboard:
             self._opening.broken.extend(Finding(f.kind, _renumber(f.message, frame.index), f.evidence, f.confidence)
                                         for f in broken)
         self._add(result)
+        if self._t.first_failing is None and frame.index + 1 >= self.options.keep_failing:
+            self._opening = _Opening(released=True)  # no failure among the first frames: their arrays go
         return result
 
     def _keep_opening(self, index: int, image: np.ndarray, expected: ModelResult, capture: Capture, facts: RunFacts,
                       has_output: bool) -> None:
         """Keep the run's first frames whole (``keep_failing`` at most, numbered from 0 without a gap)."""
         o = self._opening
-        if index != len(o.images) or len(o.images) >= self.options.keep_failing or not has_output:
+        if o.released or index != len(o.images) or len(o.images) >= self.options.keep_failing or not has_output:
             return
         o.images.append(image)
         o.expected.append(expected)
@@ -388,11 +401,7 @@ class PassiveScoreboard:
         if at is None or at >= len(o.images):
             return None
         if o.verdict is None:
-            parts = o.captures
-            capture = Capture(*(np.concatenate([getattr(c, key) for c in parts]) for key in ("values", "clock")),
-                              np.concatenate([np.full(len(c), k, np.int64) for k, c in enumerate(parts)]),
-                              *(np.concatenate([getattr(c, key) for c in parts]) for key in ("line", "column")),
-                              _joint_facts(o.facts))
+            capture = _joint_capture(o.captures, _joint_facts(o.facts))
             opt = self.options
             o.verdict = _with_timing_findings(
                 score(o.expected, capture, tolerance_lsb=opt.tolerance_lsb, align=opt.align, max_listed=opt.max_listed,

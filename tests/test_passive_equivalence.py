@@ -43,8 +43,17 @@ DESIGNS = [
     (MANIFEST, "belt_smooth10", "icarus"), (MANIFEST, "belt_luma422", "icarus"),
     (FOREIGN, "nsync_sharpen", "icarus"), (FOREIGN, "rowmax_htotal", "icarus"), (FOREIGN, "smooth_ce", "ghdl"),
 ]
-"""(manifest, design, simulator) of every sample design of both manifests (the SystemVerilog top with interface
+"""(manifest, design, simulator) of the sample designs of both manifests (the SystemVerilog top with interface
 ports, belt_smooth_top.sv, runs on Verilator only and is not in a manifest)."""
+
+NOT_COVERED = {"sortcam_dilate_q4": "its 96-bit words are wider than the int64 levels the passive sampler and the "
+                                    "dump reader carry (words up to 62 bits)"}
+"""Sample designs the passive scoreboard cannot read yet, and why."""
+
+
+def test_every_manifest_design_is_compared_or_named():
+    names = {n for m in (MANIFEST, FOREIGN) for n in tomllib.loads(m.read_text())["designs"]}
+    assert names == {d for _, d, _ in DESIGNS} | set(NOT_COVERED)
 
 _CONFIG = """\
 [run]

@@ -17,6 +17,7 @@ import numpy as np
 
 from vkit.core.errors import ConfigError
 from vkit.core.validate import suggest
+from vkit.video.bus import MAX_WORD_BITS
 from vkit.video.capture import UNKNOWN
 from vkit.video.observe import Levels
 
@@ -28,9 +29,14 @@ CHUNK_CLOCKS = 1 << 20
 _SUFFIXES = (".vcd", ".fst", ".ghw")
 
 
-def _values(values: list[Any]) -> np.ndarray:
-    """A signal's change values as int64; X/Z (a string from the reader) as :data:`UNKNOWN`."""
-    out = np.fromiter((v if type(v) is int else UNKNOWN for v in values), np.int64, len(values))
+def _values(values: list[Any], width: int = 1) -> np.ndarray:
+    """A signal's change values as int64, or Python ints in an object array for a signal wider than
+    :data:`~vkit.video.bus.MAX_WORD_BITS` (a wide bus word); X/Z (a string from the reader) as :data:`UNKNOWN`."""
+    if width > MAX_WORD_BITS:
+        out = np.empty(len(values), object)
+        out[:] = [v if type(v) is int else UNKNOWN for v in values]
+    else:
+        out = np.fromiter((v if type(v) is int else UNKNOWN for v in values), np.int64, len(values))
     for k in np.flatnonzero(out == UNKNOWN):  # weak levels (GHDL's H and L) resolve as a simulator would
         text = str(values[k]).upper()
         if text and set(text) <= {"0", "1", "H", "L"}:
@@ -127,7 +133,7 @@ class Dump:
             return _Signal(name, width, flat[0::2].copy(), flat[1::2].copy())
         except (TypeError, ValueError, OverflowError):
             times = np.fromiter((t for t, _ in changes), np.int64, len(changes))
-            return _Signal(name, width, times, _values([v for _, v in changes]))
+            return _Signal(name, width, times, _values([v for _, v in changes], width))
 
     def rising_edges(self, clock: str) -> np.ndarray:
         """Times of the clock's rising edges (0 or X/Z -> 1 counts only from a known 0)."""

@@ -142,9 +142,18 @@ class BusLayout:
     def split_words(self, words: np.ndarray) -> np.ndarray:
         """The inverse of :meth:`bus_words` for words of up to :data:`MAX_WORD_BITS` bits: bus words ``(..., C)``
         -> pixel fields ``(..., C * lanes)``, int64 (split by :func:`split_lanes`, as a capture is)."""
+        if self.wide:  # Python ints (an object array), as a watched bus word wider than int64 is read
+            return self._split_wide(np.asarray(words, object))
         w = np.asarray(words, np.int64)
         fields = split_lanes(w.reshape(-1), self, self.word_bits)
         return fields.reshape(w.shape[:-1] + (w.shape[-1] * self.lanes,))
+
+    def _split_wide(self, words: np.ndarray) -> np.ndarray:
+        """:meth:`split_words` for :attr:`wide` words held as Python ints: ``(..., C)`` -> ``(..., C * lanes)``."""
+        mask = (1 << self.pixel_bits) - 1
+        lanes = [(words >> self.lane_shift(k)) & mask for k in range(self.lanes)]
+        fields = np.stack(lanes, axis=-1).astype(np.int64)
+        return fields.reshape(words.shape[:-1] + (words.shape[-1] * self.lanes,))
 
     def samples(self, fields: np.ndarray) -> np.ndarray:
         """The inverse of :meth:`pixel_words`: pixel fields -> samples, ``(...)`` grey, ``(..., 3)`` RGB (R, G, B),

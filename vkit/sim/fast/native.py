@@ -21,16 +21,17 @@ from pathlib import Path
 
 from vkit.core.errors import ConfigError, ToolError, VkitError
 from vkit.sim.case import SimCase
-from vkit.sim.fast.build import VERILATOR_ARGS, HarnessBuild, define_args
+from vkit.sim.fast.build import HarnessBuild, define_args
 from vkit.sim.fast.capture_file import read_capture
 from vkit.sim.fast.stimulus import fast_run_dir, prepare_fast_run, read_fast_run
 from vkit.sim.fast.vlruntime import make_with_shared_runtime
-from vkit.sim.fast.wire import CAPTURE_BIN_NAME, TOPLEVEL
+from vkit.sim.fast.wire import CAPTURE_BIN_NAME, HARNESS, TOPLEVEL
 from vkit.sim.guard import GuardOutcome, run_guarded
+from vkit.sim.hdltext import render
 from vkit.sim.simulators import find, require, subprocess_env
 from vkit.video.capture import Capture
 
-__all__ = ["NATIVE_SIMULATORS", "harness_drives", "NativeBuild", "native_build_plan", "native_build", "native_run_args", "run_native"]
+__all__ = ["NATIVE_SIMULATORS", "NATIVE_VERILATOR_ARGS", "NATIVE_MAIN", "harness_drives", "NativeBuild", "native_build_plan", "native_build", "native_run_args", "run_native"]
 
 NATIVE_SIMULATORS = ("icarus", "verilator")
 """Simulators :func:`native_build_plan` builds a plain executable with (Verilog harness)."""
@@ -49,6 +50,12 @@ def harness_drives(simulator: str, language: str) -> tuple[str, ...]:
         return ()
     return ("native", "fast") if simulator in NATIVE_SIMULATORS else ("fast",)
 
+
+NATIVE_VERILATOR_ARGS = ("--no-timing", "-O3", "-Wno-fatal", "-Wno-lint", "-Wno-style")
+"""Verilator flags of a native build: the clock comes from the C++ main (:data:`NATIVE_MAIN`), so no timing engine."""
+
+NATIVE_MAIN = "vkit_native_main.cpp"
+"""The C++ main a native Verilator build compiles with the model (text in ``templates/native_main.cpp.j2``)."""
 
 _NATIVE_INFO = "vkit_native.json"
 _LOG_TAIL_LINES = 3
@@ -82,7 +89,7 @@ def _tail(res: subprocess.CompletedProcess[str]) -> str:
 
 
 def native_build_plan(plan: HarnessBuild, simulator: str, build_dir: str | Path) -> NativeBuild:
-    """The build of ``plan``'s harness and design as a plain executable (``iverilog``/``vvp`` or ``verilator --binary``).
+    """The build of ``plan``'s harness and design as a plain executable (``iverilog``/``vvp`` or ``verilator --cc --exe`` with a generated C++ main).
 
     Args:
         plan: from :func:`vkit.sim.fast.build.fast_build_plan` (Verilog harness).
@@ -106,14 +113,26 @@ def native_build_plan(plan: HarnessBuild, simulator: str, build_dir: str | Path)
         commands = [["iverilog", "-g2012", *defs, "-s", TOPLEVEL, "-o", str(vvp), *srcs]]
         run = ["vvp", "-n", str(vvp)]
     else:
-        mdir = out / "obj_native"
-        # what --binary does, with the build step left to make_with_shared_runtime
-        commands = [["verilator", "--cc", "--exe", "--main", *VERILATOR_ARGS, *defs, "--top-module", TOPLEVEL,
-                     "--Mdir", str(mdir), "-o", f"V{TOPLEVEL}", *srcs]]
-        run = [str(mdir / f"V{TOPLEVEL}")]
-        make = [str(mdir), f"V{TOPLEVEL}.mk", f"V{TOPLEVEL}"]
-    key = hashlib.sha256(f"{plan.key}\0{simulator}\0native".encode()).hexdigest()
+        commands, run, make = _verilator_native(out, defs, srcs)
+    key = hashlib.sha256(f"{plan.key}\0{simulator}\0native\0{_main_text()}".encode()).hexdigest()
     return NativeBuild(simulator, out, commands, run, key, make)
+
+
+def _main_text() -> str:
+    return render("native_main.cpp.j2", model=f"V{HARNESS}")
+
+
+def _verilator_native(out: Path, defs: list[str], srcs: list[str]) -> tuple[list[list[str]], list[str], list[str]]:
+    """Commands, run and make target of a Verilator native build: ``vkit_harness`` as the top, clocked by
+    the generated C++ main (measured: about 1.8 times the clocks/s of the self-clocked ``vkit_fast_top``
+    under ``--binary --timing``, the same capture byte for byte)."""
+    mdir = out / "obj_native"
+    main = out / NATIVE_MAIN
+    # the main's text is part of the build: its hash rides in the compile flags, so the build cache sees it
+    rev = hashlib.sha256(_main_text().encode()).hexdigest()[:12]
+    commands = [["verilator", "--cc", "--exe", *NATIVE_VERILATOR_ARGS, "-CFLAGS", f"-DVKIT_NATIVE_MAIN={rev}", *defs,
+                 "--top-module", HARNESS, "--Mdir", str(mdir), "-o", f"V{HARNESS}", str(main), *srcs]]
+    return commands, [str(mdir / f"V{HARNESS}")], [str(mdir), f"V{HARNESS}.mk", f"V{HARNESS}"]
 
 
 def native_build(plan: HarnessBuild, simulator: str, build_dir: str | Path, *, always: bool = False,
@@ -134,6 +153,8 @@ def native_build(plan: HarnessBuild, simulator: str, build_dir: str | Path, *, a
             return nb
     env = subprocess_env(require(simulator))
     nb.build_dir.mkdir(parents=True, exist_ok=True)
+    if nb.make:
+        (nb.build_dir / NATIVE_MAIN).write_text(_main_text())
     for cmd in nb.commands:
         res = subprocess.run(cmd, cwd=nb.build_dir, env=env, capture_output=True, text=True)
         if res.returncode != 0:

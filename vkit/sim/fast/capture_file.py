@@ -30,7 +30,7 @@ from __future__ import annotations
 
 import copy
 import tempfile
-from collections.abc import Callable
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -101,7 +101,10 @@ def parse_capture_text(
     pos_p = np.flatnonzero(kind_a == ord("P"))
     clock_all = np.array(clocks, dtype=np.int64) if clocks else np.zeros(0, np.int64)
     values, xz_data = _hex_values(np.array(args, dtype="S")[pos_p] if pos_p.size else [])
-    cap = _build(family, clock_all, kind_a, lambda i: args[i], values, xz_data, height, split_on_height, facts)
+    code_a = np.zeros(kind_a.size, np.uint8)
+    for i in np.flatnonzero(kind_a == ord("X")).tolist():
+        code_a[i] = _role_code(args[i])
+    cap = _build(family, [_Chunk(clock_all, kind_a, code_a, values, xz_data)], height, split_on_height, facts)
     if len(head) > 5 and head[5].isdigit():
         cap.facts.out_data_bits = int(head[5])
     return cap
@@ -133,14 +136,34 @@ def parse_capture_binary(
                           "rebuild the harness with this vkit")
     family = family or ("stream" if fam_code == FAMILY_CODES["stream"] else "video")
     nw = capture_data_words(width)
-    rec = 8 + 4 * nw
     body = raw[16:]
-    body = body[: body.size - body.size % rec]  # a run cut short mid-record
-    words = body.view("<u4").reshape(-1, 2 + nw)
-    clock_all = words[:, 0].astype(np.int64)
-    kc = words[:, 1]
-    kind_a = (kc & 0xFF).astype(np.uint8)
-    code = ((kc >> 8) & 0xFF).astype(np.int64)
+    body = body[: body.size - body.size % (8 + 4 * nw)]  # a run cut short mid-record
+    chunk = _decode_records(body.view("<u4").reshape(-1, 2 + nw))
+    cap = _build(family, [chunk], height, split_on_height, facts, capacity=int(chunk.values.size), value_bits=width)
+    cap.facts.out_data_bits = width
+    return cap
+
+
+def _role_code(role: str) -> int:
+    return CAPTURE_ROLES.index(role) if role in CAPTURE_ROLES else 0
+
+
+@dataclass
+class _Chunk:
+    """Decoded capture events: clock, ASCII kind and code of every event; the value of every pixel event."""
+
+    clock: np.ndarray
+    kind: np.ndarray
+    code: np.ndarray
+    values: np.ndarray
+    xz_count: int
+
+
+def _decode_records(words: np.ndarray) -> _Chunk:
+    """Binary records (``(n, 2 + data words)`` uint32) decoded; X/Z pixels get :data:`UNKNOWN`."""
+    nw = words.shape[1] - 2
+    kind_a = (words[:, 1] & 0xFF).astype(np.uint8)
+    code = ((words[:, 1] >> 8) & 0xFF).astype(np.uint8)
     pos_p = np.flatnonzero(kind_a == ord("P"))
     xz = code[pos_p] == 1
     if nw <= 2:
@@ -150,12 +173,53 @@ def parse_capture_binary(
     else:  # wider than 64 bits: Python ints, as the text parser does
         values = np.array([sum(int(w) << (32 * j) for j, w in enumerate(row)) for row in words[pos_p, 2:]], np.int64)
     values[xz] = UNKNOWN
+    return _Chunk(words[:, 0].astype(np.int64), kind_a, code, values, int(xz.sum()))
 
-    def arg(i: int) -> str:
-        c = int(code[i])
-        return CAPTURE_ROLES[c] if 0 < c < len(CAPTURE_ROLES) else "-"
 
-    cap = _build(family, clock_all, kind_a, arg, values, int(xz.sum()), height, split_on_height, facts)
+_BLOCK_RECORDS = 1 << 20
+"""Records read from a binary capture file at a time (12 MB for an 8-bit bus): the reader's memory is a
+frame's records plus one block, whatever the length of the run."""
+
+
+def _frame_blocks(path: Path, nw: int) -> Iterator[np.ndarray]:
+    """The records of a binary capture file, ``(k, 2 + nw)`` uint32, cut right before every ``F`` record
+    (a run cut short mid-record loses that record)."""
+    width = 2 + nw
+    pending = np.zeros((0, width), np.uint32)
+    with open(path, "rb") as fh:
+        fh.seek(_BINARY_HEADER_BYTES)
+        while True:
+            block = np.fromfile(fh, "<u4", count=_BLOCK_RECORDS * width)
+            block = block[: block.size - block.size % width].reshape(-1, width)
+            if block.shape[0] == 0:
+                break
+            words = np.concatenate([pending, block]) if pending.shape[0] else block
+            cuts = np.flatnonzero((words[1:, 1] & 0xFF) == ord("F")) + 1
+            start = 0
+            for cut in cuts.tolist():
+                yield words[start:cut]
+                start = cut
+            pending = words[start:].copy()  # the block itself is let go
+    if pending.shape[0]:
+        yield pending
+
+
+def _parse_binary_file(path: Path, *, family: str | None = None, height: int | None = None,
+                       split_on_height: bool = False, facts: RunFacts | None = None) -> Capture:
+    """:func:`parse_capture_binary` of a file, read a frame at a time (bounded memory on long runs of big frames)."""
+    with open(path, "rb") as fh:
+        head = np.frombuffer(fh.read(_BINARY_HEADER_BYTES), "<u4")
+    if head.size < 4:
+        raise ConfigError("capture file: no binary capture header (VKCB); give a file written by the vkit harness")
+    version, fam_code, width = (int(v) for v in head[1:4])
+    if split_on_height or version != CAPTURE_VERSION:  # frames split on height: the whole file at once
+        return parse_capture_binary(np.fromfile(path, np.uint8), family=family, height=height,
+                                    split_on_height=split_on_height, facts=facts)
+    family = family or ("stream" if fam_code == FAMILY_CODES["stream"] else "video")
+    nw = capture_data_words(width)
+    capacity = max(0, path.stat().st_size - _BINARY_HEADER_BYTES) // (8 + 4 * nw)
+    chunks = (_decode_records(words) for words in _frame_blocks(path, nw))
+    cap = _build(family, chunks, height, False, facts, capacity=capacity, value_bits=width)
     cap.facts.out_data_bits = width
     return cap
 
@@ -250,54 +314,112 @@ class _Events:
             getattr(self, key).append(entry)
 
 
-def _scan_events(family: str, clock_all: np.ndarray, kind_a: np.ndarray, pos_p: np.ndarray,
-                 arg_of: Callable[[int], str]) -> _Events:
+@dataclass
+class _NonPixel:
+    """The events other than pixels, in order: clock, ASCII kind, code and the pixels that came before each."""
+
+    clock: list[np.ndarray] = field(default_factory=list)
+    kind: list[np.ndarray] = field(default_factory=list)
+    code: list[np.ndarray] = field(default_factory=list)
+    pixels_before: list[np.ndarray] = field(default_factory=list)
+    last_clock: int | None = None
+
+    def add(self, chunk: _Chunk, pixels_so_far: int) -> None:
+        other = np.flatnonzero(chunk.kind != ord("P"))
+        self.clock.append(chunk.clock[other])
+        self.kind.append(chunk.kind[other])
+        self.code.append(chunk.code[other])
+        self.pixels_before.append(pixels_so_far + np.cumsum(chunk.kind == ord("P"))[other] if other.size else other)
+        if chunk.clock.size:
+            self.last_clock = int(chunk.clock[-1])
+
+
+def _scan_events(family: str, events: _NonPixel) -> _Events:
     """Walk the non-pixel events in order (syncs, X/Z, waits, first input, timeout, end)."""
     ev = _Events()
-    for i in np.flatnonzero(kind_a != ord("P")).tolist():
-        kind = chr(kind_a[i])
+    parts = (np.concatenate(x).tolist() if x else [] for x in (events.clock, events.kind, events.code, events.pixels_before))
+    for clock, k, code, before in zip(*parts):
+        kind = chr(k)
         if kind == "F" and family == "video":
             ev.vsync_count += 1
-            ev.vsync_clocks.append(int(clock_all[i]))
+            ev.vsync_clocks.append(clock)
             ev.hsync_per_frame.append(ev.hs_count)
             ev.hs_count = 0
         elif kind == "H":
             ev.hs_count += 1
-            ev.hsync_clocks.append(int(clock_all[i]))
+            ev.hsync_clocks.append(clock)
         elif kind == "B":
-            ev.bounded("de_in_blanking", int(clock_all[i]))
+            ev.bounded("de_in_blanking", clock)
         elif kind == "X":
-            ev.bounded("xz_control", [int(clock_all[i]), arg_of(i)])
+            ev.bounded("xz_control", [clock, CAPTURE_ROLES[code] if 0 < code < len(CAPTURE_ROLES) else "-"])
         elif kind == "K":
-            ev.waited_next.append(int(np.searchsorted(pos_p, i)))
+            ev.waited_next.append(before)
         elif kind == "I":
-            ev.first_input = int(clock_all[i])
+            ev.first_input = clock
         elif kind == "T":
             ev.timed_out = True
         elif kind == "E":
-            ev.clocks_run = int(clock_all[i])
+            ev.clocks_run = clock
     return ev
 
 
-def _build(family: str, clock_all: np.ndarray, kind_a: np.ndarray, arg_of: Callable[[int], str], values: np.ndarray,
-           xz_data: int, height: int | None, split_on_height: bool, facts: RunFacts | None) -> Capture:
-    """The Capture from decoded events (clock and ASCII kind code per event, values per pixel event); both formats."""
+class _PixelArrays:
+    """The per-pixel arrays of a capture, filled chunk by chunk in the smallest dtypes that hold them
+    (int32; values int64 when the data bus is wider than 31 bits; clocks int64 past 2**31)."""
+
+    def __init__(self, capacity: int, value_bits: int | None) -> None:
+        wide = value_bits is None or value_bits > 31
+        self.names = ("values", "clock", "frame", "line", "column")
+        self.arrays = {n: np.empty(capacity, np.int64 if n == "values" and wide else np.int32) for n in self.names}
+        self.size = 0
+
+    def add(self, values: np.ndarray, clock: np.ndarray, frame: np.ndarray, line: np.ndarray, column: np.ndarray) -> None:
+        k = int(values.size)
+        end = self.size + k
+        for name, part in zip(self.names, (values, clock, frame, line, column)):
+            arr = self.arrays[name]
+            if end > arr.size:  # more pixels than the file's records: only when the capacity was a guess
+                arr = self.arrays[name] = np.concatenate([arr[: self.size], np.empty(max(end, 2 * arr.size), arr.dtype)])
+            if part.size and arr.dtype == np.int32 and int(part.max()) >= 2**31:
+                arr = self.arrays[name] = arr.astype(np.int64)
+            arr[self.size:end] = part
+        self.size = end
+
+    def capture(self, facts: RunFacts) -> Capture:
+        return Capture(*(self.arrays[n][: self.size] for n in self.names), facts=facts)
+
+
+def _build(family: str, chunks: Iterable[_Chunk], height: int | None, split_on_height: bool,
+           facts: RunFacts | None, *, capacity: int = 0, value_bits: int | None = None) -> Capture:
+    """The Capture from decoded events, a chunk at a time (both formats).
+
+    Chunks after the first start at an ``F`` event (frame numbering carries over: each chunk that held a
+    pixel moves it on by one); with ``split_on_height`` there is one chunk.
+    """
     out_facts = copy.deepcopy(facts) if facts is not None else RunFacts()
     if out_facts.family is None:
         out_facts.family = family
-    is_p = kind_a == ord("P")
-    pos_p = np.flatnonzero(is_p)
-    if split_on_height and height and (kind_a == ord("F")).any():
-        frame_a, line_a, col_a = _positions_loop(kind_a, bool(split_on_height), height)
-    else:
-        frame_a, line_a, col_a = _positions(kind_a, is_p, pos_p, bool(split_on_height), height)
-    ev = _scan_events(family, clock_all, kind_a, pos_p, arg_of)
-    cap = Capture(values, clock_all[pos_p], frame_a, line_a, col_a, out_facts)
-    _fill_facts(cap, family, ev, xz_data, clock_all)
+    pixels = _PixelArrays(capacity, value_bits)
+    events = _NonPixel()
+    frames_before = 0
+    xz_seen = 0
+    for chunk in chunks:
+        is_p = chunk.kind == ord("P")
+        pos_p = np.flatnonzero(is_p)
+        if split_on_height and height and (chunk.kind == ord("F")).any():
+            frame_a, line_a, col_a = _positions_loop(chunk.kind, bool(split_on_height), height)
+        else:
+            frame_a, line_a, col_a = _positions(chunk.kind, is_p, pos_p, bool(split_on_height), height)
+        events.add(chunk, pixels.size)
+        pixels.add(chunk.values, chunk.clock[pos_p], frame_a + frames_before, line_a, col_a)
+        frames_before += 1 if pos_p.size and not split_on_height else 0
+        xz_seen += chunk.xz_count
+    cap = pixels.capture(out_facts)
+    _fill_facts(cap, family, _scan_events(family, events), xz_seen, events.last_clock)
     return cap
 
 
-def _fill_facts(cap: Capture, family: str, ev: _Events, xz_data: int, clock_all: np.ndarray) -> None:
+def _fill_facts(cap: Capture, family: str, ev: _Events, xz_data: int, last_clock: int | None) -> None:
     """Write the output-side facts of the events into the capture's run facts."""
     f = cap.facts
     k = int(cap.values.size)
@@ -320,7 +442,7 @@ def _fill_facts(cap: Capture, family: str, ev: _Events, xz_data: int, clock_all:
     timed_out, clocks_run = ev.timed_out, ev.clocks_run
     if clocks_run is None:
         f.notes.append("capture text has no end line: the simulation stopped before the harness finished")
-        clocks_run = int(clock_all[-1]) + 1 if clock_all.size else 0
+        clocks_run = last_clock + 1 if last_clock is not None else 0
         timed_out = True
     f.clocks_run = clocks_run
     f.timed_out = bool(timed_out)
@@ -436,7 +558,7 @@ def _parse_file(path: Path, **kwargs: Any) -> Capture:
     with open(path, "rb") as fh:
         head = fh.read(len(TEXT_HEADER))
     if is_binary_capture(head):
-        return parse_capture_binary(np.fromfile(path, np.uint8), **kwargs)
+        return _parse_binary_file(path, **kwargs)
     if not is_text_capture(head):
         raise _not_a_capture(path)
     return parse_capture_text(path.read_text(errors="replace"), **kwargs)

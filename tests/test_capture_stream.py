@@ -1,0 +1,86 @@
+"""The binary capture read a frame at a time: the same Capture as reading it whole, in compact dtypes.
+
+The events are the ones the Verilog harness writes (vkit/sim/templates/harness_video.v.j2): ``F`` on the
+output vsync's leading edge, ``L`` when data-enable falls, ``P`` per pixel, ``E`` last. The expected
+frame/line/column numbers below are worked out by hand from the numbering rules in
+vkit/sim/fast/capture_file.py (an empty line or frame does not advance the count; common practice, no source).
+"""
+
+from __future__ import annotations
+
+import struct
+
+import numpy as np
+import pytest
+
+from vkit.sim.fast import capture_file
+from vkit.sim.fast.capture_file import parse_capture_binary, parse_capture_text
+from vkit.sim.fast.wire import CAPTURE_MAGIC, CAPTURE_VERSION
+from vkit.video.capture import UNKNOWN, Capture
+
+
+def _events(frames: int, lines: int, width: int) -> list[tuple[int, str, int, int]]:
+    """(clock, kind, code, value): a stray pixel before the first vsync, an empty frame, then ``frames``
+    frames of ``lines`` x ``width`` pixels with an X/Z pixel in the last frame."""
+    ev: list[tuple[int, str, int, int]] = [(0, "P", 0, 5), (1, "L", 0, 0), (2, "F", 0, 0), (3, "H", 0, 0), (4, "F", 0, 0)]
+    clock = 10
+    for f in range(frames):
+        ev.append((clock, "F", 0, 0))
+        for y in range(lines):
+            ev.append((clock, "H", 0, 0))
+            for x in range(width):
+                clock += 1
+                xz = f == frames - 1 and y == 1 and x == 2
+                ev.append((clock, "P", int(xz), (f * 7 + y * 3 + x) % 256))
+            clock += 1
+            ev.append((clock, "L", 0, 0))
+        clock += 5
+    ev.append((clock + 1, "E", 0, 0))
+    return ev
+
+
+def _binary(ev: list[tuple[int, str, int, int]]) -> bytes:
+    head = struct.pack("<4I", CAPTURE_MAGIC, CAPTURE_VERSION, 0, 8)
+    return head + b"".join(struct.pack("<3I", c, ord(k) | code << 8, v) for c, k, code, v in ev)
+
+
+def _text(ev: list[tuple[int, str, int, int]]) -> str:
+    def arg(k: str, code: int, v: int) -> str:
+        return ("U" if code else f"{v:02x}") if k == "P" else "-"
+    return f"# vkit capture {CAPTURE_VERSION} video 8\n" + "".join(f"{c} {k} {arg(k, code, v)}\n" for c, k, code, v in ev)
+
+
+@pytest.mark.parametrize("block_records", [1, 7, 1 << 20])
+def test_reading_a_frame_at_a_time_gives_the_whole_file_capture(tmp_path, monkeypatch, block_records):
+    ev = _events(frames=3, lines=4, width=5)
+    path = tmp_path / "capture.bin"
+    path.write_bytes(_binary(ev))
+    monkeypatch.setattr(capture_file, "_BLOCK_RECORDS", block_records)  # block edges inside frames and records
+    streamed = capture_file._parse_file(path, family="video", height=4)
+    whole = parse_capture_binary(path.read_bytes(), family="video", height=4)
+    text = parse_capture_text(_text(ev), family="video", height=4)
+    for cap in (whole, text):
+        for name in ("values", "clock", "frame", "line", "column"):
+            assert np.array_equal(getattr(streamed, name), getattr(cap, name)), name
+        assert streamed.facts.to_dict() == cap.facts.to_dict()
+    # by hand: the stray pixel is frame 0 line 0; the empty frame between two vsyncs does not count
+    assert (streamed.frame[0], streamed.line[0], streamed.column[0]) == (0, 0, 0)
+    first = np.flatnonzero(streamed.frame == 1)
+    assert first.size == 20 and streamed.line[first[-1]] == 3 and streamed.column[first[-1]] == 4
+    assert streamed.frame_count == 4
+    k = int(np.flatnonzero((streamed.frame == 3) & (streamed.line == 1) & (streamed.column == 2))[0])
+    assert streamed.values[k] == UNKNOWN and streamed.facts.xz_data_count == 1
+    assert streamed.facts.output_vsync_count == 5 and streamed.facts.output_hsync_per_frame == [0, 1, 0, 4, 4]
+
+
+def test_capture_arrays_are_compact_and_survive_save_and_load(tmp_path):
+    path = tmp_path / "capture.bin"
+    path.write_bytes(_binary(_events(frames=2, lines=3, width=4)))
+    cap = capture_file._parse_file(path, family="video", height=3)
+    # 8-bit data, clocks and positions under 2**31: 4 bytes a field (was 8)
+    assert {getattr(cap, n).dtype for n in ("values", "clock", "frame", "line", "column")} == {np.dtype(np.int32)}
+    back = Capture.load(cap.save(tmp_path / "c.npz"))
+    assert back.values.dtype == np.int32 and np.array_equal(back.column, cap.column)
+    views = back.frames(3, 4)
+    assert [v.index for v in views] == [0, 1, 2] and views[2].pixels.dtype == np.int64
+    assert views[2].present.all() and views[1].pixels[2, 3] == (0 * 7 + 2 * 3 + 3) % 256

@@ -133,7 +133,7 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions,
     fault, as a hung design is the usual cause) or ``error`` (a crash is the tool's), with that first.
     """
     verdict = score(prep.expected, capture, max_listed=options.max_listed, spec=prep.spec, images=list(prep.frames),
-                    **case.score_settings())
+                    keep_passing=options.pictures == "all", **case.score_settings())
     stop = _sim_stop(capture, options.timeout_s)
     if stop is not None:
         status = "timeout" if stop.kind == "timeout" else "error"

@@ -79,12 +79,26 @@ def video_data_words(
         words = np.full(sched.n_clocks, int(blanking_value), np.int64)
         stall = sched.de & ~sched.valid
         words[stall] = garbage[stall]
-    pix = sched.x >= 0
-    words[pix] = layout.bus_words(frames)[sched.frame[pix], sched.y[pix], sched.x[pix]]
+    _place_pixels(words, sched, frames, layout)
     if sched.enable is not None:
         # a clock-enabled source holds each sample from the clock after the previous enable to its own
         words = words[_next_enabled(sched.enable)]
     return words
+
+
+def _place_pixels(words: np.ndarray, sched: ClockSchedule, frames: np.ndarray, layout: BusLayout) -> None:
+    """Put every frame's bus words on the clocks that carry them, a frame at a time (one frame's words and
+    indices in memory, not the whole run's), the clocks found by the frame numbers, which never go down."""
+    n = int(frames.shape[0])
+    if not bool(np.all(sched.frame[1:] >= sched.frame[:-1])):  # not a schedule() result: all frames at once
+        pix = sched.x >= 0
+        words[pix] = layout.bus_words(frames)[sched.frame[pix], sched.y[pix], sched.x[pix]]
+        return
+    bounds = np.searchsorted(sched.frame, np.arange(n + 1))
+    for f in range(n):
+        lo, hi = int(bounds[f]), int(bounds[f + 1])
+        pix = np.flatnonzero(sched.x[lo:hi] >= 0) + lo
+        words[pix] = layout.bus_words(frames[f:f + 1])[0][sched.y[pix], sched.x[pix]]
 
 
 def _next_enabled(enable: np.ndarray) -> np.ndarray:

@@ -165,11 +165,23 @@ def write_words_hex(path: str | Path, fields: list[tuple[np.ndarray, int]], nbyt
     return path
 
 
+_PACK_WORDS = 1 << 20
+"""Words packed at a time: the packing's temporaries stay a few tens of MB however long the run."""
+
+
 def _packed_bytes(fields: list[tuple[np.ndarray, int]], nbytes: int | None) -> np.ndarray:
     """The records of :func:`write_words` as an ``(n, nbytes)`` uint8 array, most significant byte first."""
     nbytes = int(nbytes or word_bytes(sum(b for _, b in fields)))
     n = int(np.asarray(fields[0][0]).size) if fields else 0
     out = np.zeros((n, nbytes), np.uint8)
+    for lo in range(0, n, _PACK_WORDS):
+        part = [(np.asarray(values).reshape(-1)[lo:lo + _PACK_WORDS], bits) for values, bits in fields]
+        _pack_into(out[lo:lo + _PACK_WORDS], part, nbytes)
+    return out
+
+
+def _pack_into(out: np.ndarray, fields: list[tuple[np.ndarray, int]], nbytes: int) -> None:
+    """Pack ``fields`` into the ``(k, nbytes)`` rows of ``out``."""
     offset = 0
     for values, bits in fields:
         v = np.asarray(values).astype(np.uint64).reshape(-1) & np.uint64((1 << bits) - 1)
@@ -180,7 +192,6 @@ def _packed_bytes(fields: list[tuple[np.ndarray, int]], nbytes: int | None) -> n
             part = v >> np.uint64(lo - offset) if lo >= offset else v << np.uint64(offset - lo)
             out[:, nbytes - 1 - byte] |= (part & np.uint64(0xFF)).astype(np.uint8)
         offset += bits
-    return out
 
 
 @dataclass

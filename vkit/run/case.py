@@ -32,7 +32,7 @@ from vkit.run.coverage import stimulus_coverage
 from vkit.run.inputs import check_ports, make_frames
 from vkit.run.options import RunOptions
 from vkit.run.results import CaseResult, case_meta, error_result, stopped_result
-from vkit.run.simulate import simulate
+from vkit.run.simulate import simulate_capture
 from vkit.run.waves import wave_rerun
 from vkit.sim.buildcache import BuildCache, BuildOutcome
 from vkit.sim.guard import GuardOutcome
@@ -105,9 +105,9 @@ def _simulate(case: Case, prep: _Prepared, options: RunOptions, left_s: float) -
     missing capture becomes a capture that says so."""
     drive = prep.drive
     outcome = build_for_drive(case, BuildCache(options.cache_dir), drive)
-    capture_file = simulate(case, outcome.build_dir, prep.sim_dir, prep.frames, left_s, drive=drive)
-    if capture_file.exists():
-        return outcome, Capture.load(capture_file)
+    capture = simulate_capture(case, outcome.build_dir, prep.sim_dir, prep.frames, left_s, drive=drive)
+    if capture is not None:
+        return outcome, capture
     return outcome, Capture(facts=RunFacts(error=f"no capture was written; see {prep.sim_dir / 'sim.log'}"))
 
 

@@ -121,3 +121,39 @@ def test_a_passing_run_keeps_counts_only_and_a_failing_one_keeps_every_frame():
     bad = score(results, _packed(outputs), keep_passing=False)
     assert not bad.passed and bad.mismatches == 1 and all(fr.arrays_kept for fr in bad.frames)
     assert bad.to_dict() == score(results, _packed(outputs)).to_dict()
+
+
+@pytest.mark.parametrize("bits", [8, 24, 32, 40, 58])
+def test_garbage_drawn_in_even_parts_equals_one_draw(bits):
+    # the reference is NumPy's own single draw from the same PCG64 seed
+    from vkit.video.words import _garbage, garbage_splits_evenly
+
+    whole = _garbage(11, bits, 6 * 1000)
+    rng = np.random.default_rng(11)
+    parts = np.concatenate([_garbage(rng, bits, 1000) for _ in range(6)])
+    assert garbage_splits_evenly(bits, 1000) and np.array_equal(parts, whole)
+    assert garbage_splits_evenly(bits, 999) == (bits > 32)
+
+
+@pytest.mark.parametrize(("pixel_format", "blanking"), [("rgb888", "random"), ("gray8", "constant")])
+def test_stimulus_written_a_frame_at_a_time_equals_the_whole_run_words(tmp_path, monkeypatch, pixel_format, blanking):
+    # the reference is the whole-run writer (one schedule, one draw), which the per-clock source drives as well
+    from vkit.sim.case import SimCase
+    from vkit.sim.fast import stimulus
+
+    rng = np.random.default_rng(5)
+    shape = (3, 24, 32, 3) if pixel_format == "rgb888" else (3, 24, 32)
+    frames = tmp_path / "frames.npy"
+    np.save(frames, rng.integers(0, 256, shape).astype(np.uint8))
+    timing = {"h_active": 32, "h_front_porch": 4, "h_sync": 4, "h_back_porch": 6, "v_active": 24,
+              "v_front_porch": 2, "v_sync": 2, "v_back_porch": 2}
+    roles = ("clock", "in_vsync", "in_hsync", "in_de", "in_data", "out_de", "out_data")
+    case = SimCase("video", {r: r for r in roles}, str(frames),
+                   str(tmp_path / "cap.npz"), 32, 24, pixel_format=pixel_format, timing=timing, seed=9,
+                   blanking=blanking)
+    assert stimulus._frame_by_frame(case)
+    by_frame = stimulus.write_stimulus(case, tmp_path / "a")
+    monkeypatch.setattr(stimulus, "_frame_by_frame", lambda c: False)
+    whole = stimulus.write_stimulus(case, tmp_path / "b")
+    assert by_frame.stim.read_bytes() == whole.stim.read_bytes() and by_frame.input_meta == whole.input_meta
+    assert by_frame.words == whole.words == 3 * 46 * 30

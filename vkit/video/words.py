@@ -20,6 +20,7 @@ __all__ = [
     "BLANKING_MODES",
     "READY_CHUNK_CLOCKS",
     "video_data_words",
+    "garbage_splits_evenly",
     "leading_edges",
     "sync_counts",
     "video_input_facts",
@@ -40,9 +41,21 @@ READY_CHUNK_CLOCKS = 4096
 """Clocks of sink ready levels drawn per call of the generator (the draw order depends on it)."""
 
 
-def _garbage(seed: int, bits: int, n: int) -> np.ndarray:
-    """``n`` seeded random words of ``bits`` bits (numpy PCG64): the bus content nobody may sample."""
-    return np.random.default_rng(int(seed)).integers(0, 1 << bits, size=n, dtype=np.int64)
+def _garbage(seed: int | np.random.Generator, bits: int, n: int) -> np.ndarray:
+    """``n`` seeded random words of ``bits`` bits (numpy PCG64): the bus content nobody may sample.
+
+    ``seed`` may be a Generator already in use: the words then continue its stream (see
+    :func:`garbage_splits_evenly` for when drawing in parts gives the same words as one draw)."""
+    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(int(seed))
+    return rng.integers(0, 1 << bits, size=n, dtype=np.int64)
+
+
+def garbage_splits_evenly(bits: int, part_clocks: int) -> bool:
+    """True when drawing the garbage words in parts of ``part_clocks`` words from one Generator gives the
+    words of one draw. NumPy draws a power-of-two range without rejection: one 64-bit draw a word above 32
+    bits, one half of a 64-bit draw a word up to 32 bits (a part of odd length would drop the other half;
+    checked against one draw in tests/test_capture_stream.py)."""
+    return bits > 32 or part_clocks % 2 == 0
 
 
 def video_data_words(
@@ -52,7 +65,7 @@ def video_data_words(
     *,
     blanking: str = "random",
     blanking_value: int = 0,
-    seed: int = 0,
+    seed: int | np.random.Generator = 0,
 ) -> np.ndarray:
     """The data-bus word of every clock of ``sched``.
 
@@ -66,7 +79,7 @@ def video_data_words(
         blanking: "random": seeded random words on every clock that carries no pixel; "constant":
             ``blanking_value`` there, but still random words on stall clocks (data-enable high, valid low).
         blanking_value: the constant blanking word, >= 0.
-        seed: seed of the random words (numpy PCG64).
+        seed: seed of the random words (numpy PCG64), or a Generator whose stream they continue.
 
     Returns:
         int64 array of length ``sched.n_clocks``.

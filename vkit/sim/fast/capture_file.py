@@ -104,9 +104,11 @@ def parse_capture_text(
     code_a = np.zeros(kind_a.size, np.uint8)
     for i in np.flatnonzero(kind_a == ord("X")).tolist():
         code_a[i] = _role_code(args[i])
-    cap = _build(family, [_Chunk(clock_all, kind_a, code_a, values, xz_data)], height, split_on_height, facts)
-    if len(head) > 5 and head[5].isdigit():
-        cap.facts.out_data_bits = int(head[5])
+    bits = int(head[5]) if len(head) > 5 and head[5].isdigit() else None
+    cap = _build(family, [_Chunk(clock_all, kind_a, code_a, values, xz_data)], height, split_on_height, facts,
+                 capacity=int(values.size), value_bits=bits)
+    if bits is not None:
+        cap.facts.out_data_bits = bits
     return cap
 
 

@@ -36,6 +36,7 @@ from vkit.video.words import (
     idle_levels,
     ready_levels,
     stream_transfers,
+    garbage_splits_evenly,
     video_data_words,
     video_input_facts,
 )
@@ -263,13 +264,18 @@ def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout
     """Video: one word per clock of the schedule."""
     if in_width > MAX_IN_WIDTH:
         raise ConfigError(f"stimulus: input data width {in_width} bits is too wide for the player (max {MAX_IN_WIDTH})")
-    sched, data = video_schedule_and_words(case)
     pins = case.pin_polarity(INPUT_LEVEL_ROLES)
-    fields = video_word_fields(sched, data, in_width, pins)
-    if language == "vhdl":
-        stim = write_hex(out / "stim.hex", pack_fields(fields), video_word_bits(in_width))
+    if language == "verilog" and _frame_by_frame(case):
+        stim = _write_video_by_frame(case, out / "stim.bin", in_width, pins)
+        sched = schedule(case.video_timing(), case.frame_count())  # for the input facts, after the words
     else:
-        stim = write_words(out / "stim.bin", fields)
+        sched, data = video_schedule_and_words(case)
+        fields = video_word_fields(sched, data, in_width, pins)
+        del data
+        if language == "vhdl":
+            stim = write_hex(out / "stim.hex", pack_fields(fields), video_word_bits(in_width))
+        else:
+            stim = write_words(out / "stim.bin", fields)
     meta = video_input_facts(sched, case.pixels_per_clock)
     first = meta["first_input_clock"]
     timeout = int(timeout_rel) + (first or 0) if timeout_rel else 0
@@ -278,6 +284,30 @@ def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout
                          int(sched.frames) * case.width * case.height // case.pixels_per_clock, meta, None, language,
                          case.active_high("out_hsync"), case.active_high("out_vsync"),
                          sum(int(idle[r]) << i for i, r in enumerate(INPUT_LEVEL_ROLES)))
+
+
+def _frame_by_frame(case: SimCase) -> bool:
+    """True when every frame of the case's video stimulus has the same schedule (no stalls, no clock enable)
+    and the garbage words drawn a frame at a time equal one draw for the run."""
+    stalls = case.stall_pattern()
+    if (stalls is not None and stalls.probability > 0) or case.enable_pattern() is not None:
+        return False
+    return garbage_splits_evenly(case.bus_layout().word_bits, case.video_timing().clocks_per_frame)
+
+
+def _write_video_by_frame(case: SimCase, path: Path, in_width: int, pins: dict[str, bool]) -> Path:
+    """``stim.bin`` written a frame at a time: the words of :func:`video_schedule_and_words` (one schedule of
+    one frame, the garbage words continuing one Generator), so memory holds one frame's words, not the run's."""
+    frames = case.load_frames()
+    one = schedule(case.video_timing(), 1)
+    rng = np.random.default_rng(int(case.seed))
+    path.parent.mkdir(parents=True, exist_ok=True)
+    with open(path, "wb") as fh:
+        for f in range(int(frames.shape[0])):
+            data = video_data_words(one, frames[f:f + 1], case.bus_layout(), blanking=case.blanking,
+                                    blanking_value=case.blanking_value, seed=rng)
+            fh.write(_packed_bytes(video_word_fields(one, data, in_width, pins), None).tobytes())
+    return path
 
 
 def _write_stream(case: SimCase, out: Path, in_width: int, language: str, timeout_rel: int | None) -> StimulusFiles:

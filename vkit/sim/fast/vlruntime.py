@@ -1,6 +1,6 @@
 """Verilator's runtime objects built once and shared by every native build, and a compiler cache when present.
 
-A ``verilator --binary`` build compiles Verilator's own runtime (``verilated.cpp``, ``verilated_timing.cpp``,
+A Verilator executable build compiles Verilator's own runtime (``verilated.cpp``, ``verilated_timing.cpp``,
 ``verilated_threads.cpp``) next to the model of the design. Those objects depend only on the Verilator
 install, the compiler and the flags, not on the design, and they take about two thirds of a small design's
 build. :func:`make_with_shared_runtime` compiles them once into a shared folder (keyed on the exact compile

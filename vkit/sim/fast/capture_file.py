@@ -179,13 +179,13 @@ def _decode_records(words: np.ndarray) -> _Chunk:
 
 
 _BLOCK_RECORDS = 1 << 20
-"""Records read from a binary capture file at a time (12 MB for an 8-bit bus): the reader's memory is a
-frame's records plus one block, whatever the length of the run."""
+"""Records read from a binary capture file at a time (12 MB for an 8-bit bus): the reader's memory is about
+one block's records and their numbering, whatever the length of the run or the size of a frame."""
 
 
 def _frame_blocks(path: Path, nw: int) -> Iterator[np.ndarray]:
-    """The records of a binary capture file, ``(k, 2 + nw)`` uint32, cut right before every ``F`` record
-    (a run cut short mid-record loses that record)."""
+    """The records of a binary capture file, ``(k, 2 + nw)`` uint32, in chunks of about :data:`_BLOCK_RECORDS`
+    each cut right after a line or frame delimiter (``L``/``F``; a run cut short mid-record loses that record)."""
     width = 2 + nw
     pending = np.zeros((0, width), np.uint32)
     with open(path, "rb") as fh:
@@ -196,12 +196,14 @@ def _frame_blocks(path: Path, nw: int) -> Iterator[np.ndarray]:
             if block.shape[0] == 0:
                 break
             words = np.concatenate([pending, block]) if pending.shape[0] else block
-            cuts = np.flatnonzero((words[1:, 1] & 0xFF) == ord("F")) + 1
-            start = 0
-            for cut in cuts.tolist():
-                yield words[start:cut]
-                start = cut
-            pending = words[start:].copy()  # the block itself is let go
+            kinds = words[:, 1] & 0xFF
+            delim = np.flatnonzero((kinds == ord("L")) | (kinds == ord("F")))
+            if delim.size == 0:
+                pending = words
+                continue
+            cut = int(delim[-1]) + 1
+            yield words[:cut]
+            pending = words[cut:].copy()  # the block itself is let go
     if pending.shape[0]:
         yield pending
 
@@ -395,15 +397,15 @@ def _build(family: str, chunks: Iterable[_Chunk], height: int | None, split_on_h
            facts: RunFacts | None, *, capacity: int = 0, value_bits: int | None = None) -> Capture:
     """The Capture from decoded events, a chunk at a time (both formats).
 
-    Chunks after the first start at an ``F`` event (frame numbering carries over: each chunk that held a
-    pixel moves it on by one); with ``split_on_height`` there is one chunk.
+    Chunks after the first start right after an ``L`` or ``F`` event (the numbering carries over,
+    :class:`_Carry`); with ``split_on_height`` there is one chunk.
     """
     out_facts = copy.deepcopy(facts) if facts is not None else RunFacts()
     if out_facts.family is None:
         out_facts.family = family
     pixels = _PixelArrays(capacity, value_bits)
     events = _NonPixel()
-    frames_before = 0
+    carry = _Carry()
     xz_seen = 0
     for chunk in chunks:
         is_p = chunk.kind == ord("P")
@@ -411,10 +413,9 @@ def _build(family: str, chunks: Iterable[_Chunk], height: int | None, split_on_h
         if split_on_height and height and (chunk.kind == ord("F")).any():
             frame_a, line_a, col_a = _positions_loop(chunk.kind, bool(split_on_height), height)
         else:
-            frame_a, line_a, col_a = _positions(chunk.kind, is_p, pos_p, bool(split_on_height), height)
+            frame_a, line_a, col_a = _positions(chunk.kind, is_p, pos_p, bool(split_on_height), height, carry)
         events.add(chunk, pixels.size)
-        pixels.add(chunk.values, chunk.clock[pos_p], frame_a + frames_before, line_a, col_a)
-        frames_before += 1 if pos_p.size and not split_on_height else 0
+        pixels.add(chunk.values, chunk.clock[pos_p], frame_a, line_a, col_a)
         xz_seen += chunk.xz_count
     cap = pixels.capture(out_facts)
     _fill_facts(cap, family, _scan_events(family, events), xz_seen, events.last_clock)
@@ -486,10 +487,24 @@ def _hex_values(texts: Any) -> tuple[np.ndarray, int]:
     return values.astype(np.int64), int(bad.sum())
 
 
-def _positions(kind: np.ndarray, is_p: np.ndarray, pos_p: np.ndarray, split: bool, height: int | None
-               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Frame, line and column of every pixel event, vectorised (see the module docstring for the rules)."""
+@dataclass
+class _Carry:
+    """Where the numbering stands at a chunk edge (right after a line or frame delimiter): frames opened,
+    lines closed in the current frame, and whether a pixel came since the last ``F``."""
+
+    frame: int = 0
+    line: int = 0
+    frame_has: bool = False
+
+
+def _positions(kind: np.ndarray, is_p: np.ndarray, pos_p: np.ndarray, split: bool, height: int | None,
+               carry: _Carry | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Frame, line and column of every pixel event, vectorised (see the module docstring for the rules).
+
+    ``carry``: the events continue a run cut right after a delimiter (not with ``split``); updated in place.
+    """
     n = kind.size
+    carry = carry if carry is not None else _Carry()
     is_l = kind == ord("L")
     is_f = kind == ord("F")
     cum_p = np.cumsum(is_p)
@@ -501,12 +516,14 @@ def _positions(kind: np.ndarray, is_p: np.ndarray, pos_p: np.ndarray, split: boo
     prev_p_at_d = np.concatenate(([0], p_at_d[:-1]))
     eff_l = np.zeros(n, bool)
     eff_l[d_pos] = (p_at_d > prev_p_at_d) & is_l[d_pos]
-    # An F opens a new frame when a pixel came since the last F.
+    # An F opens a new frame when a pixel came since the last F (in an earlier chunk, for the first one).
     f_pos = np.flatnonzero(is_f)
     p_at_f = cum_p[f_pos]
     prev_p_at_f = np.concatenate(([0], p_at_f[:-1]))
     eff_f = np.zeros(n, bool)
     eff_f[f_pos] = p_at_f > prev_p_at_f
+    if f_pos.size and carry.frame_has:
+        eff_f[f_pos[0]] = True
     cum_eff_l = np.cumsum(eff_l)
     last_d = np.maximum.accumulate(np.where(delim, idx, -1))
     last_f = np.maximum.accumulate(np.where(is_f, idx, -1))
@@ -516,9 +533,24 @@ def _positions(kind: np.ndarray, is_p: np.ndarray, pos_p: np.ndarray, split: boo
         frame = cum_eff_l // height
         line = cum_eff_l % height
     else:
-        frame = np.cumsum(eff_f)
-        line = cum_eff_l - np.where(last_f >= 0, cum_eff_l[np.maximum(last_f, 0)], 0)
-    return (frame[pos_p].astype(np.int64), line[pos_p].astype(np.int64), col[pos_p].astype(np.int64))
+        frame = np.cumsum(eff_f) + carry.frame
+        line = cum_eff_l - np.where(last_f >= 0, cum_eff_l[np.maximum(last_f, 0)], -carry.line)
+        _carry_on(carry, cum_p, cum_eff_l, f_pos, int(eff_f.sum()))
+    return frame[pos_p], line[pos_p], col[pos_p]
+
+
+def _carry_on(carry: _Carry, cum_p: np.ndarray, cum_eff_l: np.ndarray, f_pos: np.ndarray, frames_opened: int) -> None:
+    """Move ``carry`` to the end of a chunk (its cumulative pixel and closed-line counts, its ``F`` events)."""
+    if not cum_p.size:
+        return
+    carry.frame += frames_opened
+    if f_pos.size:
+        last = int(f_pos[-1])
+        carry.line = int(cum_eff_l[-1] - cum_eff_l[last])
+        carry.frame_has = bool(cum_p[-1] > cum_p[last])
+    else:
+        carry.line += int(cum_eff_l[-1])
+        carry.frame_has = carry.frame_has or bool(cum_p[-1] > 0)
 
 
 def _positions_loop(kind: np.ndarray, split: bool, height: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

@@ -77,10 +77,11 @@ def test_capture_arrays_are_compact_and_survive_save_and_load(tmp_path):
     path = tmp_path / "capture.bin"
     path.write_bytes(_binary(_events(frames=2, lines=3, width=4)))
     cap = capture_file._parse_file(path, family="video", height=3)
-    # 8-bit data, clocks and positions under 2**31: 4 bytes a field (was 8)
-    assert {getattr(cap, n).dtype for n in ("values", "clock", "frame", "line", "column")} == {np.dtype(np.int32)}
+    # 8-bit data in 2 bytes, clocks and positions under 2**31 in 4 bytes (all were 8)
+    assert {getattr(cap, n).dtype for n in ("clock", "frame", "line", "column")} == {np.dtype(np.int32)}
+    assert cap.values.dtype == np.int16
     back = Capture.load(cap.save(tmp_path / "c.npz"))
-    assert back.values.dtype == np.int32 and np.array_equal(back.column, cap.column)
+    assert back.values.dtype == np.int16 and np.array_equal(back.column, cap.column)
     views = back.frames(3, 4)
     assert [v.index for v in views] == [0, 1, 2] and views[2].pixels.dtype == np.int64
     assert views[2].present.all() and views[1].pixels[2, 3] == (0 * 7 + 2 * 3 + 3) % 256

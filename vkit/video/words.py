@@ -107,7 +107,7 @@ def _place_pixels(words: np.ndarray, sched: ClockSchedule, frames: np.ndarray, l
         pix = sched.x >= 0
         words[pix] = layout.bus_words(frames)[sched.frame[pix], sched.y[pix], sched.x[pix]]
         return
-    bounds = np.searchsorted(sched.frame, np.arange(n + 1))
+    bounds = np.searchsorted(sched.frame, np.arange(n + 1, dtype=sched.frame.dtype))  # no int64 copy of the frames
     for f in range(n):
         lo, hi = int(bounds[f]), int(bounds[f + 1])
         pix = np.flatnonzero(sched.x[lo:hi] >= 0) + lo

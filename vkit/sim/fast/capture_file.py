@@ -369,12 +369,12 @@ def _scan_events(family: str, events: _NonPixel) -> _Events:
 
 class _PixelArrays:
     """The per-pixel arrays of a capture, filled chunk by chunk in the smallest dtypes that hold them
-    (int32; values int64 when the data bus is wider than 31 bits; clocks int64 past 2**31)."""
+    (int32; values int16 for a bus of up to 15 bits, int64 above 31; clocks int64 past 2**31)."""
 
     def __init__(self, capacity: int, value_bits: int | None) -> None:
-        wide = value_bits is None or value_bits > 31
+        values = np.int64 if value_bits is None or value_bits > 31 else np.int32 if value_bits > 15 else np.int16
         self.names = ("values", "clock", "frame", "line", "column")
-        self.arrays = {n: np.empty(capacity, np.int64 if n == "values" and wide else np.int32) for n in self.names}
+        self.arrays = {n: np.empty(capacity, values if n == "values" else np.int32) for n in self.names}
         self.size = 0
 
     def add(self, values: np.ndarray, clock: np.ndarray, frame: np.ndarray, line: np.ndarray, column: np.ndarray) -> None:
@@ -384,7 +384,7 @@ class _PixelArrays:
             arr = self.arrays[name]
             if end > arr.size:  # more pixels than the file's records: only when the capacity was a guess
                 arr = self.arrays[name] = np.concatenate([arr[: self.size], np.empty(max(end, 2 * arr.size), arr.dtype)])
-            if part.size and arr.dtype == np.int32 and int(part.max()) >= 2**31:
+            if part.size and arr.dtype != np.int64 and int(part.max()) > np.iinfo(arr.dtype).max:
                 arr = self.arrays[name] = arr.astype(np.int64)
             arr[self.size:end] = part
         self.size = end

@@ -158,3 +158,32 @@ def test_stimulus_written_a_frame_at_a_time_equals_the_whole_run_words(tmp_path,
     whole = stimulus.write_stimulus(case, tmp_path / "b")
     assert by_frame.stim.read_bytes() == whole.stim.read_bytes() and by_frame.input_meta == whole.input_meta
     assert by_frame.words == whole.words == 3 * 46 * 30
+
+
+def test_following_a_file_as_it_is_written_gives_the_finished_file_capture(tmp_path, monkeypatch):
+    # the reference is the same file read once it is complete
+    import threading
+    import time
+
+    data = _binary(_events(frames=3, lines=4, width=5))
+    path = tmp_path / "capture.bin"
+    monkeypatch.setattr(capture_file, "_BLOCK_RECORDS", 4)
+    done = threading.Event()
+
+    def write() -> None:  # the header late, then pieces cut mid-record, as a simulator flushes them
+        time.sleep(0.05)
+        with open(path, "wb") as fh:
+            for start in range(0, len(data), 50):
+                fh.write(data[start:start + 50])
+                fh.flush()
+                time.sleep(0.002)
+        done.set()
+
+    writer = threading.Thread(target=write)
+    writer.start()
+    followed = capture_file._parse_file(path, running=lambda: not done.is_set(), capacity=8, family="video", height=4)
+    writer.join()
+    whole = capture_file._parse_file(path, family="video", height=4)
+    for name in ("values", "clock", "frame", "line", "column"):
+        assert np.array_equal(getattr(followed, name), getattr(whole, name)), name
+    assert followed.facts.to_dict() == whole.facts.to_dict() and len(followed) == 3 * 4 * 5 + 1

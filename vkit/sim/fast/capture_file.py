@@ -30,10 +30,11 @@ from __future__ import annotations
 
 import copy
 import tempfile
-from collections.abc import Iterable, Iterator
+import time
+from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, BinaryIO
 
 import numpy as np
 
@@ -183,18 +184,42 @@ _BLOCK_RECORDS = 1 << 20
 one block's records and their numbering, whatever the length of the run or the size of a frame."""
 
 
-def _frame_blocks(path: Path, nw: int) -> Iterator[np.ndarray]:
+_FOLLOW_POLL_S = 0.01
+"""How long the reader waits for more of a capture file the simulator is still writing, s."""
+
+Running = Callable[[], bool]
+"""Tells a reader following a capture file whether the simulator writing it still runs."""
+
+
+def _record_blocks(fh: BinaryIO, width: int, running: Running | None) -> Iterator[np.ndarray]:
+    """Whole records from ``fh`` (``(k, width)`` uint32), :data:`_BLOCK_RECORDS` at a time; with ``running``,
+    the file is followed while the simulator writes it (a record cut at the end waits for its rest)."""
+    rec = 4 * width
+    rest = b""
+    while True:
+        data = fh.read(_BLOCK_RECORDS * rec)
+        if not data and running is not None and running():
+            time.sleep(_FOLLOW_POLL_S)
+            continue
+        if not data:  # the writer is done: one last look catches what came after the previous read
+            data = fh.read(_BLOCK_RECORDS * rec)
+            if not data:
+                return
+        data = rest + data
+        whole = len(data) - len(data) % rec
+        rest = data[whole:]
+        if whole:
+            yield np.frombuffer(data[:whole], "<u4").reshape(-1, width)
+
+
+def _frame_blocks(path: Path, nw: int, running: Running | None = None) -> Iterator[np.ndarray]:
     """The records of a binary capture file, ``(k, 2 + nw)`` uint32, in chunks of about :data:`_BLOCK_RECORDS`
     each cut right after a line or frame delimiter (``L``/``F``; a run cut short mid-record loses that record)."""
     width = 2 + nw
     pending = np.zeros((0, width), np.uint32)
     with open(path, "rb") as fh:
         fh.seek(_BINARY_HEADER_BYTES)
-        while True:
-            block = np.fromfile(fh, "<u4", count=_BLOCK_RECORDS * width)
-            block = block[: block.size - block.size % width].reshape(-1, width)
-            if block.shape[0] == 0:
-                break
+        for block in _record_blocks(fh, width, running):
             words = np.concatenate([pending, block]) if pending.shape[0] else block
             kinds = words[:, 1] & 0xFF
             delim = np.flatnonzero((kinds == ord("L")) | (kinds == ord("F")))
@@ -209,8 +234,12 @@ def _frame_blocks(path: Path, nw: int) -> Iterator[np.ndarray]:
 
 
 def _parse_binary_file(path: Path, *, family: str | None = None, height: int | None = None,
-                       split_on_height: bool = False, facts: RunFacts | None = None) -> Capture:
-    """:func:`parse_capture_binary` of a file, read a frame at a time (bounded memory on long runs of big frames)."""
+                       split_on_height: bool = False, facts: RunFacts | None = None, running: Running | None = None,
+                       capacity: int | None = None) -> Capture:
+    """:func:`parse_capture_binary` of a file, read a block at a time (bounded memory on long runs of big
+    frames); with ``running``, while the simulator still writes it (``capacity``: pixels expected)."""
+    if split_on_height and running is not None:  # frames split on height: the whole file once it is complete
+        _wait_while(running)
     with open(path, "rb") as fh:
         head = np.frombuffer(fh.read(_BINARY_HEADER_BYTES), "<u4")
     if head.size < 4:
@@ -221,8 +250,9 @@ def _parse_binary_file(path: Path, *, family: str | None = None, height: int | N
                                     split_on_height=split_on_height, facts=facts)
     family = family or ("stream" if fam_code == FAMILY_CODES["stream"] else "video")
     nw = capture_data_words(width)
-    capacity = max(0, path.stat().st_size - _BINARY_HEADER_BYTES) // (8 + 4 * nw)
-    chunks = (_decode_records(words) for words in _frame_blocks(path, nw))
+    if capacity is None or running is None:
+        capacity = max(0, path.stat().st_size - _BINARY_HEADER_BYTES) // (8 + 4 * nw)
+    chunks = (_decode_records(words) for words in _frame_blocks(path, nw, running))
     cap = _build(family, chunks, height, False, facts, capacity=capacity, value_bits=width)
     cap.facts.out_data_bits = width
     return cap
@@ -582,8 +612,19 @@ def _positions_loop(kind: np.ndarray, split: bool, height: int) -> tuple[np.ndar
     return arr[:, 0].copy(), arr[:, 1].copy(), arr[:, 2].copy()
 
 
-def _parse_file(path: Path, **kwargs: Any) -> Capture:
-    """Parse a harness capture file in either format (told apart by the header)."""
+def _wait_while(running: Running, path: Path | None = None) -> None:
+    """Wait while ``running`` says the simulator runs (and, with ``path``, only until that file has a header)."""
+    while running():
+        if path is not None and path.is_file() and path.stat().st_size >= _BINARY_HEADER_BYTES:
+            return
+        time.sleep(_FOLLOW_POLL_S)
+
+
+def _parse_file(path: Path, running: Running | None = None, capacity: int | None = None, **kwargs: Any) -> Capture:
+    """Parse a harness capture file in either format (told apart by the header); with ``running``, a binary
+    file is read while the simulator writes it, a text file once it is done."""
+    if running is not None:
+        _wait_while(running, path)
     if path.is_dir():
         raise ConfigError(f"capture file {str(path)!r} is a directory; give the capture.bin or capture.txt file in it")
     if not path.is_file():
@@ -592,9 +633,11 @@ def _parse_file(path: Path, **kwargs: Any) -> Capture:
     with open(path, "rb") as fh:
         head = fh.read(len(TEXT_HEADER))
     if is_binary_capture(head):
-        return _parse_binary_file(path, **kwargs)
+        return _parse_binary_file(path, running=running, capacity=capacity, **kwargs)
     if not is_text_capture(head):
         raise _not_a_capture(path)
+    if running is not None:
+        _wait_while(running)
     return parse_capture_text(path.read_text(errors="replace"), **kwargs)
 
 
@@ -614,13 +657,16 @@ def input_meta(case: SimCase, stim: StimulusFiles | None = None) -> RunFacts:
     return facts
 
 
-def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = None) -> Capture:
+def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = None, *,
+                 running: Running | None = None) -> Capture:
     """Read a harness capture file (live fast-path run, native run or exported testbench; binary or text).
 
     Args:
         path: the ``capture.bin`` / ``capture.txt`` the harness wrote.
         case: the case the run was made from (gives the input-side run facts and how frames split).
         stim: the stimulus the run used, if at hand (saves rebuilding it).
+        running: read the file while the simulator writes it, as long as this says it runs (the Verilog
+            harness flushes the file at every output line end): the reading overlaps the simulation.
 
     Raises:
         DutError: the file does not exist (the simulation never opened it).
@@ -628,6 +674,8 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
     """
     cap = _parse_file(
         Path(path),
+        running=running,
+        capacity=stim.expect_pixels if stim is not None else None,
         family=case.family,
         height=int(case.height),
         split_on_height=case.family == "video" and "out_vsync" not in case.signals,

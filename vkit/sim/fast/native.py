@@ -16,6 +16,7 @@ from __future__ import annotations
 import hashlib
 import json
 import subprocess
+import threading
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
@@ -23,7 +24,7 @@ from vkit.core.errors import ConfigError, ToolError, VkitError
 from vkit.sim.case import SimCase
 from vkit.sim.fast.build import HarnessBuild, define_args
 from vkit.sim.fast.capture_file import read_capture
-from vkit.sim.fast.stimulus import fast_run_dir, prepare_fast_run, read_fast_run
+from vkit.sim.fast.stimulus import StimulusFiles, fast_run_dir, prepare_fast_run, read_fast_run
 from vkit.sim.fast.vlruntime import make_with_shared_runtime
 from vkit.sim.fast.wire import CAPTURE_BIN_NAME, HARNESS, TOPLEVEL
 from vkit.sim.guard import GuardOutcome, run_guarded
@@ -227,9 +228,9 @@ def run_native(case: SimCase, simulator: str, build_dir: str | Path, *, in_width
     run_dir = fast_run_dir(case)
     capture.unlink(missing_ok=True)
     log = run_dir / "native.log"
-    with open(log, "w") as log_file:
-        outcome = run_guarded([*info["run"], *plusargs], timeout_s=timeout_s, cwd=run_dir,
-                              env=subprocess_env(find(simulator)), stdout=log_file, stderr=subprocess.STDOUT)
+    stim = read_fast_run(case)
+    outcome, followed = _run_reading([*info["run"], *plusargs], capture, case, stim, timeout_s, log,
+                                     subprocess_env(find(simulator)))
     stopped = outcome.timed_out or outcome.signal is not None
     if stopped:
         return _finish(_partial(capture, case), case, simulator, outcome.describe(), outcome)
@@ -240,7 +241,33 @@ def run_native(case: SimCase, simulator: str, build_dir: str | Path, *, in_width
         raise ToolError(message)
     if not capture.is_file():
         raise ToolError(f"native run: no capture file after {outcome.seconds:.1f} s; see {log}")
-    return _finish(read_capture(capture, case, read_fast_run(case)), case, simulator)
+    return _finish(followed if followed is not None else read_capture(capture, case, stim), case, simulator)
+
+
+def _run_reading(cmd: list[str], capture: Path, case: SimCase, stim: StimulusFiles | None, timeout_s: float | None,
+                 log: Path, env: dict[str, str]) -> tuple[GuardOutcome, Capture | None]:
+    """Run the executable under the guard while a thread reads its capture as it grows (the harness flushes
+    it at every output line end), so reading overlaps the simulation. The capture is None when that
+    reading failed (the caller reads the file again, and says why)."""
+    done = threading.Event()
+    box: list[Capture | None] = [None]
+
+    def follow() -> None:
+        try:
+            box[0] = read_capture(capture, case, stim, running=lambda: not done.is_set())
+        except Exception:  # noqa: BLE001 - read again after the run, where the error is reported
+            box[0] = None
+
+    reader = threading.Thread(target=follow, name="vkit-capture-reader", daemon=True)
+    reader.start()
+    try:
+        with open(log, "w") as log_file:
+            outcome = run_guarded(cmd, timeout_s=timeout_s, cwd=log.parent, env=env, stdout=log_file,
+                                  stderr=subprocess.STDOUT)
+    finally:
+        done.set()
+        reader.join()
+    return outcome, box[0]
 
 
 def _partial(capture: Path, case: SimCase) -> Capture:

@@ -94,7 +94,7 @@ def _prepare(case: Case, options: RunOptions) -> _Prepared:
     sim_dir = case_folder(options.out_dir, case.id, "sim")
     spec = case.design.pipeline_spec()
     check_ports(case)
-    frames = make_frames(case)
+    frames = make_frames(case, BuildCache(options.cache_dir).cache_dir)
     # stage arrays are made only for the frames that need them (failing ones): big frames stay in bounds
     expected = [StagesOnDemand(spec, f) for f in frames]
     return _Prepared(sim_dir, spec, frames, expected, pick_drive(case, options.drive))  # type: ignore[arg-type]

@@ -105,15 +105,14 @@ def _stuck_delimiter_issue(i: int, lengths: Sequence[int], w: int, family: str |
     )
 
 
-def _line_issues(views: Sequence[FrameView | None], shapes: list[tuple[int, int]],
+def _line_issues(line_lengths: Sequence[list[int] | None], shapes: list[tuple[int, int]],
                  family: str | None = None) -> tuple[list[TimingIssue], int]:
     """Lines of the wrong length and frames with the wrong line count; pixels past the grid."""
     issues: list[TimingIssue] = []
     extra = 0
-    for i, (view, (h, w)) in enumerate(zip(views, shapes)):
-        if view is None:
+    for i, (lengths, (h, w)) in enumerate(zip(line_lengths, shapes)):
+        if lengths is None:
             continue
-        lengths = view.line_lengths
         stuck = _stuck_delimiter_issue(i, lengths, w, family)
         if stuck is not None:
             issues.append(stuck)
@@ -228,7 +227,6 @@ def _sample_latency_issue(declared: int | None, measured: int | None) -> TimingI
 
 def _timing_issues(
     capture: Capture,
-    views: Sequence[FrameView | None],
     shapes: list[tuple[int, int]],
     latency: tuple[int | None, int | None, int],
 ) -> tuple[list[TimingIssue], int]:
@@ -237,7 +235,9 @@ def _timing_issues(
     ``latency`` is ``(declared, measured, tolerance)`` in clocks.
     """
     facts = capture.facts
-    issues, extra = _line_issues(views, shapes, facts.family)
+    out = capture.frame_count
+    issues, extra = _line_issues([capture.line_lengths(i) if i < out else None for i in range(len(shapes))],
+                                 shapes, facts.family)
     extra += int(np.count_nonzero(capture.frame >= len(shapes))) if len(capture) else 0
     issues.append(_frame_count_issue(capture, len(shapes)))
     issues.extend(_sync_issues(facts))
@@ -558,7 +558,7 @@ def _score_frames(
 ) -> Verdict:
     """Timing issues, offset, every frame compared, the diagnosis and the verdict of a run with output."""
     views = _Views(capture, shapes)
-    issues, extra = _timing_issues(capture, views, shapes, options.latency)
+    issues, extra = _timing_issues(capture, shapes, options.latency)
     sample_issue = _sample_latency_issue(base["declared_latency_samples"], base["latency_samples"])
     if sample_issue is not None:
         issues.append(sample_issue)

@@ -215,6 +215,12 @@ class Capture:
             return slice(int(lo), int(hi))
         return self.frame == index
 
+    def line_lengths(self, index: int) -> list[int]:
+        """Pixels that arrived on each output line of frame ``index``, in order (:attr:`FrameView.line_lengths`
+        without rebuilding the frame)."""
+        lines = self.line[self._frame_bounds(index)]
+        return [int(c) for c in np.bincount(lines, minlength=int(lines.max()) + 1)] if lines.size else []
+
     def frame_view(self, index: int, height: int, width: int) -> FrameView:
         """Rebuild captured frame ``index`` into a ``(height, width)`` grid (empty when it carried no pixel).
 
@@ -232,8 +238,7 @@ class Capture:
         pixels[at] = self.values[sel][inside]
         present[at] = True
         clocks[at] = self.clock[sel][inside]
-        line_lengths = [int(c) for c in np.bincount(lines, minlength=int(lines.max()) + 1)] if lines.size else []
-        return FrameView(index, pixels, present, line_lengths, clocks)
+        return FrameView(index, pixels, present, self.line_lengths(index), clocks)
 
     def save(self, path: str | Path, compress: bool = True) -> Path:
         """Write the capture as one ``.npz`` file (arrays plus the run facts as JSON under ``meta``).

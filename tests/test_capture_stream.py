@@ -187,3 +187,28 @@ def test_following_a_file_as_it_is_written_gives_the_finished_file_capture(tmp_p
     for name in ("values", "clock", "frame", "line", "column"):
         assert np.array_equal(getattr(followed, name), getattr(whole, name)), name
     assert followed.facts.to_dict() == whole.facts.to_dict() and len(followed) == 3 * 4 * 5 + 1
+
+
+def test_streamed_stimulus_writes_the_file_words_and_describes_them_alike(tmp_path):
+    # the reference is the stimulus file the harness reads when nothing is streamed
+    import io
+
+    from vkit.sim.case import SimCase
+    from vkit.sim.fast.stimulus import streamed_stimulus, write_stimulus
+
+    frames = tmp_path / "frames.npy"
+    np.save(frames, np.random.default_rng(2).integers(0, 256, (2, 24, 32, 3)).astype(np.uint8))
+    timing = {"h_active": 32, "h_front_porch": 4, "h_sync": 4, "h_back_porch": 6, "v_active": 24,
+              "v_front_porch": 2, "v_sync": 2, "v_back_porch": 2}
+    roles = ("clock", "in_vsync", "in_hsync", "in_de", "in_data", "out_de", "out_data")
+    case = SimCase("video", {r: r for r in roles}, str(frames), str(tmp_path / "cap.npz"), 32, 24,
+                   pixel_format="rgb888", timing=timing, seed=3)
+    described, write = streamed_stimulus(case, tmp_path / "stim.pipe")
+    sink = io.BytesIO()
+    write(sink)
+    written = write_stimulus(case, tmp_path / "file")
+    assert sink.getvalue() == written.stim.read_bytes()
+    assert described.plusargs("c.bin")[1:] == written.plusargs("c.bin")[1:]  # all but the stimulus path
+    stalled = SimCase("video", {r: r for r in roles}, str(frames), str(tmp_path / "cap.npz"), 32, 24,
+                      pixel_format="rgb888", timing=timing, seed=3, stalls={"probability": 0.1, "max_length": 2})
+    assert streamed_stimulus(stalled, tmp_path / "stim.pipe") is None  # stalls: the file is written first

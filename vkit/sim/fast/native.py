@@ -13,18 +13,24 @@
 
 from __future__ import annotations
 
+import errno
+import fcntl
 import hashlib
 import json
+import os
 import subprocess
 import threading
+import time
+from collections.abc import Callable
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
+from typing import BinaryIO
 
 from vkit.core.errors import ConfigError, ToolError, VkitError
 from vkit.sim.case import SimCase
 from vkit.sim.fast.build import HarnessBuild, define_args
 from vkit.sim.fast.capture_file import read_capture
-from vkit.sim.fast.stimulus import StimulusFiles, fast_run_dir, prepare_fast_run, read_fast_run
+from vkit.sim.fast.stimulus import StimulusFiles, fast_run_dir, prepare_fast_run, streamed_stimulus
 from vkit.sim.fast.vlruntime import make_with_shared_runtime
 from vkit.sim.fast.wire import CAPTURE_BIN_NAME, HARNESS, TOPLEVEL
 from vkit.sim.guard import GuardOutcome, run_guarded
@@ -173,9 +179,58 @@ def native_run_args(case: SimCase, *, in_width: int | None = None) -> tuple[list
     """Write ``case``'s stimulus (once) and return (plusargs for a native run, the capture file it will write)."""
     stim = prepare_fast_run(case, in_width, language="verilog")
     capture = fast_run_dir(case) / CAPTURE_BIN_NAME
-    plusargs = stim.plusargs(capture) + [f"+vkit_half_ns={case.clock_period_ns / 2:.6f}",
-                                         f"+vkit_reset_cycles={case.reset_cycles}", "+vkit_native=1"]
-    return plusargs, capture
+    return _plusargs(case, stim, capture), capture
+
+
+def _plusargs(case: SimCase, stim: StimulusFiles, capture: Path) -> list[str]:
+    return stim.plusargs(capture) + [f"+vkit_half_ns={case.clock_period_ns / 2:.6f}",
+                                     f"+vkit_reset_cycles={case.reset_cycles}", "+vkit_native=1"]
+
+
+STIM_PIPE_NAME = "stim.pipe"
+"""The named pipe a native run reads its stimulus from while Python writes it, in the run folder."""
+
+_PIPE_BYTES = 1 << 20
+"""Pipe buffer asked for (Linux ``F_SETPIPE_SZ``): fewer switches between the writer and the simulator."""
+_F_SETPIPE_SZ = 1031
+
+
+def _stimulus(case: SimCase, in_width: int | None) -> tuple[StimulusFiles, Callable[[BinaryIO], None] | None]:
+    """The stimulus of a native run: a named pipe Python fills while the simulator plays it (when the words can
+    be written a frame at a time, :func:`~vkit.sim.fast.stimulus.streamed_stimulus`), else the file written first."""
+    run_dir = fast_run_dir(case)
+    pipe = run_dir / STIM_PIPE_NAME
+    streamed = streamed_stimulus(case, pipe, in_width) if hasattr(os, "mkfifo") else None
+    if streamed is None:
+        return prepare_fast_run(case, in_width, language="verilog"), None
+    run_dir.mkdir(parents=True, exist_ok=True)
+    pipe.unlink(missing_ok=True)
+    os.mkfifo(pipe)
+    (run_dir / "stimulus.json").write_text(streamed[0].to_json("streamed"))  # no stale description stays behind
+    return streamed
+
+
+def _feed(pipe: Path, write: Callable[[BinaryIO], None], done: threading.Event) -> None:
+    """Write the stimulus into ``pipe`` once the simulator opened it; give up when the run ended first or the
+    simulator stopped reading (it ended: the guard's outcome says how)."""
+    while True:
+        try:
+            fd = os.open(pipe, os.O_WRONLY | os.O_NONBLOCK)
+            break
+        except OSError as exc:
+            if exc.errno != errno.ENXIO or done.is_set():  # ENXIO: no reader yet
+                return
+            time.sleep(0.001)
+    os.set_blocking(fd, True)
+    try:
+        fcntl.fcntl(fd, _F_SETPIPE_SZ, _PIPE_BYTES)
+    except OSError:  # a smaller limit for this user: the default buffer works too
+        pass
+    try:
+        with open(fd, "wb") as fh:
+            write(fh)
+    except (BrokenPipeError, ConnectionResetError):
+        pass
 
 
 def _native_info(build_dir: str | Path, simulator: str) -> dict[str, object]:
@@ -224,32 +279,41 @@ def run_native(case: SimCase, simulator: str, build_dir: str | Path, *, in_width
         ToolError: the executable exited with an error code, or wrote no capture.
     """
     info = _native_info(build_dir, simulator)
-    plusargs, capture = native_run_args(case, in_width=in_width)
+    stim, feed = _stimulus(case, in_width)
     run_dir = fast_run_dir(case)
+    capture = run_dir / CAPTURE_BIN_NAME
     capture.unlink(missing_ok=True)
     log = run_dir / "native.log"
-    stim = read_fast_run(case)
-    outcome, followed = _run_reading([*info["run"], *plusargs], capture, case, stim, timeout_s, log,
-                                     subprocess_env(find(simulator)))
+    try:
+        outcome, followed = _run_reading([*info["run"], *_plusargs(case, stim, capture)], capture, case, stim,
+                                         timeout_s, log, subprocess_env(find(simulator)), feed)
+    finally:
+        if feed is not None:
+            stim.stim.unlink(missing_ok=True)
     stopped = outcome.timed_out or outcome.signal is not None
     if stopped:
-        return _finish(_partial(capture, case), case, simulator, outcome.describe(), outcome)
+        return _finish(_partial(capture, case, stim), case, simulator, outcome.describe(), outcome)
     if outcome.returncode != 0:
         message = f"native run: {info['run'][0]} exited with {outcome.returncode}: {_log_tail(log)}; see {log}"
         if capture.is_file():  # keep what was captured before the failure
-            _finish(read_capture(capture, case, read_fast_run(case)), case, simulator, message)
+            _finish(read_capture(capture, case, stim), case, simulator, message)
         raise ToolError(message)
     if not capture.is_file():
         raise ToolError(f"native run: no capture file after {outcome.seconds:.1f} s; see {log}")
     return _finish(followed if followed is not None else read_capture(capture, case, stim), case, simulator)
 
 
-def _run_reading(cmd: list[str], capture: Path, case: SimCase, stim: StimulusFiles | None, timeout_s: float | None,
-                 log: Path, env: dict[str, str]) -> tuple[GuardOutcome, Capture | None]:
+def _run_reading(cmd: list[str], capture: Path, case: SimCase, stim: StimulusFiles, timeout_s: float | None,
+                 log: Path, env: dict[str, str], feed: Callable[[BinaryIO], None] | None = None
+                 ) -> tuple[GuardOutcome, Capture | None]:
     """Run the executable under the guard while a thread reads its capture as it grows (the harness flushes
-    it at every output line end), so reading overlaps the simulation. The capture is None when that
-    reading failed (the caller reads the file again, and says why)."""
+    it at every output line end), and, with ``feed``, another writes its stimulus into the pipe it plays, so
+    both overlap the simulation. The capture is None when that reading failed (the caller reads the file
+    again, and says why)."""
     done = threading.Event()
+    feeder = threading.Thread(target=_feed, args=(stim.stim, feed, done), name="vkit-stimulus-writer", daemon=True)
+    if feed is not None:
+        feeder.start()
     box: list[Capture | None] = [None]
 
     def follow() -> None:
@@ -267,13 +331,15 @@ def _run_reading(cmd: list[str], capture: Path, case: SimCase, stim: StimulusFil
     finally:
         done.set()
         reader.join()
+        if feed is not None:
+            feeder.join()
     return outcome, box[0]
 
 
-def _partial(capture: Path, case: SimCase) -> Capture:
+def _partial(capture: Path, case: SimCase, stim: StimulusFiles) -> Capture:
     """The capture a stopped run left (up to its last flushed line), or an empty one."""
     try:
-        return read_capture(capture, case, read_fast_run(case))
+        return read_capture(capture, case, stim)
     except VkitError:  # no file, or not even a header
         return Capture()
 

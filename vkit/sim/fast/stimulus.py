@@ -12,7 +12,7 @@ import hashlib
 import json
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, BinaryIO, Callable
 
 import numpy as np
 
@@ -51,6 +51,7 @@ __all__ = [
     "write_words_hex",
     "write_words",
     "write_stimulus",
+    "streamed_stimulus",
     "expected_words",
     "write_expected",
     "fast_run_dir",
@@ -266,8 +267,10 @@ def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout
         raise ConfigError(f"stimulus: input data width {in_width} bits is too wide for the player (max {MAX_IN_WIDTH})")
     pins = case.pin_polarity(INPUT_LEVEL_ROLES)
     if language == "verilog" and _frame_by_frame(case):
-        stim = _write_video_by_frame(case, out / "stim.bin", in_width, pins)
-        sched = schedule(case.video_timing(), case.frame_count())  # for the input facts, after the words
+        path = out / "stim.bin"
+        with open(path, "wb") as fh:
+            _video_words_into(fh, case, in_width, pins)
+        return _video_files(case, path, language, timeout_rel, schedule(case.video_timing(), case.frame_count()))
     else:
         sched, data = video_schedule_and_words(case)
         fields = video_word_fields(sched, data, in_width, pins)
@@ -276,9 +279,15 @@ def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout
             stim = write_hex(out / "stim.hex", pack_fields(fields), video_word_bits(in_width))
         else:
             stim = write_words(out / "stim.bin", fields)
+    return _video_files(case, stim, language, timeout_rel, sched)
+
+
+def _video_files(case: SimCase, stim: Path, language: str, timeout_rel: int | None, sched: ClockSchedule) -> StimulusFiles:
+    """The description of a video stimulus in ``stim`` played on ``sched``."""
     meta = video_input_facts(sched, case.pixels_per_clock)
     first = meta["first_input_clock"]
     timeout = int(timeout_rel) + (first or 0) if timeout_rel else 0
+    pins = case.pin_polarity(INPUT_LEVEL_ROLES)
     idle = idle_levels(pins)
     return StimulusFiles(stim, None, int(sched.n_clocks), 1, drain_clocks(case), timeout,
                          int(sched.frames) * case.width * case.height // case.pixels_per_clock, meta, None, language,
@@ -295,19 +304,30 @@ def _frame_by_frame(case: SimCase) -> bool:
     return garbage_splits_evenly(case.bus_layout().word_bits, case.video_timing().clocks_per_frame)
 
 
-def _write_video_by_frame(case: SimCase, path: Path, in_width: int, pins: dict[str, bool]) -> Path:
-    """``stim.bin`` written a frame at a time: the words of :func:`video_schedule_and_words` (one schedule of
-    one frame, the garbage words continuing one Generator), so memory holds one frame's words, not the run's."""
+def _video_words_into(fh: BinaryIO, case: SimCase, in_width: int, pins: dict[str, bool]) -> None:
+    """The words of :func:`video_schedule_and_words` written to ``fh`` a frame at a time (one schedule of one
+    frame, the garbage words continuing one Generator), so memory holds one frame's words, not the run's."""
     frames = case.load_frames()
     one = schedule(case.video_timing(), 1)
     rng = np.random.default_rng(int(case.seed))
-    path.parent.mkdir(parents=True, exist_ok=True)
-    with open(path, "wb") as fh:
-        for f in range(int(frames.shape[0])):
-            data = video_data_words(one, frames[f:f + 1], case.bus_layout(), blanking=case.blanking,
-                                    blanking_value=case.blanking_value, seed=rng)
-            fh.write(_packed_bytes(video_word_fields(one, data, in_width, pins), None).tobytes())
-    return path
+    for f in range(int(frames.shape[0])):
+        data = video_data_words(one, frames[f:f + 1], case.bus_layout(), blanking=case.blanking,
+                                blanking_value=case.blanking_value, seed=rng)
+        fh.write(_packed_bytes(video_word_fields(one, data, in_width, pins), None).tobytes())
+
+
+def streamed_stimulus(case: SimCase, stim: Path, in_width: int | None = None
+                      ) -> tuple[StimulusFiles, Callable[[BinaryIO], None]] | None:
+    """A video stimulus the Verilog harness can read from ``stim`` while Python writes it (a pipe): its
+    description, and the function that writes its words to an open file. None when the case's words cannot be
+    written a frame at a time (stalls, a clock enable), or it is no video case: write the file first then."""
+    width = int(in_width or case.bus_layout().word_bits)
+    if case.family != "video" or width > MAX_IN_WIDTH or not _frame_by_frame(case):
+        return None
+    pins = case.pin_polarity(INPUT_LEVEL_ROLES)
+    files = _video_files(case, stim, "verilog", case.effective_timeout_clocks(),
+                         schedule(case.video_timing(), case.frame_count()))
+    return files, lambda fh: _video_words_into(fh, case, width, pins)
 
 
 def _write_stream(case: SimCase, out: Path, in_width: int, language: str, timeout_rel: int | None) -> StimulusFiles:

@@ -38,7 +38,7 @@ from vkit.sim.hdltext import render
 from vkit.sim.simulators import find, require, subprocess_env
 from vkit.video.capture import Capture
 
-__all__ = ["NATIVE_SIMULATORS", "NATIVE_VERILATOR_ARGS", "NATIVE_MAIN", "harness_drives", "NativeBuild", "native_build_plan", "native_build", "native_run_args", "run_native"]
+__all__ = ["NATIVE_SIMULATORS", "NATIVE_VERILATOR_ARGS", "NATIVE_MAIN", "STIM_PIPE_NAME", "harness_drives", "NativeBuild", "native_build_plan", "native_build", "native_run_args", "run_native"]
 
 NATIVE_SIMULATORS = ("icarus", "verilator")
 """Simulators :func:`native_build_plan` builds a plain executable with (Verilog harness)."""
@@ -258,8 +258,10 @@ def run_native(case: SimCase, simulator: str, build_dir: str | Path, *, in_width
                timeout_s: float | None = None) -> Capture:
     """Run ``case`` on the native executable in ``build_dir`` (made by :func:`native_build`); return its Capture.
 
-    Python writes the stimulus, runs the executable once with the harness's plusargs (no cocotb) under
-    :func:`vkit.sim.guard.run_guarded`, reads the binary capture and saves it to ``case.capture_file``.
+    Python runs the executable once with the harness's plusargs (no cocotb) under
+    :func:`vkit.sim.guard.run_guarded`; while it runs, one thread writes the stimulus into the named pipe it
+    plays (:data:`STIM_PIPE_NAME`; a file written first where stalls or a clock enable rule that out) and
+    another reads the binary capture as the harness flushes it; the capture is saved to ``case.capture_file``.
     A run stopped at ``timeout_s`` or ended by a signal is no error here: its capture (partial, as the
     harness flushes it line by line; empty when there is none) carries ``facts.sim_outcome``, the
     :class:`~vkit.sim.guard.GuardOutcome` as a dict.

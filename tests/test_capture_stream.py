@@ -126,12 +126,12 @@ def test_a_passing_run_keeps_counts_only_and_a_failing_one_keeps_every_frame():
 
 @pytest.mark.parametrize("bits", [8, 24, 32, 40, 58])
 def test_garbage_drawn_in_even_parts_equals_one_draw(bits):
-    # the reference is NumPy's own single draw from the same PCG64 seed
-    from vkit.video.words import _garbage, garbage_splits_evenly
+    # the reference is NumPy's own single draw from the same PCG64 seed (how vkit.video.words draws garbage)
+    from vkit.video.words import garbage_splits_evenly
 
-    whole = _garbage(11, bits, 6 * 1000)
+    whole = np.random.default_rng(11).integers(0, 1 << bits, size=6 * 1000, dtype=np.int64)
     rng = np.random.default_rng(11)
-    parts = np.concatenate([_garbage(rng, bits, 1000) for _ in range(6)])
+    parts = np.concatenate([rng.integers(0, 1 << bits, size=1000, dtype=np.int64) for _ in range(6)])
     assert garbage_splits_evenly(bits, 1000) and np.array_equal(parts, whole)
     assert garbage_splits_evenly(bits, 999) == (bits > 32)
 

@@ -50,12 +50,13 @@ def test_auto_picks_native_for_verilog_and_fast_for_vhdl_on_ghdl(tmp_path: Path)
 
 
 def test_auto_falls_back_to_clock_where_no_harness_can_wrap_the_design(tmp_path: Path) -> None:
-    # a 60-bit input bus: wider than the player's 64-bit words hold (MAX_IN_WIDTH), cocotb can still drive it
+    # a 400-bit input bus: wider than the widest word the player carries (MAX_IN_WIDTH, 8 x 48 bits), cocotb can
+    # still drive it
     passthrough = Path(__file__).parent / "hdl" / "video_passthrough.v"
     ports = "".join(f'{r} = "{r}"\n' for r in ("in_vsync", "in_hsync", "in_de", "in_valid", "in_data", "out_vsync",
                                               "out_hsync", "out_de", "out_valid", "out_data"))
     body = (f'[designs.wide]\ntop = "video_passthrough"\nsources = ["{passthrough}"]\nspec = "identity"\n'
-            f'parameters = {{ WIDTH = 60 }}\npixel_format = "rgb888"\n[designs.wide.ports]\nclock = "clk"\n'
+            f'parameters = {{ WIDTH = 400 }}\npixel_format = "rgb888"\n[designs.wide.ports]\nclock = "clk"\n'
             f'reset = "rst"\n{ports}[stimulus]\npatterns = ["impulse"]\ntimings = ["tiny32x24"]\n')
     (case,) = expand_matrix(load_config(_config(tmp_path, body, tmp_path / "cache")), ["icarus"])
     assert pick_drive(case) == "clock"

@@ -93,3 +93,36 @@ def test_exported_vhdl_testbench_on_ghdl(tmp_path: Path) -> None:
     assert _counts(log) == (1, frames.size) and "vkit: FAIL" in log
     cap = read_capture(res.capture, case)
     np.testing.assert_array_equal(cap.frames(24, 32)[1].pixels, frames[1])
+
+
+def _lane_case(tmp: Path, lanes: int, lane_order: str) -> SimCase:
+    frames = np.random.default_rng(12).integers(0, 256, (2, 24, 32), dtype=np.uint8)
+    np.save(tmp / "frames.npy", frames)
+    return SimCase("video", dict(SIGNALS), str(tmp / "frames.npy"), str(tmp / "cap.npz"), 32, 24,
+                   pixels_per_clock=lanes, lane_order=lane_order)
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("sim, lanes, lane_order", [("icarus", 4, "first_high"), ("verilator", 8, "first_low"),
+                                                    ("ghdl", 2, "first_high")])
+def test_exported_testbench_checks_each_lane_of_a_word(sim: str, lanes: int, lane_order: str, tmp_path: Path) -> None:
+    # A pass-through of N gray8 pixels a word: the testbench checks every lane as a pixel, and names the one
+    # corrupted pixel by its place in the frame whatever lane it rides in.
+    case = _lane_case(tmp_path, lanes, lane_order)
+    frames = case.load_frames()
+    top, src = ("fast_video_pass_vhd", HDL / "fast_video_pass.vhd") if sim == "ghdl" else ("fast_video_pass",
+                                                                                          HDL / "fast_video_pass.v")
+    params = {"WIDTH": 8 * lanes}
+    res = export_case(case, tmp_path / "exp", top, [src], frames, parameters=params)
+    log = _run(sim, res.commands[sim], res.out_dir)
+    assert _counts(log) == (0, frames.size) and "vkit: PASS" in log
+    cap = read_capture(res.capture, case)
+    np.testing.assert_array_equal(cap.frames(24, 32)[1].pixels, frames[1])
+    wrong = frames.copy()
+    wrong[0, 2, 5] ^= 0x40  # pixel 2 * 32 + 5 = 69 of frame 0
+    mask = np.ones((24, 32), bool)
+    mask[:, 0] = False  # an unchecked column: one lane of the first word of every line
+    res = export_case(case, tmp_path / "exp2", top, [src], wrong, mask=mask, parameters=params)
+    log = _run(sim, res.commands[sim], res.out_dir)
+    assert _counts(log) == (1, frames.size - 2 * 24) and "vkit: FAIL" in log
+    assert re.search(r"vkit: pixel 69: got 0*([0-9a-f]{2}), expected", log), log[-1500:]

@@ -61,7 +61,8 @@ def run_fast(sim: str, case: SimCase, top: str, sources: list[Path], work: Path,
     activate(find(sim))
     language = "vhdl" if sim == "ghdl" else "verilog"
     plan = fast_build_plan(top, sources, language, parameters, defines, case.family, case.signals,
-                           out_dir=work / "harness", pixel_format=case.pixel_format)
+                           out_dir=work / "harness", pixel_format=case.pixel_format,
+                           reset_active_high=case.reset_active_high)
     runner = get_runner(sim)
     if build_dir is None:
         build_dir = work / f"build_{sim}"
@@ -491,6 +492,7 @@ def test_fast_and_per_clock_paths_give_the_same_verdict(design: str, bug: str | 
         np.save(work / "frames.npy", frames)
         case = SimCase(d["family"], dict(d["ports"]), str(work / "frames.npy"), str(work / "out" / "cap.npz"), 32, 24,
                        pixel_format=d["pixel_format"], seed=5, pixels_per_clock=d.get("pixels_per_clock", 1),
+                       lane_order=d.get("lane_order", "first_low"), reset_active_high=d.get("reset_active_high", True),
                        **extra)
         run = run_fast if path == "fast" else _run_per_clock
         cap = run("icarus", case, d["top"], sources, work, parameters=params, defines=defines)

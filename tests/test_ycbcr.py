@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import cv2
 import numpy as np
 import pytest
 
+from conftest import SAMPLE_RTL, simulator_available
 from vkit.core.errors import ConfigError
 from vkit.model.ycbcr import YCbCrCoding, rgb_to_ycbcr, rgb_to_ycbcr_float, ycbcr_to_rgb, ycbcr_to_rgb_float
 
@@ -134,3 +137,95 @@ def test_422_frames_take_cb_and_cr_from_the_even_pixel() -> None:
     assert np.array_equal(f[:, 0::2, 1], full[:, 0::2, 1]) and np.array_equal(f[:, 1::2, 1], full[:, 0::2, 2])
     word = BusLayout("ycbcr422_8").pixel_words(f[None])[0]
     assert int(word[1, 3]) == int.from_bytes(bytes([int(f[1, 3, 1]), int(f[1, 3, 0])]), "big")  # {C, Y}
+
+
+_IMAGE_CONFIG = """
+[run]
+simulators = ["icarus"]
+jobs = 1
+cache_dir = "{cache}"
+path = "native"
+waves = "off"
+
+[designs.luma422]
+top = "belt_luma422"
+sources = ["{rtl}/lane_rows.v", "{rtl}/belt_luma422.v"]
+family = "video"
+pixel_format = "ycbcr422_8"
+parameters = {{ MAX_WIDTH = 1024 }}
+
+[designs.luma422.spec]
+name = "luma422_erode_709"
+input = "ycbcr422_8"
+chroma = "pass"
+coding = {{ standard = "{standard}", range = "{range}" }}
+filter = {{ kind = "min" }}
+output = {{ bits = 8 }}
+
+[designs.luma422.ports]
+clock = "clk"
+reset = "rst"
+in_vsync = "cam_vs"
+in_hsync = "cam_hs"
+in_de = "cam_de"
+in_valid = "cam_dv"
+in_data = "cam_ycc"
+out_de = "res_de"
+out_valid = "res_dv"
+out_data = "res_ycc"
+
+[stimulus]
+images = ["{image}"]
+size = [32, 24]
+frames = 1
+"""
+
+
+def _image_cases(tmp: Path, standard: str, rng: str, cache: Path) -> tuple[Path, list, np.ndarray]:
+    from PIL import Image
+
+    from vkit.run.config import expand_matrix, load_config
+    from vkit.video.patterns import make_pattern
+
+    rgb = make_pattern("conveyor", 24, 32, seed=3, rgb=True)
+    Image.fromarray(rgb, "RGB").save(tmp / "belt.png")
+    cfg = tmp / "luma422.toml"
+    cfg.write_text(_IMAGE_CONFIG.format(cache=cache.as_posix(), rtl=SAMPLE_RTL.as_posix(), standard=standard,
+                                        range=rng, image=(tmp / "belt.png").as_posix()))
+    return cfg, expand_matrix(load_config(cfg), ["icarus"]), rgb
+
+
+@pytest.mark.parametrize("standard, rng", [("bt601", "full"), ("bt709", "limited")])
+def test_an_rgb_image_enters_a_ycbcr_design_with_the_spec_coding(tmp_path: Path, standard: str, rng: str) -> None:
+    from vkit.run.inputs import make_frames
+
+    _, (case,), rgb = _image_cases(tmp_path, standard, rng, tmp_path / "cache")
+    (frame,) = make_frames(case)
+    assert frame.shape == (24, 32, 2)  # 4:2:2: {Y, C} a pixel
+    r, g, b = (rgb[..., k].astype(float) for k in range(3))
+    if standard == "bt601":
+        # Reference: OpenCV's COLOR_RGB2YCrCb is BT.601 on the full 8-bit range (Y, Cr, Cb order).
+        ycrcb = cv2.cvtColor(rgb, cv2.COLOR_RGB2YCrCb).astype(int)
+        want_y, want_cb, want_cr = ycrcb[..., 0], ycrcb[..., 2], ycrcb[..., 1]
+    else:
+        # Reference: ITU-R BT.709-6 item 3.2/3.3 (E'Y = 0.2126 R + 0.7152 G + 0.0722 B; Cb = (B - Y) / 1.8556,
+        # Cr = (R - Y) / 1.5748) quantised per item 4.6 on the limited 8-bit range: 16 + 219 Y, 128 + 224 C.
+        ey = (0.2126 * r + 0.7152 * g + 0.0722 * b) / 255
+        want_y = np.round(16 + 219 * ey).astype(int)
+        want_cb = np.round(128 + 224 * ((b / 255 - ey) / 1.8556)).astype(int)
+        want_cr = np.round(128 + 224 * ((r / 255 - ey) / 1.5748)).astype(int)
+    assert np.abs(frame[..., 0].astype(int) - want_y).max() <= 1
+    # ITU-R BT.601-7 4:2:2 co-siting: C of an even column is Cb of that pixel, of the odd one Cr of its even pixel.
+    assert np.abs(frame[:, 0::2, 1].astype(int) - want_cb[:, 0::2]).max() <= 1
+    assert np.abs(frame[:, 1::2, 1].astype(int) - want_cr[:, 0::2]).max() <= 1
+
+
+@pytest.mark.sim
+def test_an_rgb_image_runs_through_the_422_design(tmp_path: Path, build_cache_dir: Path) -> None:
+    from vkit.run.config import load_config
+    from vkit.run.runner import run
+
+    simulator_available("icarus")
+    cfg, _, _ = _image_cases(tmp_path, "bt709", "limited", build_cache_dir)
+    result = run(load_config(cfg), jobs=1, progress=False, out_dir=tmp_path / "out")
+    assert [c.status for c in result.cases] == ["pass"], [c.diagnosis for c in result.cases]

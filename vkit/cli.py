@@ -219,7 +219,10 @@ def _cmd_widths(args: argparse.Namespace) -> int:
     bus = BusLayout(spec.input, args.component_order, args.pixels_per_clock, args.lane_order)
     if args.json:
         ranges = widths.stage_ranges(spec)
-        print(json.dumps(_plain(ranges), indent=2))
+        out_bits = spec.output.bits
+        lanes = {**bus.to_dict(), "sample_bits": bus.sample_bits, "pixel_bits": bus.pixel_bits,
+                 "output_word_bits": bus.lanes * out_bits, "output_layout": bus.describe_output(out_bits)}
+        print(json.dumps({"stages": _plain(ranges), "bus": lanes}, indent=2))
     else:
         print(widths.format_width_table(spec))
         print(f"input bus: {bus.word_bits}-bit word, {bus.describe()}")
@@ -405,7 +408,7 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
     )),
     ("widths", "print each stage's range and bits, and the lane layout of the data words", _cmd_widths, (
         _SPEC,
-        _arg("--json", action="store_true", help="print JSON instead of a table (stage ranges only)"),
+        _arg("--json", action="store_true", help="print JSON instead of a table: {stages: [...], bus: the lane layout}"),
         _arg("--pixels-per-clock", type=int, default=1, help="pixels the data words carry a clock: 1, 2, 4 or 8"),
         _arg("--lane-order", default="first_low", help="first_low (first pixel in the low bits) or first_high"),
         _arg("--component-order", default="RGB", help="R, G, B in a pixel's field, most significant first"),

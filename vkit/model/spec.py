@@ -18,6 +18,7 @@ from vkit.model.luma import PRESETS as LUMA_PRESETS
 from vkit.model.luma import REAL_COEFFICIENTS, LumaWeights, weights_from_coefficients
 from vkit.model.magnitude import METHODS
 from vkit.model.window import BORDERS
+from vkit.model.ycbcr import RANGES, STANDARDS, YCbCrCoding
 
 if sys.version_info >= (3, 11):
     import tomllib as _toml
@@ -35,6 +36,7 @@ __all__ = [
     "PASSTHROUGH_MAPPINGS",
     "CHROMA_MODES",
     "WHERE",
+    "CodingSpec",
     "LumaSpec",
     "WindowSpec",
     "FilterSpec",
@@ -335,14 +337,42 @@ class OutputSpec:
         return out
 
 
+@dataclass(frozen=True)
+class CodingSpec:
+    """How R'G'B' becomes the Y'CbCr a Y'CbCr design takes (the ``[coding]`` table): the standard's
+    coefficients and the range. The model filters Y' as it comes and never needs it; RGB stimulus
+    (image files and patterns) is converted with it (:func:`vkit.model.ycbcr.rgb_to_ycbcr`).
+
+    Args:
+        standard: ``"bt601"`` (ITU-R BT.601) or ``"bt709"`` (ITU-R BT.709).
+        range: ``"full"`` or ``"limited"`` (Y' 16..235, Cb/Cr 16..240 at 8 bits).
+    """
+
+    standard: str = "bt601"
+    range: str = "full"
+
+    def __post_init__(self) -> None:
+        want_choice(WHERE, "coding.standard", self.standard, tuple(STANDARDS))
+        want_choice(WHERE, "coding.range", self.range, RANGES)
+
+    def at_bits(self, bits: int) -> YCbCrCoding:
+        """The coding on samples of ``bits`` bits (RGB drawn at 8 bits or more)."""
+        return YCbCrCoding(self.standard, self.range, max(8, int(bits)))
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain-data form (the ``[coding]`` table)."""
+        return {"standard": self.standard, "range": self.range}
+
+
 _SECTIONS = {
+    "coding": CodingSpec,
     "luma": LumaSpec,
     "window": WindowSpec,
     "filter": FilterSpec,
     "magnitude": MagnitudeSpec,
     "output": OutputSpec,
 }
-_TOP_KEYS = ("name", "input", "chroma", "luma", "window", "filter", "magnitude", "output")
+_TOP_KEYS = ("name", "input", "chroma", "coding", "luma", "window", "filter", "magnitude", "output")
 CHROMA_MODES = ("drop", "pass")
 """Values of ``chroma`` for a Y'CbCr input: the colour differences are dropped (the output is Y' alone)
 or passed through, delayed with their pixel, above Y' in the output word."""
@@ -363,6 +393,7 @@ class PipelineSpec:
     input: str = "rgb888"
     luma: LumaSpec | None = None
     chroma: str = "drop"
+    coding: CodingSpec | None = None
     window: WindowSpec = field(default_factory=WindowSpec)
     filter: FilterSpec = field(default_factory=FilterSpec)
     magnitude: MagnitudeSpec | None = None
@@ -397,10 +428,21 @@ class PipelineSpec:
             if self.chroma != "drop":
                 raise fail(WHERE, "chroma", self.chroma, f"only for a Y'CbCr input, not {self.input}",
                            "remove it, or give input = \"ycbcr422_8\" (or another Y'CbCr format)")
+            if self.coding is not None:
+                raise fail(WHERE, "coding", "(a table)", f"only for a Y'CbCr input, not {self.input}",
+                           "remove [coding], or give input = \"ycbcr422_8\" (or another Y'CbCr format)")
             return
         if self.luma is not None:
             raise fail(WHERE, "luma", "(a table)", f"not used with {self.input} input (Y' is filtered as it comes)",
                        "remove [luma]")
+
+    @property
+    def ycbcr_coding(self) -> YCbCrCoding | None:
+        """The coding RGB stimulus is converted with for a Y'CbCr input (``[coding]``, else BT.601 full range);
+        None for other inputs."""
+        if not is_ycbcr(self.input):
+            return None
+        return (self.coding or CodingSpec()).at_bits(self.input_bits)
 
     @property
     def chroma_bits(self) -> int:

@@ -9,7 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
-from vkit.core.vocab import is_ycbcr, sample_bits
+from vkit.core.vocab import is_ycbcr, pixel_format_name, sample_bits
 from vkit.model.luma import sample_dtype
 from vkit.core.errors import ConfigError
 from vkit.core.validate import closest, fail
@@ -18,7 +18,7 @@ from vkit.sim.case import SimCase
 from vkit.sim.hdlports import HdlDesign, Port, find_design
 from vkit.sim.signals import CONTROL_ROLES
 from vkit.video.images import load_image
-from vkit.video.patterns import pattern_in_format
+from vkit.video.patterns import pattern_in_format, ycbcr_frame
 
 __all__ = ["FRAMES_CACHE", "make_frames", "check_ports", "check_parameters", "make_sim_case", "BACKPRESSURE_SEED_OFFSET"]
 
@@ -33,9 +33,10 @@ def _crop(image: np.ndarray, width: int, height: int) -> np.ndarray:
     return image[top:top + height, left:left + width]
 
 
-def _image_frame(case: Case) -> np.ndarray:
+def _image_frame(case: Case, mode: str) -> np.ndarray:
+    """The case's image file read as ``mode`` and centre-cropped to the case's size."""
     try:
-        loaded = load_image(case.stimulus_name, mode=case.design.pixel_format, convert=case.convert,
+        loaded = load_image(case.stimulus_name, mode=mode, convert=case.convert,
                             max_pixels=case.max_image_pixels, setting=IMAGE_PIXELS_SETTING)
     except ConfigError as exc:
         if "convert" not in str(exc):
@@ -52,7 +53,9 @@ _PATTERN_CODE = ("vkit.video.patterns", "vkit.video.killers", "vkit.model.ycbcr"
 
 
 def _frames_key(case: Case) -> str:
-    digest = hashlib.sha256(repr((case.stimulus_name, case.height, case.width, case.design.pixel_format, case.seed,
+    fmt = case.design.pixel_format
+    coding = case.design.pipeline_spec().ycbcr_coding if is_ycbcr(fmt) else None
+    digest = hashlib.sha256(repr((case.stimulus_name, case.height, case.width, fmt, coding, case.seed,
                                   case.frames, sorted(dict(case.pattern_options).items()))).encode())
     for name in _PATTERN_CODE:
         digest.update(Path(importlib.import_module(name).__file__ or "").read_bytes())
@@ -65,9 +68,11 @@ def make_frames(case: Case, cache_dir: Path | None = None) -> np.ndarray:
 
     Frame ``k`` of a pattern uses seed ``case.seed + k`` (seeded patterns differ per frame). An image
     is read in the design's pixel format (conversions only with ``[stimulus] convert = true``) and
-    centre-cropped to the case's size; every frame of an image case is that image. With ``cache_dir``
+    centre-cropped to the case's size; every frame of an image case is that image. A Y'CbCr design reads
+    an RGB image (at 8 bits a sample or the format's width, if more) and converts it with the spec's
+    ``[coding]`` (:attr:`vkit.model.spec.PipelineSpec.ycbcr_coding`), as its patterns are. With ``cache_dir``
     (the build cache), drawn pattern frames are kept in its :data:`FRAMES_CACHE` folder, keyed on the
-    pattern, size, format, seeds and the drawing code, and read back by the next run instead of drawn.
+    pattern, size, format, coding, seeds and the drawing code, and read back by the next run instead of drawn.
     """
     if cache_dir is None or case.stimulus != "pattern":
         return _draw_frames(case)
@@ -89,15 +94,16 @@ def _draw_frames(case: Case) -> np.ndarray:
     """The frames of :func:`make_frames`, drawn or read from the image."""
     fmt = case.design.pixel_format
     bits = sample_bits(fmt)
+    coding = case.design.pipeline_spec().ycbcr_coding if is_ycbcr(fmt) else None
     frames = []
     for k in range(case.frames):
         if case.stimulus == "pattern":
             img = pattern_in_format(case.stimulus_name, case.height, case.width, fmt, seed=case.seed + k,
-                                    **dict(case.pattern_options))
+                                    coding=coding, **dict(case.pattern_options))
         elif is_ycbcr(fmt):
-            raise ConfigError(f"design {case.design.name}: images are not read for {fmt} designs yet; use patterns")
+            img = ycbcr_frame(_image_frame(case, pixel_format_name("rgb", max(8, bits))), fmt, coding)
         else:
-            img = _image_frame(case)
+            img = _image_frame(case, fmt)
         frames.append(np.ascontiguousarray(img, dtype=sample_dtype(bits)))
     return np.stack(frames)
 

@@ -11,6 +11,12 @@ on even columns, Cr on odd), ``Cr << 2*bits | Cb << bits | Y`` for 4:4:4.
 The model never sees any of this: sources pack frames into words here, and the monitors' captures
 (one sample per bus word) are unpacked here into one sample per pixel.
 
+A word of up to :data:`MAX_WORD_BITS` bits travels as one int64. A wider one (4 pixels a clock of
+RGB888 are 96 bits, 8 of gray8 64) travels as its pixel fields: a ``(..., lanes)`` int64 array whose
+column ``j`` is the field at bits ``j * pixel_bits`` upwards (:meth:`BusLayout.wide`). Writers take
+either form as bit fields (:meth:`BusLayout.word_fields`), the per-clock sources as Python ints
+(:meth:`BusLayout.word_list`).
+
 References:
     Several pixels a clock, first pixel in the low lane, is common practice for parallel video at
     high resolutions (no source); so is naming the component order by the letters most significant
@@ -30,14 +36,15 @@ from vkit.core.vocab import COMPONENT_ORDERS, PIXEL_FORMAT_BITS, is_rgb, is_ycbc
 from vkit.video.capture import UNKNOWN, Capture
 from vkit.video.timing import VideoTiming, tiny
 
-__all__ = ["LANE_COUNTS", "LANE_ORDERS", "MAX_WORD_BITS", "BusLayout", "clock_timing", "tiny_in_pixels", "unpack_capture"]
+__all__ = ["LANE_COUNTS", "LANE_ORDERS", "MAX_WORD_BITS", "BusLayout", "clock_timing", "tiny_in_pixels", "unpack_capture",
+           "split_lanes", "spread_lanes"]
 
 LANE_COUNTS: tuple[int, ...] = (1, 2, 4, 8)
 """Pixels a clock a bus may carry."""
 LANE_ORDERS: tuple[str, ...] = ("first_low", "first_high")
 """Where the first pixel of a clock's group sits: the least or the most significant lane."""
 MAX_WORD_BITS = 62
-"""Widest bus word, bits: words travel as int64 through the schedule, the stimulus writer and the capture."""
+"""Widest bus word that travels as one int64, bits; a wider one travels as its pixel fields (:attr:`BusLayout.wide`)."""
 
 WHERE = "bus layout"
 
@@ -69,10 +76,6 @@ class BusLayout:
             raise fail(WHERE, "pixels_per_clock", self.lanes, "not a lane count",
                        f"use one of {', '.join(map(str, LANE_COUNTS))}")
         want_choice(WHERE, "lane_order", self.lane_order, LANE_ORDERS)
-        if self.word_bits > MAX_WORD_BITS:
-            raise fail(WHERE, "pixels_per_clock", self.lanes,
-                       f"too many for {self.pixel_format}: {self.lanes} x {self.pixel_bits} = {self.word_bits} bits, "
-                       f"over the {MAX_WORD_BITS}-bit word vkit carries", "use fewer pixels a clock")
 
     @classmethod
     def of(cls, bus: BusLayout | str) -> BusLayout:
@@ -93,6 +96,12 @@ class BusLayout:
     def word_bits(self) -> int:
         """Bits of the whole bus word: ``lanes * pixel_bits``."""
         return self.lanes * self.pixel_bits
+
+    @property
+    def wide(self) -> bool:
+        """True when a word is wider than :data:`MAX_WORD_BITS`: words are then ``(..., lanes)`` arrays of
+        pixel fields, column ``j`` the field at bits ``j * pixel_bits`` upwards."""
+        return self.word_bits > MAX_WORD_BITS
 
     def lane_shift(self, lane: int, field_bits: int | None = None) -> int:
         """Lowest bit of pixel ``lane`` (0 = the first pixel of the group) in a word of ``field_bits`` fields."""
@@ -116,17 +125,51 @@ class BusLayout:
         return out
 
     def bus_words(self, frames: np.ndarray) -> np.ndarray:
-        """The bus word of every clock of active video, int64 ``(N, H, W // lanes)``."""
+        """The bus word of every clock of active video, int64 ``(N, H, W // lanes)``; a :attr:`wide` word as
+        its pixel fields, ``(N, H, W // lanes, lanes)``."""
         pix = self.pixel_words(frames)
         width = pix.shape[-1]
         if width % self.lanes:
             raise fail(WHERE, "pixels_per_clock", self.lanes, f"not a divisor of the active width {width} pixels",
                        "give a width that is a multiple of the pixels a clock")
         groups = pix.reshape(pix.shape[:-1] + (width // self.lanes, self.lanes))
+        if self.wide:  # fields in bit order: the first pixel lowest for first_low, highest for first_high
+            return np.ascontiguousarray(groups if self.lane_order == "first_low" else groups[..., ::-1])
         out = np.zeros(groups.shape[:-1], np.int64)
         for lane in range(self.lanes):
             out |= groups[..., lane] << self.lane_shift(lane)
         return out
+
+    def random_words(self, rng: np.random.Generator, n: int) -> np.ndarray:
+        """``n`` uniformly random words (``(n,)``, or ``(n, lanes)`` fields when :attr:`wide`) drawn from ``rng``."""
+        if self.wide:
+            return rng.integers(0, 1 << self.pixel_bits, size=(n, self.lanes), dtype=np.int64)
+        return rng.integers(0, 1 << self.word_bits, size=n, dtype=np.int64)
+
+    def constant_words(self, value: int, n: int) -> np.ndarray:
+        """``n`` copies of the word ``value`` (>= 0), in the form words of this layout take."""
+        if not self.wide:
+            return np.full(n, int(value), np.int64)
+        mask = (1 << self.pixel_bits) - 1
+        fields = [(int(value) >> (self.pixel_bits * j)) & mask for j in range(self.lanes)]
+        return np.tile(np.array(fields, np.int64), (n, 1))
+
+    def word_fields(self, words: np.ndarray, bits: int | None = None) -> list[tuple[np.ndarray, int]]:
+        """Words as ``(values, bits)`` bit fields, least significant first, each 64 bits at most (what the
+        stimulus writers pack). ``bits``: the bus the words go on, when wider than :attr:`word_bits` (the
+        top bits are zero)."""
+        total = self.word_bits if bits is None else int(bits)
+        if not self.wide:
+            return [(words, min(total, 64))] + _zero_fields(words.shape[0], total - 64)
+        cols = [(words[:, j], self.pixel_bits) for j in range(self.lanes)]
+        return cols + _zero_fields(words.shape[0], total - self.word_bits)
+
+    def word_list(self, words: np.ndarray) -> list[int]:
+        """Words as Python ints (what a cocotb handle takes), from either form."""
+        if not self.wide:
+            return np.asarray(words).tolist()
+        shifts = [self.pixel_bits * j for j in range(self.lanes)]
+        return [sum(v << s for v, s in zip(row, shifts)) for row in np.asarray(words).tolist()]
 
     def describe(self) -> str:
         """The layout in words, lane by lane, e.g. ``2 pixels a clock of gray10: pixel 0 in bits 9..0,
@@ -148,6 +191,12 @@ class BusLayout:
         return {"pixel_format": self.pixel_format, "component_order": self.component_order,
                 "pixels_per_clock": self.lanes, "lane_order": self.lane_order, "word_bits": self.word_bits,
                 "layout": self.describe()}
+
+
+def _zero_fields(n: int, bits: int) -> list[tuple[np.ndarray, int]]:
+    """``bits`` zero bits as fields of 32 bits at most (none when ``bits`` <= 0)."""
+    zero = np.zeros(n, np.int64)
+    return [(zero, min(32, bits - k)) for k in range(0, max(0, bits), 32)]
 
 
 def clock_timing(timing: VideoTiming | None, lanes: int, width: int, height: int) -> VideoTiming:
@@ -188,27 +237,69 @@ def tiny_in_pixels(width: int, height: int, lanes: int = 1) -> VideoTiming:
                    h_back_porch=t.h_back_porch * lanes, name=f"tiny{width}x{height}")
 
 
-def unpack_capture(capture: Capture, layout: BusLayout, bus_bits: int) -> Capture:
-    """A capture of bus words (one sample a clock) as one sample a pixel.
+def split_lanes(words: np.ndarray, layout: BusLayout, bus_bits: int, unknown: np.ndarray | None = None) -> np.ndarray:
+    """The pixel of every lane of captured bus words, int64 ``(n, lanes)`` in pixel order (lane 0 = first pixel).
 
-    Each word of ``bus_bits`` splits into ``layout.lanes`` fields of ``bus_bits // lanes`` bits; the
-    pixel of lane ``k`` of the word at column ``c`` lands at column ``c * lanes + k``, with the word's
-    clock. A word that held X or Z gives :data:`~vkit.video.capture.UNKNOWN` in every lane.
+    Args:
+        words: ``(n,)`` int64 words (:data:`~vkit.video.capture.UNKNOWN` for X/Z) of a bus up to
+            :data:`MAX_WORD_BITS` bits, or ``(n, k)`` 32-bit limbs, least significant first, of a wider one.
+        layout: the lane count and order.
+        bus_bits: the bus width; each lane holds ``bus_bits // lanes`` bits.
+        unknown: bool ``(n,)``, words that held X or Z (limbs only; words mark them with UNKNOWN).
 
     Raises:
         ConfigError: ``bus_bits`` is not a multiple of the lane count.
     """
     lanes = layout.lanes
-    if lanes == 1:
-        return capture
     if bus_bits % lanes:
         raise fail(WHERE, "pixels_per_clock", lanes, f"not a divisor of the {bus_bits}-bit output bus",
                    "give an output bus of pixels_per_clock equal fields")
     field = bus_bits // lanes
-    mask = (1 << field) - 1
-    words = capture.values
-    lane_vals = [np.where(words == UNKNOWN, UNKNOWN, (words >> layout.lane_shift(k, field)) & mask) for k in range(lanes)]
-    values = np.stack(lane_vals, axis=1).reshape(-1)
+    shifts = [layout.lane_shift(k, field) for k in range(lanes)]
+    w = np.asarray(words)
+    if w.ndim == 1:
+        bad = w == UNKNOWN
+        out = np.stack([(w >> s) & ((1 << field) - 1) for s in shifts], axis=1)
+    else:
+        bad = np.zeros(w.shape[0], bool) if unknown is None else np.asarray(unknown, bool)
+        out = np.stack([_limb_field(w, s, field) for s in shifts], axis=1)
+    out[bad] = UNKNOWN
+    return out.astype(np.int64)
+
+
+def _limb_field(limbs: np.ndarray, shift: int, bits: int) -> np.ndarray:
+    """Bits ``shift .. shift + bits - 1`` of words held as 32-bit limbs ``(n, k)``, least significant first."""
+    lo = shift // 32
+    k = limbs.shape[1]
+    out = np.zeros(limbs.shape[0], np.uint64)
+    for j in range(lo, min(k, (shift + bits + 31) // 32)):  # the limbs the field touches, at most 3
+        offset = 32 * j - shift
+        part = limbs[:, j].astype(np.uint64)
+        out |= part << np.uint64(offset) if offset >= 0 else part >> np.uint64(-offset)
+    return (out & np.uint64((1 << bits) - 1)).astype(np.int64)
+
+
+def spread_lanes(capture: Capture, lane_values: np.ndarray) -> Capture:
+    """``capture`` (one entry a bus word) as one sample a pixel, the pixels being ``lane_values`` (``(n, lanes)``,
+    :func:`split_lanes`): lane ``k`` of the word at column ``c`` lands at column ``c * lanes + k``, with the
+    word's clock."""
+    lanes = int(lane_values.shape[1])
     column = (capture.column[:, None] * lanes + np.arange(lanes)[None, :]).reshape(-1)
     rep = [np.repeat(a, lanes) for a in (capture.clock, capture.frame, capture.line)]
-    return Capture(values.astype(np.int64), rep[0], rep[1], rep[2], column.astype(np.int64), capture.facts)
+    return Capture(lane_values.reshape(-1).astype(np.int64), rep[0], rep[1], rep[2], column.astype(np.int64),
+                   capture.facts)
+
+
+def unpack_capture(capture: Capture, layout: BusLayout, bus_bits: int) -> Capture:
+    """A capture of bus words (one sample a clock, up to :data:`MAX_WORD_BITS` bits) as one sample a pixel.
+
+    Each word of ``bus_bits`` splits into ``layout.lanes`` fields of ``bus_bits // lanes`` bits
+    (:func:`split_lanes`, :func:`spread_lanes`). A word that held X or Z gives
+    :data:`~vkit.video.capture.UNKNOWN` in every lane.
+
+    Raises:
+        ConfigError: ``bus_bits`` is not a multiple of the lane count.
+    """
+    if layout.lanes == 1:
+        return capture
+    return spread_lanes(capture, split_lanes(capture.values, layout, bus_bits))

@@ -166,12 +166,16 @@ PATTERN_CODING = "bt601"
 valid frames; the model filters Y' as it comes and passes Cb, Cr through."""
 
 
-def ycbcr_frame(rgb: np.ndarray, pixel_format: str) -> np.ndarray:
-    """An RGB pattern ``(H, W, 3)`` as the samples of a Y'CbCr format: 4:4:4 ``(H, W, 3)`` Y, Cb, Cr, or
-    4:2:2 ``(H, W, 2)`` Y, C with C = Cb on even columns and Cr on odd ones, both taken from the even
-    (co-sited) pixel of each pair (ITU-R BT.601-7 4:2:2 sampling)."""
+def ycbcr_frame(rgb: np.ndarray, pixel_format: str, coding: YCbCrCoding | None = None) -> np.ndarray:
+    """An RGB picture ``(H, W, 3)`` (a pattern or an image file) as the samples of a Y'CbCr format: 4:4:4
+    ``(H, W, 3)`` Y, Cb, Cr, or 4:2:2 ``(H, W, 2)`` Y, C with C = Cb on even columns and Cr on odd ones,
+    both taken from the even (co-sited) pixel of each pair (ITU-R BT.601-7 4:2:2 sampling).
+
+    ``rgb`` holds samples of ``max(8, bits)`` bits; ``coding`` gives the standard and range (the spec's
+    ``[coding]``, :attr:`vkit.model.spec.PipelineSpec.ycbcr_coding`); None: BT.601 full range."""
     bits = sample_bits(pixel_format)
-    ycc = rgb_to_ycbcr(rgb, YCbCrCoding(PATTERN_CODING, "full", max(8, bits)))  # rgb drawn at max(8, bits)
+    standard, rng = (coding.standard, coding.range) if coding is not None else (PATTERN_CODING, "full")
+    ycc = rgb_to_ycbcr(rgb, YCbCrCoding(standard, rng, max(8, bits)))  # rgb drawn at max(8, bits)
     if bits < 8:
         ycc >>= 8 - bits
     if components(pixel_format) == 3:
@@ -529,13 +533,14 @@ def make_pattern(
 
 
 def pattern_in_format(name: str, height: int, width: int, pixel_format: str, seed: int = 0,
-                      **options: Any) -> np.ndarray:
+                      coding: YCbCrCoding | None = None, **options: Any) -> np.ndarray:
     """Pattern ``name`` as a design in ``pixel_format`` takes it: gray or RGB at the format's sample width,
-    or Y'CbCr converted from RGB drawn at 8 bits or more (:func:`ycbcr_frame`); the format's sample dtype."""
+    or Y'CbCr converted from RGB drawn at 8 bits or more with ``coding`` (:func:`ycbcr_frame`); the format's
+    sample dtype."""
     bits = sample_bits(pixel_format)
     ycc = is_ycbcr(pixel_format)
     img = make_pattern(name, height, width, seed=seed, rgb=is_rgb(pixel_format) or ycc,
                        bits=max(8, bits) if ycc else bits, **options)
     if ycc:
-        img = ycbcr_frame(img, pixel_format)
+        img = ycbcr_frame(img, pixel_format, coding)
     return np.ascontiguousarray(img, dtype=sample_dtype(bits))

@@ -41,20 +41,21 @@ READY_CHUNK_CLOCKS = 4096
 """Clocks of sink ready levels drawn per call of the generator (the draw order depends on it)."""
 
 
-def _garbage(seed: int | np.random.Generator, bits: int, n: int) -> np.ndarray:
-    """``n`` seeded random words of ``bits`` bits (numpy PCG64): the bus content nobody may sample.
+def _garbage(seed: int | np.random.Generator, layout: BusLayout, n: int) -> np.ndarray:
+    """``n`` seeded random words of ``layout`` (numpy PCG64): the bus content nobody may sample.
 
     ``seed`` may be a Generator already in use: the words then continue its stream (see
     :func:`garbage_splits_evenly` for when drawing in parts gives the same words as one draw)."""
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(int(seed))
-    return rng.integers(0, 1 << bits, size=n, dtype=np.int64)
+    return layout.random_words(rng, n)
 
 
 def garbage_splits_evenly(bits: int, part_clocks: int) -> bool:
-    """True when drawing the garbage words in parts of ``part_clocks`` words from one Generator gives the
-    words of one draw. NumPy draws a power-of-two range without rejection: one 64-bit draw a word above 32
-    bits, one half of a 64-bit draw a word up to 32 bits (a part of odd length would drop the other half;
-    checked against one draw in tests/test_capture_stream.py)."""
+    """True when drawing the garbage words of a ``bits``-bit bus (one int64 a word, not :attr:`BusLayout.wide`)
+    in parts of ``part_clocks`` words from one Generator gives the words of one draw. NumPy draws a
+    power-of-two range without rejection: one 64-bit draw a word above 32 bits, one half of a 64-bit draw a
+    word up to 32 bits (a part of odd length would drop the other half; checked against one draw in
+    tests/test_capture_stream.py)."""
     return bits > 32 or part_clocks % 2 == 0
 
 
@@ -82,14 +83,15 @@ def video_data_words(
         seed: seed of the random words (numpy PCG64), or a Generator whose stream they continue.
 
     Returns:
-        int64 array of length ``sched.n_clocks``.
+        int64 array of length ``sched.n_clocks``; ``(sched.n_clocks, lanes)`` pixel fields for a word wider
+        than :data:`vkit.video.bus.MAX_WORD_BITS` (:attr:`BusLayout.wide`).
     """
     layout = BusLayout.of(bus)
-    garbage = _garbage(seed, layout.word_bits, sched.n_clocks)
+    garbage = _garbage(seed, layout, sched.n_clocks)
     if blanking == "random":
         words = garbage
     else:
-        words = np.full(sched.n_clocks, int(blanking_value), np.int64)
+        words = layout.constant_words(blanking_value, sched.n_clocks)
         stall = sched.de & ~sched.valid
         words[stall] = garbage[stall]
     _place_pixels(words, sched, frames, layout)
@@ -211,11 +213,12 @@ class StreamTransfers:
     """Every transfer of a stream-family run, in order (all arrays one entry per pixel).
 
     Attributes:
-        data: the pixel's data-bus word (int64).
+        data: the pixel's data-bus word (int64; ``(n, lanes)`` pixel fields for a wide word, as
+            :func:`video_data_words` gives).
         sof: start of frame (first pixel of each frame).
         eol: end of line (last pixel of each line).
         gaps: idle clocks (valid low) before the pixel is offered, int64.
-        idle: the data word driven during those idle clocks (int64).
+        idle: the data word driven during those idle clocks (int64, or fields as ``data``).
         stall_pixels: ``[frame, line, column]`` of every pixel that came right after a gap.
         frames: frames in the run.
     """
@@ -251,13 +254,13 @@ def stream_transfers(
     """
     layout = BusLayout.of(bus)
     words = layout.bus_words(frames)
-    n, h, w = (int(v) for v in words.shape)
-    data = words.reshape(-1)
+    n, h, w = (int(v) for v in words.shape[:3])
+    data = words.reshape((n * h * w,) + words.shape[3:])
     gap_arr = gaps.draw(n, h, w) if gaps is not None else np.zeros((n, h, w), np.int64)
-    idle = _garbage(seed, layout.word_bits, data.size)
+    idle = _garbage(seed, layout, n * h * w)
     if blanking != "random":
-        idle[:] = int(blanking_value)
-    index = np.arange(data.size)
+        idle = layout.constant_words(blanking_value, n * h * w)
+    index = np.arange(n * h * w)
     return StreamTransfers(
         data=data,
         sof=index % (h * w) == 0,

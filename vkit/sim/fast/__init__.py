@@ -26,7 +26,7 @@ __getattr__, __dir__, __all__ = lazy_facade(__name__, {
         "NativeBuild run_native"
     ),
     "vkit.sim.fast.stimulus": (
-        "drain_clocks expected_words fast_run_dir prepare_fast_run write_words_hex "
+        "drain_clocks expected_lane_fields expected_words fast_run_dir prepare_fast_run write_words_hex "
         "read_fast_run stimulus_words_needed StimulusFiles stream_stimulus "
         "video_schedule_and_words write_expected write_hex write_stimulus "
         "write_words"

@@ -42,7 +42,7 @@ from vkit.core.errors import ConfigError, DutError
 from vkit.sim.case import SimCase
 from vkit.sim.fast.stimulus import StimulusFiles, write_stimulus
 from vkit.sim.fast.wire import CAPTURE_MAGIC, CAPTURE_ROLES, CAPTURE_VERSION, FAMILY_CODES, capture_data_words
-from vkit.video.bus import unpack_capture
+from vkit.video.bus import MAX_WORD_BITS, BusLayout, split_lanes, spread_lanes, unpack_capture
 from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, RunFacts
 from vkit.video.timing import schedule
 from vkit.video.words import samples_between
@@ -71,6 +71,7 @@ def parse_capture_text(
     height: int | None = None,
     split_on_height: bool = False,
     facts: RunFacts | None = None,
+    bus: BusLayout | None = None,
 ) -> Capture:
     """Turn capture text into a :class:`Capture`.
 
@@ -80,6 +81,8 @@ def parse_capture_text(
         height: active lines per frame (used with ``split_on_height``).
         split_on_height: close a video frame after ``height`` lines (when the design has no output vsync).
         facts: run facts known from the input side (frames_sent, first_input_clock, ...); copied in.
+        bus: the lane layout; needed for an output bus wider than 62 bits, whose words are split into one
+            sample a pixel here (:func:`_wide_lanes`; a narrower capture is split by :func:`read_capture`).
 
     Raises:
         ConfigError: the text is not a vkit capture (no header line).
@@ -101,16 +104,23 @@ def parse_capture_text(
     kind_a = np.array(kinds, dtype="S1").view(np.uint8) if kinds else np.zeros(0, np.uint8)
     pos_p = np.flatnonzero(kind_a == ord("P"))
     clock_all = np.array(clocks, dtype=np.int64) if clocks else np.zeros(0, np.int64)
-    values, xz_data = _hex_values(np.array(args, dtype="S")[pos_p] if pos_p.size else [])
+    width = int(head[5]) if len(head) > 5 and head[5].isdigit() else None
+    texts = np.array(args, dtype="S")[pos_p] if pos_p.size else []
+    lanes = None
+    if width is not None and width > MAX_WORD_BITS:
+        limbs, unknown = _hex_limbs(texts, capture_data_words(width))
+        lanes = _wide_lanes(limbs, unknown, width, bus)
+        values, xz_data = np.zeros(pos_p.size, np.int64), int(unknown.sum())
+    else:
+        values, xz_data = _hex_values(texts)
     code_a = np.zeros(kind_a.size, np.uint8)
     for i in np.flatnonzero(kind_a == ord("X")).tolist():
         code_a[i] = _role_code(args[i])
-    bits = int(head[5]) if len(head) > 5 and head[5].isdigit() else None
     cap = _build(family, [_Chunk(clock_all, kind_a, code_a, values, xz_data)], height, split_on_height, facts,
-                 capacity=int(values.size), value_bits=bits)
-    if bits is not None:
-        cap.facts.out_data_bits = bits
-    return cap
+                 capacity=int(values.size), value_bits=width if lanes is None else None)
+    if width is not None:
+        cap.facts.out_data_bits = width
+    return cap if lanes is None else spread_lanes(cap, lanes)
 
 
 def parse_capture_binary(
@@ -120,6 +130,7 @@ def parse_capture_binary(
     height: int | None = None,
     split_on_height: bool = False,
     facts: RunFacts | None = None,
+    bus: BusLayout | None = None,
 ) -> Capture:
     """Turn binary capture records into a :class:`Capture` (same arguments and result as :func:`parse_capture_text`).
 
@@ -141,10 +152,11 @@ def parse_capture_binary(
     nw = capture_data_words(width)
     body = raw[16:]
     body = body[: body.size - body.size % (8 + 4 * nw)]  # a run cut short mid-record
-    chunk = _decode_records(body.view("<u4").reshape(-1, 2 + nw))
-    cap = _build(family, [chunk], height, split_on_height, facts, capacity=int(chunk.values.size), value_bits=width)
+    chunk, lanes = _decode_records(body.view("<u4").reshape(-1, 2 + nw), width, bus)
+    cap = _build(family, [chunk], height, split_on_height, facts, capacity=int(chunk.values.size),
+                 value_bits=width if lanes is None else None)
     cap.facts.out_data_bits = width
-    return cap
+    return cap if lanes is None else spread_lanes(cap, lanes)
 
 
 def _role_code(role: str) -> int:
@@ -162,21 +174,25 @@ class _Chunk:
     xz_count: int
 
 
-def _decode_records(words: np.ndarray) -> _Chunk:
-    """Binary records (``(n, 2 + data words)`` uint32) decoded; X/Z pixels get :data:`UNKNOWN`."""
+def _decode_records(words: np.ndarray, width: int, bus: BusLayout | None = None) -> tuple[_Chunk, np.ndarray | None]:
+    """Binary records (``(n, 2 + data words)`` uint32) of a ``width``-bit bus decoded; X/Z pixels get
+    :data:`UNKNOWN`. A word wider than :data:`MAX_WORD_BITS` comes back as its lane values (``(n, lanes)``,
+    :func:`_wide_lanes`) beside zeros in the chunk; else the lanes are None."""
     nw = words.shape[1] - 2
     kind_a = (words[:, 1] & 0xFF).astype(np.uint8)
     code = ((words[:, 1] >> 8) & 0xFF).astype(np.uint8)
     pos_p = np.flatnonzero(kind_a == ord("P"))
     xz = code[pos_p] == 1
-    if nw <= 2:
+    lanes = None
+    if width > MAX_WORD_BITS:  # one sample cannot hold the word: split it into lanes from its limbs
+        lanes = _wide_lanes(words[pos_p, 2:], xz, width, bus)
+        values = np.zeros(pos_p.size, np.int64)
+    else:
         d = words[pos_p, 2:].astype(np.uint64)
         v = d[:, 0] | (d[:, 1] << np.uint64(32)) if nw == 2 else d[:, 0]
         values = v.astype(np.int64)
-    else:  # wider than 64 bits: Python ints, as the text parser does
-        values = np.array([sum(int(w) << (32 * j) for j, w in enumerate(row)) for row in words[pos_p, 2:]], np.int64)
-    values[xz] = UNKNOWN
-    return _Chunk(words[:, 0].astype(np.int64), kind_a, code, values, int(xz.sum()))
+        values[xz] = UNKNOWN
+    return _Chunk(words[:, 0].astype(np.int64), kind_a, code, values, int(xz.sum())), lanes
 
 
 _BLOCK_RECORDS = 1 << 20
@@ -234,28 +250,56 @@ def _frame_blocks(path: Path, nw: int, running: Running | None = None) -> Iterat
 
 
 def _parse_binary_file(path: Path, *, family: str | None = None, height: int | None = None,
-                       split_on_height: bool = False, facts: RunFacts | None = None, running: Running | None = None,
-                       capacity: int | None = None) -> Capture:
+                       split_on_height: bool = False, facts: RunFacts | None = None, bus: BusLayout | None = None,
+                       running: Running | None = None, capacity: int | None = None) -> Capture:
     """:func:`parse_capture_binary` of a file, read a block at a time (bounded memory on long runs of big
-    frames); with ``running``, while the simulator still writes it (``capacity``: pixels expected)."""
-    if split_on_height and running is not None:  # frames split on height: the whole file once it is complete
-        _wait_while(running)
+    frames); with ``running``, while the simulator still writes it (``capacity``: pixels expected). Frames
+    split on height and words wider than :data:`MAX_WORD_BITS` are read whole, once the file is complete."""
     with open(path, "rb") as fh:
         head = np.frombuffer(fh.read(_BINARY_HEADER_BYTES), "<u4")
     if head.size < 4:
         raise ConfigError("capture file: no binary capture header (VKCB); give a file written by the vkit harness")
     version, fam_code, width = (int(v) for v in head[1:4])
-    if split_on_height or version != CAPTURE_VERSION:  # frames split on height: the whole file at once
+    if split_on_height or version != CAPTURE_VERSION or width > MAX_WORD_BITS:
+        if running is not None:
+            _wait_while(running)
         return parse_capture_binary(np.fromfile(path, np.uint8), family=family, height=height,
-                                    split_on_height=split_on_height, facts=facts)
+                                    split_on_height=split_on_height, facts=facts, bus=bus)
     family = family or ("stream" if fam_code == FAMILY_CODES["stream"] else "video")
     nw = capture_data_words(width)
     if capacity is None or running is None:
         capacity = max(0, path.stat().st_size - _BINARY_HEADER_BYTES) // (8 + 4 * nw)
-    chunks = (_decode_records(words) for words in _frame_blocks(path, nw, running))
+    chunks = (_decode_records(words, width)[0] for words in _frame_blocks(path, nw, running))
     cap = _build(family, chunks, height, False, facts, capacity=capacity, value_bits=width)
     cap.facts.out_data_bits = width
     return cap
+
+
+def _wide_lanes(limbs: np.ndarray, unknown: np.ndarray, width: int, bus: BusLayout | None) -> np.ndarray:
+    """The lane values ``(n, lanes)`` of output words wider than 62 bits, from their 32-bit limbs (the lane decode step).
+
+    Raises:
+        ConfigError: no lane layout of several pixels a clock was given to split the words with.
+    """
+    if bus is None or bus.lanes == 1:
+        raise ConfigError(f"capture: the output data bus is {width} bits, wider than the {MAX_WORD_BITS} bits one "
+                          "sample holds; give pixels_per_clock so each word splits into pixels, or narrow the bus")
+    return split_lanes(limbs, bus, width, unknown)
+
+
+def _hex_limbs(texts: Any, n_limbs: int) -> tuple[np.ndarray, np.ndarray]:
+    """Hex words as 32-bit limbs ``(n, n_limbs)``, least significant first, and a mask of the words that are not
+    plain hex (U, x, z)."""
+    n = len(texts)
+    digits = 8 * n_limbs
+    if n == 0:
+        return np.zeros((0, n_limbs), np.uint32), np.zeros(0, bool)
+    padded = np.char.rjust(np.asarray(texts, dtype=f"S{digits}"), digits, b"0")
+    nib = _HEX_LUT[np.frombuffer(padded.tobytes(), np.uint8).reshape(n, n_limbs, 8)]
+    bad = (nib < 0).any(axis=(1, 2))
+    weights = (np.int64(16) ** np.arange(7, -1, -1, dtype=np.int64))[None, None, :]
+    limbs = (np.where(nib < 0, 0, nib) * weights).sum(axis=2)[:, ::-1]
+    return np.ascontiguousarray(limbs).astype(np.uint32), bad
 
 
 def is_binary_capture(head: bytes) -> bool:
@@ -680,6 +724,7 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
         height=int(case.height),
         split_on_height=case.family == "video" and "out_vsync" not in case.signals,
         facts=input_meta(case, stim),
+        bus=case.bus_layout(),
     )
     if cap.facts.timed_out and cap.facts.timeout_clocks is None:
         cap.facts.timeout_clocks = int(cap.facts.clocks_run or 0)
@@ -694,7 +739,8 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
         if cap.facts.out_data_bits is None:
             raise ConfigError(f"capture file {str(path)!r} does not name its data width, which {bus.lanes} pixels a clock "
                               "need to split the words; rebuild the harness with this vkit")
-        cap = unpack_capture(cap, bus, cap.facts.out_data_bits)
+        if cap.facts.out_data_bits <= MAX_WORD_BITS:  # a wider bus was split as it was read
+            cap = unpack_capture(cap, bus, cap.facts.out_data_bits)
     if case.family == "video":
         pattern = case.enable_pattern()
         enable = None

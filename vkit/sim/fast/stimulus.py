@@ -22,13 +22,13 @@ from vkit.sim.fast.wire import (
     GAP_BITS,
     MAX_IN_WIDTH,
     READY_WORDS,
-    pack_fields,
     stream_word_bits,
     stream_word_fields,
     video_word_bits,
     video_word_fields,
     word_bytes,
 )
+from vkit.video.bus import BusLayout
 from vkit.video.timing import ClockSchedule, schedule
 from vkit.video.words import (
     INPUT_LEVEL_ROLES,
@@ -53,6 +53,7 @@ __all__ = [
     "write_stimulus",
     "streamed_stimulus",
     "expected_words",
+    "expected_lane_fields",
     "write_expected",
     "fast_run_dir",
     "prepare_fast_run",
@@ -153,9 +154,11 @@ def write_words(path: str | Path, fields: list[tuple[np.ndarray, int]], nbytes: 
     return path
 
 
-def write_words_hex(path: str | Path, fields: list[tuple[np.ndarray, int]], nbytes: int | None = None) -> Path:
+def write_words_hex(path: str | Path, fields: list[tuple[np.ndarray, int]], nbytes: int | None = None,
+                    digits: int | None = None) -> Path:
     """Write the records of :func:`write_words` as hex text instead, one record per line (``2 * nbytes``
-    digits, most significant first), for a VHDL ``hread`` of ``8 * nbytes`` bits."""
+    digits, most significant first), for a VHDL ``hread`` of ``8 * nbytes`` bits; ``digits``: only the
+    last that many digits of each record (a ``hread`` of ``4 * digits`` bits; the fields must fit them)."""
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     raw = _packed_bytes(fields, nbytes)
@@ -163,7 +166,9 @@ def write_words_hex(path: str | Path, fields: list[tuple[np.ndarray, int]], nbyt
     chars[:, 0:-1:2] = _HEX[raw >> 4]
     chars[:, 1:-1:2] = _HEX[raw & 15]
     chars[:, -1] = ord("\n")
-    path.write_bytes(chars.tobytes())
+    if digits is not None:
+        chars = chars[:, chars.shape[1] - 1 - int(digits):]
+    path.write_bytes(np.ascontiguousarray(chars).tobytes())
     return path
 
 
@@ -271,14 +276,12 @@ def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout
         with open(path, "wb") as fh:
             _video_words_into(fh, case, in_width, pins)
         return _video_files(case, path, language, timeout_rel, schedule(case.video_timing(), case.frame_count()))
+    sched, data = video_schedule_and_words(case)
+    fields = video_word_fields(sched, data, in_width, pins, case.bus_layout())
+    if language == "vhdl":
+        stim = write_words_hex(out / "stim.hex", fields, digits=(video_word_bits(in_width) + 3) // 4)
     else:
-        sched, data = video_schedule_and_words(case)
-        fields = video_word_fields(sched, data, in_width, pins)
-        del data
-        if language == "vhdl":
-            stim = write_hex(out / "stim.hex", pack_fields(fields), video_word_bits(in_width))
-        else:
-            stim = write_words(out / "stim.bin", fields)
+        stim = write_words(out / "stim.bin", fields)
     return _video_files(case, stim, language, timeout_rel, sched)
 
 
@@ -301,7 +304,8 @@ def _frame_by_frame(case: SimCase) -> bool:
     stalls = case.stall_pattern()
     if (stalls is not None and stalls.probability > 0) or case.enable_pattern() is not None:
         return False
-    return garbage_splits_evenly(case.bus_layout().word_bits, case.video_timing().clocks_per_frame)
+    layout = case.bus_layout()
+    return not layout.wide and garbage_splits_evenly(layout.word_bits, case.video_timing().clocks_per_frame)
 
 
 def _video_words_into(fh: BinaryIO, case: SimCase, in_width: int, pins: dict[str, bool]) -> None:
@@ -313,7 +317,7 @@ def _video_words_into(fh: BinaryIO, case: SimCase, in_width: int, pins: dict[str
     for f in range(int(frames.shape[0])):
         data = video_data_words(one, frames[f:f + 1], case.bus_layout(), blanking=case.blanking,
                                 blanking_value=case.blanking_value, seed=rng)
-        fh.write(_packed_bytes(video_word_fields(one, data, in_width, pins), None).tobytes())
+        fh.write(_packed_bytes(video_word_fields(one, data, in_width, pins, case.bus_layout()), None).tobytes())
 
 
 def streamed_stimulus(case: SimCase, stim: Path, in_width: int | None = None
@@ -338,14 +342,15 @@ def _write_stream(case: SimCase, out: Path, in_width: int, language: str, timeou
                           "give a design whose input width matches the pixel format")
     s = stream_stimulus(case)
     write, name = (write_words_hex, "stim.hex") if language == "vhdl" else (write_words, "stim.bin")
-    stim = write(out / name, stream_word_fields(s, in_width), word_bytes(stream_word_bits(in_width)))
+    stim = write(out / name, stream_word_fields(s, in_width, case.bus_layout()), word_bytes(stream_word_bits(in_width)))
     levels = ready_levels(case.backpressure_pattern(), READY_WORDS)
     ready = write_hex(out / "ready.hex", levels.astype(np.uint64), 1)
     meta = {"frames_sent": s.frames, "first_input_clock": None, "stall_pixels": s.stall_pixels,
             "first_gap_clocks": int(s.gaps[0]) if s.gaps.size else 0}
     timeout = int(timeout_rel) if timeout_rel else 0
-    return StimulusFiles(stim, ready, int(s.data.size), int(levels.size), drain_clocks(case), timeout,
-                         int(s.data.size), meta, levels, language)
+    transfers = int(s.data.shape[0])
+    return StimulusFiles(stim, ready, transfers, int(levels.size), drain_clocks(case), timeout,
+                         transfers, meta, levels, language)
 
 
 def write_stimulus(case: SimCase, out_dir: str | Path, in_width: int | None = None, language: str = "verilog") -> StimulusFiles:
@@ -367,14 +372,8 @@ def write_stimulus(case: SimCase, out_dir: str | Path, in_width: int | None = No
     return write(case, out, width, language, case.effective_timeout_clocks())
 
 
-def expected_words(expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> np.ndarray:
-    """Expected-output words ``{check, value[out_width-1:0]}`` per output pixel in output (raster) order.
-
-    Args:
-        expected: ``(F, H, W)`` or ``(H, W)`` non-negative integer model output.
-        mask: bool, ``(H, W)`` or ``(F, H, W)``; False where the pixel is not checked (border). None = all.
-        out_width: output data bus bits.
-    """
+def _expected_frames(expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> tuple[np.ndarray, np.ndarray]:
+    """The expected output as ``(F, H, W)`` int64 values and its check mask, both checked."""
     e = np.asarray(expected)
     if e.ndim == 2:
         e = e[None]
@@ -386,12 +385,51 @@ def expected_words(expected: np.ndarray, mask: np.ndarray | None, out_width: int
             "give the right out_width"
         )
     m = np.ones(e.shape, bool) if mask is None else np.broadcast_to(np.asarray(mask, bool), e.shape)
+    return e.astype(np.int64), m
+
+
+def expected_words(expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> np.ndarray:
+    """Expected-output words ``{check, value[out_width-1:0]}`` per output pixel in output (raster) order.
+
+    Args:
+        expected: ``(F, H, W)`` or ``(H, W)`` non-negative integer model output.
+        mask: bool, ``(H, W)`` or ``(F, H, W)``; False where the pixel is not checked (border). None = all.
+        out_width: output data bus bits.
+    """
+    e, m = _expected_frames(expected, mask, out_width)
     return e.astype(np.uint64).reshape(-1) | (m.reshape(-1).astype(np.uint64) << np.uint64(out_width))
 
 
-def write_expected(path: str | Path, expected: np.ndarray, mask: np.ndarray | None, out_width: int) -> Path:
-    """Write :func:`expected_words` as a ``$readmemh`` file (``out_width + 1`` bits per line)."""
-    return write_hex(path, expected_words(expected, mask, out_width), out_width + 1)
+def expected_lane_fields(expected: np.ndarray, mask: np.ndarray | None, out_width: int,
+                         bus: BusLayout) -> list[tuple[np.ndarray, int]]:
+    """Expected-output words of a bus carrying ``bus.lanes`` pixels a word, as bit fields (least significant
+    first): ``{check[lanes-1:0], value[out_width-1:0]}`` per output word in output order, where field ``j``
+    (bits ``j * f .. j * f + f - 1``, ``f = out_width // lanes``) holds the pixel the lane order puts there and
+    check bit ``j`` says whether that pixel is checked.
+    """
+    lanes = bus.lanes
+    if out_width % lanes:
+        raise ConfigError(f"expected output: the {out_width}-bit output bus does not split into {lanes} equal "
+                          "lanes; give an output bus of pixels_per_clock equal fields")
+    e, m = _expected_frames(expected, mask, out_width // lanes)
+    if e.shape[-1] % lanes:
+        raise ConfigError(f"expected output: width {e.shape[-1]} is not a multiple of {lanes} pixels a clock")
+    field = out_width // lanes
+    groups = e.reshape(-1, lanes)
+    checks = m.reshape(-1, lanes)
+    # field j of the word holds the pixel whose lane shift is j * field
+    order = [next(k for k in range(lanes) if bus.lane_shift(k, field) == j * field) for j in range(lanes)]
+    return [(groups[:, k], field) for k in order] + [(checks[:, k], 1) for k in order]
+
+
+def write_expected(path: str | Path, expected: np.ndarray, mask: np.ndarray | None, out_width: int,
+                   bus: BusLayout | None = None) -> Path:
+    """Write the expected output as a ``$readmemh`` file: :func:`expected_words` (``out_width + 1`` bits a line),
+    or with several pixels a word :func:`expected_lane_fields` (``out_width + lanes`` bits a line)."""
+    if bus is None or bus.lanes == 1:
+        return write_hex(path, expected_words(expected, mask, out_width), out_width + 1)
+    fields = expected_lane_fields(expected, mask, out_width, bus)
+    return write_words_hex(path, fields, digits=(out_width + bus.lanes + 3) // 4)
 
 
 def fast_run_dir(case: SimCase) -> Path:

@@ -3,7 +3,9 @@
 The testbench (``tb_vkit.v`` or ``tb_vkit.vhd``, text in ``vkit/sim/templates/testbench.*.j2``) clocks
 ``vkit_harness``, compares every output pixel in output order with ``expected.hex`` (``{check, value}``
 per pixel, ``$readmemh`` format; check = 0 on unchecked border pixels) and prints
-``vkit: N mismatches in M pixels`` and ``vkit: PASS`` or ``vkit: FAIL``.
+``vkit: N mismatches in M pixels`` and ``vkit: PASS`` or ``vkit: FAIL``. With N pixels a clock each
+line of ``expected.hex`` is one output word, ``{check[N-1:0], value}`` (check bit ``j`` for the field at
+bits ``j * OW / N`` upwards; :func:`vkit.sim.fast.stimulus.expected_lane_fields`), and each lane is a pixel.
 """
 
 from __future__ import annotations
@@ -31,7 +33,9 @@ _SHOWN_MISMATCHES = 10
 
 
 def _common(case: SimCase, stim: StimulusFiles, out_width: int, n_expected: int) -> dict[str, Any]:
+    lanes = case.pixels_per_clock
     return {
+        "lanes": lanes, "first_high": int(case.lane_order == "first_high"),
         "label": case.label or "one case", "stim": stim, "stim_name": stim.stim.name, "out_width": out_width,
         "n_expected": n_expected, "harness": HARNESS, "half": format(float(case.clock_period_ns) / 2, "g"),
         "reset_cycles": max(_RESET_CYCLES_MIN, int(case.reset_cycles)), "shown": _SHOWN_MISMATCHES,
@@ -39,14 +43,14 @@ def _common(case: SimCase, stim: StimulusFiles, out_width: int, n_expected: int)
 
 
 def verilog_testbench(case: SimCase, stim: StimulusFiles, out_width: int, n_expected: int) -> str:
-    """The Verilog text of ``tb_vkit`` for ``case`` played from ``stim`` (``n_expected`` output pixels)."""
+    """The Verilog text of ``tb_vkit`` for ``case`` played from ``stim`` (``n_expected`` output words)."""
     return render("testbench.v.j2", ready_name=stim.ready.name if stim.ready is not None else "",
                   **_common(case, stim, out_width, n_expected))
 
 
 def vhdl_testbench(case: SimCase, stim: StimulusFiles, out_width: int, n_expected: int) -> str:
-    """The VHDL-2008 text of ``tb_vkit`` for ``case`` played from ``stim`` (``n_expected`` output pixels)."""
-    ew = out_width + 1
+    """The VHDL-2008 text of ``tb_vkit`` for ``case`` played from ``stim`` (``n_expected`` output words)."""
+    ew = out_width + case.pixels_per_clock
     return render("testbench.vhd.j2", hexw=4 * ((ew + 3) // 4), n_mem=max(1, n_expected),
                   **_common(case, stim, out_width, n_expected))
 
@@ -60,17 +64,13 @@ def write_testbench(case: SimCase, out_dir: str | Path, stim: StimulusFiles, out
         out_dir: the folder holding the stimulus files ``stim`` names.
         stim: the case's stimulus (from :func:`vkit.sim.fast.stimulus.write_stimulus` into ``out_dir``).
         out_width: output data bus bits.
-        expected: ``(F, H, W)`` expected output in output order.
+        expected: ``(F, H, W)`` expected output in output order (pixels; grouped into words by the case's lanes).
         mask: bool ``(H, W)`` or ``(F, H, W)``, False on unchecked pixels, or None.
         language: "verilog" or "vhdl".
     """
-    if case.pixels_per_clock > 1:
-        raise ConfigError(f"export: design carries pixels_per_clock = {case.pixels_per_clock}; the self-checking "
-                          "testbench compares one pixel a word, so it cannot be written for it yet; export with "
-                          "vectors only, or run the case with vkit run --path native")
     out = Path(out_dir)
-    exp_path = write_expected(out / "expected.hex", expected, mask, out_width)
-    n_expected = int(np.asarray(expected).size)
+    exp_path = write_expected(out / "expected.hex", expected, mask, out_width, case.bus_layout())
+    n_expected = int(np.asarray(expected).size) // case.pixels_per_clock
     make = vhdl_testbench if language == "vhdl" else verilog_testbench
     tb = out / f"{TESTBENCH}{'.vhd' if language == 'vhdl' else '.v'}"
     tb.write_text(make(case, stim, out_width, n_expected))

@@ -21,6 +21,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from vkit.core.vocab import PIXEL_FORMAT_BITS
+from vkit.video.bus import LANE_COUNTS, BusLayout
 from vkit.video.timing import ClockSchedule
 from vkit.video.words import StreamTransfers, input_levels
 
@@ -55,8 +57,8 @@ HARNESS = "vkit_harness"
 TOPLEVEL = "vkit_fast_top"
 """Name of the self-clocked wrapper around :data:`HARNESS`: the simulation toplevel on the fast path."""
 
-MAX_IN_WIDTH = 58
-"""Widest input data bus the player takes: a video word (data + 6 flag bits) must fit 64 bits (numpy uint64)."""
+MAX_IN_WIDTH = max(LANE_COUNTS) * max(PIXEL_FORMAT_BITS.values())
+"""Widest input data bus the player takes, bits: the widest word a bus layout makes (8 pixels a clock of 48-bit RGB)."""
 
 GAP_BITS = 16
 """Bits of the idle-gap count in a stream word (longest gap: 65535 clocks)."""
@@ -124,12 +126,22 @@ def capture_file_name(language: str) -> str:
     return CAPTURE_TEXT_NAME if language == "vhdl" else CAPTURE_BIN_NAME
 
 
+def _data_fields(data: np.ndarray, in_width: int, bus: BusLayout | None) -> list[tuple[np.ndarray, int]]:
+    """The data words as fields of 64 bits at most: a wide word's pixel fields (:attr:`BusLayout.wide`), zero-padded
+    to ``in_width``."""
+    if bus is None:
+        bus = BusLayout("gray8")  # one int64 word a clock: any layout that is not wide splits it the same way
+    return bus.word_fields(np.asarray(data), in_width)
+
+
 def video_word_fields(sched: ClockSchedule, data: np.ndarray, in_width: int,
-                      active_high: dict[str, bool] | None = None) -> list[tuple[np.ndarray, int]]:
+                      active_high: dict[str, bool] | None = None,
+                      bus: BusLayout | None = None) -> list[tuple[np.ndarray, int]]:
     """The video word of every clock as ``(values, bits)`` fields, least significant first.
 
     ``active_high`` gives the input pins' polarity (:func:`vkit.video.words.input_levels`); None: syncs as
-    the timing says, the rest active high.
+    the timing says, the rest active high. ``bus``: the layout of ``data`` (needed when its words are
+    wide, i.e. given as pixel fields).
     """
     mark = np.zeros(sched.n_clocks, bool)
     mark[sched.frame_starts()] = True
@@ -139,13 +151,15 @@ def video_word_fields(sched: ClockSchedule, data: np.ndarray, in_width: int,
     pins = input_levels(sched, polarity)
     flags = {"valid": pins["in_valid"], "de": pins["in_de"], "vsync": pins["in_vsync"], "hsync": pins["in_hsync"],
              "frame_mark": mark, "enable": pins["in_enable"]}
-    return [(data, in_width), *((flags[name], 1) for name in _VIDEO_FLAGS)]
+    return [*_data_fields(data, in_width, bus), *((flags[name], 1) for name in _VIDEO_FLAGS)]
 
 
-def stream_word_fields(transfers: StreamTransfers, in_width: int) -> list[tuple[np.ndarray, int]]:
-    """The stream word of every transfer as ``(values, bits)`` fields, least significant first."""
-    return [(transfers.data, in_width), (transfers.eol, 1), (transfers.sof, 1), (transfers.gaps, GAP_BITS),
-            (transfers.idle, in_width)]
+def stream_word_fields(transfers: StreamTransfers, in_width: int,
+                       bus: BusLayout | None = None) -> list[tuple[np.ndarray, int]]:
+    """The stream word of every transfer as ``(values, bits)`` fields, least significant first (``bus`` as in
+    :func:`video_word_fields`)."""
+    return [*_data_fields(transfers.data, in_width, bus), (transfers.eol, 1), (transfers.sof, 1),
+            (transfers.gaps, GAP_BITS), *_data_fields(transfers.idle, in_width, bus)]
 
 
 def pack_fields(fields: list[tuple[np.ndarray, int]]) -> np.ndarray:

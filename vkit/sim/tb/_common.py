@@ -12,7 +12,7 @@ from cocotb.triggers import ClockCycles, Event, RisingEdge
 from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, CaptureBuilder, RunFacts
 from vkit.core.errors import ConfigError
 from vkit.sim.signals import SignalMap
-from vkit.video.bus import BusLayout
+from vkit.video.bus import MAX_WORD_BITS, BusLayout
 from vkit.video.formats import pixel_bits
 from vkit.video.words import BLANKING_MODES
 
@@ -250,11 +250,37 @@ class _FrameMonitor(_Component):
         """Width of the ``out_data`` port, bits (a word of several pixels when the bus carries lanes)."""
         return len(self._h["out_data"])
 
+    @property
+    def splits_lanes(self) -> bool:
+        """True when the capture holds one sample a pixel already: an output word over
+        :data:`~vkit.video.bus.MAX_WORD_BITS` bits is split into its lanes as it is sampled (no sample holds it)."""
+        return self.bus is not None and self.bus.lanes > 1 and self.data_bits > MAX_WORD_BITS
+
+    def _adder(self) -> Callable[[int, int], None]:
+        """What records a sampled word: the builder's ``add``, or one that adds each lane as a pixel (:attr:`splits_lanes`)."""
+        add = self._builder.add
+        if not self.splits_lanes:
+            if self.data_bits > MAX_WORD_BITS:
+                raise ConfigError(f"monitor: out_data is {self.data_bits} bits, wider than the {MAX_WORD_BITS} bits one "
+                                  "sample holds; give the monitor the bus layout (bus=BusLayout(..., lanes=N))")
+            return add
+        assert self.bus is not None
+        field = self.data_bits // self.bus.lanes
+        shifts = [self.bus.lane_shift(k, field) for k in range(self.bus.lanes)]
+        mask = (1 << field) - 1
+
+        def add_lanes(value: int, clock: int) -> None:
+            for shift in shifts:
+                add(UNKNOWN if value == UNKNOWN else (value >> shift) & mask, clock)
+
+        return add_lanes
+
     def _init_monitor(
         self, expected_height: int | None, expected_width: int | None, facts: RunFacts | None, **family_keys: Any
     ) -> None:
         """Set up the frame counting and the capture's run facts; ``family_keys`` are the family's own
-        :class:`RunFacts` fields and their starting values. A subclass calls it right after the base constructor."""
+        :class:`RunFacts` fields and their starting values. A subclass calls it right after the base constructor
+        (and after setting :attr:`bus`)."""
         self.expected_height = expected_height
         self.expected_width = expected_width
         self.clocks = 0

@@ -77,7 +77,7 @@ def _components(dut: Any, case: SimCase, facts: RunFacts) -> tuple[Any, Any, Str
     handles = smap.resolve(dut, {"in_data": bus.word_bits})
     clock, reset = handles["clock"], handles.get("reset")
     common = dict(expected_height=case.height, expected_width=case.width, reset_active_high=case.reset_active_high,
-                  facts=facts)
+                  facts=facts, bus=bus)
     source_options = dict(bus=bus, blanking=case.blanking, blanking_value=case.blanking_value,
                           seed=case.seed, reset_active_high=case.reset_active_high)
     if case.family == "video":
@@ -187,7 +187,9 @@ async def run_case(dut: Any, case: SimCase, *, save: bool = True) -> Capture:
             monitor.facts.out_data_bits = monitor.data_bits
             if case.pixels_per_clock > 1:
                 monitor.facts.pixels_per_clock = case.pixels_per_clock
-            capture = unpack_capture(monitor.capture(), case.bus_layout(), monitor.data_bits)
+            capture = monitor.capture()
+            if not monitor.splits_lanes:  # a word over 62 bits was split as it was sampled
+                capture = unpack_capture(capture, case.bus_layout(), monitor.data_bits)
         sched = getattr(source, "schedule", None) if monitor is not None else None
         if sched is not None:
             capture.facts.latency_samples = samples_between(sched.enable, capture.facts.first_input_clock,

@@ -86,10 +86,15 @@ class StreamSource(_Source):
         self.stats.first_input_clock = None
         return t
 
+    def _ints(self, words: np.ndarray) -> list[int]:
+        """Words as Python ints; a wide word comes as pixel fields, joined by the bus layout."""
+        return self.bus.word_list(words) if words.ndim > 1 and self.bus is not None else words.tolist()
+
     async def send(self, frames: Any) -> None:
         """Send every pixel of ``frames``; returns once the DUT took the last word (valid then drops)."""
         t = self.prepare(frames)
-        words, gap, garbage = t.data.tolist(), t.gaps.tolist(), t.idle.tolist()
+        words, garbage = self._ints(t.data), self._ints(t.idle)
+        gap = t.gaps.tolist()
         sof, eol = t.sof.astype(int).tolist(), t.eol.astype(int).tolist()
         await self._reset_released()
         h = self._h
@@ -223,6 +228,8 @@ class StreamMonitor(_FrameMonitor):
         expected_width: pixels per line (recorded only), or None.
         reset_active_high: reset polarity.
         facts: the capture's run facts to start from (kept, not copied).
+        bus: the lane layout of ``out_data``; needed when the word is over 62 bits (each lane is then
+            recorded as a pixel as it is sampled, :attr:`splits_lanes`).
     """
 
     family = "stream"
@@ -238,8 +245,11 @@ class StreamMonitor(_FrameMonitor):
         expected_width: int | None = None,
         reset_active_high: bool = True,
         facts: RunFacts | None = None,
+        bus: BusLayout | None = None,
     ) -> None:
         super().__init__(dut, signals, clock, reset, reset_active_high=reset_active_high)
+        self.bus = bus
+        """The lane layout of ``out_data`` (needed for a word over 62 bits, split into pixels as sampled)."""
         self._init_monitor(expected_height, expected_width, facts, backpressure_pixels=[])
         self._frame = 0
         self._line = 0
@@ -270,7 +280,7 @@ class StreamMonitor(_FrameMonitor):
         read_sof = bit_reader(h["out_sof"])
         read_eol = bit_reader(h["out_eol"])
         read_data = word_reader(h["out_data"])
-        add = self._builder.add
+        add = self._adder()
         facts = self.facts
         bp_pixels = facts.backpressure_pixels
         event_at = self._event_at

@@ -113,7 +113,8 @@ class VideoSource(_Source):
         """Build the schedule and the data word of every clock for ``frames`` (no simulation needed).
 
         Returns:
-            (schedule, words): ``words`` is an int64 array of length ``schedule.n_clocks``.
+            (schedule, words): ``words`` is an int64 array of length ``schedule.n_clocks`` (or its pixel
+            fields, ``(n_clocks, lanes)``, for a word wider than 62 bits; :attr:`BusLayout.wide`).
         """
         arr, fmt = frames_array(frames, self.pixel_format)
         if self.pixel_format is None:
@@ -145,7 +146,8 @@ class VideoSource(_Source):
         await self._reset_released()
         self.stats.first_input_clock = first_valid
         done = Event()
-        step = self._make_player(sched, words, done)
+        # a wide word comes as pixel fields, only from a bus layout that says how to join them
+        step = self._make_player(sched, self.bus.word_list(words) if words.ndim > 1 else words.tolist(), done)
         self.clocks = 0
         step(first=True)
         tick = ticker(self._clock)
@@ -167,12 +169,11 @@ class VideoSource(_Source):
         change_vals = [tuple(int(v) for v in col) for col in lv[:, change_at].T]
         return ctrl, change_at, change_vals
 
-    def _make_player(self, sched: ClockSchedule, words: np.ndarray, done: Event) -> Callable[..., None]:
+    def _make_player(self, sched: ClockSchedule, word_list: list[int], done: Event) -> Callable[..., None]:
         """The per-edge function that drives schedule entry ``i`` (sampled by the design on clock ``i``)."""
         h = self._h
         ctrl, change_at, change_vals = self._control_changes(sched)
         data = h["in_data"]
-        word_list = words.tolist()
         n = sched.n_clocks
         change_at.append(n)  # sentinel
         state = {"i": 0, "k": 0, "next": change_at[0], "last": -1}
@@ -237,6 +238,8 @@ class VideoMonitor(_FrameMonitor):
         facts: the capture's run facts to start from (kept, not copied); sources write into :attr:`facts`
             through their ``stats``.
         active_high: role -> pin polarity of ``out_de``, ``out_valid``, ``out_enable`` (left out: active high).
+        bus: the lane layout of ``out_data``; needed when the word is over 62 bits (each lane is then
+            recorded as a pixel as it is sampled, :attr:`splits_lanes`).
 
     Clock numbering: clock 0 is the first rising edge after :meth:`start`; values are sampled on the edge.
     """
@@ -258,8 +261,11 @@ class VideoMonitor(_FrameMonitor):
         reset_active_high: bool = True,
         facts: RunFacts | None = None,
         active_high: Mapping[str, bool] | None = None,
+        bus: BusLayout | None = None,
     ) -> None:
         super().__init__(dut, signals, clock, reset, reset_active_high=reset_active_high)
+        self.bus = bus
+        """The lane layout of ``out_data`` (needed for a word over 62 bits, split into pixels as sampled)."""
         if "out_vsync" not in self._h and not expected_height:
             raise ConfigError(
                 "video monitor: role 'out_vsync' is not mapped and expected_height is not given; "
@@ -314,7 +320,7 @@ class VideoMonitor(_FrameMonitor):
         read_vs = self._level_reader("out_vsync", self.vsync_active_high)
         read_hs = self._level_reader("out_hsync", self.hsync_active_high)
         read_data = word_reader(self._h["out_data"])
-        add = self._builder.add
+        add = self._adder()
         facts = self.facts
         event_at = self._event_at
         prev = {"de": 0, "vs": False, "hs": False}

@@ -6,7 +6,7 @@ import os
 from contextlib import contextmanager
 from pathlib import Path
 from dataclasses import asdict
-from typing import Any, Iterator, NamedTuple
+from typing import Any, Iterator, Mapping, NamedTuple
 
 import numpy as np
 from vkit.core.errors import ToolError, VkitError
@@ -102,7 +102,8 @@ def _left_behind(simcase: SimCase, language: str, drive: str, outcome: guard.Gua
 
 
 def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float, *,
-             wave: WaveDump | None = None, drive: str = "clock") -> Path:
+             wave: WaveDump | None = None, drive: str = "clock", test_module: str = TEST_MODULE,
+             extra_env: Mapping[str, str] | None = None) -> Path:
     """Write the SimCase, run the simulation of ``drive``, return the capture path (which may be missing).
 
     A simulator stopped at ``timeout_s`` or ended by a signal leaves a capture all the same (partial, or
@@ -117,6 +118,9 @@ def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, tim
         timeout_s: wall-clock limit of the simulator process, s.
         wave: a dump and its window, for a rerun on a wave build (always clock by clock).
         drive: ``"clock"``, ``"fast"`` or ``"native"``.
+        test_module: the cocotb test module of a per-clock run (default :data:`TEST_MODULE`); another module
+            plays the case with :func:`vkit.sim.tb.entry.run_case` and adds its own checks (a passive board).
+        extra_env: environment of the simulator added to the case's (``PYTHONPATH`` for ``test_module``).
 
     Raises:
         ToolError: the simulator failed (an exit code, not a signal or the time limit) before writing a capture.
@@ -144,6 +148,9 @@ def _run(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout
     if drive == "native" and wave is None:
         return capture_file, run_native(simcase, case.simulator, build_dir, timeout_s=timeout_s)
     kwargs = _test_kwargs(case, simcase, Path(case_json), build_dir, sim_dir, drive, wave)
+    if drive == "clock":
+        kwargs["test_module"] = test_module
+    kwargs["extra_env"] = {**kwargs["extra_env"], **(extra_env or {})}
     status_file = sim_dir / GUARD_STATUS
     status_file.unlink(missing_ok=True)
     try:

@@ -7,6 +7,7 @@ a value that changes at the edge itself belongs to the next clock.
 
 from __future__ import annotations
 
+import itertools
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -111,15 +112,19 @@ class Dump:
         raise ConfigError(f"{what}: signal {path!r} is not in {self.path.name}; {hint}; fix the path (or the "
                           "scope) or dump that signal")
 
+    def width(self, name: str) -> int:
+        """Bits of signal ``name`` (a full name from :meth:`find`)."""
+        return int(self._vars[name].bitwidth or 1)
+
     def signal(self, name: str) -> _Signal:
         """Load signal ``name`` (a full name from :meth:`find`)."""
         var = self._vars[name]
         sig = var.signal
         changes = sig[0:len(sig)]  # a slice is built by the reader, several times faster than item by item
         width = int(var.bitwidth or 1)
-        try:  # all values known: one C-level conversion of the (time, value) pairs
-            table = np.array(changes, np.int64).reshape(-1, 2)
-            return _Signal(name, width, table[:, 0].copy(), table[:, 1].copy())
+        try:  # all values known: the (time, value) pairs flattened straight into one array (no tuple per row)
+            flat = np.fromiter(itertools.chain.from_iterable(changes), np.int64, 2 * len(changes))
+            return _Signal(name, width, flat[0::2].copy(), flat[1::2].copy())
         except (TypeError, ValueError, OverflowError):
             times = np.fromiter((t for t, _ in changes), np.int64, len(changes))
             return _Signal(name, width, times, _values([v for _, v in changes]))

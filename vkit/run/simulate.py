@@ -125,21 +125,21 @@ def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, tim
     Raises:
         ToolError: the simulator failed (an exit code, not a signal or the time limit) before writing a capture.
     """
-    return _run(case, build_dir, sim_dir, frames, timeout_s, wave, drive)[0]
+    return _run(case, build_dir, sim_dir, frames, timeout_s, wave, drive, test_module, extra_env)[0]
 
 
 def simulate_capture(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float, *,
                      drive: str = "clock") -> Capture | None:
     """:func:`simulate`, returning the capture (None when none was written); a native run hands over the
     capture it read instead of it being loaded back from the file it was saved to."""
-    capture_file, capture = _run(case, build_dir, sim_dir, frames, timeout_s, None, drive)
+    capture_file, capture = _run(case, build_dir, sim_dir, frames, timeout_s, None, drive, TEST_MODULE, None)
     if capture is None and capture_file.exists():
         capture = Capture.load(capture_file)
     return capture
 
 
 def _run(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float, wave: WaveDump | None,
-         drive: str) -> tuple[Path, Capture | None]:
+         drive: str, test_module: str, extra_env: Mapping[str, str] | None) -> tuple[Path, Capture | None]:
     """The simulation of :func:`simulate`: the capture path, and the capture when it is at hand."""
     simcase = make_sim_case(case, sim_dir, frames)
     capture_file = Path(simcase.capture_file)

@@ -21,7 +21,7 @@ from vkit.sim.fast.stimulus import fast_run_dir
 from vkit.sim.fast.wire import capture_file_name
 from vkit.video.capture import Capture, RunFacts, lines_file_for, read_lines_file
 
-__all__ = ["TEST_MODULE", "GUARD_STATUS", "WaveDump", "simulate"]
+__all__ = ["TEST_MODULE", "GUARD_STATUS", "WaveDump", "simulate", "simulate_capture"]
 
 
 TEST_MODULE = "vkit.sim.tb.entry"
@@ -125,13 +125,28 @@ def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, tim
     Raises:
         ToolError: the simulator failed (an exit code, not a signal or the time limit) before writing a capture.
     """
+    return _run(case, build_dir, sim_dir, frames, timeout_s, wave, drive, test_module, extra_env)[0]
+
+
+def simulate_capture(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float, *,
+                     drive: str = "clock") -> Capture | None:
+    """:func:`simulate`, returning the capture (None when none was written); a native run hands over the
+    capture it read instead of it being loaded back from the file it was saved to."""
+    capture_file, capture = _run(case, build_dir, sim_dir, frames, timeout_s, None, drive, TEST_MODULE, None)
+    if capture is None and capture_file.exists():
+        capture = Capture.load(capture_file)
+    return capture
+
+
+def _run(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float, wave: WaveDump | None,
+         drive: str, test_module: str, extra_env: Mapping[str, str] | None) -> tuple[Path, Capture | None]:
+    """The simulation of :func:`simulate`: the capture path, and the capture when it is at hand."""
     simcase = make_sim_case(case, sim_dir, frames)
     capture_file = Path(simcase.capture_file)
     capture_file.unlink(missing_ok=True)
     case_json = simcase.to_json(sim_dir / "case.json")
     if drive == "native" and wave is None:
-        run_native(simcase, case.simulator, build_dir, timeout_s=timeout_s)
-        return capture_file
+        return capture_file, run_native(simcase, case.simulator, build_dir, timeout_s=timeout_s)
     kwargs = _test_kwargs(case, simcase, Path(case_json), build_dir, sim_dir, drive, wave)
     if drive == "clock":
         kwargs["test_module"] = test_module
@@ -151,4 +166,4 @@ def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, tim
             code = outcome.returncode if outcome is not None else getattr(exc, "code", 1)
             raise ToolError(f"{case.simulator} exited with code {code} before writing a capture: "
                             f"{first_error_line(sim_dir / 'sim.log')} (log: {sim_dir / 'sim.log'})") from None
-    return capture_file
+    return capture_file, None

@@ -111,16 +111,17 @@ class BusLayout:
     def pixel_words(self, frames: np.ndarray) -> np.ndarray:
         """The pixel field of every pixel, int64 ``(N, H, W)``: a grey sample as is, an RGB pixel's
         components packed in :attr:`component_order`."""
-        arr = np.asarray(frames).astype(np.int64)
+        arr = np.asarray(frames)  # widened a component at a time: no int64 copy of the whole RGB stack
         if is_ycbcr(self.pixel_format):  # Y' in the low field, the colour differences above it in order
             bits = self.sample_bits
-            return sum((arr[..., k] << (bits * k) for k in range(arr.shape[-1])), np.zeros(arr.shape[:-1], np.int64))
+            return sum((arr[..., k].astype(np.int64) << (bits * k) for k in range(arr.shape[-1])),
+                       np.zeros(arr.shape[:-1], np.int64))
         if not is_rgb(self.pixel_format):
-            return arr
+            return arr.astype(np.int64)
         bits = self.sample_bits
         out = np.zeros(arr.shape[:-1], np.int64)
         for rank, letter in enumerate(self.component_order):
-            out |= arr[..., "RGB".index(letter)] << (bits * (2 - rank))
+            out |= arr[..., "RGB".index(letter)].astype(np.int64) << (bits * (2 - rank))
         return out
 
     def bus_words(self, frames: np.ndarray) -> np.ndarray:

@@ -1,18 +1,21 @@
 """Simulation speed side by side: per-clock cocotb path, fast-path harness, exported plain-HDL testbench.
 
 On the sample edge core at 640x480 with 800x525 timing (preset "vga640x480p60", syncs made active
-high as the core expects), ``--frames`` frames per run (default 3, so fixed start-up is amortised
-as in a real regression), per simulator (Icarus, Verilator):
+high as the core expects), for each of ``--frames`` frame counts (default 3 and 10, so fixed start-up is
+amortised as in a real regression; the ratios of every count are printed side by side at the end), per
+simulator (Icarus, Verilator):
 
   (a) the per-clock cocotb path (vkit.sim.tb.entry), Python on every clock;
   (b) the fast path (vkit.sim.tb.fast on vkit_fast_top): the harness makes its clock, plays and captures
       in HDL, Python waits once for done;
-  (b') the native fast path (vkit.sim.fast.run_native): the same vkit_fast_top built as a plain
-      executable (vvp / verilator --binary) and run as a subprocess, no cocotb at all;
+  (b') the native fast path (vkit.sim.fast.run_native): the same harness built as a plain executable
+      (Icarus: vkit_fast_top under vvp; Verilator: vkit_harness clocked by a generated C++ main, no timing
+      engine) and run as a subprocess, no cocotb at all;
   (c) the exported self-checking testbench (vkit.run.export), no Python at all;
   (w) the whole command: ``vkit run`` of a config with the same design, size, timing and frame count on the
-      default drive (model, drive, capture, score, report; waves off), the build cached by a first untimed
-      run. The path the default picked is printed, and c/w is the whole command's speed as a share of the
+      default drive (model, drive, capture, score, report; waves off), the build (and the drawn frames, kept
+      in the build cache) cached by a first untimed run, Python modules from bytecode as an installed vkit
+      runs them. The path the default picked is printed, and c/w is the whole command's speed as a share of the
       plain testbench's (issue targets: >= 0.6 for 3 frames, >= 0.8 for 10).
 
 Builds are not timed (one build per path serves every run); each run is timed from the start of
@@ -22,7 +25,7 @@ binary capture back and saving it. Each figure is the median of ``--repeats`` ru
 (``--per-clock-fraction``, default 0.1): the case's timeout then stops it early and clocks/s are
 computed from the clocks it ran, stated in the output.
 
-    python benchmarks/bench_sim.py [--sims icarus verilator] [--frames 3] [--repeats 3] [--per-clock-fraction 0.1]
+    python benchmarks/bench_sim.py [--sims icarus verilator] [--frames 3 10] [--repeats 3] [--per-clock-fraction 0.1]
 
 The machine load (``os.getloadavg``) is printed before and after, since all figures are wall clock.
 """
@@ -166,11 +169,13 @@ def _whole(sim: str, work: Path, n_frames: int, picked: list[str]) -> Run:
                    f'[stimulus]\npatterns = ["conveyor"]\nsize = [640, 480]\nframes = {n_frames}\n'
                    f'timings = [{{ {timing} }}]\n')
     command = [sys.executable, "-m", "vkit", "run", str(cfg), "--sim", sim]
-    subprocess.run(command, check=True, capture_output=True)  # the build, not timed
+    # as an installed vkit runs: from bytecode (PYTHONDONTWRITEBYTECODE=1 would compile every module, 0.25 s a run)
+    env = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
+    subprocess.run(command, check=True, capture_output=True, env=env)  # the build, not timed
 
     def run(seed: int) -> tuple[float, int]:
         del seed  # the config's own seed: the stimulus is made afresh by each run all the same
-        secs = _timed(lambda: subprocess.run(command, check=True, capture_output=True))
+        secs = _timed(lambda: subprocess.run(command, check=True, capture_output=True, env=env))
         (case,) = json.loads((work / "out" / "report.json").read_text())["cases"]
         picked.append(str(case.get("drive")))
         return secs, int(Capture.load(work / "out" / case["files"]["capture"]).facts.clocks_run or 0)
@@ -178,70 +183,78 @@ def _whole(sim: str, work: Path, n_frames: int, picked: list[str]) -> Run:
     return run
 
 
+def _measure(sim: str, root: Path, n: int, args: argparse.Namespace) -> tuple[list[str], dict[str, float]]:
+    """Every path for ``n`` frames on ``sim``, interleaved; the printed lines and the ratios."""
+    from vkit.video.patterns import conveyor  # the demo scene: parcels on a conveyor belt
+
+    root.mkdir(parents=True, exist_ok=True)
+    stack = np.stack([np.asarray(conveyor(480, 640, seed=1 + k, rgb=True), np.uint8) for k in range(n)])
+    frames = root / "frames.npy"
+    np.save(frames, stack)
+    stim_secs: list[float] = []
+    verdicts: list[str] = []
+    picked: list[str] = []
+    paths = {
+        "a": _per_clock(sim, root / f"{sim}_a", frames, n, args.per_clock_fraction),
+        "b": _fast(sim, root / f"{sim}_b", frames, n, stim_secs),
+        "n": _native(sim, root / f"{sim}_n", frames, n),
+        "c": _exported(sim, root / f"{sim}_c", frames, n, verdicts),
+        "w": _whole(sim, root / f"{sim}_w", n, picked),
+    }
+    # Interleaved (a, b, b', c, w, a, b, ...) so a change of machine load hits every path alike.
+    runs: dict[str, list[tuple[float, int]]] = {k: [] for k in paths}
+    for seed in range(args.repeats):
+        for key, run in paths.items():
+            runs[key].append(run(seed))
+    (a_s, a_c, a), (b_s, b_c, b), (n_s, n_c, nat), (c_s, c_c, c), (w_s, w_c, w) = (
+        _median_rate(runs[k]) for k in ("a", "b", "n", "c", "w"))
+    b_stim = sorted(stim_secs)[len(stim_secs) // 2]
+    lines = [
+        f"{sim}, {n} frame(s):",
+        f"  (a) per-clock cocotb : {a_c:>9} clocks in {a_s:7.2f} s = {a:>10.0f} clocks/s",
+        f"  (b) fast path        : {b_c:>9} clocks in {b_s:7.2f} s = {b:>10.0f} clocks/s"
+        f"   [{b_stim:.2f} s of it writing the stimulus]",
+        f"  (b') native fast path: {n_c:>9} clocks in {n_s:7.2f} s = {nat:>10.0f} clocks/s",
+        f"  (c) exported HDL tb  : {c_c:>9} clocks in {c_s:7.2f} s = {c:>10.0f} clocks/s   [{verdicts[-1]}]",
+        f"  (w) whole vkit run   : {w_c:>9} clocks in {w_s:7.2f} s = {w:>10.0f} clocks/s"
+        f"   [default drive picked: {', '.join(sorted(set(picked)))}]",
+    ]
+    return lines, {"b/a": b / a if a else float("nan"), "b/c": b / c, "b'/c": nat / c, "c/w": c_s / w_s}
+
+
+_TARGETS = {"b/c": ">= 0.5", "b'/c": ">= 0.9", "c/w": ">= 0.6 (3 frames), >= 0.8 (10 frames)"}
+"""The issue's targets for the ratios (c/w: plain testbench wall / whole ``vkit run`` wall)."""
+
+
 def main(argv: list[str] | None = None) -> int:
-    """Run the benchmark and print clocks/s and ratios per simulator."""
+    """Run the benchmark and print clocks/s per path, then the ratios of every frame count side by side."""
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--sims", nargs="+", default=["icarus", "verilator"])
     ap.add_argument("--per-clock-fraction", type=float, default=0.1,
                     help="share of the frames the per-clock path runs (its timeout stops it), 0..1")
-    ap.add_argument("--frames", type=int, default=3, help="frames per run (fixed start-up is amortised over them)")
+    ap.add_argument("--frames", type=int, nargs="+", default=[3, 10],
+                    help="frames per run, one measurement per count (fixed start-up is amortised over them)")
     ap.add_argument("--repeats", type=int, default=3, help="runs per figure; the median is shown")
     args = ap.parse_args(argv)
-    from vkit.video.patterns import conveyor  # the demo scene: parcels on a conveyor belt
-
+    load_before = " ".join(f"{x:.2f}" for x in os.getloadavg())
+    print(f"load average before: {load_before} ({os.cpu_count()} cores)")
+    print(f"edge_core, 640x480 active, 800x525 timing (420,000 clocks a frame), frame counts {args.frames}, "
+          f"median of {args.repeats} runs; (a) runs {args.per_clock_fraction:g} of the clocks")
+    table: list[str] = []
     with tempfile.TemporaryDirectory(prefix="vkit_bench_") as tmp:
-        root = Path(tmp)
-        stack = np.stack([np.asarray(conveyor(480, 640, seed=1 + k, rgb=True), np.uint8) for k in range(args.frames)])
-        frames = root / "frames.npy"
-        np.save(frames, stack)
-        n = args.frames
-        summary = [f"load average before: {' '.join(f'{x:.2f}' for x in os.getloadavg())} ({os.cpu_count()} cores)"]
-        print(summary[0])
-        print(f"edge_core, 640x480 active, 800x525 timing, {n} frame(s) per run ({n * 420_000:,} clocks + drain), "
-              f"median of {args.repeats} runs; (a) runs {args.per_clock_fraction:g} of the clocks")
         for sim in args.sims:
             info = find(sim)
             if not info.available:
                 print(f"{sim}: skipped ({info.reason}; install: {info.install_hint})")
                 continue
             activate(info)
-            stim_secs: list[float] = []
-            verdicts: list[str] = []
-            picked: list[str] = []
-            paths = {
-                "a": _per_clock(sim, root / f"{sim}_a", frames, n, args.per_clock_fraction),
-                "b": _fast(sim, root / f"{sim}_b", frames, n, stim_secs),
-                "n": _native(sim, root / f"{sim}_n", frames, n),
-                "c": _exported(sim, root / f"{sim}_c", frames, n, verdicts),
-                "w": _whole(sim, root / f"{sim}_w", n, picked),
-            }
-            # Interleaved (a, b, b', c, a, b, ...) so a change of machine load hits every path alike.
-            runs: dict[str, list[tuple[float, int]]] = {k: [] for k in paths}
-            for seed in range(args.repeats):
-                for key, run in paths.items():
-                    runs[key].append(run(seed))
-            a_s, a_c, a = _median_rate(runs["a"])
-            b_s, b_c, b = _median_rate(runs["b"])
-            n_s, n_c, nat = _median_rate(runs["n"])
-            c_s, c_c, c = _median_rate(runs["c"])
-            w_s, w_c, w = _median_rate(runs["w"])
-            b_stim = sorted(stim_secs)[len(stim_secs) // 2]
-            verdict = verdicts[-1]
-            summary.append(f"{sim}:")
-            summary.append(f"  (a) per-clock cocotb : {a_c:>9} clocks in {a_s:7.2f} s = {a:>10.0f} clocks/s")
-            summary.append(f"  (b) fast path        : {b_c:>9} clocks in {b_s:7.2f} s = {b:>10.0f} clocks/s"
-                           f"   [{b_stim:.2f} s of it writing the stimulus]")
-            summary.append(f"  (b') native fast path: {n_c:>9} clocks in {n_s:7.2f} s = {nat:>10.0f} clocks/s")
-            summary.append(f"  (c) exported HDL tb  : {c_c:>9} clocks in {c_s:7.2f} s = {c:>10.0f} clocks/s   [{verdict}]")
-            summary.append(f"  (w) whole vkit run   : {w_c:>9} clocks in {w_s:7.2f} s = {w:>10.0f} clocks/s"
-                           f"   [default drive picked: {', '.join(sorted(set(picked)))}]")
-            b_a = f"{b / a:.1f}x" if a else "n/a (the per-clock runs failed)"
-            summary.append(f"  b/a = {b_a}   b/c = {b / c:.2f} (target >= 0.5)   b'/c = {nat / c:.2f} (target >= 0.9)"
-                           f"   c/w = {c_s / w_s:.2f} (plain tb wall / whole vkit run wall; target >= 0.6 for 3 frames, "
-                           f">= 0.8 for 10)")
-            print("\n".join(summary[-7:]), flush=True)
-        summary.append(f"load average after: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
-        print("\n".join(summary))
+            for n in args.frames:
+                lines, ratios = _measure(sim, Path(tmp) / f"{sim}_{n}", n, args)
+                print("\n".join(lines), flush=True)
+                table.append(f"{sim:<10} {n:>6}  " + "  ".join(f"{k} = {v:5.2f}" for k, v in ratios.items()))
+    print(f"ratios side by side (targets: {'; '.join(f'{k} {v}' for k, v in _TARGETS.items())}):")
+    print("\n".join(["simulator  frames  ratios", *table]))
+    print(f"load average before: {load_before}; after: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     return 0
 
 

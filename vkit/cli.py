@@ -171,7 +171,7 @@ def _cmd_score_dump(args: argparse.Namespace) -> int:
     from vkit.run.passive import score_dump
 
     done = score_dump(load_config(args.config), args.dump, design=args.design, scope=args.scope,
-                      signals=_signal_overrides(args.signal), out_dir=args.out)
+                      signals=_signal_overrides(args.signal), out_dir=args.out, timing=args.timing)
     print(Path(done.files["summary"]).read_text(), end="")
     verdict = done.verdict
     if verdict.diagnosis is not None:
@@ -393,6 +393,8 @@ _COMMANDS: tuple[tuple[str, str, Callable[[argparse.Namespace], int], tuple[Any,
         _arg("--signal", action="append", default=None, metavar="ROLE=PATH",
              help="dump path of one role whose signal is not SCOPE.PORT (repeatable)"),
         _arg("--out", default=None, help="report folder (default: DUMP-STEM-vkit beside the dump)"),
+        _arg("--timing", default=None, help="a timing preset the run should follow (e.g. hd1280x720p60): each "
+                                            "input frame's size and the hsync pulses of each vsync period are checked"),
     )),
     ("merge", "merge shard report.json files", _cmd_merge, (
         _arg("out", help="folder for the merged report.json, junit.xml and summary.txt"),

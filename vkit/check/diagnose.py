@@ -1232,6 +1232,7 @@ def diagnose(
     findings += [f for f in (_xz_finding(frames), _missing_finding(frames, failures, facts)) if f is not None]
     shift = _shift_findings(frames, offset, applied_offset)
     if shift is not None:
+        _demote_slipped_frame_shift(shift, timing)
         findings.append(shift)
     cause = _stream_cause(frames, capture, stall, back)
     if cause is not None:
@@ -1269,6 +1270,20 @@ _SYMPTOM_WEIGHT = 0.85
 """Confidence kept by line, frame and shift findings once a stream cause explains them: ranked below it."""
 _PATTERN_FLOOR = 0.3
 """Below this confidence no pixel pattern explains the mismatches well; 'scattered' is added."""
+
+
+def _demote_slipped_frame_shift(shift: Finding, timing: Sequence[TimingIssue]) -> None:
+    """A frame shifted down while output data-enable ran into vertical blanking is a symptom, not a cause.
+
+    Lines emitted inside the output vsync pulse are counted in the next frame (a frame starts at the leading
+    edge of vsync), so every later frame reads as shifted down by those lines: the vsync/data-enable fault
+    that moved them is the cause, and the shift is ranked below it. A run scored one frame at a time (the
+    passive scoreboard) sees the same fault without the shift; both reach the same diagnosis this way.
+    """
+    if shift.evidence.get("dx") == 0 and int(shift.evidence.get("dy", 0)) > 0 and any(
+            issue.category == "de_in_blanking" for issue in timing):
+        shift.confidence *= _SYMPTOM_WEIGHT
+        shift.evidence["symptom_of"] = "de_in_blanking"
 
 
 def _demote_symptoms(findings: list[Finding]) -> None:

@@ -19,8 +19,11 @@ from vkit.check.results import Finding, Verdict
 from vkit.check.scoreboard import score
 from vkit.core.errors import ConfigError
 from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
-from vkit.video.capture import RunFacts
+from vkit.video.bus import BusLayout, unpack_capture
+from vkit.video.capture import MAX_EVENTS, Capture, RunFacts
 from vkit.video.observe import FramePixels, FrameRebuilder, Levels
+from vkit.video.timing import VideoTiming
+from vkit.video.words import sync_counts
 
 __all__ = ["PassiveOptions", "FrameScore", "PassiveScoreboard"]
 
@@ -34,7 +37,13 @@ class PassiveOptions:
         align: ``"exact"`` or ``"auto"`` (as :func:`~vkit.check.scoreboard.score`).
         max_listed: failing pixels listed in the verdict.
         keep_failing: failing frames whose arrays are kept for the pictures (the rest keep their counts).
-        vsync_active_high: polarity of the input and output vsync (video family).
+        vsync_active_high: polarity of the input and output vsync (video family) when ``active_high`` does not
+            name them.
+        active_high: side role (``"in_de"``, ``"out_vsync"``, ...) -> True when the design's pin is active high
+            (the config's ``port_polarity``); roles left out are active high.
+        out_data_bits: width of the output data word, bits (needed to split it into lanes).
+        timing: the video timing the run should follow (in pixels), or None: each input frame's active size and
+            the hsync pulses of every vsync period on both sides (from the second frame on) are checked against it.
     """
 
     tolerance_lsb: int = 0
@@ -42,6 +51,16 @@ class PassiveOptions:
     max_listed: int = 20
     keep_failing: int = 4
     vsync_active_high: bool = True
+    active_high: tuple[tuple[str, bool], ...] = ()
+    out_data_bits: int | None = None
+    timing: VideoTiming | None = None
+
+    def side_polarity(self, side: str) -> dict[str, bool]:
+        """Role (without the side prefix) -> active high, for ``side`` ("in" or "out")."""
+        given = dict(self.active_high)
+        out = {"vsync": self.vsync_active_high, "hsync": self.vsync_active_high}
+        out.update({role.split("_", 1)[1]: high for role, high in given.items() if role.startswith(side + "_")})
+        return out
 
 
 @dataclass
@@ -93,6 +112,7 @@ class _Totals:
     """The failing frames kept with their arrays (at most ``keep_failing``)."""
     first: Verdict | None = None
     first_failing: Verdict | None = None
+    first_failing_index: int | None = None
     frames: int = 0
     failing: int = 0
     per_frame: list[dict[str, int]] = field(default_factory=list)
@@ -100,6 +120,105 @@ class _Totals:
     max_abs_error: int = 0
     first_mismatches: list[dict[str, Any]] = field(default_factory=list)
     timing_errors: list[str] = field(default_factory=list)
+
+
+_TIMING_CONFIDENCE = 0.9
+"""Confidence of a finding that the observed syncs or frame size break the given timing (a measured fact, ranked
+with the scoreboard's own sync-count findings)."""
+
+
+def _against_timing(t: VideoTiming, frame: FramePixels, out: FramePixels | None, first: bool) -> list[Finding]:
+    """What one frame breaks of timing ``t``: the input's active size; the hsync pulses of its vsync period on
+    each side (``v_total`` lines), skipped on the first frame, whose period began before watching did."""
+    found: list[Finding] = []
+    if frame.shape is not None and frame.shape != (t.v_active, t.h_active):
+        found.append(Finding("timing", f"frame 0: input frame is {frame.shape[1]}x{frame.shape[0]}, the timing "
+                             f"{t.name or ''} is {t.h_active}x{t.v_active}: check the stimulus or the timing given",
+                             {"category": "timing_size", "seen": list(frame.shape[::-1]),
+                              "expected": [t.h_active, t.v_active]}, _TIMING_CONFIDENCE))
+    for side, fp in (("input", frame), ("output", out)):
+        if first or fp is None or fp.hsync_clocks is None or not fp.vsync_clocks:
+            continue
+        lines = sync_counts(np.asarray(fp.hsync_clocks, np.int64), np.asarray(fp.vsync_clocks, np.int64))[-1]
+        if lines != t.v_total:
+            found.append(Finding("timing", f"frame 0: {lines} {side} hsync pulses in the vsync period, the timing "
+                                 f"{t.name or ''} has {t.v_total} lines: {side} hsync must pulse once a line",
+                                 {"category": "timing_lines", "side": side, "seen": lines, "expected": t.v_total},
+                                 _TIMING_CONFIDENCE))
+    return found
+
+
+def _with_timing_findings(verdict: Verdict, found: list[Finding]) -> Verdict:
+    """``verdict`` failed by the timing findings ``found`` (unchanged when there are none)."""
+    if not found:
+        return verdict
+    findings = sorted([*found, *verdict.findings], key=lambda f: -f.confidence)
+    return replace(verdict, passed=False, status="fail" if verdict.passed else verdict.status,
+                   timing_errors=[*verdict.timing_errors, *(f.message.rsplit(": ", 1)[0] for f in found)],
+                   findings=findings)
+
+
+def _sync_facts(side: str, frame: FramePixels) -> dict[str, Any]:
+    """The sync facts of one side of one frame, named as the driven run names them (``input_vsync_count``,
+    ``output_hsync_per_frame``, ...): the leading edges of the frame's span, counted by
+    :func:`~vkit.video.words.sync_counts` as the monitors count them."""
+    vs, hs = frame.vsync_clocks, frame.hsync_clocks
+    if vs is None:  # a side without vsync: nothing counted, as the monitor counts nothing there
+        return {}
+    out: dict[str, Any] = {f"{side}_vsync_count": len(vs)}
+    if hs is not None:
+        out[f"{side}_hsync_per_frame"] = sync_counts(np.asarray(hs, np.int64), np.asarray(vs, np.int64))
+    if side == "input":
+        out["input_first_vsync_clock"] = vs[0] if vs else None
+        out["input_first_hsync_clock"] = hs[0] if hs else None
+    else:
+        out["output_vsync_clocks"], out["output_hsync_clocks"] = list(vs), list(hs or [])
+    return out
+
+
+@dataclass
+class _Opening:
+    """The first frames of the run, kept whole (input image, model result, output capture, facts) so the run's
+    diagnosis can score them together, as a driven run of those frames scores them."""
+
+    images: list[np.ndarray] = field(default_factory=list)
+    expected: list[ModelResult] = field(default_factory=list)
+    captures: list[Capture] = field(default_factory=list)
+    facts: list[RunFacts] = field(default_factory=list)
+    broken: list[Finding] = field(default_factory=list)
+    """What those frames break of the given timing (found per frame, added to the joint verdict)."""
+    verdict: Verdict | None = None
+    released: bool = False
+    """True once the opening frames all passed: nothing is kept from then on (memory stays flat)."""
+
+
+def _joint_facts(parts: list[RunFacts]) -> RunFacts:
+    """The facts of several frames scored as one run: the first frame's clocks, frame-numbered stalls, sync
+    counts added up, per-frame lists joined (hsync counts only when every frame compares them)."""
+    first = parts[0]
+    facts = replace(first, frames_sent=len(parts), notes=list(first.notes))
+    facts.stall_pixels = [[k, y, x] for k, f in enumerate(parts) for _, y, x in f.stall_pixels]
+    facts.backpressure_pixels = [[k, y, x] for k, f in enumerate(parts) for _, y, x in f.backpressure_pixels]
+    facts.xz_control = [e for f in parts for e in f.xz_control][:MAX_EVENTS]
+    facts.de_in_blanking = [c for f in parts for c in f.de_in_blanking][:MAX_EVENTS]
+    for side in ("input", "output"):
+        counts = [getattr(f, f"{side}_vsync_count") for f in parts]
+        setattr(facts, f"{side}_vsync_count", None if None in counts else sum(counts))
+        per_frame = [getattr(f, f"{side}_hsync_per_frame") for f in parts]
+        setattr(facts, f"{side}_hsync_per_frame", None if None in per_frame else [n for p in per_frame for n in p])
+    for key in ("output_vsync_clocks", "output_hsync_clocks"):
+        lists = [getattr(f, key) for f in parts]
+        setattr(facts, key, None if None in lists else [c for p in lists for c in p])
+    return facts
+
+
+def _joint_capture(parts: list[Capture], facts: RunFacts) -> Capture:
+    """One-frame captures joined into one run's capture, part ``k`` as frame ``k``."""
+    def joined(key: str) -> np.ndarray:
+        return np.concatenate([getattr(c, key) for c in parts])
+
+    frames = np.concatenate([np.full(len(c), k, np.int64) for k, c in enumerate(parts)])
+    return Capture(joined("values"), joined("clock"), frames, joined("line"), joined("column"), facts)
 
 
 _MAX_PENDING = 4
@@ -116,21 +235,27 @@ class PassiveScoreboard:
     Args:
         spec: the pipeline spec the design implements.
         family: "video" or "stream".
-        pixel_format: the input bus's pixel format ("gray8" or "rgb888").
+        bus: the input bus's layout (:class:`~vkit.video.bus.BusLayout`: pixel format, component order,
+            pixels a clock, lane order), or a pixel format name for one pixel a clock.
         options: :class:`PassiveOptions`.
     """
 
-    def __init__(self, spec: PipelineSpec, family: str, pixel_format: str, options: PassiveOptions | None = None) -> None:
+    def __init__(self, spec: PipelineSpec, family: str, bus: BusLayout | str, options: PassiveOptions | None = None) -> None:
         self.spec = spec
         self.family = family
-        self.pixel_format = pixel_format
+        self.bus = BusLayout.of(bus)
+        self.pixel_format = self.bus.pixel_format
         self.options = options or PassiveOptions()
-        high = self.options.vsync_active_high
-        self.inputs = FrameRebuilder(family, output=False, vsync_active_high=high)
-        self.outputs = FrameRebuilder(family, output=True, vsync_active_high=high)
+        self._polarity = {side: self.options.side_polarity(side) for side in ("in", "out")}
+        self.inputs = FrameRebuilder(family, output=False)
+        self._heights: dict[int, int] = {}
+        """Lines of each input frame not yet paired: where an output without vsync ends its frames."""
+        self.outputs = FrameRebuilder(family, output=True, lines_per_frame=self._heights.get)
         self._in: list[FramePixels] = []
         self._out: list[FramePixels] = []
         self._t = _Totals()
+        self._last_shape: tuple[int, int] | None = None
+        self._opening = _Opening()
         self.problems: list[str] = []
         """One line per frame that could not be scored (an input frame with ragged lines, a run that ended
         mid-frame)."""
@@ -139,8 +264,13 @@ class PassiveScoreboard:
 
     def feed(self, inputs: Levels, outputs: Levels) -> list[FrameScore]:
         """Take the next chunk of input and output levels (the same clocks); the frames it completed, scored."""
-        self._in.extend(self.inputs.feed(inputs))
-        self._out.extend(self.outputs.feed(outputs))
+        closed = self.inputs.feed(inputs.asserted(self._polarity["in"]))
+        self._in.extend(closed)
+        for frame in closed:
+            self._heights[frame.index] = len(frame.line_lengths)
+        for old in [k for k in self._heights if k < self.outputs.frames_out - 1]:
+            del self._heights[old]
+        self._out.extend(self.outputs.feed(outputs.asserted(self._polarity["out"])))
         return self._pair()
 
     def finish(self) -> list[FrameScore]:
@@ -199,33 +329,84 @@ class PassiveScoreboard:
     # -- scoring --------------------------------------------------------------------------------------
 
     def _facts(self, frame: FramePixels, out: FramePixels | None) -> RunFacts:
-        facts = RunFacts(family=self.family, frames_sent=1, first_input_clock=int(frame.clocks[0]))
-        facts.stall_pixels = [[0, y, x] for y, x in frame.held]
+        """The run facts of one frame, as a driven run records them for its frames: first clocks, stalls,
+        sync leading edges and counts, X/Z controls, data-enable in blanking."""
+        lanes = self.bus.lanes
+        facts = RunFacts(family=self.family, frames_sent=1, first_input_clock=int(frame.clocks[0]),
+                         pixels_per_clock=lanes if lanes > 1 else None, out_data_bits=self.options.out_data_bits)
+        facts.stall_pixels = [[0, y, x * lanes] for y, x in frame.held]
+        if self.family == "video":
+            facts.update(_sync_facts("input", frame))
         if out is not None:
             facts.first_output_clock = int(out.clocks[0])
+            facts.latency_clocks = facts.first_output_clock - facts.first_input_clock
             facts.backpressure_pixels = [[0, y, x] for y, x in out.held]
             facts.xz_control = [list(e) for e in out.events.get("xz_control", [])]
             facts.de_in_blanking = list(out.events.get("de_in_blanking", []))
+            if self.family == "video":
+                facts.update(_sync_facts("output", out))
+            if frame.shape != self._last_shape:
+                # hsync counts per vsync period are compared from the second frame of one size on: after a size
+                # change (or at the start of a run watched from any point, maybe inside vertical blanking) a
+                # design's sync delays settle, and an hsync pulse near the vsync edge may fall on either side
+                facts.input_hsync_per_frame = facts.output_hsync_per_frame = None
             facts.notes.append("passive: input frames rebuilt from the observed input interface")
         return facts
 
     def _score(self, frame: FramePixels, out: FramePixels | None) -> FrameScore | None:
         """Score one input frame against its output frame (None: nothing came out)."""
         try:
-            image = frame.image(self.pixel_format)
+            image = frame.image(self.bus)
         except ConfigError as exc:
             self.problems.append(str(exc))
             return None
         expected = run_model(self.spec, image)
         facts = self._facts(frame, out)
+        self._last_shape = frame.shape
         empty = FramePixels(0, *(np.zeros(0, np.int64) for _ in range(4)), closed=True, line_ended=True)
         capture = (out or empty).capture(facts)
+        if self.bus.lanes > 1 and self.options.out_data_bits:
+            capture = unpack_capture(capture, self.bus, self.options.out_data_bits)
         o = self.options
         verdict = score([expected], capture, tolerance_lsb=o.tolerance_lsb, align=o.align, max_listed=o.max_listed,
                         spec=self.spec, images=[image])
+        broken: list[Finding] = []
+        if o.timing is not None and self.family == "video":
+            broken = _against_timing(o.timing, frame, out, frame.index == 0)
+            verdict = _with_timing_findings(verdict, broken)
         result = FrameScore(frame.index, image.shape[:2], _renumbered(verdict, frame.index), image, expected)
+        self._keep_opening(frame.index, image, expected, capture, facts, out is not None)
+        if frame.index < len(self._opening.images):
+            self._opening.broken.extend(Finding(f.kind, _renumber(f.message, frame.index), f.evidence, f.confidence)
+                                        for f in broken)
         self._add(result)
+        if self._t.first_failing is None and frame.index + 1 >= self.options.keep_failing:
+            self._opening = _Opening(released=True)  # no failure among the first frames: their arrays go
         return result
+
+    def _keep_opening(self, index: int, image: np.ndarray, expected: ModelResult, capture: Capture, facts: RunFacts,
+                      has_output: bool) -> None:
+        """Keep the run's first frames whole (``keep_failing`` at most, numbered from 0 without a gap)."""
+        o = self._opening
+        if o.released or index != len(o.images) or len(o.images) >= self.options.keep_failing or not has_output:
+            return
+        o.images.append(image)
+        o.expected.append(expected)
+        o.captures.append(capture)
+        o.facts.append(facts)
+
+    def _opening_verdict(self) -> Verdict | None:
+        """The first frames scored together as one run, when they hold the first failing frame (else None)."""
+        o, at = self._opening, self._t.first_failing_index
+        if at is None or at >= len(o.images):
+            return None
+        if o.verdict is None:
+            capture = _joint_capture(o.captures, _joint_facts(o.facts))
+            opt = self.options
+            o.verdict = _with_timing_findings(
+                score(o.expected, capture, tolerance_lsb=opt.tolerance_lsb, align=opt.align, max_listed=opt.max_listed,
+                      spec=self.spec, images=o.images), o.broken)
+        return o.verdict
 
     def _add(self, fs: FrameScore) -> None:
         t, v = self._t, fs.verdict
@@ -238,7 +419,8 @@ class PassiveScoreboard:
         if v.passed:
             return
         t.failing += 1
-        t.first_failing = t.first_failing or v
+        if t.first_failing is None:
+            t.first_failing, t.first_failing_index = v, fs.index
         room = self.options.max_listed - len(t.first_mismatches)
         t.first_mismatches.extend(v.first_mismatches[:max(0, room)])
         t.timing_errors.extend(v.timing_errors[:max(0, self.options.max_listed - len(t.timing_errors))])
@@ -278,8 +460,8 @@ class PassiveScoreboard:
             reason = "; ".join(self.problems) or "no frame was complete on both sides"
             return Verdict(passed=False, status="error", timing_errors=[f"nothing was scored: {reason}"],
                            findings=[Finding("timing", f"nothing was scored: {reason}", {}, 1.0)])
-        head = t.first_failing or t.first
-        assert head is not None
+        head = self._opening_verdict() or t.first_failing or t.first
+        assert head is not None and t.first is not None
         failing = t.first_failing is not None
         return replace(
             head, passed=not failing, status=head.status if failing else "pass", frames_checked=t.frames,

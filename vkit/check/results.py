@@ -6,7 +6,7 @@ none of them is imported here.
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from typing import Any, Mapping, Protocol
 
 import numpy as np
@@ -249,6 +249,7 @@ class FrameResult:
         clocks: arrival clock per pixel, -1 where none arrived.
         line_lengths: pixels per captured line, in order (before any offset is undone).
         model: the expected frame (its ``stages`` give the intermediate values).
+        counts: the counts of :meth:`summary` when only they were kept (:meth:`counts_only`), else None.
     """
 
     index: int
@@ -263,6 +264,22 @@ class FrameResult:
     clocks: np.ndarray
     line_lengths: list[int]
     model: ExpectedFrame
+    counts: dict[str, int] | None = None
+
+    @property
+    def arrays_kept(self) -> bool:
+        """False when this passing frame kept only its counts (:meth:`counts_only`)."""
+        return self.counts is None
+
+    def counts_only(self) -> FrameResult:
+        """This frame with its counts and ``expected``/``valid`` kept and the other arrays let go (read-only
+        zeros of no memory): what a passing frame of a passing run needs, so a long run of big frames does not
+        hold every frame's arrays. Only for a frame that did not fail."""
+        shape = self.expected.shape
+        no = np.broadcast_to(np.False_, shape)
+        zero = np.broadcast_to(np.int64(0), shape)
+        return replace(self, actual=zero, present=no, unknown=no, missing=no, value_bad=no, error=zero,
+                       clocks=np.broadcast_to(np.int64(-1), shape), counts=self.summary())
 
     @property
     def mismatch(self) -> np.ndarray:
@@ -276,6 +293,8 @@ class FrameResult:
 
     def summary(self) -> dict[str, int]:
         """Counts for the report."""
+        if self.counts is not None:
+            return dict(self.counts)
         return {
             "frame": self.index,
             "pixels_checked": int(self.valid.sum()),

@@ -116,15 +116,14 @@ def _whole_beats_note(bad: list[tuple[int, int]], width: int, lanes: int | None)
             f"per-lane valid mask (out_keep) marks {beats - width} lane(s) that hold no pixel")
 
 
-def _line_issues(views: list[FrameView | None], shapes: list[tuple[int, int]],
+def _line_issues(line_lengths: Sequence[list[int] | None], shapes: list[tuple[int, int]],
                  family: str | None = None, lanes: int | None = None) -> tuple[list[TimingIssue], int]:
     """Lines of the wrong length and frames with the wrong line count; pixels past the grid."""
     issues: list[TimingIssue] = []
     extra = 0
-    for i, (view, (h, w)) in enumerate(zip(views, shapes)):
-        if view is None:
+    for i, (lengths, (h, w)) in enumerate(zip(line_lengths, shapes)):
+        if lengths is None:
             continue
-        lengths = view.line_lengths
         stuck = _stuck_delimiter_issue(i, lengths, w, family)
         if stuck is not None:
             issues.append(stuck)
@@ -240,7 +239,6 @@ def _sample_latency_issue(declared: int | None, measured: int | None) -> TimingI
 
 def _timing_issues(
     capture: Capture,
-    views: list[FrameView | None],
     shapes: list[tuple[int, int]],
     latency: tuple[int | None, int | None, int],
 ) -> tuple[list[TimingIssue], int]:
@@ -249,7 +247,9 @@ def _timing_issues(
     ``latency`` is ``(declared, measured, tolerance)`` in clocks.
     """
     facts = capture.facts
-    issues, extra = _line_issues(views, shapes, facts.family, facts.pixels_per_clock)
+    out = capture.frame_count
+    issues, extra = _line_issues([capture.line_lengths(i) if i < out else None for i in range(len(shapes))],
+                                 shapes, facts.family, facts.pixels_per_clock)
     extra += int(np.count_nonzero(capture.frame >= len(shapes))) if len(capture) else 0
     issues.append(_frame_count_issue(capture, len(shapes)))
     issues.extend(_sync_issues(facts))
@@ -295,7 +295,37 @@ def _compare(
     return FrameResult(index, exp, act, pres, valid, unknown, missing, value_bad, error, clocks, lengths, model)
 
 
-def _auto_offset(expected: Sequence[ExpectedFrame], views: list[FrameView | None]) -> Offset | None:
+class _Views(Sequence[FrameView | None]):
+    """The captured frame of each expected frame, rebuilt each time it is asked for (never all at once, so a
+    long run of big frames holds one frame's arrays at a time); None past the captured frames."""
+
+    def __init__(self, capture: Capture, shapes: list[tuple[int, int]]) -> None:
+        self._capture, self._shapes, self._count = capture, shapes, capture.frame_count
+
+    def __len__(self) -> int:
+        return len(self._shapes)
+
+    def __getitem__(self, i: int) -> FrameView | None:  # type: ignore[override]
+        return self._capture.frame_view(i, *self._shapes[i]) if i < self._count else None
+
+
+def _compare_all(expected: Sequence[ExpectedFrame], views: _Views, shapes: list[tuple[int, int]], options: _Options,
+                 offset: Offset | None, failing: bool) -> list[FrameResult]:
+    """Every frame compared, one at a time; with ``options.keep_passing`` False a passing frame keeps its counts
+    only (:meth:`FrameResult.counts_only`) unless the run fails, when every frame keeps its arrays for the
+    diagnosis and the pictures (those frames are compared again)."""
+    frames: list[FrameResult] = []
+    for i, shape in enumerate(shapes):
+        fr = _compare(i, expected[i], views[i], shape, options.tolerance_lsb, offset)
+        failing = failing or fr.failed
+        frames.append(fr if options.keep_passing or fr.failed else fr.counts_only())
+    if failing:
+        frames = [fr if fr.arrays_kept else _compare(fr.index, expected[fr.index], views[fr.index], shapes[fr.index],
+                                                     options.tolerance_lsb, offset) for fr in frames]
+    return frames
+
+
+def _auto_offset(expected: Sequence[ExpectedFrame], views: Sequence[FrameView | None]) -> Offset | None:
     """The offset to undo with ``align="auto"``: measured on the first frame with output."""
     for i, v in enumerate(views):
         if v is not None and v.present.any():
@@ -303,7 +333,7 @@ def _auto_offset(expected: Sequence[ExpectedFrame], views: list[FrameView | None
     return None
 
 
-def _exact_offset(frames: list[FrameResult], views: list[FrameView | None]) -> Offset | None:
+def _exact_offset(frames: list[FrameResult], views: Sequence[FrameView | None]) -> Offset | None:
     """With ``align="exact"``, the offset the wrong values suggest (for the diagnosis only)."""
     for fr in frames:
         if fr.value_bad.sum() >= _OFFSET_SEARCH_MISMATCHES:
@@ -415,25 +445,26 @@ def _final_verdict(
 ) -> Verdict:
     """The verdict over every compared frame; ``details`` holds ``first_mismatches``, ``findings`` and
     ``implemented`` (the last two are kept only when the run failed)."""
-    mism = int(sum(fr.mismatch.sum() for fr in frames))
+    per_frame = [fr.summary() for fr in frames]
+    mism = sum(c["mismatches"] for c in per_frame)
     passed = mism == 0 and not issues
     return Verdict(
         passed=passed,
         status="pass" if passed else "fail",
         frames_checked=len(frames),
-        pixels_checked=int(sum(fr.valid.sum() for fr in frames)),
+        pixels_checked=sum(c["pixels_checked"] for c in per_frame),
         mismatches=mism,
-        value_mismatches=int(sum(fr.value_bad.sum() for fr in frames)),
-        xz_pixels=int(sum(fr.unknown.sum() for fr in frames)),
-        missing_pixels=int(sum(fr.missing.sum() for fr in frames)),
+        value_mismatches=sum(c["value_mismatches"] for c in per_frame),
+        xz_pixels=sum(c["xz_pixels"] for c in per_frame),
+        missing_pixels=sum(c["missing_pixels"] for c in per_frame),
         extra_pixels=extra,
-        max_abs_error=int(max((np.abs(fr.error).max() for fr in frames), default=0)),
+        max_abs_error=max((c["max_abs_error"] for c in per_frame), default=0),
         first_mismatches=details["first_mismatches"],
         offset=(offset.dx, offset.dy) if offset is not None else (0, 0),
         offset_detail=offset,
         timing_errors=[i.message for i in issues],
         findings=details["findings"] if not passed else [],
-        per_frame=[fr.summary() for fr in frames],
+        per_frame=per_frame,
         implemented=details["implemented"] if not passed else {},
         frames=frames,
         **base,
@@ -456,6 +487,7 @@ def score(
     run_model: ModelRunner | None = None,
     settle: ControlSettle | None = None,
     declared_latency_samples: int | None = None,
+    keep_passing: bool = True,
 ) -> Verdict:
     """Score one run: every checked pixel of every frame, the output timing, the latency.
 
@@ -481,6 +513,9 @@ def score(
             (left out of the pulse counts, with a warning).
         declared_latency_samples: latency the design claims in input samples (enabled input clocks); checked
             exactly against ``capture.facts.latency_samples``.
+        keep_passing: keep every frame's arrays in ``Verdict.frames``; False: on a passing run each frame keeps
+            its counts only (:meth:`FrameResult.counts_only`; frames are compared one at a time, so memory holds
+            one frame's arrays whatever the frame count). A failing run keeps every frame's arrays either way.
 
     Returns:
         A :class:`Verdict`.
@@ -504,7 +539,7 @@ def score(
     options = _Options(
         tolerance_lsb=tolerance_lsb, latency=(declared_latency_clocks, measured_latency, latency_tolerance_clocks),
         align=align, accept_offset=accept_offset, max_listed=max_listed,
-        stall_pixels=stall_pixels, spec=spec, images=images, run_model=run_model,
+        stall_pixels=stall_pixels, spec=spec, images=images, run_model=run_model, keep_passing=keep_passing,
     )
     return _score_frames(expected, capture, shapes, options, base)
 
@@ -523,6 +558,7 @@ class _Options:
     spec: BorderSpec | None
     images: Sequence[np.ndarray] | None
     run_model: ModelRunner | None
+    keep_passing: bool = True
 
 
 def _score_frames(
@@ -533,14 +569,13 @@ def _score_frames(
     base: dict[str, Any],
 ) -> Verdict:
     """Timing issues, offset, every frame compared, the diagnosis and the verdict of a run with output."""
-    by_shape = {s: capture.frames(*s) for s in set(shapes)}
-    views = [by_shape[s][i] if i < len(by_shape[s]) else None for i, s in enumerate(shapes)]
-    issues, extra = _timing_issues(capture, views, shapes, options.latency)
+    views = _Views(capture, shapes)
+    issues, extra = _timing_issues(capture, shapes, options.latency)
     sample_issue = _sample_latency_issue(base["declared_latency_samples"], base["latency_samples"])
     if sample_issue is not None:
         issues.append(sample_issue)
     offset = _auto_offset(expected, views) if options.align == "auto" else None
-    frames = [_compare(i, expected[i], views[i], shapes[i], options.tolerance_lsb, offset) for i in range(len(shapes))]
+    frames = _compare_all(expected, views, shapes, options, offset, bool(issues))
     if options.align == "exact":
         offset = _exact_offset(frames, views)
     elif offset is not None and not offset.is_zero and not options.accept_offset:

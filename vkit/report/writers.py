@@ -154,9 +154,9 @@ def _composite(panels: Sequence[tuple[str, np.ndarray]], footer: str) -> Image.I
 
 def _rebuild_frames(verdict: Any, expected: Sequence[Any], capture: Capture) -> list[Any]:
     frames = list(getattr(verdict, "frames", []) or [])
-    if frames:
+    if frames and all(getattr(fr, "arrays_kept", True) for fr in frames if fr is not None):
         return frames
-    # A verdict without arrays (e.g. read back from JSON): score again to get them.
+    # A verdict without arrays (read back from JSON, or passing frames that kept their counts only): score again.
     from vkit.check.scoreboard import score
 
     return score(expected, capture, tolerance_lsb=int(getattr(verdict, "tolerance_lsb", 0))).frames

@@ -98,7 +98,7 @@ class Board:
 
 
 def attach(instance: Any, config: str | Path | Config, *, design: str | None = None, out_dir: str | Path | None = None,
-           fail_fast: bool = False, chunk_clocks: int = CHUNK_CLOCKS) -> Board:
+           fail_fast: bool = False, chunk_clocks: int = CHUNK_CLOCKS, timing: str | None = None) -> Board:
     """Watch a design's input and output inside a running cocotb test and score every frame; nothing is driven.
 
     Args:
@@ -109,6 +109,8 @@ def attach(instance: Any, config: str | Path | Config, *, design: str | None = N
         out_dir: report folder (default: ``vkit-passive`` in the simulator's working folder).
         fail_fast: fail the test at the first failing frame (default: at :meth:`Board.check`).
         chunk_clocks: clocks sampled between two scoring steps.
+        timing: a timing preset the run should follow (frame sizes and hsync pulses a vsync period are checked
+            against it), or None.
 
     Returns:
         The :class:`Board`; ``await board.check()`` at the end of the test.
@@ -126,8 +128,17 @@ def attach(instance: Any, config: str | Path | Config, *, design: str | None = N
     path = getattr(handle, "_path", getattr(handle, "_name", "?"))
     out = Path(out_dir) if out_dir is not None else Path.cwd() / "vkit-passive"
     meta = {"design": d.name, "top": d.top, "instance": path, "simulator": _simulator()}
-    return Board(sampler_args, new_scoreboard(d), case_id=f"{d.name}:passive:{path}", out_dir=out.resolve(),
+    board = new_scoreboard(d, out_data_bits=_width(handle, d.ports["out_data"]), timing=timing)
+    return Board(sampler_args, board, case_id=f"{d.name}:passive:{path}", out_dir=out.resolve(),
                  meta=meta, fail_fast=fail_fast)
+
+
+def _width(handle: Any, port: str) -> int | None:
+    """Bits of port ``port`` of ``handle`` (None when the simulator does not say)."""
+    try:
+        return int(len(handle._get(port) if hasattr(handle, "_get") else getattr(handle, port)))
+    except Exception:  # a handle without a length: the word is then taken as one pixel
+        return None
 
 
 def _has_child(handle: Any, name: str) -> bool:

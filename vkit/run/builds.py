@@ -215,7 +215,7 @@ def build_fast_design(case: Case, cache: BuildCache, native: bool = False) -> Bu
 
     The harness depends on the design, its parameters and the family only, so one build serves every
     image, timing, stall pattern and seed. ``native=True`` builds it as a plain executable (no cocotb:
-    ``iverilog``/``vvp`` or ``verilator --binary``), for the drive mode ``native``.
+    ``iverilog``/``vvp`` or Verilator with a generated C++ main), for the drive mode ``native``.
 
     Raises:
         ToolError: the simulator is missing or rejected the sources (first error line and log path).

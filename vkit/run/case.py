@@ -32,7 +32,7 @@ from vkit.run.coverage import stimulus_coverage
 from vkit.run.inputs import check_ports, make_frames
 from vkit.run.options import RunOptions
 from vkit.run.results import CaseResult, case_meta, error_result, stopped_result
-from vkit.run.simulate import simulate
+from vkit.run.simulate import simulate_capture
 from vkit.run.waves import wave_rerun
 from vkit.sim.buildcache import BuildCache, BuildOutcome
 from vkit.sim.guard import GuardOutcome
@@ -94,7 +94,7 @@ def _prepare(case: Case, options: RunOptions) -> _Prepared:
     sim_dir = case_folder(options.out_dir, case.id, "sim")
     spec = case.design.pipeline_spec()
     check_ports(case)
-    frames = make_frames(case)
+    frames = make_frames(case, BuildCache(options.cache_dir).cache_dir)
     # stage arrays are made only for the frames that need them (failing ones): big frames stay in bounds
     expected = [StagesOnDemand(spec, f) for f in frames]
     return _Prepared(sim_dir, spec, frames, expected, pick_drive(case, options.drive))  # type: ignore[arg-type]
@@ -105,9 +105,9 @@ def _simulate(case: Case, prep: _Prepared, options: RunOptions, left_s: float) -
     missing capture becomes a capture that says so."""
     drive = prep.drive
     outcome = build_for_drive(case, BuildCache(options.cache_dir), drive)
-    capture_file = simulate(case, outcome.build_dir, prep.sim_dir, prep.frames, left_s, drive=drive)
-    if capture_file.exists():
-        return outcome, Capture.load(capture_file)
+    capture = simulate_capture(case, outcome.build_dir, prep.sim_dir, prep.frames, left_s, drive=drive)
+    if capture is not None:
+        return outcome, capture
     return outcome, Capture(facts=RunFacts(error=f"no capture was written; see {prep.sim_dir / 'sim.log'}"))
 
 
@@ -133,7 +133,7 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions,
     fault, as a hung design is the usual cause) or ``error`` (a crash is the tool's), with that first.
     """
     verdict = score(prep.expected, capture, max_listed=options.max_listed, spec=prep.spec, images=list(prep.frames),
-                    **case.score_settings())
+                    keep_passing=options.pictures == "all", **case.score_settings())
     stop = _sim_stop(capture, options.timeout_s)
     if stop is not None:
         status = "timeout" if stop.kind == "timeout" else "error"

@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import hashlib
+import importlib
+import os
 from pathlib import Path
 
 import numpy as np
@@ -17,7 +20,7 @@ from vkit.sim.signals import CONTROL_ROLES
 from vkit.video.images import load_image
 from vkit.video.patterns import pattern_in_format, ycbcr_frame
 
-__all__ = ["make_frames", "check_ports", "check_parameters", "make_sim_case", "BACKPRESSURE_SEED_OFFSET"]
+__all__ = ["FRAMES_CACHE", "make_frames", "check_ports", "check_parameters", "make_sim_case", "BACKPRESSURE_SEED_OFFSET"]
 
 BACKPRESSURE_SEED_OFFSET = 7919
 """Added to a stream case's seed for its back-pressure pattern, so ready and valid gaps are not the same
@@ -42,7 +45,24 @@ def _image_frame(case: Case, mode: str) -> np.ndarray:
     return _crop(loaded, case.width, case.height)
 
 
-def make_frames(case: Case) -> np.ndarray:
+FRAMES_CACHE = "frames"
+"""Folder of the build cache that keeps drawn pattern frames (a regression draws the same frames each run)."""
+
+_PATTERN_CODE = ("vkit.video.patterns", "vkit.video.killers", "vkit.model.ycbcr", "vkit.model.luma", __name__)
+"""Modules the drawn frames depend on: their source is part of the frames cache key."""
+
+
+def _frames_key(case: Case) -> str:
+    fmt = case.design.pixel_format
+    coding = case.design.pipeline_spec().ycbcr_coding if is_ycbcr(fmt) else None
+    digest = hashlib.sha256(repr((case.stimulus_name, case.height, case.width, fmt, coding, case.seed,
+                                  case.frames, sorted(dict(case.pattern_options).items()))).encode())
+    for name in _PATTERN_CODE:
+        digest.update(Path(importlib.import_module(name).__file__ or "").read_bytes())
+    return digest.hexdigest()[:32]
+
+
+def make_frames(case: Case, cache_dir: Path | None = None) -> np.ndarray:
     """The case's input frames, ``(N, H, W)`` (grey) or ``(N, H, W, 3)`` (RGB), uint8 for samples of up
     to 8 bits and uint16 above; patterns are drawn at the design's sample width.
 
@@ -50,8 +70,28 @@ def make_frames(case: Case) -> np.ndarray:
     is read in the design's pixel format (conversions only with ``[stimulus] convert = true``) and
     centre-cropped to the case's size; every frame of an image case is that image. A Y'CbCr design reads
     an RGB image (at 8 bits a sample or the format's width, if more) and converts it with the spec's
-    ``[coding]`` (:attr:`vkit.model.spec.PipelineSpec.ycbcr_coding`), as its patterns are.
+    ``[coding]`` (:attr:`vkit.model.spec.PipelineSpec.ycbcr_coding`), as its patterns are. With ``cache_dir``
+    (the build cache), drawn pattern frames are kept in its :data:`FRAMES_CACHE` folder, keyed on the
+    pattern, size, format, coding, seeds and the drawing code, and read back by the next run instead of drawn.
     """
+    if cache_dir is None or case.stimulus != "pattern":
+        return _draw_frames(case)
+    path = Path(cache_dir) / FRAMES_CACHE / f"{_frames_key(case)}.npy"
+    try:
+        return np.load(path, allow_pickle=False)
+    except (OSError, ValueError):  # not kept yet, or a damaged entry: drawn and kept again
+        pass
+    frames = _draw_frames(case)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = path.with_suffix(f".{os.getpid()}.tmp")
+    with open(tmp, "wb") as fh:
+        np.save(fh, frames)
+    tmp.replace(path)  # whole or not at all: parallel cases may keep the same frames
+    return frames
+
+
+def _draw_frames(case: Case) -> np.ndarray:
+    """The frames of :func:`make_frames`, drawn or read from the image."""
     fmt = case.design.pixel_format
     bits = sample_bits(fmt)
     coding = case.design.pipeline_spec().ycbcr_coding if is_ycbcr(fmt) else None

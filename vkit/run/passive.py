@@ -21,6 +21,7 @@ from vkit.run.case import mutant_diagnosis, named_by_mutant
 from vkit.run.config import Config, DesignConfig
 from vkit.video.capture import Capture
 from vkit.video.observe import SIDE_ROLES
+from vkit.video.timing import preset
 
 __all__ = ["PassiveOutcome", "pick_design", "side_roles", "new_scoreboard", "write_passive_report", "score_dump"]
 
@@ -70,7 +71,7 @@ def side_roles(design: DesignConfig) -> dict[str, dict[str, str]]:
             port = design.ports.get(f"{side}_{role}")
             if port:
                 sides[side][role] = port
-            elif role in required:
+            elif role in required and not (side == "out" and role == "vsync"):  # frames end after the input's lines
                 raise ConfigError(f"design {design.name}: role {side}_{role} is not mapped; a passive scoreboard "
                                   f"needs it to tell where frames end: map it in [designs.{design.name}.ports]")
     clock = {"clock": design.ports["clock"]}
@@ -80,10 +81,22 @@ def side_roles(design: DesignConfig) -> dict[str, dict[str, str]]:
     return sides
 
 
-def new_scoreboard(design: DesignConfig, *, max_listed: int = 20) -> PassiveScoreboard:
-    """A passive scoreboard for ``design`` (its spec, family, pixel format, tolerance and alignment)."""
-    options = PassiveOptions(tolerance_lsb=design.tolerance_lsb, align=design.align, max_listed=max_listed)
-    return PassiveScoreboard(design.pipeline_spec(), design.family, design.pixel_format, options)
+def new_scoreboard(design: DesignConfig, *, max_listed: int = 20, out_data_bits: int | None = None,
+                   timing: str | None = None) -> PassiveScoreboard:
+    """A passive scoreboard for ``design``: its spec, family, bus layout (pixel format, component order, pixels a
+    clock, lane order), pin polarity, tolerance and alignment, as the driven flow reads them from the config.
+
+    Args:
+        design: the design's config entry.
+        max_listed: failing pixels listed in the verdict.
+        out_data_bits: width of the output data word, bits (read off the simulator or the dump; splits a word
+            of several pixels into its lanes).
+        timing: a timing preset name (``hd1280x720p60``, ``tiny32x24``, ...) the run should follow, or None:
+            frame sizes and hsync pulses a vsync period are then checked against it.
+    """
+    options = PassiveOptions(timing=preset(timing) if timing else None, tolerance_lsb=design.tolerance_lsb, align=design.align, max_listed=max_listed,
+                             active_high=tuple(sorted(design.port_polarity.items())), out_data_bits=out_data_bits)
+    return PassiveScoreboard(design.pipeline_spec(), design.family, design.bus_layout(), options)
 
 
 def write_passive_report(case_id: str, board: PassiveScoreboard, out_dir: str | Path,
@@ -124,7 +137,8 @@ def _dump_paths(design: DesignConfig, scope: str | None, overrides: Mapping[str,
 
 
 def score_dump(config: Config, dump: str | Path, *, design: str | None = None, scope: str | None = None,
-               signals: Mapping[str, str] | None = None, out_dir: str | Path | None = None) -> PassiveOutcome:
+               signals: Mapping[str, str] | None = None, out_dir: str | Path | None = None,
+               timing: str | None = None) -> PassiveOutcome:
     """Score a waveform dump of a run: rebuild the input frames, run the model, score every output frame.
 
     Args:
@@ -135,6 +149,8 @@ def score_dump(config: Config, dump: str | Path, *, design: str | None = None, s
             key; without either, each port is found by its name alone when that is unique).
         signals: role -> full dump path for roles whose signal is not ``scope.port``.
         out_dir: report folder (default: ``<dump stem>-vkit`` beside the dump).
+        timing: a timing preset the run should follow (frame sizes and hsync pulses a vsync period are checked
+            against it), or None.
 
     Raises:
         ConfigError: the dump cannot be read, lacks a signal, or holds no complete frame.
@@ -150,7 +166,7 @@ def score_dump(config: Config, dump: str | Path, *, design: str | None = None, s
     clock = found["clock"]["clock"]
     reset = found["clock"].get("reset")
     start = (reset, 1 if d.reset_active_high else 0) if reset else None
-    board = new_scoreboard(d)
+    board = new_scoreboard(d, out_data_bits=wave.width(found["out"]["data"]), timing=timing)
     for chunk in wave.levels(clock, {"in": found["in"], "out": found["out"]}, start_after=start):
         board.feed(chunk["in"], chunk["out"])
     board.finish()

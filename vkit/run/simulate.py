@@ -6,7 +6,7 @@ import os
 from contextlib import contextmanager
 from pathlib import Path
 from dataclasses import asdict
-from typing import Any, Iterator, NamedTuple
+from typing import Any, Iterator, Mapping, NamedTuple
 
 import numpy as np
 from vkit.core.errors import ToolError, VkitError
@@ -21,7 +21,7 @@ from vkit.sim.fast.stimulus import fast_run_dir
 from vkit.sim.fast.wire import capture_file_name
 from vkit.video.capture import Capture, RunFacts, lines_file_for, read_lines_file
 
-__all__ = ["TEST_MODULE", "GUARD_STATUS", "WaveDump", "simulate"]
+__all__ = ["TEST_MODULE", "GUARD_STATUS", "WaveDump", "simulate", "simulate_capture"]
 
 
 TEST_MODULE = "vkit.sim.tb.entry"
@@ -102,7 +102,8 @@ def _left_behind(simcase: SimCase, language: str, drive: str, outcome: guard.Gua
 
 
 def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float, *,
-             wave: WaveDump | None = None, drive: str = "clock") -> Path:
+             wave: WaveDump | None = None, drive: str = "clock", test_module: str = TEST_MODULE,
+             extra_env: Mapping[str, str] | None = None) -> Path:
     """Write the SimCase, run the simulation of ``drive``, return the capture path (which may be missing).
 
     A simulator stopped at ``timeout_s`` or ended by a signal leaves a capture all the same (partial, or
@@ -117,18 +118,39 @@ def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, tim
         timeout_s: wall-clock limit of the simulator process, s.
         wave: a dump and its window, for a rerun on a wave build (always clock by clock).
         drive: ``"clock"``, ``"fast"`` or ``"native"``.
+        test_module: the cocotb test module of a per-clock run (default :data:`TEST_MODULE`); another module
+            plays the case with :func:`vkit.sim.tb.entry.run_case` and adds its own checks (a passive board).
+        extra_env: environment of the simulator added to the case's (``PYTHONPATH`` for ``test_module``).
 
     Raises:
         ToolError: the simulator failed (an exit code, not a signal or the time limit) before writing a capture.
     """
+    return _run(case, build_dir, sim_dir, frames, timeout_s, wave, drive, test_module, extra_env)[0]
+
+
+def simulate_capture(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float, *,
+                     drive: str = "clock") -> Capture | None:
+    """:func:`simulate`, returning the capture (None when none was written); a native run hands over the
+    capture it read instead of it being loaded back from the file it was saved to."""
+    capture_file, capture = _run(case, build_dir, sim_dir, frames, timeout_s, None, drive, TEST_MODULE, None)
+    if capture is None and capture_file.exists():
+        capture = Capture.load(capture_file)
+    return capture
+
+
+def _run(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float, wave: WaveDump | None,
+         drive: str, test_module: str, extra_env: Mapping[str, str] | None) -> tuple[Path, Capture | None]:
+    """The simulation of :func:`simulate`: the capture path, and the capture when it is at hand."""
     simcase = make_sim_case(case, sim_dir, frames)
     capture_file = Path(simcase.capture_file)
     capture_file.unlink(missing_ok=True)
     case_json = simcase.to_json(sim_dir / "case.json")
     if drive == "native" and wave is None:
-        run_native(simcase, case.simulator, build_dir, timeout_s=timeout_s)
-        return capture_file
+        return capture_file, run_native(simcase, case.simulator, build_dir, timeout_s=timeout_s)
     kwargs = _test_kwargs(case, simcase, Path(case_json), build_dir, sim_dir, drive, wave)
+    if drive == "clock":
+        kwargs["test_module"] = test_module
+    kwargs["extra_env"] = {**kwargs["extra_env"], **(extra_env or {})}
     status_file = sim_dir / GUARD_STATUS
     status_file.unlink(missing_ok=True)
     try:
@@ -144,4 +166,4 @@ def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, tim
             code = outcome.returncode if outcome is not None else getattr(exc, "code", 1)
             raise ToolError(f"{case.simulator} exited with code {code} before writing a capture: "
                             f"{first_error_line(sim_dir / 'sim.log')} (log: {sim_dir / 'sim.log'})") from None
-    return capture_file
+    return capture_file, None

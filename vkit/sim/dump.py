@@ -7,6 +7,7 @@ a value that changes at the edge itself belongs to the next clock.
 
 from __future__ import annotations
 
+import itertools
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -16,6 +17,7 @@ import numpy as np
 
 from vkit.core.errors import ConfigError
 from vkit.core.validate import suggest
+from vkit.video.bus import MAX_WORD_BITS
 from vkit.video.capture import UNKNOWN
 from vkit.video.observe import Levels
 
@@ -27,9 +29,14 @@ CHUNK_CLOCKS = 1 << 20
 _SUFFIXES = (".vcd", ".fst", ".ghw")
 
 
-def _values(values: list[Any]) -> np.ndarray:
-    """A signal's change values as int64; X/Z (a string from the reader) as :data:`UNKNOWN`."""
-    out = np.fromiter((v if type(v) is int else UNKNOWN for v in values), np.int64, len(values))
+def _values(values: list[Any], width: int = 1) -> np.ndarray:
+    """A signal's change values as int64, or Python ints in an object array for a signal wider than
+    :data:`~vkit.video.bus.MAX_WORD_BITS` (a wide bus word); X/Z (a string from the reader) as :data:`UNKNOWN`."""
+    if width > MAX_WORD_BITS:
+        out = np.empty(len(values), object)
+        out[:] = [v if type(v) is int else UNKNOWN for v in values]
+    else:
+        out = np.fromiter((v if type(v) is int else UNKNOWN for v in values), np.int64, len(values))
     for k in np.flatnonzero(out == UNKNOWN):  # weak levels (GHDL's H and L) resolve as a simulator would
         text = str(values[k]).upper()
         if text and set(text) <= {"0", "1", "H", "L"}:
@@ -111,18 +118,22 @@ class Dump:
         raise ConfigError(f"{what}: signal {path!r} is not in {self.path.name}; {hint}; fix the path (or the "
                           "scope) or dump that signal")
 
+    def width(self, name: str) -> int:
+        """Bits of signal ``name`` (a full name from :meth:`find`)."""
+        return int(self._vars[name].bitwidth or 1)
+
     def signal(self, name: str) -> _Signal:
         """Load signal ``name`` (a full name from :meth:`find`)."""
         var = self._vars[name]
         sig = var.signal
         changes = sig[0:len(sig)]  # a slice is built by the reader, several times faster than item by item
         width = int(var.bitwidth or 1)
-        try:  # all values known: one C-level conversion of the (time, value) pairs
-            table = np.array(changes, np.int64).reshape(-1, 2)
-            return _Signal(name, width, table[:, 0].copy(), table[:, 1].copy())
+        try:  # all values known: the (time, value) pairs flattened straight into one array (no tuple per row)
+            flat = np.fromiter(itertools.chain.from_iterable(changes), np.int64, 2 * len(changes))
+            return _Signal(name, width, flat[0::2].copy(), flat[1::2].copy())
         except (TypeError, ValueError, OverflowError):
             times = np.fromiter((t for t, _ in changes), np.int64, len(changes))
-            return _Signal(name, width, times, _values([v for _, v in changes]))
+            return _Signal(name, width, times, _values([v for _, v in changes], width))
 
     def rising_edges(self, clock: str) -> np.ndarray:
         """Times of the clock's rising edges (0 or X/Z -> 1 counts only from a known 0)."""

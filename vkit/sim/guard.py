@@ -18,6 +18,7 @@ import argparse
 import ctypes
 import json
 import os
+import select
 import signal
 import subprocess
 import sys
@@ -88,6 +89,27 @@ def _stop(proc: subprocess.Popen, grace_s: float = _GRACE_S) -> None:
         proc.wait()
 
 
+def _wait(proc: subprocess.Popen, timeout_s: float | None) -> None:
+    """``proc.wait(timeout_s)``, woken the moment the process ends (a Linux pidfd) rather than by
+    ``Popen.wait``'s polling, whose sleeps grow to 50 ms and so add 25 ms to a run on average."""
+    pidfd_open = getattr(os, "pidfd_open", None)
+    if timeout_s is None or pidfd_open is None:
+        proc.wait(timeout_s)
+        return
+    try:
+        fd = pidfd_open(proc.pid)
+    except OSError:  # an older kernel, or the process is gone already
+        proc.wait(timeout_s)
+        return
+    try:
+        ready, _, _ = select.select([fd], [], [], timeout_s)
+    finally:
+        os.close(fd)
+    if not ready:
+        raise subprocess.TimeoutExpired(proc.args, timeout_s)
+    proc.wait()
+
+
 def run_guarded(cmd: Sequence[str], *, timeout_s: float | None, cwd: str | Path | None = None,
                 env: Mapping[str, str] | None = None, stdout: IO | int | None = None,
                 stderr: IO | int | None = None) -> GuardOutcome:
@@ -100,7 +122,7 @@ def run_guarded(cmd: Sequence[str], *, timeout_s: float | None, cwd: str | Path 
                             stderr=stderr, preexec_fn=_child_setup)
     timed_out = False
     try:
-        proc.wait(timeout_s)
+        _wait(proc, timeout_s)
     except subprocess.TimeoutExpired:
         timed_out = True
         _stop(proc)

@@ -21,6 +21,8 @@ def _environment() -> jinja2.Environment:
         lstrip_blocks=True,
         keep_trailing_newline=True,
         undefined=jinja2.StrictUndefined,
+        # compiled templates kept in the user's temp folder: every build and case process renders a harness
+        bytecode_cache=jinja2.FileSystemBytecodeCache(),
     )
 
 

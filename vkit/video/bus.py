@@ -32,7 +32,7 @@ import numpy as np
 
 from vkit.core.errors import ConfigError
 from vkit.core.validate import fail, suggest, want_choice
-from vkit.core.vocab import COMPONENT_ORDERS, PIXEL_FORMAT_BITS, is_rgb, is_ycbcr, sample_bits
+from vkit.core.vocab import COMPONENT_ORDERS, PIXEL_FORMAT_BITS, components, is_rgb, is_ycbcr, sample_bits
 from vkit.video.capture import UNKNOWN, Capture
 from vkit.video.timing import VideoTiming, tiny
 
@@ -111,16 +111,17 @@ class BusLayout:
     def pixel_words(self, frames: np.ndarray) -> np.ndarray:
         """The pixel field of every pixel, int64 ``(N, H, W)``: a grey sample as is, an RGB pixel's
         components packed in :attr:`component_order`."""
-        arr = np.asarray(frames).astype(np.int64)
+        arr = np.asarray(frames)  # widened a component at a time: no int64 copy of the whole RGB stack
         if is_ycbcr(self.pixel_format):  # Y' in the low field, the colour differences above it in order
             bits = self.sample_bits
-            return sum((arr[..., k] << (bits * k) for k in range(arr.shape[-1])), np.zeros(arr.shape[:-1], np.int64))
+            return sum((arr[..., k].astype(np.int64) << (bits * k) for k in range(arr.shape[-1])),
+                       np.zeros(arr.shape[:-1], np.int64))
         if not is_rgb(self.pixel_format):
-            return arr
+            return arr.astype(np.int64)
         bits = self.sample_bits
         out = np.zeros(arr.shape[:-1], np.int64)
         for rank, letter in enumerate(self.component_order):
-            out |= arr[..., "RGB".index(letter)] << (bits * (2 - rank))
+            out |= arr[..., "RGB".index(letter)].astype(np.int64) << (bits * (2 - rank))
         return out
 
     def bus_words(self, frames: np.ndarray, fill_seed: int | None = None) -> np.ndarray:
@@ -180,6 +181,44 @@ class BusLayout:
         if width % self.lanes:
             out[-1] = self.keep_mask(width % self.lanes)
         return out
+
+    def split_words(self, words: np.ndarray) -> np.ndarray:
+        """The inverse of :meth:`bus_words` for words of up to :data:`MAX_WORD_BITS` bits: bus words ``(..., C)``
+        -> pixel fields ``(..., C * lanes)``, int64 (split by :func:`split_lanes`, as a capture is)."""
+        if self.wide:  # Python ints (an object array), as a watched bus word wider than int64 is read
+            return self._split_wide(np.asarray(words, object))
+        w = np.asarray(words, np.int64)
+        fields = split_lanes(w.reshape(-1), self, self.word_bits)
+        return fields.reshape(w.shape[:-1] + (w.shape[-1] * self.lanes,))
+
+    def _split_wide(self, words: np.ndarray) -> np.ndarray:
+        """:meth:`split_words` for :attr:`wide` words held as Python ints: ``(..., C)`` -> ``(..., C * lanes)``."""
+        mask = (1 << self.pixel_bits) - 1
+        lanes = [(words >> self.lane_shift(k)) & mask for k in range(self.lanes)]
+        fields = np.stack(lanes, axis=-1).astype(np.int64)
+        return fields.reshape(words.shape[:-1] + (words.shape[-1] * self.lanes,))
+
+    def samples(self, fields: np.ndarray) -> np.ndarray:
+        """The inverse of :meth:`pixel_words`: pixel fields -> samples, ``(...)`` grey, ``(..., 3)`` RGB (R, G, B),
+        ``(..., 2 | 3)`` Y'CbCr (Y' first); uint8 for samples of up to 8 bits, else uint16.
+
+        Raises:
+            ConfigError: a field is negative or wider than the pixel.
+        """
+        f = np.asarray(fields, np.int64)
+        if f.size and (f.min() < 0 or f.max() >> self.pixel_bits):
+            raise fail(WHERE, "data word", int(f.max() if f.min() >= 0 else f.min()),
+                       f"outside the {self.pixel_bits}-bit pixel of {self.pixel_format}",
+                       "map the data bus of the pixel format, or set pixel_format to the bus's format")
+        bits = self.sample_bits
+        mask = (1 << bits) - 1
+        dtype = np.uint8 if bits <= 8 else np.uint16
+        if is_ycbcr(self.pixel_format):
+            return np.stack([(f >> (bits * k)) & mask for k in range(components(self.pixel_format))], -1).astype(dtype)
+        if not is_rgb(self.pixel_format):
+            return f.astype(dtype)
+        by_letter = {letter: (f >> (bits * (2 - rank))) & mask for rank, letter in enumerate(self.component_order)}
+        return np.stack([by_letter[c] for c in "RGB"], axis=-1).astype(dtype)
 
     def random_words(self, rng: np.random.Generator, n: int) -> np.ndarray:
         """``n`` uniformly random words (``(n,)``, or ``(n, lanes)`` fields when :attr:`wide`) drawn from ``rng``."""

@@ -167,10 +167,12 @@ class FrameView:
 class Capture:
     """Everything one simulation run captured from a design's output.
 
-    Per output sample (arrival order), parallel 1-D arrays:
+    Per output sample (arrival order), parallel 1-D integer arrays (int64, or the smallest dtype that holds
+    them: a capture read from the harness's file keeps an 8-bit bus's values in int16 and clocks and places in
+    int32, 18 bytes a sample instead of 40, so ten 1920x1080 frames take 0.37 GB instead of 0.83 GB):
 
     Attributes:
-        values: pixel value, int64; :data:`UNKNOWN` where the data bus held X or Z.
+        values: pixel value; :data:`UNKNOWN` where the data bus held X or Z.
         clock: clock index of arrival, counted from the first clock after reset.
         frame: output frame number the sample belongs to (from vsync or start-of-frame).
         line: line number inside that frame (from data-enable runs or end-of-line).
@@ -201,32 +203,42 @@ class Capture:
         return int(self.frame.max()) + 1 if self.frame.size else 0
 
     def frames(self, height: int, width: int) -> list[FrameView]:
-        """Rebuild every captured frame into a ``(height, width)`` grid.
+        """Rebuild every captured frame into a ``(height, width)`` grid (:meth:`frame_view` of each)."""
+        return [self.frame_view(f, height, width) for f in range(self.frame_count)]
+
+    def _frame_bounds(self, index: int) -> slice | np.ndarray:
+        """The samples of frame ``index``: a slice when frame numbers never go down (every capture vkit
+        reads or records), else a mask."""
+        if bool(np.all(self.frame[1:] >= self.frame[:-1])):
+            # keys in the array's own dtype: mixed dtypes would make searchsorted copy the whole array
+            lo, hi = np.searchsorted(self.frame, np.array([index, index + 1], self.frame.dtype))
+            return slice(int(lo), int(hi))
+        return self.frame == index
+
+    def line_lengths(self, index: int) -> list[int]:
+        """Pixels that arrived on each output line of frame ``index``, in order (:attr:`FrameView.line_lengths`
+        without rebuilding the frame)."""
+        lines = self.line[self._frame_bounds(index)]
+        return [int(c) for c in np.bincount(lines, minlength=int(lines.max()) + 1)] if lines.size else []
+
+    def frame_view(self, index: int, height: int, width: int) -> FrameView:
+        """Rebuild captured frame ``index`` into a ``(height, width)`` grid (empty when it carried no pixel).
 
         Samples that fall outside the grid (a line too long, too many lines) are left out of
         ``pixels`` but still counted in ``line_lengths``, so the scoreboard can name the excess.
         """
-        views = []
-        for f in range(self.frame_count):
-            sel = self.frame == f
-            lines = self.line[sel]
-            cols = self.column[sel]
-            vals = self.values[sel]
-            clks = self.clock[sel]
-            pixels = np.zeros((height, width), np.int64)
-            present = np.zeros((height, width), bool)
-            clocks = np.full((height, width), -1, np.int64)
-            inside = (lines >= 0) & (lines < height) & (cols >= 0) & (cols < width)
-            pixels[lines[inside], cols[inside]] = vals[inside]
-            present[lines[inside], cols[inside]] = True
-            clocks[lines[inside], cols[inside]] = clks[inside]
-            if lines.size:
-                counts = np.bincount(lines, minlength=int(lines.max()) + 1)
-                line_lengths = [int(c) for c in counts]
-            else:
-                line_lengths = []
-            views.append(FrameView(f, pixels, present, line_lengths, clocks))
-        return views
+        sel = self._frame_bounds(index)
+        lines = self.line[sel]
+        cols = self.column[sel]
+        pixels = np.zeros((height, width), np.int64)
+        present = np.zeros((height, width), bool)
+        clocks = np.full((height, width), -1, np.int64)
+        inside = (lines >= 0) & (lines < height) & (cols >= 0) & (cols < width)
+        at = (lines[inside], cols[inside])
+        pixels[at] = self.values[sel][inside]
+        present[at] = True
+        clocks[at] = self.clock[sel][inside]
+        return FrameView(index, pixels, present, self.line_lengths(index), clocks)
 
     def save(self, path: str | Path, compress: bool = True) -> Path:
         """Write the capture as one ``.npz`` file (arrays plus the run facts as JSON under ``meta``).
@@ -252,16 +264,16 @@ class Capture:
 
     @classmethod
     def load(cls, path: str | Path) -> Capture:
-        """Read a capture written by :meth:`save` (also by an older vkit: unknown meta keys land in ``facts.extra``)."""
+        """Read a capture written by :meth:`save` in the integer dtypes it was saved in (also by an older vkit:
+        unknown meta keys land in ``facts.extra``)."""
         with np.load(Path(path), allow_pickle=False) as z:
-            return cls(
-                values=z["values"].astype(np.int64),
-                clock=z["clock"].astype(np.int64),
-                frame=z["frame"].astype(np.int64),
-                line=z["line"].astype(np.int64),
-                column=z["column"].astype(np.int64),
-                facts=RunFacts.from_dict(json.loads(str(z["meta"]))),
-            )
+            arrays = {name: _integers(z[name]) for name in ("values", "clock", "frame", "line", "column")}
+            return cls(**arrays, facts=RunFacts.from_dict(json.loads(str(z["meta"]))))
+
+
+def _integers(arr: np.ndarray) -> np.ndarray:
+    """A saved array as it was when it is int16, int32 or int64, else as int64."""
+    return arr if arr.dtype in (np.dtype(np.int16), np.dtype(np.int32), np.dtype(np.int64)) else arr.astype(np.int64)
 
 
 class CaptureBuilder:

@@ -7,7 +7,9 @@ of any length; a frame comes out as soon as a delimiter closes it, so a long run
 being received. The rules are the per-clock monitors' (:mod:`vkit.sim.tb.video`, :mod:`vkit.sim.tb.stream`):
 
 - video: a pixel is a clock with data-enable high (and pixel-valid high when mapped); a line ends when a
-  data-enable run ends; a frame starts at the leading edge of vsync.
+  data-enable run ends; a frame starts at the leading edge of vsync. With a clock enable mapped, only the
+  clocks it enables are samples (the others hold none). The leading edges of vsync and hsync are kept with
+  the frame they close, counted as the monitors count them (:func:`vkit.video.words.sync_counts`).
 - stream: a pixel is a clock with valid and ready high; start-of-frame on a pixel starts a new frame
   before it, end-of-line ends the line after it.
 
@@ -16,23 +18,24 @@ Numbers only: no signals, no simulator, no filters.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from vkit.core.errors import ConfigError
+from vkit.video.bus import BusLayout
 from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, RunFacts
-from vkit.video.formats import unpack_rgb
 
 __all__ = ["SIDE_ROLES", "Levels", "FramePixels", "FrameRebuilder"]
 
 SIDE_ROLES: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
-    "video": (("vsync", "de", "data"), ("valid",)),
+    "video": (("vsync", "de", "data"), ("valid", "hsync", "enable")),
     "stream": (("valid", "ready", "sof", "eol", "data"), ()),
 }
 """Per family: (required, optional) roles of one side, without the ``in_`` / ``out_`` prefix: only what the
-rebuild reads (hsync is not sampled: a line ends with its data-enable run). The video side needs vsync:
-with nothing but data-enable a passive watcher cannot tell where a frame ends."""
+rebuild reads (a line ends with its data-enable run; hsync is only counted, as the driven run counts it). The
+video side needs vsync: with nothing but data-enable a passive watcher cannot tell where a frame ends."""
 
 
 @dataclass
@@ -52,6 +55,18 @@ class Levels:
     def __len__(self) -> int:
         return int(next(iter(self.roles.values())).size) if self.roles else 0
 
+    def asserted(self, active_high: dict[str, bool]) -> Levels:
+        """The levels with each 1-bit role read as asserted (1) or not (0): roles whose pin is active low
+        (``active_high[role]`` False) are inverted; X/Z (-1) and ``data`` are kept as they are."""
+        low = [r for r, high in active_high.items() if not high and r in self.roles and r != "data"]
+        if not low:
+            return self
+        roles = dict(self.roles)
+        for r in low:
+            v = roles[r]
+            roles[r] = np.where(v < 0, v, 1 - v)
+        return Levels(self.first_clock, roles)
+
 
 @dataclass
 class FramePixels:
@@ -69,6 +84,10 @@ class FramePixels:
             pixel-valid low, or valid low on a stream) or waited on ready (stream output side).
         events: ``name -> [clock, role]`` or clocks of what went wrong around the frame (``xz_control``,
             ``de_in_blanking``), at most :data:`~vkit.video.capture.MAX_EVENTS` each.
+        vsync_clocks: clocks of the vsync leading edges from the one that closed the frame before up to the one
+            that closed this frame (video; empty on a stream; None when the side has no vsync).
+        hsync_clocks: clocks of the hsync leading edges in the same span, before the closing vsync edge (video,
+            hsync mapped), else None.
     """
 
     index: int
@@ -80,6 +99,8 @@ class FramePixels:
     line_ended: bool
     held: list[list[int]] = field(default_factory=list)
     events: dict[str, list] = field(default_factory=dict)
+    vsync_clocks: list[int] | None = field(default_factory=list)
+    hsync_clocks: list[int] | None = None
 
     @property
     def line_lengths(self) -> list[int]:
@@ -94,12 +115,14 @@ class FramePixels:
             return None
         return len(lengths), lengths[0]
 
-    def image(self, pixel_format: str) -> np.ndarray:
-        """The frame as an input image: uint8 ``(H, W)`` (gray8) or ``(H, W, 3)`` (rgb888).
+    def image(self, bus: BusLayout | str) -> np.ndarray:
+        """The frame as an input image, its samples as the model takes them (:meth:`BusLayout.samples`): one
+        data word a pixel, or ``bus.lanes`` pixels a word split as the active flow packs them.
 
         Raises:
-            ConfigError: the lines are not all the same length, or a pixel carried X/Z.
+            ConfigError: the lines are not all the same length, or a pixel carried X/Z or bits the format lacks.
         """
+        layout = BusLayout.of(bus)
         shape = self.shape
         if shape is None:
             lengths = self.line_lengths
@@ -110,13 +133,10 @@ class FramePixels:
             y = int(self.lines[np.argmax(self.values == UNKNOWN)])
             raise ConfigError(f"input frame {self.index}: X/Z on the data bus in line {y}; the design's input "
                               "must carry known pixels (check the upstream stage's reset)")
-        grid = self.values.reshape(shape)
-        if pixel_format == "rgb888":
-            return unpack_rgb(grid)
-        if grid.max(initial=0) > 255:
-            raise ConfigError(f"input frame {self.index}: words above 255 on a gray8 bus; set pixel_format = "
-                              "'rgb888' or map the 8-bit luma bus")
-        return grid.astype(np.uint8)
+        try:
+            return layout.samples(layout.split_words(self.values.reshape(shape)))
+        except ConfigError as exc:
+            raise ConfigError(f"input frame {self.index}: {exc}") from None
 
     def capture(self, facts: RunFacts) -> Capture:
         """The frame as a one-frame :class:`~vkit.video.capture.Capture` (frame number 0) with ``facts``."""
@@ -130,6 +150,7 @@ class _Carry:
 
     de: bool = False
     vsync: bool = False
+    hsync: bool = False
     stalled: bool = False
     line_pending: bool = False
     frame_pending: bool = False
@@ -138,28 +159,38 @@ class _Carry:
     global_line: int = 0
     frame_first_line: int = 0
     column: int = -1
+    frame_lines: int = 0
 
 
 class FrameRebuilder:
     """Rebuilds the frames of one side of an interface from per-clock levels fed in chunks.
+
+    Levels are read as asserted (1) or not: invert active-low pins first (:meth:`Levels.asserted`).
 
     Args:
         family: "video" or "stream".
         output: True for the design's output side (X/Z control events and data-enable in vertical blanking
             are recorded; a stream's ``held`` lists back-pressure), False for its input side (``held``
             lists the pixels right after a stall).
-        vsync_active_high: polarity of vsync (video).
+        vsync_active_high: polarity of vsync and hsync (video) when the levels were not made asserted.
+        lines_per_frame: for a video output without vsync: frame number -> its lines (the input frame of that
+            number; None while not known). A frame then ends after that many lines, as the per-clock monitor
+            ends one after the expected height.
     """
 
-    def __init__(self, family: str, output: bool, *, vsync_active_high: bool = True) -> None:
+    def __init__(self, family: str, output: bool, *, vsync_active_high: bool = True,
+                 lines_per_frame: Callable[[int], int | None] | None = None) -> None:
         if family not in SIDE_ROLES:
             raise ConfigError(f"family {family!r} is not known; use one of {', '.join(SIDE_ROLES)}")
         self.family = family
         self.output = output
         self.vsync_level = 1 if vsync_active_high else 0
+        self.lines_per_frame = lines_per_frame
         self._c = _Carry()
         self._blocks: list[tuple[np.ndarray, ...]] = []
         self._events: dict[str, list] = {"xz_control": [], "de_in_blanking": []}
+        self._vs_edges: list[np.ndarray] | None = []
+        self._hs_edges: list[np.ndarray] | None = None
         self.event_totals: dict[str, int] = {"xz_control": 0, "de_in_blanking": 0}
         """Events seen over the whole run (the lists kept per frame are bounded)."""
         self.frames_out = 0
@@ -175,12 +206,15 @@ class FrameRebuilder:
         if n == 0:
             return []
         self.clocks_seen += n
+        levels, at_clock = self._enabled(levels)
+        if len(levels) == 0:
+            return []
         if self.family == "video":
-            pix, line_b, frame_b, held, vs_after = self._video(levels)
+            pix, line_b, frame_b, held, vs_after = self._video(levels, at_clock)
         else:
-            pix, line_b, frame_b, held, vs_after = self._stream(levels)
+            pix, line_b, frame_b, held, vs_after = self._stream(levels, at_clock)
         values = levels.roles["data"][pix]
-        clocks = np.flatnonzero(pix) + levels.first_clock
+        clocks = at_clock[pix]
         closed = self._number(values, clocks, line_b, frame_b, held)
         if vs_after and self._blocks:  # a vsync after the last pixel closes the frame being received
             closed.append(self._emit(closed_by_delimiter=True))
@@ -194,32 +228,67 @@ class FrameRebuilder:
 
     # -- one chunk, per family ------------------------------------------------------------------------
 
-    def _bit(self, levels: Levels, role: str, where: np.ndarray | None = None) -> np.ndarray:
+    def _enabled(self, lv: Levels) -> tuple[Levels, np.ndarray]:
+        """The chunk's samples and the clock of each: with a clock enable, only its enabled clocks (the clocks
+        the per-clock monitor samples; X/Z on an output enable is listed), else every clock."""
+        clock = np.arange(len(lv), dtype=np.int64) + lv.first_clock
+        if "enable" not in lv.roles:
+            return lv, clock
+        en = lv.roles["enable"]
+        if self.output and (en < 0).any():
+            self._event("xz_control", [[int(k), "out_enable"] for k in clock[en < 0]])
+        keep = en == 1
+        roles = {r: v[keep] for r, v in lv.roles.items() if r != "enable"}
+        return Levels(lv.first_clock, roles), clock[keep]
+
+    def _bit(self, levels: Levels, role: str, at_clock: np.ndarray, where: np.ndarray | None = None) -> np.ndarray:
         """Role ``role`` as bool (X/Z read as low, and listed on the output side where ``where`` holds)."""
         raw = levels.roles[role]
         bad = raw < 0
         if self.output and bad.any():
             if where is not None:
                 bad = bad & where
-            prefix = "out_"
-            self._event("xz_control", [[int(c) + levels.first_clock, prefix + role] for c in np.flatnonzero(bad)])
+            self._event("xz_control", [[int(c), "out_" + role] for c in at_clock[bad]])
         return raw == 1
 
-    def _video(self, lv: Levels) -> tuple[np.ndarray, ...]:
+    def _sync_edges(self, lv: Levels, at_clock: np.ndarray, vs: np.ndarray, vs_rise: np.ndarray) -> None:
+        """Keep the clocks of the vsync and hsync leading edges of the chunk (the monitor's counting)."""
+        if lv.roles["vsync"].size and lv.roles["vsync"][0] == -2:
+            self._vs_edges = None  # no vsync: nothing to count
+        else:
+            self._vs_edges.append(at_clock[vs_rise])
+        if "hsync" not in lv.roles:
+            return
+        hs_raw = lv.roles["hsync"]
+        if self.output and (hs_raw < 0).any():
+            self._event("xz_control", [[int(k), "out_hsync"] for k in at_clock[hs_raw < 0]])
+        hs = hs_raw == self.vsync_level  # levels made asserted, or both syncs of one polarity
+        hs_prev = np.concatenate(([self._c.hsync], hs[:-1]))
+        if self._hs_edges is None:
+            self._hs_edges = []
+        self._hs_edges.append(at_clock[hs & ~hs_prev])
+        self._c.hsync = bool(hs[-1])
+
+    def _video(self, lv: Levels, at_clock: np.ndarray) -> tuple[np.ndarray, ...]:
         c = self._c
-        de = self._bit(lv, "de")
-        pix = de & self._bit(lv, "valid", de) if "valid" in lv.roles else de.copy()
+        de = self._bit(lv, "de", at_clock)
+        pix = de & self._bit(lv, "valid", at_clock, de) if "valid" in lv.roles else de.copy()
+        if "vsync" not in lv.roles:
+            if self.lines_per_frame is None:
+                raise ConfigError("a video side without vsync needs the lines of each frame; map its vsync")
+            lv = Levels(lv.first_clock, {**lv.roles, "vsync": np.zeros(len(lv), np.int64) - 2})  # never asserted
         vs_raw = lv.roles["vsync"]
-        if self.output and (vs_raw < 0).any():
-            self._event("xz_control", [[int(k) + lv.first_clock, "out_vsync"] for k in np.flatnonzero(vs_raw < 0)])
+        if self.output and (vs_raw == -1).any():
+            self._event("xz_control", [[int(k), "out_vsync"] for k in at_clock[vs_raw == -1]])
         vs = vs_raw == self.vsync_level
         de_prev = np.concatenate(([c.de], de[:-1]))
         vs_prev = np.concatenate(([c.vsync], vs[:-1]))
         vs_rise = vs & ~vs_prev
+        self._sync_edges(lv, at_clock, vs, vs_rise)
         line_ev = np.cumsum((de_prev & ~de) | vs_rise)
         frame_ev = np.cumsum(vs_rise)
         if self.output:
-            self._event("de_in_blanking", [int(k) + lv.first_clock for k in np.flatnonzero(vs & de)])
+            self._event("de_in_blanking", [int(k) for k in at_clock[vs & de]])
         stalled = de & ~pix
         stalled_prev = np.concatenate(([c.stalled], stalled[:-1]))
         at = np.flatnonzero(pix)
@@ -237,13 +306,13 @@ class FrameRebuilder:
         c.de, c.vsync, c.stalled = bool(de[-1]), bool(vs[-1]), bool(stalled[-1])
         return pix, line_b | frame_b, frame_b, held, vs_after
 
-    def _stream(self, lv: Levels) -> tuple[np.ndarray, ...]:
+    def _stream(self, lv: Levels, at_clock: np.ndarray) -> tuple[np.ndarray, ...]:
         c = self._c
-        valid = self._bit(lv, "valid")
-        ready = self._bit(lv, "ready", valid)
+        valid = self._bit(lv, "valid", at_clock)
+        ready = self._bit(lv, "ready", at_clock, valid)
         pix = valid & ready
-        sof = self._bit(lv, "sof", pix)
-        eol = self._bit(lv, "eol", pix)
+        sof = self._bit(lv, "sof", at_clock, pix)
+        eol = self._bit(lv, "eol", at_clock, pix)
         at = np.flatnonzero(pix)
         # input: valid low on the clock before (a gap); output: valid high and ready low (back-pressure)
         before = ~valid if not self.output else valid & ~ready
@@ -267,9 +336,12 @@ class FrameRebuilder:
         n = values.size
         if n == 0:
             return []
+        first_ever = not c.started
         if not c.started:  # nothing to end before the first pixel
             line_b[0] = frame_b[0] = False
             c.started = True
+        if self.lines_per_frame is not None and self.family == "video" and self._vs_edges is None:
+            frame_b = self._split_by_lines(line_b, first_ever)
         frame = c.frame + np.cumsum(frame_b)
         gline = c.global_line + np.cumsum(line_b)
         first_line = np.maximum.accumulate(np.where(frame_b, gline, c.frame_first_line))
@@ -288,6 +360,25 @@ class FrameRebuilder:
             self._blocks.append((values[lo:hi], clocks[lo:hi], lines[lo:hi], column[lo:hi], held[lo:hi]))
         return closed
 
+    def _split_by_lines(self, line_b: np.ndarray, first_ever: bool) -> np.ndarray:
+        """Frame starts of a side without vsync: a line that starts once the frame holds its input frame's lines
+        starts the next frame (one step a line, not a clock)."""
+        c = self._c
+        frame_b = np.zeros(line_b.size, bool)
+        starts = np.flatnonzero(line_b).tolist()
+        if first_ever:
+            c.frame_lines = 1
+        frame = c.frame
+        for i in starts:
+            height = self.lines_per_frame(frame)
+            if height is not None and c.frame_lines >= height:
+                frame_b[i] = True
+                frame += 1
+                c.frame_lines = 1
+            else:
+                c.frame_lines += 1
+        return frame_b
+
     def _emit(self, closed_by_delimiter: bool, until_clock: int | None = None) -> FramePixels:
         """Hand out the frame being received and forget its pixels."""
         values, clocks, lines, columns, held = (np.concatenate(parts) for parts in zip(*self._blocks))
@@ -300,13 +391,30 @@ class FrameRebuilder:
             events[key] = mine[:MAX_EVENTS]
         line_ended = self._c.line_pending or self._c.frame_pending or until_clock is not None
         at = np.flatnonzero(held)
+        vs, hs = self._take_sync_edges(int(clocks[-1]), closed_by_delimiter)
         frame = FramePixels(
             index=self.frames_out, values=values, clocks=clocks, lines=lines, columns=columns,
             closed=closed_by_delimiter, line_ended=bool(line_ended),
-            held=[[int(lines[k]), int(columns[k])] for k in at], events=events,
+            held=[[int(lines[k]), int(columns[k])] for k in at], events=events, vsync_clocks=vs, hsync_clocks=hs,
         )
         self.frames_out += 1
         return frame
+
+    def _take_sync_edges(self, last_pixel_clock: int, closed: bool) -> tuple[list[int] | None, list[int] | None]:
+        """The sync leading edges of the frame being handed out: every vsync edge up to the first one after its
+        last pixel (the edge that closed it) and the hsync edges before that one; later edges stay."""
+        if self._vs_edges is None:
+            return None, None
+        vs = np.concatenate(self._vs_edges) if self._vs_edges else np.zeros(0, np.int64)
+        after = np.flatnonzero(vs > last_pixel_clock)
+        cut = int(after[0]) + 1 if (closed and after.size) else vs.size
+        mine, self._vs_edges = vs[:cut], [vs[cut:]]
+        if self._hs_edges is None:
+            return mine.tolist(), None
+        hs = np.concatenate(self._hs_edges)
+        end = np.searchsorted(hs, mine[-1], side="left") if (closed and mine.size) else hs.size
+        self._hs_edges = [hs[end:]]
+        return mine.tolist(), hs[:end].tolist()
 
     def _event(self, key: str, items: list) -> None:
         """Keep events until their frame is handed out (bounded: a stuck signal must not fill memory)."""

@@ -343,7 +343,10 @@ class ClockSchedule:
 
     def frame_starts(self) -> np.ndarray:
         """Index of the first clock of each frame, int64 array of length ``frames``."""
-        return np.flatnonzero(np.diff(self.frame, prepend=-1) != 0)
+        if self.frame.size == 0:
+            return np.zeros(0, np.int64)
+        # compared in place (a bool a clock), not np.diff (two int copies of a long run's clocks)
+        return np.concatenate(([0], np.flatnonzero(self.frame[1:] != self.frame[:-1]) + 1)).astype(np.int64)
 
 
 def schedule(timing: VideoTiming, frames: int = 1, stalls: StallPattern | None = None,

@@ -20,6 +20,7 @@ __all__ = [
     "BLANKING_MODES",
     "READY_CHUNK_CLOCKS",
     "video_data_words",
+    "garbage_splits_evenly",
     "leading_edges",
     "sync_counts",
     "video_input_facts",
@@ -40,9 +41,22 @@ READY_CHUNK_CLOCKS = 4096
 """Clocks of sink ready levels drawn per call of the generator (the draw order depends on it)."""
 
 
-def _garbage(seed: int, layout: BusLayout, n: int) -> np.ndarray:
-    """``n`` seeded random words of ``layout`` (numpy PCG64): the bus content nobody may sample."""
-    return layout.random_words(np.random.default_rng(int(seed)), n)
+def _garbage(seed: int | np.random.Generator, layout: BusLayout, n: int) -> np.ndarray:
+    """``n`` seeded random words of ``layout`` (numpy PCG64): the bus content nobody may sample.
+
+    ``seed`` may be a Generator already in use: the words then continue its stream (see
+    :func:`garbage_splits_evenly` for when drawing in parts gives the same words as one draw)."""
+    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(int(seed))
+    return layout.random_words(rng, n)
+
+
+def garbage_splits_evenly(bits: int, part_clocks: int) -> bool:
+    """True when drawing the garbage words of a ``bits``-bit bus (one int64 a word, not :attr:`BusLayout.wide`)
+    in parts of ``part_clocks`` words from one Generator gives the words of one draw. NumPy draws a
+    power-of-two range without rejection: one 64-bit draw a word above 32 bits, one half of a 64-bit draw a
+    word up to 32 bits (a part of odd length would drop the other half; checked against one draw in
+    tests/test_capture_stream.py)."""
+    return bits > 32 or part_clocks % 2 == 0
 
 
 def video_data_words(
@@ -52,7 +66,7 @@ def video_data_words(
     *,
     blanking: str = "random",
     blanking_value: int = 0,
-    seed: int = 0,
+    seed: int | np.random.Generator = 0,
 ) -> np.ndarray:
     """The data-bus word of every clock of ``sched``.
 
@@ -66,7 +80,7 @@ def video_data_words(
         blanking: "random": seeded random words on every clock that carries no pixel; "constant":
             ``blanking_value`` there, but still random words on stall clocks (data-enable high, valid low).
         blanking_value: the constant blanking word, >= 0.
-        seed: seed of the random words (numpy PCG64).
+        seed: seed of the random words (numpy PCG64), or a Generator whose stream they continue.
 
     Returns:
         int64 array of length ``sched.n_clocks``; ``(sched.n_clocks, lanes)`` pixel fields for a word wider
@@ -80,12 +94,26 @@ def video_data_words(
         words = layout.constant_words(blanking_value, sched.n_clocks)
         stall = sched.de & ~sched.valid
         words[stall] = garbage[stall]
-    pix = sched.x >= 0
-    words[pix] = layout.bus_words(frames)[sched.frame[pix], sched.y[pix], sched.x[pix]]
+    _place_pixels(words, sched, frames, layout)
     if sched.enable is not None:
         # a clock-enabled source holds each sample from the clock after the previous enable to its own
         words = words[_next_enabled(sched.enable)]
     return words
+
+
+def _place_pixels(words: np.ndarray, sched: ClockSchedule, frames: np.ndarray, layout: BusLayout) -> None:
+    """Put every frame's bus words on the clocks that carry them, a frame at a time (one frame's words and
+    indices in memory, not the whole run's), the clocks found by the frame numbers, which never go down."""
+    n = int(frames.shape[0])
+    if not bool(np.all(sched.frame[1:] >= sched.frame[:-1])):  # not a schedule() result: all frames at once
+        pix = sched.x >= 0
+        words[pix] = layout.bus_words(frames)[sched.frame[pix], sched.y[pix], sched.x[pix]]
+        return
+    bounds = np.searchsorted(sched.frame, np.arange(n + 1, dtype=sched.frame.dtype))  # no int64 copy of the frames
+    for f in range(n):
+        lo, hi = int(bounds[f]), int(bounds[f + 1])
+        pix = np.flatnonzero(sched.x[lo:hi] >= 0) + lo
+        words[pix] = layout.bus_words(frames[f:f + 1])[0][sched.y[pix], sched.x[pix]]
 
 
 def _next_enabled(enable: np.ndarray) -> np.ndarray:

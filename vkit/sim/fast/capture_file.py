@@ -30,10 +30,11 @@ from __future__ import annotations
 
 import copy
 import tempfile
-from collections.abc import Callable
+import time
+from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, BinaryIO
 
 import numpy as np
 
@@ -112,7 +113,11 @@ def parse_capture_text(
         values, xz_data = np.zeros(pos_p.size, np.int64), int(unknown.sum())
     else:
         values, xz_data = _hex_values(texts)
-    cap = _build(family, clock_all, kind_a, lambda i: args[i], values, xz_data, height, split_on_height, facts)
+    code_a = np.zeros(kind_a.size, np.uint8)
+    for i in np.flatnonzero(kind_a == ord("X")).tolist():
+        code_a[i] = _role_code(args[i])
+    cap = _build(family, [_Chunk(clock_all, kind_a, code_a, values, xz_data)], height, split_on_height, facts,
+                 capacity=int(values.size), value_bits=width if lanes is None else None)
     if width is not None:
         cap.facts.out_data_bits = width
     return cap if lanes is None else spread_lanes(cap, lanes)
@@ -145,14 +150,45 @@ def parse_capture_binary(
                           "rebuild the harness with this vkit")
     family = family or ("stream" if fam_code == FAMILY_CODES["stream"] else "video")
     nw = capture_data_words(width)
-    rec = 8 + 4 * nw
     body = raw[16:]
-    body = body[: body.size - body.size % rec]  # a run cut short mid-record
+    body = body[: body.size - body.size % (8 + 4 * nw)]  # a run cut short mid-record
     words = body.view("<u4").reshape(-1, 2 + nw)
-    clock_all = words[:, 0].astype(np.int64)
-    kc = words[:, 1]
-    kind_a = (kc & 0xFF).astype(np.uint8)
-    code = ((kc >> 8) & 0xFF).astype(np.int64)
+    chunk, lanes = _decode_records(words, width, bus)
+    cap = _build(family, [chunk], height, split_on_height, facts, capacity=int(chunk.values.size),
+                 value_bits=width if lanes is None else None)
+    cap.facts.out_data_bits = width
+    kinds = words[:, 1] & 0xFF
+    masks = words[kinds == ord("M"), 2].astype(np.int64)
+    if masks.size and bus is not None and bus.lanes > 1:  # an output lane mask: keep the marked lanes only
+        if masks.size != int((kinds == ord("P")).sum()):
+            raise ConfigError(f"capture file: {masks.size} lane masks for {int((kinds == ord('P')).sum())} output "
+                              "words; rerun the case")
+        return spread_kept_lanes(cap, lanes if lanes is not None else split_lanes(chunk.values, bus, width), masks, bus)
+    return cap if lanes is None else spread_lanes(cap, lanes)
+
+
+def _role_code(role: str) -> int:
+    return CAPTURE_ROLES.index(role) if role in CAPTURE_ROLES else 0
+
+
+@dataclass
+class _Chunk:
+    """Decoded capture events: clock, ASCII kind and code of every event; the value of every pixel event."""
+
+    clock: np.ndarray
+    kind: np.ndarray
+    code: np.ndarray
+    values: np.ndarray
+    xz_count: int
+
+
+def _decode_records(words: np.ndarray, width: int, bus: BusLayout | None = None) -> tuple[_Chunk, np.ndarray | None]:
+    """Binary records (``(n, 2 + data words)`` uint32) of a ``width``-bit bus decoded; X/Z pixels get
+    :data:`UNKNOWN`. A word wider than :data:`MAX_WORD_BITS` comes back as its lane values (``(n, lanes)``,
+    :func:`_wide_lanes`) beside zeros in the chunk; else the lanes are None."""
+    nw = words.shape[1] - 2
+    kind_a = (words[:, 1] & 0xFF).astype(np.uint8)
+    code = ((words[:, 1] >> 8) & 0xFF).astype(np.uint8)
     pos_p = np.flatnonzero(kind_a == ord("P"))
     xz = code[pos_p] == 1
     lanes = None
@@ -164,19 +200,87 @@ def parse_capture_binary(
         v = d[:, 0] | (d[:, 1] << np.uint64(32)) if nw == 2 else d[:, 0]
         values = v.astype(np.int64)
         values[xz] = UNKNOWN
+    return _Chunk(words[:, 0].astype(np.int64), kind_a, code, values, int(xz.sum())), lanes
 
-    def arg(i: int) -> str:
-        c = int(code[i])
-        return CAPTURE_ROLES[c] if 0 < c < len(CAPTURE_ROLES) else "-"
 
-    cap = _build(family, clock_all, kind_a, arg, values, int(xz.sum()), height, split_on_height, facts)
+_BLOCK_RECORDS = 1 << 20
+"""Records read from a binary capture file at a time (12 MB for an 8-bit bus): the reader's memory is about
+one block's records and their numbering, whatever the length of the run or the size of a frame."""
+
+
+_FOLLOW_POLL_S = 0.01
+"""How long the reader waits for more of a capture file the simulator is still writing, s."""
+
+Running = Callable[[], bool]
+"""Tells a reader following a capture file whether the simulator writing it still runs."""
+
+
+def _record_blocks(fh: BinaryIO, width: int, running: Running | None) -> Iterator[np.ndarray]:
+    """Whole records from ``fh`` (``(k, width)`` uint32), :data:`_BLOCK_RECORDS` at a time; with ``running``,
+    the file is followed while the simulator writes it (a record cut at the end waits for its rest)."""
+    rec = 4 * width
+    rest = b""
+    while True:
+        data = fh.read(_BLOCK_RECORDS * rec)
+        if not data and running is not None and running():
+            time.sleep(_FOLLOW_POLL_S)
+            continue
+        if not data:  # the writer is done: one last look catches what came after the previous read
+            data = fh.read(_BLOCK_RECORDS * rec)
+            if not data:
+                return
+        data = rest + data
+        whole = len(data) - len(data) % rec
+        rest = data[whole:]
+        if whole:
+            yield np.frombuffer(data[:whole], "<u4").reshape(-1, width)
+
+
+def _frame_blocks(path: Path, nw: int, running: Running | None = None) -> Iterator[np.ndarray]:
+    """The records of a binary capture file, ``(k, 2 + nw)`` uint32, in chunks of about :data:`_BLOCK_RECORDS`
+    each cut right after a line or frame delimiter (``L``/``F``; a run cut short mid-record loses that record)."""
+    width = 2 + nw
+    pending = np.zeros((0, width), np.uint32)
+    with open(path, "rb") as fh:
+        fh.seek(_BINARY_HEADER_BYTES)
+        for block in _record_blocks(fh, width, running):
+            words = np.concatenate([pending, block]) if pending.shape[0] else block
+            kinds = words[:, 1] & 0xFF
+            delim = np.flatnonzero((kinds == ord("L")) | (kinds == ord("F")))
+            if delim.size == 0:
+                pending = words
+                continue
+            cut = int(delim[-1]) + 1
+            yield words[:cut]
+            pending = words[cut:].copy()  # the block itself is let go
+    if pending.shape[0]:
+        yield pending
+
+
+def _parse_binary_file(path: Path, *, family: str | None = None, height: int | None = None,
+                       split_on_height: bool = False, facts: RunFacts | None = None, bus: BusLayout | None = None,
+                       running: Running | None = None, capacity: int | None = None, keep: bool = False) -> Capture:
+    """:func:`parse_capture_binary` of a file, read a block at a time (bounded memory on long runs of big
+    frames); with ``running``, while the simulator still writes it (``capacity``: pixels expected). Frames
+    split on height and words wider than :data:`MAX_WORD_BITS` are read whole, once the file is complete."""
+    with open(path, "rb") as fh:
+        head = np.frombuffer(fh.read(_BINARY_HEADER_BYTES), "<u4")
+    if head.size < 4:
+        raise ConfigError("capture file: no binary capture header (VKCB); give a file written by the vkit harness")
+    version, fam_code, width = (int(v) for v in head[1:4])
+    if split_on_height or version != CAPTURE_VERSION or width > MAX_WORD_BITS or keep:  # keep: lane masks, read whole
+        if running is not None:
+            _wait_while(running)
+        return parse_capture_binary(np.fromfile(path, np.uint8), family=family, height=height,
+                                    split_on_height=split_on_height, facts=facts, bus=bus)
+    family = family or ("stream" if fam_code == FAMILY_CODES["stream"] else "video")
+    nw = capture_data_words(width)
+    if capacity is None or running is None:
+        capacity = max(0, path.stat().st_size - _BINARY_HEADER_BYTES) // (8 + 4 * nw)
+    chunks = (_decode_records(words, width)[0] for words in _frame_blocks(path, nw, running))
+    cap = _build(family, chunks, height, False, facts, capacity=capacity, value_bits=width)
     cap.facts.out_data_bits = width
-    masks = words[kind_a == ord("M"), 2].astype(np.int64)
-    if masks.size and bus is not None and bus.lanes > 1:  # an output lane mask: keep the marked lanes only
-        if masks.size != pos_p.size:
-            raise ConfigError(f"capture file: {masks.size} lane masks for {pos_p.size} output words; rerun the case")
-        return spread_kept_lanes(cap, lanes if lanes is not None else split_lanes(values, bus, width), masks, bus)
-    return cap if lanes is None else spread_lanes(cap, lanes)
+    return cap
 
 
 def _wide_lanes(limbs: np.ndarray, unknown: np.ndarray, width: int, bus: BusLayout | None) -> np.ndarray:
@@ -296,54 +400,111 @@ class _Events:
             getattr(self, key).append(entry)
 
 
-def _scan_events(family: str, clock_all: np.ndarray, kind_a: np.ndarray, pos_p: np.ndarray,
-                 arg_of: Callable[[int], str]) -> _Events:
+@dataclass
+class _NonPixel:
+    """The events other than pixels, in order: clock, ASCII kind, code and the pixels that came before each."""
+
+    clock: list[np.ndarray] = field(default_factory=list)
+    kind: list[np.ndarray] = field(default_factory=list)
+    code: list[np.ndarray] = field(default_factory=list)
+    pixels_before: list[np.ndarray] = field(default_factory=list)
+    last_clock: int | None = None
+
+    def add(self, chunk: _Chunk, pixels_so_far: int) -> None:
+        other = np.flatnonzero(chunk.kind != ord("P"))
+        self.clock.append(chunk.clock[other])
+        self.kind.append(chunk.kind[other])
+        self.code.append(chunk.code[other])
+        self.pixels_before.append(pixels_so_far + np.cumsum(chunk.kind == ord("P"))[other] if other.size else other)
+        if chunk.clock.size:
+            self.last_clock = int(chunk.clock[-1])
+
+
+def _scan_events(family: str, events: _NonPixel) -> _Events:
     """Walk the non-pixel events in order (syncs, X/Z, waits, first input, timeout, end)."""
     ev = _Events()
-    for i in np.flatnonzero(kind_a != ord("P")).tolist():
-        kind = chr(kind_a[i])
+    parts = (np.concatenate(x).tolist() if x else [] for x in (events.clock, events.kind, events.code, events.pixels_before))
+    for clock, k, code, before in zip(*parts):
+        kind = chr(k)
         if kind == "F" and family == "video":
             ev.vsync_count += 1
-            ev.vsync_clocks.append(int(clock_all[i]))
+            ev.vsync_clocks.append(clock)
             ev.hsync_per_frame.append(ev.hs_count)
             ev.hs_count = 0
         elif kind == "H":
             ev.hs_count += 1
-            ev.hsync_clocks.append(int(clock_all[i]))
+            ev.hsync_clocks.append(clock)
         elif kind == "B":
-            ev.bounded("de_in_blanking", int(clock_all[i]))
+            ev.bounded("de_in_blanking", clock)
         elif kind == "X":
-            ev.bounded("xz_control", [int(clock_all[i]), arg_of(i)])
+            ev.bounded("xz_control", [clock, CAPTURE_ROLES[code] if 0 < code < len(CAPTURE_ROLES) else "-"])
         elif kind == "K":
-            ev.waited_next.append(int(np.searchsorted(pos_p, i)))
+            ev.waited_next.append(before)
         elif kind == "I":
-            ev.first_input = int(clock_all[i])
+            ev.first_input = clock
         elif kind == "T":
             ev.timed_out = True
         elif kind == "E":
-            ev.clocks_run = int(clock_all[i])
+            ev.clocks_run = clock
     return ev
 
 
-def _build(family: str, clock_all: np.ndarray, kind_a: np.ndarray, arg_of: Callable[[int], str], values: np.ndarray,
-           xz_data: int, height: int | None, split_on_height: bool, facts: RunFacts | None) -> Capture:
-    """The Capture from decoded events (clock and ASCII kind code per event, values per pixel event); both formats."""
+class _PixelArrays:
+    """The per-pixel arrays of a capture, filled chunk by chunk in the smallest dtypes that hold them
+    (int32; values int16 for a bus of up to 15 bits, int64 above 31; clocks int64 past 2**31)."""
+
+    def __init__(self, capacity: int, value_bits: int | None) -> None:
+        values = np.int64 if value_bits is None or value_bits > 31 else np.int32 if value_bits > 15 else np.int16
+        self.names = ("values", "clock", "frame", "line", "column")
+        self.arrays = {n: np.empty(capacity, values if n == "values" else np.int32) for n in self.names}
+        self.size = 0
+
+    def add(self, values: np.ndarray, clock: np.ndarray, frame: np.ndarray, line: np.ndarray, column: np.ndarray) -> None:
+        k = int(values.size)
+        end = self.size + k
+        for name, part in zip(self.names, (values, clock, frame, line, column)):
+            arr = self.arrays[name]
+            if end > arr.size:  # more pixels than the file's records: only when the capacity was a guess
+                arr = self.arrays[name] = np.concatenate([arr[: self.size], np.empty(max(end, 2 * arr.size), arr.dtype)])
+            if part.size and arr.dtype != np.int64 and int(part.max()) > np.iinfo(arr.dtype).max:
+                arr = self.arrays[name] = arr.astype(np.int64)
+            arr[self.size:end] = part
+        self.size = end
+
+    def capture(self, facts: RunFacts) -> Capture:
+        return Capture(*(self.arrays[n][: self.size] for n in self.names), facts=facts)
+
+
+def _build(family: str, chunks: Iterable[_Chunk], height: int | None, split_on_height: bool,
+           facts: RunFacts | None, *, capacity: int = 0, value_bits: int | None = None) -> Capture:
+    """The Capture from decoded events, a chunk at a time (both formats).
+
+    Chunks after the first start right after an ``L`` or ``F`` event (the numbering carries over,
+    :class:`_Carry`); with ``split_on_height`` there is one chunk.
+    """
     out_facts = copy.deepcopy(facts) if facts is not None else RunFacts()
     if out_facts.family is None:
         out_facts.family = family
-    is_p = kind_a == ord("P")
-    pos_p = np.flatnonzero(is_p)
-    if split_on_height and height and (kind_a == ord("F")).any():
-        frame_a, line_a, col_a = _positions_loop(kind_a, bool(split_on_height), height)
-    else:
-        frame_a, line_a, col_a = _positions(kind_a, is_p, pos_p, bool(split_on_height), height)
-    ev = _scan_events(family, clock_all, kind_a, pos_p, arg_of)
-    cap = Capture(values, clock_all[pos_p], frame_a, line_a, col_a, out_facts)
-    _fill_facts(cap, family, ev, xz_data, clock_all)
+    pixels = _PixelArrays(capacity, value_bits)
+    events = _NonPixel()
+    carry = _Carry()
+    xz_seen = 0
+    for chunk in chunks:
+        is_p = chunk.kind == ord("P")
+        pos_p = np.flatnonzero(is_p)
+        if split_on_height and height and (chunk.kind == ord("F")).any():
+            frame_a, line_a, col_a = _positions_loop(chunk.kind, bool(split_on_height), height)
+        else:
+            frame_a, line_a, col_a = _positions(chunk.kind, is_p, pos_p, bool(split_on_height), height, carry)
+        events.add(chunk, pixels.size)
+        pixels.add(chunk.values, chunk.clock[pos_p], frame_a, line_a, col_a)
+        xz_seen += chunk.xz_count
+    cap = pixels.capture(out_facts)
+    _fill_facts(cap, family, _scan_events(family, events), xz_seen, events.last_clock)
     return cap
 
 
-def _fill_facts(cap: Capture, family: str, ev: _Events, xz_data: int, clock_all: np.ndarray) -> None:
+def _fill_facts(cap: Capture, family: str, ev: _Events, xz_data: int, last_clock: int | None) -> None:
     """Write the output-side facts of the events into the capture's run facts."""
     f = cap.facts
     k = int(cap.values.size)
@@ -366,7 +527,7 @@ def _fill_facts(cap: Capture, family: str, ev: _Events, xz_data: int, clock_all:
     timed_out, clocks_run = ev.timed_out, ev.clocks_run
     if clocks_run is None:
         f.notes.append("capture text has no end line: the simulation stopped before the harness finished")
-        clocks_run = int(clock_all[-1]) + 1 if clock_all.size else 0
+        clocks_run = last_clock + 1 if last_clock is not None else 0
         timed_out = True
     f.clocks_run = clocks_run
     f.timed_out = bool(timed_out)
@@ -408,10 +569,24 @@ def _hex_values(texts: Any) -> tuple[np.ndarray, int]:
     return values.astype(np.int64), int(bad.sum())
 
 
-def _positions(kind: np.ndarray, is_p: np.ndarray, pos_p: np.ndarray, split: bool, height: int | None
-               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Frame, line and column of every pixel event, vectorised (see the module docstring for the rules)."""
+@dataclass
+class _Carry:
+    """Where the numbering stands at a chunk edge (right after a line or frame delimiter): frames opened,
+    lines closed in the current frame, and whether a pixel came since the last ``F``."""
+
+    frame: int = 0
+    line: int = 0
+    frame_has: bool = False
+
+
+def _positions(kind: np.ndarray, is_p: np.ndarray, pos_p: np.ndarray, split: bool, height: int | None,
+               carry: _Carry | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Frame, line and column of every pixel event, vectorised (see the module docstring for the rules).
+
+    ``carry``: the events continue a run cut right after a delimiter (not with ``split``); updated in place.
+    """
     n = kind.size
+    carry = carry if carry is not None else _Carry()
     is_l = kind == ord("L")
     is_f = kind == ord("F")
     cum_p = np.cumsum(is_p)
@@ -423,12 +598,14 @@ def _positions(kind: np.ndarray, is_p: np.ndarray, pos_p: np.ndarray, split: boo
     prev_p_at_d = np.concatenate(([0], p_at_d[:-1]))
     eff_l = np.zeros(n, bool)
     eff_l[d_pos] = (p_at_d > prev_p_at_d) & is_l[d_pos]
-    # An F opens a new frame when a pixel came since the last F.
+    # An F opens a new frame when a pixel came since the last F (in an earlier chunk, for the first one).
     f_pos = np.flatnonzero(is_f)
     p_at_f = cum_p[f_pos]
     prev_p_at_f = np.concatenate(([0], p_at_f[:-1]))
     eff_f = np.zeros(n, bool)
     eff_f[f_pos] = p_at_f > prev_p_at_f
+    if f_pos.size and carry.frame_has:
+        eff_f[f_pos[0]] = True
     cum_eff_l = np.cumsum(eff_l)
     last_d = np.maximum.accumulate(np.where(delim, idx, -1))
     last_f = np.maximum.accumulate(np.where(is_f, idx, -1))
@@ -438,9 +615,24 @@ def _positions(kind: np.ndarray, is_p: np.ndarray, pos_p: np.ndarray, split: boo
         frame = cum_eff_l // height
         line = cum_eff_l % height
     else:
-        frame = np.cumsum(eff_f)
-        line = cum_eff_l - np.where(last_f >= 0, cum_eff_l[np.maximum(last_f, 0)], 0)
-    return (frame[pos_p].astype(np.int64), line[pos_p].astype(np.int64), col[pos_p].astype(np.int64))
+        frame = np.cumsum(eff_f) + carry.frame
+        line = cum_eff_l - np.where(last_f >= 0, cum_eff_l[np.maximum(last_f, 0)], -carry.line)
+        _carry_on(carry, cum_p, cum_eff_l, f_pos, int(eff_f.sum()))
+    return frame[pos_p], line[pos_p], col[pos_p]
+
+
+def _carry_on(carry: _Carry, cum_p: np.ndarray, cum_eff_l: np.ndarray, f_pos: np.ndarray, frames_opened: int) -> None:
+    """Move ``carry`` to the end of a chunk (its cumulative pixel and closed-line counts, its ``F`` events)."""
+    if not cum_p.size:
+        return
+    carry.frame += frames_opened
+    if f_pos.size:
+        last = int(f_pos[-1])
+        carry.line = int(cum_eff_l[-1] - cum_eff_l[last])
+        carry.frame_has = bool(cum_p[-1] > cum_p[last])
+    else:
+        carry.line += int(cum_eff_l[-1])
+        carry.frame_has = carry.frame_has or bool(cum_p[-1] > 0)
 
 
 def _positions_loop(kind: np.ndarray, split: bool, height: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -472,8 +664,20 @@ def _positions_loop(kind: np.ndarray, split: bool, height: int) -> tuple[np.ndar
     return arr[:, 0].copy(), arr[:, 1].copy(), arr[:, 2].copy()
 
 
-def _parse_file(path: Path, **kwargs: Any) -> Capture:
-    """Parse a harness capture file in either format (told apart by the header)."""
+def _wait_while(running: Running, path: Path | None = None) -> None:
+    """Wait while ``running`` says the simulator runs (and, with ``path``, only until that file has a header)."""
+    while running():
+        if path is not None and path.is_file() and path.stat().st_size >= _BINARY_HEADER_BYTES:
+            return
+        time.sleep(_FOLLOW_POLL_S)
+
+
+def _parse_file(path: Path, running: Running | None = None, capacity: int | None = None, keep: bool = False,
+                **kwargs: Any) -> Capture:
+    """Parse a harness capture file in either format (told apart by the header); with ``running``, a binary
+    file is read while the simulator writes it, a text file once it is done."""
+    if running is not None:
+        _wait_while(running, path)
     if path.is_dir():
         raise ConfigError(f"capture file {str(path)!r} is a directory; give the capture.bin or capture.txt file in it")
     if not path.is_file():
@@ -482,9 +686,11 @@ def _parse_file(path: Path, **kwargs: Any) -> Capture:
     with open(path, "rb") as fh:
         head = fh.read(len(TEXT_HEADER))
     if is_binary_capture(head):
-        return parse_capture_binary(np.fromfile(path, np.uint8), **kwargs)
+        return _parse_binary_file(path, running=running, capacity=capacity, keep=keep, **kwargs)
     if not is_text_capture(head):
         raise _not_a_capture(path)
+    if running is not None:
+        _wait_while(running)
     return parse_capture_text(path.read_text(errors="replace"), **kwargs)
 
 
@@ -504,13 +710,16 @@ def input_meta(case: SimCase, stim: StimulusFiles | None = None) -> RunFacts:
     return facts
 
 
-def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = None) -> Capture:
+def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = None, *,
+                 running: Running | None = None) -> Capture:
     """Read a harness capture file (live fast-path run, native run or exported testbench; binary or text).
 
     Args:
         path: the ``capture.bin`` / ``capture.txt`` the harness wrote.
         case: the case the run was made from (gives the input-side run facts and how frames split).
         stim: the stimulus the run used, if at hand (saves rebuilding it).
+        running: read the file while the simulator writes it, as long as this says it runs (the Verilog
+            harness flushes the file at every output line end): the reading overlaps the simulation.
 
     Raises:
         DutError: the file does not exist (the simulation never opened it).
@@ -518,11 +727,14 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
     """
     cap = _parse_file(
         Path(path),
+        running=running,
+        capacity=stim.expect_pixels if stim is not None else None,
         family=case.family,
         height=int(case.height),
         split_on_height=case.family == "video" and "out_vsync" not in case.signals,
         facts=input_meta(case, stim),
         bus=case.bus_layout(),
+        keep="out_keep" in case.signals,
     )
     if cap.facts.timed_out and cap.facts.timeout_clocks is None:
         cap.facts.timeout_clocks = int(cap.facts.clocks_run or 0)

@@ -12,7 +12,7 @@ import hashlib
 import json
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, BinaryIO, Callable
 
 import numpy as np
 
@@ -36,6 +36,7 @@ from vkit.video.words import (
     idle_levels,
     ready_levels,
     stream_transfers,
+    garbage_splits_evenly,
     video_data_words,
     video_input_facts,
 )
@@ -50,6 +51,7 @@ __all__ = [
     "write_words_hex",
     "write_words",
     "write_stimulus",
+    "streamed_stimulus",
     "expected_words",
     "expected_lane_fields",
     "write_expected",
@@ -170,11 +172,23 @@ def write_words_hex(path: str | Path, fields: list[tuple[np.ndarray, int]], nbyt
     return path
 
 
+_PACK_WORDS = 1 << 20
+"""Words packed at a time: the packing's temporaries stay a few tens of MB however long the run."""
+
+
 def _packed_bytes(fields: list[tuple[np.ndarray, int]], nbytes: int | None) -> np.ndarray:
     """The records of :func:`write_words` as an ``(n, nbytes)`` uint8 array, most significant byte first."""
     nbytes = int(nbytes or word_bytes(sum(b for _, b in fields)))
     n = int(np.asarray(fields[0][0]).size) if fields else 0
     out = np.zeros((n, nbytes), np.uint8)
+    for lo in range(0, n, _PACK_WORDS):
+        part = [(np.asarray(values).reshape(-1)[lo:lo + _PACK_WORDS], bits) for values, bits in fields]
+        _pack_into(out[lo:lo + _PACK_WORDS], part, nbytes)
+    return out
+
+
+def _pack_into(out: np.ndarray, fields: list[tuple[np.ndarray, int]], nbytes: int) -> None:
+    """Pack ``fields`` into the ``(k, nbytes)`` rows of ``out``."""
     offset = 0
     for values, bits in fields:
         v = np.asarray(values).astype(np.uint64).reshape(-1) & np.uint64((1 << bits) - 1)
@@ -185,7 +199,6 @@ def _packed_bytes(fields: list[tuple[np.ndarray, int]], nbytes: int | None) -> n
             part = v >> np.uint64(lo - offset) if lo >= offset else v << np.uint64(offset - lo)
             out[:, nbytes - 1 - byte] |= (part & np.uint64(0xFF)).astype(np.uint8)
         offset += bits
-    return out
 
 
 @dataclass
@@ -257,21 +270,68 @@ def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout
     """Video: one word per clock of the schedule."""
     if in_width > MAX_IN_WIDTH:
         raise ConfigError(f"stimulus: input data width {in_width} bits is too wide for the player (max {MAX_IN_WIDTH})")
-    sched, data = video_schedule_and_words(case)
     pins = case.pin_polarity(INPUT_LEVEL_ROLES)
+    if language == "verilog" and _frame_by_frame(case):
+        path = out / "stim.bin"
+        with open(path, "wb") as fh:
+            _video_words_into(fh, case, in_width, pins)
+        return _video_files(case, path, language, timeout_rel, schedule(case.video_timing(), case.frame_count()))
+    sched, data = video_schedule_and_words(case)
     fields = video_word_fields(sched, data, in_width, pins, case.bus_layout())
     if language == "vhdl":
         stim = write_words_hex(out / "stim.hex", fields, digits=(video_word_bits(in_width) + 3) // 4)
     else:
         stim = write_words(out / "stim.bin", fields)
+    return _video_files(case, stim, language, timeout_rel, sched)
+
+
+def _video_files(case: SimCase, stim: Path, language: str, timeout_rel: int | None, sched: ClockSchedule) -> StimulusFiles:
+    """The description of a video stimulus in ``stim`` played on ``sched``."""
     meta = video_input_facts(sched, case.pixels_per_clock)
     first = meta["first_input_clock"]
     timeout = int(timeout_rel) + (first or 0) if timeout_rel else 0
+    pins = case.pin_polarity(INPUT_LEVEL_ROLES)
     idle = idle_levels(pins)
     return StimulusFiles(stim, None, int(sched.n_clocks), 1, drain_clocks(case), timeout,
                          int(sched.frames) * case.width * case.height // case.pixels_per_clock, meta, None, language,
                          case.active_high("out_hsync"), case.active_high("out_vsync"),
                          sum(int(idle[r]) << i for i, r in enumerate(INPUT_LEVEL_ROLES)))
+
+
+def _frame_by_frame(case: SimCase) -> bool:
+    """True when every frame of the case's video stimulus has the same schedule (no stalls, no clock enable)
+    and the garbage words drawn a frame at a time equal one draw for the run."""
+    stalls = case.stall_pattern()
+    if (stalls is not None and stalls.probability > 0) or case.enable_pattern() is not None:
+        return False
+    layout = case.bus_layout()
+    return not layout.wide and garbage_splits_evenly(layout.word_bits, case.video_timing().clocks_per_frame)
+
+
+def _video_words_into(fh: BinaryIO, case: SimCase, in_width: int, pins: dict[str, bool]) -> None:
+    """The words of :func:`video_schedule_and_words` written to ``fh`` a frame at a time (one schedule of one
+    frame, the garbage words continuing one Generator), so memory holds one frame's words, not the run's."""
+    frames = case.load_frames()
+    one = schedule(case.video_timing(), 1)
+    rng = np.random.default_rng(int(case.seed))
+    for f in range(int(frames.shape[0])):
+        data = video_data_words(one, frames[f:f + 1], case.bus_layout(), blanking=case.blanking,
+                                blanking_value=case.blanking_value, seed=rng)
+        fh.write(_packed_bytes(video_word_fields(one, data, in_width, pins, case.bus_layout()), None).tobytes())
+
+
+def streamed_stimulus(case: SimCase, stim: Path, in_width: int | None = None
+                      ) -> tuple[StimulusFiles, Callable[[BinaryIO], None]] | None:
+    """A video stimulus the Verilog harness can read from ``stim`` while Python writes it (a pipe): its
+    description, and the function that writes its words to an open file. None when the case's words cannot be
+    written a frame at a time (stalls, a clock enable), or it is no video case: write the file first then."""
+    width = int(in_width or case.bus_layout().word_bits)
+    if case.family != "video" or width > MAX_IN_WIDTH or not _frame_by_frame(case):
+        return None
+    pins = case.pin_polarity(INPUT_LEVEL_ROLES)
+    files = _video_files(case, stim, "verilog", case.effective_timeout_clocks(),
+                         schedule(case.video_timing(), case.frame_count()))
+    return files, lambda fh: _video_words_into(fh, case, width, pins)
 
 
 def _write_stream(case: SimCase, out: Path, in_width: int, language: str, timeout_rel: int | None) -> StimulusFiles:

@@ -1,6 +1,6 @@
 """Verilator's runtime objects built once and shared by every native build, and a compiler cache when present.
 
-A ``verilator --binary`` build compiles Verilator's own runtime (``verilated.cpp``, ``verilated_timing.cpp``,
+A Verilator executable build compiles Verilator's own runtime (``verilated.cpp``, ``verilated_timing.cpp``,
 ``verilated_threads.cpp``) next to the model of the design. Those objects depend only on the Verilator
 install, the compiler and the flags, not on the design, and they take about two thirds of a small design's
 build. :func:`make_with_shared_runtime` compiles them once into a shared folder (keyed on the exact compile
@@ -26,7 +26,8 @@ from typing import Iterator, Mapping
 __all__ = ["RUNTIME_OBJECTS", "compiler_cache", "make_with_shared_runtime"]
 
 RUNTIME_OBJECTS = ("verilated", "verilated_timing", "verilated_threads")
-"""The runtime sources a ``--binary --timing`` build compiles (``<name>.o`` and its ``<name>.d``)."""
+"""The runtime sources a ``--timing`` build compiles (``<name>.o`` and its ``<name>.d``); a build's own list is
+read from its ``V<top>_classes.mk`` (a ``--no-timing`` build has no ``verilated_timing``)."""
 
 _MAKE_JOBS = "2"
 """Parallel compiler jobs of one build (the machines vkit targets have two cores)."""
@@ -45,9 +46,26 @@ def _make(mdir: Path, makefile: str, env: Mapping[str, str], targets: list[str],
     return subprocess.run([*args, *targets], env=dict(env), capture_output=True, text=True)
 
 
-def _runtime_key(mdir: Path, makefile: str, env: Mapping[str, str]) -> str:
+def _runtime_objects(mdir: Path, makefile: str) -> tuple[str, ...]:
+    """The runtime sources this build links (``VM_GLOBAL_FAST`` and ``VM_GLOBAL_SLOW`` of its classes makefile)."""
+    classes = mdir / makefile.replace(".mk", "_classes.mk")
+    if not classes.is_file():
+        return RUNTIME_OBJECTS
+    names: list[str] = []
+    listing = False
+    for line in classes.read_text().splitlines():
+        if line.startswith(("VM_GLOBAL_FAST", "VM_GLOBAL_SLOW")):
+            listing = True
+        elif listing and line.startswith((" ", "\t")) and line.strip(" \t\\"):
+            names.append(line.strip(" \t\\"))
+        else:
+            listing = False
+    return tuple(names) or RUNTIME_OBJECTS
+
+
+def _runtime_key(mdir: Path, makefile: str, env: Mapping[str, str], objects: tuple[str, ...]) -> str:
     """A hash of the runtime objects' compile commands (``make -n``) and the compiler's version."""
-    dry = subprocess.run(["make", "-n", "-B", "-C", str(mdir), "-f", makefile, *(f"{o}.o" for o in RUNTIME_OBJECTS)],
+    dry = subprocess.run(["make", "-n", "-B", "-C", str(mdir), "-f", makefile, *(f"{o}.o" for o in objects)],
                          env=dict(env), capture_output=True, text=True)
     version = subprocess.run([env.get("CXX", "c++"), "--version"], env=dict(env), capture_output=True, text=True)
     lines = [ln for ln in dry.stdout.splitlines() if not ln.startswith("make")]
@@ -65,14 +83,14 @@ def _locked(path: Path) -> Iterator[None]:
             fcntl.flock(handle, fcntl.LOCK_UN)
 
 
-def _files(folder: Path) -> list[Path]:
-    return [folder / f"{name}{ext}" for name in RUNTIME_OBJECTS for ext in (".o", ".d")]
+def _files(folder: Path, objects: tuple[str, ...]) -> list[Path]:
+    return [folder / f"{name}{ext}" for name in objects for ext in (".o", ".d")]
 
 
-def _publish(mdir: Path, shared: Path) -> None:
+def _publish(mdir: Path, shared: Path, objects: tuple[str, ...]) -> None:
     """Copy the runtime objects ``mdir`` compiled into ``shared`` (whole or not at all)."""
     tmp = Path(tempfile.mkdtemp(prefix=".tmp-", dir=shared.parent))
-    for src in _files(mdir):
+    for src in _files(mdir, objects):
         shutil.copy2(src, tmp / src.name)
     try:
         os.rename(tmp, shared)
@@ -85,17 +103,18 @@ def _runtime_into(mdir: Path, makefile: str, env: Mapping[str, str], store: Path
 
     Returns the error output of a failed runtime compile, else None.
     """
-    key = _runtime_key(mdir, makefile, env)[:16]
+    objects = _runtime_objects(mdir, makefile)
+    key = _runtime_key(mdir, makefile, env, objects)[:16]
     shared = store / key
     with _locked(store / f"{key}.lock"):
-        if all(f.is_file() for f in _files(shared)):
-            for src in _files(shared):
+        if all(f.is_file() for f in _files(shared, objects)):
+            for src in _files(shared, objects):
                 shutil.copy2(src, mdir / src.name)  # keeps the times: make sees them newer than the sources
             return None
-        res = _make(mdir, makefile, env, [f"{o}.o" for o in RUNTIME_OBJECTS])
+        res = _make(mdir, makefile, env, [f"{o}.o" for o in objects])
         if res.returncode != 0:
             return res.stdout + res.stderr
-        _publish(mdir, shared)
+        _publish(mdir, shared, objects)
     return None
 
 

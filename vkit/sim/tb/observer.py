@@ -109,12 +109,13 @@ class LevelSampler:
         """Hand the clocks sampled since the last chunk on (nothing when there are none)."""
         if not self._rows:
             return
-        table = np.array(self._rows, np.int64)
+        table = _table(self._rows)
         self._rows.clear()
         n = table.shape[0]
         sides: dict[str, dict[str, np.ndarray]] = {}
         for k, (side, role) in enumerate(self._order):
-            sides.setdefault(side, {})[role] = table[:, k]
+            column = table[:, k]
+            sides.setdefault(side, {})[role] = column if role == "data" else column.astype(np.int64)
         first = self._first
         self._first += n
         self.clocks = self._first
@@ -128,3 +129,11 @@ class LevelSampler:
             ticker(self._clock).remove(self._step)
             self._step = None
         self.flush()
+
+
+def _table(rows: list[list[int]]) -> np.ndarray:
+    """The sampled rows as int64, or as Python ints (an object array) when a data word is wider than int64."""
+    try:
+        return np.array(rows, np.int64)
+    except OverflowError:
+        return np.array(rows, object)

@@ -1,0 +1,189 @@
+"""Offline passive scoring reaches the verdict of a vkit-driven run of the same frames, on every sample design.
+
+For each sample design (video and stream, one, two or four pixels a clock (96-bit words), 8- and 10-bit grey, RGB and Y'CbCr
+4:2:2, active-low pins, a clock enable, an output without vsync) and each of its seeded-bug variants, every case of a small matrix (the conveyor scene and the box pattern, 32x24,
+stalls or back-pressure on) runs twice: once as ``vkit run`` runs it (the driven verdict), once clock by
+clock with the whole run dumped to a waveform file (FST from Icarus, VCD from GHDL), which
+``vkit score-dump`` then scores knowing nothing of the stimulus. Both must agree on the status and on
+the failure class. The reference each side is scored against is the spec's bit-exact model, whose parts
+are checked against OpenCV, SciPy and math.isqrt in test_model*.py; the seeded bugs come from the sample
+manifests (our own demo faults).
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+import pytest
+
+from conftest import SAMPLE_RTL, simulator_available
+from vkit.run.builds import build_design, build_wave_design
+from vkit.run.case import run_one_case
+from vkit.run.config import Case, load_config, expand_matrix
+from vkit.run.inputs import make_frames
+from vkit.run.options import RunOptions
+from vkit.run.passive import score_dump
+from vkit.run.simulate import WaveDump, simulate
+from vkit.sim.buildcache import BuildCache
+
+pytestmark = [pytest.mark.sim, pytest.mark.slow]
+
+MANIFEST = SAMPLE_RTL / "designs.toml"
+FOREIGN = SAMPLE_RTL / "foreign" / "designs.toml"
+
+DESIGNS = [
+    (MANIFEST, "edge_core", "icarus"), (MANIFEST, "edge_core_vhdl", "ghdl"), (MANIFEST, "blur_core", "icarus"),
+    (MANIFEST, "median_core", "icarus"), (MANIFEST, "stream_core", "icarus"), (MANIFEST, "belt_sharpen_x2", "icarus"),
+    (MANIFEST, "belt_smooth10", "icarus"), (MANIFEST, "belt_luma422", "icarus"),
+    (MANIFEST, "sortcam_dilate_q4", "icarus"),
+    (FOREIGN, "nsync_sharpen", "icarus"), (FOREIGN, "rowmax_htotal", "icarus"), (FOREIGN, "smooth_ce", "ghdl"),
+]
+"""(manifest, design, simulator) of the sample designs of both manifests (the SystemVerilog top with interface
+ports, belt_smooth_top.sv, runs on Verilator only and is not in a manifest)."""
+
+NOT_COVERED: dict[str, str] = {}
+"""Sample designs the passive scoreboard cannot read yet, and why."""
+
+
+def test_every_manifest_design_is_compared_or_named():
+    names = {n for m in (MANIFEST, FOREIGN) for n in tomllib.loads(m.read_text())["designs"]}
+    assert names == {d for _, d, _ in DESIGNS} | set(NOT_COVERED)
+
+_CONFIG = """\
+[run]
+simulators = ["{sim}"]
+waves = "off"
+
+[[import]]
+manifest = "{manifest}"
+use = ["{design}"]
+bugs = true
+
+[stimulus]
+patterns = [{{ name = "conveyor", seeds = [1] }}, "box"{extra}]
+timings = ["tiny32x24"]
+frames = 2
+stalls = [{{ probability = 0.1, max_length = 3 }}]
+backpressure = [{{ probability = 0.2, max_length = 3 }}]
+"""
+
+
+def _config(tmp: Path, manifest: Path, design: str, sim: str):
+    """A config of the design and all its seeded bugs; the line-length design also gets a second timing
+    (its bug only shows off tiny32x24)."""
+    extra = ', { name = "box", label = "box64", timings = ["tiny64x48"] }' if design == "rowmax_htotal" else ""
+    path = tmp / "passive_eq.toml"
+    path.write_text(_CONFIG.format(sim=sim, manifest=manifest, design=design, extra=extra))
+    return load_config(path)
+
+
+def _dump(case: Case, cache: BuildCache, folder: Path) -> Path:
+    """Run the case clock by clock with the whole run dumped: FST on Icarus (the wave build), VCD on GHDL."""
+    folder.mkdir(parents=True, exist_ok=True)
+    frames = make_frames(case)
+    if case.simulator == "ghdl":
+        wave, build = folder / "run.vcd", build_design(case, cache)
+    else:
+        wave, build = folder / "run.fst", build_wave_design(case, cache)
+    simulate(case, build.build_dir, folder, frames, 300.0, wave=WaveDump(wave, 0, 1 << 46))
+    return wave
+
+
+def _kind(verdict: dict) -> str | None:
+    return verdict["findings"][0]["kind"] if verdict["findings"] else None
+
+
+@pytest.mark.parametrize("manifest,design,sim", DESIGNS, ids=[d for _, d, _ in DESIGNS])
+def test_offline_passive_verdict_equals_the_driven_run(tmp_path, build_cache_dir, manifest, design, sim):
+    simulator_available(sim)
+    config = _config(tmp_path, manifest, design, sim)
+    options = RunOptions.make(tmp_path / "driven", cache_dir=build_cache_dir, waves="off")
+    cache = BuildCache(build_cache_dir)
+    differ = []
+    cases = expand_matrix(config)
+    for case in cases:
+        driven = run_one_case(case, options).entry["verdict"]
+        wave = _dump(case, cache, tmp_path / "waves" / str(case.index))
+        passive = score_dump(config, wave, design=case.design.name, scope=case.design.top,
+                             out_dir=tmp_path / "passive" / str(case.index))
+        # a frame the run ended inside is named, not scored: only a failing design may leave one
+        assert not passive.problems or driven["status"] != "pass", (case.id, passive.problems)
+        got = (passive.verdict.status, passive.verdict.diagnosis.kind if passive.verdict.diagnosis else None)
+        want = (driven["status"], _kind(driven))
+        if got != want:
+            differ.append(f"{case.id}: driven {want}, passive {got}")
+    assert not differ, "\n".join(differ)
+    bugs = {c.design.name for c in cases if c.design.bug}
+    manifest_bugs = tomllib.loads(manifest.read_text())["designs"][design].get("bugs", {})
+    assert len(bugs) == len(manifest_bugs)  # every seeded bug of the design was compared
+
+
+# -- live: the board attached inside the same simulation that vkit's per-clock source drives ----------------
+
+_WATCH = '''
+import os
+
+import cocotb
+
+from vkit.run.attach import PassiveFailure, attach
+from vkit.sim.case import CASE_ENV, SimCase
+from vkit.sim.tb.entry import run_case
+
+
+@cocotb.test()
+async def driven_and_watched(dut):
+    """vkit's own source and monitor play the case; a passive board watches the same ports and drives nothing."""
+    board = attach(dut, config=os.environ["WATCH_CONFIG"], design=os.environ["WATCH_DESIGN"],
+                   out_dir=os.environ["WATCH_OUT"])
+    await run_case(dut, SimCase.from_json(os.environ[CASE_ENV]))
+    try:
+        await board.check()
+    except PassiveFailure:
+        pass  # the verdict is read from the board's report.json
+'''
+
+LIVE = [
+    ("icarus", MANIFEST, "edge_core", ("edge_core/", "edge_core@de_late/", "edge_core@stall_repeat/")),
+    ("icarus", MANIFEST, "stream_core", ("stream_core@sharpen_wrap/",)),
+    ("verilator", MANIFEST, "edge_core", ("edge_core@sobel_tap_sign/", "edge_core@vsync_not_held/")),
+    ("verilator", MANIFEST, "belt_sharpen_x2", ("belt_sharpen_x2@lanes_swapped/",)),
+    ("icarus", MANIFEST, "sortcam_dilate_q4", ("sortcam_dilate_q4/", "sortcam_dilate_q4@out_first_low/")),
+    ("verilator", FOREIGN, "nsync_sharpen", ("nsync_sharpen@den_polarity_slip/",)),
+    ("ghdl", MANIFEST, "edge_core_vhdl", ("edge_core_vhdl/",)),
+    ("ghdl", FOREIGN, "smooth_ce", ("smooth_ce@enable_ignored_in_blanking/",)),
+]
+"""(simulator, manifest, design, case id prefixes): a subset per simulator, good designs and seeded bugs of each
+kind of check (values, timing, stalls, lanes, words wider than 64 bits, pin polarity, clock enable)."""
+
+
+@pytest.mark.parametrize("sim,manifest,design,prefixes", LIVE, ids=[f"{s}-{d}" for s, _, d, _ in LIVE])
+def test_live_passive_verdict_equals_the_driven_run(tmp_path, build_cache_dir, sim, manifest, design, prefixes):
+    simulator_available(sim)
+    config = _config(tmp_path, manifest, design, sim)
+    options = RunOptions.make(tmp_path / "driven", cache_dir=build_cache_dir, waves="off")
+    cache = BuildCache(build_cache_dir)
+    cases = [c for c in expand_matrix(config) if c.id.startswith(prefixes) and "conveyor" in c.id]
+    assert cases
+    differ = []
+    for case in cases:
+        driven = run_one_case(case, options).entry["verdict"]
+        folder = tmp_path / "live" / str(case.index)
+        folder.mkdir(parents=True)
+        (folder / "watch_tb.py").write_text(_WATCH)  # the simulator's working folder is on its module path
+        env = {"WATCH_CONFIG": str(config.path), "WATCH_DESIGN": case.design.name,
+               "WATCH_OUT": str(folder / "passive")}
+        simulate(case, build_design(case, cache).build_dir, folder, make_frames(case), 300.0, test_module="watch_tb",
+                 extra_env=env)
+        report = folder / "passive" / "report.json"
+        assert report.is_file(), (folder / "sim.log").read_text()[-3000:]
+        live = __import__("json").loads(report.read_text())["cases"][0]["verdict"]
+        assert live["frames_checked"] == case.frames
+        if (live["status"], _kind(live)) != (driven["status"], _kind(driven)):
+            differ.append(f"{case.id}: driven {(driven['status'], _kind(driven))}, live {(live['status'], _kind(live))}")
+    assert not differ, "\n".join(differ)

@@ -15,7 +15,6 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from vkit.core.errors import ConfigError
 from vkit.sim.case import SimCase
 from vkit.sim.fast.build import VERILATOR_ARGS, define_args
 from vkit.sim.fast.stimulus import StimulusFiles, write_expected

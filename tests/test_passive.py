@@ -434,3 +434,18 @@ def test_score_dump_with_a_timing_the_generator_does_not_follow(tmp_path, capsys
     out = capsys.readouterr().out
     assert code == 1
     assert "frame 1: 28 input hsync pulses in the vsync period, the timing tiny32x24 has 27 lines" in out
+
+
+def test_a_design_with_per_lane_valid_masks_is_refused_in_one_line(tmp_path):
+    """The passive sampler does not read in_keep / out_keep: it must say so, never score whole beats."""
+    from vkit.core.errors import ConfigError
+    from vkit.run.passive import side_roles
+
+    path = tmp_path / "keep.toml"
+    path.write_text(f'[[import]]\nmanifest = "{SAMPLE_RTL / "designs.toml"}"\nuse = ["lidscan_sharpen_k4"]\n'
+                    '[stimulus]\npatterns = ["box"]\ntimings = ["tiny32x24"]\n')
+    config = load_config(path)
+    design = config.designs["lidscan_sharpen_k4"]
+    with pytest.raises(ConfigError, match=r"in_keep and out_keep .*not read by the passive scoreboard.*vkit run") as err:
+        side_roles(design)
+    assert "\n" not in str(err.value)

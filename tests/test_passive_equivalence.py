@@ -47,7 +47,8 @@ DESIGNS = [
 """(manifest, design, simulator) of the sample designs of both manifests (the SystemVerilog top with interface
 ports, belt_smooth_top.sv, runs on Verilator only and is not in a manifest)."""
 
-NOT_COVERED: dict[str, str] = {}
+NOT_COVERED = {"lidscan_sharpen_k4": "its per-lane valid masks (in_keep / out_keep) are not read by the passive "
+                                     "sampler yet, and its seeded bug shows only on lines of a width the masks make"}
 """Sample designs the passive scoreboard cannot read yet, and why."""
 
 

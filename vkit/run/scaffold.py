@@ -677,13 +677,26 @@ def _config_text(kit: _Kit) -> str:
     design = _design_lines(kit, ports_by_name)
     ports = _port_lines(kit.name, kit.guess, ports_by_name)
     stimulus = (_video_stimulus(kit.guess, kit.timing_parameters) if kit.guess.family == "video"
-                else _STREAM_STIMULUS).replace(
+                else _stream_stimulus(kit.guess)).replace(
         "{patterns_line}", _patterns_line())
     return "\n".join([*head, *design, "", *ports, "", stimulus])
 
 
 _NO_STALLS = "stalls = [0]                       # no in_valid port: the design cannot take a stall\n"
 _ENABLES = ("enables = [{ every = 2 }, { duty = 0.5, max_gap = 3 }]   # in_enable: one clock in two, and random\n")
+
+
+def _stream_stimulus(guess: RoleGuess) -> str:
+    """The stream ``[stimulus]``; with per-lane valid masks a second frame, 2 pixels narrower, whose lines end in
+    a partly filled beat (at widths that fill every beat the masks are never read)."""
+    if "in_keep" not in guess.roles:
+        return _STREAM_STIMULUS
+    line = ('timings = [{ name = "tiny32x24", h_active = 32, h_front_porch = 2, h_sync = 3, h_back_porch = 3, '
+            'v_active = 24, v_front_porch = 1, v_sync = 1, v_back_porch = 1 }, { name = "tiny30x24", h_active = 30, '
+            'h_front_porch = 2, h_sync = 3, h_back_porch = 3, v_active = 24, v_front_porch = 1, v_sync = 1, '
+            'v_back_porch = 1 }]\n# two line lengths: at 30 pixels the last beat of a line is partly filled and '
+            'in_keep / out_keep mark its lanes\n')
+    return _STREAM_STIMULUS.replace("size = [32, 24]          # [width, height] pixels\n", line)
 
 
 _TWO_TIMINGS = ('timings = ["tiny", "tiny64x48"]   # two line lengths: parameters follow the timing '

@@ -13,6 +13,7 @@ import struct
 import numpy as np
 import pytest
 
+from conftest import pack_capture
 from vkit.sim.fast import capture_file
 from vkit.sim.fast.capture_file import parse_capture_binary, parse_capture_text
 from vkit.sim.fast.wire import CAPTURE_MAGIC, CAPTURE_VERSION
@@ -87,23 +88,6 @@ def test_capture_arrays_are_compact_and_survive_save_and_load(tmp_path):
     assert views[2].present.all() and views[1].pixels[2, 3] == (0 * 7 + 2 * 3 + 3) % 256
 
 
-def _packed(frames: list[np.ndarray]) -> Capture:
-    """A capture of ``frames`` as the video monitor numbers it: one line per data-enable run, a vsync per frame."""
-    from vkit.video.capture import CaptureBuilder, RunFacts
-
-    b = CaptureBuilder(RunFacts(frames_sent=len(frames), first_input_clock=0))
-    clk = 20
-    for f in frames:
-        b.new_frame()
-        for row in f:
-            b.new_line()
-            for v in row:
-                b.add(int(v), clk)
-                clk += 1
-            clk += 6
-    return b.build()
-
-
 def test_a_passing_run_keeps_counts_only_and_a_failing_one_keeps_every_frame():
     # the reference is scoring with every array kept: counts-only scoring must give the same verdict
     from vkit.check.scoreboard import score
@@ -112,16 +96,16 @@ def test_a_passing_run_keeps_counts_only_and_a_failing_one_keeps_every_frame():
     spec = preset("edge")
     rng = np.random.default_rng(3)
     results = [run_model(spec, rng.integers(0, 256, (12, 16, 3)).astype(np.uint8)) for _ in range(4)]
-    good = _packed([r.output for r in results])
+    good = pack_capture([r.output for r in results])
     full = score(results, good)
     slim = score(results, good, keep_passing=False)
     assert slim.passed and slim.to_dict() == full.to_dict()
     assert [fr.arrays_kept for fr in slim.frames] == [False] * 4 and slim.frames[2].summary() == full.frames[2].summary()
     outputs = [r.output.copy() for r in results]
     outputs[3][5, 7] ^= 1  # one wrong pixel in the last frame: the run fails, every frame keeps its arrays
-    bad = score(results, _packed(outputs), keep_passing=False)
+    bad = score(results, pack_capture(outputs), keep_passing=False)
     assert not bad.passed and bad.mismatches == 1 and all(fr.arrays_kept for fr in bad.frames)
-    assert bad.to_dict() == score(results, _packed(outputs)).to_dict()
+    assert bad.to_dict() == score(results, pack_capture(outputs)).to_dict()
 
 
 @pytest.mark.parametrize("bits", [8, 24, 32, 40, 58])

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import dataclasses
-
 from dataclasses import dataclass
 from typing import Any, Sequence
 
@@ -250,7 +248,7 @@ def _timing_issues(
     out = capture.frame_count
     issues, extra = _line_issues([capture.line_lengths(i) if i < out else None for i in range(len(shapes))],
                                  shapes, facts.family, facts.pixels_per_clock)
-    extra += int(np.count_nonzero(capture.frame >= len(shapes))) if len(capture) else 0
+    extra += capture.samples_from_frame(len(shapes))
     issues.append(_frame_count_issue(capture, len(shapes)))
     issues.extend(_sync_issues(facts))
     if facts.timed_out:
@@ -524,7 +522,7 @@ def score(
     shapes = _check_expected(expected)
     judged, warning = settled_facts(capture.facts, settle)
     if judged is not capture.facts:
-        capture = dataclasses.replace(capture, facts=judged)
+        capture = capture.with_facts(judged)
     measured_latency = latency_clocks(capture)
     base = dict(
         frames_expected=len(shapes), frames_out=capture.frame_count, pixels_arrived=len(capture),

@@ -8,6 +8,7 @@ design marked them, never filters. It never imports cocotb.
 from __future__ import annotations
 
 import copy
+import dataclasses
 import json
 import warnings
 from dataclasses import dataclass, field, fields
@@ -206,6 +207,19 @@ class Capture:
         """Rebuild every captured frame into a ``(height, width)`` grid (:meth:`frame_view` of each)."""
         return [self.frame_view(f, height, width) for f in range(self.frame_count)]
 
+    def with_facts(self, facts: RunFacts) -> Capture:
+        """The same samples with other run facts (the arrays are shared, not copied)."""
+        return dataclasses.replace(self, facts=facts)
+
+    def samples_from_frame(self, first: int) -> int:
+        """Samples that fell in frame ``first`` or any later one."""
+        return int(np.count_nonzero(self.frame >= first)) if self.frame.size else 0
+
+    def frame_part(self, index: int, names: tuple[str, ...]) -> tuple[np.ndarray, ...]:
+        """The named per-sample arrays (``"values"``, ``"clock"``, ``"line"``, ...) of frame ``index``'s samples."""
+        sel = self._frame_bounds(index)
+        return tuple(getattr(self, name)[sel] for name in names)
+
     def _frame_bounds(self, index: int) -> slice | np.ndarray:
         """The samples of frame ``index``: a slice when frame numbers never go down (every capture vkit
         reads or records), else a mask."""
@@ -218,7 +232,7 @@ class Capture:
     def line_lengths(self, index: int) -> list[int]:
         """Pixels that arrived on each output line of frame ``index``, in order (:attr:`FrameView.line_lengths`
         without rebuilding the frame)."""
-        lines = self.line[self._frame_bounds(index)]
+        (lines,) = self.frame_part(index, ("line",))
         return [int(c) for c in np.bincount(lines, minlength=int(lines.max()) + 1)] if lines.size else []
 
     def frame_view(self, index: int, height: int, width: int) -> FrameView:
@@ -227,17 +241,15 @@ class Capture:
         Samples that fall outside the grid (a line too long, too many lines) are left out of
         ``pixels`` but still counted in ``line_lengths``, so the scoreboard can name the excess.
         """
-        sel = self._frame_bounds(index)
-        lines = self.line[sel]
-        cols = self.column[sel]
+        values, clock, lines, cols = self.frame_part(index, ("values", "clock", "line", "column"))
         pixels = np.zeros((height, width), np.int64)
         present = np.zeros((height, width), bool)
         clocks = np.full((height, width), -1, np.int64)
         inside = (lines >= 0) & (lines < height) & (cols >= 0) & (cols < width)
         at = (lines[inside], cols[inside])
-        pixels[at] = self.values[sel][inside]
+        pixels[at] = values[inside]
         present[at] = True
-        clocks[at] = self.clock[sel][inside]
+        clocks[at] = clock[inside]
         return FrameView(index, pixels, present, self.line_lengths(index), clocks)
 
     def save(self, path: str | Path, compress: bool = True) -> Path:

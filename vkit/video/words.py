@@ -24,6 +24,7 @@ __all__ = [
     "leading_edges",
     "sync_counts",
     "video_input_facts",
+    "tiled_input_facts",
     "INPUT_LEVEL_ROLES",
     "input_levels",
     "idle_levels",
@@ -201,6 +202,32 @@ def video_input_facts(sched: ClockSchedule, lanes: int = 1) -> dict[str, object]
         "frames_sent": int(sched.frames),
         "first_input_clock": int(np.argmax(sched.taken)) if sched.taken.any() else None,
         "stall_pixels": (sched.stall_pixels * np.array([1, 1, lanes])).tolist() if lanes > 1 else sched.stall_pixels.tolist(),
+        "input_vsync_count": int(vs_edges.size),
+        "input_hsync_per_frame": sync_counts(hs_edges, vs_edges),
+        "input_first_vsync_clock": int(vs_edges[0]) if vs_edges.size else None,
+        "input_first_hsync_clock": int(hs_edges[0]) if hs_edges.size else None,
+    }
+
+
+def _tiled_edges(level: np.ndarray, active: bool, frames: int) -> np.ndarray:
+    """:func:`leading_edges` of ``level`` repeated ``frames`` times back to back, from one copy: a later copy
+    starts with an edge only where the copy before it ended inactive."""
+    edges = leading_edges(level, active)
+    ends_on = bool(level[-1]) == active if level.size else False
+    later = edges[1:] if edges.size and edges[0] == 0 and ends_on else edges
+    return np.concatenate([edges, *(later + k * int(level.size) for k in range(1, frames))]).astype(np.int64)
+
+
+def tiled_input_facts(one: ClockSchedule, frames: int, lanes: int = 1) -> dict[str, object]:
+    """:func:`video_input_facts` of ``frames`` frames played back to back on the one-frame schedule ``one``
+    (no stalls, no clock enable: every frame's clocks are the same), worked out from that one frame, so a long
+    run of big frames never builds the whole run's schedule (a few bytes a clock)."""
+    t = one.timing
+    vs_edges = _tiled_edges(one.vsync, t.vsync_active_high, frames)
+    hs_edges = _tiled_edges(one.hsync, t.hsync_active_high, frames)
+    return {
+        **video_input_facts(one, lanes),
+        "frames_sent": int(frames),
         "input_vsync_count": int(vs_edges.size),
         "input_hsync_per_frame": sync_counts(hs_edges, vs_edges),
         "input_first_vsync_clock": int(vs_edges[0]) if vs_edges.size else None,

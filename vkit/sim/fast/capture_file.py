@@ -44,6 +44,7 @@ from vkit.sim.fast.stimulus import StimulusFiles, write_stimulus
 from vkit.sim.fast.wire import CAPTURE_MAGIC, CAPTURE_ROLES, CAPTURE_VERSION, FAMILY_CODES, capture_data_words
 from vkit.video.bus import MAX_WORD_BITS, BusLayout, split_lanes, spread_kept_lanes, spread_lanes, unpack_capture
 from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, RunFacts
+from vkit.video.stored import CaptureSpill
 from vkit.video.timing import schedule
 from vkit.video.words import samples_between
 
@@ -259,7 +260,8 @@ def _frame_blocks(path: Path, nw: int, running: Running | None = None) -> Iterat
 
 def _parse_binary_file(path: Path, *, family: str | None = None, height: int | None = None,
                        split_on_height: bool = False, facts: RunFacts | None = None, bus: BusLayout | None = None,
-                       running: Running | None = None, capacity: int | None = None, keep: bool = False) -> Capture:
+                       running: Running | None = None, capacity: int | None = None, keep: bool = False,
+                       spill: Path | None = None) -> Capture:
     """:func:`parse_capture_binary` of a file, read a block at a time (bounded memory on long runs of big
     frames); with ``running``, while the simulator still writes it (``capacity``: pixels expected). Frames
     split on height and words wider than :data:`MAX_WORD_BITS` are read whole, once the file is complete."""
@@ -278,7 +280,7 @@ def _parse_binary_file(path: Path, *, family: str | None = None, height: int | N
     if capacity is None or running is None:
         capacity = max(0, path.stat().st_size - _BINARY_HEADER_BYTES) // (8 + 4 * nw)
     chunks = (_decode_records(words, width)[0] for words in _frame_blocks(path, nw, running))
-    cap = _build(family, chunks, height, False, facts, capacity=capacity, value_bits=width)
+    cap = _build(family, chunks, height, False, facts, capacity=capacity, value_bits=width, spill=spill)
     cap.facts.out_data_bits = width
     return cap
 
@@ -449,12 +451,17 @@ def _scan_events(family: str, events: _NonPixel) -> _Events:
     return ev
 
 
+def _value_dtype(value_bits: int | None) -> type:
+    """The smallest dtype that holds a ``value_bits``-bit bus's values and :data:`UNKNOWN`."""
+    return np.int64 if value_bits is None or value_bits > 31 else np.int32 if value_bits > 15 else np.int16
+
+
 class _PixelArrays:
     """The per-pixel arrays of a capture, filled chunk by chunk in the smallest dtypes that hold them
     (int32; values int16 for a bus of up to 15 bits, int64 above 31; clocks int64 past 2**31)."""
 
     def __init__(self, capacity: int, value_bits: int | None) -> None:
-        values = np.int64 if value_bits is None or value_bits > 31 else np.int32 if value_bits > 15 else np.int16
+        values = _value_dtype(value_bits)
         self.names = ("values", "clock", "frame", "line", "column")
         self.arrays = {n: np.empty(capacity, values if n == "values" else np.int32) for n in self.names}
         self.size = 0
@@ -476,19 +483,23 @@ class _PixelArrays:
 
 
 def _build(family: str, chunks: Iterable[_Chunk], height: int | None, split_on_height: bool,
-           facts: RunFacts | None, *, capacity: int = 0, value_bits: int | None = None) -> Capture:
+           facts: RunFacts | None, *, capacity: int = 0, value_bits: int | None = None,
+           spill: Path | None = None) -> Capture:
     """The Capture from decoded events, a chunk at a time (both formats).
 
     Chunks after the first start right after an ``L`` or ``F`` event (the numbering carries over,
-    :class:`_Carry`); with ``split_on_height`` there is one chunk.
+    :class:`_Carry`); with ``split_on_height`` there is one chunk. With ``spill`` (a folder), the samples go
+    to files there as they are decoded and the result is a :class:`~vkit.video.stored.StoredCapture`.
     """
     out_facts = copy.deepcopy(facts) if facts is not None else RunFacts()
     if out_facts.family is None:
         out_facts.family = family
-    pixels = _PixelArrays(capacity, value_bits)
+    pixels: _PixelArrays | CaptureSpill
+    pixels = _PixelArrays(capacity, value_bits) if spill is None else CaptureSpill(spill, _value_dtype(value_bits))
     events = _NonPixel()
     carry = _Carry()
     xz_seen = 0
+    first_clock: int | None = None
     for chunk in chunks:
         is_p = chunk.kind == ord("P")
         pos_p = np.flatnonzero(is_p)
@@ -499,15 +510,18 @@ def _build(family: str, chunks: Iterable[_Chunk], height: int | None, split_on_h
         events.add(chunk, pixels.size)
         pixels.add(chunk.values, chunk.clock[pos_p], frame_a, line_a, col_a)
         xz_seen += chunk.xz_count
+        if first_clock is None and pos_p.size:
+            first_clock = int(chunk.clock[pos_p[0]])
     cap = pixels.capture(out_facts)
-    _fill_facts(cap, family, _scan_events(family, events), xz_seen, events.last_clock)
+    _fill_facts(cap, family, _scan_events(family, events), xz_seen, events.last_clock, first_clock)
     return cap
 
 
-def _fill_facts(cap: Capture, family: str, ev: _Events, xz_data: int, last_clock: int | None) -> None:
-    """Write the output-side facts of the events into the capture's run facts."""
+def _fill_facts(cap: Capture, family: str, ev: _Events, xz_data: int, last_clock: int | None,
+                first_clock: int | None) -> None:
+    """Write the output-side facts of the events into the capture's run facts (``first_clock``: of the first pixel)."""
     f = cap.facts
-    k = int(cap.values.size)
+    k = len(cap)
     f.xz_data_count = xz_data
     f.xz_control = ev.xz_control
     if family == "video":
@@ -517,11 +531,12 @@ def _fill_facts(cap: Capture, family: str, ev: _Events, xz_data: int, last_clock
         f.output_vsync_clocks = ev.vsync_clocks
         f.output_hsync_clocks = ev.hsync_clocks
     if family == "stream":
-        f.backpressure_pixels = [[int(cap.frame[i]), int(cap.line[i]), int(cap.column[i])]
-                                 for i in ev.waited_next if i < k]
+        waited = [i for i in ev.waited_next if i < k]
+        places = (cap.frame, cap.line, cap.column) if waited else ()  # read once (from disk, for a stored capture)
+        f.backpressure_pixels = [[int(a[i]) for a in places] for i in waited]
     if ev.first_input is not None:
         f.first_input_clock = ev.first_input
-    f.first_output_clock = int(cap.clock[0]) if k else None
+    f.first_output_clock = first_clock if k else None
     if f.first_output_clock is not None and f.first_input_clock is not None:
         f.latency_clocks = int(f.first_output_clock) - int(f.first_input_clock)
     timed_out, clocks_run = ev.timed_out, ev.clocks_run
@@ -673,7 +688,7 @@ def _wait_while(running: Running, path: Path | None = None) -> None:
 
 
 def _parse_file(path: Path, running: Running | None = None, capacity: int | None = None, keep: bool = False,
-                **kwargs: Any) -> Capture:
+                spill: Path | None = None, **kwargs: Any) -> Capture:
     """Parse a harness capture file in either format (told apart by the header); with ``running``, a binary
     file is read while the simulator writes it, a text file once it is done."""
     if running is not None:
@@ -686,7 +701,7 @@ def _parse_file(path: Path, running: Running | None = None, capacity: int | None
     with open(path, "rb") as fh:
         head = fh.read(len(TEXT_HEADER))
     if is_binary_capture(head):
-        return _parse_binary_file(path, running=running, capacity=capacity, keep=keep, **kwargs)
+        return _parse_binary_file(path, running=running, capacity=capacity, keep=keep, spill=spill, **kwargs)
     if not is_text_capture(head):
         raise _not_a_capture(path)
     if running is not None:
@@ -711,7 +726,7 @@ def input_meta(case: SimCase, stim: StimulusFiles | None = None) -> RunFacts:
 
 
 def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = None, *,
-                 running: Running | None = None) -> Capture:
+                 running: Running | None = None, spill: str | Path | None = None) -> Capture:
     """Read a harness capture file (live fast-path run, native run or exported testbench; binary or text).
 
     Args:
@@ -720,6 +735,9 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
         stim: the stimulus the run used, if at hand (saves rebuilding it).
         running: read the file while the simulator writes it, as long as this says it runs (the Verilog
             harness flushes the file at every output line end): the reading overlaps the simulation.
+        spill: a folder for the decoded samples: a binary capture of one pixel a clock is then read a block
+            at a time into files there and comes back as a :class:`~vkit.video.stored.StoredCapture`, which
+            the scoreboard reads a frame at a time (memory stays bounded whatever the run's length).
 
     Raises:
         DutError: the file does not exist (the simulation never opened it).
@@ -735,6 +753,7 @@ def read_capture(path: str | Path, case: SimCase, stim: StimulusFiles | None = N
         facts=input_meta(case, stim),
         bus=case.bus_layout(),
         keep="out_keep" in case.signals,
+        spill=Path(spill) if spill is not None and case.bus_layout().lanes == 1 else None,
     )
     if cap.facts.timed_out and cap.facts.timeout_clocks is None:
         cap.facts.timeout_clocks = int(cap.facts.clocks_run or 0)

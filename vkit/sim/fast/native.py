@@ -302,7 +302,8 @@ def run_native(case: SimCase, simulator: str, build_dir: str | Path, *, in_width
         raise ToolError(message)
     if not capture.is_file():
         raise ToolError(f"native run: no capture file after {outcome.seconds:.1f} s; see {log}")
-    return _finish(followed if followed is not None else read_capture(capture, case, stim), case, simulator)
+    return _finish(followed if followed is not None else read_capture(capture, case, stim, spill=_spill_dir(case)),
+                   case, simulator)
 
 
 def _run_reading(cmd: list[str], capture: Path, case: SimCase, stim: StimulusFiles, timeout_s: float | None,
@@ -320,7 +321,7 @@ def _run_reading(cmd: list[str], capture: Path, case: SimCase, stim: StimulusFil
 
     def follow() -> None:
         try:
-            box[0] = read_capture(capture, case, stim, running=lambda: not done.is_set())
+            box[0] = read_capture(capture, case, stim, running=lambda: not done.is_set(), spill=_spill_dir(case))
         except Exception:  # noqa: BLE001 - read again after the run, where the error is reported
             box[0] = None
 
@@ -336,6 +337,14 @@ def _run_reading(cmd: list[str], capture: Path, case: SimCase, stim: StimulusFil
         if feed is not None:
             feeder.join()
     return outcome, box[0]
+
+
+SPILL_NAME = "capture.spill"
+"""The folder in a native run's folder where the capture reader keeps decoded samples until they are saved."""
+
+
+def _spill_dir(case: SimCase) -> Path:
+    return fast_run_dir(case) / SPILL_NAME
 
 
 def _partial(capture: Path, case: SimCase, stim: StimulusFiles) -> Capture:

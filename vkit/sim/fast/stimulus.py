@@ -39,6 +39,7 @@ from vkit.video.words import (
     garbage_splits_evenly,
     video_data_words,
     video_input_facts,
+    tiled_input_facts,
 )
 
 __all__ = [
@@ -275,25 +276,35 @@ def _write_video(case: SimCase, out: Path, in_width: int, language: str, timeout
         path = out / "stim.bin"
         with open(path, "wb") as fh:
             _video_words_into(fh, case, in_width, pins)
-        return _video_files(case, path, language, timeout_rel, schedule(case.video_timing(), case.frame_count()))
+        return _video_files(case, path, language, timeout_rel, *_tiled_facts(case))
     sched, data = video_schedule_and_words(case)
     fields = video_word_fields(sched, data, in_width, pins, case.bus_layout())
     if language == "vhdl":
         stim = write_words_hex(out / "stim.hex", fields, digits=(video_word_bits(in_width) + 3) // 4)
     else:
         stim = write_words(out / "stim.bin", fields)
-    return _video_files(case, stim, language, timeout_rel, sched)
+    return _video_files(case, stim, language, timeout_rel, video_input_facts(sched, case.pixels_per_clock),
+                        int(sched.n_clocks), int(sched.frames))
 
 
-def _video_files(case: SimCase, stim: Path, language: str, timeout_rel: int | None, sched: ClockSchedule) -> StimulusFiles:
-    """The description of a video stimulus in ``stim`` played on ``sched``."""
-    meta = video_input_facts(sched, case.pixels_per_clock)
+def _tiled_facts(case: SimCase) -> tuple[dict[str, object], int, int]:
+    """The input facts, clocks and frames of a case whose frames all play on the same schedule
+    (:func:`_frame_by_frame`), from one frame's schedule (the whole run's is never built)."""
+    one = schedule(case.video_timing(), 1)
+    frames = case.frame_count()
+    return tiled_input_facts(one, frames, case.pixels_per_clock), int(one.n_clocks) * frames, frames
+
+
+def _video_files(case: SimCase, stim: Path, language: str, timeout_rel: int | None, meta: dict[str, object],
+                 n_clocks: int, frames: int) -> StimulusFiles:
+    """The description of a video stimulus in ``stim``: ``frames`` frames in ``n_clocks`` clocks, whose input
+    facts are ``meta`` (:func:`~vkit.video.words.video_input_facts`)."""
     first = meta["first_input_clock"]
     timeout = int(timeout_rel) + (first or 0) if timeout_rel else 0
     pins = case.pin_polarity(INPUT_LEVEL_ROLES)
     idle = idle_levels(pins)
-    return StimulusFiles(stim, None, int(sched.n_clocks), 1, drain_clocks(case), timeout,
-                         int(sched.frames) * case.width * case.height // case.pixels_per_clock, meta, None, language,
+    return StimulusFiles(stim, None, n_clocks, 1, drain_clocks(case), timeout,
+                         frames * case.width * case.height // case.pixels_per_clock, meta, None, language,
                          case.active_high("out_hsync"), case.active_high("out_vsync"),
                          sum(int(idle[r]) << i for i, r in enumerate(INPUT_LEVEL_ROLES)))
 
@@ -329,8 +340,7 @@ def streamed_stimulus(case: SimCase, stim: Path, in_width: int | None = None
     if case.family != "video" or width > MAX_IN_WIDTH or not _frame_by_frame(case):
         return None
     pins = case.pin_polarity(INPUT_LEVEL_ROLES)
-    files = _video_files(case, stim, "verilog", case.effective_timeout_clocks(),
-                         schedule(case.video_timing(), case.frame_count()))
+    files = _video_files(case, stim, "verilog", case.effective_timeout_clocks(), *_tiled_facts(case))
     return files, lambda fh: _video_words_into(fh, case, width, pins)
 
 

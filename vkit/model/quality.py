@@ -264,6 +264,8 @@ def compare_runs(
     per_image = []
     runs: list[ImageRun] = []
     for label, img in zip(labels, arrays):
+        if not keep_runs:
+            runs = []  # the last image's runs go before this one's are made: one image's runs in memory at a time
         run = ImageRun(str(label), run_model(spec, img), run_float(spec, img))
         per_image.append(_quality_of(run.label, spec, run.fixed, run.real, pool))
         runs = [*runs, run] if keep_runs else [run]

@@ -17,7 +17,7 @@ from vkit.model.pipeline import PipelineSpec
 from vkit.model.quality import compare
 from vkit.model.strength import stimulus_strength
 
-__all__ = ["stimulus_coverage", "STRENGTH_MAX_PIXELS", "COVERAGE_CACHE"]
+__all__ = ["stimulus_coverage", "COVERAGE_MAX_FRAME_PIXELS", "STRENGTH_MAX_PIXELS", "COVERAGE_CACHE"]
 
 COVERAGE_CACHE = "coverage"
 """Folder under the build cache that keeps each stimulus's coverage figures: the same frames on another
@@ -26,6 +26,12 @@ _CODE = ("vkit.model.fixedpoint", "vkit.model.luma", "vkit.model.window", "vkit.
          "vkit.model.widths", "vkit.model.exact", "vkit.model.float_twin", "vkit.model.quality", "vkit.model.mutants",
          "vkit.model.strength", "vkit.check.align", __name__)
 """Modules whose code the figures depend on: their source is part of the cache key."""
+
+COVERAGE_MAX_FRAME_PIXELS = 1920 * 1080
+"""Pixels of one frame the coverage figures are measured on. A bigger frame (3840x2160) is measured on its
+first rows that fit (at least 3, the window's height), so measuring a case holds about what one 1920x1080
+frame takes (model and float twin with their stages: about 0.3 GB) beside the simulation it overlaps; the
+figures give ``rows_used`` (None: whole frames)."""
 
 STRENGTH_MAX_PIXELS = 4_000_000
 """Input pixels of a case the mutant strength is measured on (every mutant is a model run: about 60 runs
@@ -51,8 +57,9 @@ def stimulus_coverage(spec: PipelineSpec, frames: np.ndarray, floor: float,
             the spec, the frames, the floor and the code that measures them. None measures afresh.
 
     Returns:
-        ``({"mutants", "stages", "clamp_shares", "border_share", "floor"}, warnings)``; ``border_share``
-        is None when the spec leaves borders unchecked.
+        ``({"mutants", "stages", "clamp_shares", "border_share", "floor", "rows_used"}, warnings)``;
+        ``border_share`` is None when the spec leaves borders unchecked; ``rows_used`` is None unless frames
+        wider than tall budgets allow were measured on their first rows (:data:`COVERAGE_MAX_FRAME_PIXELS`).
     """
     path = None if cache_dir is None else Path(cache_dir) / COVERAGE_CACHE / f"{_key(spec, frames, floor)}.json"
     if path is not None and path.is_file():
@@ -86,8 +93,18 @@ def _keep(path: Path, value: dict[str, Any]) -> None:
         tmp.unlink(missing_ok=True)
 
 
+def _rows_within(frames: np.ndarray) -> int | None:
+    """Rows of each frame the figures are measured on (:data:`COVERAGE_MAX_FRAME_PIXELS`); None: all of them."""
+    height, width = int(frames.shape[1]), int(frames.shape[2])
+    rows = max(3, COVERAGE_MAX_FRAME_PIXELS // max(1, width))
+    return rows if rows < height else None
+
+
 def _measure(spec: PipelineSpec, frames: np.ndarray, floor: float) -> tuple[dict[str, Any], list[str]]:
     """:func:`stimulus_coverage` without the cache."""
+    rows = _rows_within(frames)
+    if rows is not None:
+        frames = frames[:, :rows]
     report = compare(spec, list(frames))
     warnings = [
         f"stage {c.name} reached {100 * c.share:.0f}% of its range "
@@ -111,6 +128,7 @@ def _measure(spec: PipelineSpec, frames: np.ndarray, floor: float) -> tuple[dict
         "clamp_shares": {k: round(float(v), 6) for k, v in report.overall.clamp_shares.items()},
         "border_share": border_share,
         "floor": floor,
+        "rows_used": rows,
     }
     return figures, warnings
 

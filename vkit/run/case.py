@@ -29,6 +29,7 @@ from vkit.report.writers import case_entry, case_folder, write_case_report
 from vkit.run.builds import build_for_drive, pick_drive
 from vkit.run.config import Case
 from vkit.run.coverage import stimulus_coverage
+from vkit.run.heap import bound_heap, trim_heap
 from vkit.run.inputs import check_ports, make_frames
 from vkit.run.options import RunOptions
 from vkit.run.results import CaseResult, case_meta, error_result, stopped_result
@@ -250,6 +251,7 @@ def run_one_case(case: Case, options: RunOptions) -> CaseResult:
         status ``error`` with the one-line reason as the diagnosis.
     """
     t0 = time.monotonic()
+    bound_heap()
     out = options.out_dir
     rerun = (rerun_command(options.config_path, case.id, case.simulator, out / "rerun")
              if options.config_path is not None else None)
@@ -265,8 +267,10 @@ def run_one_case(case: Case, options: RunOptions) -> CaseResult:
             # what the stimulus covers depends on the spec and frames only: measured while the simulator runs
             stimulus = pool.submit(stimulus_coverage, prep.spec, prep.frames, options.coverage_floor,
                                    BuildCache(options.cache_dir).cache_dir)
+            stimulus.add_done_callback(lambda _: trim_heap())  # its model runs' arrays are gone: so is their memory
             outcome, capture = _simulate(case, prep, options, left_s)
             in_simulation = False
+        trim_heap()
         if capture.facts.error and capture.facts.sim_outcome is None:
             # the cocotb side stopped (misnamed port, narrow bus, ...): one line, capture and log kept
             message = _strip_exc_name(" ".join(str(capture.facts.error).split()))

@@ -133,6 +133,9 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions,
     arrived is compared, the rest counts as missing) and takes the status ``timeout`` (the design's
     fault, as a hung design is the usual cause) or ``error`` (a crash is the tool's), with that first.
     """
+    # the coverage (measured while the simulator ran) first: its model runs and the scoring's frames are never
+    # in memory at once (measured on 10 frames of 1920x1080: 916 MiB peak with both, 735 MiB without)
+    coverage, warnings = stimulus.result()
     verdict = score(prep.expected, capture, max_listed=options.max_listed, spec=prep.spec, images=list(prep.frames),
                     keep_passing=options.pictures == "all", **case.score_settings())
     stop = _sim_stop(capture, options.timeout_s)
@@ -141,7 +144,6 @@ def _judge(case: Case, prep: _Prepared, capture: Capture, options: RunOptions,
         verdict = replace(verdict, status=status, passed=False, findings=[stop, *verdict.findings])
     by_mutant = mutant_diagnosis(verdict, prep.spec, prep.frames)
     verdict = named_by_mutant(verdict, by_mutant)
-    coverage, warnings = stimulus.result()
     warnings = [*verdict.warnings, *warnings]
     waves: dict[str, Any] | None = None
     wanted = options.waves == "all" or (options.waves == "failing" and verdict.status in ("fail", "no_output"))

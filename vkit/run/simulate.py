@@ -20,6 +20,7 @@ from vkit.sim.fast.capture_file import read_capture
 from vkit.sim.fast.stimulus import fast_run_dir
 from vkit.sim.fast.wire import capture_file_name
 from vkit.video.capture import Capture, RunFacts, lines_file_for, read_lines_file
+from vkit.video.stored import open_capture
 
 __all__ = ["TEST_MODULE", "GUARD_STATUS", "WaveDump", "simulate", "simulate_capture"]
 
@@ -131,10 +132,11 @@ def simulate(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, tim
 def simulate_capture(case: Case, build_dir: Path, sim_dir: Path, frames: np.ndarray, timeout_s: float, *,
                      drive: str = "clock") -> Capture | None:
     """:func:`simulate`, returning the capture (None when none was written); a native run hands over the
-    capture it read instead of it being loaded back from the file it was saved to."""
+    capture it read instead of it being loaded back from the file it was saved to, a fast run's is opened
+    to be read a frame at a time (:func:`vkit.video.stored.open_capture`)."""
     capture_file, capture = _run(case, build_dir, sim_dir, frames, timeout_s, None, drive, TEST_MODULE, None)
-    if capture is None and capture_file.exists():
-        capture = Capture.load(capture_file)
+    if capture is None and capture_file.exists():  # read a frame at a time when saved plain (the fast path's)
+        capture = open_capture(capture_file) or Capture.load(capture_file)
     return capture
 
 

@@ -32,7 +32,7 @@ from vkit.sim.fast.build import HarnessBuild, define_args
 from vkit.sim.fast.capture_file import read_capture
 from vkit.sim.fast.stimulus import StimulusFiles, fast_run_dir, prepare_fast_run, streamed_stimulus
 from vkit.sim.fast.vlruntime import make_with_shared_runtime
-from vkit.sim.fast.wire import CAPTURE_BIN_NAME, HARNESS, TOPLEVEL
+from vkit.sim.fast.wire import CAPTURE_BIN_NAME, CAPTURE_SPILL_NAME, HARNESS, TOPLEVEL
 from vkit.sim.guard import GuardOutcome, run_guarded
 from vkit.sim.hdltext import render
 from vkit.sim.simulators import find, require, subprocess_env
@@ -339,12 +339,8 @@ def _run_reading(cmd: list[str], capture: Path, case: SimCase, stim: StimulusFil
     return outcome, box[0]
 
 
-SPILL_NAME = "capture.spill"
-"""The folder in a native run's folder where the capture reader keeps decoded samples until they are saved."""
-
-
 def _spill_dir(case: SimCase) -> Path:
-    return fast_run_dir(case) / SPILL_NAME
+    return fast_run_dir(case) / CAPTURE_SPILL_NAME
 
 
 def _partial(capture: Path, case: SimCase, stim: StimulusFiles) -> Capture:

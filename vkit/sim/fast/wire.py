@@ -29,6 +29,7 @@ from vkit.video.timing import ClockSchedule
 from vkit.video.words import StreamTransfers, input_levels
 
 __all__ = [
+    "CAPTURE_SPILL_NAME",
     "HARNESS",
     "TOPLEVEL",
     "MAX_IN_WIDTH",
@@ -82,6 +83,10 @@ CAPTURE_ROLES = ("", "out_de", "out_valid", "out_vsync", "out_hsync", "in_ready"
 
 CAPTURE_BIN_NAME = "capture.bin"
 """File name of the Verilog harness's capture inside a run folder (binary records)."""
+
+CAPTURE_SPILL_NAME = "capture.spill"
+"""Folder inside a run folder where the capture reader keeps decoded samples until the capture is saved
+(:class:`vkit.video.stored.CaptureSpill`)."""
 
 CAPTURE_TEXT_NAME = "capture.txt"
 """File name of the VHDL harness's capture inside a run folder (text lines)."""

@@ -26,7 +26,7 @@ from vkit.core.errors import ConfigError, VkitError
 from vkit.sim.case import CASE_ENV, SimCase, error_file_for
 from vkit.sim.fast.capture_file import read_capture
 from vkit.sim.fast.stimulus import StimulusFiles, fast_run_dir, prepare_fast_run, read_fast_run
-from vkit.sim.fast.wire import capture_file_name
+from vkit.sim.fast.wire import CAPTURE_SPILL_NAME, capture_file_name
 
 __all__ = ["run_fast_case"]
 
@@ -56,7 +56,7 @@ async def run_fast_case(dut: Any, case: SimCase) -> Capture:
         hit = await First(RisingEdge(dut.done), deadline)
         python_timeout = hit is deadline
     t1 = time.perf_counter()
-    cap = read_capture(cap_text, case, stim)
+    cap = read_capture(cap_text, case, stim, spill=fast_run_dir(case) / CAPTURE_SPILL_NAME)  # kept on disk
     t2 = time.perf_counter()
     if python_timeout:
         cap.facts.timed_out = True

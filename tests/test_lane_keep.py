@@ -134,15 +134,13 @@ def test_a_30_pixel_line_without_the_masks_is_refused_before_any_simulation(tmp_
     assert len(expand_matrix(load_config(_config(tmp_path)))) == 1
 
 
-def test_auto_drive_takes_the_native_harness_and_the_vhdl_harness_refuses_a_mask(tmp_path: Path) -> None:
+def test_auto_drive_takes_the_native_harness_and_callers_without_lanes_are_refused(tmp_path: Path) -> None:
     from vkit.run.builds import pick_drive
     from vkit.sim.fast.build import fast_build_plan
 
     case = expand_matrix(load_config(_config(tmp_path)))[0]
     assert pick_drive(case, "auto") == "native"
     roles = dict(case.design.ports)
-    with pytest.raises(ConfigError, match="the VHDL harness \\(GHDL\\) does not drive or read it yet; run it with drive = 'clock'"):
-        fast_build_plan("lidscan", [tmp_path / "lidscan.vhd"], "vhdl", None, None, "stream", roles, 32, 32, lanes=4)
     # a caller that cannot carry the mask (the exported testbench checks whole words) is refused too
     with pytest.raises(ConfigError, match="an exported testbench checks whole words"):
         fast_build_plan("lidscan", [tmp_path / "lidscan.v"], "verilog", None, None, "stream", roles, 32, 32)
@@ -218,3 +216,70 @@ seeds = [1]
         assert "rounded up to whole beats of 4: the last beat's per-lane valid mask (out_keep) marks 2" in c.diagnosis
 
 
+
+
+_SLICE = """
+[run]
+simulators = ["ghdl"]
+jobs = 2
+cache_dir = "{cache}"
+waves = "off"
+
+[designs.slice]
+top = "quad_keep_slice"
+sources = ["{source}"]
+family = "stream"
+pixel_format = "gray8"
+pixels_per_clock = 4
+reset_active_high = false
+parameters = {{ FORCE_KEEP_ALL = {force} }}
+
+[designs.slice.spec]
+name = "centre_tap"
+input = "gray8"
+filter = {{ kind = "custom", taps = [[0, 0, 0], [0, 1, 0], [0, 0, 0]] }}
+
+[designs.slice.ports]
+clock = "aclk"
+reset = "aresetn"
+in_valid = "s_axis_tvalid"
+in_ready = "s_axis_tready"
+in_data = "s_axis_tdata"
+in_sof = "s_axis_tuser"
+in_eol = "s_axis_tlast"
+out_valid = "m_axis_tvalid"
+out_ready = "m_axis_tready"
+out_data = "m_axis_tdata"
+out_sof = "m_axis_tuser"
+out_eol = "m_axis_tlast"
+{keeps}
+
+[stimulus]
+patterns = ["noise"]
+size = [30, 6]
+frames = 2
+gaps = [{{ probability = 0.2, max_length = 2 }}]
+backpressure = [{{ probability = 0.3, max_length = 3 }}]
+seeds = [1]
+"""
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("force", [False, True])
+def test_vhdl_harness_drives_and_reads_the_masks_on_ghdl(tmp_path: Path, build_cache_dir: Path, force: bool) -> None:
+    # A VHDL register slice (tests/hdl_fast/quad_keep_slice.vhd) behind the centre-tap filter: 30-pixel lines
+    # at 4 pixels a beat end in a beat of 2 (AXI4-Stream TKEEP 0b0011); drive = "auto" takes the VHDL harness.
+    simulator_available("ghdl")
+    cfg = tmp_path / "slice.toml"
+    source = Path(__file__).parent / "hdl_fast" / "quad_keep_slice.vhd"
+    cfg.write_text(_SLICE.format(cache=build_cache_dir.as_posix(), source=source.as_posix(),
+                                 force="true" if force else "false", keeps=_KEEPS))
+    result = run(load_config(cfg), jobs=1, progress=False, out_dir=tmp_path / "out")
+    [case] = result.cases
+    assert case.entry.get("drive") == "fast", case.entry.get("drive")
+    if not force:
+        assert case.status == "pass", case.diagnosis
+        return
+    # the seeded fault marks every lane of the last beat: 32 pixels a line instead of 30
+    assert case.status == "fail" and case.diagnosis_kind == "timing", case.diagnosis
+    assert "do not carry 30 pixels" in case.diagnosis and "line 0: 32" in case.diagnosis

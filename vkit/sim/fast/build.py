@@ -236,7 +236,7 @@ def fast_build_plan(
     params = dict(parameters or {})
     defs = dict(defines or {})
     roles = dict(getattr(signals, "roles", signals) or {})
-    _check_keeps(dut_top, roles, language, lanes)
+    _check_keeps(dut_top, roles, lanes)
     for src in srcs:
         if not src.is_file():
             raise ConfigError(f"fast path: design source {str(src)!r} does not exist; give the design's HDL files")
@@ -257,15 +257,14 @@ def fast_build_plan(
                         defines=defs, build_args=build_args, test_args=test_args, key=key)
 
 
-def _check_keeps(dut_top: str, roles: Mapping[str, str], language: str, lanes: int | None) -> None:
-    """Refuse a mapped per-lane valid mask where the harness cannot carry it: the VHDL harness, and callers
-    that give no lane count (the exported testbench, which checks whole words)."""
+def _check_keeps(dut_top: str, roles: Mapping[str, str], lanes: int | None) -> None:
+    """Refuse a mapped per-lane valid mask where the harness cannot carry it: one mask without the other, and
+    callers that give no lane count (the exported testbench, which checks whole words)."""
     keeps = [r for r in KEEP_ROLES if r in roles]
     if not keeps:
         return
-    if language == "vhdl" or lanes is None or set(keeps) != set(KEEP_ROLES):
-        why = ("the VHDL harness (GHDL) does not drive or read it yet" if language == "vhdl" else
-               "both in_keep and out_keep must be mapped" if set(keeps) != set(KEEP_ROLES) else
+    if lanes is None or set(keeps) != set(KEEP_ROLES):
+        why = ("both in_keep and out_keep must be mapped" if set(keeps) != set(KEEP_ROLES) else
                "an exported testbench checks whole words and does not read it yet")
         raise ConfigError(f"fast path: design {dut_top} maps the per-lane valid mask(s) {', '.join(keeps)}; {why}; "
                           "run it with drive = 'clock' (drive = 'auto' picks it)")

@@ -50,8 +50,8 @@ def verilog_testbench(case: SimCase, stim: StimulusFiles, out_width: int, n_expe
 def vhdl_testbench(case: SimCase, stim: StimulusFiles, out_width: int, n_expected: int) -> str:
     """The VHDL-2008 text of ``tb_vkit`` for ``case`` played from ``stim`` (``n_expected`` output words)."""
     ew = out_width + case.pixels_per_clock
-    return render("testbench.vhd.j2", hexw=4 * ((ew + 3) // 4), n_mem=max(1, n_expected),
-                  **_common(case, stim, out_width, n_expected))
+    return render("testbench.vhd.j2", hexw=4 * ((ew + 3) // 4), n_mem=max(1, n_expected), video=case.family == "video",
+                  ready_name=stim.ready.name if stim.ready is not None else "", **_common(case, stim, out_width, n_expected))
 
 
 def write_testbench(case: SimCase, out_dir: str | Path, stim: StimulusFiles, out_width: int, expected: np.ndarray,

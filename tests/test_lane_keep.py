@@ -174,6 +174,9 @@ def test_scaffold_maps_tkeep_ports_as_the_lane_masks_and_says_so(tmp_path: Path)
     assert design["ports"]["in_keep"] == "s_axis_tkeep" and design["ports"]["out_keep"] == "m_axis_tkeep"
     assert (design["family"], design["pixel_format"], design["pixels_per_clock"]) == ("stream", "gray8", 4)
     assert any("s_axis_tkeep (4 bits) is a per-lane valid mask" in n for n in result.notes), result.notes
+    # the stimulus has a line length that leaves a partly filled last beat, for 2, 3, 4 or 8 lanes alike
+    widths = [t["h_active"] for t in tomllib.loads(result.config.read_text())["stimulus"]["timings"]]
+    assert all(any(w % lanes for w in widths) for lanes in (2, 3, 4, 8)), widths
 
 
 @pytest.mark.sim

@@ -94,19 +94,7 @@ parameters = {{ LINE_MAX = 1024, LINES = 24 }}
 frame_parameters = {{ height = "LINES" }}
 
 [designs.lidscan.ports]
-clock = "aclk"
-reset = "aresetn"
-in_valid = "s_axis_tvalid"
-in_ready = "s_axis_tready"
-in_data = "s_axis_tdata"
-in_sof = "s_axis_tuser"
-in_eol = "s_axis_tlast"
-out_valid = "m_axis_tvalid"
-out_ready = "m_axis_tready"
-out_data = "m_axis_tdata"
-out_sof = "m_axis_tuser"
-out_eol = "m_axis_tlast"
-{keeps}
+{ports}{keeps}
 
 [stimulus]
 patterns = [{{ name = "conveyor", seeds = [1] }}]
@@ -116,13 +104,18 @@ backpressure = [{{ probability = 0.2, max_length = 3 }}]
 seeds = [1]
 """
 _KEEPS = 'in_keep = "s_axis_tkeep"\nout_keep = "m_axis_tkeep"'
+_AXIS_PORTS = "".join(f'{role} = "{port}"\n' for role, port in (
+    ("clock", "aclk"), ("reset", "aresetn"), ("in_valid", "s_axis_tvalid"), ("in_ready", "s_axis_tready"),
+    ("in_data", "s_axis_tdata"), ("in_sof", "s_axis_tuser"), ("in_eol", "s_axis_tlast"), ("out_valid", "m_axis_tvalid"),
+    ("out_ready", "m_axis_tready"), ("out_data", "m_axis_tdata"), ("out_sof", "m_axis_tuser"), ("out_eol", "m_axis_tlast")))
+"""The AXI4-Stream port names of the sample and of the VHDL register slice, as the config's ``ports`` lines."""
 
 
 def _config(tmp_path: Path, sim: str = "icarus", path: str = "auto", keeps: str = _KEEPS,
             cache: Path | None = None) -> Path:
     sources = json.dumps([(SAMPLE_RTL / s).as_posix() for s in _LIDSCAN])
     cfg = tmp_path / "lidscan.toml"
-    cfg.write_text(_CONFIG.format(sim=sim, path=path, sources=sources, keeps=keeps,
+    cfg.write_text(_CONFIG.format(sim=sim, path=path, sources=sources, ports=_AXIS_PORTS, keeps=keeps,
                                   cache=(cache or tmp_path / "cache").as_posix()))
     return cfg
 
@@ -243,19 +236,7 @@ input = "gray8"
 filter = {{ kind = "custom", taps = [[0, 0, 0], [0, 1, 0], [0, 0, 0]] }}
 
 [designs.slice.ports]
-clock = "aclk"
-reset = "aresetn"
-in_valid = "s_axis_tvalid"
-in_ready = "s_axis_tready"
-in_data = "s_axis_tdata"
-in_sof = "s_axis_tuser"
-in_eol = "s_axis_tlast"
-out_valid = "m_axis_tvalid"
-out_ready = "m_axis_tready"
-out_data = "m_axis_tdata"
-out_sof = "m_axis_tuser"
-out_eol = "m_axis_tlast"
-{keeps}
+{ports}{keeps}
 
 [stimulus]
 patterns = ["noise"]
@@ -276,7 +257,8 @@ def test_vhdl_harness_drives_and_reads_the_masks_on_ghdl(tmp_path: Path, build_c
     cfg = tmp_path / "slice.toml"
     source = Path(__file__).parent / "hdl_fast" / "quad_keep_slice.vhd"
     cfg.write_text(_SLICE.format(cache=build_cache_dir.as_posix(), source=source.as_posix(),
-                                 force="true" if force else "false", keeps=_KEEPS))
+                                 force="true" if force else "false", ports=_AXIS_PORTS,
+                                 keeps=_KEEPS))
     result = run(load_config(cfg), jobs=1, progress=False, out_dir=tmp_path / "out")
     [case] = result.cases
     assert case.entry.get("drive") == "fast", case.entry.get("drive")
@@ -312,7 +294,7 @@ def test_exported_testbench_checks_the_masks_and_replays(tmp_path: Path, sim: st
     if sim == "ghdl":
         source = Path(__file__).parent / "hdl_fast" / "quad_keep_slice.vhd"
         configs = {name: _SLICE.format(cache=(tmp_path / "cache").as_posix(), source=source.as_posix(), force=force,
-                                       keeps=_KEEPS) for name, force in (("good", "false"), ("bad", "true"))}
+                                       ports=_AXIS_PORTS, keeps=_KEEPS) for name, force in (("good", "false"), ("bad", "true"))}
     else:
         text = _config(tmp_path, sim=sim).read_text()  # the seeded bug is an `ifdef in the sample
         configs = {"good": text, "bad": text.replace(_KEEPS, _KEEPS + "\n\n[designs.lidscan.defines]\nLIDSCAN_TKEEP_ALL = 1")}

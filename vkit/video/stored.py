@@ -118,11 +118,17 @@ class StoredCapture(Capture):
         tmp.replace(path)
         self._stored = _npz_members(path)  # type: ignore[assignment]
         if self._spill is not None:
-            for name in _FIELDS:
-                (self._spill / f"{name}.raw").unlink(missing_ok=True)
-            self._spill.rmdir() if self._spill.is_dir() and not any(self._spill.iterdir()) else None
+            _remove_spill(self._spill)
             self._spill = None
         return path
+
+
+def _remove_spill(folder: Path) -> None:
+    """Remove a spill folder's files, and the folder when nothing else is in it."""
+    for name in _FIELDS:
+        (folder / f"{name}.raw").unlink(missing_ok=True)
+    if folder.is_dir() and not any(folder.iterdir()):
+        folder.rmdir()
 
 
 def _copy_member(src: _Stored, out: object) -> None:
@@ -222,7 +228,8 @@ class CaptureSpill:
         """Append one block of samples (frame numbers not below the last block's)."""
         for name, part in zip(_FIELDS, (values, clock, frame, line, column)):
             dtype = self._dtypes[name]
-            if part.size and name != "clock" and (int(part.max()) > np.iinfo(dtype).max or int(part.min()) < np.iinfo(dtype).min):
+            limits = np.iinfo(dtype)
+            if part.size and name != "clock" and not limits.min <= int(part.min()) <= int(part.max()) <= limits.max:
                 raise ConfigError(f"capture: a {name} of {int(part.max())} does not fit {dtype.name} on disk; "
                                   "split the run into shorter ones")
             np.ascontiguousarray(part, dtype).tofile(self._files[name])

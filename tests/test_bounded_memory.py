@@ -157,3 +157,25 @@ def test_coverage_of_a_frame_past_the_budget_is_measured_on_its_first_rows(monke
     monkeypatch.setattr(coverage, "COVERAGE_MAX_FRAME_PIXELS", 10**9)
     by_hand, _ = coverage.stimulus_coverage(spec, np.ascontiguousarray(frames[:, :10]), 0.5)
     assert by_hand["rows_used"] is None and {**figures, "rows_used": None} == by_hand
+
+
+@pytest.mark.parametrize("name", ["luma.perm_BGR", "gx.tap02", "window.row0_late"])
+def test_a_big_failing_run_is_diagnosed_on_a_part_and_names_the_same_mutant(monkeypatch, name):
+    # the reference is the spec mutant the "design" output was made with (and the unbounded diagnosis)
+    from vkit.model.exact import run_plan
+    from vkit.model.mutants import spec_mutants
+    from vkit.model.pipeline import preset, run_model
+    from vkit.run import case as run_case
+
+    spec = preset("edge")
+    mutant = next(m for m in spec_mutants(spec) if m.name == name)
+    frames = np.random.default_rng(8).integers(0, 256, (3, 24, 32, 3)).astype(np.uint8)
+    results = [run_model(spec, f) for f in frames]
+    verdict = score(results, pack_capture([run_plan(mutant.plan, f, keep_stages=False).output for f in frames]))
+    assert verdict.status == "fail"
+    whole = run_case.mutant_diagnosis(verdict, spec, frames)
+    monkeypatch.setattr(run_case, "DIAGNOSIS_MAX_PIXELS", 32 * 12)  # less than one frame: its first 12 rows
+    assert run_case._diagnosis_part(list(verdict.frames), (24, 32))[1] == 12
+    part = run_case.mutant_diagnosis(verdict, spec, frames)
+    assert whole is not None and part is not None and whole.best is not None and part.best is not None
+    assert part.best.name == whole.best.name == name and part.best.exact

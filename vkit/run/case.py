@@ -39,7 +39,7 @@ from vkit.sim.buildcache import BuildCache, BuildOutcome
 from vkit.sim.guard import GuardOutcome
 from vkit.video.capture import Capture, RunFacts
 
-__all__ = ["run_one_case", "rerun_command", "mutant_diagnosis", "named_by_mutant"]
+__all__ = ["run_one_case", "rerun_command", "mutant_diagnosis", "named_by_mutant", "DIAGNOSIS_MAX_PIXELS"]
 
 _KEPT_FILES = (("case_json", "case.json"), ("frames_npy", "frames.npy"), ("capture", "capture.npz"),
                ("capture_error", "capture.error.txt"), ("sim_log", "sim.log"))
@@ -164,10 +164,31 @@ _EXACT_BEATS = (*_GUESSES, "stall")
 repeated or skipped is then what a line buffer read one address off gives, not a handshake fault."""
 
 
+DIAGNOSIS_MAX_PIXELS = 1 << 20
+"""Output pixels the diagnosis by mutants runs every mutant on: it keeps every mutant's output at once (about
+70 of them, 8 bytes a pixel: about 0.6 GB at this bound). A failing run with more is diagnosed on its first
+frames that fit, a frame bigger than that alone on its first rows (measured: ten failing 1920x1080 frames
+took 13.3 GB of memory without the bound)."""
+
+_CUT_ROWS_UNCHECKED = 2
+"""Rows at the bottom of a cut frame left unchecked: the model sees the cut as the frame's last row and pads
+past it, so the 3x3 window's outputs there differ from the whole frame's (one row; one more for safety)."""
+
+
+def _diagnosis_part(frames: list[Any], shape: tuple[int, ...]) -> tuple[list[Any], int]:
+    """The frames and rows of each the diagnosis by mutants runs on (:data:`DIAGNOSIS_MAX_PIXELS`)."""
+    height, width = int(shape[0]), int(shape[1])
+    count = max(1, min(len(frames), DIAGNOSIS_MAX_PIXELS // max(1, height * width)))
+    rows = height if height * width <= DIAGNOSIS_MAX_PIXELS else max(_CUT_ROWS_UNCHECKED + 3,
+                                                                       DIAGNOSIS_MAX_PIXELS // max(1, width))
+    return frames[:count], min(rows, height)
+
+
 def mutant_diagnosis(verdict: Verdict, spec: PipelineSpec, images: Any) -> MutantDiagnosis | None:
     """For a failing case with wrong pixel values: the spec mutant that reproduces the design's output.
 
     ``images`` gives each frame's input image by frame number (an ``(N, H, W[, 3])`` array, or a dict).
+    Big runs are diagnosed on a part of them (:data:`DIAGNOSIS_MAX_PIXELS`).
     """
     frames = [f for f in verdict.frames if f is not None]
     if verdict.status != "fail" or not verdict.value_mismatches or not frames:
@@ -176,10 +197,13 @@ def mutant_diagnosis(verdict: Verdict, spec: PipelineSpec, images: Any) -> Mutan
     known = images.keys() if isinstance(images, dict) else range(len(images))
     if len(shapes) != 1 or any(f.index not in known for f in frames):
         return None
-    inputs = np.stack([images[f.index] for f in frames])
-    checked = np.stack([f.valid & f.present & ~f.unknown for f in frames])
-    return diagnose_with_pairs(spec, inputs, np.stack([f.expected for f in frames]),
-                               np.stack([f.actual for f in frames]), checked)
+    frames, rows = _diagnosis_part(frames, next(iter(shapes)))
+    inputs = np.stack([images[f.index][:rows] for f in frames])
+    checked = np.stack([(f.valid & f.present & ~f.unknown)[:rows] for f in frames])
+    if rows < next(iter(shapes))[0]:
+        checked[:, rows - _CUT_ROWS_UNCHECKED:] = False
+    return diagnose_with_pairs(spec, inputs, np.stack([f.expected[:rows] for f in frames]),
+                               np.stack([f.actual[:rows] for f in frames]), checked)
 
 
 def named_by_mutant(verdict: Verdict, found: MutantDiagnosis | None) -> Verdict:

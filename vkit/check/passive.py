@@ -19,7 +19,7 @@ from vkit.check.results import Finding, Verdict
 from vkit.check.scoreboard import score
 from vkit.core.errors import ConfigError
 from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
-from vkit.video.bus import BusLayout, unpack_capture
+from vkit.video.bus import BusLayout
 from vkit.video.capture import MAX_EVENTS, Capture, RunFacts
 from vkit.video.observe import FramePixels, FrameRebuilder, Levels
 from vkit.video.timing import VideoTiming
@@ -364,9 +364,8 @@ class PassiveScoreboard:
         facts = self._facts(frame, out)
         self._last_shape = frame.shape
         empty = FramePixels(0, *(np.zeros(0, np.int64) for _ in range(4)), closed=True, line_ended=True)
-        capture = (out or empty).capture(facts)
-        if self.bus.lanes > 1 and self.options.out_data_bits:
-            capture = unpack_capture(capture, self.bus, self.options.out_data_bits)
+        bits = self.options.out_data_bits
+        capture = (out or empty).pixels(self.bus, bits, facts) if bits else (out or empty).capture(facts)
         o = self.options
         verdict = score([expected], capture, tolerance_lsb=o.tolerance_lsb, align=o.align, max_listed=o.max_listed,
                         spec=self.spec, images=[image])

@@ -65,10 +65,6 @@ def side_roles(design: DesignConfig) -> dict[str, dict[str, str]]:
         ConfigError: a role the passive scoreboard needs is not mapped (out_vsync for video).
     """
     required, optional = SIDE_ROLES[design.family]
-    masks = [r for r in ("in_keep", "out_keep") if design.ports.get(r)]
-    if masks:
-        raise ConfigError(f"design {design.name}: {' and '.join(masks)} (per-lane valid masks) are not read by the "
-                          "passive scoreboard yet; score this design with a driven run (vkit run)")
     sides: dict[str, dict[str, str]] = {"in": {}, "out": {}}
     for side in sides:
         for role in required + optional:

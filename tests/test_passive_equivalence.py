@@ -12,6 +12,8 @@ manifests (our own demo faults).
 
 from __future__ import annotations
 
+import json
+import shutil
 import sys
 from pathlib import Path
 
@@ -177,6 +179,18 @@ LIVE_LABELS = ("conveyor-", "box30-", "box64-")
 """The stimulus labels the live subset runs (the conveyor scene; the frame sizes a seeded bug needs)."""
 
 
+def _live(case: Case, config, cache: BuildCache, folder: Path) -> dict:
+    """The verdict of a passive board attached inside the simulation vkit's per-clock source drives."""
+    folder.mkdir(parents=True)
+    (folder / "watch_tb.py").write_text(_WATCH)  # the simulator's working folder is on its module path
+    env = {"WATCH_CONFIG": str(config.path), "WATCH_DESIGN": case.design.name, "WATCH_OUT": str(folder / "passive")}
+    simulate(case, build_design(case, cache).build_dir, folder, make_frames(case), 300.0, test_module="watch_tb",
+             extra_env=env)
+    report = folder / "passive" / "report.json"
+    assert report.is_file(), (folder / "sim.log").read_text()[-3000:]
+    return json.loads(report.read_text())["cases"][0]["verdict"]
+
+
 @pytest.mark.parametrize("sim,manifest,design,prefixes", LIVE, ids=[f"{s}-{d}" for s, _, d, _ in LIVE])
 def test_live_passive_verdict_equals_the_driven_run(tmp_path, build_cache_dir, sim, manifest, design, prefixes):
     simulator_available(sim)
@@ -188,17 +202,66 @@ def test_live_passive_verdict_equals_the_driven_run(tmp_path, build_cache_dir, s
     differ = []
     for case in cases:
         driven = run_one_case(case, options).entry["verdict"]
-        folder = tmp_path / "live" / str(case.index)
-        folder.mkdir(parents=True)
-        (folder / "watch_tb.py").write_text(_WATCH)  # the simulator's working folder is on its module path
-        env = {"WATCH_CONFIG": str(config.path), "WATCH_DESIGN": case.design.name,
-               "WATCH_OUT": str(folder / "passive")}
-        simulate(case, build_design(case, cache).build_dir, folder, make_frames(case), 300.0, test_module="watch_tb",
-                 extra_env=env)
-        report = folder / "passive" / "report.json"
-        assert report.is_file(), (folder / "sim.log").read_text()[-3000:]
-        live = __import__("json").loads(report.read_text())["cases"][0]["verdict"]
+        live = _live(case, config, cache, tmp_path / "live" / str(case.index))
         assert live["frames_checked"] == case.frames
         if (live["status"], _kind(live)) != (driven["status"], _kind(driven)):
             differ.append(f"{case.id}: driven {(driven['status'], _kind(driven))}, live {(live['status'], _kind(live))}")
     assert not differ, "\n".join(differ)
+
+
+# -- a declared latency: checked passively as the driven run checks it ------------------------------------------
+
+LATENCY = [("smooth_ce", "ghdl", "latency_samples = 43", 43), ("nsync_sharpen", "icarus", "latency_clocks = 43", 43)]
+"""(design, simulator, the manifest line declaring its latency, the latency it has): a design behind a clock enable
+(one in two clocks: the latency is declared in input samples) and one declaring it in clocks, both steady (no
+pixel-valid port, so no stalls)."""
+
+_LATENCY_CONFIG = """\
+[run]
+simulators = ["{sim}"]
+waves = "off"
+
+[[import]]
+manifest = "{manifest}"
+use = ["{design}"]
+bugs = false
+
+[stimulus]
+patterns = [{{ name = "conveyor", seeds = [1] }}]
+timings = ["tiny32x24"]
+frames = 2
+enables = [{{ every = 2 }}]
+"""
+"""One design, no seeded bug, the conveyor scene; the enable one in two clocks (smooth_ce names its own enables)."""
+
+
+@pytest.mark.parametrize("design,sim,line,true", LATENCY, ids=[d for d, *_ in LATENCY])
+@pytest.mark.parametrize("off", [0, 2], ids=["declared_right", "declared_wrong"])
+def test_a_declared_latency_gets_the_driven_verdict_offline_and_live(tmp_path, build_cache_dir, design, sim, line,
+                                                                     true, off):
+    """The manifest's declared latency (sample_rtl/foreign/designs.toml; measured there on a driven run) is taken
+    as is, then 2 too high: the driven run passes, then fails on the latency; offline and live must do the same."""
+    simulator_available(sim)
+    manifests = shutil.copytree(FOREIGN.parent, tmp_path / "foreign")
+    key = line.split(" = ")[0]
+    text = (manifests / "designs.toml").read_text()
+    assert text.count(line) == 1
+    (manifests / "designs.toml").write_text(text.replace(line, f"{key} = {true + off}"))
+    path = tmp_path / "latency.toml"
+    path.write_text(_LATENCY_CONFIG.format(sim=sim, manifest=manifests / "designs.toml", design=design))
+    config = load_config(path)
+    cache = BuildCache(build_cache_dir)
+    unit = "samples" if key == "latency_samples" else "clocks"
+    want = f"latency: declared {true + off} {unit}, measured {true} {unit}"
+    for case in expand_matrix(config):  # smooth_ce: its own enables, one in two clocks and a seeded random one
+        driven = run_one_case(case, RunOptions.make(tmp_path / "driven", cache_dir=build_cache_dir, waves="off")
+                              ).entry["verdict"]
+        wave = _dump(case, cache, tmp_path / "wave" / str(case.index))
+        offline = score_dump(config, wave, design=design, scope=case.design.top,
+                             out_dir=tmp_path / "offline" / str(case.index))
+        live = _live(case, config, cache, tmp_path / "live" / str(case.index))
+        assert driven["status"] == ("pass" if off == 0 else "fail"), (case.id, driven["timing_errors"])
+        assert any(e.startswith(want) for e in driven["timing_errors"]) is bool(off), driven["timing_errors"]
+        for name, got in (("offline", offline.verdict.to_dict()), ("live", live)):
+            assert (got["status"], _kind(got)) == (driven["status"], _kind(driven)), (case.id, name, got["timing_errors"])
+            assert any(e.startswith(want) for e in got["timing_errors"]) is bool(off), (case.id, name, got["timing_errors"])

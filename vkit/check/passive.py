@@ -395,6 +395,7 @@ class PassiveScoreboard:
             image = frame.image(self.bus)
         except ConfigError as exc:
             self.problems.append(str(exc))
+            self._enables = None  # no first frame to measure: the enable is not kept on
             return None
         expected = run_model(self.spec, image)
         facts = self._facts(frame, out)

@@ -62,6 +62,33 @@ def test_exported_verilog_testbench_passes_and_reads_back(sim: str, tmp_path: Pa
     assert cap.facts.output_hsync_per_frame == cap.facts.input_hsync_per_frame
 
 
+_STREAM_SIGNALS = {"clock": "clk_i", "reset": "rst_i", "in_valid": "din_vld", "in_ready": "din_rdy", "in_data": "din_pix",
+                   "in_sof": "din_first", "in_eol": "din_last", "out_valid": "dout_vld", "out_ready": "dout_rdy",
+                   "out_data": "dout_pix", "out_sof": "dout_first", "out_eol": "dout_last"}
+
+
+@pytest.mark.sim
+def test_exported_vhdl_stream_testbench_plays_gaps_and_backpressure_on_ghdl(tmp_path: Path) -> None:
+    # The VHDL stream harness takes its own generics (ready pattern, expected pixel count): the testbench maps them.
+    frames = np.random.default_rng(5).integers(0, 256, (2, 24, 32), dtype=np.uint8)
+    np.save(tmp_path / "frames.npy", frames)
+    case = SimCase("stream", dict(_STREAM_SIGNALS), str(tmp_path / "frames.npy"), str(tmp_path / "cap.npz"), 32, 24,
+                   stream_gaps={"probability": 0.2, "max_length": 3, "seed": 2},
+                   backpressure={"probability": 0.3, "max_length": 4, "seed": 3})
+    src = [HDL / "fast_stream_pass.vhd"]
+    res = export_case(case, tmp_path / "exp", "fast_stream_pass_vhd", src, frames)
+    log = _run("ghdl", res.commands["ghdl"], res.out_dir)
+    assert _counts(log) == (0, frames.size) and "vkit: PASS" in log
+    views = read_capture(res.capture, case).frames(24, 32)
+    for view, want in zip(views, frames):
+        np.testing.assert_array_equal(view.pixels, want)
+    wrong = frames.copy()
+    wrong[1, 23, 31] ^= 0x80
+    res = export_case(case, tmp_path / "exp2", "fast_stream_pass_vhd", src, wrong)
+    log = _run("ghdl", res.commands["ghdl"], res.out_dir)
+    assert _counts(log) == (1, frames.size) and "vkit: FAIL" in log
+
+
 @pytest.mark.sim
 def test_exported_testbench_counts_corrupted_expected_pixels(tmp_path: Path) -> None:
     case = _case(tmp_path)

@@ -94,19 +94,7 @@ parameters = {{ LINE_MAX = 1024, LINES = 24 }}
 frame_parameters = {{ height = "LINES" }}
 
 [designs.lidscan.ports]
-clock = "aclk"
-reset = "aresetn"
-in_valid = "s_axis_tvalid"
-in_ready = "s_axis_tready"
-in_data = "s_axis_tdata"
-in_sof = "s_axis_tuser"
-in_eol = "s_axis_tlast"
-out_valid = "m_axis_tvalid"
-out_ready = "m_axis_tready"
-out_data = "m_axis_tdata"
-out_sof = "m_axis_tuser"
-out_eol = "m_axis_tlast"
-{keeps}
+{ports}{keeps}
 
 [stimulus]
 patterns = [{{ name = "conveyor", seeds = [1] }}]
@@ -116,13 +104,18 @@ backpressure = [{{ probability = 0.2, max_length = 3 }}]
 seeds = [1]
 """
 _KEEPS = 'in_keep = "s_axis_tkeep"\nout_keep = "m_axis_tkeep"'
+_AXIS_PORTS = "".join(f'{role} = "{port}"\n' for role, port in (
+    ("clock", "aclk"), ("reset", "aresetn"), ("in_valid", "s_axis_tvalid"), ("in_ready", "s_axis_tready"),
+    ("in_data", "s_axis_tdata"), ("in_sof", "s_axis_tuser"), ("in_eol", "s_axis_tlast"), ("out_valid", "m_axis_tvalid"),
+    ("out_ready", "m_axis_tready"), ("out_data", "m_axis_tdata"), ("out_sof", "m_axis_tuser"), ("out_eol", "m_axis_tlast")))
+"""The AXI4-Stream port names of the sample and of the VHDL register slice, as the config's ``ports`` lines."""
 
 
 def _config(tmp_path: Path, sim: str = "icarus", path: str = "auto", keeps: str = _KEEPS,
             cache: Path | None = None) -> Path:
     sources = json.dumps([(SAMPLE_RTL / s).as_posix() for s in _LIDSCAN])
     cfg = tmp_path / "lidscan.toml"
-    cfg.write_text(_CONFIG.format(sim=sim, path=path, sources=sources, keeps=keeps,
+    cfg.write_text(_CONFIG.format(sim=sim, path=path, sources=sources, ports=_AXIS_PORTS, keeps=keeps,
                                   cache=(cache or tmp_path / "cache").as_posix()))
     return cfg
 
@@ -134,17 +127,15 @@ def test_a_30_pixel_line_without_the_masks_is_refused_before_any_simulation(tmp_
     assert len(expand_matrix(load_config(_config(tmp_path)))) == 1
 
 
-def test_auto_drive_takes_the_native_harness_and_the_vhdl_harness_refuses_a_mask(tmp_path: Path) -> None:
+def test_auto_drive_takes_the_native_harness_and_callers_without_lanes_are_refused(tmp_path: Path) -> None:
     from vkit.run.builds import pick_drive
     from vkit.sim.fast.build import fast_build_plan
 
     case = expand_matrix(load_config(_config(tmp_path)))[0]
     assert pick_drive(case, "auto") == "native"
     roles = dict(case.design.ports)
-    with pytest.raises(ConfigError, match="the VHDL harness \\(GHDL\\) does not drive or read it yet; run it with drive = 'clock'"):
-        fast_build_plan("lidscan", [tmp_path / "lidscan.vhd"], "vhdl", None, None, "stream", roles, 32, 32, lanes=4)
-    # a caller that cannot carry the mask (the exported testbench checks whole words) is refused too
-    with pytest.raises(ConfigError, match="an exported testbench checks whole words"):
+    # a caller that gives no lane count cannot size the masks: refused
+    with pytest.raises(ConfigError, match="the harness needs the lane count"):
         fast_build_plan("lidscan", [tmp_path / "lidscan.v"], "verilog", None, None, "stream", roles, 32, 32)
     del roles["out_keep"]
     with pytest.raises(ConfigError, match="both in_keep and out_keep must be mapped"):
@@ -176,6 +167,9 @@ def test_scaffold_maps_tkeep_ports_as_the_lane_masks_and_says_so(tmp_path: Path)
     assert design["ports"]["in_keep"] == "s_axis_tkeep" and design["ports"]["out_keep"] == "m_axis_tkeep"
     assert (design["family"], design["pixel_format"], design["pixels_per_clock"]) == ("stream", "gray8", 4)
     assert any("s_axis_tkeep (4 bits) is a per-lane valid mask" in n for n in result.notes), result.notes
+    # the stimulus has a line length that leaves a partly filled last beat, for 2, 3, 4 or 8 lanes alike
+    widths = [t["h_active"] for t in tomllib.loads(result.config.read_text())["stimulus"]["timings"]]
+    assert all(any(w % lanes for w in widths) for lanes in (2, 3, 4, 8)), widths
 
 
 @pytest.mark.sim
@@ -218,3 +212,104 @@ seeds = [1]
         assert "rounded up to whole beats of 4: the last beat's per-lane valid mask (out_keep) marks 2" in c.diagnosis
 
 
+
+
+_SLICE = """
+[run]
+simulators = ["ghdl"]
+jobs = 2
+cache_dir = "{cache}"
+waves = "off"
+
+[designs.slice]
+top = "quad_keep_slice"
+sources = ["{source}"]
+family = "stream"
+pixel_format = "gray8"
+pixels_per_clock = 4
+reset_active_high = false
+parameters = {{ FORCE_KEEP_ALL = {force} }}
+
+[designs.slice.spec]
+name = "centre_tap"
+input = "gray8"
+filter = {{ kind = "custom", taps = [[0, 0, 0], [0, 1, 0], [0, 0, 0]] }}
+
+[designs.slice.ports]
+{ports}{keeps}
+
+[stimulus]
+patterns = ["noise"]
+size = [30, 6]
+frames = 2
+gaps = [{{ probability = 0.2, max_length = 2 }}]
+backpressure = [{{ probability = 0.3, max_length = 3 }}]
+seeds = [1]
+"""
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("force", [False, True])
+def test_vhdl_harness_drives_and_reads_the_masks_on_ghdl(tmp_path: Path, build_cache_dir: Path, force: bool) -> None:
+    # A VHDL register slice (tests/hdl_fast/quad_keep_slice.vhd) behind the centre-tap filter: 30-pixel lines
+    # at 4 pixels a beat end in a beat of 2 (AXI4-Stream TKEEP 0b0011); drive = "auto" takes the VHDL harness.
+    simulator_available("ghdl")
+    cfg = tmp_path / "slice.toml"
+    source = Path(__file__).parent / "hdl_fast" / "quad_keep_slice.vhd"
+    cfg.write_text(_SLICE.format(cache=build_cache_dir.as_posix(), source=source.as_posix(),
+                                 force="true" if force else "false", ports=_AXIS_PORTS,
+                                 keeps=_KEEPS))
+    result = run(load_config(cfg), jobs=1, progress=False, out_dir=tmp_path / "out")
+    [case] = result.cases
+    assert case.entry.get("drive") == "fast", case.entry.get("drive")
+    if not force:
+        assert case.status == "pass", case.diagnosis
+        return
+    # the seeded fault marks every lane of the last beat: 32 pixels a line instead of 30
+    assert case.status == "fail" and case.diagnosis_kind == "timing", case.diagnosis
+    assert "do not carry 30 pixels" in case.diagnosis and "line 0: 32" in case.diagnosis
+
+
+def _run_exported(sim: str, commands: list[list[str]], cwd: Path) -> str:
+    import subprocess
+
+    from vkit.sim.simulators import find, subprocess_env
+
+    log = ""
+    for cmd in commands:
+        res = subprocess.run(cmd, cwd=cwd, env=subprocess_env(find(sim)), capture_output=True, text=True, timeout=600)
+        log += res.stdout + res.stderr
+        assert res.returncode == 0, log[-2000:]
+    return log
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("sim", ["icarus", "verilator", "ghdl"])
+def test_exported_testbench_checks_the_masks_and_replays(tmp_path: Path, sim: str) -> None:
+    # vkit export of a TKEEP design: the plain-HDL testbench compares each word's per-lane valid mask with the
+    # expected one (AXI4-Stream TKEEP 0b0011 on the last beat of a 30-pixel line) and only the kept lanes as pixels.
+    from vkit.run.vectors import export_vectors, find_case, replay
+
+    simulator_available(sim)
+    if sim == "ghdl":
+        source = Path(__file__).parent / "hdl_fast" / "quad_keep_slice.vhd"
+        configs = {name: _SLICE.format(cache=(tmp_path / "cache").as_posix(), source=source.as_posix(), force=force,
+                                       ports=_AXIS_PORTS, keeps=_KEEPS) for name, force in (("good", "false"), ("bad", "true"))}
+    else:
+        text = _config(tmp_path, sim=sim).read_text()  # the seeded bug is an `ifdef in the sample
+        configs = {"good": text, "bad": text.replace(_KEEPS, _KEEPS + "\n\n[designs.lidscan.defines]\nLIDSCAN_TKEEP_ALL = 1")}
+    for name, text in configs.items():
+        cfg = tmp_path / f"{name}.toml"
+        cfg.write_text(text)
+        case = expand_matrix(load_config(cfg))[0]
+        done = export_vectors(find_case(load_config(cfg), case.id), tmp_path / name)
+        log = _run_exported(sim, done.commands[sim], done.out_dir)
+        verdict, _ = replay(done.out_dir)
+        if name == "good":
+            assert "vkit: 0 mismatches" in log and "vkit: PASS" in log, log[-1500:]
+            assert verdict.passed, verdict.findings
+        else:
+            # all lanes marked on every last beat: the testbench names the mask, the replay the line lengths
+            assert "per-lane valid mask got 1111, expected 0011" in log and "vkit: FAIL" in log, log[-1500:]
+            assert not verdict.passed and verdict.diagnosis.kind == "timing"
+            assert "do not carry 30 pixels" in verdict.diagnosis.message, verdict.diagnosis.message

@@ -10,6 +10,7 @@ import pytest
 
 from conftest import SAMPLE_RTL, simulator_available
 from vkit.core.errors import ConfigError
+from vkit.model.spec import PipelineSpec
 from vkit.model.ycbcr import YCbCrCoding, rgb_to_ycbcr, rgb_to_ycbcr_float, ycbcr_to_rgb, ycbcr_to_rgb_float
 
 
@@ -84,9 +85,7 @@ def test_out_of_range_samples_are_refused() -> None:
 
 # ------------------------------------------------------------------ Y'CbCr inputs of a pipeline spec
 
-def _ycc_spec(fmt: str, chroma: str, kind: str = "min") -> "PipelineSpec":
-    from vkit.model.spec import PipelineSpec
-
+def _ycc_spec(fmt: str, chroma: str, kind: str = "min") -> PipelineSpec:
     return PipelineSpec.from_dict({"name": "ycc", "input": fmt, "chroma": chroma, "filter": {"kind": kind},
                                    "output": {"bits": 8}})
 

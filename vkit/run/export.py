@@ -100,7 +100,7 @@ def export_case(
     out.mkdir(parents=True, exist_ok=True)
     srcs = [Path(s).resolve() for s in sources]
     build = harness_sources(case, out, dut_top, sources=srcs, language=language, in_width=in_width, out_width=out_width,
-                            parameters=parameters, defines=defines, carry_keep=False)
+                            parameters=parameters, defines=defines)
     stim = write_stimulus(case, out, build.spec.in_width, build.language)
     values, model_mask = _expected_arrays(expected)
     if values.ndim == 2:

@@ -687,14 +687,15 @@ _ENABLES = ("enables = [{ every = 2 }, { duty = 0.5, max_gap = 3 }]   # in_enabl
 
 
 def _stream_stimulus(guess: RoleGuess) -> str:
-    """The stream ``[stimulus]``; with per-lane valid masks a second frame, 2 pixels narrower, whose lines end in
-    a partly filled beat (at widths that fill every beat the masks are never read)."""
+    """The stream ``[stimulus]``; with per-lane valid masks a second frame, one pixel narrower, whose lines end
+    in a partly filled beat whatever the lanes (31 is a multiple of no lane count from 2 to 30; at widths that
+    fill every beat the masks are never read)."""
     if "in_keep" not in guess.roles:
         return _STREAM_STIMULUS
     line = ('timings = [{ name = "tiny32x24", h_active = 32, h_front_porch = 2, h_sync = 3, h_back_porch = 3, '
-            'v_active = 24, v_front_porch = 1, v_sync = 1, v_back_porch = 1 }, { name = "tiny30x24", h_active = 30, '
+            'v_active = 24, v_front_porch = 1, v_sync = 1, v_back_porch = 1 }, { name = "tiny31x24", h_active = 31, '
             'h_front_porch = 2, h_sync = 3, h_back_porch = 3, v_active = 24, v_front_porch = 1, v_sync = 1, '
-            'v_back_porch = 1 }]\n# two line lengths: at 30 pixels the last beat of a line is partly filled and '
+            'v_back_porch = 1 }]\n# two line lengths: at 31 pixels the last beat of a line is partly filled and '
             'in_keep / out_keep mark its lanes\n')
     return _STREAM_STIMULUS.replace("size = [32, 24]          # [width, height] pixels\n", line)
 

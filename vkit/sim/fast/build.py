@@ -236,7 +236,7 @@ def fast_build_plan(
     params = dict(parameters or {})
     defs = dict(defines or {})
     roles = dict(getattr(signals, "roles", signals) or {})
-    _check_keeps(dut_top, roles, language, lanes)
+    _check_keeps(dut_top, roles, lanes)
     for src in srcs:
         if not src.is_file():
             raise ConfigError(f"fast path: design source {str(src)!r} does not exist; give the design's HDL files")
@@ -257,16 +257,15 @@ def fast_build_plan(
                         defines=defs, build_args=build_args, test_args=test_args, key=key)
 
 
-def _check_keeps(dut_top: str, roles: Mapping[str, str], language: str, lanes: int | None) -> None:
-    """Refuse a mapped per-lane valid mask where the harness cannot carry it: the VHDL harness, and callers
-    that give no lane count (the exported testbench, which checks whole words)."""
+def _check_keeps(dut_top: str, roles: Mapping[str, str], lanes: int | None) -> None:
+    """Refuse a mapped per-lane valid mask where the harness cannot carry it: one mask without the other, or
+    a caller that gives no lane count (the mask's width)."""
     keeps = [r for r in KEEP_ROLES if r in roles]
     if not keeps:
         return
-    if language == "vhdl" or lanes is None or set(keeps) != set(KEEP_ROLES):
-        why = ("the VHDL harness (GHDL) does not drive or read it yet" if language == "vhdl" else
-               "both in_keep and out_keep must be mapped" if set(keeps) != set(KEEP_ROLES) else
-               "an exported testbench checks whole words and does not read it yet")
+    if lanes is None or set(keeps) != set(KEEP_ROLES):
+        why = ("both in_keep and out_keep must be mapped" if set(keeps) != set(KEEP_ROLES) else
+               "the harness needs the lane count (pixels_per_clock), the width of the masks")
         raise ConfigError(f"fast path: design {dut_top} maps the per-lane valid mask(s) {', '.join(keeps)}; {why}; "
                           "run it with drive = 'clock' (drive = 'auto' picks it)")
 
@@ -282,19 +281,17 @@ def harness_sources(
     out_width: int | None = None,
     parameters: Mapping[str, Any] | None = None,
     defines: Mapping[str, Any] | None = None,
-    carry_keep: bool = True,
 ) -> HarnessBuild:
     """:func:`fast_build_plan` with the family, signals, reset polarity and pixel format taken from ``case``.
 
     Only the case's design-side fields are used, so every case of the same design gives the same build.
-    The other arguments are those of :func:`fast_build_plan`; ``carry_keep=False`` (a caller that checks
-    whole words, the exported testbench) refuses a mapped per-lane valid mask.
+    The other arguments are those of :func:`fast_build_plan`.
     """
     return fast_build_plan(
         dut_top, sources, language, parameters, defines, case.family, case.signals, in_width, out_width,
         out_dir=out_dir, reset_active_high=case.reset_active_high, pixel_format=case.pixel_format,
         out_active_high={r: case.active_high(r) for r in ("out_de", "out_valid", "out_enable")},
-        lanes=case.pixels_per_clock if carry_keep else None,
+        lanes=case.pixels_per_clock,
     )
 
 

@@ -120,7 +120,9 @@ def parse_capture_text(
                  capacity=int(values.size), value_bits=width if lanes is None else None)
     if width is not None:
         cap.facts.out_data_bits = width
-    return cap if lanes is None else spread_lanes(cap, lanes)
+    is_m = kind_a == ord("M")
+    masks = _hex_values(np.array(args, dtype="S")[is_m])[0] if is_m.any() else np.zeros(0, np.int64)
+    return _lanes_of(cap, values, lanes, masks, pos_p.size, bus, width)
 
 
 def parse_capture_binary(
@@ -159,11 +161,18 @@ def parse_capture_binary(
     cap.facts.out_data_bits = width
     kinds = words[:, 1] & 0xFF
     masks = words[kinds == ord("M"), 2].astype(np.int64)
+    return _lanes_of(cap, chunk.values, lanes, masks, int((kinds == ord("P")).sum()), bus, width)
+
+
+def _lanes_of(cap: Capture, values: np.ndarray, lanes: np.ndarray | None, masks: np.ndarray, words: int,
+              bus: BusLayout | None, width: int | None) -> Capture:
+    """``cap`` as one sample a pixel where its words were split into ``lanes`` already, or, with output lane
+    ``masks`` (one a word), keeping only the lanes each mask marks; else ``cap`` as it is (one sample a word)."""
     if masks.size and bus is not None and bus.lanes > 1:  # an output lane mask: keep the marked lanes only
-        if masks.size != int((kinds == ord("P")).sum()):
-            raise ConfigError(f"capture file: {masks.size} lane masks for {int((kinds == ord('P')).sum())} output "
-                              "words; rerun the case")
-        return spread_kept_lanes(cap, lanes if lanes is not None else split_lanes(chunk.values, bus, width), masks, bus)
+        if masks.size != words or width is None:
+            raise ConfigError(f"capture file: {masks.size} lane masks for {words} output words"
+                              f"{'' if width is not None else ' and no data width'}; rerun the case")
+        return spread_kept_lanes(cap, lanes if lanes is not None else split_lanes(values, bus, width), masks, bus)
     return cap if lanes is None else spread_lanes(cap, lanes)
 
 

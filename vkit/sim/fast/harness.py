@@ -164,13 +164,18 @@ def _event_writer(dw: int, ow: int) -> Callable[..., str]:
     return ev
 
 
+def _role_widths(spec: HarnessSpec) -> dict[str, int]:
+    """Bits of the harness's multi-bit signals per role (every other role is one bit)."""
+    return {"in_data": spec.in_width, "out_data": spec.out_width, "in_keep": spec.lanes, "out_keep": spec.lanes}
+
+
 def _verilog_ports(spec: HarnessSpec) -> tuple[list[str], list[dict[str, Any]], list[tuple[str, str]]]:
     """Instance connections, the harness's signals per role, and the tie-offs of unmapped video outputs."""
     r = spec.roles
     ins, outs = (_VIDEO_IN, _VIDEO_OUT) if spec.video else (_STREAM_IN, _STREAM_OUT)
     conns = [f".{r['clock']}(clk)"] + ([f".{r['reset']}(dut_rst)"] if "reset" in r else [])
     conns += [f".{r[role]}(d_{role})" for role in ins + outs if role in r]
-    width = {"in_data": spec.in_width, "out_data": spec.out_width, "in_keep": spec.lanes, "out_keep": spec.lanes}
+    width = _role_widths(spec)
     decl = []
     for role in ins + outs:
         if role in ("in_keep", "out_keep") and role not in r:
@@ -261,10 +266,10 @@ def _vhdl_ports(spec: HarnessSpec) -> tuple[list[str], list[tuple[str, str]], li
     """Port map entries, the harness's signals per role with their types, and tie-offs of unmapped outputs."""
     r = spec.roles
     conns = [f"{r['clock']} => clk"] + ([f"{r['reset']} => dut_rst"] if "reset" in r else [])
-    width = {"in_data": spec.in_width, "out_data": spec.out_width}
+    width = _role_widths(spec)
     sigs = []
     for role in (_VIDEO_IN + _VIDEO_OUT if spec.video else _STREAM_IN + _STREAM_OUT):
-        if role in ("in_keep", "out_keep"):  # refused for VHDL (vkit.sim.fast.build); never declared
+        if role in ("in_keep", "out_keep") and role not in r:  # declared only where the design has the mask
             continue
         sigs.append((role, f"std_logic_vector({width[role] - 1} downto 0)" if role in width else "std_logic"))
         if role in r:
@@ -301,8 +306,10 @@ def vhdl_harness(spec: HarnessSpec) -> str:
                   sigs=sigs, conns=conns, gmap=gmap, reset_active_high=spec.reset_active_high, bit=_word_bits(spec),
                   version=CAPTURE_VERSION)
     if not spec.video:
-        return render("harness_stream.vhd.j2", sw=8 * word_bytes(stream_word_bits(iw)), ready_words=READY_WORDS,
-                      stream_tail=STREAM_TAIL_CLOCKS, **common)
+        return render("harness_stream.vhd.j2", sw=8 * word_bytes(stream_word_bits(iw, spec.keep_bits)),
+                      ready_words=READY_WORDS, stream_tail=STREAM_TAIL_CLOCKS, keep_in="in_keep" in spec.roles,
+                      keep_out="out_keep" in spec.roles, lanes=spec.lanes, kh=4 * ((spec.lanes + 3) // 4),
+                      **common)
     sw = video_word_bits(iw)
     return render("harness.vhd.j2", sw=sw, hexw=4 * ((sw + 3) // 4), ties=ties,
                   on={role: "'1'" if spec.out_level(role) else "'0'" for role in _OUT_LEVEL_ROLES}, **common)

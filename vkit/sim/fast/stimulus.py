@@ -403,35 +403,48 @@ def expected_words(expected: np.ndarray, mask: np.ndarray | None, out_width: int
 
 
 def expected_lane_fields(expected: np.ndarray, mask: np.ndarray | None, out_width: int,
-                         bus: BusLayout) -> list[tuple[np.ndarray, int]]:
+                         bus: BusLayout, keep: bool = False) -> list[tuple[np.ndarray, int]]:
     """Expected-output words of a bus carrying ``bus.lanes`` pixels a word, as bit fields (least significant
     first): ``{check[lanes-1:0], value[out_width-1:0]}`` per output word in output order, where field ``j``
     (bits ``j * f .. j * f + f - 1``, ``f = out_width // lanes``) holds the pixel the lane order puts there and
     check bit ``j`` says whether that pixel is checked.
+
+    ``keep=True`` (a design with per-lane valid masks): a line need not be a whole number of words; its last
+    word's empty lanes are unchecked, and ``keep[lanes-1:0]`` on top gives each word's expected mask
+    (:meth:`BusLayout.line_keeps`, bit ``j`` beside field ``j``).
     """
     lanes = bus.lanes
     if out_width % lanes:
         raise ConfigError(f"expected output: the {out_width}-bit output bus does not split into {lanes} equal "
                           "lanes; give an output bus of pixels_per_clock equal fields")
     e, m = _expected_frames(expected, mask, out_width // lanes)
-    if e.shape[-1] % lanes:
-        raise ConfigError(f"expected output: width {e.shape[-1]} is not a multiple of {lanes} pixels a clock")
+    width = e.shape[-1]
+    if width % lanes and not keep:
+        raise ConfigError(f"expected output: width {width} is not a multiple of {lanes} pixels a clock")
+    pad = [(0, 0), (0, 0), (0, bus.padded_width(width) - width)]
+    e, m = np.pad(e, pad), np.pad(m, pad)  # the empty lanes of a line's last word: zero and unchecked
     field = out_width // lanes
     groups = e.reshape(-1, lanes)
     checks = m.reshape(-1, lanes)
     # field j of the word holds the pixel whose lane shift is j * field
     order = [next(k for k in range(lanes) if bus.lane_shift(k, field) == j * field) for j in range(lanes)]
-    return [(groups[:, k], field) for k in order] + [(checks[:, k], 1) for k in order]
+    fields = [(groups[:, k], field) for k in order] + [(checks[:, k], 1) for k in order]
+    if keep:
+        fields.append((np.tile(bus.line_keeps(width), e.shape[0] * e.shape[1]), lanes))
+    return fields
 
 
 def write_expected(path: str | Path, expected: np.ndarray, mask: np.ndarray | None, out_width: int,
-                   bus: BusLayout | None = None) -> Path:
+                   bus: BusLayout | None = None, keep: bool = False) -> tuple[Path, int]:
     """Write the expected output as a ``$readmemh`` file: :func:`expected_words` (``out_width + 1`` bits a line),
-    or with several pixels a word :func:`expected_lane_fields` (``out_width + lanes`` bits a line)."""
+    or with several pixels a word :func:`expected_lane_fields` (``out_width + lanes`` bits a line, ``+ lanes``
+    more with ``keep``). Returns the file and its number of lines (output words)."""
     if bus is None or bus.lanes == 1:
-        return write_hex(path, expected_words(expected, mask, out_width), out_width + 1)
-    fields = expected_lane_fields(expected, mask, out_width, bus)
-    return write_words_hex(path, fields, digits=(out_width + bus.lanes + 3) // 4)
+        words = expected_words(expected, mask, out_width)
+        return write_hex(path, words, out_width + 1), int(words.size)
+    fields = expected_lane_fields(expected, mask, out_width, bus, keep)
+    bits = sum(b for _, b in fields)
+    return write_words_hex(path, fields, digits=(bits + 3) // 4), int(fields[0][0].size)
 
 
 def fast_run_dir(case: SimCase) -> Path:

@@ -5,7 +5,9 @@ The testbench (``tb_vkit.v`` or ``tb_vkit.vhd``, text in ``vkit/sim/templates/te
 per pixel, ``$readmemh`` format; check = 0 on unchecked border pixels) and prints
 ``vkit: N mismatches in M pixels`` and ``vkit: PASS`` or ``vkit: FAIL``. With N pixels a clock each
 line of ``expected.hex`` is one output word, ``{check[N-1:0], value}`` (check bit ``j`` for the field at
-bits ``j * OW / N`` upwards; :func:`vkit.sim.fast.stimulus.expected_lane_fields`), and each lane is a pixel.
+bits ``j * OW / N`` upwards; :func:`vkit.sim.fast.stimulus.expected_lane_fields`), and each lane is a pixel;
+with per-lane valid masks (``out_keep``) ``{keep[N-1:0], check[N-1:0], value}``, and each word's mask is
+compared too (a wrong mask counts as a mismatch).
 """
 
 from __future__ import annotations
@@ -34,11 +36,16 @@ _SHOWN_MISMATCHES = 10
 def _common(case: SimCase, stim: StimulusFiles, out_width: int, n_expected: int) -> dict[str, Any]:
     lanes = case.pixels_per_clock
     return {
-        "lanes": lanes, "first_high": int(case.lane_order == "first_high"),
+        "lanes": lanes, "first_high": int(case.lane_order == "first_high"), "keep": int(_checks_keep(case)),
         "label": case.label or "one case", "stim": stim, "stim_name": stim.stim.name, "out_width": out_width,
         "n_expected": n_expected, "harness": HARNESS, "half": format(float(case.clock_period_ns) / 2, "g"),
         "reset_cycles": max(_RESET_CYCLES_MIN, int(case.reset_cycles)), "shown": _SHOWN_MISMATCHES,
     }
+
+
+def _checks_keep(case: SimCase) -> bool:
+    """True when the design's output carries per-lane valid masks: the testbench checks them word by word."""
+    return "out_keep" in case.signals and case.pixels_per_clock > 1
 
 
 def verilog_testbench(case: SimCase, stim: StimulusFiles, out_width: int, n_expected: int) -> str:
@@ -49,9 +56,9 @@ def verilog_testbench(case: SimCase, stim: StimulusFiles, out_width: int, n_expe
 
 def vhdl_testbench(case: SimCase, stim: StimulusFiles, out_width: int, n_expected: int) -> str:
     """The VHDL-2008 text of ``tb_vkit`` for ``case`` played from ``stim`` (``n_expected`` output words)."""
-    ew = out_width + case.pixels_per_clock
-    return render("testbench.vhd.j2", hexw=4 * ((ew + 3) // 4), n_mem=max(1, n_expected),
-                  **_common(case, stim, out_width, n_expected))
+    ew = out_width + case.pixels_per_clock * (2 if _checks_keep(case) else 1)
+    return render("testbench.vhd.j2", hexw=4 * ((ew + 3) // 4), n_mem=max(1, n_expected), video=case.family == "video",
+                  ready_name=stim.ready.name if stim.ready is not None else "", **_common(case, stim, out_width, n_expected))
 
 
 def write_testbench(case: SimCase, out_dir: str | Path, stim: StimulusFiles, out_width: int, expected: np.ndarray,
@@ -68,8 +75,8 @@ def write_testbench(case: SimCase, out_dir: str | Path, stim: StimulusFiles, out
         language: "verilog" or "vhdl".
     """
     out = Path(out_dir)
-    exp_path = write_expected(out / "expected.hex", expected, mask, out_width, case.bus_layout())
-    n_expected = int(np.asarray(expected).size) // case.pixels_per_clock
+    exp_path, n_expected = write_expected(out / "expected.hex", expected, mask, out_width, case.bus_layout(),
+                                          _checks_keep(case))
     make = vhdl_testbench if language == "vhdl" else verilog_testbench
     tb = out / f"{TESTBENCH}{'.vhd' if language == 'vhdl' else '.v'}"
     tb.write_text(make(case, stim, out_width, n_expected))

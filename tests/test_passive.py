@@ -436,16 +436,73 @@ def test_score_dump_with_a_timing_the_generator_does_not_follow(tmp_path, capsys
     assert "frame 1: 28 input hsync pulses in the vsync period, the timing tiny32x24 has 27 lines" in out
 
 
-def test_a_design_with_per_lane_valid_masks_is_refused_in_one_line(tmp_path):
-    """The passive sampler does not read in_keep / out_keep: it must say so, never score whole beats."""
-    from vkit.core.errors import ConfigError
-    from vkit.run.passive import side_roles
+def _keep_levels(frames: np.ndarray, layout, masks_of=None) -> Levels:
+    """Stream levels of ``frames`` on ``layout`` with its per-lane valid masks, as the per-clock source drives
+    them (:func:`stream_transfers` with ``keep``); ``masks_of`` may rewrite the masks (a seeded bug)."""
+    t = stream_transfers(frames, layout, StallPattern(0.3, 2, seed=4), blanking="random", blanking_value=0,
+                         seed=5, keep=True)
+    keep = t.keep if masks_of is None else masks_of(t.keep)
+    rows = []
+    for i in range(t.data.size):  # gap clocks (valid low), then the beat; ready always high
+        rows += [[0, 1, 0, 0, int(t.idle[i]), 0]] * int(t.gaps[i])
+        rows.append([1, 1, int(t.sof[i]), int(t.eol[i]), int(t.data[i]), int(keep[i])])
+    table = np.asarray(rows, np.int64)
+    return Levels(0, {k: table[:, j] for j, k in enumerate(("valid", "ready", "sof", "eol", "data", "keep"))})
 
-    path = tmp_path / "keep.toml"
-    path.write_text(f'[[import]]\nmanifest = "{SAMPLE_RTL / "designs.toml"}"\nuse = ["lidscan_sharpen_k4"]\n'
-                    '[stimulus]\npatterns = ["box"]\ntimings = ["tiny32x24"]\n')
-    config = load_config(path)
-    design = config.designs["lidscan_sharpen_k4"]
-    with pytest.raises(ConfigError, match=r"in_keep and out_keep .*not read by the passive scoreboard.*vkit run") as err:
-        side_roles(design)
-    assert "\n" not in str(err.value)
+
+@pytest.mark.parametrize("order", ["first_low", "first_high"])
+def test_lane_masks_give_back_the_frames_of_a_width_that_leaves_a_beat_partly_filled(order):
+    # the round trip: the frames the source packed (30 pixels a line: the last beat keeps 2 of 4 lanes) come back
+    from vkit.video.bus import BusLayout
+
+    layout = BusLayout("gray8", lanes=4, lane_order=order)
+    sent = np.random.default_rng(9).integers(0, 256, (2, 5, 30), dtype=np.uint8)
+    frames, _ = _rebuild(_keep_levels(sent, layout), "stream", 11)
+    assert len(frames) == 2
+    for f, image in zip(frames, sent):
+        np.testing.assert_array_equal(f.image(layout), image)
+
+
+def test_lane_masks_on_the_output_score_as_the_driven_capture_reader_splits_them():
+    """Output words split by their masks (the same spread_kept_lanes the harness capture reader applies): the
+    model's frame passes; every lane marked on a short beat (lidscan's seeded bug tkeep_all) gives 32-pixel lines
+    where the model has 30, a timing failure as the driven run names it (sample_rtl/designs.toml expect)."""
+    from vkit.video.bus import BusLayout
+
+    layout = BusLayout("gray8", lanes=4)
+    spec = preset("sharpen")
+    sent = np.random.default_rng(13).integers(0, 256, (2, 6, 30), dtype=np.uint8)
+    expect = np.stack([run_model(spec, f).output for f in sent]).astype(np.uint8)
+    want = tomllib.loads((SAMPLE_RTL / "designs.toml").read_text())["designs"]["lidscan_sharpen_k4"]["bugs"]
+    inputs = _keep_levels(sent, layout)
+    for masks_of, kind in ((None, None), (lambda k: np.full_like(k, 0b1111), want["tkeep_all"]["expect"])):
+        outputs = _keep_levels(expect, layout, masks_of)
+        board = PassiveScoreboard(spec, "stream", layout, PassiveOptions(out_data_bits=32))
+        board.feed(inputs, outputs)
+        board.finish()
+        v = board.verdict()
+        assert board.frames_scored == 2
+        assert (v.passed, v.diagnosis.kind if v.diagnosis else None) == (kind is None, kind), v.timing_errors
+
+
+def test_a_declared_latency_is_checked_on_the_first_frame_and_only_when_it_is_steady():
+    """The output is the model's, 30 clocks after the input (the levels are built that way): declared 30 passes,
+    31 fails with the driven run's latency line; a stalled first frame is handed over as not steady."""
+    spec = preset("blur")
+    sent = np.random.default_rng(5).integers(0, 256, (2, 24, 32), dtype=np.uint8)
+    outputs = _output_levels([run_model(spec, f).output for f in sent], 30)
+    for stalls in (None, StallPattern(0.2, 2, seed=3)):
+        inputs, _ = _video_levels(sent, stalls)
+        for declared in (30, 31):
+            seen = []
+            options = PassiveOptions(declared_latency=lambda f, d=declared: (seen.append(f), (d, None))[1])
+            board = PassiveScoreboard(spec, "video", "gray8", options)
+            board.feed(inputs, outputs)
+            board.finish()
+            v = board.verdict()
+            assert [(f.width, f.height, f.steady, f.every_clock) for f in seen] == [(32, 24, stalls is None, True)]
+            if stalls is None:  # a stalled run's output is not on the input's schedule: only its hand-over is checked
+                assert v.passed is (declared == 30), v.timing_errors
+                assert v.latency_samples == 30  # no clock enable: every clock is a sample
+                assert any(e.startswith("latency: declared 31 clocks, measured 30 clocks")
+                           for e in v.timing_errors) is (declared == 31)

@@ -10,6 +10,7 @@ few failing frames for the report.
 from __future__ import annotations
 
 import re
+from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from typing import Any
 
@@ -19,13 +20,37 @@ from vkit.check.results import Finding, Verdict
 from vkit.check.scoreboard import score
 from vkit.core.errors import ConfigError
 from vkit.model.pipeline import ModelResult, PipelineSpec, run_model
-from vkit.video.bus import BusLayout, unpack_capture
+from vkit.video.bus import BusLayout
 from vkit.video.capture import MAX_EVENTS, Capture, RunFacts
 from vkit.video.observe import FramePixels, FrameRebuilder, Levels
 from vkit.video.timing import VideoTiming
-from vkit.video.words import sync_counts
+from vkit.video.words import samples_between, sync_counts
 
-__all__ = ["PassiveOptions", "FrameScore", "PassiveScoreboard"]
+__all__ = ["FirstFrame", "DeclaredLatency", "PassiveOptions", "FrameScore", "PassiveScoreboard"]
+
+
+@dataclass(frozen=True)
+class FirstFrame:
+    """What the latency a design declares depends on, as observed on the first frame watched.
+
+    Attributes:
+        width: pixels a line of the input frame.
+        height: lines of the input frame.
+        steady: no stall inside the input frame (an idle wait before its first pixel is none) and no
+            back-pressure on its output: a run the declared latency holds for.
+        every_clock: every input clock from the frame's first pixel to its first output pixel was enabled (no
+            clock enable mapped, or one held high): a latency in clocks is then declared as well as in samples.
+    """
+
+    width: int
+    height: int
+    steady: bool
+    every_clock: bool
+
+
+DeclaredLatency = Callable[[FirstFrame], "tuple[int | None, int | None]"]
+"""The latency a design declares for the first frame watched: ``(clocks, input samples)``, each None when it
+declares none there (the driven run's rule, :meth:`vkit.run.config.DesignConfig.declared_latency_clocks`)."""
 
 
 @dataclass(frozen=True)
@@ -44,6 +69,8 @@ class PassiveOptions:
         out_data_bits: width of the output data word, bits (needed to split it into lanes).
         timing: the video timing the run should follow (in pixels), or None: each input frame's active size and
             the hsync pulses of every vsync period on both sides (from the second frame on) are checked against it.
+        declared_latency: the latency the design declares, or None: checked on the first frame watched (its
+            latency in clocks and in input samples), as a driven run checks its first frame's.
     """
 
     tolerance_lsb: int = 0
@@ -54,6 +81,7 @@ class PassiveOptions:
     active_high: tuple[tuple[str, bool], ...] = ()
     out_data_bits: int | None = None
     timing: VideoTiming | None = None
+    declared_latency: DeclaredLatency | None = None
 
     def side_polarity(self, side: str) -> dict[str, bool]:
         """Role (without the side prefix) -> active high, for ``side`` ("in" or "out")."""
@@ -256,6 +284,10 @@ class PassiveScoreboard:
         self._t = _Totals()
         self._last_shape: tuple[int, int] | None = None
         self._opening = _Opening()
+        self._enables: list[tuple[int, np.ndarray]] | None = []
+        """The input clock enable of every clock until the first frame is scored (its latency in samples)."""
+        self._declared: tuple[int | None, int | None] = (None, None)
+        """The declared latency checked on the first frame: (clocks, samples)."""
         self.problems: list[str] = []
         """One line per frame that could not be scored (an input frame with ragged lines, a run that ended
         mid-frame)."""
@@ -264,7 +296,10 @@ class PassiveScoreboard:
 
     def feed(self, inputs: Levels, outputs: Levels) -> list[FrameScore]:
         """Take the next chunk of input and output levels (the same clocks); the frames it completed, scored."""
-        closed = self.inputs.feed(inputs.asserted(self._polarity["in"]))
+        inputs = inputs.asserted(self._polarity["in"])
+        if self._enables is not None and "enable" in inputs.roles:
+            self._enables.append((inputs.first_clock, inputs.roles["enable"] == 1))
+        closed = self.inputs.feed(inputs)
         self._in.extend(closed)
         for frame in closed:
             self._heights[frame.index] = len(frame.line_lengths)
@@ -340,6 +375,7 @@ class PassiveScoreboard:
         if out is not None:
             facts.first_output_clock = int(out.clocks[0])
             facts.latency_clocks = facts.first_output_clock - facts.first_input_clock
+            facts.latency_samples = self._samples_between(facts.first_input_clock, facts.first_output_clock)
             facts.backpressure_pixels = [[0, y, x] for y, x in out.held]
             facts.xz_control = [list(e) for e in out.events.get("xz_control", [])]
             facts.de_in_blanking = list(out.events.get("de_in_blanking", []))
@@ -359,17 +395,21 @@ class PassiveScoreboard:
             image = frame.image(self.bus)
         except ConfigError as exc:
             self.problems.append(str(exc))
+            self._enables = None  # no first frame to measure: the enable is not kept on
             return None
         expected = run_model(self.spec, image)
         facts = self._facts(frame, out)
         self._last_shape = frame.shape
         empty = FramePixels(0, *(np.zeros(0, np.int64) for _ in range(4)), closed=True, line_ended=True)
-        capture = (out or empty).capture(facts)
-        if self.bus.lanes > 1 and self.options.out_data_bits:
-            capture = unpack_capture(capture, self.bus, self.options.out_data_bits)
+        bits = self.options.out_data_bits
+        capture = (out or empty).pixels(self.bus, bits, facts) if bits else (out or empty).capture(facts)
         o = self.options
+        if frame.index == 0:
+            self._declared = self._declared_latency(frame, out, image.shape[:2])
+            self._enables = None  # the first frame's latency is measured: the enable is no longer kept
+        clocks, samples = self._declared if frame.index == 0 else (None, None)
         verdict = score([expected], capture, tolerance_lsb=o.tolerance_lsb, align=o.align, max_listed=o.max_listed,
-                        spec=self.spec, images=[image])
+                        spec=self.spec, images=[image], declared_latency_clocks=clocks, declared_latency_samples=samples)
         broken: list[Finding] = []
         if o.timing is not None and self.family == "video":
             broken = _against_timing(o.timing, frame, out, frame.index == 0)
@@ -383,6 +423,33 @@ class PassiveScoreboard:
         if self._t.first_failing is None and frame.index + 1 >= self.options.keep_failing:
             self._opening = _Opening(released=True)  # no failure among the first frames: their arrays go
         return result
+
+    def _samples_between(self, first: int, last: int) -> int | None:
+        """Enabled input clocks in ``[first, last)`` (:func:`~vkit.video.words.samples_between`): every clock
+        without a clock enable; None with one once the first frame is scored (its enable is no longer kept)."""
+        if self._enables is None:
+            return None
+        if not self._enables:
+            return samples_between(None, first, last)
+        base = self._enables[0][0]
+        enable = np.concatenate([e for _, e in self._enables])
+        return samples_between(enable, first - base, last - base)
+
+    def _declared_latency(self, frame: FramePixels, out: FramePixels | None,
+                          shape: tuple[int, ...]) -> tuple[int | None, int | None]:
+        """The latency the design declares for the first frame, ``(clocks, samples)``, as the driven run takes it
+        for its case: only on a steady frame, in clocks only where every input clock was enabled."""
+        declared = self.options.declared_latency
+        if declared is None or out is None:
+            return None, None
+        # a stream source idles before a frame's first beat; that wait is no stall (common practice, no source)
+        stalls = [h for h in frame.held if not (self.family == "stream" and h == [0, 0])]
+        first, last = int(frame.clocks[0]), int(out.clocks[0])
+        every = self._samples_between(first, last) == last - first
+        seen = FirstFrame(width=int(shape[1]), height=int(shape[0]), steady=not stalls and not out.held,
+                          every_clock=every)
+        clocks, samples = declared(seen)
+        return (clocks if every else None), samples
 
     def _keep_opening(self, index: int, image: np.ndarray, expected: ModelResult, capture: Capture, facts: RunFacts,
                       has_output: bool) -> None:
@@ -405,7 +472,8 @@ class PassiveScoreboard:
             opt = self.options
             o.verdict = _with_timing_findings(
                 score(o.expected, capture, tolerance_lsb=opt.tolerance_lsb, align=opt.align, max_listed=opt.max_listed,
-                      spec=self.spec, images=o.images), o.broken)
+                      spec=self.spec, images=o.images, declared_latency_clocks=self._declared[0],
+                      declared_latency_samples=self._declared[1]), o.broken)
         return o.verdict
 
     def _add(self, fs: FrameScore) -> None:

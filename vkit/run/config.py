@@ -379,6 +379,27 @@ class DesignConfig:
     latency_samples: int | None = None
     timing_parameters: dict[str, str] = field(default_factory=dict)
 
+    def declared_latency_clocks(self, timing: str | None, width: int, h_total: int | None) -> int | None:
+        """The latency this design declares, clocks, for frames of ``width`` pixels on the timing named ``timing``
+        (a stream's is ``tiny{width}x{height}``) of ``h_total`` clocks a line (video; None when not known); None
+        when it declares none there. On ``latency_timing`` it is ``latency_clocks``; elsewhere it is derived from
+        ``pipeline_clocks`` as the sample designs document: ``h_total + 1 + pipeline_clocks`` (video) or
+        ``width + 2 + pipeline_clocks`` (stream). The caller decides whether the run is steady."""
+        if self.latency_clocks is not None and self.latency_timing in (None, timing):
+            return self.latency_clocks
+        if self.pipeline_clocks is None:
+            return None
+        if self.family == "video":
+            return None if h_total is None else int(h_total) + 1 + self.pipeline_clocks
+        return int(width) + 2 + self.pipeline_clocks
+
+    def declared_latency_samples(self, timing: str | None) -> int | None:
+        """The latency this design declares in input samples (``latency_samples``) on the timing named ``timing``:
+        on its ``latency_timing``, or every timing when that is not given; else None."""
+        if self.latency_samples is None:
+            return None
+        return self.latency_samples if self.latency_timing in (None, timing) else None
+
     def bus_layout(self) -> BusLayout:
         """How the design's data words hold pixels (:class:`vkit.video.bus.BusLayout`)."""
         return BusLayout(self.pixel_format, self.component_order, self.pixels_per_clock, self.lane_order)
@@ -494,32 +515,19 @@ class Case:
     def declared_latency_clocks(self) -> int | None:
         """The latency the design declares for this case's timing, or None when it declares none here.
 
-        Only steady cases (no stalls, gaps or back-pressure) have a declared latency. On the manifest's
-        ``latency_timing`` it is ``latency_clocks``; elsewhere it is derived from ``pipeline_clocks``
-        as the sample designs document: ``h_total + 1 + pipeline_clocks`` (video) or
-        ``width + 2 + pipeline_clocks`` (stream).
+        Only steady cases (no stalls, gaps or back-pressure) without a clock enable left low on some clocks
+        have a declared latency in clocks (:meth:`DesignConfig.declared_latency_clocks`).
         """
-        d = self.design
         if not self.steady or (self.enable is not None and self.enable != {"every": 1}):
             return None  # behind a clock enable the design declares its latency in samples
         here = self.timing_label if self.design.family == "video" else f"tiny{self.width}x{self.height}"
-        if d.latency_clocks is not None and (d.latency_timing is None or d.latency_timing == here):
-            return d.latency_clocks
-        if d.pipeline_clocks is None:
-            return None
-        if d.family == "video" and self.timing is not None:
-            return VideoTiming.from_dict(self.timing).h_total + 1 + d.pipeline_clocks
-        if d.family == "stream":
-            return self.width + 2 + d.pipeline_clocks
-        return None
+        h_total = VideoTiming.from_dict(self.timing).h_total if self.timing is not None else None
+        return self.design.declared_latency_clocks(here, self.width, h_total)
 
     def declared_latency_samples(self) -> int | None:
         """The latency the design declares in input samples (``latency_samples``), on steady cases of its
         ``latency_timing`` (every timing when that is not given)."""
-        d = self.design
-        if not self.steady or d.latency_samples is None:
-            return None
-        return d.latency_samples if d.latency_timing in (None, self.timing_label) else None
+        return self.design.declared_latency_samples(self.timing_label) if self.steady else None
 
     def score_settings(self) -> dict[str, Any]:
         """The keyword arguments of :func:`vkit.check.scoreboard.score` this case's design asks for: tolerance,

@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
-from vkit.check.passive import PassiveOptions, PassiveScoreboard
+from vkit.check.passive import DeclaredLatency, FirstFrame, PassiveOptions, PassiveScoreboard
 from vkit.check.results import Verdict
 from vkit.core.errors import ConfigError
 from vkit.report.page import write_index
@@ -21,7 +21,7 @@ from vkit.run.case import mutant_diagnosis, named_by_mutant
 from vkit.run.config import Config, DesignConfig
 from vkit.video.capture import Capture
 from vkit.video.observe import SIDE_ROLES
-from vkit.video.timing import preset
+from vkit.video.timing import PRESETS, VideoTiming, preset
 
 __all__ = ["PassiveOutcome", "pick_design", "side_roles", "new_scoreboard", "write_passive_report", "score_dump"]
 
@@ -65,10 +65,6 @@ def side_roles(design: DesignConfig) -> dict[str, dict[str, str]]:
         ConfigError: a role the passive scoreboard needs is not mapped (out_vsync for video).
     """
     required, optional = SIDE_ROLES[design.family]
-    masks = [r for r in ("in_keep", "out_keep") if design.ports.get(r)]
-    if masks:
-        raise ConfigError(f"design {design.name}: {' and '.join(masks)} (per-lane valid masks) are not read by the "
-                          "passive scoreboard yet; score this design with a driven run (vkit run)")
     sides: dict[str, dict[str, str]] = {"in": {}, "out": {}}
     for side in sides:
         for role in required + optional:
@@ -98,9 +94,37 @@ def new_scoreboard(design: DesignConfig, *, max_listed: int = 20, out_data_bits:
         timing: a timing preset name (``hd1280x720p60``, ``tiny32x24``, ...) the run should follow, or None:
             frame sizes and hsync pulses a vsync period are then checked against it.
     """
-    options = PassiveOptions(timing=preset(timing) if timing else None, tolerance_lsb=design.tolerance_lsb, align=design.align, max_listed=max_listed,
-                             active_high=tuple(sorted(design.port_polarity.items())), out_data_bits=out_data_bits)
+    given = preset(timing) if timing else None
+    options = PassiveOptions(timing=given, tolerance_lsb=design.tolerance_lsb, align=design.align,
+                             max_listed=max_listed, active_high=tuple(sorted(design.port_polarity.items())),
+                             out_data_bits=out_data_bits, declared_latency=_declared_latency(design, given))
     return PassiveScoreboard(design.pipeline_spec(), design.family, design.bus_layout(), options)
+
+
+def _declared_latency(design: DesignConfig, given: VideoTiming | None) -> DeclaredLatency:
+    """The latency ``design`` declares for the first frame watched, ``(clocks, samples)``, by the driven run's rule
+    (:meth:`DesignConfig.declared_latency_clocks`, only on a steady frame). A video frame's timing is the one
+    given, else the timing preset of its active size (when exactly one has that size); a stream's is named
+    by its size, as the driven case names it."""
+    def declared(seen: FirstFrame) -> tuple[int | None, int | None]:
+        if not seen.steady:
+            return None, None
+        if design.family == "stream":
+            return (design.declared_latency_clocks(f"tiny{seen.width}x{seen.height}", seen.width, None),
+                    design.declared_latency_samples(f"{seen.width}x{seen.height}"))
+        timing = given or _preset_of_size(seen.width, seen.height)
+        if timing is None:
+            return None, None
+        return (design.declared_latency_clocks(timing.name, seen.width, timing.h_total),
+                design.declared_latency_samples(timing.name))
+
+    return declared
+
+
+def _preset_of_size(width: int, height: int) -> VideoTiming | None:
+    """The timing preset of active size ``width`` x ``height``, when exactly one has it."""
+    found = [t for t in PRESETS.values() if (t.h_active, t.v_active) == (width, height)]
+    return found[0] if len(found) == 1 else None
 
 
 def write_passive_report(case_id: str, board: PassiveScoreboard, out_dir: str | Path,

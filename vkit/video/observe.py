@@ -11,7 +11,8 @@ being received. The rules are the per-clock monitors' (:mod:`vkit.sim.tb.video`,
   clocks it enables are samples (the others hold none). The leading edges of vsync and hsync are kept with
   the frame they close, counted as the monitors count them (:func:`vkit.video.words.sync_counts`).
 - stream: a pixel is a clock with valid and ready high; start-of-frame on a pixel starts a new frame
-  before it, end-of-line ends the line after it.
+  before it, end-of-line ends the line after it. With a per-lane valid mask mapped (``keep``), each word
+  keeps its mask, and only the lanes it marks become pixels (:meth:`FramePixels.pixels`).
 
 Numbers only: no signals, no simulator, no filters.
 """
@@ -24,18 +25,22 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from vkit.core.errors import ConfigError
-from vkit.video.bus import BusLayout
+from vkit.video.bus import BusLayout, split_lanes, spread_kept_lanes, spread_lanes
 from vkit.video.capture import MAX_EVENTS, UNKNOWN, Capture, RunFacts
 
-__all__ = ["SIDE_ROLES", "Levels", "FramePixels", "FrameRebuilder"]
+__all__ = ["SIDE_ROLES", "WORD_ROLES", "Levels", "FramePixels", "FrameRebuilder"]
 
 SIDE_ROLES: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
     "video": (("vsync", "de", "data"), ("valid", "hsync", "enable")),
-    "stream": (("valid", "ready", "sof", "eol", "data"), ()),
+    "stream": (("valid", "ready", "sof", "eol", "data"), ("keep",)),
 }
 """Per family: (required, optional) roles of one side, without the ``in_`` / ``out_`` prefix: only what the
 rebuild reads (a line ends with its data-enable run; hsync is only counted, as the driven run counts it). The
-video side needs vsync: with nothing but data-enable a passive watcher cannot tell where a frame ends."""
+video side needs vsync: with nothing but data-enable a passive watcher cannot tell where a frame ends. A stream's
+``keep`` is its per-lane valid mask (``in_keep`` / ``out_keep``, :data:`vkit.sim.signals.KEEP_ROLES`)."""
+
+WORD_ROLES = ("data", "keep")
+"""Roles whose level is a word (``data``, a lane mask), not a 1-bit pin: never inverted by a pin polarity."""
 
 
 @dataclass
@@ -45,7 +50,7 @@ class Levels:
     Attributes:
         first_clock: clock index of entry 0, counted from the first watched clock.
         roles: role without its side prefix (``"de"``, ``"data"``, ...) -> int64 array, one entry per clock;
-            a 1-bit role holds 0, 1 or -1 for X/Z, ``data`` holds the word or
+            a 1-bit role holds 0, 1 or -1 for X/Z, ``data`` holds the word (``keep`` the lane mask) or
             :data:`~vkit.video.capture.UNKNOWN` for X/Z.
     """
 
@@ -57,8 +62,8 @@ class Levels:
 
     def asserted(self, active_high: dict[str, bool]) -> Levels:
         """The levels with each 1-bit role read as asserted (1) or not (0): roles whose pin is active low
-        (``active_high[role]`` False) are inverted; X/Z (-1) and ``data`` are kept as they are."""
-        low = [r for r, high in active_high.items() if not high and r in self.roles and r != "data"]
+        (``active_high[role]`` False) are inverted; X/Z (-1) and the words (``data``, ``keep``) are kept as they are."""
+        low = [r for r, high in active_high.items() if not high and r in self.roles and r not in WORD_ROLES]
         if not low:
             return self
         roles = dict(self.roles)
@@ -88,6 +93,7 @@ class FramePixels:
             that closed this frame (video; empty on a stream; None when the side has no vsync).
         hsync_clocks: clocks of the hsync leading edges in the same span, before the closing vsync edge (video,
             hsync mapped), else None.
+        keeps: the per-lane valid mask of each word (a stream with ``keep`` mapped; -1 for X/Z), else None.
     """
 
     index: int
@@ -101,6 +107,7 @@ class FramePixels:
     events: dict[str, list] = field(default_factory=dict)
     vsync_clocks: list[int] | None = field(default_factory=list)
     hsync_clocks: list[int] | None = None
+    keeps: np.ndarray | None = None
 
     @property
     def line_lengths(self) -> list[int]:
@@ -117,26 +124,44 @@ class FramePixels:
 
     def image(self, bus: BusLayout | str) -> np.ndarray:
         """The frame as an input image, its samples as the model takes them (:meth:`BusLayout.samples`): one
-        data word a pixel, or ``bus.lanes`` pixels a word split as the active flow packs them.
+        data word a pixel, or ``bus.lanes`` pixels a word split as the active flow packs them (with lane masks,
+        only the lanes each word's mask marks, :meth:`pixels`).
 
         Raises:
             ConfigError: the lines are not all the same length, or a pixel carried X/Z or bits the format lacks.
         """
         layout = BusLayout.of(bus)
-        shape = self.shape
-        if shape is None:
-            lengths = self.line_lengths
-            raise ConfigError(
-                f"input frame {self.index}: lines of {min(lengths or [0])} to {max(lengths or [0])} pixels; a frame "
-                "needs lines of one length: check the input data-enable / end-of-line and the signal paths")
         if (self.values == UNKNOWN).any():
             y = int(self.lines[np.argmax(self.values == UNKNOWN)])
             raise ConfigError(f"input frame {self.index}: X/Z on the data bus in line {y}; the design's input "
                               "must carry known pixels (check the upstream stage's reset)")
+        kept = self.pixels(layout, layout.word_bits) if self.keeps is not None and layout.lanes > 1 else None
+        lines = kept.line if kept is not None else self.lines
+        lengths = np.bincount(lines).tolist() if lines.size else []
+        if not lengths or min(lengths) != max(lengths):
+            raise ConfigError(
+                f"input frame {self.index}: lines of {min(lengths or [0])} to {max(lengths or [0])} pixels; a frame "
+                "needs lines of one length: check the input data-enable / end-of-line and the signal paths")
+        shape = (len(lengths), lengths[0])
         try:
+            if kept is not None:
+                return layout.samples(kept.values.reshape(shape))
             return layout.samples(layout.split_words(self.values.reshape(shape)))
         except ConfigError as exc:
             raise ConfigError(f"input frame {self.index}: {exc}") from None
+
+    def pixels(self, bus: BusLayout, bus_bits: int, facts: RunFacts | None = None) -> Capture:
+        """The frame as a one-frame capture of one sample a pixel: each word of ``bus_bits`` split into its
+        ``bus.lanes`` fields (:func:`~vkit.video.bus.split_lanes`), and with lane masks only the lanes each mask
+        marks, columns counting the kept pixels (:func:`~vkit.video.bus.spread_kept_lanes`, as the driven capture
+        reader applies them; a mask that held X/Z keeps every lane, as the per-clock monitor does)."""
+        cap = self.capture(facts if facts is not None else RunFacts())
+        if bus.lanes == 1:
+            return cap
+        lane_values = split_lanes(cap.values, bus, bus_bits)
+        if self.keeps is None:
+            return spread_lanes(cap, lane_values)
+        return spread_kept_lanes(cap, lane_values, self.keeps, bus)
 
     def capture(self, facts: RunFacts) -> Capture:
         """The frame as a one-frame :class:`~vkit.video.capture.Capture` (frame number 0) with ``facts``."""
@@ -215,7 +240,10 @@ class FrameRebuilder:
             pix, line_b, frame_b, held, vs_after = self._stream(levels, at_clock)
         values = levels.roles["data"][pix]
         clocks = at_clock[pix]
-        closed = self._number(values, clocks, line_b, frame_b, held)
+        keeps = levels.roles["keep"][pix] if "keep" in levels.roles else None
+        if self.output and keeps is not None and (keeps < 0).any():  # read on transfers only, as the monitor does
+            self._event("xz_control", [[int(k), "out_keep"] for k in clocks[keeps < 0]])
+        closed = self._number(values, clocks, line_b, frame_b, held, keeps)
         if vs_after and self._blocks:  # a vsync after the last pixel closes the frame being received
             closed.append(self._emit(closed_by_delimiter=True))
         return closed
@@ -329,9 +357,9 @@ class FrameRebuilder:
     # -- numbering (shared) ---------------------------------------------------------------------------
 
     def _number(self, values: np.ndarray, clocks: np.ndarray, line_b: np.ndarray, frame_b: np.ndarray,
-                held: np.ndarray) -> list[FramePixels]:
+                held: np.ndarray, keeps: np.ndarray | None = None) -> list[FramePixels]:
         """Give each pixel its frame, line and column (the rules of CaptureBuilder), keep the open frame's
-        pixels, and return the frames a later pixel closed."""
+        pixels (and lane masks, when read), and return the frames a later pixel closed."""
         c = self._c
         n = values.size
         if n == 0:
@@ -357,7 +385,8 @@ class FrameRebuilder:
             if lo > 0 or (frame_b[0] and self._blocks):
                 if self._blocks:
                     closed.append(self._emit(closed_by_delimiter=True, until_clock=int(clocks[lo])))
-            self._blocks.append((values[lo:hi], clocks[lo:hi], lines[lo:hi], column[lo:hi], held[lo:hi]))
+            self._blocks.append((values[lo:hi], clocks[lo:hi], lines[lo:hi], column[lo:hi], held[lo:hi],
+                                 None if keeps is None else keeps[lo:hi]))
         return closed
 
     def _split_by_lines(self, line_b: np.ndarray, first_ever: bool) -> np.ndarray:
@@ -381,7 +410,9 @@ class FrameRebuilder:
 
     def _emit(self, closed_by_delimiter: bool, until_clock: int | None = None) -> FramePixels:
         """Hand out the frame being received and forget its pixels."""
-        values, clocks, lines, columns, held = (np.concatenate(parts) for parts in zip(*self._blocks))
+        *parts, masks = zip(*self._blocks)
+        values, clocks, lines, columns, held = (np.concatenate(p) for p in parts)
+        keeps = None if masks[0] is None else np.concatenate(masks)
         self._blocks = []
         events = {}
         for key, items in self._events.items():
@@ -396,6 +427,7 @@ class FrameRebuilder:
             index=self.frames_out, values=values, clocks=clocks, lines=lines, columns=columns,
             closed=closed_by_delimiter, line_ended=bool(line_ended),
             held=[[int(lines[k]), int(columns[k])] for k in at], events=events, vsync_clocks=vs, hsync_clocks=hs,
+            keeps=keeps,
         )
         self.frames_out += 1
         return frame

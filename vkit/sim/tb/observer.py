@@ -17,7 +17,7 @@ from vkit.sim.signals import SignalMap
 from cocotb.triggers import RisingEdge
 
 from vkit.sim.tb._common import bit_reader, resolve_component, ticker, word_reader
-from vkit.video.observe import Levels
+from vkit.video.observe import WORD_ROLES, Levels
 
 __all__ = ["LevelSampler", "CHUNK_CLOCKS", "find_instance"]
 
@@ -64,7 +64,7 @@ class LevelSampler:
         smap, handles, self._clock, self._reset = resolve_component(instance, signals, family, None, None)
         self.signals = smap
         self._order = [(side, role) for side, roles in sides.items() for role in roles]
-        self._readers = [word_reader(handles[f"{side}_{role}"]) if role == "data" else
+        self._readers = [word_reader(handles[f"{side}_{role}"]) if role in WORD_ROLES else
                          bit_reader(handles[f"{side}_{role}"]) for side, role in self._order]
         self._on_chunk = on_chunk
         self.reset_active_high = reset_active_high
